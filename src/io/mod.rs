@@ -1,0 +1,15 @@
+//! Input and output: the study file, the pot and sensor tables, the logger
+//! exports (delimiters, decimal commas, time formats and zones, units), the
+//! audited quality control of readings, and the atomic writing of output
+//! folders.
+//!
+//! Nothing here knows about climate indicators or models; later stages read
+//! their own sections of the study file through [`study::Study::section`].
+
+pub mod error;
+pub mod layout;
+pub mod output;
+pub mod study;
+pub mod table;
+
+pub use error::{IoError, Result};

@@ -1,0 +1,556 @@
+//! The study file (`study.toml`): one TOML file naming every input of an
+//! analysis. Paths inside it are relative to the folder of the study file.
+//!
+//! This module parses the sections the input stage owns (`[study]`,
+//! `[compartment]`, `[pots]`, `[sensors]`, `[[logs]]`, `[[openings]]`, `[qc]`)
+//! with unknown keys rejected. Sections owned by later stages (`[climate]`,
+//! `[[indicator]]`, `[mapping]`, `[model]`, `[verdict]`, `[report]`) are
+//! accepted here as opaque tables and parsed by their stage through
+//! [`Study::section`], again with unknown keys rejected and with line and
+//! column in the message. Any other top-level key is an error.
+//!
+//! The key-by-key documentation is `docs/study-file.md`; keep the two in step.
+
+use super::error::{IoError, Result};
+use serde::Deserialize;
+use serde::de::DeserializeOwned;
+use std::path::{Path, PathBuf};
+
+/// The sections of the study file that the input stage owns.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct StudySpec {
+    /// `[study]`.
+    pub study: StudySection,
+    /// `[compartment]`: the floor area the pots and sensors stand in.
+    #[serde(default)]
+    pub compartment: Option<Compartment>,
+    /// `[pots]`.
+    pub pots: PotsSection,
+    /// `[sensors]`; absent when the analysis uses no loggers.
+    #[serde(default)]
+    pub sensors: Option<SensorsSection>,
+    /// `[[logs]]`: one block per export format.
+    #[serde(default)]
+    pub logs: Vec<LogSection>,
+    /// `[[openings]]`: doors, vents, windows, pads, as segments.
+    #[serde(default)]
+    pub openings: Vec<Opening>,
+    /// `[qc]`: thresholds of the quality-control rules (see `io::qc`).
+    #[serde(default)]
+    pub qc: Option<toml::Table>,
+    /// Owned by `climate`.
+    #[serde(default)]
+    pub climate: Option<toml::Table>,
+    /// Owned by `climate`.
+    #[serde(default)]
+    pub indicator: Option<Vec<toml::Table>>,
+    /// Owned by `spatial`.
+    #[serde(default)]
+    pub mapping: Option<toml::Table>,
+    /// Owned by `model`.
+    #[serde(default)]
+    pub model: Option<toml::Table>,
+    /// Owned by the verdict stage.
+    #[serde(default)]
+    pub verdict: Option<toml::Table>,
+    /// Owned by `report`.
+    #[serde(default)]
+    pub report: Option<toml::Table>,
+}
+
+/// `[study]`.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct StudySection {
+    /// Free text shown in outputs.
+    pub title: String,
+    /// IANA time-zone name (e.g. `Europe/Amsterdam`) for logger times that
+    /// carry no offset, and for day boundaries and clock times.
+    pub timezone: String,
+    /// Output folder, relative to the study file.
+    pub output: String,
+    /// Seed for every random step of the analysis (conditional simulation,
+    /// permutation tests). Default 1.
+    #[serde(default)]
+    pub seed: Option<u64>,
+}
+
+/// `[compartment]`: a rectangle `[0, length] x [0, width]` in metres.
+#[derive(Debug, Clone, Copy, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Compartment {
+    /// Extent along x, metres.
+    pub length: f64,
+    /// Extent along y, metres.
+    pub width: f64,
+}
+
+/// `[pots]`: the trait table and where each pot stands.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PotsSection {
+    /// The table (CSV), relative to the study file.
+    pub file: String,
+    /// Column with the pot identifier.
+    pub id: String,
+    /// Column with x in metres (omit when `[pots.grid]` is given).
+    #[serde(default)]
+    pub x: Option<String>,
+    /// Column with y in metres (omit when `[pots.grid]` is given).
+    #[serde(default)]
+    pub y: Option<String>,
+    /// Column with the start of each pot's growth window (local date or date-time).
+    #[serde(default)]
+    pub start: Option<String>,
+    /// Column with the end of each pot's growth window (local date or date-time).
+    #[serde(default)]
+    pub end: Option<String>,
+    /// Field delimiter of the pot table (one character; default `,`).
+    #[serde(default)]
+    pub delimiter: Option<String>,
+    /// Grid layout: derive x and y from bench, row and slot numbers.
+    #[serde(default)]
+    pub grid: Option<GridLayout>,
+}
+
+/// `[pots.grid]`: pots on benches in rows of slots. With 1-based integers
+/// `bench`, `row` and `slot`:
+/// `x = origin[0] + (slot - 1) * slot_pitch`,
+/// `y = origin[1] + (bench - 1) * bench_pitch + (row - 1) * row_pitch`.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct GridLayout {
+    /// Column with the bench number (1, 2, ...).
+    pub bench: String,
+    /// Column with the row number within the bench (1, 2, ...).
+    pub row: String,
+    /// Column with the slot number along the row (1, 2, ...).
+    pub slot: String,
+    /// Metres between the first rows of consecutive benches, along y.
+    pub bench_pitch: f64,
+    /// Metres between rows of one bench, along y.
+    pub row_pitch: f64,
+    /// Metres between slots of one row, along x.
+    pub slot_pitch: f64,
+    /// Position of bench 1, row 1, slot 1 (metres). Default `[0, 0]`.
+    #[serde(default)]
+    pub origin: Option<[f64; 2]>,
+}
+
+/// `[sensors]`: where each logger stands.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SensorsSection {
+    /// The table (CSV), relative to the study file.
+    pub file: String,
+    /// Column with the sensor identifier (as it appears in the logs).
+    pub id: String,
+    /// Column with x in metres.
+    pub x: String,
+    /// Column with y in metres.
+    pub y: String,
+    /// Column with height in metres (kept, not used for mapping).
+    #[serde(default)]
+    pub z: Option<String>,
+    /// Field delimiter of the sensor table (one character; default `,`).
+    #[serde(default)]
+    pub delimiter: Option<String>,
+}
+
+/// `[[logs]]`: one export format, matching one or more files.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LogSection {
+    /// Glob patterns, relative to the study file.
+    pub files: Vec<String>,
+    /// Field delimiter: one character, or `"\t"` / `"tab"`. Default `,`.
+    #[serde(default)]
+    pub delimiter: Option<String>,
+    /// Decimal mark: `.` (default) or `,`.
+    #[serde(default)]
+    pub decimal: Option<String>,
+    /// Column with the time stamp.
+    pub time: String,
+    /// chrono strftime pattern, `rfc3339`, or `unix` (epoch seconds).
+    pub time_format: String,
+    /// IANA zone of times without offset; default `[study].timezone`.
+    #[serde(default)]
+    pub timezone: Option<String>,
+    /// Column with the sensor id (exclusive with `sensor_from`).
+    #[serde(default)]
+    pub sensor: Option<String>,
+    /// `"file_stem"`: the file name without extension is the sensor id.
+    #[serde(default)]
+    pub sensor_from: Option<String>,
+    /// Preamble lines before the header. Default 0.
+    #[serde(default)]
+    pub skip_lines: Option<usize>,
+    /// Which columns hold which channel, in which unit.
+    pub columns: LogColumns,
+}
+
+/// `[logs.columns]`.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LogColumns {
+    /// Air temperature; units `degC`, `degF`, `K`.
+    #[serde(default)]
+    pub temperature: Option<ChannelColumn>,
+    /// Relative humidity; units `percent`, `fraction`.
+    #[serde(default)]
+    pub humidity: Option<ChannelColumn>,
+    /// Light; units `umol_m2_s`, `lux_sunlight`, `lux_white_led`, `lux_hps`,
+    /// `w_m2_shortwave`.
+    #[serde(default)]
+    pub light: Option<ChannelColumn>,
+}
+
+/// `{ column = "...", unit = "..." }`.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChannelColumn {
+    /// Column name in the export.
+    pub column: String,
+    /// Unit name (see [`LogColumns`]).
+    pub unit: String,
+}
+
+/// `[[openings]]`: a door, vent, window or pad as a segment on the floor plan.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Opening {
+    /// A name made of letters, digits and `_`; the distance covariate is
+    /// called `distance_<name>`.
+    pub name: String,
+    /// One end, `[x, y]` in metres.
+    pub from: [f64; 2],
+    /// The other end, `[x, y]` in metres.
+    pub to: [f64; 2],
+}
+
+/// A parsed study file.
+#[derive(Debug, Clone)]
+pub struct Study {
+    /// The study file as given.
+    pub path: PathBuf,
+    /// Its folder; relative paths resolve against it.
+    pub dir: PathBuf,
+    /// The file's text, from which later stages parse their sections.
+    pub source: String,
+    /// The sections owned by the input stage.
+    pub spec: StudySpec,
+    /// The parsed time zone of `[study].timezone`.
+    pub timezone: chrono_tz::Tz,
+}
+
+impl Study {
+    /// Read and validate a study file.
+    pub fn load(path: &Path) -> Result<Study> {
+        let source = std::fs::read_to_string(path).map_err(|source| IoError::Read {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        Study::from_source(path, source)
+    }
+
+    /// Parse a study file from text; `path` is used for messages and to
+    /// resolve relative paths.
+    pub fn from_source(path: &Path, source: String) -> Result<Study> {
+        let spec: StudySpec = toml::from_str(&source).map_err(|e| toml_error(path, &source, &e))?;
+        let dir = path
+            .parent()
+            .map(|p| if p.as_os_str().is_empty() { Path::new(".") } else { p })
+            .unwrap_or(Path::new("."))
+            .to_path_buf();
+        let timezone = parse_timezone(path, "study.timezone", &spec.study.timezone)?;
+        let study = Study {
+            path: path.to_path_buf(),
+            dir,
+            source,
+            spec,
+            timezone,
+        };
+        study.validate()?;
+        Ok(study)
+    }
+
+    /// Resolve a path written in the study file.
+    pub fn resolve(&self, rel: &str) -> PathBuf {
+        let p = Path::new(rel);
+        if p.is_absolute() { p.to_path_buf() } else { self.dir.join(p) }
+    }
+
+    /// The output folder.
+    pub fn output_dir(&self) -> PathBuf {
+        self.resolve(&self.spec.study.output)
+    }
+
+    /// The seed of every random step (default 1).
+    pub fn seed(&self) -> u64 {
+        self.spec.study.seed.unwrap_or(1)
+    }
+
+    /// Parse a section owned by a later stage. `T` is a document type whose
+    /// fields are the top-level keys that stage owns (other keys are ignored at
+    /// this level, so `T` must not deny unknown fields itself; its nested
+    /// section types should). Errors carry the study file, line and column.
+    pub fn section<T: DeserializeOwned>(&self) -> Result<T> {
+        toml::from_str(&self.source).map_err(|e| toml_error(&self.path, &self.source, &e))
+    }
+
+    /// An [`IoError::Invalid`] about key `key` of this study file.
+    pub fn invalid(&self, key: &str, message: impl Into<String>, hint: Option<String>) -> IoError {
+        IoError::Invalid {
+            path: self.path.clone(),
+            key: key.to_string(),
+            message: message.into(),
+            hint,
+        }
+    }
+
+    fn validate(&self) -> Result<()> {
+        let s = &self.spec;
+        if s.study.output.trim().is_empty() {
+            return Err(self.invalid("study.output", "must name a folder", None));
+        }
+        if let Some(c) = s.compartment {
+            if !(c.length.is_finite() && c.length > 0.0 && c.width.is_finite() && c.width > 0.0) {
+                return Err(self.invalid(
+                    "compartment",
+                    format!("length and width must be positive metres, got {} x {}", c.length, c.width),
+                    None,
+                ));
+            }
+        }
+        let p = &s.pots;
+        match (&p.x, &p.y, &p.grid) {
+            (Some(_), Some(_), None) | (None, None, Some(_)) => {}
+            (_, _, Some(_)) => {
+                return Err(self.invalid(
+                    "pots",
+                    "give either the columns `x` and `y` or a `[pots.grid]` layout, not both",
+                    None,
+                ));
+            }
+            _ => {
+                return Err(self.invalid(
+                    "pots",
+                    "pot positions are missing",
+                    Some("set `x` and `y` (column names, metres) or add a `[pots.grid]` table".into()),
+                ));
+            }
+        }
+        if let Some(g) = &p.grid {
+            for (k, v) in [("bench_pitch", g.bench_pitch), ("row_pitch", g.row_pitch), ("slot_pitch", g.slot_pitch)] {
+                if !(v.is_finite() && v >= 0.0) {
+                    return Err(self.invalid(&format!("pots.grid.{k}"), format!("must be a non-negative number of metres, got {v}"), None));
+                }
+            }
+        }
+        for (i, log) in s.logs.iter().enumerate() {
+            let key = |k: &str| format!("logs[{}].{k}", i + 1);
+            if log.files.is_empty() {
+                return Err(self.invalid(&key("files"), "needs at least one glob pattern", None));
+            }
+            match (&log.sensor, &log.sensor_from) {
+                (Some(_), None) => {}
+                (None, Some(f)) if f == "file_stem" => {}
+                (None, Some(f)) => {
+                    return Err(self.invalid(
+                        &key("sensor_from"),
+                        format!("unknown value `{f}`"),
+                        Some("the only value is \"file_stem\"".into()),
+                    ));
+                }
+                (Some(_), Some(_)) => {
+                    return Err(self.invalid(&key("sensor"), "give `sensor` or `sensor_from`, not both", None));
+                }
+                (None, None) => {
+                    return Err(self.invalid(
+                        &key("sensor"),
+                        "no sensor id",
+                        Some("name the sensor-id column with `sensor = \"...\"` or set `sensor_from = \"file_stem\"`".into()),
+                    ));
+                }
+            }
+            if let Some(tz) = &log.timezone {
+                parse_timezone(&self.path, &key("timezone"), tz)?;
+            }
+            if let Some(d) = &log.decimal {
+                if d != "." && d != "," {
+                    return Err(self.invalid(&key("decimal"), format!("must be \".\" or \",\", got {d:?}"), None));
+                }
+            }
+            if let Some(d) = &log.delimiter {
+                delimiter_byte(d).map_err(|m| self.invalid(&key("delimiter"), m, None))?;
+            }
+            if log.columns.temperature.is_none() && log.columns.humidity.is_none() && log.columns.light.is_none() {
+                return Err(self.invalid(
+                    &key("columns"),
+                    "maps no channel",
+                    Some("add at least one of temperature, humidity, light".into()),
+                ));
+            }
+        }
+        if !s.logs.is_empty() && s.sensors.is_none() {
+            return Err(self.invalid(
+                "sensors",
+                "logger exports are listed but there is no [sensors] table",
+                Some("add [sensors] with file, id, x and y".into()),
+            ));
+        }
+        let mut seen = std::collections::BTreeSet::new();
+        for (i, o) in s.openings.iter().enumerate() {
+            let key = format!("openings[{}].name", i + 1);
+            if o.name.is_empty() || !o.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_') {
+                return Err(self.invalid(&key, format!("`{}` must be letters, digits and `_`", o.name), None));
+            }
+            if !seen.insert(o.name.clone()) {
+                return Err(self.invalid(&key, format!("`{}` is used twice", o.name), None));
+            }
+            if !o.from.iter().chain(o.to.iter()).all(|v| v.is_finite()) {
+                return Err(self.invalid(&format!("openings[{}]", i + 1), "coordinates must be finite numbers", None));
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Parse a one-character delimiter (`"\t"` and `"tab"` mean tab).
+pub fn delimiter_byte(d: &str) -> std::result::Result<u8, String> {
+    match d {
+        "\t" | "tab" | "\\t" => Ok(b'\t'),
+        _ if d.len() == 1 && d.is_ascii() => Ok(d.as_bytes()[0]),
+        _ => Err(format!("must be one ASCII character (or \"tab\"), got {d:?}")),
+    }
+}
+
+/// Parse an IANA time-zone name, with a suggestion when it is misspelt.
+pub fn parse_timezone(path: &Path, key: &str, name: &str) -> Result<chrono_tz::Tz> {
+    name.parse::<chrono_tz::Tz>().map_err(|_| {
+        let names = chrono_tz::TZ_VARIANTS.iter().map(|t| t.name());
+        let hint = super::error::closest(name, names)
+            .map(|s| format!("did you mean `{s}`?"))
+            .or_else(|| Some("use an IANA name such as \"Europe/Amsterdam\" or \"America/Toronto\"".into()));
+        IoError::Invalid {
+            path: path.to_path_buf(),
+            key: key.to_string(),
+            message: format!("unknown time zone `{name}`"),
+            hint,
+        }
+    })
+}
+
+/// Turn a toml error into one with 1-based line and column.
+pub fn toml_error(path: &Path, source: &str, e: &toml::de::Error) -> IoError {
+    let (line, column) = match e.span() {
+        Some(span) => line_col(source, span.start),
+        None => (1, 1),
+    };
+    IoError::Toml {
+        path: path.to_path_buf(),
+        line,
+        column,
+        message: e.message().trim().to_string(),
+    }
+}
+
+/// 1-based line and column (in characters) of byte offset `offset`.
+pub fn line_col(source: &str, offset: usize) -> (usize, usize) {
+    let offset = offset.min(source.len());
+    let before = &source[..offset];
+    let line = before.matches('\n').count() + 1;
+    let col = before.rsplit('\n').next().map(|l| l.chars().count()).unwrap_or(0) + 1;
+    (line, col)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const MINIMAL: &str = r#"
+[study]
+title = "t"
+timezone = "Europe/Amsterdam"
+output = "out"
+
+[pots]
+file = "pots.csv"
+id = "pot"
+x = "x"
+y = "y"
+"#;
+
+    fn parse(s: &str) -> Result<Study> {
+        Study::from_source(Path::new("dir/study.toml"), s.to_string())
+    }
+
+    #[test]
+    fn minimal_study_parses_and_resolves_paths() {
+        let st = parse(MINIMAL).unwrap();
+        assert_eq!(st.resolve("pots.csv"), Path::new("dir/pots.csv"));
+        assert_eq!(st.timezone, chrono_tz::Europe::Amsterdam);
+        assert_eq!(st.seed(), 1);
+    }
+
+    #[test]
+    fn unknown_key_names_key_file_line_and_column() {
+        let bad = MINIMAL.replace("id = \"pot\"", "id = \"pot\"\nidd = 3");
+        let e = parse(&bad).unwrap_err().to_string();
+        assert!(e.starts_with("dir/study.toml:10:1:"), "{e}");
+        assert!(e.contains("idd"), "{e}");
+    }
+
+    #[test]
+    fn unknown_top_level_section_is_rejected() {
+        let e = parse(&format!("{MINIMAL}\n[modle]\ntrait = \"h\"\n")).unwrap_err().to_string();
+        assert!(e.contains("modle"), "{e}");
+    }
+
+    #[test]
+    fn toml_syntax_error_has_line_and_column() {
+        let e = parse("[study]\ntitle = \"t\ntimezone = 1\n").unwrap_err();
+        match e {
+            IoError::Toml { line, .. } => assert_eq!(line, 2),
+            other => panic!("{other}"),
+        }
+    }
+
+    #[test]
+    fn misspelt_timezone_gets_suggestion() {
+        let e = parse(&MINIMAL.replace("Europe/Amsterdam", "Europe/Amsterdm")).unwrap_err().to_string();
+        assert!(e.contains("Europe/Amsterdam"), "{e}");
+    }
+
+    #[test]
+    fn later_stage_sections_parse_through_section() {
+        #[derive(Deserialize)]
+        struct Doc {
+            model: Option<M>,
+        }
+        #[derive(Deserialize)]
+        #[serde(deny_unknown_fields)]
+        struct M {
+            #[allow(dead_code)]
+            r#trait: String,
+        }
+        let st = parse(&format!("{MINIMAL}\n[model]\ntrait = \"h\"\n")).unwrap();
+        assert!(st.section::<Doc>().unwrap().model.is_some());
+        let st = parse(&format!("{MINIMAL}\n[model]\ntrat = \"h\"\n")).unwrap();
+        let e = st.section::<Doc>().err().unwrap().to_string();
+        assert!(e.contains("dir/study.toml:14:1") && e.contains("trat"), "{e}");
+    }
+
+    #[test]
+    fn positions_must_be_columns_or_grid() {
+        let e = parse(&MINIMAL.replace("x = \"x\"\n", "")).unwrap_err().to_string();
+        assert!(e.contains("pots"), "{e}");
+    }
+
+    #[test]
+    fn line_col_counts_from_one() {
+        assert_eq!(line_col("ab\ncd", 0), (1, 1));
+        assert_eq!(line_col("ab\ncd", 4), (2, 2));
+    }
+}

@@ -1,0 +1,31 @@
+//! potclim: from raw greenhouse climate-logger exports and a pot trait table to
+//! a verdict on whether a microclimate driver or an unexplained spatial
+//! correlation explains the spatial pattern of a plant trait.
+//!
+//! The crate is split by stage, and dependencies flow one way:
+//!
+//! ```text
+//! io -> climate -> spatial -> model -> report -> cli
+//!                     \-> simulate (uses io formats and spatial covariances)
+//! ```
+//!
+//! * [`io`] owns the study file, every input table and the audited ingestion of
+//!   logger exports (units, time zones, quality control).
+//! * [`climate`] owns the regular time grid, psychrometrics and the plant-relevant
+//!   indicators (cold hours, degree days, daily light integral, VPD).
+//! * [`spatial`] owns correlation families, variograms, kriging and the mapping
+//!   of sensor series onto pots.
+//! * [`model`] owns the trait models: factorial OLS/ANOVA and spatial GLS by
+//!   REML and ML, and their diagnostics.
+//! * [`simulate`] owns synthetic studies with known truth.
+//! * [`report`] renders results; it never computes them.
+//! * [`cli`] is the only module that knows about the command line.
+#![warn(missing_docs)]
+
+pub mod cli;
+pub mod climate;
+pub mod io;
+pub mod model;
+pub mod report;
+pub mod simulate;
+pub mod spatial;

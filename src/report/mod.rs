@@ -1,0 +1,2 @@
+//! Rendering of results into tables and the self-contained HTML report. It
+//! renders; it never computes.
