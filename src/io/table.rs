@@ -24,21 +24,32 @@ impl Table {
     /// Read a table with a header row. Blank lines are skipped (they are not
     /// data); a row with the wrong number of fields is an error naming its line.
     pub fn read(path: &Path, delimiter: u8) -> Result<Table> {
-        let file = std::fs::File::open(path).map_err(|source| IoError::Read {
-            path: path.to_path_buf(),
-            source,
-        })?;
+        let bytes =
+            std::fs::read(path).map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
+        // Physical line numbers come from byte offsets: the csv crate's own line
+        // counter does not count the blank lines it skips.
+        let line_starts: Vec<usize> = std::iter::once(0)
+            .chain(bytes.iter().enumerate().filter(|(_, b)| **b == b'\n').map(|(i, _)| i + 1))
+            .collect();
+        // A record's byte position may point at blank lines skipped before it.
+        let line_of = |byte: u64| {
+            let mut b = byte as usize;
+            while b < bytes.len() && (bytes[b] == b'\n' || bytes[b] == b'\r') {
+                b += 1;
+            }
+            line_starts.partition_point(|&s| s <= b)
+        };
         let mut rdr = csv::ReaderBuilder::new()
             .delimiter(delimiter)
             .has_headers(false)
             .flexible(true)
-            .from_reader(std::io::BufReader::new(file));
+            .from_reader(&bytes[..]);
         let mut headers: Option<(Vec<String>, usize)> = None;
         let mut rows = Vec::new();
         let mut lines = Vec::new();
         for rec in rdr.records() {
             let rec = rec.map_err(|e| csv_error(path, e))?;
-            let line = rec.position().map(|p| p.line() as usize).unwrap_or(0);
+            let line = rec.position().map(|p| line_of(p.byte())).unwrap_or(0);
             if rec.iter().all(|c| c.trim().is_empty()) {
                 continue;
             }
@@ -74,13 +85,7 @@ impl Table {
                 hint: Some("only a header line was found".into()),
             });
         }
-        Ok(Table {
-            path: path.to_path_buf(),
-            headers,
-            header_line,
-            rows,
-            lines,
-        })
+        Ok(Table { path: path.to_path_buf(), headers, header_line, rows, lines })
     }
 
     /// Index of column `name`, or an error listing the header and suggesting
@@ -155,7 +160,14 @@ impl Table {
     }
 
     /// An [`IoError::BadValue`] for this table.
-    pub fn bad(&self, line: usize, column: &str, value: &str, message: &str, hint: Option<String>) -> IoError {
+    pub fn bad(
+        &self,
+        line: usize,
+        column: &str,
+        value: &str,
+        message: &str,
+        hint: Option<String>,
+    ) -> IoError {
         IoError::BadValue {
             path: self.path.clone(),
             line,
@@ -170,16 +182,16 @@ impl Table {
 /// Cells that mean "no value": empty, `NA`, `NaN`, `null` (any case).
 pub fn is_missing(v: &str) -> bool {
     let t = v.trim();
-    t.is_empty() || t.eq_ignore_ascii_case("na") || t.eq_ignore_ascii_case("nan") || t.eq_ignore_ascii_case("null")
+    t.is_empty()
+        || t.eq_ignore_ascii_case("na")
+        || t.eq_ignore_ascii_case("nan")
+        || t.eq_ignore_ascii_case("null")
 }
 
 fn csv_error(path: &Path, e: csv::Error) -> IoError {
     let line = e.position().map(|p| p.line());
     match e.into_kind() {
-        csv::ErrorKind::Io(source) => IoError::Read {
-            path: path.to_path_buf(),
-            source,
-        },
+        csv::ErrorKind::Io(source) => IoError::Read { path: path.to_path_buf(), source },
         kind => IoError::Table {
             path: path.to_path_buf(),
             message: match line {
