@@ -3,3 +3,5 @@
 //! residual diagnostics (Moran's I, residual variograms).
 //!
 //! It uses the correlation families of [`crate::spatial::correlation`].
+
+pub mod compare;
