@@ -7,3 +7,10 @@
 //! [`crate::model`] (which shares [`correlation`]) and [`crate::simulate`].
 
 pub mod correlation;
+pub mod config;
+pub mod error;
+pub mod geometry;
+pub mod kriging;
+pub mod mapping;
+pub mod outputs;
+pub mod variogram;
