@@ -13,7 +13,7 @@ use potclim::spatial::correlation::Family;
 use potclim::spatial::geometry::{Origin, Points};
 use potclim::spatial::kriging::{Method, Spec, System, krige};
 use potclim::spatial::mapping::map_series;
-use potclim::spatial::variogram::VariogramModel;
+use potclim::spatial::variogram::{VariogramModel, pairs_within};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::time::Instant;
@@ -74,4 +74,25 @@ fn main() {
     println!("  ratio mapping / one dense solve:                   {:.1}", total / dense);
     println!("  a fresh solve per step (measured on {k} steps):     {:.3} ms/step -> {:.1} s for all steps", per_step * 1e3, per_step * steps as f64);
     println!("  speed-up of weight reuse over per-step solves:      {:.1}x", per_step * steps as f64 / total);
+
+    // Variogram pair search: 10,000 points, pairs within 1 m on a 30 x 10 m
+    // floor, k-d tree against a scan of all pairs.
+    let many = points("q", 10_000, &mut rng);
+    let t0 = Instant::now();
+    let found = pairs_within(&many, 1.0);
+    let tree = t0.elapsed().as_secs_f64();
+    let t0 = Instant::now();
+    let mut brute = 0usize;
+    for i in 0..many.len() {
+        for j in i + 1..many.len() {
+            let d = (many.x[i] - many.x[j]).hypot(many.y[i] - many.y[j]);
+            if d > 0.0 && d <= 1.0 {
+                brute += 1;
+            }
+        }
+    }
+    let scan = t0.elapsed().as_secs_f64();
+    assert_eq!(found.len(), brute);
+    println!("pair search, 10,000 points, {} pairs within 1 m:", brute);
+    println!("  k-d tree {:.1} ms, all pairs {:.1} ms, ratio {:.1}x", tree * 1e3, scan * 1e3, scan / tree);
 }

@@ -392,7 +392,7 @@ fn factor(pts: &Points, method: Method, model: &VariogramModel, drift: Option<&[
     let mut a = DMatrix::<f64>::zeros(n + p, n + p);
     for i in 0..n {
         for j in 0..=i {
-            let c = if i == j { model.sill() } else { model.covariance(pts.dist_to(i, pts, j)) };
+            let c = if i == j { model.sill() } else { model.cross_covariance(pts.dist_to(i, pts, j)) };
             a[(i, j)] = c;
             a[(j, i)] = c;
         }
@@ -502,7 +502,7 @@ pub fn rescale_to(model: &VariogramModel, sensors: &Points, values: &[f64], meth
         });
     }
     let unit = model.scaled(1.0 / model.sill());
-    let v = DMatrix::from_fn(n, n, |i, j| if i == j { 1.0 } else { unit.covariance(pts.dist_to(i, &pts, j)) });
+    let v = DMatrix::from_fn(n, n, |i, j| if i == j { 1.0 } else { unit.cross_covariance(pts.dist_to(i, &pts, j)) });
     let chol = v.cholesky().ok_or_else(|| SpatialError::Singular {
         method: "variance scale".into(),
         n,

@@ -218,14 +218,14 @@ mod tests {
         assert_eq!(rows[1][8], e.bins[0].pairs.to_string());
         let m: f64 = rows[2][10].parse().unwrap();
         assert_eq!(m, fits[0].1.unwrap().model.semivariance(e.bins[1].lag));
-        let rows = parse(&variogram_fits_csv(&[("z", &fits, Some(Family::Spherical))]).unwrap());
+        let rows = parse(&variogram_fits_csv(&[("z", fits.as_slice(), Some(Family::Spherical))]).unwrap());
         assert_eq!(rows[2][1], "spherical");
         assert_eq!(rows[2][10], "true");
         let scores = vec![
             CvScore { method: Method::Ordinary, n: 5, rmse: 1.0, mean_error: 0.1, msse: Some(1.1), warnings: vec![] },
             CvScore { method: Method::Nearest, n: 5, rmse: 2.0, mean_error: 0.2, msse: None, warnings: vec![] },
         ];
-        let rows = parse(&mapping_cv_csv(&[("z", &scores, Some((0, "because".into())))]).unwrap());
+        let rows = parse(&mapping_cv_csv(&[("z", scores.as_slice(), Some((0, "because".into())))]).unwrap());
         assert_eq!(rows[1], ["z", "ordinary", "5", "1", "0.1", "1.1", "true", "because"]);
         assert_eq!(rows[2][5], "");
     }

@@ -423,6 +423,14 @@ impl VariogramModel {
         }
     }
 
+    /// Covariance between two *different* sensors at distance `h`:
+    /// `c rho(h; a)`, without the nugget even at `h = 0` (two loggers at one
+    /// position have independent micro-scale and measurement parts).
+    #[inline]
+    pub fn cross_covariance(&self, h: f64) -> f64 {
+        self.partial_sill * self.family.correlation(h, self.range)
+    }
+
     /// The sill `c0 + c`.
     pub fn sill(&self) -> f64 {
         self.nugget + self.partial_sill
@@ -490,8 +498,8 @@ pub fn cressie_criterion(emp: &Empirical, model: &VariogramModel) -> f64 {
 /// Fit `family` to `emp` by minimising [`cressie_criterion`] under bounds
 /// (nugget in `[0, 2 g_max]`, partial sill in `[1e-9 g_max, 10 g_max]`,
 /// range as in [`FitOptions`]), by Nelder–Mead (Nelder & Mead 1965,
-/// *Computer J.* 7: 308–313) from 8 starts (range 0.1, 0.25, 0.5 and 1 times
-/// `h_max`, nugget 0 or 30 % of the plateau). Returns `None` when fewer than
+/// *Computer J.* 7: 308–313) from 21 starts (range 0.05, 0.1, 0.25, 0.5, 1, 2
+/// and 4 times `h_max`; nugget 0, 10 % or 30 % of the plateau). Returns `None` when fewer than
 /// three bins hold pairs, or all semivariances are zero.
 pub fn fit_wls(emp: &Empirical, family: Family, opts: &FitOptions) -> Option<VariogramFit> {
     let used: Vec<&VariogramBin> = emp.bins.iter().filter(|b| b.semivariance.is_some() && b.pairs > 0).collect();
@@ -512,8 +520,8 @@ pub fn fit_wls(emp: &Empirical, family: Family, opts: &FitOptions) -> Option<Var
     let k = used.len();
     let plateau = used[k.saturating_sub(3)..].iter().map(|b| b.semivariance.unwrap()).sum::<f64>() / (k - k.saturating_sub(3)) as f64 / gmax;
     let mut best: Option<([f64; 3], f64)> = None;
-    for &ra in &[0.1, 0.25, 0.5, 1.0] {
-        for &nf in &[0.0, 0.3] {
+    for &ra in &[0.05, 0.1, 0.25, 0.5, 1.0, 2.0, 4.0] {
+        for &nf in &[0.0, 0.1, 0.3] {
             if nf > 0.0 && !opts.fit_nugget {
                 continue;
             }
