@@ -21,7 +21,15 @@ use std::time::Instant;
 fn points(what: &'static str, n: usize, rng: &mut ChaCha8Rng) -> Points {
     let x = (0..n).map(|_| rng.random::<f64>() * 30.0).collect();
     let y = (0..n).map(|_| rng.random::<f64>() * 10.0).collect();
-    Points::new(what, (0..n).map(|i| format!("{what}{i}")).collect(), x, y, Some((30.0, 10.0)), &Origin::default()).unwrap()
+    Points::new(
+        what,
+        (0..n).map(|i| format!("{what}{i}")).collect(),
+        x,
+        y,
+        Some((30.0, 10.0)),
+        &Origin::default(),
+    )
+    .unwrap()
 }
 
 fn main() {
@@ -35,7 +43,9 @@ fn main() {
         if (j == 3 && (2000..2600).contains(&t)) || (j == 17 && t >= 11000) {
             f64::NAN
         } else {
-            18.0 + 4.0 * ((t as f64) * std::f64::consts::TAU / 144.0).sin() + 0.02 * sensors.x[j] + 0.1 * ((t * 7 + j * 13) % 17) as f64
+            18.0 + 4.0 * ((t as f64) * std::f64::consts::TAU / 144.0).sin()
+                + 0.02 * sensors.x[j]
+                + 0.1 * ((t * 7 + j * 13) % 17) as f64
         }
     });
 
@@ -68,11 +78,18 @@ fn main() {
     }
     let per_step = t0.elapsed().as_secs_f64() / k as f64;
 
-    println!("mapping {ns} sensors x {steps} steps onto {np} pots (ordinary kriging, {} sensor sets)", summary.sensor_sets);
+    println!(
+        "mapping {ns} sensors x {steps} steps onto {np} pots (ordinary kriging, {} sensor sets)",
+        summary.sensor_sets
+    );
     println!("  one dense solve (factorise + weights for all pots): {:.3} ms", dense * 1e3);
     println!("  whole mapping incl. per-pot indicator callback:    {:.3} s", total);
     println!("  ratio mapping / one dense solve:                   {:.1}", total / dense);
-    println!("  a fresh solve per step (measured on {k} steps):     {:.3} ms/step -> {:.1} s for all steps", per_step * 1e3, per_step * steps as f64);
+    println!(
+        "  a fresh solve per step (measured on {k} steps):     {:.3} ms/step -> {:.1} s for all steps",
+        per_step * 1e3,
+        per_step * steps as f64
+    );
     println!("  speed-up of weight reuse over per-step solves:      {:.1}x", per_step * steps as f64 / total);
 
     // Variogram pair search: 10,000 points, pairs within 1 m on a 30 x 10 m

@@ -90,23 +90,37 @@ pub struct MappingConfig {
 
 /// The default families.
 pub fn default_families() -> Vec<Family> {
-    vec![Family::Exponential, Family::Spherical, Family::Gaussian, Family::Matern { nu: 1.5 }, Family::Matern { nu: 2.5 }]
+    vec![
+        Family::Exponential,
+        Family::Spherical,
+        Family::Gaussian,
+        Family::Matern { nu: 1.5 },
+        Family::Matern { nu: 2.5 },
+    ]
 }
 
 const METHODS: &[&str] = &["auto", "ordinary", "universal", "external_drift", "idw", "nearest"];
 
 impl MappingConfig {
     /// Read and validate `[mapping]` of `study` (absent section: defaults).
+    // IoError is the input stage's error type; its size is its own.
+    #[allow(clippy::result_large_err)]
     pub fn from_study(study: &Study) -> Result<MappingConfig, IoError> {
         let doc: MappingDoc = study.section()?;
         MappingConfig::from_section(study, doc.mapping.unwrap_or_default())
     }
 
     /// Validate a parsed section; errors name the key.
+    // IoError is the input stage's error type; its size is its own.
+    #[allow(clippy::result_large_err)]
     pub fn from_section(study: &Study, s: MappingSection) -> Result<MappingConfig, IoError> {
         let idw_power = s.idw_power.unwrap_or(2.0);
         if !(idw_power.is_finite() && idw_power > 0.0) {
-            return Err(study.invalid("mapping.idw_power", format!("must be a positive number, got {idw_power}"), Some("2 is common practice".into())));
+            return Err(study.invalid(
+                "mapping.idw_power",
+                format!("must be a positive number, got {idw_power}"),
+                Some("2 is common practice".into()),
+            ));
         }
         let name = s.method.as_deref().unwrap_or("auto").trim().to_ascii_lowercase();
         let method = match name.as_str() {
@@ -117,59 +131,106 @@ impl MappingConfig {
             "idw" => MethodChoice::Fixed(Method::Idw { power: idw_power }),
             "nearest" => MethodChoice::Fixed(Method::Nearest),
             other => {
-                let hint = crate::io::error::closest(other, METHODS.iter().copied()).map(|c| format!("did you mean `{c}`?"));
-                return Err(study.invalid("mapping.method", format!("unknown method `{other}`; expected one of {}", METHODS.join(", ")), hint));
+                let hint = crate::io::error::closest(other, METHODS.iter().copied())
+                    .map(|c| format!("did you mean `{c}`?"));
+                return Err(study.invalid(
+                    "mapping.method",
+                    format!("unknown method `{other}`; expected one of {}", METHODS.join(", ")),
+                    hint,
+                ));
             }
         };
         let estimator = match s.estimator.as_deref().unwrap_or("matheron") {
             "matheron" => Estimator::Matheron,
             "cressie_hawkins" => Estimator::CressieHawkins,
             other => {
-                return Err(study.invalid("mapping.estimator", format!("unknown estimator `{other}`"), Some("use `matheron` or `cressie_hawkins`".into())));
+                return Err(study.invalid(
+                    "mapping.estimator",
+                    format!("unknown estimator `{other}`"),
+                    Some("use `matheron` or `cressie_hawkins`".into()),
+                ));
             }
         };
         let families = s.families.unwrap_or_else(default_families);
         if families.is_empty() {
-            return Err(study.invalid("mapping.families", "needs at least one family", Some(format!("e.g. [\"exponential\"]; known: {}", Family::NAMES.join(", ")))));
+            return Err(study.invalid(
+                "mapping.families",
+                "needs at least one family",
+                Some(format!("e.g. [\"exponential\"]; known: {}", Family::NAMES.join(", "))),
+            ));
         }
-        if let Some(b) = s.bins {
-            if b == 0 {
-                return Err(study.invalid("mapping.bins", "must be at least 1", Some("12 is the default".into())));
-            }
+        if let Some(b) = s.bins
+            && b == 0
+        {
+            return Err(study.invalid(
+                "mapping.bins",
+                "must be at least 1",
+                Some("12 is the default".into()),
+            ));
         }
-        if let Some(m) = s.max_lag {
-            if !(m.is_finite() && m > 0.0) {
-                return Err(study.invalid("mapping.max_lag", format!("must be a positive distance in metres, got {m}"), None));
-            }
+        if let Some(m) = s.max_lag
+            && !(m.is_finite() && m > 0.0)
+        {
+            return Err(study.invalid(
+                "mapping.max_lag",
+                format!("must be a positive distance in metres, got {m}"),
+                None,
+            ));
         }
         let bin_edges = match s.bin_edges {
             Some(e) => Some(Bins::from_edges(e.clone()).map_err(|_| {
-                study.invalid("mapping.bin_edges", format!("{e:?} must be increasing non-negative distances in metres, at least two"), Some("e.g. [0, 1, 2, 4, 8]".into()))
+                study.invalid(
+                    "mapping.bin_edges",
+                    format!("{e:?} must be increasing non-negative distances in metres, at least two"),
+                    Some("e.g. [0, 1, 2, 4, 8]".into()),
+                )
             })?),
             None => None,
         };
         if s.neighbours == Some(0) || s.neighbours == Some(1) {
-            return Err(study.invalid("mapping.neighbours", "a neighbourhood needs at least 2 sensors", Some("leave it out to use every sensor".into())));
+            return Err(study.invalid(
+                "mapping.neighbours",
+                "a neighbourhood needs at least 2 sensors",
+                Some("leave it out to use every sensor".into()),
+            ));
         }
         if method == MethodChoice::Fixed(Method::ExternalDrift) && s.drift.is_none() {
-            return Err(study.invalid("mapping.drift", "method = \"external_drift\" needs a drift", Some("set drift = \"<opening name>\"".into())));
+            return Err(study.invalid(
+                "mapping.drift",
+                "method = \"external_drift\" needs a drift",
+                Some("set drift = \"<opening name>\"".into()),
+            ));
         }
         if let Some(d) = &s.drift {
             let names: Vec<&str> = study.spec.openings.iter().map(|o| o.name.as_str()).collect();
             if !names.contains(&d.as_str()) {
                 let hint = crate::io::error::closest(d, names.iter().copied())
                     .map(|c| format!("did you mean `{c}`?"))
-                    .or_else(|| Some(if names.is_empty() { "declare the opening in [[openings]]".to_string() } else { format!("declared openings: {}", names.join(", ")) }));
+                    .or_else(|| {
+                        Some(if names.is_empty() {
+                            "declare the opening in [[openings]]".to_string()
+                        } else {
+                            format!("declared openings: {}", names.join(", "))
+                        })
+                    });
                 return Err(study.invalid("mapping.drift", format!("no opening named `{d}`"), hint));
             }
         }
         let tol = s.angle_tolerance.unwrap_or(22.5);
         if !(tol > 0.0 && tol <= 90.0) {
-            return Err(study.invalid("mapping.angle_tolerance", format!("must be in (0, 90] degrees, got {tol}"), None));
+            return Err(study.invalid(
+                "mapping.angle_tolerance",
+                format!("must be in (0, 90] degrees, got {tol}"),
+                None,
+            ));
         }
         let dirs = s.directions.unwrap_or_else(|| vec![0.0, 45.0, 90.0, 135.0]);
         if let Some(bad) = dirs.iter().find(|a| !a.is_finite()) {
-            return Err(study.invalid("mapping.directions", format!("angles must be numbers, got {bad}"), None));
+            return Err(study.invalid(
+                "mapping.directions",
+                format!("angles must be numbers, got {bad}"),
+                None,
+            ));
         }
         Ok(MappingConfig {
             method,
@@ -238,6 +299,8 @@ from = [0.0, 0.0]
 to = [0.0, 2.0]
 "#;
 
+    // IoError is the input stage's error type; its size is its own.
+    #[allow(clippy::result_large_err)]
     fn cfg(extra: &str) -> Result<MappingConfig, IoError> {
         let study = Study::from_source(Path::new("dir/study.toml"), format!("{BASE}\n{extra}")).unwrap();
         MappingConfig::from_study(&study)

@@ -58,13 +58,17 @@ pub enum SpatialError {
         hint: String,
     },
     /// All sensors lie on one line, so a trend in x and y cannot be estimated.
-    #[error("all {n} sensors lie on one straight line, so a trend in both x and y cannot be estimated; hint: use method = \"ordinary\", or add a sensor off the line")]
+    #[error(
+        "all {n} sensors lie on one straight line, so a trend in both x and y cannot be estimated; hint: use method = \"ordinary\", or add a sensor off the line"
+    )]
     Collinear {
         /// The number of sensors.
         n: usize,
     },
     /// The external drift does not vary between the sensors.
-    #[error("the external drift `{name}` takes the same value at every sensor, so its coefficient cannot be estimated; hint: use method = \"ordinary\" or a drift that varies between sensors")]
+    #[error(
+        "the external drift `{name}` takes the same value at every sensor, so its coefficient cannot be estimated; hint: use method = \"ordinary\" or a drift that varies between sensors"
+    )]
     ConstantDrift {
         /// The drift's name.
         name: String,

@@ -169,20 +169,14 @@ impl Points {
 pub fn distance_to_segment(px: f64, py: f64, a: [f64; 2], b: [f64; 2]) -> f64 {
     let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
     let len2 = dx * dx + dy * dy;
-    let t = if len2 > 0.0 {
-        (((px - a[0]) * dx + (py - a[1]) * dy) / len2).clamp(0.0, 1.0)
-    } else {
-        0.0
-    };
+    let t = if len2 > 0.0 { (((px - a[0]) * dx + (py - a[1]) * dy) / len2).clamp(0.0, 1.0) } else { 0.0 };
     (px - (a[0] + t * dx)).hypot(py - (a[1] + t * dy))
 }
 
 /// Distance of every point to one opening's segment (see
 /// [`distance_to_segment`]): the `distance_<opening>` covariate.
 pub fn distances_to_opening(points: &Points, from: [f64; 2], to: [f64; 2]) -> Vec<f64> {
-    (0..points.len())
-        .map(|i| distance_to_segment(points.x[i], points.y[i], from, to))
-        .collect()
+    (0..points.len()).map(|i| distance_to_segment(points.x[i], points.y[i], from, to)).collect()
 }
 
 #[cfg(test)]
@@ -211,13 +205,27 @@ mod tests {
     #[test]
     fn bad_positions_are_typed_errors() {
         let o = Origin { path: Some("sensors.csv".into()), lines: Some(vec![2, 3]) };
-        let e = Points::new("sensor", vec!["a".into(), "b".into()], vec![1.0, f64::NAN], vec![1.0, 1.0], None, &o)
-            .unwrap_err();
+        let e = Points::new(
+            "sensor",
+            vec!["a".into(), "b".into()],
+            vec![1.0, f64::NAN],
+            vec![1.0, 1.0],
+            None,
+            &o,
+        )
+        .unwrap_err();
         let msg = e.to_string();
         assert!(matches!(e, SpatialError::NonFinitePosition { .. }));
         assert!(msg.contains("sensors.csv:3") && msg.contains("`b`"), "{msg}");
-        let e = Points::new("sensor", vec!["a".into(), "b".into()], vec![1.0, 12.5], vec![1.0, 1.0], Some((10.0, 5.0)), &o)
-            .unwrap_err();
+        let e = Points::new(
+            "sensor",
+            vec!["a".into(), "b".into()],
+            vec![1.0, 12.5],
+            vec![1.0, 1.0],
+            Some((10.0, 5.0)),
+            &o,
+        )
+        .unwrap_err();
         let msg = e.to_string();
         assert!(matches!(e, SpatialError::OutsideCompartment { .. }));
         assert!(msg.contains("12.5") && msg.contains("[0, 10]"), "{msg}");

@@ -212,7 +212,8 @@ impl System {
         }
         if method == Method::ExternalDrift {
             let v = drift_s.as_ref().expect("checked above");
-            let (lo, hi) = v.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), x| (l.min(*x), h.max(*x)));
+            let (lo, hi) =
+                v.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), x| (l.min(*x), h.max(*x)));
             if n < 3 || hi - lo <= 1e-9 * (hi.abs() + lo.abs()).max(1e-300) {
                 warnings.push(format!(
                     "the external drift `{}` does not vary over the {n} sensors here; ordinary kriging used instead",
@@ -227,7 +228,10 @@ impl System {
             if !(sill.is_finite() && sill > 0.0 && model.range > 0.0 && model.nugget >= 0.0) {
                 return Err(SpatialError::BadInput {
                     what: "variogram model".into(),
-                    message: format!("nugget {}, partial sill {}, range {} must be >= 0, > 0, > 0", model.nugget, model.partial_sill, model.range),
+                    message: format!(
+                        "nugget {}, partial sill {}, range {} must be >= 0, > 0, > 0",
+                        model.nugget, model.partial_sill, model.range
+                    ),
                 });
             }
             if model.nugget < 1e-6 * sill && !pts.duplicates().is_empty() {
@@ -264,22 +268,28 @@ impl System {
         let mut lambda = DMatrix::<f64>::zeros(n, m);
         let mut offset = vec![0.0; m];
         let drift_t = spec.drift.as_ref().map(|d| &d.at_targets);
-        if let Some(d) = drift_t {
-            if d.len() != targets.len() {
-                return Err(SpatialError::BadInput {
-                    what: "drift at targets".into(),
-                    message: format!("{} values for {} targets", d.len(), targets.len()),
-                });
-            }
+        if let Some(d) = drift_t
+            && d.len() != targets.len()
+        {
+            return Err(SpatialError::BadInput {
+                what: "drift at targets".into(),
+                message: format!("{} values for {} targets", d.len(), targets.len()),
+            });
         }
         let variance = match self.method {
             Method::Nearest | Method::Idw { .. } => {
                 let k = spec.neighbours.unwrap_or(n).clamp(1, n);
                 let nn = Neighbours::new(&self.pts);
                 for (c, t) in idx.clone().enumerate() {
-                    let near = nn.nearest(targets.x[t], targets.y[t], if self.method == Method::Nearest { 1 } else { k });
+                    let near = nn.nearest(
+                        targets.x[t],
+                        targets.y[t],
+                        if self.method == Method::Nearest { 1 } else { k },
+                    );
                     if let Method::Idw { power } = self.method {
-                        if let Some(&(j, _)) = near.iter().find(|(_, d)| *d <= super::geometry::DUPLICATE_TOLERANCE) {
+                        if let Some(&(j, _)) =
+                            near.iter().find(|(_, d)| *d <= super::geometry::DUPLICATE_TOLERANCE)
+                        {
                             lambda[(j, c)] = 1.0;
                         } else {
                             let w: Vec<f64> = near.iter().map(|(_, d)| d.powf(-power)).collect();
@@ -305,7 +315,13 @@ impl System {
                             for r in 0..n {
                                 rhs[(r, c)] = self.model.covariance(self.pts.dist_to(r, targets, t));
                             }
-                            basis(self.method, targets.x[t], targets.y[t], drift_t.map_or(0.0, |d| d[t]), &mut f0);
+                            basis(
+                                self.method,
+                                targets.x[t],
+                                targets.y[t],
+                                drift_t.map_or(0.0, |d| d[t]),
+                                &mut f0,
+                            );
                             for q in 0..p {
                                 rhs[(n + q, c)] = f0[q];
                             }
@@ -326,9 +342,14 @@ impl System {
                         let k = k.unwrap_or(n).clamp(1, n);
                         let nn = Neighbours::new(&self.pts);
                         for (c, t) in idx.clone().enumerate() {
-                            let near: Vec<usize> = nn.nearest(targets.x[t], targets.y[t], k).into_iter().map(|(j, _)| j).collect();
+                            let near: Vec<usize> = nn
+                                .nearest(targets.x[t], targets.y[t], k)
+                                .into_iter()
+                                .map(|(j, _)| j)
+                                .collect();
                             let sub = self.pts.subset(&near);
-                            let ds = self.drift_s.as_ref().map(|d| near.iter().map(|&j| d[j]).collect::<Vec<_>>());
+                            let ds =
+                                self.drift_s.as_ref().map(|d| near.iter().map(|&j| d[j]).collect::<Vec<_>>());
                             let mut method = self.method;
                             if (method == Method::Universal && (sub.len() < 4 || sub.collinear()))
                                 || (method == Method::ExternalDrift && constant(ds.as_deref().unwrap_or(&[])))
@@ -355,15 +376,21 @@ impl System {
                     }
                 }
                 if let Method::Simple { mean } = self.method {
-                    for c in 0..m {
-                        let s: f64 = lambda.column(c).sum();
-                        offset[c] = mean * (1.0 - s);
+                    for (c, off) in offset.iter_mut().enumerate() {
+                        *off = mean * (1.0 - lambda.column(c).sum());
                     }
                 }
                 Some(var)
             }
         };
-        Ok(Weights { sensors: self.sensors.clone(), lambda, variance, offset, method: self.method, warnings: self.warnings.clone() })
+        Ok(Weights {
+            sensors: self.sensors.clone(),
+            lambda,
+            variance,
+            offset,
+            method: self.method,
+            warnings: self.warnings.clone(),
+        })
     }
 
     fn singular(&self) -> SpatialError {
@@ -386,7 +413,12 @@ fn clean_var(v: f64, sill: f64) -> f64 {
 }
 
 /// LU factorisation of `[K F; F' 0]`.
-fn factor(pts: &Points, method: Method, model: &VariogramModel, drift: Option<&[f64]>) -> Result<nalgebra::LU<f64, nalgebra::Dyn, nalgebra::Dyn>> {
+fn factor(
+    pts: &Points,
+    method: Method,
+    model: &VariogramModel,
+    drift: Option<&[f64]>,
+) -> Result<nalgebra::LU<f64, nalgebra::Dyn, nalgebra::Dyn>> {
     let n = pts.len();
     let p = method.trend_len();
     let mut a = DMatrix::<f64>::zeros(n + p, n + p);
@@ -461,7 +493,10 @@ impl<'a> Neighbours<'a> {
 /// neighbourhood.
 pub fn krige(sensors: &Points, values: &[f64], targets: &Points, spec: &Spec) -> Result<Prediction> {
     if values.len() != sensors.len() {
-        return Err(SpatialError::BadInput { what: "sensor values".into(), message: format!("{} values for {} sensors", values.len(), sensors.len()) });
+        return Err(SpatialError::BadInput {
+            what: "sensor values".into(),
+            message: format!("{} values for {} sensors", values.len(), sensors.len()),
+        });
     }
     let subset: Vec<usize> = (0..values.len()).filter(|&i| values[i].is_finite()).collect();
     if subset.is_empty() {
@@ -477,7 +512,12 @@ pub fn krige(sensors: &Points, values: &[f64], targets: &Points, spec: &Spec) ->
     let z = DVector::from_iterator(subset.len(), subset.iter().map(|&i| values[i]));
     let pred = w.lambda.transpose() * z;
     let value = (0..targets.len()).map(|t| pred[t] + w.offset[t]).collect();
-    Ok(Prediction { value, se: w.variance.map(|v| v.iter().map(|x| x.sqrt()).collect()), method: w.method, warnings: w.warnings })
+    Ok(Prediction {
+        value,
+        se: w.variance.map(|v| v.iter().map(|x| x.sqrt()).collect()),
+        method: w.method,
+        warnings: w.warnings,
+    })
 }
 
 /// The profiled variance scale of `values` under the shape of `model`
@@ -487,7 +527,13 @@ pub fn krige(sensors: &Points, values: &[f64], targets: &Points, spec: &Spec) ->
 /// returns `model` rescaled to sill `s^2`. Used to give a per-sensor summary
 /// (an indicator computed at each sensor) the spatial shape of the pooled
 /// variogram with the summary's own variance. Needs `n > p`.
-pub fn rescale_to(model: &VariogramModel, sensors: &Points, values: &[f64], method: Method, drift: Option<&[f64]>) -> Result<VariogramModel> {
+pub fn rescale_to(
+    model: &VariogramModel,
+    sensors: &Points,
+    values: &[f64],
+    method: Method,
+    drift: Option<&[f64]>,
+) -> Result<VariogramModel> {
     let idx: Vec<usize> = (0..values.len()).filter(|&i| values[i].is_finite()).collect();
     let pts = sensors.subset(&idx);
     let n = idx.len();
@@ -502,7 +548,11 @@ pub fn rescale_to(model: &VariogramModel, sensors: &Points, values: &[f64], meth
         });
     }
     let unit = model.scaled(1.0 / model.sill());
-    let v = DMatrix::from_fn(n, n, |i, j| if i == j { 1.0 } else { unit.cross_covariance(pts.dist_to(i, &pts, j)) });
+    let v = DMatrix::from_fn(
+        n,
+        n,
+        |i, j| if i == j { 1.0 } else { unit.cross_covariance(pts.dist_to(i, &pts, j)) },
+    );
     let chol = v.cholesky().ok_or_else(|| SpatialError::Singular {
         method: "variance scale".into(),
         n,
@@ -519,7 +569,8 @@ pub fn rescale_to(model: &VariogramModel, sensors: &Points, values: &[f64], meth
     let z = DVector::from_iterator(n, idx.iter().map(|&i| values[i]));
     let vif = chol.solve(&f);
     let viz = chol.solve(&z);
-    let beta = (f.transpose() * &vif).lu().solve(&(f.transpose() * &viz)).ok_or(SpatialError::Collinear { n })?;
+    let beta =
+        (f.transpose() * &vif).lu().solve(&(f.transpose() * &viz)).ok_or(SpatialError::Collinear { n })?;
     let r = &z - &f * beta;
     let s2 = r.dot(&chol.solve(&r)) / (n - p) as f64;
     Ok(unit.scaled(s2.max(f64::MIN_POSITIVE)))
@@ -556,7 +607,15 @@ pub(crate) mod testdata {
     /// A point set from coordinates.
     pub fn pts(xy: &[[f64; 2]]) -> Points {
         let ids = (0..xy.len()).map(|i| format!("p{i}")).collect();
-        Points::new("pot", ids, xy.iter().map(|p| p[0]).collect(), xy.iter().map(|p| p[1]).collect(), None, &Origin::default()).unwrap()
+        Points::new(
+            "pot",
+            ids,
+            xy.iter().map(|p| p[0]).collect(),
+            xy.iter().map(|p| p[1]).collect(),
+            None,
+            &Origin::default(),
+        )
+        .unwrap()
     }
 
     /// A JSON array of numbers.
@@ -626,8 +685,8 @@ mod tests {
             for method in [Method::Ordinary, Method::Universal, Method::Simple { mean: 800.0 }] {
                 let m = model(Family::Matern { nu: 1.5 }, nug, 3000.0, 1.5);
                 let p = krige(&s, &z, &s, &spec(method, m)).unwrap();
-                for i in 0..z.len() {
-                    assert_relative_eq!(p.value[i], z[i], max_relative = 1e-8);
+                for (i, zi) in z.iter().enumerate() {
+                    assert_relative_eq!(p.value[i], *zi, max_relative = 1e-8);
                     assert!(p.se.as_ref().unwrap()[i] < 1e-3, "{}", p.se.as_ref().unwrap()[i]);
                 }
             }
@@ -696,9 +755,21 @@ mod tests {
         let f = fixture();
         let sk = &f["simple_sklearn"];
         let mo = &f["kriging_model"];
-        let m = model(Family::Exponential, mo["nugget"].as_f64().unwrap(), mo["partial_sill"].as_f64().unwrap(), mo["range"].as_f64().unwrap());
-        let tt: Vec<[f64; 2]> = sk["targets"].as_array().unwrap().iter().map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()]).collect();
-        let p = krige(&s, &z, &pts(&tt), &spec(Method::Simple { mean: sk["mean_offset"].as_f64().unwrap() }, m)).unwrap();
+        let m = model(
+            Family::Exponential,
+            mo["nugget"].as_f64().unwrap(),
+            mo["partial_sill"].as_f64().unwrap(),
+            mo["range"].as_f64().unwrap(),
+        );
+        let tt: Vec<[f64; 2]> = sk["targets"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()])
+            .collect();
+        let p =
+            krige(&s, &z, &pts(&tt), &spec(Method::Simple { mean: sk["mean_offset"].as_f64().unwrap() }, m))
+                .unwrap();
         for (i, (w, sd)) in nums(&sk["mean"]).iter().zip(nums(&sk["std"])).enumerate() {
             assert_relative_eq!(p.value[i], *w, max_relative = 1e-9);
             assert_relative_eq!(p.se.as_ref().unwrap()[i], sd, max_relative = 1e-9);
@@ -712,8 +783,18 @@ mod tests {
         let (s, z) = topo();
         let f = fixture();
         let mo = &f["kriging_model"];
-        let m = model(Family::Exponential, mo["nugget"].as_f64().unwrap(), mo["partial_sill"].as_f64().unwrap(), mo["range"].as_f64().unwrap());
-        let tt: Vec<[f64; 2]> = f["targets"].as_array().unwrap().iter().map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()]).collect();
+        let m = model(
+            Family::Exponential,
+            mo["nugget"].as_f64().unwrap(),
+            mo["partial_sill"].as_f64().unwrap(),
+            mo["range"].as_f64().unwrap(),
+        );
+        let tt: Vec<[f64; 2]> = f["targets"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()])
+            .collect();
         let t = pts(&tt);
         let seg = &f["drift_segment"];
         let (a, b) = (nums(&seg["from"]), nums(&seg["to"]));
@@ -722,7 +803,11 @@ mod tests {
         for (i, w) in nums(&f["external_drift"]["drift_at_targets"]).iter().enumerate() {
             assert_relative_eq!(dt[i], *w, max_relative = 1e-12);
         }
-        for (key, method) in [("ordinary", Method::Ordinary), ("universal", Method::Universal), ("external_drift", Method::ExternalDrift)] {
+        for (key, method) in [
+            ("ordinary", Method::Ordinary),
+            ("universal", Method::Universal),
+            ("external_drift", Method::ExternalDrift),
+        ] {
             let mut sp = spec(method, m);
             sp.drift = Some(Drift { name: "seg".into(), at_sensors: ds.clone(), at_targets: dt.clone() });
             let p = krige(&s, &z, &t, &sp).unwrap();

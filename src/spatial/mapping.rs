@@ -59,7 +59,14 @@ pub fn sensor_sets(series: &DMatrix<f64>) -> Vec<(Vec<usize>, Vec<usize>)> {
 /// Cost: per set of reporting sensors one O(n^3) factorisation, O(n^2) per
 /// target for the weights, then one `steps x n x block` matrix product per
 /// block: no solve per time step. Memory O(steps x (n + block)).
-pub fn map_series<F>(sensors: &Points, series: &DMatrix<f64>, targets: &Points, spec: &Spec, block: usize, mut each: F) -> Result<MapSummary>
+pub fn map_series<F>(
+    sensors: &Points,
+    series: &DMatrix<f64>,
+    targets: &Points,
+    spec: &Spec,
+    block: usize,
+    mut each: F,
+) -> Result<MapSummary>
 where
     F: FnMut(usize, &[f64], Option<&[f64]>),
 {
@@ -140,7 +147,12 @@ pub fn window_mean_se(se: &[f64]) -> Option<f64> {
 /// rescaled to the summary's own profiled variance
 /// ([`super::kriging::rescale_to`]), so that the standard errors are in the
 /// summary's units. IDW and nearest sensor are used as they are (no SE).
-pub fn map_summary(sensors: &Points, values: &[f64], targets: &Points, spec: &Spec) -> Result<super::kriging::Prediction> {
+pub fn map_summary(
+    sensors: &Points,
+    values: &[f64],
+    targets: &Points,
+    spec: &Spec,
+) -> Result<super::kriging::Prediction> {
     if !spec.method.is_kriging() || matches!(spec.method, Method::Simple { .. }) {
         return krige(sensors, values, targets, spec);
     }
@@ -203,11 +215,11 @@ pub fn loso(sensors: &Points, series: &DMatrix<f64>, spec: &Spec) -> Result<Opti
             sum += e;
             sum2 += e * e;
             cnt += 1;
-            if let Some(se) = p.se {
-                if se[0] > 0.0 {
-                    z2 += e * e / (se[0] * se[0]);
-                    zc += 1;
-                }
+            if let Some(se) = p.se
+                && se[0] > 0.0
+            {
+                z2 += e * e / (se[0] * se[0]);
+                zc += 1;
             }
             for w in p.warnings {
                 if !warnings.contains(&w) {
@@ -224,11 +236,11 @@ pub fn loso(sensors: &Points, series: &DMatrix<f64>, spec: &Spec) -> Result<Opti
                     sum += e;
                     sum2 += e * e;
                     cnt += 1;
-                    if let Some(se) = se {
-                        if se[t] > 0.0 {
-                            z2 += e * e / (se[t] * se[t]);
-                            zc += 1;
-                        }
+                    if let Some(se) = se
+                        && se[t] > 0.0
+                    {
+                        z2 += e * e / (se[t] * se[t]);
+                        zc += 1;
                     }
                 }
             }
@@ -345,7 +357,9 @@ pub fn choose_model(
     if !(variance.is_finite() && variance > 0.0) {
         return Err(SpatialError::BadInput {
             what: "variogram".into(),
-            message: format!("no family could be fitted and the data variance is {variance}; the sensors show no variation to map"),
+            message: format!(
+                "no family could be fitted and the data variance is {variance}; the sensors show no variation to map"
+            ),
         });
     }
     let model = super::variogram::VariogramModel {
@@ -385,7 +399,8 @@ mod tests {
 
     fn layout(seed: u64, n: usize) -> Points {
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
-        let xy: Vec<[f64; 2]> = (0..n).map(|_| [rng.random::<f64>() * 12.0, rng.random::<f64>() * 6.0]).collect();
+        let xy: Vec<[f64; 2]> =
+            (0..n).map(|_| [rng.random::<f64>() * 12.0, rng.random::<f64>() * 6.0]).collect();
         pts(&xy)
     }
 
@@ -395,9 +410,16 @@ mod tests {
     fn weight_reuse_equals_per_step_solves() {
         let s = layout(1, 9);
         let t = layout(2, 23);
-        let m = VariogramModel { family: Family::Matern { nu: 2.5 }, nugget: 0.05, partial_sill: 1.0, range: 2.0 };
+        let m = VariogramModel {
+            family: Family::Matern { nu: 2.5 },
+            nugget: 0.05,
+            partial_sill: 1.0,
+            range: 2.0,
+        };
         let mut rng = ChaCha8Rng::seed_from_u64(4);
-        let series = DMatrix::from_fn(60, 9, |_, _| if rng.random::<f64>() < 0.15 { f64::NAN } else { rng.sample::<f64, _>(StandardNormal) });
+        let series = DMatrix::from_fn(60, 9, |_, _| {
+            if rng.random::<f64>() < 0.15 { f64::NAN } else { rng.sample::<f64, _>(StandardNormal) }
+        });
         for method in [Method::Ordinary, Method::Universal, Method::Idw { power: 2.0 }] {
             let sp = spec(method, m);
             let mut got = vec![vec![]; t.len()];
@@ -441,7 +463,8 @@ mod tests {
         let s = layout(10, 20);
         let t = layout(11, 150);
         let m = VariogramModel { family: Family::Exponential, nugget: 0.05, partial_sill: 1.0, range: 3.0 };
-        let all: Vec<(f64, f64)> = (0..s.len()).map(|i| (s.x[i], s.y[i])).chain((0..t.len()).map(|i| (t.x[i], t.y[i]))).collect();
+        let all: Vec<(f64, f64)> =
+            (0..s.len()).map(|i| (s.x[i], s.y[i])).chain((0..t.len()).map(|i| (t.x[i], t.y[i]))).collect();
         let n = all.len();
         let c = DMatrix::from_fn(n, n, |i, j| {
             if i == j { m.sill() } else { m.covariance((all[i].0 - all[j].0).hypot(all[i].1 - all[j].1)) }
@@ -460,7 +483,9 @@ mod tests {
         let sensors_series = fields.columns(0, s.len()).into_owned();
         let mut sse = [0.0; 3];
         let (mut z2, mut cnt) = (0.0, 0usize);
-        for (k, method) in [Method::Ordinary, Method::Idw { power: 2.0 }, Method::Nearest].into_iter().enumerate() {
+        for (k, method) in
+            [Method::Ordinary, Method::Idw { power: 2.0 }, Method::Nearest].into_iter().enumerate()
+        {
             map_series(&s, &sensors_series, &t, &spec(method, m), 40, |pot, v, se| {
                 for r in 0..reps {
                     let e = v[r] - fields[(r, s.len() + pot)];
@@ -476,10 +501,11 @@ mod tests {
         assert!(sse[0] < 0.95 * sse[1] && sse[0] < 0.8 * sse[2], "{sse:?}");
         let msse = z2 / cnt as f64;
         assert!((msse - 1.0).abs() < 0.15, "msse {msse}");
-        let scores: Vec<CvScore> = [Method::Ordinary, Method::Universal, Method::Idw { power: 2.0 }, Method::Nearest]
-            .into_iter()
-            .map(|meth| loso(&s, &sensors_series, &spec(meth, m)).unwrap().unwrap())
-            .collect();
+        let scores: Vec<CvScore> =
+            [Method::Ordinary, Method::Universal, Method::Idw { power: 2.0 }, Method::Nearest]
+                .into_iter()
+                .map(|meth| loso(&s, &sensors_series, &spec(meth, m)).unwrap().unwrap())
+                .collect();
         let cv_msse = scores[0].msse.unwrap();
         assert!((cv_msse - 1.0).abs() < 0.3, "cv msse {cv_msse}");
         assert!(scores[0].rmse < scores[3].rmse);
@@ -553,7 +579,11 @@ mod tests {
         for k in 0..5 {
             assert_relative_eq!(a.value[k], direct.value[k], max_relative = 1e-10);
             assert_relative_eq!(b.value[k], 7.0 * a.value[k], max_relative = 1e-10);
-            assert_relative_eq!(b.se.as_ref().unwrap()[k], 7.0 * a.se.as_ref().unwrap()[k], max_relative = 1e-10);
+            assert_relative_eq!(
+                b.se.as_ref().unwrap()[k],
+                7.0 * a.se.as_ref().unwrap()[k],
+                max_relative = 1e-10
+            );
         }
     }
 

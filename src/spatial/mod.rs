@@ -6,8 +6,8 @@
 //! sensor series and indicator definitions of [`crate::climate`] and is used by
 //! [`crate::model`] (which shares [`correlation`]) and [`crate::simulate`].
 
-pub mod correlation;
 pub mod config;
+pub mod correlation;
 pub mod error;
 pub mod geometry;
 pub mod kriging;

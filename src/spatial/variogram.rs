@@ -72,7 +72,9 @@ impl Bins {
         if !ok {
             return Err(SpatialError::BadInput {
                 what: "variogram bin edges".into(),
-                message: format!("{edges:?} must be at least two finite, non-negative, strictly increasing distances"),
+                message: format!(
+                    "{edges:?} must be at least two finite, non-negative, strictly increasing distances"
+                ),
             });
         }
         Ok(Bins { edges })
@@ -83,7 +85,9 @@ impl Bins {
         if !(max_lag.is_finite() && max_lag > 0.0) || n == 0 {
             return Err(SpatialError::BadInput {
                 what: "variogram bins".into(),
-                message: format!("need max_lag > 0 and at least one bin, got max_lag = {max_lag}, bins = {n}"),
+                message: format!(
+                    "need max_lag > 0 and at least one bin, got max_lag = {max_lag}, bins = {n}"
+                ),
             });
         }
         Bins::from_edges((0..=n).map(|k| max_lag * k as f64 / n as f64).collect())
@@ -186,7 +190,7 @@ pub fn pairs_within(points: &Points, max_lag: f64) -> Vec<(u32, u32, f64)> {
             }
         }
     }
-    out.sort_unstable_by(|a, b| (a.0, a.1).cmp(&(b.0, b.1)));
+    out.sort_unstable_by_key(|a| (a.0, a.1));
     out
 }
 
@@ -226,7 +230,13 @@ fn finish(acc: &BinAcc, est: Estimator) -> Option<f64> {
 /// Experimental variogram of `values` at `points` (NaN values are left out,
 /// with the points they belong to). Cost O(n log n + pairs within the maximum
 /// lag).
-pub fn experimental(points: &Points, values: &[f64], bins: &Bins, estimator: Estimator, direction: Option<Direction>) -> Result<Empirical> {
+pub fn experimental(
+    points: &Points,
+    values: &[f64],
+    bins: &Bins,
+    estimator: Estimator,
+    direction: Option<Direction>,
+) -> Result<Empirical> {
     if values.len() != points.len() {
         return Err(SpatialError::BadInput {
             what: "variogram values".into(),
@@ -241,10 +251,10 @@ pub fn experimental(points: &Points, values: &[f64], bins: &Bins, estimator: Est
         if !(zi.is_finite() && zj.is_finite()) {
             continue;
         }
-        if let Some(dir) = direction {
-            if !dir.contains(points.x[j] - points.x[i], points.y[j] - points.y[i]) {
-                continue;
-            }
+        if let Some(dir) = direction
+            && !dir.contains(points.x[j] - points.x[i], points.y[j] - points.y[i])
+        {
+            continue;
         }
         if let Some(k) = bins.bin_of(d) {
             let diff = zi - zj;
@@ -289,7 +299,14 @@ pub enum Detrend {
 /// mean over the steps at which the bin had at least one pair. Steps with
 /// fewer reporting sensors than the trend has coefficients plus two are
 /// skipped. Cost O(T (pairs + n p^2)).
-pub fn pooled(points: &Points, series: &DMatrix<f64>, bins: &Bins, estimator: Estimator, direction: Option<Direction>, detrend: &Detrend) -> Result<Empirical> {
+pub fn pooled(
+    points: &Points,
+    series: &DMatrix<f64>,
+    bins: &Bins,
+    estimator: Estimator,
+    direction: Option<Direction>,
+    detrend: &Detrend,
+) -> Result<Empirical> {
     let n = points.len();
     if series.ncols() != n {
         return Err(SpatialError::BadInput {
@@ -297,15 +314,23 @@ pub fn pooled(points: &Points, series: &DMatrix<f64>, bins: &Bins, estimator: Es
             message: format!("series has {} columns for {} sensors", series.ncols(), n),
         });
     }
-    if let Detrend::Drift(v) = detrend {
-        if v.len() != n {
-            return Err(SpatialError::BadInput { what: "pooled variogram drift".into(), message: format!("{} drift values for {n} sensors", v.len()) });
-        }
+    if let Detrend::Drift(v) = detrend
+        && v.len() != n
+    {
+        return Err(SpatialError::BadInput {
+            what: "pooled variogram drift".into(),
+            message: format!("{} drift values for {n} sensors", v.len()),
+        });
     }
     let pairs: Vec<(usize, usize, f64, usize)> = pairs_within(points, bins.max_lag())
         .into_iter()
         .filter(|&(i, j, _)| {
-            direction.is_none_or(|dir| dir.contains(points.x[j as usize] - points.x[i as usize], points.y[j as usize] - points.y[i as usize]))
+            direction.is_none_or(|dir| {
+                dir.contains(
+                    points.x[j as usize] - points.x[i as usize],
+                    points.y[j as usize] - points.y[i as usize],
+                )
+            })
         })
         .filter_map(|(i, j, d)| bins.bin_of(d).map(|k| (i as usize, j as usize, d, k)))
         .collect();
@@ -346,7 +371,11 @@ pub fn pooled(points: &Points, series: &DMatrix<f64>, bins: &Bins, estimator: Es
         .map(|k| VariogramBin {
             from: bins.edges[k],
             to: bins.edges[k + 1],
-            lag: if npairs[k] > 0 { dsum[k] / npairs[k] as f64 } else { 0.5 * (bins.edges[k] + bins.edges[k + 1]) },
+            lag: if npairs[k] > 0 {
+                dsum[k] / npairs[k] as f64
+            } else {
+                0.5 * (bins.edges[k] + bins.edges[k + 1])
+            },
             semivariance: (nsteps[k] > 0).then(|| gsum[k] / nsteps[k] as f64),
             pairs: if nsteps[k] > 0 { (npairs[k] as f64 / nsteps[k] as f64).round() as usize } else { 0 },
             steps: nsteps[k],
@@ -502,7 +531,8 @@ pub fn cressie_criterion(emp: &Empirical, model: &VariogramModel) -> f64 {
 /// and 4 times `h_max`; nugget 0, 10 % or 30 % of the plateau). Returns `None` when fewer than
 /// three bins hold pairs, or all semivariances are zero.
 pub fn fit_wls(emp: &Empirical, family: Family, opts: &FitOptions) -> Option<VariogramFit> {
-    let used: Vec<&VariogramBin> = emp.bins.iter().filter(|b| b.semivariance.is_some() && b.pairs > 0).collect();
+    let used: Vec<&VariogramBin> =
+        emp.bins.iter().filter(|b| b.semivariance.is_some() && b.pairs > 0).collect();
     if used.len() < 3 {
         return None;
     }
@@ -514,11 +544,20 @@ pub fn fit_wls(emp: &Empirical, family: Family, opts: &FitOptions) -> Option<Var
     let (amin, amax) = opts.range_bounds.unwrap_or((0.02 * hmax, 5.0 * hmax));
     let lo = [amin.ln(), 0.0, 1e-9];
     let hi = [amax.ln(), if opts.fit_nugget { 2.0 } else { 0.0 }, 10.0];
-    let clamp = |p: &[f64]| -> [f64; 3] { [p[0].clamp(lo[0], hi[0]), p[1].clamp(lo[1], hi[1]), p[2].clamp(lo[2], hi[2])] };
-    let model_of = |q: [f64; 3]| VariogramModel { family, range: q[0].exp(), nugget: q[1] * gmax, partial_sill: q[2] * gmax };
+    let clamp = |p: &[f64]| -> [f64; 3] {
+        [p[0].clamp(lo[0], hi[0]), p[1].clamp(lo[1], hi[1]), p[2].clamp(lo[2], hi[2])]
+    };
+    let model_of = |q: [f64; 3]| VariogramModel {
+        family,
+        range: q[0].exp(),
+        nugget: q[1] * gmax,
+        partial_sill: q[2] * gmax,
+    };
     let f = |p: &[f64]| cressie_criterion(emp, &model_of(clamp(p)));
     let k = used.len();
-    let plateau = used[k.saturating_sub(3)..].iter().map(|b| b.semivariance.unwrap()).sum::<f64>() / (k - k.saturating_sub(3)) as f64 / gmax;
+    let plateau = used[k.saturating_sub(3)..].iter().map(|b| b.semivariance.unwrap()).sum::<f64>()
+        / (k - k.saturating_sub(3)) as f64
+        / gmax;
     let mut best: Option<([f64; 3], f64)> = None;
     for &ra in &[0.05, 0.1, 0.25, 0.5, 1.0, 2.0, 4.0] {
         for &nf in &[0.0, 0.1, 0.3] {
@@ -539,14 +578,21 @@ pub fn fit_wls(emp: &Empirical, family: Family, opts: &FitOptions) -> Option<Var
         return None;
     }
     let near = |v: f64, l: f64, h: f64| h > l && ((v - l) / (h - l) < 1e-3 || (h - v) / (h - l) < 1e-3);
-    let on_bound = near(x[0], lo[0], hi[0]) || (opts.fit_nugget && near(x[1], lo[1], hi[1])) || near(x[2], lo[2], hi[2]);
+    let on_bound =
+        near(x[0], lo[0], hi[0]) || (opts.fit_nugget && near(x[1], lo[1], hi[1])) || near(x[2], lo[2], hi[2]);
     Some(VariogramFit { model: model_of(x), criterion: fx, bins_used: k, on_bound })
 }
 
 /// Nelder–Mead simplex minimisation (standard coefficients 1, 2, 0.5, 0.5)
 /// with restarts of the simplex around the best point until it stops moving.
 /// Returns the best point and value.
-pub(crate) fn nelder_mead<F: Fn(&[f64]) -> f64>(f: &F, x0: &[f64], scale: &[f64], max_iter: usize, tol: f64) -> (Vec<f64>, f64) {
+pub(crate) fn nelder_mead<F: Fn(&[f64]) -> f64>(
+    f: &F,
+    x0: &[f64],
+    scale: &[f64],
+    max_iter: usize,
+    tol: f64,
+) -> (Vec<f64>, f64) {
     let n = x0.len();
     let mut start = x0.to_vec();
     let mut best_val = f64::INFINITY;
@@ -568,8 +614,11 @@ pub(crate) fn nelder_mead<F: Fn(&[f64]) -> f64>(f: &F, x0: &[f64], scale: &[f64]
             if spread <= tol * (vals[0].abs() + tol) {
                 break;
             }
-            let centroid: Vec<f64> = (0..n).map(|j| simplex[..n].iter().map(|p| p[j]).sum::<f64>() / n as f64).collect();
-            let along = |t: f64| -> Vec<f64> { (0..n).map(|j| centroid[j] + t * (simplex[n][j] - centroid[j])).collect() };
+            let centroid: Vec<f64> =
+                (0..n).map(|j| simplex[..n].iter().map(|p| p[j]).sum::<f64>() / n as f64).collect();
+            let along = |t: f64| -> Vec<f64> {
+                (0..n).map(|j| centroid[j] + t * (simplex[n][j] - centroid[j])).collect()
+            };
             let xr = along(-1.0);
             let fr = f(&xr);
             if fr < vals[0] {
@@ -599,9 +648,10 @@ pub(crate) fn nelder_mead<F: Fn(&[f64]) -> f64>(f: &F, x0: &[f64], scale: &[f64]
                     simplex[n] = xc;
                     vals[n] = fc;
                 } else {
+                    let best = simplex[0].clone();
                     for i in 1..=n {
-                        for j in 0..n {
-                            simplex[i][j] = simplex[0][j] + 0.5 * (simplex[i][j] - simplex[0][j]);
+                        for (v, b) in simplex[i].iter_mut().zip(&best) {
+                            *v = b + 0.5 * (*v - b);
                         }
                         vals[i] = f(&simplex[i]);
                     }
@@ -625,7 +675,11 @@ pub(crate) fn nelder_mead<F: Fn(&[f64]) -> f64>(f: &F, x0: &[f64], scale: &[f64]
 }
 
 /// Fit every family in `families`; `None` for a family that cannot be fitted.
-pub fn fit_families(emp: &Empirical, families: &[Family], opts: &FitOptions) -> Vec<(Family, Option<VariogramFit>)> {
+pub fn fit_families(
+    emp: &Empirical,
+    families: &[Family],
+    opts: &FitOptions,
+) -> Vec<(Family, Option<VariogramFit>)> {
     families.iter().map(|&fam| (fam, fit_wls(emp, fam, opts))).collect()
 }
 
@@ -645,7 +699,8 @@ mod tests {
 
     fn random_points(n: usize, seed: u64) -> (Points, Vec<f64>) {
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
-        let xy: Vec<[f64; 2]> = (0..n).map(|_| [rng.random::<f64>() * 30.0, rng.random::<f64>() * 10.0]).collect();
+        let xy: Vec<[f64; 2]> =
+            (0..n).map(|_| [rng.random::<f64>() * 30.0, rng.random::<f64>() * 10.0]).collect();
         let v = (0..n).map(|i| xy[i][0] * 0.1 + rng.sample::<f64, _>(StandardNormal)).collect();
         (pts(&xy), v)
     }
@@ -690,7 +745,9 @@ mod tests {
                     assert_eq!(b.pairs, n);
                     let want = match est {
                         Estimator::Matheron => sq / (2.0 * n as f64),
-                        Estimator::CressieHawkins => 0.5 * (rt / n as f64).powi(4) / (0.457 + 0.494 / n as f64),
+                        Estimator::CressieHawkins => {
+                            0.5 * (rt / n as f64).powi(4) / (0.457 + 0.494 / n as f64)
+                        }
                     };
                     assert_relative_eq!(b.semivariance.unwrap(), want, max_relative = 1e-12);
                     assert_relative_eq!(b.lag, sd / n as f64, max_relative = 1e-12);
@@ -706,13 +763,19 @@ mod tests {
         let (p, z) = topo();
         let f = fixture();
         let bins = Bins::from_edges(nums(&f["edges"])).unwrap();
-        for (key, dir) in [("omni", None), ("dir45", Some(Direction { angle_deg: 45.0, tolerance_deg: 22.5 }))] {
+        for (key, dir) in
+            [("omni", None), ("dir45", Some(Direction { angle_deg: 45.0, tolerance_deg: 22.5 }))]
+        {
             for est in [Estimator::Matheron, Estimator::CressieHawkins] {
                 let e = experimental(&p, &z, &bins, est, dir).unwrap();
                 for (b, w) in e.bins.iter().zip(f[key].as_array().unwrap()) {
                     assert_eq!(b.pairs as u64, w["pairs"].as_u64().unwrap());
                     if b.pairs > 0 {
-                        assert_relative_eq!(b.semivariance.unwrap(), w[est.name()].as_f64().unwrap(), max_relative = 1e-12);
+                        assert_relative_eq!(
+                            b.semivariance.unwrap(),
+                            w[est.name()].as_f64().unwrap(),
+                            max_relative = 1e-12
+                        );
                         assert_relative_eq!(b.lag, w["lag"].as_f64().unwrap(), max_relative = 1e-12);
                     }
                 }
@@ -769,7 +832,15 @@ mod tests {
         // A plane added per step is removed by Detrend::Plane.
         let plane = DMatrix::from_fn(30, 40, |t, j| v[j] + t as f64 * (0.3 * p.x[j] - 0.2 * p.y[j]));
         let a = pooled(&p, &plane, &bins, Estimator::Matheron, None, &Detrend::Plane).unwrap();
-        let b = pooled(&p, &DMatrix::from_fn(30, 40, |_, j| v[j]), &bins, Estimator::Matheron, None, &Detrend::Plane).unwrap();
+        let b = pooled(
+            &p,
+            &DMatrix::from_fn(30, 40, |_, j| v[j]),
+            &bins,
+            Estimator::Matheron,
+            None,
+            &Detrend::Plane,
+        )
+        .unwrap();
         for (x, y) in a.bins.iter().zip(&b.bins) {
             assert_relative_eq!(x.semivariance.unwrap(), y.semivariance.unwrap(), max_relative = 1e-8);
         }
@@ -782,7 +853,14 @@ mod tests {
         let bins: Vec<VariogramBin> = (1..=12)
             .map(|k| {
                 let h = 0.5 * k as f64;
-                VariogramBin { from: h - 0.25, to: h + 0.25, lag: h, semivariance: Some(truth.semivariance(h)), pairs: 40 + k, steps: 1 }
+                VariogramBin {
+                    from: h - 0.25,
+                    to: h + 0.25,
+                    lag: h,
+                    semivariance: Some(truth.semivariance(h)),
+                    pairs: 40 + k,
+                    steps: 1,
+                }
             })
             .collect();
         let e = Empirical { bins, estimator: Estimator::Matheron, direction: None };
@@ -811,7 +889,10 @@ mod tests {
             assert_relative_eq!(got.criterion, wc, max_relative = 1e-4, epsilon = 1e-9);
             let sill = want["nugget"].as_f64().unwrap() + want["partial_sill"].as_f64().unwrap();
             assert_relative_eq!(got.model.range, want["range"].as_f64().unwrap(), max_relative = 1e-3);
-            assert!((got.model.nugget - want["nugget"].as_f64().unwrap()).abs() < 1e-3 * sill, "{fam} nugget");
+            assert!(
+                (got.model.nugget - want["nugget"].as_f64().unwrap()).abs() < 1e-3 * sill,
+                "{fam} nugget"
+            );
             assert_relative_eq!(got.model.sill(), sill, max_relative = 1e-3);
         }
     }
