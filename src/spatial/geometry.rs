@@ -179,6 +179,45 @@ pub fn distances_to_opening(points: &Points, from: [f64; 2], to: [f64; 2]) -> Ve
     (0..points.len()).map(|i| distance_to_segment(points.x[i], points.y[i], from, to)).collect()
 }
 
+/// The sensors of the sensor table as a checked point set (errors name the
+/// table and line; positions must lie in the compartment when one is given).
+pub fn sensor_points(
+    sensors: &crate::io::layout::Sensors,
+    compartment: Option<crate::io::study::Compartment>,
+) -> Result<Points> {
+    let origin = Origin { path: Some(sensors.table.path.clone()), lines: Some(sensors.table.lines.clone()) };
+    Points::new(
+        "sensor",
+        sensors.ids.clone(),
+        sensors.x.clone(),
+        sensors.y.clone(),
+        compartment.map(|c| (c.length, c.width)),
+        &origin,
+    )
+}
+
+/// The pots of the pot table as a checked point set (as [`sensor_points`]).
+pub fn pot_points(
+    pots: &crate::io::layout::Pots,
+    compartment: Option<crate::io::study::Compartment>,
+) -> Result<Points> {
+    let origin = Origin { path: Some(pots.table.path.clone()), lines: Some(pots.table.lines.clone()) };
+    Points::new(
+        "pot",
+        pots.ids.clone(),
+        pots.x.clone(),
+        pots.y.clone(),
+        compartment.map(|c| (c.length, c.width)),
+        &origin,
+    )
+}
+
+/// The `distance_<name>` covariate of every `[[openings]]` entry, in the
+/// order declared: `(name, metres from each point to the segment)`.
+pub fn opening_distances(openings: &[crate::io::study::Opening], points: &Points) -> Vec<(String, Vec<f64>)> {
+    openings.iter().map(|o| (o.name.clone(), distances_to_opening(points, o.from, o.to))).collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -229,6 +268,38 @@ mod tests {
         let msg = e.to_string();
         assert!(matches!(e, SpatialError::OutsideCompartment { .. }));
         assert!(msg.contains("12.5") && msg.contains("[0, 10]"), "{msg}");
+    }
+
+    /// Sensor-table positions: the error names the file and the row's own
+    /// line; opening distances come in declaration order.
+    #[test]
+    fn sensor_table_and_openings() {
+        let table = crate::io::table::Table {
+            path: "layout/sensors.csv".into(),
+            headers: vec!["id".into(), "x".into(), "y".into()],
+            header_line: 3,
+            rows: vec![],
+            lines: vec![4, 6],
+        };
+        let s = crate::io::layout::Sensors {
+            ids: vec!["L1".into(), "L2".into()],
+            x: vec![1.0, 2.0],
+            y: vec![1.0, 9.0],
+            z: None,
+            table,
+        };
+        let c = crate::io::study::Compartment { length: 10.0, width: 5.0 };
+        let e = sensor_points(&s, Some(c)).unwrap_err().to_string();
+        assert!(e.contains("layout/sensors.csv:6") && e.contains("L2") && e.contains("outside"), "{e}");
+        let p = sensor_points(&s, None).unwrap();
+        let o = vec![
+            crate::io::study::Opening { name: "door".into(), from: [0.0, 0.0], to: [0.0, 10.0] },
+            crate::io::study::Opening { name: "vent".into(), from: [5.0, 9.0], to: [5.0, 9.0] },
+        ];
+        let d = opening_distances(&o, &p);
+        assert_eq!(d[0].0, "door");
+        assert_eq!(d[0].1, vec![1.0, 2.0]);
+        assert_relative_eq!(d[1].1[1], 3.0);
     }
 
     #[test]
