@@ -6,4 +6,11 @@
 //! sensor series and indicator definitions of [`crate::climate`] and is used by
 //! [`crate::model`] (which shares [`correlation`]) and [`crate::simulate`].
 
+pub mod config;
 pub mod correlation;
+pub mod error;
+pub mod geometry;
+pub mod kriging;
+pub mod mapping;
+pub mod outputs;
+pub mod variogram;

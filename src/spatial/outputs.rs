@@ -1,0 +1,318 @@
+//! The CSV files of the mapping stage: `pot_covariates.csv`,
+//! `variograms.csv`, `variogram_fits.csv` and `mapping_cv.csv`. Each writer
+//! returns the file's bytes for [`crate::io::output::StageWriter::write`], so
+//! that the stage's files are published together. Formats: `docs/spatial.md`.
+//! Numbers are written with Rust's shortest round-trip formatting; an
+//! undefined value is an empty cell.
+
+use super::correlation::Family;
+use super::error::{Result, SpatialError};
+use super::mapping::CvScore;
+use super::variogram::{Empirical, VariogramFit};
+
+fn num(v: Option<f64>) -> String {
+    match v {
+        Some(x) if x.is_finite() => format!("{x}"),
+        _ => String::new(),
+    }
+}
+
+fn finish(w: csv::Writer<Vec<u8>>) -> Result<Vec<u8>> {
+    w.into_inner().map_err(|e| SpatialError::BadInput { what: "csv".into(), message: e.to_string() })
+}
+
+fn row(w: &mut csv::Writer<Vec<u8>>, fields: &[String]) -> Result<()> {
+    w.write_record(fields).map_err(|e| SpatialError::BadInput { what: "csv".into(), message: e.to_string() })
+}
+
+/// One mapped indicator: a value and (optionally) a standard error per pot.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MappedColumn {
+    /// Indicator name (`<name>` and `<name>_se` columns).
+    pub name: String,
+    /// Value per pot.
+    pub value: Vec<f64>,
+    /// Standard error per pot (`None`: the `_se` column is empty, e.g. for
+    /// IDW or nearest sensor).
+    pub se: Option<Vec<f64>>,
+}
+
+/// `pot_covariates.csv`: column `pot`, then `<name>` and `<name>_se` for
+/// every indicator, then `distance_<opening>` for every opening (metres).
+pub fn pot_covariates_csv(
+    pots: &[String],
+    indicators: &[MappedColumn],
+    openings: &[(String, Vec<f64>)],
+) -> Result<Vec<u8>> {
+    let n = pots.len();
+    for c in indicators {
+        if c.value.len() != n || c.se.as_ref().is_some_and(|s| s.len() != n) {
+            return Err(SpatialError::BadInput {
+                what: format!("indicator `{}`", c.name),
+                message: format!("values for {} pots expected", n),
+            });
+        }
+    }
+    for (name, d) in openings {
+        if d.len() != n {
+            return Err(SpatialError::BadInput {
+                what: format!("distance_{name}"),
+                message: format!("{} values for {n} pots", d.len()),
+            });
+        }
+    }
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut head = vec!["pot".to_string()];
+    for c in indicators {
+        head.push(c.name.clone());
+        head.push(format!("{}_se", c.name));
+    }
+    for (name, _) in openings {
+        head.push(format!("distance_{name}"));
+    }
+    row(&mut w, &head)?;
+    for i in 0..n {
+        let mut r = vec![pots[i].clone()];
+        for c in indicators {
+            r.push(num(Some(c.value[i])));
+            r.push(num(c.se.as_ref().map(|s| s[i])));
+        }
+        for (_, d) in openings {
+            r.push(num(Some(d[i])));
+        }
+        row(&mut w, &r)?;
+    }
+    finish(w)
+}
+
+/// One variogram of `variograms.csv`: the variable's name, the empirical
+/// bins, and the fitted models to evaluate at the bins' lags.
+pub struct VariogramTable<'a> {
+    /// The variable (an indicator or a climate channel).
+    pub variable: &'a str,
+    /// The empirical variogram.
+    pub empirical: &'a Empirical,
+    /// Fitted models, one column `model_<family>` each.
+    pub fits: &'a [(Family, Option<VariogramFit>)],
+}
+
+/// `variograms.csv`: one row per variable, direction and bin: `variable`,
+/// `direction` (degrees, empty = omnidirectional), `tolerance`,
+/// `estimator`, `bin_from`, `bin_to`, `lag`, `semivariance`, `pairs`, `steps`,
+/// then `model_<family>` (the fitted model's semivariance at `lag`) for every
+/// family of the first table (all tables must list the same families).
+pub fn variograms_csv(tables: &[VariogramTable]) -> Result<Vec<u8>> {
+    let fams: Vec<Family> = tables.first().map(|t| t.fits.iter().map(|f| f.0).collect()).unwrap_or_default();
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut head: Vec<String> = [
+        "variable",
+        "direction",
+        "tolerance",
+        "estimator",
+        "bin_from",
+        "bin_to",
+        "lag",
+        "semivariance",
+        "pairs",
+        "steps",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    head.extend(fams.iter().map(|f| format!("model_{}", f.name())));
+    row(&mut w, &head)?;
+    for t in tables {
+        let tf: Vec<Family> = t.fits.iter().map(|f| f.0).collect();
+        if tf != fams {
+            return Err(SpatialError::BadInput {
+                what: "variograms.csv".into(),
+                message: format!("variable `{}` lists other families", t.variable),
+            });
+        }
+        for b in &t.empirical.bins {
+            let mut r = vec![
+                t.variable.to_string(),
+                num(t.empirical.direction.map(|d| d.angle_deg)),
+                num(t.empirical.direction.map(|d| d.tolerance_deg)),
+                t.empirical.estimator.name().to_string(),
+                num(Some(b.from)),
+                num(Some(b.to)),
+                num(Some(b.lag)),
+                num(b.semivariance),
+                b.pairs.to_string(),
+                b.steps.to_string(),
+            ];
+            for (_, f) in t.fits {
+                r.push(num(f.map(|f| f.model.semivariance(b.lag))));
+            }
+            row(&mut w, &r)?;
+        }
+    }
+    finish(w)
+}
+
+/// One variable of `variogram_fits.csv`: its name, every family's fit, and
+/// the family chosen.
+pub type FitsRow<'a> = (&'a str, &'a [(Family, Option<VariogramFit>)], Option<Family>);
+
+/// One variable of `mapping_cv.csv`: its name, the scores of every method, and
+/// the choice of `auto` (index into the scores, and the reason).
+pub type CvRow<'a> = (&'a str, &'a [CvScore], Option<(usize, String)>);
+
+/// `variogram_fits.csv`: one row per variable and family: `variable`,
+/// `family`, `nugget`, `partial_sill`, `sill`, `range` (the range
+/// parameter), `practical_range`, `criterion` (Cressie's WLS criterion),
+/// `bins_used`, `on_bound`, `chosen`. A family that could not be fitted has
+/// empty cells.
+pub fn variogram_fits_csv(rows: &[FitsRow]) -> Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    row(
+        &mut w,
+        &[
+            "variable",
+            "family",
+            "nugget",
+            "partial_sill",
+            "sill",
+            "range",
+            "practical_range",
+            "criterion",
+            "bins_used",
+            "on_bound",
+            "chosen",
+        ]
+        .map(String::from),
+    )?;
+    for (var, fits, chosen) in rows {
+        for (fam, f) in fits.iter() {
+            let m = f.map(|f| f.model);
+            row(
+                &mut w,
+                &[
+                    var.to_string(),
+                    fam.name(),
+                    num(m.map(|m| m.nugget)),
+                    num(m.map(|m| m.partial_sill)),
+                    num(m.map(|m| m.sill())),
+                    num(m.map(|m| m.range)),
+                    num(m.map(|m| m.practical_range())),
+                    num(f.map(|f| f.criterion)),
+                    f.map(|f| f.bins_used.to_string()).unwrap_or_default(),
+                    f.map(|f| f.on_bound.to_string()).unwrap_or_default(),
+                    (Some(*fam) == *chosen).to_string(),
+                ],
+            )?;
+        }
+    }
+    finish(w)
+}
+
+/// `mapping_cv.csv`: one row per variable and method: `variable`, `method`,
+/// `n` (predictions compared), `rmse`, `mean_error`, `msse` (empty for IDW
+/// and nearest sensor), `chosen`, `reason` (why `auto` chose it, on the
+/// chosen row).
+pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    row(
+        &mut w,
+        &["variable", "method", "n", "rmse", "mean_error", "msse", "chosen", "reason"].map(String::from),
+    )?;
+    for (var, scores, choice) in rows {
+        for (i, s) in scores.iter().enumerate() {
+            let chosen = choice.as_ref().is_some_and(|(k, _)| *k == i);
+            row(
+                &mut w,
+                &[
+                    var.to_string(),
+                    s.method.name().to_string(),
+                    s.n.to_string(),
+                    num(Some(s.rmse)),
+                    num(Some(s.mean_error)),
+                    num(s.msse),
+                    chosen.to_string(),
+                    if chosen {
+                        choice.as_ref().map(|c| c.1.clone()).unwrap_or_default()
+                    } else {
+                        String::new()
+                    },
+                ],
+            )?;
+        }
+    }
+    finish(w)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::spatial::kriging::Method;
+    use crate::spatial::variogram::{Bins, Estimator, FitOptions, experimental, fit_families};
+
+    fn parse(bytes: &[u8]) -> Vec<Vec<String>> {
+        let mut r = csv::ReaderBuilder::new().has_headers(false).from_reader(bytes);
+        r.records().map(|x| x.unwrap().iter().map(String::from).collect()).collect()
+    }
+
+    #[test]
+    fn pot_covariates_layout() {
+        let b = pot_covariates_csv(
+            &["A1".into(), "A,2".into()],
+            &[
+                MappedColumn { name: "cold_hours".into(), value: vec![1.5, 2.0], se: Some(vec![0.25, 0.5]) },
+                MappedColumn { name: "dli".into(), value: vec![10.0, 11.0], se: None },
+            ],
+            &[("door".into(), vec![3.0, 4.5])],
+        )
+        .unwrap();
+        let rows = parse(&b);
+        assert_eq!(rows[0], ["pot", "cold_hours", "cold_hours_se", "dli", "dli_se", "distance_door"]);
+        assert_eq!(rows[2], ["A,2", "2", "0.5", "11", "", "4.5"]);
+        assert!(
+            pot_covariates_csv(
+                &["A".into()],
+                &[MappedColumn { name: "x".into(), value: vec![], se: None }],
+                &[]
+            )
+            .is_err()
+        );
+    }
+
+    #[test]
+    fn variogram_and_cv_tables() {
+        let (p, z) = crate::spatial::kriging::testdata::topo();
+        let bins = Bins::equal(3.0, 3).unwrap();
+        let e = experimental(&p, &z, &bins, Estimator::Matheron, None).unwrap();
+        let fits = fit_families(&e, &[Family::Exponential, Family::Spherical], &FitOptions::default());
+        let rows =
+            parse(&variograms_csv(&[VariogramTable { variable: "z", empirical: &e, fits: &fits }]).unwrap());
+        assert_eq!(rows[0].last().unwrap(), "model_spherical");
+        assert_eq!(rows.len(), 4);
+        assert_eq!(rows[1][8], e.bins[0].pairs.to_string());
+        let m: f64 = rows[2][10].parse().unwrap();
+        assert_eq!(m, fits[0].1.unwrap().model.semivariance(e.bins[1].lag));
+        let rows = parse(&variogram_fits_csv(&[("z", fits.as_slice(), Some(Family::Spherical))]).unwrap());
+        assert_eq!(rows[2][1], "spherical");
+        assert_eq!(rows[2][10], "true");
+        let scores = vec![
+            CvScore {
+                method: Method::Ordinary,
+                n: 5,
+                rmse: 1.0,
+                mean_error: 0.1,
+                msse: Some(1.1),
+                warnings: vec![],
+            },
+            CvScore {
+                method: Method::Nearest,
+                n: 5,
+                rmse: 2.0,
+                mean_error: 0.2,
+                msse: None,
+                warnings: vec![],
+            },
+        ];
+        let rows = parse(&mapping_cv_csv(&[("z", scores.as_slice(), Some((0, "because".into())))]).unwrap());
+        assert_eq!(rows[1], ["z", "ordinary", "5", "1", "0.1", "1.1", "true", "because"]);
+        assert_eq!(rows[2][5], "");
+    }
+}
