@@ -23,8 +23,9 @@ pub enum SimError {
     },
     /// Reading the scenario or writing the study failed (also TOML syntax
     /// and unknown-key errors, with line and column).
+    /// (Boxed to keep `SimError` small.)
     #[error(transparent)]
-    Io(#[from] IoError),
+    Io(Box<IoError>),
     /// A covariance matrix could not be factorised even with a tiny jitter.
     #[error(
         "random field `{what}`: the covariance matrix of {n} points is not positive definite{}",
@@ -38,6 +39,12 @@ pub enum SimError {
         /// How to fix it.
         hint: Option<String>,
     },
+}
+
+impl From<IoError> for SimError {
+    fn from(e: IoError) -> SimError {
+        SimError::Io(Box::new(e))
+    }
 }
 
 fn hint_suffix(hint: &Option<String>) -> String {
