@@ -116,7 +116,7 @@ struct Row {
     copy: usize,
 }
 
-fn channel<'a>(e: &'a ExportSpec, k: usize) -> Option<&'a ExportChannel> {
+fn channel(e: &ExportSpec, k: usize) -> Option<&ExportChannel> {
     match k {
         0 => e.columns.temperature.as_ref(),
         1 => e.columns.humidity.as_ref(),
@@ -398,9 +398,8 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
             }
             // Central systems write by time, then sensor; a copy follows its original.
             all.sort_by_key(|&(i, l, c, _)| (i, l, c));
-            let mut line = e.preamble.len() + 1;
-            for (_, l, _, w) in all {
-                line += 1;
+            // Physical lines: preamble, header, then data from preamble + 2.
+            for (line, (_, l, _, w)) in (e.preamble.len() + 2..).zip(all) {
                 let mut cells = vec![quote(&w.time_text, delim)];
                 if e.columns.sensor.is_some() {
                     cells.push(quote(&sc.spec.logger[l].id, delim));

@@ -831,7 +831,7 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
                 None,
             ));
         };
-        if d.replicates % nb != 0 {
+        if !d.replicates.is_multiple_of(nb) {
             return Err(bad(
                 p,
                 "design.replicates",
