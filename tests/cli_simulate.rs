@@ -176,3 +176,124 @@ fn bad_scenarios_get_clear_errors() {
         assert!(!out.join("study.toml").exists());
     }
 }
+
+/// An independent reading of the demo exports, driven only by the written
+/// study file's `[[logs]]` blocks: local times go to UTC through chrono-tz
+/// (the IANA database; a repeated fall-back time is the first pass the first
+/// time it is seen and the second pass after), units through the published
+/// definitions. Every reading not listed in `truth/faults.csv` must equal
+/// `truth/sensor_readings.csv` within 1e-4, and every true reading must be
+/// accounted for.
+#[test]
+fn demo_exports_read_back_to_the_true_readings() {
+    use chrono::{DateTime, NaiveDateTime, TimeZone, Utc};
+    use std::collections::{BTreeMap, BTreeSet};
+    let st = potclim::io::study::Study::load(&demo().join("study.toml")).unwrap();
+    let faults = std::fs::read_to_string(demo().join("truth/faults.csv")).unwrap();
+    let mut row_faults = BTreeSet::new();
+    let mut value_faults = BTreeSet::new();
+    let mut row_fault_keys = BTreeSet::new();
+    for l in faults.lines().skip(1) {
+        let c: Vec<&str> = l.split(',').collect();
+        let key = (c[0].to_string(), c[1].parse::<usize>().unwrap());
+        if c[4].is_empty() {
+            row_faults.insert(key);
+            if c[5] != "duplicate" && c[5] != "outside_period" {
+                row_fault_keys.insert((c[2].to_string(), c[3].to_string()));
+            }
+        } else {
+            value_faults.insert((key.0, key.1, c[4].to_string()));
+        }
+    }
+    let truth_text = std::fs::read_to_string(demo().join("truth/sensor_readings.csv")).unwrap();
+    let mut truth: BTreeMap<(String, String), [Option<f64>; 3]> = BTreeMap::new();
+    for l in truth_text.lines().skip(1) {
+        let c: Vec<&str> = l.split(',').collect();
+        let v = |s: &str| if s.is_empty() { None } else { Some(s.parse::<f64>().unwrap()) };
+        truth.insert((c[0].to_string(), c[1].to_string()), [v(c[2]), v(c[3]), v(c[4])]);
+    }
+    let mut matched = BTreeSet::new();
+    let mut compared = 0usize;
+    for log in &st.spec.logs {
+        let delim =
+            potclim::io::study::delimiter_byte(log.delimiter.as_deref().unwrap_or(",")).unwrap() as char;
+        let tz: chrono_tz::Tz = log.timezone.as_deref().map(|z| z.parse().unwrap()).unwrap_or(st.timezone);
+        let mut paths: Vec<PathBuf> = Vec::new();
+        for g in &log.files {
+            paths.extend(glob::glob(&st.resolve(g).to_string_lossy()).unwrap().map(Result::unwrap));
+        }
+        paths.sort();
+        assert!(!paths.is_empty());
+        for path in paths {
+            let rel = path.strip_prefix(&st.dir).unwrap().to_string_lossy().replace('\\', "/");
+            let text = std::fs::read_to_string(&path).unwrap();
+            let lines: Vec<&str> = text.lines().collect();
+            let skip = log.skip_lines.unwrap_or(0);
+            let header: Vec<&str> = lines[skip].split(delim).collect();
+            let col = |n: &str| {
+                header.iter().position(|h| *h == n).unwrap_or_else(|| panic!("{rel}: no column {n}"))
+            };
+            let tcol = col(&log.time);
+            let scol = log.sensor.as_deref().map(col);
+            let chans = [&log.columns.temperature, &log.columns.humidity, &log.columns.light];
+            let ccols: Vec<Option<(usize, String)>> =
+                chans.iter().map(|c| c.as_ref().map(|c| (col(&c.column), c.unit.clone()))).collect();
+            let mut seen_local: BTreeSet<(String, NaiveDateTime)> = BTreeSet::new();
+            for (i, line) in lines.iter().enumerate().skip(skip + 1) {
+                let number = i + 1;
+                if row_faults.contains(&(rel.clone(), number)) {
+                    continue;
+                }
+                let cells: Vec<&str> = line.split(delim).collect();
+                let sensor = match scol {
+                    Some(j) => cells[j].to_string(),
+                    None => path.file_stem().unwrap().to_string_lossy().to_string(),
+                };
+                let t: DateTime<Utc> = if log.time_format == "rfc3339" {
+                    DateTime::parse_from_rfc3339(cells[tcol]).unwrap().with_timezone(&Utc)
+                } else {
+                    let local = NaiveDateTime::parse_from_str(cells[tcol], &log.time_format).unwrap();
+                    match tz.from_local_datetime(&local) {
+                        chrono::LocalResult::Single(t) => t.with_timezone(&Utc),
+                        chrono::LocalResult::Ambiguous(a, b) => {
+                            if seen_local.insert((sensor.clone(), local)) {
+                                a.with_timezone(&Utc)
+                            } else {
+                                b.with_timezone(&Utc)
+                            }
+                        }
+                        chrono::LocalResult::None => panic!("{rel}:{number}: nonexistent local time"),
+                    }
+                };
+                let key = (sensor.clone(), t.to_rfc3339_opts(chrono::SecondsFormat::Secs, true));
+                let want =
+                    truth.get(&key).unwrap_or_else(|| panic!("{rel}:{number}: no true reading for {key:?}"));
+                for (k, c) in ccols.iter().enumerate() {
+                    let Some((j, unit)) = c else { continue };
+                    if value_faults.contains(&(
+                        rel.clone(),
+                        number,
+                        ["temperature", "humidity", "light"][k].to_string(),
+                    )) {
+                        continue;
+                    }
+                    let raw = if log.decimal.as_deref() == Some(",") {
+                        cells[*j].replace(',', ".")
+                    } else {
+                        cells[*j].to_string()
+                    };
+                    let got = potclim::simulate::exports::from_unit(unit, raw.parse::<f64>().unwrap());
+                    let w = want[k].unwrap();
+                    assert!((got - w).abs() <= 1e-4, "{rel}:{number}: {got} vs true {w}");
+                    compared += 1;
+                }
+                assert!(matched.insert(key.clone()), "{rel}:{number}: {key:?} read twice");
+            }
+        }
+    }
+    // Every true reading was read back, or sits on a row listed as a whole-row fault.
+    let missing: Vec<_> =
+        truth.keys().filter(|k| !matched.contains(*k) && !row_fault_keys.contains(*k)).collect();
+    assert!(missing.is_empty(), "{} true readings not found, e.g. {:?}", missing.len(), missing.first());
+    assert!(compared > 100_000, "{compared}");
+}
