@@ -21,6 +21,7 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// Write a synthetic study with known truth from a scenario file.
+    #[command(long_about = simulate::LONG_ABOUT)]
     Simulate(simulate::SimulateArgs),
 }
 

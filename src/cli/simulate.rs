@@ -4,16 +4,15 @@
 use anyhow::Context;
 use std::path::PathBuf;
 
-/// Arguments of `potclim simulate`.
-#[derive(Debug, clap::Args)]
-#[command(
-    about = "Write a synthetic study (pots, sensors, messy logger exports, study.toml) with its truth",
-    long_about = "Write a synthetic study with known truth from a scenario file: the pot table, the sensor \
+/// The long help of `potclim simulate`.
+pub const LONG_ABOUT: &str = "Write a synthetic study with known truth from a scenario file: the pot table, the sensor \
 table, logger exports in several formats with injected faults, a study.toml that the other commands read, \
 and truth/ (the true climate components and indicator values at every pot, the true effects, the true \
 sensor readings and every injected fault). The same scenario and seed give byte-identical files on every \
-machine. Scenario keys are documented in docs/simulate.md; demo-data/scenario.toml is a full example."
-)]
+machine. Scenario keys are documented in docs/simulate.md; demo-data/scenario.toml is a full example.";
+
+/// Arguments of `potclim simulate`.
+#[derive(Debug, clap::Args)]
 pub struct SimulateArgs {
     /// The scenario file (TOML).
     pub scenario: PathBuf,

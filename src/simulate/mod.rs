@@ -241,8 +241,6 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
     let ex = exports::write_exports(sc, &reference, &readings)?;
 
     // Indicators at every pot over its own window, from the true field.
-    let (t0, _) = sc.period_utc();
-    let _ = t0;
     let inds = &spec.trait_.indicator;
     let mut ind_vals = vec![vec![0.0; inds.len()]; n_p];
     for (pi, p) in pots.iter().enumerate() {
@@ -284,16 +282,12 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
 
     // Trait.
     let t = &spec.trait_;
-    let resid: Vec<f64> = match sc.residual_field {
-        Some((fam, range, sill)) => FieldSampler::new(&pot_xy, fam, range, sill, "trait.residual_field")?
-            .draw(&mut rng(seed, stream::RESIDUAL_FIELD)),
-        None => vec![0.0; n_p],
-    };
-    let resid_jitter = match sc.residual_field {
+    let (resid, resid_jitter) = match sc.residual_field {
         Some((fam, range, sill)) => {
-            FieldSampler::new(&pot_xy, fam, range, sill, "trait.residual_field")?.jitter()
+            let f = FieldSampler::new(&pot_xy, fam, range, sill, "trait.residual_field")?;
+            (f.draw(&mut rng(seed, stream::RESIDUAL_FIELD)), f.jitter())
         }
-        None => 0.0,
+        None => (vec![0.0; n_p], 0.0),
     };
     let mut tn = rng(seed, stream::TRAIT_NOISE);
     let factors = &spec.design.factor;
