@@ -4,6 +4,8 @@
 //! printed with their full chain (`{:#}`) and mapped to exit code 1; usage
 //! errors exit with 2.
 
+mod simulate;
+
 use clap::{Parser, Subcommand};
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
@@ -17,7 +19,11 @@ pub struct Cli {
 
 /// The subcommands.
 #[derive(Debug, Subcommand)]
-pub enum Command {}
+pub enum Command {
+    /// Write a synthetic study with known truth from a scenario file.
+    #[command(long_about = simulate::LONG_ABOUT)]
+    Simulate(simulate::SimulateArgs),
+}
 
 /// Run the command line and return the process exit code.
 pub fn main_entry() -> i32 {
@@ -40,5 +46,7 @@ pub fn main_entry() -> i32 {
 
 /// Dispatch a parsed command line.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
-    match cli.command {}
+    match cli.command {
+        Command::Simulate(a) => simulate::run(a),
+    }
 }

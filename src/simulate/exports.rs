@@ -1,0 +1,459 @@
+//! Logger exports of a synthetic study: each `[[export]]` block of the
+//! scenario is one file format (column names, delimiter, decimal mark, time
+//! format and clock, units, preamble), written either as one file for all its
+//! loggers or one file per logger, with the scenario's faults injected.
+//!
+//! Every injected fault that leaves a row in a file is listed with the file,
+//! the physical line (1-based, counting preamble and header), the sensor, the
+//! true UTC instant, the channel and the reason, in the vocabulary of the
+//! ingestion stage's quality control. Removed rows (gaps, the lost second
+//! pass of a fall-back hour) are listed as intervals instead.
+
+use super::climate::Reference;
+use super::error::Result;
+use super::scenario::{ExportChannel, ExportSpec, Scenario};
+use chrono::{DateTime, Duration, SecondsFormat, TimeZone, Utc};
+
+/// Channels in a fixed order.
+pub const CHANNELS: [&str; 3] = ["temperature", "humidity", "light"];
+
+/// One injected fault that a reader of the files should flag.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FaultRecord {
+    /// Path of the export, relative to the study folder (`/` separators).
+    pub file: String,
+    /// Physical line, 1-based.
+    pub line: usize,
+    /// Sensor id.
+    pub sensor: String,
+    /// True UTC instant of the row.
+    pub time: DateTime<Utc>,
+    /// `temperature`, `humidity`, `light`, or empty for a whole-row fault.
+    pub variable: String,
+    /// Reason name (`spike`, `stuck`, `duplicate`, ...).
+    pub reason: String,
+}
+
+/// Readings that are absent from an export.
+#[derive(Debug, Clone, PartialEq)]
+pub struct GapRecord {
+    /// Sensor id.
+    pub sensor: String,
+    /// First missing instant.
+    pub from: DateTime<Utc>,
+    /// First instant after the gap (the next logging step).
+    pub to: DateTime<Utc>,
+    /// `gap` or `fallback_single_pass`.
+    pub cause: String,
+}
+
+/// A true reading at a sensor: what the logger measured (true field plus
+/// sensor noise), as printed in its export, converted back to SI units.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TruthReading {
+    /// Logger index.
+    pub logger: usize,
+    /// UTC instant.
+    pub time: DateTime<Utc>,
+    /// °C, % RH, µmol m-2 s-1; `None` where the export has no such channel.
+    pub values: [Option<f64>; 3],
+}
+
+/// Everything the exports produce.
+#[derive(Debug, Clone, Default)]
+pub struct Exports {
+    /// `(relative path, bytes)` in a fixed order.
+    pub files: Vec<(String, Vec<u8>)>,
+    /// Injected faults, sorted by file, line and variable.
+    pub faults: Vec<FaultRecord>,
+    /// Missing intervals.
+    pub gaps: Vec<GapRecord>,
+    /// True readings inside the study period, by logger then time.
+    pub truth: Vec<TruthReading>,
+}
+
+/// SI value -> value in an export unit. Temperature: °F = °C * 9/5 + 32,
+/// K = °C + 273.15 (BIPM SI Brochure, 9th ed., 2019, §2.3.1 for kelvin).
+/// Humidity: fraction = % / 100. Light: `lux_sunlight` uses the daylight
+/// factor of Thimijan & Heins (1983), *HortScience* 18: 818-822,
+/// PPFD = lux * 0.0185, so lux = PPFD / 0.0185.
+pub fn to_unit(unit: &str, si: f64) -> f64 {
+    match unit {
+        "degF" => si * 9.0 / 5.0 + 32.0,
+        "K" => si + 273.15,
+        "fraction" => si / 100.0,
+        "lux_sunlight" => si / LUX_SUNLIGHT,
+        _ => si,
+    }
+}
+
+/// Inverse of [`to_unit`].
+pub fn from_unit(unit: &str, v: f64) -> f64 {
+    match unit {
+        "degF" => (v - 32.0) * 5.0 / 9.0,
+        "K" => v - 273.15,
+        "fraction" => v * 100.0,
+        "lux_sunlight" => v * LUX_SUNLIGHT,
+        _ => v,
+    }
+}
+
+/// µmol m-2 s-1 per lux of daylight (Thimijan & Heins 1983, via REFERENCE.md §2.2).
+pub const LUX_SUNLIGHT: f64 = 0.0185;
+
+/// `v` with `decimals` fixed decimals and no negative zero.
+pub fn fixed(v: f64, decimals: usize) -> String {
+    let s = format!("{v:.decimals$}");
+    if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') { s[1..].to_string() } else { s }
+}
+
+#[derive(Debug, Clone)]
+struct Row {
+    idx: usize,
+    time_text: String,
+    cells: [Option<String>; 3],
+    faults: Vec<(String, &'static str)>,
+    copy: usize,
+}
+
+fn channel(e: &ExportSpec, k: usize) -> Option<&ExportChannel> {
+    match k {
+        0 => e.columns.temperature.as_ref(),
+        1 => e.columns.humidity.as_ref(),
+        _ => e.columns.light.as_ref(),
+    }
+}
+
+/// Printed text and the SI value it means.
+fn print(c: &ExportChannel, si: f64, comma: bool) -> (String, f64) {
+    let d = c.decimals.unwrap_or(1);
+    let s = fixed(to_unit(&c.unit, si), d);
+    let back = from_unit(&c.unit, s.parse::<f64>().expect("a printed number parses"));
+    (if comma { s.replace('.', ",") } else { s }, back)
+}
+
+fn time_text(sc: &Scenario, e: &ExportSpec, t: DateTime<Utc>) -> String {
+    let utc = e.clock.as_deref() == Some("utc");
+    match e.time_format.as_str() {
+        "unix" => t.timestamp().to_string(),
+        "rfc3339" if utc => t.to_rfc3339_opts(SecondsFormat::Secs, true),
+        "rfc3339" => t.with_timezone(&sc.tz).to_rfc3339_opts(SecondsFormat::Secs, false),
+        f if utc => t.naive_utc().format(f).to_string(),
+        f => t.with_timezone(&sc.tz).naive_local().format(f).to_string(),
+    }
+}
+
+/// Whether the local time of `t` occurs twice, and `t` is the second time.
+fn fold(sc: &Scenario, t: DateTime<Utc>) -> Option<bool> {
+    let local = t.with_timezone(&sc.tz).naive_local();
+    match sc.tz.from_local_datetime(&local) {
+        chrono::LocalResult::Ambiguous(a, _) => Some(a.with_timezone(&Utc) != t),
+        _ => None,
+    }
+}
+
+fn quote(s: &str, delim: char) -> String {
+    if s.contains(delim) || s.contains('"') || s.contains('\n') {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+/// Write every export. `readings[l][i]` is the genuine SI reading of logger
+/// `l` at reference index `i` (temperature, RH, PPFD).
+pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -> Result<Exports> {
+    let step = Duration::minutes(sc.step_minutes);
+    let (t0, _) = sc.period_utc();
+    let mut out = Exports::default();
+    let mut rows_of: Vec<Vec<Row>> = Vec::new();
+    for (li, lg) in sc.spec.logger.iter().enumerate() {
+        let e = &sc.spec.export[sc.logger_export[li]];
+        let comma = e.decimal.as_deref() == Some(",");
+        let lead = (e.lead_hours * 60.0 / sc.step_minutes as f64).round() as usize;
+        let first = r.first_in_period - lead.min(r.first_in_period);
+        let mut rows: Vec<Row> = (first..r.times.len())
+            .map(|i| {
+                let mut cells = [None, None, None];
+                for (k, cell) in cells.iter_mut().enumerate() {
+                    if let Some(c) = channel(e, k) {
+                        *cell = Some(print(c, readings[li][i][k], comma).0);
+                    }
+                }
+                Row { idx: i, time_text: time_text(sc, e, r.times[i]), cells, faults: Vec::new(), copy: 0 }
+            })
+            .collect();
+        let faults: Vec<(usize, &super::scenario::FaultSpec)> =
+            sc.spec.fault.iter().enumerate().filter(|(_, f)| f.logger == lg.id).collect();
+        // Removals first: gaps and the lost second pass of a fall-back hour.
+        for &(fi, f) in &faults {
+            let key = |k: &str| format!("fault[{}].{k}", fi + 1);
+            match f.kind.as_str() {
+                "gap" => {
+                    let from = super::scenario::local_to_utc(
+                        sc.tz,
+                        sc.local_time(&key("from"), f.from.as_deref().unwrap_or(""))?,
+                    );
+                    let to = from + Duration::seconds((f.hours.unwrap_or(0.0) * 3600.0).round() as i64);
+                    let before = rows.len();
+                    let removed: Vec<DateTime<Utc>> = rows
+                        .iter()
+                        .filter(|w| r.times[w.idx] >= from && r.times[w.idx] < to)
+                        .map(|w| r.times[w.idx])
+                        .collect();
+                    if removed.is_empty() {
+                        return Err(sc.bad(
+                            &key("from"),
+                            format!("logger `{}` has no reading in this gap", lg.id),
+                            Some("the gap must overlap the logging span".into()),
+                        ));
+                    }
+                    rows.retain(|w| !(r.times[w.idx] >= from && r.times[w.idx] < to));
+                    debug_assert!(rows.len() < before);
+                    out.gaps.push(GapRecord {
+                        sensor: lg.id.clone(),
+                        from: removed[0],
+                        to: *removed.last().expect("non-empty") + step,
+                        cause: "gap".into(),
+                    });
+                }
+                "fallback_single_pass" => {
+                    let second: Vec<DateTime<Utc>> = rows
+                        .iter()
+                        .filter(|w| fold(sc, r.times[w.idx]) == Some(true))
+                        .map(|w| r.times[w.idx])
+                        .collect();
+                    if second.is_empty() {
+                        return Err(sc.bad(
+                            &key("kind"),
+                            format!("logger `{}` logs through no fall-back hour", lg.id),
+                            Some("the study period must contain the end of daylight-saving time".into()),
+                        ));
+                    }
+                    rows.retain(|w| fold(sc, r.times[w.idx]) != Some(true));
+                    for w in rows.iter_mut().filter(|w| fold(sc, r.times[w.idx]) == Some(false)) {
+                        w.faults.push((String::new(), "ambiguous_time"));
+                    }
+                    out.gaps.push(GapRecord {
+                        sensor: lg.id.clone(),
+                        from: second[0],
+                        to: *second.last().expect("non-empty") + step,
+                        cause: "fallback_single_pass".into(),
+                    });
+                }
+                _ => {}
+            }
+        }
+        // Value and row faults.
+        let find = |rows: &[Row], key: &str, at: &str| -> Result<usize> {
+            let t = super::scenario::local_to_utc(sc.tz, sc.local_time(key, at)?);
+            rows.iter().position(|w| r.times[w.idx] == t).ok_or_else(|| {
+                sc.bad(key, format!("logger `{}` has no reading at {at} (outside its logging span, off the logging step, or removed by a gap)", lg.id), None)
+            })
+        };
+        let var_index =
+            |v: &Option<String>| CHANNELS.iter().position(|c| Some(*c) == v.as_deref()).expect("checked");
+        let mut dups: Vec<(usize, usize)> = Vec::new();
+        for &(fi, f) in &faults {
+            let key = |k: &str| format!("fault[{}].{k}", fi + 1);
+            let conflict = |w: &Row, var: &str| -> Result<()> {
+                if w.faults.iter().any(|(v, _)| v.is_empty() || v == var)
+                    || (var.is_empty() && !w.faults.is_empty())
+                {
+                    return Err(sc.bad(
+                        &key("kind"),
+                        format!("overlaps another fault of logger `{}` at {}", lg.id, r.times[w.idx]),
+                        Some("move one of the faults".into()),
+                    ));
+                }
+                if r.times[w.idx] < t0 {
+                    return Err(sc.bad(
+                        &key("kind"),
+                        format!("lies before the study period ({})", r.times[w.idx]),
+                        None,
+                    ));
+                }
+                Ok(())
+            };
+            match f.kind.as_str() {
+                "spike" | "out_of_range" | "unparsable_value" => {
+                    let at = f.at.as_deref().unwrap_or("");
+                    let j = find(&rows, &key("at"), at)?;
+                    let k = var_index(&f.variable);
+                    let c = channel(e, k).expect("checked");
+                    conflict(&rows[j], CHANNELS[k])?;
+                    let genuine = readings[li][rows[j].idx][k];
+                    let (text, reason) = match f.kind.as_str() {
+                        "spike" => (print(c, genuine + f.value.unwrap_or(0.0), comma).0, "spike"),
+                        "out_of_range" => (print(c, f.value.unwrap_or(0.0), comma).0, "out_of_range"),
+                        _ => (f.text.clone().unwrap_or_else(|| "ERR".into()), "unparsable_value"),
+                    };
+                    rows[j].cells[k] = Some(text);
+                    rows[j].faults.push((CHANNELS[k].to_string(), reason));
+                }
+                "stuck" => {
+                    let from = super::scenario::local_to_utc(
+                        sc.tz,
+                        sc.local_time(&key("from"), f.from.as_deref().unwrap_or(""))?,
+                    );
+                    let to = from + Duration::seconds((f.hours.unwrap_or(0.0) * 3600.0).round() as i64);
+                    let k = var_index(&f.variable);
+                    let c = channel(e, k).expect("checked");
+                    let js: Vec<usize> = (0..rows.len())
+                        .filter(|&j| r.times[rows[j].idx] >= from && r.times[rows[j].idx] < to)
+                        .collect();
+                    if js.len() < 2 {
+                        return Err(sc.bad(
+                            &key("hours"),
+                            format!("logger `{}` has fewer than two readings in this interval", lg.id),
+                            None,
+                        ));
+                    }
+                    let frozen = print(c, readings[li][rows[js[0]].idx][k], comma).0;
+                    for &j in &js {
+                        conflict(&rows[j], CHANNELS[k])?;
+                        rows[j].cells[k] = Some(frozen.clone());
+                        rows[j].faults.push((CHANNELS[k].to_string(), "stuck"));
+                    }
+                }
+                "unparsable_time" => {
+                    let j = find(&rows, &key("at"), f.at.as_deref().unwrap_or(""))?;
+                    conflict(&rows[j], "")?;
+                    rows[j].time_text = f.text.clone().unwrap_or_else(|| "--".into());
+                    rows[j].faults.push((String::new(), "unparsable_time"));
+                }
+                "duplicate" => {
+                    let j = find(&rows, &key("at"), f.at.as_deref().unwrap_or(""))?;
+                    conflict(&rows[j], "")?;
+                    dups.push((j, f.copies.unwrap_or(1).max(1)));
+                }
+                _ => {}
+            }
+        }
+        for w in rows.iter_mut().filter(|w| r.times[w.idx] < t0) {
+            w.faults.push((String::new(), "outside_period"));
+        }
+        // Truth: every genuine row inside the period (faulted or not).
+        for w in &rows {
+            if w.idx < r.first_in_period {
+                continue;
+            }
+            let mut values = [None, None, None];
+            for (k, v) in values.iter_mut().enumerate() {
+                if let Some(c) = channel(e, k) {
+                    *v = Some(print(c, readings[li][w.idx][k], comma).1);
+                }
+            }
+            out.truth.push(TruthReading { logger: li, time: r.times[w.idx], values });
+        }
+        dups.sort_by_key(|d| std::cmp::Reverse(d.0));
+        for (j, copies) in dups {
+            for c in (1..=copies).rev() {
+                let mut w = rows[j].clone();
+                w.copy = c;
+                w.faults = vec![(String::new(), "duplicate")];
+                rows.insert(j + 1, w);
+            }
+        }
+        rows_of.push(rows);
+    }
+
+    // Assemble files.
+    for (ei, e) in sc.spec.export.iter().enumerate() {
+        let delim =
+            crate::io::study::delimiter_byte(e.delimiter.as_deref().unwrap_or(",")).expect("checked") as char;
+        let ext = e.extension.as_deref().unwrap_or("csv");
+        let loggers: Vec<usize> = (0..sc.spec.logger.len()).filter(|&l| sc.logger_export[l] == ei).collect();
+        let groups: Vec<(String, Vec<usize>)> = if e.layout == "one_file" {
+            vec![(format!("logs/{}.{ext}", e.name), loggers)]
+        } else {
+            loggers
+                .iter()
+                .map(|&l| (format!("logs/{}/{}.{ext}", e.name, sc.spec.logger[l].id), vec![l]))
+                .collect()
+        };
+        for (file, ls) in groups {
+            let mut text = String::new();
+            let sensor_name = if ls.len() == 1 { sc.spec.logger[ls[0]].id.as_str() } else { "" };
+            for p in &e.preamble {
+                text.push_str(&p.replace("{sensor}", sensor_name));
+                text.push('\n');
+            }
+            let mut header = vec![quote(&e.columns.time, delim)];
+            if let Some(s) = &e.columns.sensor {
+                header.push(quote(s, delim));
+            }
+            for k in 0..3 {
+                if let Some(c) = channel(e, k) {
+                    header.push(quote(&c.column, delim));
+                }
+            }
+            text.push_str(&header.join(&delim.to_string()));
+            text.push('\n');
+            let mut all: Vec<(usize, usize, usize, &Row)> = Vec::new();
+            for &l in &ls {
+                for w in &rows_of[l] {
+                    all.push((w.idx, l, w.copy, w));
+                }
+            }
+            // Central systems write by time, then sensor; a copy follows its original.
+            all.sort_by_key(|&(i, l, c, _)| (i, l, c));
+            // Physical lines: preamble, header, then data from preamble + 2.
+            for (line, (_, l, _, w)) in (e.preamble.len() + 2..).zip(all) {
+                let mut cells = vec![quote(&w.time_text, delim)];
+                if e.columns.sensor.is_some() {
+                    cells.push(quote(&sc.spec.logger[l].id, delim));
+                }
+                for k in 0..3 {
+                    if channel(e, k).is_some() {
+                        cells.push(quote(w.cells[k].as_deref().unwrap_or(""), delim));
+                    }
+                }
+                text.push_str(&cells.join(&delim.to_string()));
+                text.push('\n');
+                for (var, reason) in &w.faults {
+                    out.faults.push(FaultRecord {
+                        file: file.clone(),
+                        line,
+                        sensor: sc.spec.logger[l].id.clone(),
+                        time: r.times[w.idx],
+                        variable: var.clone(),
+                        reason: reason.to_string(),
+                    });
+                }
+            }
+            out.files.push((file, text.into_bytes()));
+        }
+    }
+    out.faults.sort_by(|a, b| (&a.file, a.line, &a.variable).cmp(&(&b.file, b.line, &b.variable)));
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_abs_diff_eq;
+
+    /// °F and K against the defining relations (BIPM SI Brochure §2.3.1:
+    /// T/K = t/°C + 273.15; t/°F = 9/5 t/°C + 32): 100 °C = 212 °F = 373.15 K,
+    /// -40 °C = -40 °F. Lux: 10 000 lux of daylight = 185 µmol m-2 s-1
+    /// (Thimijan & Heins 1983 via REFERENCE.md §2.2).
+    #[test]
+    fn unit_conversions_match_definitions() {
+        assert_abs_diff_eq!(to_unit("degF", 100.0), 212.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(to_unit("degF", -40.0), -40.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(to_unit("K", 100.0), 373.15, epsilon = 1e-12);
+        assert_abs_diff_eq!(from_unit("lux_sunlight", 10000.0), 185.0, epsilon = 1e-9);
+        assert_abs_diff_eq!(to_unit("fraction", 55.0), 0.55, epsilon = 1e-15);
+        for u in ["degC", "degF", "K", "percent", "fraction", "umol_m2_s", "lux_sunlight"] {
+            assert_abs_diff_eq!(from_unit(u, to_unit(u, 17.3)), 17.3, epsilon = 1e-9);
+        }
+    }
+
+    #[test]
+    fn fixed_has_no_negative_zero() {
+        assert_eq!(fixed(-0.01, 1), "0.0");
+        assert_eq!(fixed(-0.06, 1), "-0.1");
+        assert_eq!(fixed(2.25, 0), "2");
+    }
+}
