@@ -6,6 +6,10 @@
 
 use clap::{Parser, Subcommand};
 
+mod check;
+mod ingest;
+mod init;
+
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
 #[command(name = "potclim", version, about, long_about = None)]
@@ -17,7 +21,17 @@ pub struct Cli {
 
 /// The subcommands.
 #[derive(Debug, Subcommand)]
-pub enum Command {}
+pub enum Command {
+    /// Write a commented study-file template to start a new analysis.
+    #[command(long_about = init::HELP)]
+    Init(init::InitArgs),
+    /// Validate every input of a study and print a short inventory.
+    #[command(long_about = check::HELP)]
+    Check(check::CheckArgs),
+    /// Merge and clean the logger exports into one audited table of readings.
+    #[command(long_about = ingest::HELP)]
+    Ingest(ingest::IngestArgs),
+}
 
 /// Run the command line and return the process exit code.
 pub fn main_entry() -> i32 {
@@ -40,5 +54,9 @@ pub fn main_entry() -> i32 {
 
 /// Dispatch a parsed command line.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
-    match cli.command {}
+    match cli.command {
+        Command::Init(a) => init::run(a),
+        Command::Check(a) => check::run(a),
+        Command::Ingest(a) => ingest::run(a),
+    }
 }

@@ -6,10 +6,16 @@
 //! Nothing here knows about climate indicators or models; later stages read
 //! their own sections of the study file through [`study::Study::section`].
 
+pub mod clock;
 pub mod error;
+pub mod ingest;
+pub mod inventory;
+pub mod logs;
 pub mod layout;
 pub mod output;
+pub mod qc;
 pub mod study;
 pub mod table;
+pub mod units;
 
 pub use error::{IoError, Result};
