@@ -109,6 +109,12 @@ fn main() {
         info = (h, f);
     }
     println!("bare polars CSV read : {:>7.3} s  {:>12.0} rows/s", tb, total as f64 / tb);
-    println!("potclim ingest       : {:>7.3} s  {:>12.0} rows/s  ({} readings, {} flags)", tp, total as f64 / tp, info.0, info.1);
+    println!(
+        "potclim ingest       : {:>7.3} s  {:>12.0} rows/s  ({} readings, {} flags)",
+        tp,
+        total as f64 / tp,
+        info.0,
+        info.1
+    );
     println!("ratio ingest / bare  : {:.2}x (target <= 1.5x)", tp / tb);
 }

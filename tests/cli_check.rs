@@ -5,7 +5,11 @@ use std::process::Command;
 
 fn run(args: &[&str]) -> (i32, String, String) {
     let o = Command::new(env!("CARGO_BIN_EXE_potclim")).args(args).output().unwrap();
-    (o.status.code().unwrap_or(-1), String::from_utf8_lossy(&o.stdout).into_owned(), String::from_utf8_lossy(&o.stderr).into_owned())
+    (
+        o.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&o.stdout).into_owned(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
 }
 
 fn write(dir: &Path, name: &str, text: &str) {
@@ -63,10 +67,10 @@ fn inventory_counts_pots_sensors_files_span_and_factor_table() {
 #[test]
 fn check_reports_bad_input_with_file_and_line() {
     let d = tempfile::tempdir().unwrap();
-    setup(d.path(), "id,time,temperature\nA,2026-03-01 00:00,20\n");
+    setup(d.path(), "id,time,Temp\nA,2026-03-01 00:00,20\n");
     let (code, _, err) = run(&["check", d.path().join("study.toml").to_str().unwrap()]);
     assert_eq!(code, 1);
-    assert!(err.contains("logs/a.csv:1") && err.contains("did you mean `temperature`"), "{err}");
+    assert!(err.contains("logs/a.csv:1") && err.contains("did you mean `Temp`"), "{err}");
     let (code, _, err) = run(&["check", d.path().join("nope.toml").to_str().unwrap()]);
     assert_eq!(code, 1);
     assert!(err.contains("nope.toml") && err.contains("cannot read"), "{err}");

@@ -23,7 +23,11 @@ fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
 
 fn run(args: &[&str]) -> (i32, String, String) {
     let o = bin().args(args).output().unwrap();
-    (o.status.code().unwrap_or(-1), String::from_utf8_lossy(&o.stdout).into_owned(), String::from_utf8_lossy(&o.stderr).into_owned())
+    (
+        o.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&o.stdout).into_owned(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
 }
 
 const POTS: &str = "pot,x,y,genotype\np1,0,0,A\np2,1,0,B\n";
@@ -102,7 +106,11 @@ fn messy() -> Messy {
     for (i, (local, utc)) in ams_times.iter().enumerate() {
         let fi = i as f64;
         let temp = if i == 10 { 39.0 } else { 18.0 + 0.1 * (fi * 0.7).sin() };
-        g.push_str(&format!("G1,{local}:00,{temp:.3},{:.3},{:.1}\n", 0.6 + 0.01 * (fi * 0.3).sin(), 100.0 + fi));
+        g.push_str(&format!(
+            "G1,{local}:00,{temp:.3},{:.3},{:.1}\n",
+            0.6 + 0.01 * (fi * 0.3).sin(),
+            100.0 + fi
+        ));
         expected.push(("G1".to_string(), *utc));
         if i == 20 {
             g.push_str(&format!("G1,{local}:00,{temp:.3},0.6,{:.1}\n", 100.0 + fi)); // duplicate row
@@ -197,11 +205,15 @@ fn messy_multi_format_set_gives_one_clean_utc_table() {
     let df = potclim::io::ingest::read_readings(&out_dir.join("readings.parquet")).unwrap();
     let sensors: Vec<String> =
         df.column("sensor").unwrap().str().unwrap().iter().map(|s| s.unwrap().to_string()).collect();
-    let times: Vec<i64> = df.column("time").unwrap().to_physical_repr().i64().unwrap().into_no_null_iter().collect();
+    let times: Vec<i64> =
+        df.column("time").unwrap().to_physical_repr().i64().unwrap().into_no_null_iter().collect();
     let mut want = m.expected.clone();
     want.sort();
     let got: Vec<(String, i64)> = sensors.into_iter().zip(times).collect();
-    assert_eq!(got, want, "every surviving row, at the instant the IANA rules give, sorted by sensor and time");
+    assert_eq!(
+        got, want,
+        "every surviving row, at the instant the IANA rules give, sorted by sensor and time"
+    );
 
     // Hand-checked instants: Amsterdam 2026-10-25 02:20 second pass is CET
     // (UTC+1) = 01:20Z; Toronto 2026-11-01 01:30 second pass is EST (UTC−5) = 06:30Z.
@@ -213,7 +225,10 @@ fn messy_multi_format_set_gives_one_clean_utc_table() {
 
     // °F with decimal comma: 61,50 °F at Toronto 2026-03-08 01:30 → (61.5−32)·5/9 °C.
     let t_c = df.column("temperature_c").unwrap().f64().unwrap();
-    let i = got.iter().position(|g| *g == ("T7".into(), utc_in(chrono_tz::America::Toronto, "2026-03-08 01:30", false))).unwrap();
+    let i = got
+        .iter()
+        .position(|g| *g == ("T7".into(), utc_in(chrono_tz::America::Toronto, "2026-03-08 01:30", false)))
+        .unwrap();
     approx::assert_abs_diff_eq!(t_c.get(i).unwrap(), (61.5 - 32.0) * 5.0 / 9.0, epsilon = 1e-9);
     // lux (HPS) × 0.0122 (Thimijan & Heins 1983): 2040 lux at 01:30.
     let ppfd = df.column("ppfd_umol_m2_s").unwrap().f64().unwrap();
@@ -233,7 +248,10 @@ fn messy_multi_format_set_gives_one_clean_utc_table() {
     assert!(has("unparsable_time", "handheld/T7.txt", "time"));
     // The spike is G1's 11th data row (line 12) and reads 39.
     let spike = flags.iter().find(|f| f["reason"] == "spike").unwrap();
-    assert_eq!((spike["line"].as_str(), spike["sensor"].as_str(), spike["value"].as_str()), ("12", "G1", "39"));
+    assert_eq!(
+        (spike["line"].as_str(), spike["sensor"].as_str(), spike["value"].as_str()),
+        ("12", "G1", "39")
+    );
     // The nonexistent time is the fifth data row under a header on line 4:
     // line 9 of the handheld file (preamble counted).
     let gap_row = flags.iter().find(|f| f["reason"] == "nonexistent_time").unwrap();
@@ -260,7 +278,18 @@ fn messy_multi_format_set_gives_one_clean_utc_table() {
     // Every dropped row is listed: readings = rows read − rows dropped whole.
     let dropped = flags
         .iter()
-        .filter(|f| ["duplicate", "nonexistent_time", "unparsable_time", "ambiguous_time", "outside_period", "unknown_sensor", "malformed_row"].contains(&f["reason"].as_str()))
+        .filter(|f| {
+            [
+                "duplicate",
+                "nonexistent_time",
+                "unparsable_time",
+                "ambiguous_time",
+                "outside_period",
+                "unknown_sensor",
+                "malformed_row",
+            ]
+            .contains(&f["reason"].as_str())
+        })
         .count();
     assert_eq!(df.height(), house_lines + hand_lines - dropped);
 
@@ -269,7 +298,13 @@ fn messy_multi_format_set_gives_one_clean_utc_table() {
     assert!(gaps.iter().any(|g| g["sensor"] == "G1" && g["variable"] == "temperature_c"));
     assert!(!gaps.iter().any(|g| g["sensor"] == "T7" && g["variable"] == "rh_pct"));
     // No staging folder left behind.
-    assert!(std::fs::read_dir(&out_dir).unwrap().all(|e| !e.unwrap().file_name().to_string_lossy().starts_with('.')));
+    assert!(
+        std::fs::read_dir(&out_dir).unwrap().all(|e| !e
+            .unwrap()
+            .file_name()
+            .to_string_lossy()
+            .starts_with('.'))
+    );
 }
 
 #[test]
@@ -277,7 +312,13 @@ fn study_period_flags_readings_outside_it() {
     let m = messy();
     let d = m.dir.path();
     let text = std::fs::read_to_string(d.join("study.toml")).unwrap();
-    std::fs::write(d.join("study.toml"), format!("{text}\n[climate]\nstart = \"2026-10-01 00:00\"\nend = \"2026-12-01 00:00\"\nstep = \"10min\"\n")).unwrap();
+    std::fs::write(
+        d.join("study.toml"),
+        format!(
+            "{text}\n[climate]\nstart = \"2026-10-01 00:00\"\nend = \"2026-12-01 00:00\"\nstep = \"10min\"\n"
+        ),
+    )
+    .unwrap();
     let (code, out, err) = run(&["ingest", d.join("study.toml").to_str().unwrap()]);
     assert_eq!(code, 0, "{out}{err}");
     let flags = csv_rows(&d.join("out/qc_flags.csv"));
@@ -286,7 +327,9 @@ fn study_period_flags_readings_outside_it() {
     assert_eq!(outside, 15 * 2 + 8);
     let df = potclim::io::ingest::read_readings(&d.join("out/readings.parquet")).unwrap();
     let start = utc_in(chrono_tz::Europe::Amsterdam, "2026-10-01 00:00", false);
-    assert!(df.column("time").unwrap().to_physical_repr().i64().unwrap().into_no_null_iter().all(|t| t >= start));
+    assert!(
+        df.column("time").unwrap().to_physical_repr().i64().unwrap().into_no_null_iter().all(|t| t >= start)
+    );
 }
 
 fn simple_set(log_block: &str, file: &str, content: &str) -> tempfile::TempDir {
@@ -312,39 +355,75 @@ fn ingest_err(dir: &tempfile::TempDir) -> String {
 
 #[test]
 fn unknown_sensors_stop_the_run_with_a_list_unless_dropped() {
-    let dir = simple_set(BLOCK, "logs/a.csv", "id,time,temp\nA,2026-03-01 00:00,20\nZ9,2026-03-01 00:00,20\nQ1,2026-03-01 00:10,20\n");
+    let dir = simple_set(
+        BLOCK,
+        "logs/a.csv",
+        "id,time,temp\nA,2026-03-01 00:00,20\nZ9,2026-03-01 00:00,20\nQ1,2026-03-01 00:10,20\n",
+    );
     let err = ingest_err(&dir);
-    assert!(err.contains("`Z9` (first at logs/a.csv:3)") && err.contains("`Q1` (first at logs/a.csv:4)"), "{err}");
+    assert!(
+        err.contains("`Z9` (first at logs/a.csv:3)") && err.contains("`Q1` (first at logs/a.csv:4)"),
+        "{err}"
+    );
     assert!(err.contains("drop_unknown_sensors"), "{err}");
-    let (code, out, err) = run(&["ingest", "--drop-unknown-sensors", dir.path().join("study.toml").to_str().unwrap()]);
+    let (code, out, err) =
+        run(&["ingest", "--drop-unknown-sensors", dir.path().join("study.toml").to_str().unwrap()]);
     assert_eq!(code, 0, "{out}{err}");
     let flags = csv_rows(&dir.path().join("out/qc_flags.csv"));
     assert_eq!(flags.iter().filter(|f| f["reason"] == "unknown_sensor").count(), 2);
     let summary = csv_rows(&dir.path().join("out/qc_summary.csv"));
-    assert_eq!((summary[0]["rows_read"].as_str(), summary[0]["rows_kept"].as_str(), summary[0]["rows_flagged"].as_str()), ("3", "1", "2"));
+    assert_eq!(
+        (
+            summary[0]["rows_read"].as_str(),
+            summary[0]["rows_kept"].as_str(),
+            summary[0]["rows_flagged"].as_str()
+        ),
+        ("3", "1", "2")
+    );
 }
 
 #[test]
 fn missing_column_suggests_the_closest_name() {
     let dir = simple_set(BLOCK, "logs/a.csv", "id,time,tmp\nA,2026-03-01 00:00,20\n");
     let err = ingest_err(&dir);
-    assert!(err.contains("logs/a.csv:1") && err.contains("no column `temp`") && err.contains("did you mean `tmp`"), "{err}");
+    assert!(
+        err.contains("logs/a.csv:1")
+            && err.contains("no column `temp`")
+            && err.contains("did you mean `tmp`"),
+        "{err}"
+    );
 }
 
 #[test]
 fn time_pattern_failing_on_most_rows_shows_value_and_pattern() {
-    let dir = simple_set(BLOCK, "logs/a.csv", "id,time,temp\nA,03/01/2026 00:00,20\nA,03/01/2026 00:10,20\nA,2026-03-01 00:20,20\n");
+    let dir = simple_set(
+        BLOCK,
+        "logs/a.csv",
+        "id,time,temp\nA,03/01/2026 00:00,20\nA,03/01/2026 00:10,20\nA,2026-03-01 00:20,20\n",
+    );
     let err = ingest_err(&dir);
-    assert!(err.contains("logs/a.csv:2") && err.contains("`time`") && err.contains("03/01/2026 00:00") && err.contains("%Y-%m-%d %H:%M"), "{err}");
+    assert!(
+        err.contains("logs/a.csv:2")
+            && err.contains("`time`")
+            && err.contains("03/01/2026 00:00")
+            && err.contains("%Y-%m-%d %H:%M"),
+        "{err}"
+    );
 }
 
 #[test]
 fn unknown_unit_names_study_line_and_column() {
-    let dir = simple_set(&BLOCK.replace("degC", "celsius"), "logs/a.csv", "id,time,temp\nA,2026-03-01 00:00,20\n");
+    let dir =
+        simple_set(&BLOCK.replace("degC", "celsius"), "logs/a.csv", "id,time,temp\nA,2026-03-01 00:00,20\n");
     let err = ingest_err(&dir);
     let text = std::fs::read_to_string(dir.path().join("study.toml")).unwrap();
     let line = text.lines().position(|l| l.contains("celsius")).unwrap() + 1;
-    assert!(err.contains(&format!("study.toml:{line}:")) && err.contains("unknown unit `celsius`") && err.contains("degC"), "{err}");
+    assert!(
+        err.contains(&format!("study.toml:{line}:"))
+            && err.contains("unknown unit `celsius`")
+            && err.contains("degC"),
+        "{err}"
+    );
 }
 
 #[test]
@@ -378,7 +457,14 @@ fn toml_error_and_unknown_key_have_line_and_column() {
 fn help_teaches_outputs_and_reasons() {
     let (code, out, _) = run(&["ingest", "--help"]);
     assert_eq!(code, 0);
-    for w in ["readings.parquet", "qc_flags.csv", "rows_read = rows_kept + rows_flagged", "gaps.csv", "stuck", "--drop-unknown-sensors"] {
+    for w in [
+        "readings.parquet",
+        "qc_flags.csv",
+        "rows_read = rows_kept + rows_flagged",
+        "gaps.csv",
+        "stuck",
+        "--drop-unknown-sensors",
+    ] {
         assert!(out.contains(w), "{w}: {out}");
     }
 }

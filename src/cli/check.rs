@@ -1,8 +1,8 @@
 //! `potclim check STUDY`: validate every input and print a short inventory.
 
 use anyhow::Context;
-use timefmt::{span, utc};
 use std::path::PathBuf;
+use timefmt::{span, utc};
 
 /// The long help of `potclim check`.
 pub const HELP: &str = "Validate every input of a study without computing anything heavy: the study file (unknown keys, units, time zones, time patterns), the pot table, the sensor table, and every logger export matched by the [[logs]] globs (the header's columns, and the first and last 200 rows parsed with the block's delimiter, decimal mark, time format and zone).
@@ -36,7 +36,8 @@ pub(crate) mod timefmt {
 /// Run `potclim check`.
 pub fn run(a: CheckArgs) -> anyhow::Result<()> {
     let study = crate::io::study::Study::load(&a.study)?;
-    let inv = crate::io::inventory::inventory(&study).with_context(|| format!("while checking {}", a.study.display()))?;
+    let inv = crate::io::inventory::inventory(&study)
+        .with_context(|| format!("while checking {}", a.study.display()))?;
     println!("study: {} ({})", study.spec.study.title, study.path.display());
     println!("time zone: {}", study.timezone);
     println!("pots: {}", inv.pots);
@@ -58,7 +59,11 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
         for f in files {
             let s = f.span.map(|(a, b)| span(a, b)).unwrap_or_else(|| "no readable time".into());
             let ids: Vec<&str> = f.sensors.iter().map(String::as_str).collect();
-            let shown = if ids.len() > 6 { format!("{}, ... ({} ids)", ids[..6].join(", "), ids.len()) } else { ids.join(", ") };
+            let shown = if ids.len() > 6 {
+                format!("{}, ... ({} ids)", ids[..6].join(", "), ids.len())
+            } else {
+                ids.join(", ")
+            };
             println!("  {}: {} rows, {s}, sensors: {shown}", f.name, f.lines);
             if f.sample_flags > 0 {
                 println!("    {} reading(s) in the sampled rows would be flagged", f.sample_flags);
@@ -87,7 +92,8 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
     }
     for t in &inv.crosstabs {
         println!("pots by {} x {}:", t.rows, t.cols);
-        let w0 = t.row_levels.iter().map(|l| l.chars().count()).max().unwrap_or(0).max(t.rows.chars().count());
+        let w0 =
+            t.row_levels.iter().map(|l| l.chars().count()).max().unwrap_or(0).max(t.rows.chars().count());
         let widths: Vec<usize> = t.col_levels.iter().map(|l| l.chars().count().max(3)).collect();
         let mut head = format!("  {:w0$}", t.rows);
         for (l, w) in t.col_levels.iter().zip(&widths) {

@@ -36,7 +36,8 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     if a.drop_unknown_sensors {
         study.spec.qc.drop_unknown_sensors = true;
     }
-    let ing = crate::io::ingest::ingest(&study).with_context(|| format!("while ingesting {}", a.study.display()))?;
+    let ing = crate::io::ingest::ingest(&study)
+        .with_context(|| format!("while ingesting {}", a.study.display()))?;
     let published = crate::io::ingest::write_outputs(&study, &ing)?;
     let read: usize = ing.files.iter().map(|f| f.rows_read).sum();
     let kept: usize = ing.files.iter().map(|f| f.rows_kept).sum();

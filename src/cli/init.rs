@@ -29,7 +29,10 @@ pub fn run(a: InitArgs) -> anyhow::Result<()> {
     std::fs::create_dir_all(&a.dir).with_context(|| format!("cannot create folder {}", a.dir.display()))?;
     let path = a.dir.join("study.toml");
     if path.exists() && !a.force {
-        bail!("{} already exists (hint: pass --force to overwrite it, or choose another folder)", path.display());
+        bail!(
+            "{} already exists (hint: pass --force to overwrite it, or choose another folder)",
+            path.display()
+        );
     }
     std::fs::write(&path, TEMPLATE).with_context(|| format!("cannot write {}", path.display()))?;
     println!("wrote {}", path.display());
@@ -43,7 +46,8 @@ mod tests {
 
     #[test]
     fn template_is_a_valid_study_file() {
-        let st = crate::io::study::Study::from_source(std::path::Path::new("x/study.toml"), TEMPLATE.to_string());
+        let st =
+            crate::io::study::Study::from_source(std::path::Path::new("x/study.toml"), TEMPLATE.to_string());
         let st = st.unwrap();
         assert_eq!(st.spec.logs.len(), 2);
         assert_eq!(st.spec.qc, crate::io::qc::QcSettings::default());

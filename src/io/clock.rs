@@ -84,9 +84,7 @@ impl TimeFormat {
         let has_date = has(&["%Y", "%y", "%F", "%D", "%x", "%G"]) || has(&["%s"]);
         let has_hour = has(&["%H", "%I", "%k", "%l", "%T", "%R", "%X", "%r", "%s", "%c"]);
         if !has_date || !has_hour {
-            return Err(format!(
-                "`{spec}` does not name a date and an hour (e.g. \"%Y-%m-%d %H:%M:%S\")"
-            ));
+            return Err(format!("`{spec}` does not name a date and an hour (e.g. \"%Y-%m-%d %H:%M:%S\")"));
         }
         let has_offset = has(&["%z", "%:z", "%#z", "%::z", "%:::z"]);
         Ok(TimeFormat::Pattern(Pattern {
@@ -123,12 +121,12 @@ impl TimeFormat {
         match self {
             TimeFormat::Pattern(p) => {
                 if p.has_offset {
-                    return DateTime::parse_from_str(cell, &p.text).ok().map(|t| Stamp::Utc(t.timestamp_millis()));
+                    return DateTime::parse_from_str(cell, &p.text)
+                        .ok()
+                        .map(|t| Stamp::Utc(t.timestamp_millis()));
                 }
-                if let Some(items) = &p.fast {
-                    if let Some(ms) = parse_fast(items, cell.as_bytes()) {
-                        return Some(Stamp::Local(ms));
-                    }
+                if let Some(ms) = p.fast.as_deref().and_then(|items| parse_fast(items, cell.as_bytes())) {
+                    return Some(Stamp::Local(ms));
                 }
                 NaiveDateTime::parse_from_str(cell, &p.text)
                     .ok()
@@ -220,7 +218,14 @@ fn parse_fast(items: &[Item], s: &[u8]) -> Option<i64> {
             }
         }
     }
-    if pos != s.len() || !(1..=12).contains(&mo) || d < 1 || d > days_in_month(y, mo) || h > 23 || mi > 59 || se > 59 {
+    if pos != s.len()
+        || !(1..=12).contains(&mo)
+        || d < 1
+        || d > days_in_month(y, mo)
+        || h > 23
+        || mi > 59
+        || se > 59
+    {
         return None;
     }
     let days = days_from_civil(y, mo, d);
@@ -284,12 +289,7 @@ pub struct LocalClock {
 impl LocalClock {
     /// A clock for zone `tz`.
     pub fn new(tz: Tz) -> LocalClock {
-        LocalClock {
-            tz,
-            last_hour: i64::MIN,
-            last_offset: None,
-            cache: HashMap::new(),
-        }
+        LocalClock { tz, last_hour: i64::MIN, last_offset: None, cache: HashMap::new() }
     }
 
     /// The zone.
@@ -370,7 +370,11 @@ mod tests {
         let end = NaiveDate::from_ymd_opt(2110, 12, 31).unwrap();
         while d <= end {
             use chrono::Datelike;
-            assert_eq!(days_from_civil(i64::from(d.year()), d.month(), d.day()), (d - epoch).num_days(), "{d}");
+            assert_eq!(
+                days_from_civil(i64::from(d.year()), d.month(), d.day()),
+                (d - epoch).num_days(),
+                "{d}"
+            );
             d = d.succ_opt().unwrap();
         }
     }
@@ -398,7 +402,10 @@ mod tests {
     #[test]
     fn fractional_seconds_go_through_chrono() {
         let f = TimeFormat::compile("%Y-%m-%d %H:%M:%S%.f").unwrap();
-        assert_eq!(f.parse("2026-03-01 00:00:01.250", false), Some(Stamp::Local(local("2026-03-01 00:00:01") + 250)));
+        assert_eq!(
+            f.parse("2026-03-01 00:00:01.250", false),
+            Some(Stamp::Local(local("2026-03-01 00:00:01") + 250))
+        );
     }
 
     #[test]
@@ -426,7 +433,12 @@ mod tests {
     /// through the cached clock, against chrono-tz (IANA tz database) directly.
     #[test]
     fn cached_clock_agrees_with_chrono_tz_over_a_year() {
-        for tz in [chrono_tz::Europe::Amsterdam, chrono_tz::America::New_York, chrono_tz::Australia::Lord_Howe, chrono_tz::Asia::Kathmandu] {
+        for tz in [
+            chrono_tz::Europe::Amsterdam,
+            chrono_tz::America::New_York,
+            chrono_tz::Australia::Lord_Howe,
+            chrono_tz::Asia::Kathmandu,
+        ] {
             let mut clock = LocalClock::new(tz);
             let mut t = local("2026-01-01 00:00:00");
             let end = local("2027-01-01 00:00:00");
@@ -452,7 +464,9 @@ mod tests {
             Resolution::Ambiguous(utc("2026-10-25 00:30:00"), utc("2026-10-25 01:30:00"))
         );
         // Cross-check with chrono-tz's own formatting of the offsets.
-        let t = tz.from_utc_datetime(&DateTime::<Utc>::from_timestamp_millis(utc("2026-10-25 01:30:00")).unwrap().naive_utc());
+        let t = tz.from_utc_datetime(
+            &DateTime::<Utc>::from_timestamp_millis(utc("2026-10-25 01:30:00")).unwrap().naive_utc(),
+        );
         assert_eq!(t.format("%H:%M %Z").to_string(), "02:30 CET");
     }
 

@@ -139,14 +139,11 @@ pub fn study_period(study: &Study) -> Result<Period> {
             )),
         }
     };
-    let p = Period {
-        start: one("start", c.start, false)?,
-        end: one("end", c.end, true)?,
-    };
-    if let (Some(s), Some(e)) = (p.start, p.end) {
-        if e < s {
-            return Err(study.invalid("climate.end", "the study period ends before it starts", None));
-        }
+    let p = Period { start: one("start", c.start, false)?, end: one("end", c.end, true)? };
+    if let (Some(s), Some(e)) = (p.start, p.end)
+        && e < s
+    {
+        return Err(study.invalid("climate.end", "the study period ends before it starts", None));
     }
     Ok(p)
 }
@@ -195,7 +192,8 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
     // Sensor ids: the table first, then unknown ids in order of appearance.
     let mut sensors: Vec<String> = table.as_ref().map(|t| t.ids.clone()).unwrap_or_default();
     let known = sensors.len();
-    let mut index: HashMap<String, u32> = sensors.iter().enumerate().map(|(i, s)| (s.clone(), i as u32)).collect();
+    let mut index: HashMap<String, u32> =
+        sensors.iter().enumerate().map(|(i, s)| (s.clone(), i as u32)).collect();
     let mut unknown: Vec<(String, String, u32)> = Vec::new();
     let mut files: Vec<FileSummary> = jobs
         .iter()
@@ -261,7 +259,11 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
             Some((Reason::UnknownSensor, Variable::Sensor, sensors[r.sensor as usize].clone()))
         } else if w > 0 && rows[w - 1].sensor == r.sensor && rows[w - 1].time == r.time {
             let prev = &rows[w - 1];
-            Some((Reason::Duplicate, Variable::Row, format!("same instant as {}:{}", files[prev.file as usize].name, prev.line)))
+            Some((
+                Reason::Duplicate,
+                Variable::Row,
+                format!("same instant as {}:{}", files[prev.file as usize].name, prev.line),
+            ))
         } else if !period.contains(r.time) {
             Some((Reason::OutsidePeriod, Variable::Time, format_utc(r.time)))
         } else {
@@ -300,7 +302,7 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
     }
 
     // Accounting.
-    flags.sort_by(|x, y| (x.file, x.line, x.variable, x.reason).cmp(&(y.file, y.line, y.variable, y.reason)));
+    flags.sort_by_key(|x| (x.file, x.line, x.variable, x.reason));
     for r in &rows {
         if !r.flagged {
             files[r.file as usize].rows_kept += 1;
@@ -337,15 +339,7 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
         message: format!("cannot build the readings table: {e}"),
     })?;
     let span = rows.iter().map(|r| r.time).min().zip(rows.iter().map(|r| r.time).max());
-    Ok(Ingested {
-        readings,
-        flags,
-        files,
-        gaps,
-        sensors,
-        period,
-        span,
-    })
+    Ok(Ingested { readings, flags, files, gaps, sensors, period, span })
 }
 
 /// Range, spike and stuck rules on one sensor's rows (sorted by time).
@@ -366,18 +360,17 @@ fn value_rules(seg: &mut [Row], q: &QcSettings, flags: &mut Vec<Flag>) {
         r.values[k] = f64::NAN;
         r.flagged = true;
     };
-    for k in 0..3 {
+    for (k, col) in cols.iter_mut().enumerate() {
         let (lo, hi) = q.range(k);
-        for i in 0..seg.len() {
-            let v = cols[k][i];
-            if !v.is_nan() && (v < lo || v > hi) {
-                flag(seg, i, k, Reason::OutOfRange, v);
-                cols[k][i] = f64::NAN;
+        for (i, v) in col.iter_mut().enumerate() {
+            if !v.is_nan() && (*v < lo || *v > hi) {
+                flag(seg, i, k, Reason::OutOfRange, *v);
+                *v = f64::NAN;
             }
         }
-        for i in qc::spikes(&cols[k], q.spike_window, q.spike_k, q.min_jump(k)) {
-            flag(seg, i, k, Reason::Spike, cols[k][i]);
-            cols[k][i] = f64::NAN;
+        for i in qc::spikes(col, q.spike_window, q.spike_k, q.min_jump(k)) {
+            flag(seg, i, k, Reason::Spike, col[i]);
+            col[i] = f64::NAN;
         }
     }
     // Stuck: judged on the values left after range and spike rules; "moving"
@@ -444,13 +437,7 @@ fn find_gaps(seg: &[Row], sensor: &str, factor: f64, period: Period) -> Vec<Gap>
         }
         let mut push = |from: i64, to: i64| {
             if to - from > limit {
-                out.push(Gap {
-                    sensor: sensor.to_string(),
-                    channel: ch,
-                    from,
-                    to,
-                    step,
-                });
+                out.push(Gap { sensor: sensor.to_string(), channel: ch, from, to, step });
             }
         };
         if let Some(s) = period.start {
@@ -467,7 +454,10 @@ fn find_gaps(seg: &[Row], sensor: &str, factor: f64, period: Period) -> Vec<Gap>
 }
 
 fn readings_frame(rows: &[Row], sensors: &[String]) -> PolarsResult<DataFrame> {
-    let sensor = StringChunked::from_iter_values("sensor".into(), rows.iter().map(|r| sensors[r.sensor as usize].as_str()));
+    let sensor = StringChunked::from_iter_values(
+        "sensor".into(),
+        rows.iter().map(|r| sensors[r.sensor as usize].as_str()),
+    );
     let time = Int64Chunked::from_vec("time".into(), rows.iter().map(|r| r.time).collect())
         .into_datetime(TimeUnit::Milliseconds, Some(TimeZone::UTC));
     let mut cols: Vec<Column> = vec![sensor.into_series().into(), time.into_series().into()];
@@ -501,7 +491,11 @@ pub fn write_outputs(study: &Study, ing: &Ingested) -> Result<Vec<PathBuf>> {
     let mut df = ing.readings.clone();
     ParquetWriter::new(f).finish(&mut df).map_err(|e| werr(&p, &e))?;
 
-    let csv_file = |w: &mut StageWriter, name: &str, header: &[&str], rows: &mut dyn Iterator<Item = Vec<String>>| -> Result<()> {
+    let csv_file = |w: &mut StageWriter,
+                    name: &str,
+                    header: &[&str],
+                    rows: &mut dyn Iterator<Item = Vec<String>>|
+     -> Result<()> {
         let p = w.path(name);
         let mut c = csv::Writer::from_path(&p).map_err(|e| werr(&p, &e))?;
         c.write_record(header).map_err(|e| werr(&p, &e))?;
@@ -535,7 +529,12 @@ pub fn write_outputs(study: &Study, ing: &Ingested) -> Result<Vec<PathBuf>> {
         "qc_summary.csv",
         &header,
         &mut ing.files.iter().map(|s| {
-            let mut r = vec![s.name.clone(), s.rows_read.to_string(), s.rows_kept.to_string(), s.rows_flagged.to_string()];
+            let mut r = vec![
+                s.name.clone(),
+                s.rows_read.to_string(),
+                s.rows_kept.to_string(),
+                s.rows_flagged.to_string(),
+            ];
             r.extend(s.by_reason.iter().map(|n| n.to_string()));
             r
         }),
@@ -560,10 +559,7 @@ pub fn write_outputs(study: &Study, ing: &Ingested) -> Result<Vec<PathBuf>> {
 
 /// Read a `readings.parquet` written by [`write_outputs`], checking its columns.
 pub fn read_readings(path: &Path) -> Result<DataFrame> {
-    let f = std::fs::File::open(path).map_err(|source| IoError::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    let f = std::fs::File::open(path).map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
     let df = ParquetReader::new(f).finish().map_err(|e| IoError::Table {
         path: path.to_path_buf(),
         message: format!("not a readable parquet file: {e}"),
@@ -581,13 +577,18 @@ pub fn read_readings(path: &Path) -> Result<DataFrame> {
             Ok(c) => {
                 return Err(IoError::Table {
                     path: path.to_path_buf(),
-                    message: format!("column `{name}` is {} where {dt} is expected (run `potclim ingest` again)", c.dtype()),
+                    message: format!(
+                        "column `{name}` is {} where {dt} is expected (run `potclim ingest` again)",
+                        c.dtype()
+                    ),
                 });
             }
             Err(_) => {
                 return Err(IoError::Table {
                     path: path.to_path_buf(),
-                    message: format!("no column `{name}`; this is not a readings table written by `potclim ingest`"),
+                    message: format!(
+                        "no column `{name}`; this is not a readings table written by `potclim ingest`"
+                    ),
                 });
             }
         }
@@ -600,14 +601,7 @@ mod tests {
     use super::*;
 
     fn row(t: i64, v: [f64; 3], line: u32) -> Row {
-        Row {
-            time: t,
-            values: v,
-            line,
-            sensor: 0,
-            file: 0,
-            flagged: false,
-        }
+        Row { time: t, values: v, line, sensor: 0, file: 0, flagged: false }
     }
 
     #[test]
@@ -624,7 +618,8 @@ mod tests {
         let q = QcSettings::default();
         let mut flags = Vec::new();
         value_rules(&mut seg, &q, &mut flags);
-        let reasons: Vec<(u32, Reason, &str)> = flags.iter().map(|f| (f.line, f.reason, f.variable.name())).collect();
+        let reasons: Vec<(u32, Reason, &str)> =
+            flags.iter().map(|f| (f.line, f.reason, f.variable.name())).collect();
         assert!(reasons.contains(&(7, Reason::OutOfRange, "rh_pct")));
         assert!(reasons.contains(&(52, Reason::Spike, "temperature_c")));
         // RH constant at 60 for 10 h while temperature and light move: stuck.
@@ -637,25 +632,20 @@ mod tests {
     #[test]
     fn gaps_longer_than_twice_the_step() {
         let step = 600_000;
-        let mut seg: Vec<Row> = (0..20).map(|i| row(i64::from(i) * step, [20.0, f64::NAN, f64::NAN], 0)).collect();
+        let mut seg: Vec<Row> =
+            (0..20).map(|i| row(i64::from(i) * step, [20.0, f64::NAN, f64::NAN], 0)).collect();
         seg.drain(8..11); // readings 8, 9, 10 missing: 7 -> 11 is 4 steps
         seg[2].values[0] = f64::NAN; // one missing value: 1 -> 3 is 2 steps, not a gap
         let g = find_gaps(&seg, "S", 2.0, Period::default());
         assert_eq!(g.len(), 1);
         assert_eq!((g[0].from, g[0].to, g[0].step), (7 * step, 11 * step, step));
-        let p = Period {
-            start: Some(-5 * step),
-            end: Some(19 * step),
-        };
+        let p = Period { start: Some(-5 * step), end: Some(19 * step) };
         assert_eq!(find_gaps(&seg, "S", 2.0, p).len(), 2);
     }
 
     #[test]
     fn period_is_inclusive() {
-        let p = Period {
-            start: Some(10),
-            end: Some(20),
-        };
+        let p = Period { start: Some(10), end: Some(20) };
         assert!(p.contains(10) && p.contains(20) && !p.contains(9) && !p.contains(21));
         assert!(Period::default().contains(i64::MIN));
     }

@@ -81,7 +81,8 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
     let sensors = load_sensors(study)?;
     let period = study_period(study)?;
     let formats = compile_logs(study)?;
-    let known: BTreeSet<&str> = sensors.as_ref().map(|s| s.ids.iter().map(String::as_str).collect()).unwrap_or_default();
+    let known: BTreeSet<&str> =
+        sensors.as_ref().map(|s| s.ids.iter().map(String::as_str).collect()).unwrap_or_default();
     let mut logs = Vec::new();
     let mut unknown = BTreeSet::new();
     for fmt in &formats {
@@ -96,11 +97,12 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
 
     // Factor columns.
     let spec = &study.spec.pots;
-    let mut skip: BTreeSet<&str> = [Some(&spec.id), spec.x.as_ref(), spec.y.as_ref(), spec.start.as_ref(), spec.end.as_ref()]
-        .into_iter()
-        .flatten()
-        .map(String::as_str)
-        .collect();
+    let mut skip: BTreeSet<&str> =
+        [Some(&spec.id), spec.x.as_ref(), spec.y.as_ref(), spec.start.as_ref(), spec.end.as_ref()]
+            .into_iter()
+            .flatten()
+            .map(String::as_str)
+            .collect();
     if let Some(g) = &spec.grid {
         skip.extend([g.bench.as_str(), g.row.as_str(), g.slot.as_str()]);
     }
@@ -123,10 +125,7 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
         if counts.len() >= t.len() {
             continue; // a label per pot, not a factor
         }
-        factors.push(Factor {
-            name: h.clone(),
-            levels: counts.into_iter().collect(),
-        });
+        factors.push(Factor { name: h.clone(), levels: counts.into_iter().collect() });
         factor_cols.push(j);
     }
     let mut crosstabs = Vec::new();
@@ -162,10 +161,8 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
 
 /// Parse the header and the first and last [`SAMPLE_ROWS`] rows of an export.
 fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result<FileInventory> {
-    let bytes = std::fs::read(path).map_err(|source| super::error::IoError::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    let bytes = std::fs::read(path)
+        .map_err(|source| super::error::IoError::Read { path: path.to_path_buf(), source })?;
     // Split into physical lines, keeping offsets.
     let mut starts = vec![0usize];
     starts.extend(bytes.iter().enumerate().filter(|(_, c)| **c == b'\n').map(|(i, _)| i + 1));
@@ -184,7 +181,8 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
         read_bytes(fmt, path, 0, &bytes)?;
         unreachable!("an empty file is an error");
     };
-    let data: Vec<usize> = (header + 1..starts.len()).filter(|&i| !line_text(i).trim_ascii().is_empty()).collect();
+    let data: Vec<usize> =
+        (header + 1..starts.len()).filter(|&i| !line_text(i).trim_ascii().is_empty()).collect();
     let head_end = data.get(SAMPLE_ROWS).map(|&i| starts[i]).unwrap_or(bytes.len());
     let mut seen = BTreeSet::new();
     let mut span: Option<(i64, i64)> = None;

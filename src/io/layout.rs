@@ -157,14 +157,7 @@ pub fn load_pots(study: &Study) -> Result<Pots> {
             }
         }
     }
-    Ok(Pots {
-        ids,
-        x,
-        y,
-        start,
-        end,
-        table,
-    })
+    Ok(Pots { ids, x, y, start, end, table })
 }
 
 /// Read the sensor table named by `[sensors]`; `None` when there is none.
@@ -238,9 +231,6 @@ mod tests {
         );
         let e = load_pots(&st).unwrap_err().to_string();
         assert!(e.contains(":3:") && e.contains("ends before"), "{e}");
-        assert_eq!(
-            parse_local_datetime("2026-04-01 12:00").unwrap().to_string(),
-            "2026-04-01 12:00:00"
-        );
+        assert_eq!(parse_local_datetime("2026-04-01 12:00").unwrap().to_string(), "2026-04-01 12:00:00");
     }
 }

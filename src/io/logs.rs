@@ -150,7 +150,10 @@ fn compile_block(
         study.invalid(
             &key("time_format"),
             m,
-            Some("use a chrono strftime pattern such as \"%Y-%m-%d %H:%M:%S\", or \"rfc3339\", or \"unix\"".into()),
+            Some(
+                "use a chrono strftime pattern such as \"%Y-%m-%d %H:%M:%S\", or \"rfc3339\", or \"unix\""
+                    .into(),
+            ),
         )
     })?;
     let timezone = match &log.timezone {
@@ -171,16 +174,12 @@ fn compile_block(
                     Some(s) => format!("did you mean `{s}`? the units of {ch} are {}", names.join(", ")),
                     None => format!("the units of {ch} are {}", names.join(", ")),
                 };
-                let message = format!("`logs[{}].columns.{ch}.unit`: unknown unit `{}` ({hint})", i + 1, cc.unit);
+                let message =
+                    format!("`logs[{}].columns.{ch}.unit`: unknown unit `{}` ({hint})", i + 1, cc.unit);
                 match spans.and_then(|s| s[ch.index()].clone()) {
                     Some(span) => {
                         let (line, column) = super::study::line_col(&study.source, span.start);
-                        IoError::Toml {
-                            path: study.path.clone(),
-                            line,
-                            column,
-                            message,
-                        }
+                        IoError::Toml { path: study.path.clone(), line, column, message }
                     }
                     None => study.invalid(&key(&format!("columns.{ch}.unit")), message, None),
                 }
@@ -210,7 +209,10 @@ fn compile_block(
             return Err(study.invalid(
                 &key("files"),
                 format!("`{pat}` matches no file (looked for {})", full.display()),
-                Some("paths are relative to the folder of the study file; check the spelling and extension".into()),
+                Some(
+                    "paths are relative to the folder of the study file; check the spelling and extension"
+                        .into(),
+                ),
             ));
         }
     }
@@ -315,7 +317,10 @@ fn trim(b: &[u8]) -> &[u8] {
 }
 
 fn is_missing(b: &[u8]) -> bool {
-    b.is_empty() || b.eq_ignore_ascii_case(b"na") || b.eq_ignore_ascii_case(b"nan") || b.eq_ignore_ascii_case(b"null")
+    b.is_empty()
+        || b.eq_ignore_ascii_case(b"na")
+        || b.eq_ignore_ascii_case(b"nan")
+        || b.eq_ignore_ascii_case(b"null")
 }
 
 struct Failures {
@@ -326,11 +331,7 @@ struct Failures {
 
 impl Failures {
     fn new() -> Failures {
-        Failures {
-            count: 0,
-            tried: 0,
-            first: None,
-        }
+        Failures { count: 0, tried: 0, first: None }
     }
     fn fail(&mut self, line: u32, v: &[u8]) {
         self.count += 1;
@@ -345,10 +346,7 @@ impl Failures {
 
 /// Read one export of format `fmt`. `file` is its index in the run.
 pub fn read_file(fmt: &LogFormat, path: &Path, file: u32) -> Result<FileRead> {
-    let bytes = std::fs::read(path).map_err(|source| IoError::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    let bytes = std::fs::read(path).map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
     read_bytes(fmt, path, file, &bytes)
 }
 
@@ -566,14 +564,7 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
                 }
             }
         }
-        out.rows.push(Row {
-            time: utc,
-            values,
-            line,
-            sensor,
-            file,
-            flagged,
-        });
+        out.rows.push(Row { time: utc, values, line, sensor, file, flagged });
     }
     if out.rows_read == 0 {
         return Err(IoError::Empty {
@@ -626,7 +617,14 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
 mod tests {
     use super::*;
 
-    fn fmt(delim: u8, comma: bool, pattern: &str, tz: chrono_tz::Tz, sensor: SensorSource, skip: usize) -> LogFormat {
+    fn fmt(
+        delim: u8,
+        comma: bool,
+        pattern: &str,
+        tz: chrono_tz::Tz,
+        sensor: SensorSource,
+        skip: usize,
+    ) -> LogFormat {
         LogFormat {
             block: 1,
             delimiter: delim,
@@ -671,7 +669,8 @@ mod tests {
         let text = "id,time,temp,rh\nA,2026-03-01 00:00,60,50\nA,2026-03-01 00:05,6O,50\nA,yesterday,60,50\nA,2026-03-01 00:15,61\n,2026-03-01 00:20,60,50\nB,2026-03-01 00:20,60,50\n";
         let r = read_bytes(&f, Path::new("x.csv"), 3, text.as_bytes()).unwrap();
         assert_eq!(r.rows_read, 6);
-        let got: Vec<(u32, Reason, &str)> = r.flags.iter().map(|f| (f.line, f.reason, f.variable.name())).collect();
+        let got: Vec<(u32, Reason, &str)> =
+            r.flags.iter().map(|f| (f.line, f.reason, f.variable.name())).collect();
         assert_eq!(
             got,
             vec![
@@ -692,7 +691,10 @@ mod tests {
         let f = fmt(b',', false, "%Y-%m-%d %H:%M", chrono_tz::UTC, SensorSource::FileStem, 0);
         let text = "time,temp,rh\n01/03/2026 00:00,60,50\n01/03/2026 00:05,60,50\n";
         let e = read_bytes(&f, Path::new("x.csv"), 0, text.as_bytes()).unwrap_err().to_string();
-        assert!(e.contains("x.csv:2") && e.contains("01/03/2026 00:00") && e.contains("%Y-%m-%d %H:%M"), "{e}");
+        assert!(
+            e.contains("x.csv:2") && e.contains("01/03/2026 00:00") && e.contains("%Y-%m-%d %H:%M"),
+            "{e}"
+        );
     }
 
     #[test]
@@ -701,12 +703,19 @@ mod tests {
         let text = "time;temp;rh\n2026-03-01 00:00;60,5;50,1\n";
         let e = read_bytes(&f, Path::new("x.csv"), 0, text.as_bytes()).unwrap_err().to_string();
         assert!(e.contains("x.csv:2") && e.contains("60,5") && e.contains("decimal"), "{e}");
-        let e = read_bytes(&f, Path::new("x.csv"), 0, b"time;tmp;rh\n2026-03-01 00:00;1;2\n").unwrap_err().to_string();
+        let e = read_bytes(&f, Path::new("x.csv"), 0, b"time;tmp;rh\n2026-03-01 00:00;1;2\n")
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("x.csv:1") && e.contains("did you mean `tmp`"), "{e}");
-        let e = read_bytes(&f, Path::new("x.csv"), 0, b"time,temp,rh\n2026-03-01 00:00,1,2\n").unwrap_err().to_string();
+        let e = read_bytes(&f, Path::new("x.csv"), 0, b"time,temp,rh\n2026-03-01 00:00,1,2\n")
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("delimiter"), "{e}");
         assert!(matches!(read_bytes(&f, Path::new("x.csv"), 0, b""), Err(IoError::Empty { .. })));
-        assert!(matches!(read_bytes(&f, Path::new("x.csv"), 0, b"time;temp;rh\n"), Err(IoError::Empty { .. })));
+        assert!(matches!(
+            read_bytes(&f, Path::new("x.csv"), 0, b"time;temp;rh\n"),
+            Err(IoError::Empty { .. })
+        ));
     }
 
     #[test]

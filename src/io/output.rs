@@ -21,24 +21,14 @@ impl StageWriter {
     /// Create the output folder if needed and a fresh staging folder in it,
     /// named after the stage.
     pub fn new(out: &Path, stage: &str) -> Result<StageWriter> {
-        std::fs::create_dir_all(out).map_err(|source| IoError::Read {
-            path: out.to_path_buf(),
-            source,
-        })?;
+        std::fs::create_dir_all(out).map_err(|source| IoError::Read { path: out.to_path_buf(), source })?;
         let staging = out.join(format!(".{stage}.partial-{}", std::process::id()));
         if staging.exists() {
             let _ = std::fs::remove_dir_all(&staging);
         }
-        std::fs::create_dir_all(&staging).map_err(|source| IoError::Read {
-            path: staging.clone(),
-            source,
-        })?;
-        Ok(StageWriter {
-            out: out.to_path_buf(),
-            staging,
-            files: Vec::new(),
-            committed: false,
-        })
+        std::fs::create_dir_all(&staging)
+            .map_err(|source| IoError::Read { path: staging.clone(), source })?;
+        Ok(StageWriter { out: out.to_path_buf(), staging, files: Vec::new(), committed: false })
     }
 
     /// The staging path for output file `name` (a plain file name, or a
@@ -80,10 +70,8 @@ impl StageWriter {
             }
             let to = self.out.join(name);
             if let Some(parent) = to.parent() {
-                std::fs::create_dir_all(parent).map_err(|source| IoError::Read {
-                    path: parent.to_path_buf(),
-                    source,
-                })?;
+                std::fs::create_dir_all(parent)
+                    .map_err(|source| IoError::Read { path: parent.to_path_buf(), source })?;
             }
             std::fs::rename(&from, &to).map_err(|source| IoError::Read { path: to.clone(), source })?;
             published.push(to);

@@ -363,10 +363,7 @@ mod tests {
     fn settings_default_and_check() {
         let q = QcSettings::default();
         assert!(q.check().is_ok());
-        let bad = QcSettings {
-            rh_max_pct: -1.0,
-            ..QcSettings::default()
-        };
+        let bad = QcSettings { rh_max_pct: -1.0, ..QcSettings::default() };
         assert_eq!(bad.check().unwrap_err().0, "qc.rh_min_pct");
         let parsed: QcSettings = toml::from_str("stuck_hours = 2.5\n").unwrap();
         assert_eq!(parsed.stuck_hours, 2.5);

@@ -247,10 +247,8 @@ pub struct Study {
 impl Study {
     /// Read and validate a study file.
     pub fn load(path: &Path) -> Result<Study> {
-        let source = std::fs::read_to_string(path).map_err(|source| IoError::Read {
-            path: path.to_path_buf(),
-            source,
-        })?;
+        let source = std::fs::read_to_string(path)
+            .map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
         Study::from_source(path, source)
     }
 
@@ -264,13 +262,7 @@ impl Study {
             .unwrap_or(Path::new("."))
             .to_path_buf();
         let timezone = parse_timezone(path, "study.timezone", &spec.study.timezone)?;
-        let study = Study {
-            path: path.to_path_buf(),
-            dir,
-            source,
-            spec,
-            timezone,
-        };
+        let study = Study { path: path.to_path_buf(), dir, source, spec, timezone };
         study.validate()?;
         Ok(study)
     }
@@ -301,12 +293,7 @@ impl Study {
 
     /// An [`IoError::Invalid`] about key `key` of this study file.
     pub fn invalid(&self, key: &str, message: impl Into<String>, hint: Option<String>) -> IoError {
-        IoError::Invalid {
-            path: self.path.clone(),
-            key: key.to_string(),
-            message: message.into(),
-            hint,
-        }
+        IoError::Invalid { path: self.path.clone(), key: key.to_string(), message: message.into(), hint }
     }
 
     fn validate(&self) -> Result<()> {
@@ -314,14 +301,14 @@ impl Study {
         if s.study.output.trim().is_empty() {
             return Err(self.invalid("study.output", "must name a folder", None));
         }
-        if let Some(c) = s.compartment {
-            if !(c.length.is_finite() && c.length > 0.0 && c.width.is_finite() && c.width > 0.0) {
-                return Err(self.invalid(
-                    "compartment",
-                    format!("length and width must be positive metres, got {} x {}", c.length, c.width),
-                    None,
-                ));
-            }
+        if let Some(c) = s.compartment
+            && !(c.length.is_finite() && c.length > 0.0 && c.width.is_finite() && c.width > 0.0)
+        {
+            return Err(self.invalid(
+                "compartment",
+                format!("length and width must be positive metres, got {} x {}", c.length, c.width),
+                None,
+            ));
         }
         s.qc.check().map_err(|(key, m)| self.invalid(&key, m, None))?;
         let p = &s.pots;
@@ -343,9 +330,15 @@ impl Study {
             }
         }
         if let Some(g) = &p.grid {
-            for (k, v) in [("bench_pitch", g.bench_pitch), ("row_pitch", g.row_pitch), ("slot_pitch", g.slot_pitch)] {
+            for (k, v) in
+                [("bench_pitch", g.bench_pitch), ("row_pitch", g.row_pitch), ("slot_pitch", g.slot_pitch)]
+            {
                 if !(v.is_finite() && v >= 0.0) {
-                    return Err(self.invalid(&format!("pots.grid.{k}"), format!("must be a non-negative number of metres, got {v}"), None));
+                    return Err(self.invalid(
+                        &format!("pots.grid.{k}"),
+                        format!("must be a non-negative number of metres, got {v}"),
+                        None,
+                    ));
                 }
             }
         }
@@ -365,7 +358,11 @@ impl Study {
                     ));
                 }
                 (Some(_), Some(_)) => {
-                    return Err(self.invalid(&key("sensor"), "give `sensor` or `sensor_from`, not both", None));
+                    return Err(self.invalid(
+                        &key("sensor"),
+                        "give `sensor` or `sensor_from`, not both",
+                        None,
+                    ));
                 }
                 (None, None) => {
                     return Err(self.invalid(
@@ -378,15 +375,23 @@ impl Study {
             if let Some(tz) = &log.timezone {
                 parse_timezone(&self.path, &key("timezone"), tz)?;
             }
-            if let Some(d) = &log.decimal {
-                if d != "." && d != "," {
-                    return Err(self.invalid(&key("decimal"), format!("must be \".\" or \",\", got {d:?}"), None));
-                }
+            if let Some(d) = &log.decimal
+                && d != "."
+                && d != ","
+            {
+                return Err(self.invalid(
+                    &key("decimal"),
+                    format!("must be \".\" or \",\", got {d:?}"),
+                    None,
+                ));
             }
             if let Some(d) = &log.delimiter {
                 delimiter_byte(d).map_err(|m| self.invalid(&key("delimiter"), m, None))?;
             }
-            if log.columns.temperature.is_none() && log.columns.humidity.is_none() && log.columns.light.is_none() {
+            if log.columns.temperature.is_none()
+                && log.columns.humidity.is_none()
+                && log.columns.light.is_none()
+            {
                 return Err(self.invalid(
                     &key("columns"),
                     "maps no channel",
@@ -405,13 +410,21 @@ impl Study {
         for (i, o) in s.openings.iter().enumerate() {
             let key = format!("openings[{}].name", i + 1);
             if o.name.is_empty() || !o.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_') {
-                return Err(self.invalid(&key, format!("`{}` must be letters, digits and `_`", o.name), None));
+                return Err(self.invalid(
+                    &key,
+                    format!("`{}` must be letters, digits and `_`", o.name),
+                    None,
+                ));
             }
             if !seen.insert(o.name.clone()) {
                 return Err(self.invalid(&key, format!("`{}` is used twice", o.name), None));
             }
             if !o.from.iter().chain(o.to.iter()).all(|v| v.is_finite()) {
-                return Err(self.invalid(&format!("openings[{}]", i + 1), "coordinates must be finite numbers", None));
+                return Err(self.invalid(
+                    &format!("openings[{}]", i + 1),
+                    "coordinates must be finite numbers",
+                    None,
+                ));
             }
         }
         Ok(())
@@ -449,12 +462,7 @@ pub fn toml_error(path: &Path, source: &str, e: &toml::de::Error) -> IoError {
         Some(span) => line_col(source, span.start),
         None => (1, 1),
     };
-    IoError::Toml {
-        path: path.to_path_buf(),
-        line,
-        column,
-        message: e.message().trim().to_string(),
-    }
+    IoError::Toml { path: path.to_path_buf(), line, column, message: e.message().trim().to_string() }
 }
 
 /// 1-based line and column (in characters) of byte offset `offset`.

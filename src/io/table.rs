@@ -24,10 +24,8 @@ impl Table {
     /// Read a table with a header row. Blank lines are skipped (they are not
     /// data); a row with the wrong number of fields is an error naming its line.
     pub fn read(path: &Path, delimiter: u8) -> Result<Table> {
-        let bytes = std::fs::read(path).map_err(|source| IoError::Read {
-            path: path.to_path_buf(),
-            source,
-        })?;
+        let bytes =
+            std::fs::read(path).map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
         let mut counter = LineCounter::new(&bytes);
         let mut rdr = csv::ReaderBuilder::new()
             .delimiter(delimiter)
@@ -75,13 +73,7 @@ impl Table {
                 hint: Some("only a header line was found".into()),
             });
         }
-        Ok(Table {
-            path: path.to_path_buf(),
-            headers,
-            header_line,
-            rows,
-            lines,
-        })
+        Ok(Table { path: path.to_path_buf(), headers, header_line, rows, lines })
     }
 
     /// Index of column `name`, or an error listing the header and suggesting
@@ -156,7 +148,14 @@ impl Table {
     }
 
     /// An [`IoError::BadValue`] for this table.
-    pub fn bad(&self, line: usize, column: &str, value: &str, message: &str, hint: Option<String>) -> IoError {
+    pub fn bad(
+        &self,
+        line: usize,
+        column: &str,
+        value: &str,
+        message: &str,
+        hint: Option<String>,
+    ) -> IoError {
         IoError::BadValue {
             path: self.path.clone(),
             line,
@@ -213,16 +212,16 @@ impl<'a> LineCounter<'a> {
 /// Cells that mean "no value": empty, `NA`, `NaN`, `null` (any case).
 pub fn is_missing(v: &str) -> bool {
     let t = v.trim();
-    t.is_empty() || t.eq_ignore_ascii_case("na") || t.eq_ignore_ascii_case("nan") || t.eq_ignore_ascii_case("null")
+    t.is_empty()
+        || t.eq_ignore_ascii_case("na")
+        || t.eq_ignore_ascii_case("nan")
+        || t.eq_ignore_ascii_case("null")
 }
 
 fn csv_error(path: &Path, e: csv::Error) -> IoError {
     let line = e.position().map(|p| p.line());
     match e.into_kind() {
-        csv::ErrorKind::Io(source) => IoError::Read {
-            path: path.to_path_buf(),
-            source,
-        },
+        csv::ErrorKind::Io(source) => IoError::Read { path: path.to_path_buf(), source },
         kind => IoError::Table {
             path: path.to_path_buf(),
             message: match line {

@@ -77,10 +77,7 @@ impl Family {
                 )),
             };
         }
-        Err(format!(
-            "unknown correlation family `{name}`; expected one of: {}",
-            Family::NAMES.join(", ")
-        ))
+        Err(format!("unknown correlation family `{name}`; expected one of: {}", Family::NAMES.join(", ")))
     }
 
     /// The canonical name, which [`Family::parse`] reads back.
@@ -273,9 +270,8 @@ mod tests {
             for &h in &[1e-4, 0.01, 0.3, 1.0, 2.0, 5.0, 20.0] {
                 let closed = Family::Matern { nu }.correlation(h, 1.0);
                 let s = (2.0 * nu).sqrt() * h;
-                let via_k = (2f64).powf(1.0 - nu) / statrs::function::gamma::gamma(nu)
-                    * s.powf(nu)
-                    * bessel_k(nu, s);
+                let via_k =
+                    (2f64).powf(1.0 - nu) / statrs::function::gamma::gamma(nu) * s.powf(nu) * bessel_k(nu, s);
                 assert_relative_eq!(closed, via_k, max_relative = 1e-8, epsilon = 1e-300);
             }
         }
