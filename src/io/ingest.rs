@@ -287,19 +287,44 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
     }
     rows.truncate(w);
 
-    // Value rules per sensor.
-    let mut gaps = Vec::new();
-    let mut a = 0;
-    while a < rows.len() {
-        let mut b = a;
-        while b < rows.len() && rows[b].sensor == rows[a].sensor {
-            b += 1;
-        }
-        let seg = &mut rows[a..b];
-        value_rules(seg, settings, &mut flags);
-        gaps.extend(find_gaps(seg, &sensors[seg[0].sensor as usize], settings.gap_factor, period));
-        a = b;
+    // Value rules and gaps per sensor, sensors spread over the cores.
+    let mut segs: Vec<&mut [Row]> = Vec::new();
+    let mut rest: &mut [Row] = &mut rows;
+    while !rest.is_empty() {
+        let s0 = rest[0].sensor;
+        let n = rest.iter().position(|r| r.sensor != s0).unwrap_or(rest.len());
+        let (seg, tail) = std::mem::take(&mut rest).split_at_mut(n);
+        segs.push(seg);
+        rest = tail;
     }
+    let workers = std::thread::available_parallelism().map(|x| x.get()).unwrap_or(1).min(segs.len()).max(1);
+    let mut buckets: Vec<Vec<&mut [Row]>> = (0..workers).map(|_| Vec::new()).collect();
+    for (i, seg) in segs.into_iter().enumerate() {
+        buckets[i % workers].push(seg);
+    }
+    let names = &sensors;
+    let results: Vec<(Vec<Flag>, Vec<Gap>)> = std::thread::scope(|sc| {
+        let handles: Vec<_> = buckets
+            .into_iter()
+            .map(|bucket| {
+                sc.spawn(move || {
+                    let (mut f, mut g) = (Vec::new(), Vec::new());
+                    for seg in bucket {
+                        value_rules(seg, settings, &mut f);
+                        g.extend(find_gaps(seg, &names[seg[0].sensor as usize], settings.gap_factor, period));
+                    }
+                    (f, g)
+                })
+            })
+            .collect();
+        handles.into_iter().map(|h| h.join().unwrap_or_else(|e| std::panic::resume_unwind(e))).collect()
+    });
+    let mut gaps = Vec::new();
+    for (f, g) in results {
+        flags.extend(f);
+        gaps.extend(g);
+    }
+    gaps.sort_by(|a, b| (&a.sensor, a.channel, a.from).cmp(&(&b.sensor, b.channel, b.from)));
 
     // Accounting.
     flags.sort_by_key(|x| (x.file, x.line, x.variable, x.reason));
@@ -454,10 +479,17 @@ fn find_gaps(seg: &[Row], sensor: &str, factor: f64, period: Period) -> Vec<Gap>
 }
 
 fn readings_frame(rows: &[Row], sensors: &[String]) -> PolarsResult<DataFrame> {
-    let sensor = StringChunked::from_iter_values(
-        "sensor".into(),
-        rows.iter().map(|r| sensors[r.sensor as usize].as_str()),
-    );
+    // Rows come in runs of one sensor: one repeated value per run (cheap in
+    // polars' string-view layout), concatenated.
+    let mut sensor = StringChunked::full("sensor".into(), "", 0);
+    let mut a = 0;
+    while a < rows.len() {
+        let s = rows[a].sensor;
+        let n = rows[a..].iter().position(|r| r.sensor != s).unwrap_or(rows.len() - a);
+        sensor.append(&StringChunked::full("sensor".into(), &sensors[s as usize], n))?;
+        a += n;
+    }
+    let sensor = sensor.rechunk().into_owned();
     let time = Int64Chunked::from_vec("time".into(), rows.iter().map(|r| r.time).collect())
         .into_datetime(TimeUnit::Milliseconds, Some(TimeZone::UTC));
     let mut cols: Vec<Column> = vec![sensor.into_series().into(), time.into_series().into()];
