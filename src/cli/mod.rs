@@ -8,6 +8,10 @@ mod simulate;
 
 use clap::{Parser, Subcommand};
 
+mod check;
+mod ingest;
+mod init;
+
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
 #[command(name = "potclim", version, about, long_about = None)]
@@ -23,6 +27,15 @@ pub enum Command {
     /// Write a synthetic study with known truth from a scenario file.
     #[command(long_about = simulate::LONG_ABOUT)]
     Simulate(simulate::SimulateArgs),
+    /// Write a commented study-file template to start a new analysis.
+    #[command(long_about = init::HELP)]
+    Init(init::InitArgs),
+    /// Validate every input of a study and print a short inventory.
+    #[command(long_about = check::HELP)]
+    Check(check::CheckArgs),
+    /// Merge and clean the logger exports into one audited table of readings.
+    #[command(long_about = ingest::HELP)]
+    Ingest(ingest::IngestArgs),
 }
 
 /// Run the command line and return the process exit code.
@@ -48,5 +61,8 @@ pub fn main_entry() -> i32 {
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Simulate(a) => simulate::run(a),
+        Command::Init(a) => init::run(a),
+        Command::Check(a) => check::run(a),
+        Command::Ingest(a) => ingest::run(a),
     }
 }

@@ -38,7 +38,7 @@ pub struct StudySpec {
     pub openings: Vec<Opening>,
     /// `[qc]`: thresholds of the quality-control rules (see `io::qc`).
     #[serde(default)]
-    pub qc: Option<toml::Table>,
+    pub qc: super::qc::QcSettings,
     /// Owned by `climate`.
     #[serde(default)]
     pub climate: Option<toml::Table>,
@@ -310,6 +310,7 @@ impl Study {
                 None,
             ));
         }
+        s.qc.check().map_err(|(key, m)| self.invalid(&key, m, None))?;
         let p = &s.pots;
         match (&p.x, &p.y, &p.grid) {
             (Some(_), Some(_), None) | (None, None, Some(_)) => {}

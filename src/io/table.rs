@@ -26,19 +26,7 @@ impl Table {
     pub fn read(path: &Path, delimiter: u8) -> Result<Table> {
         let bytes =
             std::fs::read(path).map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
-        // Physical line numbers come from byte offsets: the csv crate's own line
-        // counter does not count the blank lines it skips.
-        let line_starts: Vec<usize> = std::iter::once(0)
-            .chain(bytes.iter().enumerate().filter(|(_, b)| **b == b'\n').map(|(i, _)| i + 1))
-            .collect();
-        // A record's byte position may point at blank lines skipped before it.
-        let line_of = |byte: u64| {
-            let mut b = byte as usize;
-            while b < bytes.len() && (bytes[b] == b'\n' || bytes[b] == b'\r') {
-                b += 1;
-            }
-            line_starts.partition_point(|&s| s <= b)
-        };
+        let mut counter = LineCounter::new(&bytes);
         let mut rdr = csv::ReaderBuilder::new()
             .delimiter(delimiter)
             .has_headers(false)
@@ -49,7 +37,7 @@ impl Table {
         let mut lines = Vec::new();
         for rec in rdr.records() {
             let rec = rec.map_err(|e| csv_error(path, e))?;
-            let line = rec.position().map(|p| line_of(p.byte())).unwrap_or(0);
+            let line = counter.line_of_record(&rec) as usize;
             if rec.iter().all(|c| c.trim().is_empty()) {
                 continue;
             }
@@ -176,6 +164,48 @@ impl Table {
             message: message.to_string(),
             hint,
         }
+    }
+}
+
+/// Physical line numbers of csv records. The csv crate's own positions do
+/// not count the blank lines it skips, so lines are counted here from the
+/// bytes: O(file size) over the whole file.
+pub struct LineCounter<'a> {
+    bytes: &'a [u8],
+    byte: usize,
+    line: u64,
+}
+
+impl<'a> LineCounter<'a> {
+    /// A counter over the bytes the csv reader reads.
+    pub fn new(bytes: &'a [u8]) -> LineCounter<'a> {
+        LineCounter { bytes, byte: 0, line: 1 }
+    }
+
+    /// 1-based line of the record's first byte; records must come in order.
+    pub fn line_of(&mut self, rec: &csv::ByteRecord) -> u64 {
+        let b = rec.position().map(|p| p.byte() as usize).unwrap_or(self.byte);
+        self.advance(b)
+    }
+
+    /// [`LineCounter::line_of`] for a string record.
+    pub fn line_of_record(&mut self, rec: &csv::StringRecord) -> u64 {
+        let b = rec.position().map(|p| p.byte() as usize).unwrap_or(self.byte);
+        self.advance(b)
+    }
+
+    fn advance(&mut self, b: usize) -> u64 {
+        // The reported position is where the reader started, before any
+        // blank lines it skipped: step over them to the record's first byte.
+        let mut b = b.min(self.bytes.len());
+        while b < self.bytes.len() && (self.bytes[b] == b'\n' || self.bytes[b] == b'\r') {
+            b += 1;
+        }
+        if b > self.byte {
+            self.line += self.bytes[self.byte..b].iter().filter(|&&c| c == b'\n').count() as u64;
+            self.byte = b;
+        }
+        self.line
     }
 }
 

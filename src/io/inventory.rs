@@ -1,0 +1,216 @@
+//! The inventory behind `potclim check`: every input is opened and validated
+//! (study file, pot table, sensor table, every logger export's header, time
+//! pattern and units), but logger files are only sampled — their first and
+//! last rows are parsed and their lines counted — so that checking a study is
+//! quick even when ingesting it is not.
+
+use super::error::Result;
+use super::ingest::{Period, display_name, study_period};
+use super::layout::{load_pots, load_sensors};
+use super::logs::{LogFormat, compile_logs, read_bytes};
+use super::study::Study;
+use super::table::is_missing;
+use std::collections::{BTreeMap, BTreeSet};
+
+/// Data rows parsed at the start and at the end of each export.
+const SAMPLE_ROWS: usize = 200;
+
+/// One export, sampled.
+#[derive(Debug, Clone)]
+pub struct FileInventory {
+    /// Name relative to the study folder.
+    pub name: String,
+    /// Non-blank lines after the header (data rows, unless quoted fields
+    /// span lines).
+    pub lines: usize,
+    /// Earliest and latest instant among the sampled rows (UTC ms).
+    pub span: Option<(i64, i64)>,
+    /// Sensor ids seen in the sampled rows.
+    pub sensors: BTreeSet<String>,
+    /// Flags raised on the sampled rows.
+    pub sample_flags: usize,
+}
+
+/// The counts of one factor column of the pot table.
+#[derive(Debug, Clone)]
+pub struct Factor {
+    /// Column name.
+    pub name: String,
+    /// Levels (sorted) with their pot counts.
+    pub levels: Vec<(String, usize)>,
+}
+
+/// Pots per combination of levels of two factors.
+#[derive(Debug, Clone)]
+pub struct CrossTab {
+    /// Row factor.
+    pub rows: String,
+    /// Column factor.
+    pub cols: String,
+    /// Row levels.
+    pub row_levels: Vec<String>,
+    /// Column levels.
+    pub col_levels: Vec<String>,
+    /// `counts[i][j]`: pots with row level i and column level j.
+    pub counts: Vec<Vec<usize>>,
+}
+
+/// What `potclim check` reports.
+#[derive(Debug, Clone)]
+pub struct Inventory {
+    /// Pots in the pot table.
+    pub pots: usize,
+    /// Sensors in the sensor table, if there is one.
+    pub sensors: Option<usize>,
+    /// Per `[[logs]]` block, its files.
+    pub logs: Vec<Vec<FileInventory>>,
+    /// Sensor ids seen in sampled log rows but absent from the sensor table.
+    pub unknown_sensors: BTreeSet<String>,
+    /// The pot table's factor columns: text columns other than id and
+    /// growth-window columns, with fewer levels than pots.
+    pub factors: Vec<Factor>,
+    /// Every pair of factors, crossed.
+    pub crosstabs: Vec<CrossTab>,
+    /// The study period of `[climate]`, if set.
+    pub period: Period,
+}
+
+/// Validate every input of `study` and take the inventory.
+pub fn inventory(study: &Study) -> Result<Inventory> {
+    let pots = load_pots(study)?;
+    let sensors = load_sensors(study)?;
+    let period = study_period(study)?;
+    let formats = compile_logs(study)?;
+    let known: BTreeSet<&str> =
+        sensors.as_ref().map(|s| s.ids.iter().map(String::as_str).collect()).unwrap_or_default();
+    let mut logs = Vec::new();
+    let mut unknown = BTreeSet::new();
+    for fmt in &formats {
+        let mut files = Vec::new();
+        for path in &fmt.files {
+            let inv = sample_file(study, fmt, path)?;
+            unknown.extend(inv.sensors.iter().filter(|s| !known.contains(s.as_str())).cloned());
+            files.push(inv);
+        }
+        logs.push(files);
+    }
+
+    // Factor columns.
+    let spec = &study.spec.pots;
+    let mut skip: BTreeSet<&str> =
+        [Some(&spec.id), spec.x.as_ref(), spec.y.as_ref(), spec.start.as_ref(), spec.end.as_ref()]
+            .into_iter()
+            .flatten()
+            .map(String::as_str)
+            .collect();
+    if let Some(g) = &spec.grid {
+        skip.extend([g.bench.as_str(), g.row.as_str(), g.slot.as_str()]);
+    }
+    let t = &pots.table;
+    let mut factors = Vec::new();
+    let mut factor_cols = Vec::new();
+    for (j, h) in t.headers.iter().enumerate() {
+        if skip.contains(h.as_str()) {
+            continue;
+        }
+        let cells: Vec<&str> = t.rows.iter().map(|r| r[j].as_str()).collect();
+        let numeric = cells.iter().all(|c| is_missing(c) || c.parse::<f64>().is_ok());
+        if numeric {
+            continue;
+        }
+        let mut counts: BTreeMap<String, usize> = BTreeMap::new();
+        for c in &cells {
+            *counts.entry(c.to_string()).or_default() += 1;
+        }
+        if counts.len() >= t.len() {
+            continue; // a label per pot, not a factor
+        }
+        factors.push(Factor { name: h.clone(), levels: counts.into_iter().collect() });
+        factor_cols.push(j);
+    }
+    let mut crosstabs = Vec::new();
+    for a in 0..factors.len() {
+        for b in a + 1..factors.len() {
+            let rl: Vec<String> = factors[a].levels.iter().map(|l| l.0.clone()).collect();
+            let cl: Vec<String> = factors[b].levels.iter().map(|l| l.0.clone()).collect();
+            let mut counts = vec![vec![0; cl.len()]; rl.len()];
+            for r in &t.rows {
+                let i = rl.iter().position(|l| *l == r[factor_cols[a]]).unwrap_or(0);
+                let j = cl.iter().position(|l| *l == r[factor_cols[b]]).unwrap_or(0);
+                counts[i][j] += 1;
+            }
+            crosstabs.push(CrossTab {
+                rows: factors[a].name.clone(),
+                cols: factors[b].name.clone(),
+                row_levels: rl,
+                col_levels: cl,
+                counts,
+            });
+        }
+    }
+    Ok(Inventory {
+        pots: pots.ids.len(),
+        sensors: sensors.map(|s| s.ids.len()),
+        logs,
+        unknown_sensors: unknown,
+        factors,
+        crosstabs,
+        period,
+    })
+}
+
+/// Parse the header and the first and last [`SAMPLE_ROWS`] rows of an export.
+fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result<FileInventory> {
+    let bytes = std::fs::read(path)
+        .map_err(|source| super::error::IoError::Read { path: path.to_path_buf(), source })?;
+    // Split into physical lines, keeping offsets.
+    let mut starts = vec![0usize];
+    starts.extend(bytes.iter().enumerate().filter(|(_, c)| **c == b'\n').map(|(i, _)| i + 1));
+    if *starts.last().unwrap_or(&0) >= bytes.len() {
+        starts.pop();
+    }
+    let line_text = |i: usize| -> &[u8] {
+        let a = starts[i];
+        let b = starts.get(i + 1).copied().unwrap_or(bytes.len());
+        &bytes[a..b]
+    };
+    let skip = fmt.skip_lines.min(starts.len());
+    let header = (skip..starts.len()).find(|&i| !line_text(i).trim_ascii().is_empty());
+    let Some(header) = header else {
+        // Let the reader produce its usual "empty" error.
+        read_bytes(fmt, path, 0, &bytes)?;
+        unreachable!("an empty file is an error");
+    };
+    let data: Vec<usize> =
+        (header + 1..starts.len()).filter(|&i| !line_text(i).trim_ascii().is_empty()).collect();
+    let head_end = data.get(SAMPLE_ROWS).map(|&i| starts[i]).unwrap_or(bytes.len());
+    let mut seen = BTreeSet::new();
+    let mut span: Option<(i64, i64)> = None;
+    let mut sample_flags = 0;
+    let mut take = |r: super::logs::FileRead| {
+        for row in &r.rows {
+            span = Some(match span {
+                None => (row.time, row.time),
+                Some((a, b)) => (a.min(row.time), b.max(row.time)),
+            });
+        }
+        sample_flags += r.flags.len();
+        seen.extend(r.sensors);
+    };
+    take(read_bytes(fmt, path, 0, &bytes[..head_end])?);
+    if data.len() > SAMPLE_ROWS {
+        // The tail, behind blank lines that keep its physical line numbers.
+        let tail_from = data[data.len() - SAMPLE_ROWS.min(data.len() - SAMPLE_ROWS)];
+        let mut tail = bytes[..starts[header + 1]].to_vec();
+        tail.extend(std::iter::repeat_n(b'\n', tail_from - header - 1));
+        tail.extend_from_slice(&bytes[starts[tail_from]..]);
+        take(read_bytes(fmt, path, 0, &tail)?);
+    }
+    Ok(FileInventory {
+        name: display_name(study, path),
+        lines: data.len(),
+        span,
+        sensors: seen,
+        sample_flags,
+    })
+}
