@@ -7,3 +7,4 @@
 //! [`crate::model`] (which shares [`correlation`]) and [`crate::simulate`].
 
 pub mod correlation;
+pub mod likelihood;
