@@ -341,7 +341,7 @@ pub fn fit_independent(design: &Design, y: &[f64], method: Method) -> Result<Fit
         n,
         p,
     };
-    Ok(assemble(design, y, method, Errors::Independent, &prof, (&beta_s, &inv_s), design.x.clone(), None))
+    Ok(assemble(design, y, method, Errors::Independent, &prof, (beta_s.as_slice(), inv_s.as_slice()), design.x.clone(), None))
 }
 
 /// Fit with spatially correlated errors: maximise the profiled likelihood of
@@ -350,6 +350,7 @@ pub fn fit_independent(design: &Design, y: &[f64], method: Method) -> Result<Fit
 ///
 /// `model` names the fit in error messages. Duplicate positions without a
 /// nugget are refused before the search with the pots named.
+#[allow(clippy::too_many_arguments)]
 pub fn fit_correlated(
     model: &str,
     design: &Design,
@@ -406,7 +407,7 @@ pub fn fit_correlated(
         method,
         Errors::Correlated { family, nugget },
         &prof,
-        (&prof_sum.beta, &prof_sum.xtvx_inv),
+        (prof_sum.beta.as_slice(), prof_sum.xtvx_inv.as_slice()),
         whitened_x,
         Some(search),
     ))

@@ -211,7 +211,7 @@ fn fill_lower(m: &mut Mat<f64>, dist: &Distances, p: &CovParams) {
     let fill_cols = |mut part: faer::MatMut<'_, f64>, j0: usize| {
         for jj in 0..part.ncols() {
             let j = j0 + jj;
-            let col = part.rb_mut().col_mut(jj).try_as_col_major_mut().expect("owned columns are contiguous").as_slice_mut();
+            let col = part.as_mut().col_mut(jj).try_as_col_major_mut().expect("owned columns are contiguous").as_slice_mut();
             col[j] = 1.0;
             for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
                 *c = (1.0 - p.eta) * p.family.correlation(dist.get(i, j), p.range);
@@ -506,6 +506,9 @@ pub struct SearchOptions {
     pub eta_max: f64,
     /// Number of best grid points to start the simplex from (default 3).
     pub starts: usize,
+    /// Further starts are used only when their grid log-likelihood is within
+    /// this much of the best grid point (default 10).
+    pub start_gap: f64,
     /// Maximum likelihood evaluations per simplex run (default 400).
     pub max_evals: usize,
     /// Convergence: spread of the simplex log-likelihoods (default 1e-9).
@@ -521,6 +524,7 @@ impl Default for SearchOptions {
             nugget: true,
             eta_max: 0.99,
             starts: 3,
+            start_gap: 10.0,
             max_evals: 400,
             f_tol: 1e-9,
             x_tol: 1e-7,
@@ -578,29 +582,36 @@ pub fn maximise(
     let dim = if opts.nugget { 2 } else { 1 };
     let box_lo = [lo.ln(), 0.0];
     let box_hi = [hi.ln(), eta_max];
-    let mut evaluations = 0usize;
-    let mut best: Option<Profiled> = None;
-    let mut first_error: Option<LikelihoodError> = None;
+    struct State {
+        evaluations: usize,
+        best: Option<Profiled>,
+        first_error: Option<LikelihoodError>,
+    }
+    let state = std::cell::RefCell::new(State {
+        evaluations: 0,
+        best: None,
+        first_error: None,
+    });
     let mut eval = |t: &[f64]| -> f64 {
-        evaluations += 1;
         let params = CovParams {
             family,
             range: t[0].exp(),
             eta: if dim == 2 { t[1] } else { 0.0 },
         };
-        match profiled(dist, &params, x, y, method) {
+        let result = profiled(dist, &params, x, y, method);
+        let mut st = state.borrow_mut();
+        st.evaluations += 1;
+        match result {
             Ok(p) => {
                 let v = p.loglik;
-                if best.as_ref().is_none_or(|b| v > b.loglik) {
-                    best = Some(p);
+                if st.best.as_ref().is_none_or(|b| v > b.loglik) {
+                    st.best = Some(p);
                 }
                 v
             }
             Err(e) => {
-                if let LikelihoodError::SingularDesign = e {
-                    first_error.get_or_insert(e);
-                } else if first_error.is_none() {
-                    first_error = Some(e);
+                if st.first_error.is_none() {
+                    st.first_error = Some(e);
                 }
                 f64::NEG_INFINITY
             }
@@ -620,14 +631,15 @@ pub fn maximise(
     }
     grid.sort_by(|a, b| b.1.total_cmp(&a.1));
     if !grid[0].1.is_finite() {
-        return Err(first_error.unwrap_or(LikelihoodError::Invalid("no start point has a finite likelihood".into())));
+        let e = state.borrow_mut().first_error.take();
+        return Err(e.unwrap_or(LikelihoodError::Invalid("no start point has a finite likelihood".into())));
     }
     let mut converged = true;
     let mut ends: Vec<(Vec<f64>, f64)> = Vec::new();
     let steps = [0.5f64, 0.15];
     let mut taken = 0;
     for (t0, v0) in grid.iter() {
-        if taken >= opts.starts.max(1) || !v0.is_finite() {
+        if taken >= opts.starts.max(1) || !v0.is_finite() || (taken > 0 && *v0 < grid[0].1 - opts.start_gap) {
             break;
         }
         if ends.iter().any(|(t, _)| (t[0] - t0[0]).abs() < 1e-9 && (dim == 1 || (t[1] - t0[1]).abs() < 1e-9)) {
@@ -636,8 +648,10 @@ pub fn maximise(
         taken += 1;
         let mut start = t0.clone();
         let mut fval = *v0;
-        for _round in 0..2 {
-            let r = nelder_mead_max(&mut eval, &start, &steps[..dim], &box_lo[..dim], &box_hi[..dim], opts);
+        for round in 0..2 {
+            let scale = if round == 0 { 1.0 } else { 0.1 };
+            let step: Vec<f64> = steps[..dim].iter().map(|s| s * scale).collect();
+            let r = nelder_mead_max(&mut eval, &start, &step, &box_lo[..dim], &box_hi[..dim], opts);
             start = r.0;
             fval = r.1;
             if !r.2 {
@@ -646,6 +660,7 @@ pub fn maximise(
         }
         ends.push((start, fval));
     }
+    let State { evaluations, best, .. } = state.into_inner();
     let best = best.expect("a finite grid point exists");
     ends.sort_by(|a, b| b.1.total_cmp(&a.1));
     let other_optimum = ends.iter().skip(1).find(|(t, v)| {

@@ -239,7 +239,7 @@ mo = esda.Moran(e, w, transformation="b", permutations=0)
 W = w.full()[0].astype(float); S0 = W.sum()
 M = np.eye(nm) - Xm @ np.linalg.solve(Xm.T @ Xm, Xm.T); MW = M @ W
 E = nm / S0 * np.trace(MW) / (nm - 3)
-Vr = (nm / S0) ** 2 * (np.trace(MW @ M @ W.T) + np.trace(MW @ MW) + np.trace(MW) ** 2) / ((nm - 3) * (nm - 5)) - E ** 2
+Vr = (nm / S0) ** 2 * (np.trace(MW @ M @ W.T) + np.trace(MW @ MW) + np.trace(MW) ** 2) / ((nm - 3) * (nm - 3 + 2)) - E ** 2
 M1 = np.eye(nm) - np.ones((nm, nm)) / nm; MW1 = M1 @ W
 E1 = nm / S0 * np.trace(MW1) / (nm - 1)
 V1 = (nm / S0) ** 2 * (np.trace(MW1 @ M1 @ W.T) + np.trace(MW1 @ MW1) + np.trace(MW1) ** 2) / ((nm - 1) * (nm + 1)) - E1 ** 2
