@@ -75,7 +75,8 @@ fn fit_writes_every_table() {
     assert!(spherical_nugget.iter().all(|r| r[9] == "10"));
     // AIC = -2 loglik + 2k on every row
     for r in &rows {
-        let (ll, aic, k): (f64, f64, f64) = (r[6].parse().unwrap(), r[7].parse().unwrap(), r[9].parse().unwrap());
+        let (ll, aic, k): (f64, f64, f64) =
+            (r[6].parse().unwrap(), r[7].parse().unwrap(), r[9].parse().unwrap());
         assert!((aic - (-2.0 * ll + 2.0 * k)).abs() < 1e-9);
     }
     let residuals = std::fs::read_to_string(out.join("residuals.csv")).unwrap();
@@ -87,13 +88,16 @@ fn fit_writes_every_table() {
     assert!(coef.contains("ols,OLS,accession[k2]:regime[full],"));
     assert!(out.join("diagnostics.csv").exists());
     // no staging folder left behind
-    assert!(std::fs::read_dir(&out).unwrap().all(|e| !e.unwrap().file_name().to_string_lossy().starts_with('.')));
+    assert!(
+        std::fs::read_dir(&out).unwrap().all(|e| !e.unwrap().file_name().to_string_lossy().starts_with('.'))
+    );
 }
 
 #[test]
 fn drivers_from_mapped_covariates() {
     let dir = tempfile::tempdir().unwrap();
-    let model = "trait = \"height\"\nfactors = [\"accession\"]\ndrivers = [\"cold_hours\"]\ncorrelations = []";
+    let model =
+        "trait = \"height\"\nfactors = [\"accession\"]\ndrivers = [\"cold_hours\"]\ncorrelations = []";
     let p = study(dir.path(), model, &pots_csv(false, height));
     // without the mapping output: a clear list of what is available
     let (ok, _, stderr) = run(&p);
@@ -102,7 +106,12 @@ fn drivers_from_mapped_covariates() {
     std::fs::create_dir_all(dir.path().join("out")).unwrap();
     let mut cov = String::from("pot,cold_hours,cold_hours_se,distance_door\n");
     for i in 0..48 {
-        cov.push_str(&format!("P{i:02},{},{},{}\n", 10.0 + (i % 8) as f64 * 0.7 + (i % 5) as f64 * 0.05, 0.3, i as f64 * 0.1));
+        cov.push_str(&format!(
+            "P{i:02},{},{},{}\n",
+            10.0 + (i % 8) as f64 * 0.7 + (i % 5) as f64 * 0.05,
+            0.3,
+            i as f64 * 0.1
+        ));
     }
     std::fs::write(dir.path().join("out/pot_covariates.csv"), cov).unwrap();
     let (ok, _, stderr) = run(&p);
@@ -125,7 +134,11 @@ fn fails_with(model: &str, pots: &str, needles: &[&str]) {
 
 #[test]
 fn trait_with_text_is_refused_with_its_line() {
-    fails_with(MODEL, &pots_csv(false, |i| if i == 5 { "tall".into() } else { height(i) }), &["pots.csv:7", "height", "tall"]);
+    fails_with(
+        MODEL,
+        &pots_csv(false, |i| if i == 5 { "tall".into() } else { height(i) }),
+        &["pots.csv:7", "height", "tall"],
+    );
 }
 
 #[test]
@@ -148,7 +161,8 @@ fn more_parameters_than_pots_is_refused() {
 
 #[test]
 fn duplicate_positions_without_nugget_name_the_pots_and_offer_the_nugget() {
-    let model = "trait = \"height\"\nfactors = [\"accession\"]\ncorrelations = [\"exponential\"]\nnugget = false";
+    let model =
+        "trait = \"height\"\nfactors = [\"accession\"]\ncorrelations = [\"exponential\"]\nnugget = false";
     fails_with(model, &pots_csv(true, height), &["`P00` and `P01`", "nugget = true"]);
     // with the nugget allowed, the fit runs and says what it skipped
     let dir = tempfile::tempdir().unwrap();
@@ -160,5 +174,9 @@ fn duplicate_positions_without_nugget_name_the_pots_and_offer_the_nugget() {
 
 #[test]
 fn unknown_model_key_is_refused_with_its_position() {
-    fails_with("trait = \"height\"\nfactor = [\"accession\"]", &pots_csv(false, height), &["study.toml:", "factor"]);
+    fails_with(
+        "trait = \"height\"\nfactor = [\"accession\"]",
+        &pots_csv(false, height),
+        &["study.toml:", "factor"],
+    );
 }

@@ -15,7 +15,8 @@ pub struct FitArgs {
 
 /// Run `potclim fit`.
 pub fn run(args: FitArgs) -> anyhow::Result<()> {
-    let study = crate::io::study::Study::load(&args.study).with_context(|| format!("loading {}", args.study.display()))?;
+    let study = crate::io::study::Study::load(&args.study)
+        .with_context(|| format!("loading {}", args.study.display()))?;
     let report = crate::model::stage::fit_study(&study)?;
     print_report(&report);
     let files = crate::model::stage::write_outputs(&study, &report)?;
@@ -52,7 +53,11 @@ mod potclim_model_print {
         }
         for t in &r.counts {
             println!();
-            println!("pots per cell: {} x {}", t.rows_name, if t.cols_name.is_empty() { "count" } else { &t.cols_name });
+            println!(
+                "pots per cell: {} x {}",
+                t.rows_name,
+                if t.cols_name.is_empty() { "count" } else { &t.cols_name }
+            );
             print!("{:>14}", "");
             for c in &t.cols {
                 print!(" {c:>10}");
@@ -68,10 +73,23 @@ mod potclim_model_print {
         }
         let o = &r.ols;
         println!();
-        println!("OLS, independent errors: residual SE {} on {} df, R2 {}, adjusted R2 {}", fmt(o.resid_se), o.df_resid, fmt(o.r2), fmt(o.adj_r2));
+        println!(
+            "OLS, independent errors: residual SE {} on {} df, R2 {}, adjusted R2 {}",
+            fmt(o.resid_se),
+            o.df_resid,
+            fmt(o.r2),
+            fmt(o.adj_r2)
+        );
         println!("{:<36} {:>12} {:>12} {:>9} {:>10}", "column", "estimate", "SE", "t", "p");
         for j in 0..o.beta.len() {
-            println!("{:<36} {:>12} {:>12} {:>9} {:>10}", o.names[j], fmt(o.beta[j]), fmt(o.se[j]), fmt(o.t[j]), fmt(o.p_value[j]));
+            println!(
+                "{:<36} {:>12} {:>12} {:>9} {:>10}",
+                o.names[j],
+                fmt(o.beta[j]),
+                fmt(o.se[j]),
+                fmt(o.t[j]),
+                fmt(o.p_value[j])
+            );
         }
         for t in &r.anova {
             println!();
@@ -93,7 +111,18 @@ mod potclim_model_print {
         println!("residual covariance fits (k = coefficients + variance + range + nugget share)");
         println!(
             "{:<24} {:>6} {:>12} {:>10} {:>10} {:>3} {:>9} {:>10} {:>10} {:>8} {:>9} {:>6}",
-            "model", "method", "loglik", "AIC", "BIC", "k", "range", "prac.rng", "nugget", "Moran I", "p(Moran)", "conv."
+            "model",
+            "method",
+            "loglik",
+            "AIC",
+            "BIC",
+            "k",
+            "range",
+            "prac.rng",
+            "nugget",
+            "Moran I",
+            "p(Moran)",
+            "conv."
         );
         for (f, m) in r.fits.iter().zip(&r.moran) {
             let (range, pr, eta) = match &f.covariance {
@@ -120,7 +149,13 @@ mod potclim_model_print {
                     println!("{:<24} estimate on a bound: {}", "", s.at_bounds.join(", "));
                 }
                 if let Some((p, ll)) = &s.other_optimum {
-                    println!("{:<24} another local optimum: range {} nugget share {} loglik {}", "", fmt(p.range), fmt(p.eta), fmt(*ll));
+                    println!(
+                        "{:<24} another local optimum: range {} nugget share {} loglik {}",
+                        "",
+                        fmt(p.range),
+                        fmt(p.eta),
+                        fmt(*ll)
+                    );
                 }
             }
         }
@@ -131,7 +166,11 @@ mod potclim_model_print {
             print!(" {:>8}", format!("{d} m"));
         }
         println!();
-        for f in r.fits.iter().filter(|f| f.covariance.is_some() && f.method == crate::spatial::likelihood::Method::Reml) {
+        for f in r
+            .fits
+            .iter()
+            .filter(|f| f.covariance.is_some() && f.method == crate::spatial::likelihood::Method::Reml)
+        {
             print!("{:<24}", model_name(f));
             for d in REFERENCE_DISTANCES {
                 print!(" {:>8}", fmt(f.correlation_at(d)));
@@ -142,10 +181,24 @@ mod potclim_model_print {
             println!();
             println!("{} (REML): coefficients and marginal Wald tests", model_name(f));
             for j in 0..f.beta.len() {
-                println!("{:<36} {:>12} {:>12} {:>9} {:>10}", f.names[j], fmt(f.beta[j]), fmt(f.se[j]), fmt(f.t[j]), fmt(f.p_value[j]));
+                println!(
+                    "{:<36} {:>12} {:>12} {:>9} {:>10}",
+                    f.names[j],
+                    fmt(f.beta[j]),
+                    fmt(f.se[j]),
+                    fmt(f.t[j]),
+                    fmt(f.p_value[j])
+                );
             }
             for w in &f.wald {
-                println!("  Wald F {:<27} F({}, {}) = {:>10}  p = {}", w.term, w.df, w.df_resid, fmt(w.f), fmt(w.p));
+                println!(
+                    "  Wald F {:<27} F({}, {}) = {:>10}  p = {}",
+                    w.term,
+                    w.df,
+                    w.df_resid,
+                    fmt(w.f),
+                    fmt(w.p)
+                );
             }
         }
     }

@@ -85,11 +85,16 @@ impl ModelSpec {
             Some(v) => v
                 .iter()
                 .enumerate()
-                .map(|(i, s)| Family::parse(s).map_err(|e| study.invalid(&format!("model.correlations[{i}]"), e, None)))
-                .collect::<std::result::Result<Vec<_>, _>>()?,
+                .map(|(i, s)| {
+                    Family::parse(s).map_err(|e| {
+                        ModelError::from(study.invalid(&format!("model.correlations[{i}]"), e, None))
+                    })
+                })
+                .collect::<Result<Vec<_>>>()?,
         };
         let mut seen = std::collections::HashSet::new();
-        for name in blocks.iter().chain(&m.factors).chain(&m.drivers).chain(std::iter::once(&m.trait_column)) {
+        for name in blocks.iter().chain(&m.factors).chain(&m.drivers).chain(std::iter::once(&m.trait_column))
+        {
             if !seen.insert(name.as_str()) {
                 return Err(study
                     .invalid(
@@ -159,11 +164,7 @@ impl FactorData {
                 }
             })
             .collect();
-        FactorData {
-            name: name.into(),
-            levels,
-            codes,
-        }
+        FactorData { name: name.into(), levels, codes }
     }
 }
 
@@ -200,16 +201,17 @@ pub fn load_model_data(study: &Study, spec: &ModelSpec) -> Result<ModelData> {
     let pots = load_pots(study)?;
     let cov_path = study.output_dir().join(COVARIATES_FILE);
     let needs_cov = spec.drivers.iter().any(|d| !pots.table.headers.contains(d));
-    let covariates = if needs_cov && cov_path.exists() {
-        Some(Table::read(&cov_path, b',')?)
-    } else {
-        None
-    };
+    let covariates = if needs_cov && cov_path.exists() { Some(Table::read(&cov_path, b',')?) } else { None };
     assemble(&pots, spec, covariates.as_ref(), &cov_path)
 }
 
 /// Build [`ModelData`] from a loaded pot table and optional covariate table.
-pub fn assemble(pots: &Pots, spec: &ModelSpec, covariates: Option<&Table>, cov_path: &std::path::Path) -> Result<ModelData> {
+pub fn assemble(
+    pots: &Pots,
+    spec: &ModelSpec,
+    covariates: Option<&Table>,
+    cov_path: &std::path::Path,
+) -> Result<ModelData> {
     let table = &pots.table;
     let path = table.path.clone();
     let values = table.optional_numbers(&spec.trait_column)?;
@@ -221,7 +223,10 @@ pub fn assemble(pots: &Pots, spec: &ModelSpec, covariates: Option<&Table>, cov_p
     if keep.is_empty() {
         return Err(ModelError::Design {
             path,
-            message: format!("the trait column `{}` has no values (every cell is empty or NA)", spec.trait_column),
+            message: format!(
+                "the trait column `{}` has no values (every cell is empty or NA)",
+                spec.trait_column
+            ),
             hint: Some("name the column that holds the measured trait in `[model] trait`".into()),
         });
     }
@@ -279,7 +284,8 @@ pub fn assemble(pots: &Pots, spec: &ModelSpec, covariates: Option<&Table>, cov_p
         } else if let Some(cov) = covariates.filter(|c| c.headers.contains(d)) {
             let ids = cov.text("pot")?;
             let v = cov.optional_numbers(d)?;
-            let index: std::collections::HashMap<&str, usize> = ids.iter().enumerate().map(|(k, id)| (id.trim(), k)).collect();
+            let index: std::collections::HashMap<&str, usize> =
+                ids.iter().enumerate().map(|(k, id)| (id.trim(), k)).collect();
             keep.iter()
                 .map(|&i| {
                     let id = pots.ids[i].as_str();
@@ -289,7 +295,13 @@ pub fn assemble(pots: &Pots, spec: &ModelSpec, covariates: Option<&Table>, cov_p
                         hint: Some("rerun the mapping stage for the current pot table".into()),
                     })?;
                     v[k].ok_or_else(|| {
-                        ModelError::from(cov.bad(cov.lines[k], d, &cov.rows[k][cov.column(d).unwrap_or(0)], "a driver value is missing", None))
+                        ModelError::from(cov.bad(
+                            cov.lines[k],
+                            d,
+                            &cov.rows[k][cov.column(d).unwrap_or(0)],
+                            "a driver value is missing",
+                            None,
+                        ))
                     })
                 })
                 .collect::<Result<Vec<_>>>()?
@@ -321,7 +333,12 @@ pub fn assemble(pots: &Pots, spec: &ModelSpec, covariates: Option<&Table>, cov_p
     })
 }
 
-fn unknown_driver(d: &str, table: &Table, covariates: Option<&Table>, cov_path: &std::path::Path) -> ModelError {
+fn unknown_driver(
+    d: &str,
+    table: &Table,
+    covariates: Option<&Table>,
+    cov_path: &std::path::Path,
+) -> ModelError {
     let numeric: Vec<&str> = table
         .headers
         .iter()
@@ -344,12 +361,10 @@ fn unknown_driver(d: &str, table: &Table, covariates: Option<&Table>, cov_path: 
     }
     let hint = match closest(d, all.iter().copied()) {
         Some(s) => Some(format!("did you mean `{s}`?")),
-        None if covariates.is_none() => Some("mapped climate drivers appear after the mapping stage has run".into()),
+        None if covariates.is_none() => {
+            Some("mapped climate drivers appear after the mapping stage has run".into())
+        }
         None => None,
     };
-    ModelError::Design {
-        path: table.path.clone(),
-        message,
-        hint,
-    }
+    ModelError::Design { path: table.path.clone(), message, hint }
 }

@@ -121,7 +121,12 @@ impl Design {
         let mut xs = vec![vec![1.0; n]];
         let mut names = vec!["(intercept)".to_string()];
         let mut sum_names = vec!["(intercept)".to_string()];
-        let mut push = |terms: &mut Vec<Term>, name: String, kind: TermKind, factors: Vec<usize>, t: Vec<(String, Vec<f64>)>, s: Vec<(String, Vec<f64>)>| {
+        let mut push = |terms: &mut Vec<Term>,
+                        name: String,
+                        kind: TermKind,
+                        factors: Vec<usize>,
+                        t: Vec<(String, Vec<f64>)>,
+                        s: Vec<(String, Vec<f64>)>| {
             let start = x.len();
             for (nm, c) in t {
                 names.push(nm);
@@ -131,12 +136,7 @@ impl Design {
                 sum_names.push(nm);
                 xs.push(c);
             }
-            terms.push(Term {
-                name,
-                kind,
-                factors,
-                columns: start..x.len(),
-            });
+            terms.push(Term { name, kind, factors, columns: start..x.len() });
         };
         for b in &spec.blocks {
             let f = &data.blocks[find(&data.blocks, b)?];
@@ -152,7 +152,11 @@ impl Design {
             for &k in &idx {
                 if !spec.factors.contains(&data.factors[k].name) {
                     return Err(bad(
-                        format!("interaction `{}` uses `{}`, which is not a main effect of this design", inter.join(":"), data.factors[k].name),
+                        format!(
+                            "interaction `{}` uses `{}`, which is not a main effect of this design",
+                            inter.join(":"),
+                            data.factors[k].name
+                        ),
                         None,
                     ));
                 }
@@ -173,12 +177,21 @@ impl Design {
                 .iter()
                 .find(|(nm, _)| nm == d)
                 .ok_or_else(|| bad(format!("driver `{d}` is not loaded"), None))?;
-            push(&mut terms, d.clone(), TermKind::Driver, vec![], vec![(d.clone(), v.clone())], vec![(d.clone(), v.clone())]);
+            push(
+                &mut terms,
+                d.clone(),
+                TermKind::Driver,
+                vec![],
+                vec![(d.clone(), v.clone())],
+                vec![(d.clone(), v.clone())],
+            );
         }
         let p = x.len();
         if p >= n {
             return Err(bad(
-                format!("the model has {p} coefficients but only {n} pots have a trait value; it needs more pots than coefficients"),
+                format!(
+                    "the model has {p} coefficients but only {n} pots have a trait value; it needs more pots than coefficients"
+                ),
                 Some("drop an interaction, a factor or a driver".into()),
             ));
         }
@@ -190,18 +203,13 @@ impl Design {
                     "aliased design columns (linear combinations of earlier columns): {}",
                     list.join(", ")
                 ),
-                Some("two drivers may be collinear, or a factor may be nested in a block; remove one of them".into()),
+                Some(
+                    "two drivers may be collinear, or a factor may be nested in a block; remove one of them"
+                        .into(),
+                ),
             ));
         }
-        Ok(Design {
-            terms,
-            names,
-            sum_names,
-            x,
-            x_sum: xs,
-            drivers: spec.drivers.clone(),
-            n,
-        })
+        Ok(Design { terms, names, sum_names, x, x_sum: xs, drivers: spec.drivers.clone(), n })
     }
 }
 
@@ -369,6 +377,31 @@ pub fn count_tables(data: &ModelData) -> Vec<CountTable> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn empty_cell_is_named() {
+        // warpbreaks without R rownames 1..9 (every wool A, tension L pot)
+        let drop: Vec<String> = (1..=9).map(|i| i.to_string()).collect();
+        let drop: Vec<&str> = drop.iter().map(String::as_str).collect();
+        let data = crate::model::testdata::model_data(
+            "warpbreaks.csv",
+            "breaks",
+            &["wool", "tension"],
+            &[],
+            None,
+            &drop,
+        );
+        let spec = DesignSpec {
+            factors: vec!["wool".into(), "tension".into()],
+            interactions: vec![vec!["wool".into(), "tension".into()]],
+            ..Default::default()
+        };
+        let e = Design::build(&data, &spec).unwrap_err().to_string();
+        assert!(e.contains("empty cells: no analysed pot has wool=A x tension=L"), "{e}");
+        // without the interaction the design is fine
+        let spec = DesignSpec { factors: vec!["wool".into(), "tension".into()], ..Default::default() };
+        assert_eq!(Design::build(&data, &spec).unwrap().p(), 4);
+    }
 
     #[test]
     fn aliasing_is_found() {

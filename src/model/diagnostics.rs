@@ -40,11 +40,8 @@ pub fn knn(x: &[f64], y: &[f64], k: usize) -> Option<Vec<Vec<usize>>> {
             .query(p)
             .nearest_n::<SquaredEuclidean<f64>>(NonZero::new(k + 1).expect("k + 1 > 0"))
             .execute();
-        let mut nb: Vec<(f64, usize)> = found
-            .iter()
-            .map(|r| (r.distance, r.item as usize))
-            .filter(|&(_, j)| j != i)
-            .collect();
+        let mut nb: Vec<(f64, usize)> =
+            found.iter().map(|r| (r.distance, r.item as usize)).filter(|&(_, j)| j != i).collect();
         nb.sort_by(|a, b| a.0.total_cmp(&b.0));
         nb.truncate(k);
         out.push(nb.into_iter().map(|(_, j)| j).collect());
@@ -84,7 +81,7 @@ pub fn moran_residuals(e: &[f64], x: &[Vec<f64>], nb: &[Vec<usize>]) -> Option<M
         return None;
     }
     let ee: f64 = e.iter().map(|v| v * v).sum();
-    if !(ee > 0.0) {
+    if ee.is_nan() || ee <= 0.0 {
         return None;
     }
     let ewe: f64 = (0..n).map(|i| e[i] * nb[i].iter().map(|&j| e[j]).sum::<f64>()).sum();
@@ -147,19 +144,12 @@ pub fn moran_residuals(e: &[f64], x: &[Vec<f64>], nb: &[Vec<usize>]) -> Option<M
     let c = n as f64 / s0;
     let expected = c * tr_mw / m;
     let variance = c * c * (tr_mwmwt + tr_mwmw + tr_mw * tr_mw) / (m * (m + 2.0)) - expected * expected;
-    if !(variance > 0.0) {
+    if variance.is_nan() || variance <= 0.0 {
         return None;
     }
     let z = (i_stat - expected) / variance.sqrt();
     let p = 2.0 * Normal::standard().sf(z.abs());
-    Some(MoranTest {
-        k,
-        i: i_stat,
-        expected,
-        variance,
-        z,
-        p,
-    })
+    Some(MoranTest { k, i: i_stat, expected, variance, z, p })
 }
 
 #[cfg(test)]

@@ -11,7 +11,7 @@ use std::path::PathBuf;
 pub enum ModelError {
     /// Reading or validating an input failed (carries file, line, column).
     #[error(transparent)]
-    Io(#[from] IoError),
+    Io(Box<IoError>),
     /// The `[model]` section or the data cannot make a valid design.
     #[error("{}: {message}{}", path.display(), hint_suffix(hint))]
     Design {
@@ -35,6 +35,12 @@ pub enum ModelError {
     /// Fits that must not be compared were offered for comparison.
     #[error("cannot compare these fits: {0}")]
     Comparison(String),
+}
+
+impl From<IoError> for ModelError {
+    fn from(e: IoError) -> Self {
+        ModelError::Io(Box::new(e))
+    }
 }
 
 fn hint_suffix(hint: &Option<String>) -> String {

@@ -201,11 +201,7 @@ impl Fit {
 fn criteria(loglik: f64, k: usize, n: usize) -> (f64, f64, Option<f64>) {
     let aic = -2.0 * loglik + 2.0 * k as f64;
     let bic = -2.0 * loglik + k as f64 * (n as f64).ln();
-    let aicc = if n > k + 1 {
-        Some(aic + 2.0 * (k * (k + 1)) as f64 / (n - k - 1) as f64)
-    } else {
-        None
-    };
+    let aicc = if n > k + 1 { Some(aic + 2.0 * (k * (k + 1)) as f64 / (n - k - 1) as f64) } else { None };
     (aic, bic, aicc)
 }
 
@@ -325,11 +321,7 @@ pub fn fit_independent(design: &Design, y: &[f64], method: Method) -> Result<Fit
     let whitened: Vec<f64> = y.iter().zip(&fitted).map(|(a, b)| a - b).collect();
     let prof = Profiled {
         method,
-        params: CovParams {
-            family: Family::Exponential,
-            range: 1.0,
-            eta: 1.0,
-        },
+        params: CovParams { family: Family::Exponential, range: 1.0, eta: 1.0 },
         loglik,
         beta,
         sigma2,
@@ -341,7 +333,16 @@ pub fn fit_independent(design: &Design, y: &[f64], method: Method) -> Result<Fit
         n,
         p,
     };
-    Ok(assemble(design, y, method, Errors::Independent, &prof, (beta_s.as_slice(), inv_s.as_slice()), design.x.clone(), None))
+    Ok(assemble(
+        design,
+        y,
+        method,
+        Errors::Independent,
+        &prof,
+        (beta_s.as_slice(), inv_s.as_slice()),
+        design.x.clone(),
+        None,
+    ))
 }
 
 /// Fit with spatially correlated errors: maximise the profiled likelihood of
@@ -361,11 +362,8 @@ pub fn fit_correlated(
     nugget: bool,
     method: Method,
 ) -> Result<Fit> {
-    let lerr = |source, hint: Option<String>| ModelError::Likelihood {
-        model: model.to_string(),
-        source,
-        hint,
-    };
+    let lerr =
+        |source, hint: Option<String>| ModelError::Likelihood { model: model.to_string(), source, hint };
     if !nugget {
         let dup = dist.coincident();
         if let Some(&(i, j)) = dup.first() {
@@ -381,15 +379,14 @@ pub fn fit_correlated(
             });
         }
     }
-    let opts = SearchOptions {
-        nugget,
-        ..SearchOptions::default()
-    };
+    let opts = SearchOptions { nugget, ..SearchOptions::default() };
     let max = likelihood::maximise(dist, family, &design.x, y, method, &opts).map_err(|e| lerr(e, None))?;
     let params = max.best.params;
     let l = likelihood::cholesky(dist, &params).map_err(|e| lerr(e, None))?;
-    let prof = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x, y, method).map_err(|e| lerr(e, None))?;
-    let prof_sum = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x_sum, y, method).map_err(|e| lerr(e, None))?;
+    let prof = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x, y, method)
+        .map_err(|e| lerr(e, None))?;
+    let prof_sum = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x_sum, y, method)
+        .map_err(|e| lerr(e, None))?;
     let n = y.len();
     let mut wx = faer::Mat::from_fn(n, design.p(), |i, j| design.x[j][i]);
     likelihood::whiten(l.as_ref(), &mut wx);
@@ -451,14 +448,18 @@ impl<'a> Comparison<'a> {
         };
         for f in fits {
             if f.n != first.n {
-                return Err(ModelError::Comparison(format!("fits on different pots ({} and {})", first.n, f.n)));
+                return Err(ModelError::Comparison(format!(
+                    "fits on different pots ({} and {})",
+                    first.n, f.n
+                )));
             }
             if f.method != first.method {
                 return Err(ModelError::Comparison("ML and REML likelihoods are not comparable".into()));
             }
             if f.method == Method::Reml && !f.same_fixed_effects(first) {
                 return Err(ModelError::Comparison(
-                    "REML likelihoods of models with different fixed effects are not comparable; refit by ML".into(),
+                    "REML likelihoods of models with different fixed effects are not comparable; refit by ML"
+                        .into(),
                 ));
             }
         }
@@ -499,7 +500,9 @@ impl<'a> Comparison<'a> {
             self.fits.get(alt).ok_or_else(|| ModelError::Comparison("no such fit".into()))?,
         );
         if b.n_params <= a.n_params {
-            return Err(ModelError::Comparison("the alternative must have more parameters than the null".into()));
+            return Err(ModelError::Comparison(
+                "the alternative must have more parameters than the null".into(),
+            ));
         }
         Ok((2.0 * (b.loglik - a.loglik), b.n_params - a.n_params))
     }
@@ -529,7 +532,14 @@ mod tests {
     /// log-likelihood within 1e-3, beta within 1e-4 relative.
     #[test]
     fn maximised_fits_vs_scipy_on_simulated_study() {
-        let data = model_data("sim_gls.csv", "height", &["accession", "regime"], &["moisture"], Some(("x", "y")), &[]);
+        let data = model_data(
+            "sim_gls.csv",
+            "height",
+            &["accession", "regime"],
+            &["moisture"],
+            Some(("x", "y")),
+            &[],
+        );
         let spec = DesignSpec {
             factors: vec!["accession".into(), "regime".into()],
             drivers: vec!["moisture".into()],
@@ -537,10 +547,16 @@ mod tests {
         };
         let design = Design::build(&data, &spec).unwrap();
         let dist = Distances::from_coords(&data.x, &data.y).unwrap();
-        for want in fixture("model_fits.json")["fits"].as_array().unwrap().iter().filter(|f| f["dataset"] == "sim_gls") {
+        for want in fixture("model_fits.json")["fits"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|f| f["dataset"] == "sim_gls")
+        {
             let family = Family::parse(want["family"].as_str().unwrap()).unwrap();
             let method = if want["method"] == "ML" { Method::Ml } else { Method::Reml };
-            let f = fit_correlated("t", &design, &data.response, &dist, &data.pots, family, true, method).unwrap();
+            let f = fit_correlated("t", &design, &data.response, &dist, &data.pots, family, true, method)
+                .unwrap();
             check_fit(&f, want);
             assert!(f.converged());
             assert_eq!(f.n_params, 5 + 3);
@@ -551,19 +567,23 @@ mod tests {
     #[test]
     fn maximised_fits_vs_scipy_on_topo() {
         let data = model_data("topo.csv", "z", &[], &["x", "y"], Some(("x", "y")), &[]);
-        for want in fixture("model_fits.json")["fits"].as_array().unwrap().iter().filter(|f| f["dataset"] == "topo") {
+        for want in
+            fixture("model_fits.json")["fits"].as_array().unwrap().iter().filter(|f| f["dataset"] == "topo")
+        {
             let b = floats(&want["bounds"]);
             let range = want["range"].as_f64().unwrap();
             if range > 0.99 * b[1] {
                 continue; // optimum on the upper range bound: not a comparable interior optimum
             }
-            let drivers = if want["formula"] == "z ~ 1" { vec![] } else { vec!["x".to_string(), "y".to_string()] };
+            let drivers =
+                if want["formula"] == "z ~ 1" { vec![] } else { vec!["x".to_string(), "y".to_string()] };
             let design = Design::build(&data, &DesignSpec { drivers, ..Default::default() }).unwrap();
             let dist = Distances::from_coords(&data.x, &data.y).unwrap();
             let family = Family::parse(want["family"].as_str().unwrap()).unwrap();
             let method = if want["method"] == "ML" { Method::Ml } else { Method::Reml };
             let nugget = want["nugget"].as_bool().unwrap();
-            let f = fit_correlated("t", &design, &data.response, &dist, &data.pots, family, nugget, method).unwrap();
+            let f = fit_correlated("t", &design, &data.response, &dist, &data.pots, family, nugget, method)
+                .unwrap();
             check_fit(&f, want);
         }
     }
@@ -580,7 +600,11 @@ mod tests {
         };
         let design = Design::build(&data, &spec).unwrap();
         let f = fit_independent(&design, &data.response, Method::Ml).unwrap();
-        assert_relative_eq!(f.loglik, fixture("model_ols.json")["warpbreaks"]["llf"].as_f64().unwrap(), max_relative = 1e-12);
+        assert_relative_eq!(
+            f.loglik,
+            fixture("model_ols.json")["warpbreaks"]["llf"].as_f64().unwrap(),
+            max_relative = 1e-12
+        );
         assert_eq!(f.n_params, 7);
         // statsmodels counts only the 6 mean parameters in its AIC; ours adds sigma2: +2
         assert_relative_eq!(f.aic, -2.0 * f.loglik + 14.0, max_relative = 1e-14);
@@ -592,7 +616,8 @@ mod tests {
     fn reml_comparison_across_fixed_effects_is_refused() {
         let data = model_data("topo.csv", "z", &[], &["x", "y"], Some(("x", "y")), &[]);
         let d1 = Design::build(&data, &DesignSpec::default()).unwrap();
-        let d2 = Design::build(&data, &DesignSpec { drivers: vec!["x".into()], ..Default::default() }).unwrap();
+        let d2 =
+            Design::build(&data, &DesignSpec { drivers: vec!["x".into()], ..Default::default() }).unwrap();
         let dist = Distances::from_coords(&data.x, &data.y).unwrap();
         let r1 = fit_independent(&d1, &data.response, Method::Reml).unwrap();
         let r2 = fit_independent(&d2, &data.response, Method::Reml).unwrap();
@@ -604,7 +629,17 @@ mod tests {
         let (lrt, df) = c.lrt(0, 1).unwrap();
         assert_eq!(df, 1);
         assert_relative_eq!(lrt, 2.0 * (m2.loglik - m1.loglik));
-        let s1 = fit_correlated("e", &d1, &data.response, &dist, &data.pots, Family::Exponential, false, Method::Reml).unwrap();
+        let s1 = fit_correlated(
+            "e",
+            &d1,
+            &data.response,
+            &dist,
+            &data.pots,
+            Family::Exponential,
+            false,
+            Method::Reml,
+        )
+        .unwrap();
         let t = Comparison::new(&[&r1, &s1]).unwrap().table();
         assert_relative_eq!(t.iter().map(|r| r.weight).sum::<f64>(), 1.0, epsilon = 1e-12);
     }

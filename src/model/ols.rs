@@ -224,7 +224,9 @@ pub fn anova(design: &Design, y: &[f64], kind: SsType) -> AnovaTable {
     let ms_resid = rss_full / df_resid as f64;
     let contains = |outer: &TermKind, inner: &[usize]| -> bool {
         match outer {
-            TermKind::Interaction(f) => !inner.is_empty() && inner.iter().all(|k| f.contains(k)) && f.len() > inner.len(),
+            TermKind::Interaction(f) => {
+                !inner.is_empty() && inner.iter().all(|k| f.contains(k)) && f.len() > inner.len()
+            }
             _ => false,
         }
     };
@@ -311,10 +313,15 @@ mod tests {
         };
         let design = Design::build(&data, &spec).unwrap();
         let fit = ols(&design, &data.response);
-        let names: Vec<String> = fx["names"].as_array().unwrap().iter().map(|v| own_name(v.as_str().unwrap())).collect();
+        let names: Vec<String> =
+            fx["names"].as_array().unwrap().iter().map(|v| own_name(v.as_str().unwrap())).collect();
         let (params, bse, pv) = (floats(&fx["params"]), floats(&fx["bse"]), floats(&fx["pvalues"]));
         for (k, name) in names.iter().enumerate() {
-            let j = fit.names.iter().position(|m| m == name).unwrap_or_else(|| panic!("{name} not in {:?}", fit.names));
+            let j = fit
+                .names
+                .iter()
+                .position(|m| m == name)
+                .unwrap_or_else(|| panic!("{name} not in {:?}", fit.names));
             assert_relative_eq!(fit.beta[j], params[k], epsilon = 1e-9, max_relative = 1e-9);
             assert_relative_eq!(fit.se[j], bse[k], max_relative = 1e-9);
             assert_relative_eq!(fit.p_value[j], pv[k], epsilon = 1e-10, max_relative = 1e-6);
@@ -322,7 +329,9 @@ mod tests {
         assert_relative_eq!(fit.resid_se, fx["resid_se"].as_f64().unwrap(), max_relative = 1e-10);
         assert_relative_eq!(fit.r2, fx["r2"].as_f64().unwrap(), max_relative = 1e-10);
         assert_relative_eq!(fit.adj_r2, fx["adj_r2"].as_f64().unwrap(), max_relative = 1e-10);
-        for (kind, key) in [(SsType::Sequential, "type1"), (SsType::Hierarchical, "type2"), (SsType::Marginal, "type3")] {
+        for (kind, key) in
+            [(SsType::Sequential, "type1"), (SsType::Hierarchical, "type2"), (SsType::Marginal, "type3")]
+        {
             let table = anova(&design, &data.response, kind);
             let rows = fx[key].as_array().unwrap();
             assert_eq!(table.rows.len(), rows.len(), "{case} {key}");
@@ -331,7 +340,12 @@ mod tests {
                 assert_relative_eq!(own.sum_sq, r["sum_sq"].as_f64().unwrap(), max_relative = 1e-9);
                 if let Some(f) = r["F"].as_f64() {
                     assert_relative_eq!(own.f.unwrap(), f, max_relative = 1e-8);
-                    assert_relative_eq!(own.p.unwrap(), r["p"].as_f64().unwrap(), epsilon = 1e-12, max_relative = 1e-6);
+                    assert_relative_eq!(
+                        own.p.unwrap(),
+                        r["p"].as_f64().unwrap(),
+                        epsilon = 1e-12,
+                        max_relative = 1e-6
+                    );
                 }
             }
         }
@@ -344,7 +358,14 @@ mod tests {
 
     #[test]
     fn warpbreaks_unbalanced_vs_statsmodels() {
-        check("warpbreaks_unbalanced", "warpbreaks.csv", "breaks", "wool", "tension", &["1", "2", "3", "20", "40"]);
+        check(
+            "warpbreaks_unbalanced",
+            "warpbreaks.csv",
+            "breaks",
+            "wool",
+            "tension",
+            &["1", "2", "3", "20", "40"],
+        );
     }
 
     #[test]

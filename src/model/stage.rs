@@ -62,14 +62,13 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
         .map(|&k| anova(&design, y, k))
         .collect();
     let counts = count_tables(&data);
-    let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| super::error::ModelError::Likelihood {
-        model: "positions".into(),
-        source: e,
-        hint: None,
+    let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| {
+        super::error::ModelError::Likelihood { model: "positions".into(), source: e, hint: None }
     })?;
     let mut notes = Vec::new();
     if !data.excluded.is_empty() {
-        let list: Vec<String> = data.excluded.iter().map(|(id, line)| format!("{id} (line {line})")).collect();
+        let list: Vec<String> =
+            data.excluded.iter().map(|(id, line)| format!("{id} (line {line})")).collect();
         notes.push(format!(
             "{} pot(s) left out because `{}` is missing: {}",
             data.excluded.len(),
@@ -103,29 +102,15 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
         .iter()
         .map(|f| nb.as_ref().and_then(|nb| moran_residuals(&f.normalised, &f.whitened_x, nb)))
         .collect();
-    Ok(FitReport {
-        spec,
-        data,
-        design,
-        ols: ols_fit,
-        anova: anovas,
-        counts,
-        fits,
-        moran,
-        notes,
-    })
+    Ok(FitReport { spec, data, design, ols: ols_fit, anova: anovas, counts, fits, moran, notes })
 }
 
 fn num(v: f64) -> String {
-    if v.is_finite() { format!("{v}") } else { String::new() }
+    if v.is_finite() { format!("{v:?}") } else { String::new() }
 }
 
 fn csv_field(s: &str) -> String {
-    if s.contains([',', '"', '\n']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
-    }
+    if s.contains([',', '"', '\n']) { format!("\"{}\"", s.replace('"', "\"\"")) } else { s.to_string() }
 }
 
 /// The name of a fit in the output tables: the error structure.
@@ -277,7 +262,15 @@ pub fn diagnostics_csv(r: &FitReport) -> String {
             None => (String::new(), String::new()),
         };
         let moran = match m {
-            Some(m) => format!("{},{},{},{},{},{}", m.k, num(m.i), num(m.expected), num(m.variance), num(m.z), num(m.p)),
+            Some(m) => format!(
+                "{},{},{},{},{},{}",
+                m.k,
+                num(m.i),
+                num(m.expected),
+                num(m.variance),
+                num(m.z),
+                num(m.p)
+            ),
             None => ",,,,,".into(),
         };
         let _ = write!(

@@ -119,12 +119,18 @@ impl Distances {
     /// zero diagonal, finite and non-negative).
     pub fn from_matrix(n: usize, d: Vec<f64>) -> Result<Distances, LikelihoodError> {
         if d.len() != n * n {
-            return Err(LikelihoodError::Invalid(format!("a {n} x {n} distance matrix needs {} values", n * n)));
+            return Err(LikelihoodError::Invalid(format!(
+                "a {n} x {n} distance matrix needs {} values",
+                n * n
+            )));
         }
         for i in 0..n {
             for j in 0..n {
                 let v = d[i * n + j];
-                if !(v.is_finite() && v >= 0.0) || (i == j && v != 0.0) || (v - d[j * n + i]).abs() > 1e-12 * v.max(1.0) {
+                if !(v.is_finite() && v >= 0.0)
+                    || (i == j && v != 0.0)
+                    || (v - d[j * n + i]).abs() > 1e-12 * v.max(1.0)
+                {
                     return Err(LikelihoodError::Invalid(format!("distance [{i}, {j}] = {v} is not valid")));
                 }
             }
@@ -178,7 +184,7 @@ impl Distances {
         let mut k = 0usize;
         for j in 0..n {
             for i in 0..j {
-                if k % stride == 0 {
+                if k.is_multiple_of(stride) {
                     let d = self.get(i, j);
                     if d > 0.0 {
                         out.push(d);
@@ -211,7 +217,12 @@ fn fill_lower(m: &mut Mat<f64>, dist: &Distances, p: &CovParams) {
     let fill_cols = |mut part: faer::MatMut<'_, f64>, j0: usize| {
         for jj in 0..part.ncols() {
             let j = j0 + jj;
-            let col = part.as_mut().col_mut(jj).try_as_col_major_mut().expect("owned columns are contiguous").as_slice_mut();
+            let col = part
+                .as_mut()
+                .col_mut(jj)
+                .try_as_col_major_mut()
+                .expect("owned columns are contiguous")
+                .as_slice_mut();
             col[j] = 1.0;
             for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
                 *c = (1.0 - p.eta) * p.family.correlation(dist.get(i, j), p.range);
@@ -263,17 +274,19 @@ pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, Likeli
     let mut m = Mat::<f64>::zeros(n, n);
     fill_lower(&mut m, dist, params);
     let par = Par::rayon(0);
-    let mut mem = faer::dyn_stack::MemBuffer::new(cholesky_in_place_scratch::<f64>(n, par, Default::default()));
+    let mut mem =
+        faer::dyn_stack::MemBuffer::new(cholesky_in_place_scratch::<f64>(n, par, Default::default()));
     let stack = faer::dyn_stack::MemStack::new(&mut mem);
     let npd = || LikelihoodError::NotPositiveDefinite {
         family: params.family.name(),
         range: params.range,
         eta: params.eta,
     };
-    cholesky_in_place(m.as_mut(), LltRegularization::default(), par, stack, Default::default()).map_err(|_| npd())?;
+    cholesky_in_place(m.as_mut(), LltRegularization::default(), par, stack, Default::default())
+        .map_err(|_| npd())?;
     // a pivot that is positive but tiny relative to 1 means V is numerically singular
     for i in 0..n {
-        if !(m[(i, i)] > 1e-7) {
+        if m[(i, i)].is_nan() || m[(i, i)] <= 1e-7 {
             return Err(npd());
         }
     }
@@ -329,7 +342,7 @@ pub fn spd_inverse(a: &[f64], p: usize) -> Option<(Vec<f64>, f64)> {
         for k in 0..j {
             s -= l[j * p + k] * l[j * p + k];
         }
-        if !(s > 1e-11 * scale.max(a[j * p + j])) {
+        if s.is_nan() || s <= 1e-11 * scale.max(a[j * p + j]) {
             return None;
         }
         let d = s.sqrt();
@@ -369,7 +382,12 @@ pub fn spd_inverse(a: &[f64], p: usize) -> Option<(Vec<f64>, f64)> {
 }
 
 /// GLS quantities from an already whitened `[Xw | yw]` (`n x (p+1)`) and `ln|V|`.
-fn profile_whitened(w: &Mat<f64>, logdet_v: f64, method: Method, params: CovParams) -> Result<Profiled, LikelihoodError> {
+fn profile_whitened(
+    w: &Mat<f64>,
+    logdet_v: f64,
+    method: Method,
+    params: CovParams,
+) -> Result<Profiled, LikelihoodError> {
     let n = w.nrows();
     let p = w.ncols() - 1;
     let mut a = vec![0.0; p * p];
@@ -383,15 +401,11 @@ fn profile_whitened(w: &Mat<f64>, logdet_v: f64, method: Method, params: CovPara
         }
         b[i] = cols[i].iter().zip(cols[p]).map(|(u, v)| u * v).sum();
     }
-    let (inv, logdet_xtvx) = if p == 0 {
-        (Vec::new(), 0.0)
-    } else {
-        spd_inverse(&a, p).ok_or(LikelihoodError::SingularDesign)?
-    };
+    let (inv, logdet_xtvx) =
+        if p == 0 { (Vec::new(), 0.0) } else { spd_inverse(&a, p).ok_or(LikelihoodError::SingularDesign)? };
     let beta: Vec<f64> = (0..p).map(|i| (0..p).map(|j| inv[i * p + j] * b[j]).sum()).collect();
-    let whitened: Vec<f64> = (0..n)
-        .map(|r| cols[p][r] - (0..p).map(|j| cols[j][r] * beta[j]).sum::<f64>())
-        .collect();
+    let whitened: Vec<f64> =
+        (0..n).map(|r| cols[p][r] - (0..p).map(|j| cols[j][r] * beta[j]).sum::<f64>()).collect();
     let q: f64 = whitened.iter().map(|v| v * v).sum();
     let ln2pi = (2.0 * std::f64::consts::PI).ln();
     let (loglik, sigma2) = match method {
@@ -401,16 +415,19 @@ fn profile_whitened(w: &Mat<f64>, logdet_v: f64, method: Method, params: CovPara
         }
         Method::Reml => {
             if n <= p {
-                return Err(LikelihoodError::Invalid(format!("REML needs more observations ({n}) than columns ({p})")));
+                return Err(LikelihoodError::Invalid(format!(
+                    "REML needs more observations ({n}) than columns ({p})"
+                )));
             }
             let m = (n - p) as f64;
             let s2 = q / m;
             (-m / 2.0 * (ln2pi + 1.0 + s2.ln()) - 0.5 * logdet_v - 0.5 * logdet_xtvx, s2)
         }
     };
-    if !(q > 0.0) || !loglik.is_finite() {
+    if q.is_nan() || q <= 0.0 || !loglik.is_finite() {
         return Err(LikelihoodError::Invalid(
-            "the residuals are exactly zero: the model fits the data perfectly and has no likelihood maximum".into(),
+            "the residuals are exactly zero: the model fits the data perfectly and has no likelihood maximum"
+                .into(),
         ));
     }
     Ok(Profiled {
@@ -450,7 +467,13 @@ fn check_sizes(dist: &Distances, x: &[Vec<f64>], y: &[f64]) -> Result<(), Likeli
 /// `beta` profiled out. `x` holds the columns of `X` (each of length `n`).
 ///
 /// Cost: see the module docs (one Cholesky of an `n x n` matrix).
-pub fn profiled(dist: &Distances, params: &CovParams, x: &[Vec<f64>], y: &[f64], method: Method) -> Result<Profiled, LikelihoodError> {
+pub fn profiled(
+    dist: &Distances,
+    params: &CovParams,
+    x: &[Vec<f64>],
+    y: &[f64],
+    method: Method,
+) -> Result<Profiled, LikelihoodError> {
     check_sizes(dist, x, y)?;
     let l = cholesky(dist, params)?;
     profiled_with_factor(l.as_ref(), params, x, y, method)
@@ -483,7 +506,7 @@ pub fn full_loglik(
     y: &[f64],
 ) -> Result<f64, LikelihoodError> {
     check_sizes(dist, x, y)?;
-    if beta.len() != x.len() || !(sigma2 > 0.0) {
+    if beta.len() != x.len() || sigma2.is_nan() || sigma2 <= 0.0 {
         return Err(LikelihoodError::Invalid("beta must match X and sigma2 be positive".into()));
     }
     let n = y.len();
@@ -572,9 +595,7 @@ pub fn maximise(
     if sample.is_empty() {
         return Err(LikelihoodError::Invalid("all observations are at the same position".into()));
     }
-    let (lo, hi) = opts
-        .range_bounds
-        .unwrap_or((sample[0] / 10.0, sample[sample.len() - 1] * 10.0));
+    let (lo, hi) = opts.range_bounds.unwrap_or((sample[0] / 10.0, sample[sample.len() - 1] * 10.0));
     if !(lo > 0.0 && hi > lo) {
         return Err(LikelihoodError::Invalid(format!("range bounds [{lo}, {hi}] are not valid")));
     }
@@ -587,17 +608,9 @@ pub fn maximise(
         best: Option<Profiled>,
         first_error: Option<LikelihoodError>,
     }
-    let state = std::cell::RefCell::new(State {
-        evaluations: 0,
-        best: None,
-        first_error: None,
-    });
+    let state = std::cell::RefCell::new(State { evaluations: 0, best: None, first_error: None });
     let mut eval = |t: &[f64]| -> f64 {
-        let params = CovParams {
-            family,
-            range: t[0].exp(),
-            eta: if dim == 2 { t[1] } else { 0.0 },
-        };
+        let params = CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } };
         let result = profiled(dist, &params, x, y, method);
         let mut st = state.borrow_mut();
         st.evaluations += 1;
@@ -642,7 +655,8 @@ pub fn maximise(
         if taken >= opts.starts.max(1) || !v0.is_finite() || (taken > 0 && *v0 < grid[0].1 - opts.start_gap) {
             break;
         }
-        if ends.iter().any(|(t, _)| (t[0] - t0[0]).abs() < 1e-9 && (dim == 1 || (t[1] - t0[1]).abs() < 1e-9)) {
+        if ends.iter().any(|(t, _)| (t[0] - t0[0]).abs() < 1e-9 && (dim == 1 || (t[1] - t0[1]).abs() < 1e-9))
+        {
             continue;
         }
         taken += 1;
@@ -664,18 +678,12 @@ pub fn maximise(
     let best = best.expect("a finite grid point exists");
     ends.sort_by(|a, b| b.1.total_cmp(&a.1));
     let other_optimum = ends.iter().skip(1).find(|(t, v)| {
-        (best.loglik - v) > 1e-4 && ((t[0] - best.params.range.ln()).abs() > 0.05 || (dim == 2 && (t[1] - best.params.eta).abs() > 0.02))
+        (best.loglik - v) > 1e-4
+            && ((t[0] - best.params.range.ln()).abs() > 0.05
+                || (dim == 2 && (t[1] - best.params.eta).abs() > 0.02))
     });
-    let other_optimum = other_optimum.map(|(t, v)| {
-        (
-            CovParams {
-                family,
-                range: t[0].exp(),
-                eta: if dim == 2 { t[1] } else { 0.0 },
-            },
-            *v,
-        )
-    });
+    let other_optimum = other_optimum
+        .map(|(t, v)| (CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } }, *v));
     let mut at_bounds = Vec::new();
     let lr = best.params.range.ln();
     let tol = 1e-4;
@@ -691,14 +699,7 @@ pub fn maximise(
     if dim == 2 && eta_max - best.params.eta < 1e-6 {
         at_bounds.push("nugget_upper");
     }
-    Ok(Maximum {
-        best,
-        converged,
-        at_bounds,
-        evaluations,
-        range_bounds: (lo, hi),
-        other_optimum,
-    })
+    Ok(Maximum { best, converged, at_bounds, evaluations, range_bounds: (lo, hi), other_optimum })
 }
 
 /// Bounded Nelder–Mead maximisation of `f` from `x0` with initial steps
@@ -758,7 +759,8 @@ pub fn nelder_mead_max(
             converged = true;
             break;
         }
-        let centroid: Vec<f64> = (0..d).map(|k| simplex[..d].iter().map(|(v, _)| v[k]).sum::<f64>() / d as f64).collect();
+        let centroid: Vec<f64> =
+            (0..d).map(|k| simplex[..d].iter().map(|(v, _)| v[k]).sum::<f64>() / d as f64).collect();
         let worst = simplex[d].clone();
         let along = |t: f64| -> Vec<f64> {
             let mut v: Vec<f64> = (0..d).map(|k| centroid[k] + t * (worst.0[k] - centroid[k])).collect();
@@ -818,11 +820,7 @@ mod tests {
         let x = [0.0, 1.0, 2.0, 3.0, 5.0, 8.0];
         let y = [1.2, 1.9, 2.1, 3.2, 2.8, 4.5];
         let dist = Distances::from_coords(&x, &[0.0; 6]).unwrap();
-        let p = CovParams {
-            family: Family::Exponential,
-            range: 1.5,
-            eta: 0.0,
-        };
+        let p = CovParams { family: Family::Exponential, range: 1.5, eta: 0.0 };
         let xs = vec![vec![1.0; 6], x.to_vec()];
         let ml = profiled(&dist, &p, &xs, &y, Method::Ml).unwrap();
         assert_relative_eq!(ml.loglik, -3.366053, epsilon = 1e-6);
@@ -833,12 +831,28 @@ mod tests {
         assert_relative_eq!(reml.loglik, -5.253599, epsilon = 1e-6);
         assert_relative_eq!(reml.sigma2, 0.319077, epsilon = 1e-6);
         let one = vec![vec![1.0; 6]];
-        assert_relative_eq!(profiled(&dist, &p, &one, &y, Method::Ml).unwrap().loglik, -8.194006, epsilon = 1e-6);
-        assert_relative_eq!(profiled(&dist, &p, &one, &y, Method::Reml).unwrap().loglik, -7.798416, epsilon = 1e-6);
+        assert_relative_eq!(
+            profiled(&dist, &p, &one, &y, Method::Ml).unwrap().loglik,
+            -8.194006,
+            epsilon = 1e-6
+        );
+        assert_relative_eq!(
+            profiled(&dist, &p, &one, &y, Method::Reml).unwrap().loglik,
+            -7.798416,
+            epsilon = 1e-6
+        );
         // rescaling a covariate leaves ML unchanged and moves REML by ln 10 (REFERENCE.md §5.1)
         let xs10 = vec![vec![1.0; 6], x.iter().map(|v| v / 10.0).collect()];
-        assert_relative_eq!(profiled(&dist, &p, &xs10, &y, Method::Ml).unwrap().loglik, -3.366053, epsilon = 1e-6);
-        assert_relative_eq!(profiled(&dist, &p, &xs10, &y, Method::Reml).unwrap().loglik, -2.951014, epsilon = 1e-6);
+        assert_relative_eq!(
+            profiled(&dist, &p, &xs10, &y, Method::Ml).unwrap().loglik,
+            -3.366053,
+            epsilon = 1e-6
+        );
+        assert_relative_eq!(
+            profiled(&dist, &p, &xs10, &y, Method::Reml).unwrap().loglik,
+            -2.951014,
+            epsilon = 1e-6
+        );
         // the full density at the ML estimates equals the profiled value
         let full = full_loglik(&dist, &p, ml.sigma2, &xs, &ml.beta, &y).unwrap();
         assert_relative_eq!(full, ml.loglik, epsilon = 1e-10);
@@ -848,11 +862,7 @@ mod tests {
     fn duplicate_positions_are_singular_without_nugget() {
         let dist = Distances::from_coords(&[0.0, 0.0, 1.0], &[0.0, 0.0, 0.0]).unwrap();
         assert_eq!(dist.coincident(), vec![(0, 1)]);
-        let p = CovParams {
-            family: Family::Exponential,
-            range: 1.0,
-            eta: 0.0,
-        };
+        let p = CovParams { family: Family::Exponential, range: 1.0, eta: 0.0 };
         let e = cholesky(&dist, &p).unwrap_err();
         assert!(e.to_string().contains("fit with a nugget"), "{e}");
         assert!(cholesky(&dist, &CovParams { eta: 0.2, ..p }).is_ok());
@@ -862,7 +872,14 @@ mod tests {
     fn nelder_mead_finds_a_bounded_maximum() {
         // maximum of -(x-1)^2-(y-3)^2 inside [0,2]x[0,2] lies on the bound y = 2
         let mut f = |v: &[f64]| -(v[0] - 1.0).powi(2) - (v[1] - 3.0).powi(2);
-        let (x, fx, ok) = nelder_mead_max(&mut f, &[0.2, 0.2], &[0.5, 0.5], &[0.0, 0.0], &[2.0, 2.0], &SearchOptions::default());
+        let (x, fx, ok) = nelder_mead_max(
+            &mut f,
+            &[0.2, 0.2],
+            &[0.5, 0.5],
+            &[0.0, 0.0],
+            &[2.0, 2.0],
+            &SearchOptions::default(),
+        );
         assert!(ok);
         assert_relative_eq!(x[0], 1.0, epsilon = 1e-5);
         assert_relative_eq!(x[1], 2.0, epsilon = 1e-9);
@@ -901,7 +918,11 @@ mod tests {
         let n = z.len();
         let dist = Distances::from_coords(&x, &y).unwrap();
         for case in fixture("model_fixed.json")["topo"].as_array().unwrap() {
-            let cols = if case["formula"] == "z~1" { vec![vec![1.0; n]] } else { vec![vec![1.0; n], x.clone(), y.clone()] };
+            let cols = if case["formula"] == "z~1" {
+                vec![vec![1.0; n]]
+            } else {
+                vec![vec![1.0; n], x.clone(), y.clone()]
+            };
             let method = if case["method"] == "ML" { Method::Ml } else { Method::Reml };
             let p = CovParams {
                 family: family(case["family"].as_str().unwrap()),
@@ -916,18 +937,18 @@ mod tests {
                 assert_relative_eq!(*b, w.as_f64().unwrap(), max_relative = 1e-9);
             }
             if method == Method::Ml {
-                assert_relative_eq!(r.loglik, case["loglik_mvn_at_ml_sigma2"].as_f64().unwrap(), max_relative = 1e-9);
+                assert_relative_eq!(
+                    r.loglik,
+                    case["loglik_mvn_at_ml_sigma2"].as_f64().unwrap(),
+                    max_relative = 1e-9
+                );
             }
         }
         let six = &fixture("model_fixed.json")["six_point"];
         let xs = [0.0, 1.0, 2.0, 3.0, 5.0, 8.0];
         let ys = [1.2, 1.9, 2.1, 3.2, 2.8, 4.5];
         let d6 = Distances::from_coords(&xs, &[0.0; 6]).unwrap();
-        let p6 = CovParams {
-            family: Family::Exponential,
-            range: 1.5,
-            eta: 0.0,
-        };
+        let p6 = CovParams { family: Family::Exponential, range: 1.5, eta: 0.0 };
         for (m, key) in [(Method::Ml, "ML"), (Method::Reml, "REML")] {
             let r = profiled(&d6, &p6, &[vec![1.0; 6], xs.to_vec()], &ys, m).unwrap();
             assert_relative_eq!(r.loglik, six[key]["loglik"].as_f64().unwrap(), max_relative = 1e-12);
@@ -962,18 +983,20 @@ mod tests {
         let n = z.len();
         let dist = Distances::from_coords(&x, &y).unwrap();
         let fx = fixture("model_gls_known.json");
-        let p = CovParams {
-            family: Family::Exponential,
-            range: 2.0,
-            eta: 0.1,
-        };
+        let p = CovParams { family: Family::Exponential, range: 2.0, eta: 0.1 };
         let r = profiled(&dist, &p, &[vec![1.0; n], x.clone(), y.clone()], &z, Method::Ml).unwrap();
         assert_relative_eq!(r.loglik, fx["llf"].as_f64().unwrap(), max_relative = 1e-10);
         let scale = r.q / (n - 3) as f64;
         assert_relative_eq!(scale, fx["scale"].as_f64().unwrap(), max_relative = 1e-9);
-        for (j, (b, se)) in fx["params"].as_array().unwrap().iter().zip(fx["bse"].as_array().unwrap()).enumerate() {
+        for (j, (b, se)) in
+            fx["params"].as_array().unwrap().iter().zip(fx["bse"].as_array().unwrap()).enumerate()
+        {
             assert_relative_eq!(r.beta[j], b.as_f64().unwrap(), max_relative = 1e-9);
-            assert_relative_eq!((scale * r.xtvx_inv[j * 3 + j]).sqrt(), se.as_f64().unwrap(), max_relative = 1e-9);
+            assert_relative_eq!(
+                (scale * r.xtvx_inv[j * 3 + j]).sqrt(),
+                se.as_f64().unwrap(),
+                max_relative = 1e-9
+            );
         }
     }
 }
