@@ -534,9 +534,9 @@ pub struct SearchOptions {
     pub start_gap: f64,
     /// Maximum likelihood evaluations per simplex run (default 400).
     pub max_evals: usize,
-    /// Convergence: spread of the simplex log-likelihoods (default 1e-9).
+    /// Convergence: spread of the simplex log-likelihoods (default 1e-8).
     pub f_tol: f64,
-    /// Convergence: spread of the simplex vertices in (ln range, eta) (default 1e-7).
+    /// Convergence: spread of the simplex vertices in (ln range, eta) (default 1e-5).
     pub x_tol: f64,
 }
 
@@ -549,8 +549,8 @@ impl Default for SearchOptions {
             starts: 3,
             start_gap: 10.0,
             max_evals: 400,
-            f_tol: 1e-9,
-            x_tol: 1e-7,
+            f_tol: 1e-8,
+            x_tol: 1e-5,
         }
     }
 }
