@@ -11,6 +11,7 @@ use clap::{Parser, Subcommand};
 mod check;
 mod ingest;
 mod init;
+mod fit;
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
@@ -36,6 +37,8 @@ pub enum Command {
     /// Merge and clean the logger exports into one audited table of readings.
     #[command(long_about = ingest::HELP)]
     Ingest(ingest::IngestArgs),
+    /// Fit the trait models of `[model]`: OLS and ANOVA, and GLS with spatially correlated residuals by ML and REML.
+    Fit(fit::FitArgs),
 }
 
 /// Run the command line and return the process exit code.
@@ -64,5 +67,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Init(a) => init::run(a),
         Command::Check(a) => check::run(a),
         Command::Ingest(a) => ingest::run(a),
+        Command::Fit(args) => fit::run(args),
     }
 }

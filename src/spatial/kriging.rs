@@ -588,11 +588,15 @@ pub(crate) mod testdata {
         let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/data/topo.csv");
         let text = std::fs::read_to_string(path).expect("topo.csv");
         let (mut x, mut y, mut z) = (vec![], vec![], vec![]);
-        for line in text.lines().skip(1) {
+        let mut lines = text.lines();
+        let header: Vec<&str> = lines.next().expect("header").split(',').collect();
+        let col = |name: &str| header.iter().position(|h| *h == name).expect("topo column");
+        let (cx, cy, cz) = (col("x"), col("y"), col("z"));
+        for line in lines {
             let v: Vec<f64> = line.split(',').map(|s| s.parse().unwrap()).collect();
-            x.push(v[0]);
-            y.push(v[1]);
-            z.push(v[2]);
+            x.push(v[cx]);
+            y.push(v[cy]);
+            z.push(v[cz]);
         }
         let ids = (0..x.len()).map(|i| format!("t{i}")).collect();
         (Points::new("sensor", ids, x, y, None, &Origin::default()).unwrap(), z)

@@ -14,3 +14,4 @@ pub mod kriging;
 pub mod mapping;
 pub mod outputs;
 pub mod variogram;
+pub mod likelihood;

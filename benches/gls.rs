@@ -1,0 +1,158 @@
+//! Benchmark of the dense likelihood path: one profiled REML evaluation
+//! (fill of V, blocked Cholesky, whitening of [X | y], GLS solve) at
+//! n = 500, 1000, 2000, 4000 pots, next to a LAPACK Cholesky of the same
+//! matrix through numpy, measured in the same run; and the number of
+//! likelihood evaluations of a whole fit of one family at n = 1000.
+//!
+//! The reference interpreter is taken from `POTCLIM_BENCH_PYTHON` (default
+//! `python3`); without numpy the reference is reported as unavailable.
+//!
+//! Run: `cargo bench --bench gls`.
+
+use potclim::spatial::correlation::Family;
+use potclim::spatial::likelihood::{
+    CovParams, Distances, Method, SearchOptions, cholesky, maximise, profiled,
+};
+use rand::{RngExt, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use std::io::Write;
+use std::process::Command;
+use std::time::Instant;
+
+fn layout(n: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<Vec<f64>>) {
+    // pots on a jittered bench grid, 0.3 m pitch, 40 pots per row
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let mut x = Vec::with_capacity(n);
+    let mut y = Vec::with_capacity(n);
+    for i in 0..n {
+        x.push((i % 40) as f64 * 0.3 + rng.random_range(-0.05..0.05));
+        y.push((i / 40) as f64 * 0.3 + rng.random_range(-0.05..0.05));
+    }
+    let g: Vec<f64> = (0..n).map(|i| (i % 3) as f64).collect();
+    let cols = vec![
+        vec![1.0; n],
+        g.iter().map(|&v| f64::from(u8::from(v == 1.0))).collect(),
+        g.iter().map(|&v| f64::from(u8::from(v == 2.0))).collect(),
+    ];
+    let z: Vec<f64> =
+        (0..n).map(|i| (x[i] / 2.0).sin() + 0.2 * y[i] + rng.random_range(-1.0..1.0) + cols[1][i]).collect();
+    (x, y, z, cols)
+}
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
+
+/// Time numpy.linalg.cholesky on the same matrix (written to a temp file);
+/// returns the median of `reps` runs in seconds.
+fn numpy_cholesky(python: &str, dist: &Distances, p: &CovParams, reps: usize) -> Option<f64> {
+    let n = dist.len();
+    let dir = tempfile::tempdir().ok()?;
+    let path = dir.path().join("v.f64");
+    let mut f = std::io::BufWriter::new(std::fs::File::create(&path).ok()?);
+    for i in 0..n {
+        for j in 0..n {
+            let v = if i == j { 1.0 } else { (1.0 - p.eta) * p.family.correlation(dist.get(i, j), p.range) };
+            f.write_all(&v.to_le_bytes()).ok()?;
+        }
+    }
+    f.flush().ok()?;
+    drop(f);
+    let script = format!(
+        "import numpy as np, time, sys\nV = np.fromfile(sys.argv[1], dtype='<f8').reshape({n}, {n})\nnp.linalg.cholesky(V)\nts = []\nfor _ in range({reps}):\n    t = time.perf_counter(); np.linalg.cholesky(V); ts.append(time.perf_counter() - t)\nprint(sorted(ts)[len(ts)//2])\n"
+    );
+    let out = Command::new(python).arg("-c").arg(script).arg(&path).output().ok()?;
+    if !out.status.success() {
+        return None;
+    }
+    String::from_utf8_lossy(&out.stdout).trim().parse().ok()
+}
+
+fn main() {
+    let python = std::env::var("POTCLIM_BENCH_PYTHON").unwrap_or_else(|_| "python3".into());
+    let threads = std::thread::available_parallelism().map(|t| t.get()).unwrap_or(1);
+    println!("gls benchmark: {threads} hardware threads; reference = numpy.linalg.cholesky via `{python}`");
+    println!(
+        "{:>6} {:>14} {:>14} {:>14} {:>16} {:>8}",
+        "n", "fill+chol (s)", "chol only (s)", "eval (s)", "numpy chol (s)", "ratio"
+    );
+    for n in [500usize, 1000, 2000, 4000] {
+        let (x, y, z, cols) = layout(n, 7);
+        let dist = Distances::from_coords(&x, &y).unwrap();
+        let p = CovParams { family: Family::Exponential, range: 1.2, eta: 0.2 };
+        let reps = if n >= 4000 { 3 } else { 5 };
+        let mut t_eval = Vec::new();
+        let mut t_fill_chol = Vec::new();
+        let _ = profiled(&dist, &p, &cols, &z, Method::Reml).unwrap();
+        for _ in 0..reps {
+            let t = Instant::now();
+            let _l = cholesky(&dist, &p).unwrap();
+            t_fill_chol.push(t.elapsed().as_secs_f64());
+            let t = Instant::now();
+            let r = profiled(&dist, &p, &cols, &z, Method::Reml).unwrap();
+            t_eval.push(t.elapsed().as_secs_f64());
+            std::hint::black_box(r.loglik);
+        }
+        // factorisation alone (matrix filled beforehand)
+        let mut t_chol = Vec::new();
+        {
+            use faer::linalg::cholesky::llt::factor::{
+                LltRegularization, cholesky_in_place, cholesky_in_place_scratch,
+            };
+            let full = faer::Mat::from_fn(n, n, |i, j| {
+                if i == j { 1.0 } else { (1.0 - p.eta) * p.family.correlation(dist.get(i, j), p.range) }
+            });
+            for _ in 0..reps {
+                let mut m = full.clone();
+                let par = faer::Par::rayon(0);
+                let mut mem = faer::dyn_stack::MemBuffer::new(cholesky_in_place_scratch::<f64>(
+                    n,
+                    par,
+                    Default::default(),
+                ));
+                let stack = faer::dyn_stack::MemStack::new(&mut mem);
+                let t = Instant::now();
+                cholesky_in_place(m.as_mut(), LltRegularization::default(), par, stack, Default::default())
+                    .unwrap();
+                t_chol.push(t.elapsed().as_secs_f64());
+            }
+        }
+        let eval = median(t_eval);
+        let reference = numpy_cholesky(&python, &dist, &p, reps);
+        let (rs, ratio) = match reference {
+            Some(r) => (format!("{r:.4}"), format!("{:.2}", eval / r)),
+            None => ("unavailable".into(), "-".into()),
+        };
+        println!(
+            "{n:>6} {:>14.4} {:>14.4} {:>14.4} {:>16} {:>8}",
+            median(t_fill_chol),
+            median(t_chol),
+            eval,
+            rs,
+            ratio
+        );
+    }
+    println!("ratio = one whole profiled evaluation / numpy Cholesky of the same matrix");
+    let n = 1000;
+    let (x, y, z, cols) = layout(n, 11);
+    let dist = Distances::from_coords(&x, &y).unwrap();
+    for (family, nugget) in
+        [(Family::Exponential, true), (Family::Exponential, false), (Family::Spherical, true)]
+    {
+        let t = Instant::now();
+        let m =
+            maximise(&dist, family, &cols, &z, Method::Reml, &SearchOptions { nugget, ..Default::default() })
+                .unwrap();
+        println!(
+            "whole REML fit, {family}{} at n = {n}: {} likelihood evaluations, {:.2} s, converged {}, range {:.4}, nugget share {:.4}, loglik {:.4}",
+            if nugget { "+nugget" } else { "" },
+            m.evaluations,
+            t.elapsed().as_secs_f64(),
+            m.converged,
+            m.best.params.range,
+            m.best.params.eta,
+            m.best.loglik
+        );
+    }
+}

@@ -1,0 +1,370 @@
+//! The `[model]` section of the study file and the data it names: the trait
+//! column, the factor and block columns of the pot table, and the drivers
+//! (numeric pot-table columns or columns of `<output>/pot_covariates.csv`).
+
+use super::error::{ModelError, Result};
+use crate::io::error::closest;
+use crate::io::layout::{Pots, load_pots};
+use crate::io::study::Study;
+use crate::io::table::{Table, is_missing};
+use crate::spatial::correlation::Family;
+use serde::Deserialize;
+use std::path::PathBuf;
+
+/// The file of mapped drivers written by the mapping stage, inside the output folder.
+pub const COVARIATES_FILE: &str = "pot_covariates.csv";
+
+#[derive(Deserialize)]
+struct Doc {
+    model: Option<ModelSection>,
+}
+
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum OneOrMany {
+    One(String),
+    Many(Vec<String>),
+}
+
+/// `[model]` as written in the study file.
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct ModelSection {
+    #[serde(rename = "trait")]
+    trait_column: String,
+    #[serde(default)]
+    factors: Vec<String>,
+    #[serde(default)]
+    interactions: Vec<Vec<String>>,
+    #[serde(default)]
+    drivers: Vec<String>,
+    blocks: Option<OneOrMany>,
+    correlations: Option<Vec<String>>,
+    nugget: Option<bool>,
+}
+
+/// The validated `[model]` section.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ModelSpec {
+    /// The trait (response) column of the pot table.
+    pub trait_column: String,
+    /// Categorical treatment columns, in the order they enter the model.
+    pub factors: Vec<String>,
+    /// Interactions, each a list of two or more names from `factors`.
+    pub interactions: Vec<Vec<String>>,
+    /// Numeric covariates.
+    pub drivers: Vec<String>,
+    /// Blocking columns (categorical, entered first).
+    pub blocks: Vec<String>,
+    /// Correlation families to fit (default: exponential).
+    pub correlations: Vec<Family>,
+    /// Fit each family with and without a nugget (default true); without only if false.
+    pub nugget: bool,
+}
+
+impl ModelSpec {
+    /// Read and validate `[model]` of a study file.
+    pub fn from_study(study: &Study) -> Result<ModelSpec> {
+        let doc: Doc = study.section()?;
+        let Some(m) = doc.model else {
+            return Err(study
+                .invalid(
+                    "model",
+                    "the study file has no [model] section",
+                    Some("add `[model]` with at least `trait = \"<column>\"`".into()),
+                )
+                .into());
+        };
+        let blocks = match m.blocks {
+            None => Vec::new(),
+            Some(OneOrMany::One(s)) => vec![s],
+            Some(OneOrMany::Many(v)) => v,
+        };
+        let correlations = match m.correlations {
+            None => vec![Family::Exponential],
+            Some(v) => v
+                .iter()
+                .enumerate()
+                .map(|(i, s)| {
+                    Family::parse(s).map_err(|e| {
+                        ModelError::from(study.invalid(&format!("model.correlations[{i}]"), e, None))
+                    })
+                })
+                .collect::<Result<Vec<_>>>()?,
+        };
+        let mut seen = std::collections::HashSet::new();
+        for name in blocks.iter().chain(&m.factors).chain(&m.drivers).chain(std::iter::once(&m.trait_column))
+        {
+            if !seen.insert(name.as_str()) {
+                return Err(study
+                    .invalid(
+                        "model",
+                        format!("column `{name}` is named twice among trait, factors, blocks and drivers"),
+                        None,
+                    )
+                    .into());
+            }
+        }
+        for (i, inter) in m.interactions.iter().enumerate() {
+            if inter.len() < 2 {
+                return Err(study
+                    .invalid(
+                        &format!("model.interactions[{i}]"),
+                        "an interaction lists two or more factors",
+                        Some("e.g. interactions = [[\"accession\", \"regime\"]]".into()),
+                    )
+                    .into());
+            }
+            for f in inter {
+                if !m.factors.contains(f) {
+                    return Err(study
+                        .invalid(
+                            &format!("model.interactions[{i}]"),
+                            format!("`{f}` is not one of the factors ({})", m.factors.join(", ")),
+                            Some("list every factor of an interaction in `factors` too".into()),
+                        )
+                        .into());
+                }
+            }
+        }
+        Ok(ModelSpec {
+            trait_column: m.trait_column,
+            factors: m.factors,
+            interactions: m.interactions,
+            drivers: m.drivers,
+            blocks,
+            correlations,
+            nugget: m.nugget.unwrap_or(true),
+        })
+    }
+}
+
+/// One categorical column over the analysed pots.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FactorData {
+    /// Column name.
+    pub name: String,
+    /// Levels in order of first appearance in the pot table (the first is the reference).
+    pub levels: Vec<String>,
+    /// Level index of each analysed pot.
+    pub codes: Vec<usize>,
+}
+
+impl FactorData {
+    /// Build from cell texts (no missing values allowed).
+    pub fn from_labels(name: &str, labels: &[&str]) -> FactorData {
+        let mut levels: Vec<String> = Vec::new();
+        let codes = labels
+            .iter()
+            .map(|l| match levels.iter().position(|v| v == l) {
+                Some(k) => k,
+                None => {
+                    levels.push(l.to_string());
+                    levels.len() - 1
+                }
+            })
+            .collect();
+        FactorData { name: name.into(), levels, codes }
+    }
+}
+
+/// The analysed pots: response, factors, drivers and positions, aligned by row.
+#[derive(Clone, Debug)]
+pub struct ModelData {
+    /// The pot table (for messages).
+    pub source: PathBuf,
+    /// Trait column name.
+    pub trait_name: String,
+    /// Pot ids of the analysed pots.
+    pub pots: Vec<String>,
+    /// Physical line of each analysed pot in the pot table.
+    pub lines: Vec<usize>,
+    /// Positions (metres).
+    pub x: Vec<f64>,
+    /// Positions (metres).
+    pub y: Vec<f64>,
+    /// The trait values.
+    pub response: Vec<f64>,
+    /// Block columns.
+    pub blocks: Vec<FactorData>,
+    /// Factor columns.
+    pub factors: Vec<FactorData>,
+    /// Driver columns.
+    pub drivers: Vec<(String, Vec<f64>)>,
+    /// Pots left out because their trait value is missing (id, line).
+    pub excluded: Vec<(String, usize)>,
+}
+
+/// Load the data that `spec` names: the pot table, and `<output>/pot_covariates.csv`
+/// for drivers the pot table does not hold.
+pub fn load_model_data(study: &Study, spec: &ModelSpec) -> Result<ModelData> {
+    let pots = load_pots(study)?;
+    let cov_path = study.output_dir().join(COVARIATES_FILE);
+    let needs_cov = spec.drivers.iter().any(|d| !pots.table.headers.contains(d));
+    let covariates = if needs_cov && cov_path.exists() { Some(Table::read(&cov_path, b',')?) } else { None };
+    assemble(&pots, spec, covariates.as_ref(), &cov_path)
+}
+
+/// Build [`ModelData`] from a loaded pot table and optional covariate table.
+pub fn assemble(
+    pots: &Pots,
+    spec: &ModelSpec,
+    covariates: Option<&Table>,
+    cov_path: &std::path::Path,
+) -> Result<ModelData> {
+    let table = &pots.table;
+    let path = table.path.clone();
+    let values = table.optional_numbers(&spec.trait_column)?;
+    let keep: Vec<usize> = (0..values.len()).filter(|&i| values[i].is_some()).collect();
+    let excluded: Vec<(String, usize)> = (0..values.len())
+        .filter(|&i| values[i].is_none())
+        .map(|i| (pots.ids[i].clone(), table.lines[i]))
+        .collect();
+    if keep.is_empty() {
+        return Err(ModelError::Design {
+            path,
+            message: format!(
+                "the trait column `{}` has no values (every cell is empty or NA)",
+                spec.trait_column
+            ),
+            hint: Some("name the column that holds the measured trait in `[model] trait`".into()),
+        });
+    }
+    let categorical = |name: &str| -> Result<FactorData> {
+        let cells = table.text(name)?;
+        let j = table.column(name)?;
+        for &i in &keep {
+            if is_missing(cells[i]) {
+                return Err(table
+                    .bad(
+                        table.lines[i],
+                        name,
+                        &table.rows[i][j],
+                        "a factor level is missing",
+                        Some("every analysed pot needs a level of each factor and block".into()),
+                    )
+                    .into());
+            }
+        }
+        let labels: Vec<&str> = keep.iter().map(|&i| cells[i].trim()).collect();
+        let f = FactorData::from_labels(name, &labels);
+        if f.levels.len() < 2 {
+            return Err(ModelError::Design {
+                path: path.clone(),
+                message: format!(
+                    "factor `{name}` has a single level (`{}`) among the {} analysed pots",
+                    f.levels[0],
+                    keep.len()
+                ),
+                hint: Some("a factor needs two or more levels; remove it from `[model]`".into()),
+            });
+        }
+        Ok(f)
+    };
+    let blocks = spec.blocks.iter().map(|b| categorical(b)).collect::<Result<Vec<_>>>()?;
+    let factors = spec.factors.iter().map(|f| categorical(f)).collect::<Result<Vec<_>>>()?;
+    let mut drivers = Vec::new();
+    for d in &spec.drivers {
+        let v: Vec<f64> = if table.headers.contains(d) {
+            let v = table.optional_numbers(d)?;
+            let j = table.column(d)?;
+            keep.iter()
+                .map(|&i| {
+                    v[i].ok_or_else(|| {
+                        ModelError::from(table.bad(
+                            table.lines[i],
+                            d,
+                            &table.rows[i][j],
+                            "a driver value is missing",
+                            Some("every analysed pot needs a value of each driver".into()),
+                        ))
+                    })
+                })
+                .collect::<Result<Vec<_>>>()?
+        } else if let Some(cov) = covariates.filter(|c| c.headers.contains(d)) {
+            let ids = cov.text("pot")?;
+            let v = cov.optional_numbers(d)?;
+            let index: std::collections::HashMap<&str, usize> =
+                ids.iter().enumerate().map(|(k, id)| (id.trim(), k)).collect();
+            keep.iter()
+                .map(|&i| {
+                    let id = pots.ids[i].as_str();
+                    let k = *index.get(id).ok_or_else(|| ModelError::Design {
+                        path: cov.path.clone(),
+                        message: format!("pot `{id}` (pot table line {}) has no row", table.lines[i]),
+                        hint: Some("rerun the mapping stage for the current pot table".into()),
+                    })?;
+                    v[k].ok_or_else(|| {
+                        ModelError::from(cov.bad(
+                            cov.lines[k],
+                            d,
+                            &cov.rows[k][cov.column(d).unwrap_or(0)],
+                            "a driver value is missing",
+                            None,
+                        ))
+                    })
+                })
+                .collect::<Result<Vec<_>>>()?
+        } else {
+            return Err(unknown_driver(d, table, covariates, cov_path));
+        };
+        let (lo, hi) = v.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| (a.min(x), b.max(x)));
+        if lo == hi {
+            return Err(ModelError::Design {
+                path: path.clone(),
+                message: format!("driver `{d}` is constant ({lo}) over the analysed pots"),
+                hint: Some("a constant driver cannot be estimated next to the intercept; remove it".into()),
+            });
+        }
+        drivers.push((d.clone(), v));
+    }
+    Ok(ModelData {
+        source: path,
+        trait_name: spec.trait_column.clone(),
+        pots: keep.iter().map(|&i| pots.ids[i].clone()).collect(),
+        lines: keep.iter().map(|&i| table.lines[i]).collect(),
+        x: keep.iter().map(|&i| pots.x[i]).collect(),
+        y: keep.iter().map(|&i| pots.y[i]).collect(),
+        response: keep.iter().map(|&i| values[i].expect("kept")).collect(),
+        blocks,
+        factors,
+        drivers,
+        excluded,
+    })
+}
+
+fn unknown_driver(
+    d: &str,
+    table: &Table,
+    covariates: Option<&Table>,
+    cov_path: &std::path::Path,
+) -> ModelError {
+    let numeric: Vec<&str> = table
+        .headers
+        .iter()
+        .filter(|h| table.optional_numbers(h).is_ok_and(|v| v.iter().any(|x| x.is_some())))
+        .map(|h| h.as_str())
+        .collect();
+    let mapped: Vec<&str> = covariates
+        .map(|c| c.headers.iter().filter(|h| h.as_str() != "pot").map(|h| h.as_str()).collect())
+        .unwrap_or_default();
+    let all: Vec<&str> = numeric.iter().chain(&mapped).copied().collect();
+    let mut message = format!(
+        "driver `{d}` is neither a column of the pot table nor of {}; available drivers: numeric pot-table columns [{}]",
+        cov_path.display(),
+        numeric.join(", ")
+    );
+    if covariates.is_some() {
+        message.push_str(&format!(", mapped covariates [{}]", mapped.join(", ")));
+    } else {
+        message.push_str(&format!(" (no {COVARIATES_FILE} in the output folder)"));
+    }
+    let hint = match closest(d, all.iter().copied()) {
+        Some(s) => Some(format!("did you mean `{s}`?")),
+        None if covariates.is_none() => {
+            Some("mapped climate drivers appear after the mapping stage has run".into())
+        }
+        None => None,
+    };
+    ModelError::Design { path: table.path.clone(), message, hint }
+}

@@ -1,0 +1,54 @@
+//! Typed errors of the trait-model stage: what a user needs to fix the study
+//! file or the tables (file, line, column, value, hint).
+
+use crate::io::error::IoError;
+use crate::spatial::likelihood::LikelihoodError;
+use std::path::PathBuf;
+
+/// An error while building or fitting a trait model.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum ModelError {
+    /// Reading or validating an input failed (carries file, line, column).
+    #[error(transparent)]
+    Io(Box<IoError>),
+    /// The `[model]` section or the data cannot make a valid design.
+    #[error("{}: {message}{}", path.display(), hint_suffix(hint))]
+    Design {
+        /// The file concerned (study file or a table).
+        path: PathBuf,
+        /// What is wrong (names the columns, levels or cells).
+        message: String,
+        /// How to fix it.
+        hint: Option<String>,
+    },
+    /// A spatial fit failed.
+    #[error("model `{model}`: {source}{}", hint_suffix(hint))]
+    Likelihood {
+        /// The model that failed.
+        model: String,
+        /// What the likelihood engine said.
+        source: LikelihoodError,
+        /// How to fix it.
+        hint: Option<String>,
+    },
+    /// Fits that must not be compared were offered for comparison.
+    #[error("cannot compare these fits: {0}")]
+    Comparison(String),
+}
+
+impl From<IoError> for ModelError {
+    fn from(e: IoError) -> Self {
+        ModelError::Io(Box::new(e))
+    }
+}
+
+fn hint_suffix(hint: &Option<String>) -> String {
+    match hint {
+        Some(h) => format!(" (hint: {h})"),
+        None => String::new(),
+    }
+}
+
+/// Result alias of the stage.
+pub type Result<T> = std::result::Result<T, ModelError>;

@@ -1,0 +1,306 @@
+//! The `fit` stage: load the `[model]` design, fit OLS/ANOVA and every
+//! requested residual covariance by ML and REML, run the residual
+//! diagnostics and write `models.csv`, `coefficients.csv`, `anova.csv`,
+//! `residuals.csv` and `diagnostics.csv` atomically.
+
+use super::data::{ModelData, ModelSpec, load_model_data};
+use super::design::{CountTable, Design, DesignSpec, count_tables};
+use super::diagnostics::{MoranTest, knn, moran_residuals};
+use super::error::Result;
+use super::gls::{Errors, Fit, fit_correlated, fit_independent};
+use super::ols::{AnovaTable, OlsFit, SsType, anova, ols};
+use crate::io::output::StageWriter;
+use crate::io::study::Study;
+use crate::spatial::likelihood::{Distances, Method};
+use std::fmt::Write as _;
+use std::path::PathBuf;
+
+/// Neighbours per pot for Moran's I (common practice for regular bench layouts: the 4 adjacent pots).
+pub const MORAN_NEIGHBOURS: usize = 4;
+
+/// Reference distances (metres) at which the fitted correlation is reported.
+pub const REFERENCE_DISTANCES: [f64; 4] = [0.5, 1.0, 2.0, 5.0];
+
+/// Everything the `fit` stage computed.
+#[derive(Debug)]
+pub struct FitReport {
+    /// The validated `[model]` section.
+    pub spec: ModelSpec,
+    /// The analysed data.
+    pub data: ModelData,
+    /// The design.
+    pub design: Design,
+    /// OLS fit.
+    pub ols: OlsFit,
+    /// ANOVA tables of types I, II, III.
+    pub anova: Vec<AnovaTable>,
+    /// Count tables.
+    pub counts: Vec<CountTable>,
+    /// Every fit, independent errors first, each by ML then REML.
+    pub fits: Vec<Fit>,
+    /// Moran's I of each fit's (whitened) residuals, aligned with `fits`.
+    pub moran: Vec<Option<MoranTest>>,
+    /// Notes for the user (pots left out, fits skipped and why).
+    pub notes: Vec<String>,
+}
+
+/// Fit every model of the study's `[model]` section.
+pub fn fit_study(study: &Study) -> Result<FitReport> {
+    let spec = ModelSpec::from_study(study)?;
+    let data = load_model_data(study, &spec)?;
+    let dspec = DesignSpec {
+        blocks: spec.blocks.clone(),
+        factors: spec.factors.clone(),
+        interactions: spec.interactions.clone(),
+        drivers: spec.drivers.clone(),
+    };
+    let design = Design::build(&data, &dspec)?;
+    let y = &data.response;
+    let ols_fit = ols(&design, y);
+    let anovas = [SsType::Sequential, SsType::Hierarchical, SsType::Marginal]
+        .iter()
+        .map(|&k| anova(&design, y, k))
+        .collect();
+    let counts = count_tables(&data);
+    let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| {
+        super::error::ModelError::Likelihood { model: "positions".into(), source: e, hint: None }
+    })?;
+    let mut notes = Vec::new();
+    if !data.excluded.is_empty() {
+        let list: Vec<String> =
+            data.excluded.iter().map(|(id, line)| format!("{id} (line {line})")).collect();
+        notes.push(format!(
+            "{} pot(s) left out because `{}` is missing: {}",
+            data.excluded.len(),
+            data.trait_name,
+            list.join(", ")
+        ));
+    }
+    let mut fits = Vec::new();
+    for method in [Method::Ml, Method::Reml] {
+        fits.push(fit_independent(&design, y, method)?);
+    }
+    for &family in &spec.correlations {
+        let nuggets: &[bool] = if spec.nugget { &[false, true] } else { &[false] };
+        for &nugget in nuggets {
+            let label = Errors::Correlated { family, nugget }.label();
+            if !nugget && !dist.coincident().is_empty() && spec.nugget {
+                // without a nugget the covariance is singular; the nugget fit below still runs
+                notes.push(format!(
+                    "{label}: not fitted, {} pair(s) of pots share a position and the correlation matrix is singular without a nugget; fitted with a nugget instead",
+                    dist.coincident().len()
+                ));
+                continue;
+            }
+            for method in [Method::Ml, Method::Reml] {
+                fits.push(fit_correlated(&label, &design, y, &dist, &data.pots, family, nugget, method)?);
+            }
+        }
+    }
+    let nb = knn(&data.x, &data.y, MORAN_NEIGHBOURS);
+    let moran = fits
+        .iter()
+        .map(|f| nb.as_ref().and_then(|nb| moran_residuals(&f.normalised, &f.whitened_x, nb)))
+        .collect();
+    Ok(FitReport { spec, data, design, ols: ols_fit, anova: anovas, counts, fits, moran, notes })
+}
+
+fn num(v: f64) -> String {
+    if v.is_finite() { format!("{v:?}") } else { String::new() }
+}
+
+fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n']) { format!("\"{}\"", s.replace('"', "\"\"")) } else { s.to_string() }
+}
+
+/// The name of a fit in the output tables: the error structure.
+pub fn model_name(f: &Fit) -> String {
+    f.errors.label()
+}
+
+/// Render `models.csv`.
+pub fn models_csv(r: &FitReport) -> String {
+    let mut s = String::from(
+        "model,trait,drivers,correlation,nugget,method,loglik,aic,bic,n_params,range,partial_sill,nugget_variance,converged\n",
+    );
+    for f in &r.fits {
+        let (range, ps, nv) = match &f.covariance {
+            Some(c) => (num(c.params.range), num(c.partial_sill), num(c.nugget_variance)),
+            None => (String::new(), String::new(), String::new()),
+        };
+        let _ = writeln!(
+            s,
+            "{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+            csv_field(&model_name(f)),
+            csv_field(&r.data.trait_name),
+            csv_field(&f.drivers.join("+")),
+            csv_field(&f.errors.correlation_name()),
+            f.errors.has_nugget(),
+            f.method.label(),
+            num(f.loglik),
+            num(f.aic),
+            num(f.bic),
+            f.n_params,
+            range,
+            ps,
+            nv,
+            f.converged()
+        );
+    }
+    s
+}
+
+/// Render `coefficients.csv`: OLS rows (model `ols`) then every fit.
+pub fn coefficients_csv(r: &FitReport) -> String {
+    let mut s = String::from("model,method,term,estimate,se,t,p\n");
+    let o = &r.ols;
+    for j in 0..o.beta.len() {
+        let _ = writeln!(
+            s,
+            "ols,OLS,{},{},{},{},{}",
+            csv_field(&o.names[j]),
+            num(o.beta[j]),
+            num(o.se[j]),
+            num(o.t[j]),
+            num(o.p_value[j])
+        );
+    }
+    for f in &r.fits {
+        for j in 0..f.beta.len() {
+            let _ = writeln!(
+                s,
+                "{},{},{},{},{},{},{}",
+                csv_field(&model_name(f)),
+                f.method.label(),
+                csv_field(&f.names[j]),
+                num(f.beta[j]),
+                num(f.se[j]),
+                num(f.t[j]),
+                num(f.p_value[j])
+            );
+        }
+    }
+    s
+}
+
+/// Render `anova.csv`: OLS sums of squares of types I, II, III, then the
+/// marginal Wald F tests of every fit (test `wald`, no sum of squares).
+pub fn anova_csv(r: &FitReport) -> String {
+    let mut s = String::from("model,method,test,term,df,df_resid,sum_sq,mean_sq,F,p\n");
+    let df_resid = r.ols.df_resid;
+    for t in &r.anova {
+        for row in &t.rows {
+            let _ = writeln!(
+                s,
+                "ols,OLS,type_{},{},{},{},{},{},{},{}",
+                t.kind.label(),
+                csv_field(&row.term),
+                row.df,
+                if row.f.is_some() { df_resid.to_string() } else { String::new() },
+                num(row.sum_sq),
+                num(row.mean_sq),
+                row.f.map(num).unwrap_or_default(),
+                row.p.map(num).unwrap_or_default()
+            );
+        }
+    }
+    for f in &r.fits {
+        for w in &f.wald {
+            let _ = writeln!(
+                s,
+                "{},{},wald,{},{},{},,,{},{}",
+                csv_field(&model_name(f)),
+                f.method.label(),
+                csv_field(&w.term),
+                w.df,
+                w.df_resid,
+                num(w.f),
+                num(w.p)
+            );
+        }
+    }
+    s
+}
+
+/// Render `residuals.csv`: one row per pot and fit.
+pub fn residuals_csv(r: &FitReport) -> String {
+    let mut s = String::from("model,method,pot,fitted,residual,normalised_residual\n");
+    for f in &r.fits {
+        let name = csv_field(&model_name(f));
+        for i in 0..f.n {
+            let _ = writeln!(
+                s,
+                "{},{},{},{},{},{}",
+                name,
+                f.method.label(),
+                csv_field(&r.data.pots[i]),
+                num(f.fitted[i]),
+                num(f.residuals[i]),
+                num(f.normalised[i])
+            );
+        }
+    }
+    s
+}
+
+/// Render `diagnostics.csv`: per fit, covariance details and Moran's I.
+pub fn diagnostics_csv(r: &FitReport) -> String {
+    let mut s = String::from(
+        "model,method,sigma2,nugget_share,practical_range,aicc,evaluations,at_bounds,moran_k,moran_i,moran_expected,moran_variance,moran_z,moran_p",
+    );
+    for d in REFERENCE_DISTANCES {
+        let _ = write!(s, ",correlation_at_{d}m");
+    }
+    s.push('\n');
+    for (f, m) in r.fits.iter().zip(&r.moran) {
+        let (eta, pr) = match &f.covariance {
+            Some(c) => (num(c.params.eta), num(c.practical_range)),
+            None => (String::new(), String::new()),
+        };
+        let (ev, ab) = match &f.search {
+            Some(s) => (s.evaluations.to_string(), s.at_bounds.join("+")),
+            None => (String::new(), String::new()),
+        };
+        let moran = match m {
+            Some(m) => format!(
+                "{},{},{},{},{},{}",
+                m.k,
+                num(m.i),
+                num(m.expected),
+                num(m.variance),
+                num(m.z),
+                num(m.p)
+            ),
+            None => ",,,,,".into(),
+        };
+        let _ = write!(
+            s,
+            "{},{},{},{},{},{},{},{},{}",
+            csv_field(&model_name(f)),
+            f.method.label(),
+            num(f.sigma2),
+            eta,
+            pr,
+            f.aicc.map(num).unwrap_or_default(),
+            ev,
+            ab,
+            moran
+        );
+        for d in REFERENCE_DISTANCES {
+            let _ = write!(s, ",{}", num(f.correlation_at(d)));
+        }
+        s.push('\n');
+    }
+    s
+}
+
+/// Write every output of the stage into the study's output folder atomically.
+pub fn write_outputs(study: &Study, r: &FitReport) -> Result<Vec<PathBuf>> {
+    let mut w = StageWriter::new(&study.output_dir(), "fit")?;
+    w.write("models.csv", models_csv(r).as_bytes())?;
+    w.write("coefficients.csv", coefficients_csv(r).as_bytes())?;
+    w.write("anova.csv", anova_csv(r).as_bytes())?;
+    w.write("residuals.csv", residuals_csv(r).as_bytes())?;
+    w.write("diagnostics.csv", diagnostics_csv(r).as_bytes())?;
+    Ok(w.commit()?)
+}
