@@ -3,11 +3,11 @@
 //! the analysis. With `--png`, every figure is also written as
 //! `figures/<id>.png` through a headless Chromium.
 
-use anyhow::Context;
-use clap::Args;
 use crate::io::output::StageWriter;
 use crate::io::study::Study;
 use crate::report::{html, parse_report_data, png};
+use anyhow::Context;
+use clap::Args;
 use std::path::PathBuf;
 
 /// Arguments of `potclim report`.
@@ -25,7 +25,8 @@ pub struct ReportArgs {
 
 /// Run `potclim report`.
 pub fn run(args: ReportArgs) -> anyhow::Result<()> {
-    let study = Study::load(&args.study).with_context(|| format!("while reading {}", args.study.display()))?;
+    let study =
+        Study::load(&args.study).with_context(|| format!("while reading {}", args.study.display()))?;
     let out = study.output_dir();
     let data_path = out.join("report_data.json");
     let text = std::fs::read_to_string(&data_path).with_context(|| {

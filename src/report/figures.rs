@@ -313,9 +313,9 @@ pub fn daily_series(s: &DailySeries) -> Result<Figure, FigureError> {
                 let pts = run.clone();
                 let series = chart.draw_series(LineSeries::new(run, col.stroke_width(2)))?;
                 if first {
-                    series
-                        .label(t.sensor.clone())
-                        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2)));
+                    series.label(t.sensor.clone()).legend(move |(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2))
+                    });
                     first = false;
                 }
                 chart.draw_series(pts.into_iter().map(|p| Circle::new(p, 2, col.filled())))?;
@@ -444,7 +444,8 @@ pub fn delta_aic_bars(
     let xl = "ΔAIC (AIC units, 0 = best)".to_string();
     let yl = "model (sorted by AIC)".to_string();
     let xmax = sorted.iter().map(|r| r.delta_aic).fold(2.5f64, f64::max) * 1.08;
-    let label_w = (names.iter().map(|s| s.chars().count()).max().unwrap_or(10) as u32 * 7 + 20).clamp(120, 340);
+    let label_w =
+        (names.iter().map(|s| s.chars().count()).max().unwrap_or(10) as u32 * 7 + 20).clamp(120, 340);
     let height = 110 + 20 * n as u32;
     let width = 460 + label_w;
     render(&id, &title, (&xl, &yl), (width, height), |root| {
@@ -457,13 +458,16 @@ pub fn delta_aic_bars(
             .margin(10)
             .x_label_area_size(40)
             .y_label_area_size(label_w)
-            .build_cartesian_2d(0f64..xmax, (0usize..n).into_segmented())?;
+            // A discrete usize range is inclusive of its end in plotters, so
+            // `0..n - 1` gives exactly n segments; a single model gets two
+            // (an empty one on top) because plotters labels no segment of `0..0`.
+            .build_cartesian_2d(0f64..xmax, (0usize..(n - 1).max(1)).into_segmented())?;
         chart
             .configure_mesh()
             .disable_y_mesh()
             .light_line_style(WHITE.mix(0.0))
             .bold_line_style(BLACK.mix(0.08))
-            .y_labels(n)
+            .y_labels(n.max(2))
             .y_label_formatter(&fmt)
             .x_desc(xl.as_str())
             .y_desc(yl.as_str())
@@ -483,6 +487,10 @@ pub fn delta_aic_bars(
             );
             bar.set_margin(3, 3, 0, 0);
             bar
+        }))?;
+        chart.draw_series(sorted.iter().enumerate().map(|(k, r)| {
+            let at = (r.delta_aic.max(xmax * 0.004), SegmentValue::CenterOf(n - 1 - k));
+            EmptyElement::at(at) + Text::new(format!("{:.1}", r.delta_aic), (4, -5), (FONT, 10).into_font())
         }))?;
         if let Some(m) = tie_margin {
             let style = ShapeStyle { color: BLACK.to_rgba(), filled: false, stroke_width: 1 };
@@ -573,6 +581,23 @@ mod tests {
         }
         let empty = VariogramPanel { bins: vec![], ..p };
         assert!(matches!(variogram(&empty), Err(FigureError::Empty { .. })));
+    }
+
+    #[test]
+    fn delta_aic_bars_draw_any_number_of_models() {
+        let row = |name: &str, d: f64| ComparisonRow {
+            name: name.into(),
+            delta_aic: d,
+            ..ComparisonRow::default()
+        };
+        for rows in [vec![row("only", 0.0)], vec![row("a", 0.0), row("b", 3.5)]] {
+            let f = delta_aic_bars(&rows, Some("a"), Some(2.0)).unwrap();
+            assert_figure(&f);
+            for r in &rows {
+                assert!(f.svg.contains(&format!(">{}\n<", r.name)) || f.svg.contains(&r.name), "{}", r.name);
+            }
+        }
+        assert!(delta_aic_bars(&[], None, None).is_err());
     }
 
     #[test]

@@ -38,7 +38,13 @@ pub fn escape(s: &str) -> String {
 /// 1e-3 to 1e6 and in scientific notation otherwise; `–` for a non-finite value.
 pub fn sig(v: f64, digits: usize) -> String {
     if !v.is_finite() {
-        return if v.is_nan() { "–".into() } else if v > 0.0 { "∞".into() } else { "−∞".into() };
+        return if v.is_nan() {
+            "–".into()
+        } else if v > 0.0 {
+            "∞".into()
+        } else {
+            "−∞".into()
+        };
     }
     if v == 0.0 {
         return "0".into();
@@ -105,12 +111,14 @@ fn openings(d: &ReportData) -> &[OpeningSegment] {
     d.layout.as_ref().map_or(&[], |l| l.openings.as_slice())
 }
 
-const RUN: &str = "It is produced by <code>potclim run STUDY</code>";
+const RUN: &str = "It is produced by <code>potclim run STUDY</code>.";
 
 /// What each verdict word means, in the page's words.
 fn word_meaning(w: &str) -> &'static str {
     match w {
-        "covariate" => "a measured microclimate driver (or the distance to an opening) explains the spatial pattern",
+        "covariate" => {
+            "a measured microclimate driver (or the distance to an opening) explains the spatial pattern"
+        }
         "correlation" => {
             "something unmeasured that varies smoothly over the floor explains the pattern better than any measured driver"
         }
@@ -172,11 +180,7 @@ fn section_verdict(d: &ReportData, out: &mut String) {
                 opt(r.delta_aic, |x| fixed(x, 2)),
                 opt(r.delta_aic_with_correlation, |x| fixed(x, 2)),
                 opt(r.vif, |x| fixed(x, 2)),
-                if r.confounded {
-                    "<span class=\"flag\">spatially confounded</span>"
-                } else {
-                    ""
-                }
+                if r.confounded { "<span class=\"flag\">spatially confounded</span>" } else { "" }
             );
         }
         out.push_str("</table></div>\n<p class=\"lead\">Effect: change of the trait per unit of the driver. SE incl. mapping: the standard error once the uncertainty of the kriged driver map is included (combined over conditional simulations by Rubin's rules). ΔAIC: AIC of the model without the driver minus AIC with it, alone with independent errors and with the best correlation model; positive values mean the driver improves the model. VIF: variance inflation against the other drivers; above about 5 the drivers are hard to tell apart (common practice). Spatially confounded: the effect vanishes once spatial correlation is modelled.</p>\n");
@@ -295,7 +299,10 @@ fn section_climate(d: &ReportData, out: &mut String) {
         out.push_str("<div class=\"figs\">\n");
         match figures::indicator_maps(&s.name, &s.unit, &s.points, extent(d), sensors(d)) {
             Ok((v, se)) => {
-                out.push_str(&figure_html(Ok(v), "The indicator at each pot, interpolated from the loggers (triangles) by kriging."));
+                out.push_str(&figure_html(
+                    Ok(v),
+                    "The indicator at each pot, interpolated from the loggers (triangles) by kriging.",
+                ));
                 out.push_str(&figure_html(
                     Ok(se),
                     "Its standard error: small near the loggers, large far from them. Read the left map only where this one is small.",
@@ -386,7 +393,9 @@ fn section_spatial(d: &ReportData, out: &mut String) {
     }
     out.push_str("<p class=\"lead\">A variogram shows how different two values are, on average, as a function of the distance between them. A curve that rises and levels off means nearby pots (or loggers) are more alike than distant ones; the level is the sill, the height at zero distance the nugget, and the distance where it levels off the range. A flat cloud means no spatial structure.</p>\n<div class=\"figs\">\n");
     for p in &d.variograms {
-        let mut cap = String::from("Circles: experimental semivariance per lag bin (larger = more pairs). Lines: fitted families.");
+        let mut cap = String::from(
+            "Circles: experimental semivariance per lag bin (larger = more pairs). Lines: fitted families.",
+        );
         if !p.fits.is_empty() {
             cap.push_str(
                 "<table><tr><th>family</th><th class=\"n\">nugget</th><th class=\"n\">sill</th><th class=\"n\">range (m)</th><th class=\"n\">practical range (m)</th></tr>",
@@ -497,11 +506,12 @@ fn section_models(d: &ReportData, out: &mut String) {
         }
         out.push_str("</div>\n");
     }
-    let morans: Vec<(&str, &ResidualMap)> = [("before", m.residuals_before.as_ref()), ("after", m.residuals_after.as_ref())]
-        .into_iter()
-        .filter_map(|(w, r)| r.map(|r| (w, r)))
-        .filter(|(_, r)| r.moran.is_some())
-        .collect();
+    let morans: Vec<(&str, &ResidualMap)> =
+        [("before", m.residuals_before.as_ref()), ("after", m.residuals_after.as_ref())]
+            .into_iter()
+            .filter_map(|(w, r)| r.map(|r| (w, r)))
+            .filter(|(_, r)| r.moran.is_some())
+            .collect();
     if !morans.is_empty() {
         out.push_str("<h3>Moran's I of the residuals</h3>\n<table>\n<tr><th>residuals of</th><th class=\"n\">I</th><th class=\"n\">expected if no autocorrelation</th><th class=\"n\">variance</th><th class=\"n\">p</th><th>test</th></tr>\n");
         for (_, r) in morans {
@@ -631,11 +641,10 @@ pub fn render_html(d: &ReportData) -> String {
     section_models(d, &mut out);
     section_means(d, &mut out);
     section_provenance(d, &mut out);
-    let version = d.provenance.as_ref().map_or(env!("CARGO_PKG_VERSION"), |p| p.tool_version.as_str());
+    let version = d.provenance.as_ref().map_or(String::new(), |p| format!(" {}", escape(&p.tool_version)));
     let _ = write!(
         out,
-        "</main>\n<footer>Written by potclim {}. The data behind every table and figure is in <code>report_data.json</code> beside this file.</footer>\n</body>\n</html>\n",
-        escape(version)
+        "</main>\n<footer>Written by potclim{version}. The data behind every table and figure is in <code>report_data.json</code> beside this file.</footer>\n</body>\n</html>\n"
     );
     out
 }
@@ -659,11 +668,7 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
     out.extend(d.variograms.iter().map(figures::variogram));
     if let Some(m) = &d.models {
         let chosen = d.verdict.as_ref().map(|v| v.chosen_model.as_str());
-        out.push(figures::delta_aic_bars(
-            &m.comparison,
-            chosen,
-            m.tie_margin,
-        ));
+        out.push(figures::delta_aic_bars(&m.comparison, chosen, m.tie_margin));
         out.extend(figures::residual_maps(
             m.residuals_before.as_ref(),
             m.residuals_after.as_ref(),
@@ -674,4 +679,268 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
         ));
     }
     out.into_iter().filter_map(Result::ok).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::sample::sample_report;
+    use super::super::xml::check_well_formed;
+    use super::*;
+
+    const SECTIONS: [&str; 7] = ["verdict", "layout", "climate", "spatial", "models", "means", "provenance"];
+
+    #[test]
+    fn escape_covers_markup_and_quotes() {
+        assert_eq!(escape(r#"<a href="x">'&'</a>"#), "&lt;a href=&quot;x&quot;&gt;&#39;&amp;&#39;&lt;/a&gt;");
+        assert_eq!(escape("°C µmol m⁻²"), "°C µmol m⁻²");
+    }
+
+    #[test]
+    fn numbers_have_fixed_precision() {
+        assert_eq!(sig(-0.45123, 4), "-0.4512");
+        assert_eq!(sig(512.6, 4), "512.6");
+        assert_eq!(sig(0.0001234, 3), "1.23e-4");
+        assert_eq!(sig(1234567.0, 3), "1.23e6");
+        assert_eq!(sig(0.0, 3), "0");
+        assert_eq!(sig(f64::NAN, 3), "–");
+        assert_eq!(fixed(2.0 / 3.0, 2), "0.67");
+        assert_eq!(p_value(Some(0.0004)), "&lt; 0.001");
+        assert_eq!(p_value(Some(0.04567)), "0.046");
+        assert_eq!(p_value(None), "–");
+        assert_eq!(df(83.0), "83");
+        assert_eq!(df(12.345), "12.35");
+    }
+
+    /// A sensor named like a script tag reaches the page as text only: in the
+    /// logger table (our escape) and in the SVG labels (plotters' escape).
+    #[test]
+    fn user_strings_never_become_markup() {
+        let mut d = sample_report();
+        let evil = "<script>alert(1)</script>";
+        d.layout.as_mut().unwrap().sensors[0].id = evil.into();
+        d.title = format!("Trial & {evil}");
+        d.layout.as_mut().unwrap().trait_name = "\"height\" <cm>".into();
+        let page = render_html(&d);
+        assert!(!page.to_lowercase().contains("<script"), "a script tag reached the page");
+        let escaped = "&lt;script&gt;alert(1)&lt;/script&gt;";
+        assert!(page.matches(escaped).count() >= 3, "expected the name in table, title and maps");
+        assert!(page.contains("<td>&lt;script&gt;alert(1)&lt;/script&gt;</td>"));
+        check_well_formed(&page).unwrap();
+    }
+
+    #[test]
+    fn the_page_is_well_formed_with_every_section() {
+        let page = render_html(&sample_report());
+        check_well_formed(&page).unwrap();
+        let mut last = 0;
+        for id in SECTIONS {
+            let at =
+                page.find(&format!("<section id=\"{id}\">")).unwrap_or_else(|| panic!("no section {id}"));
+            assert!(at > last, "section {id} out of order");
+            last = at;
+        }
+        assert!(!page.contains("class=\"missing\""), "the full sample should have no missing section");
+        assert!(!page.contains("http://") || page.matches("http://").all(|_| true));
+        // Self-contained: no external references (the only URLs are the SVG namespace).
+        for bad in ["<link", "<script", "src=\"", "url("] {
+            assert!(!page.contains(bad), "external asset marker {bad}");
+        }
+    }
+
+    #[test]
+    fn every_figure_is_xml_with_title_and_labelled_axes() {
+        let figs = all_figures(&sample_report());
+        assert_eq!(figs.len(), 10, "{:?}", figs.iter().map(|f| &f.id).collect::<Vec<_>>());
+        let mut ids: Vec<&str> = figs.iter().map(|f| f.id.as_str()).collect();
+        ids.sort();
+        ids.dedup();
+        assert_eq!(ids.len(), figs.len(), "figure ids must be unique");
+        for f in &figs {
+            check_well_formed(&f.svg).unwrap_or_else(|e| panic!("{}: {e}", f.id));
+            for s in [&f.title, &f.x_label, &f.y_label] {
+                assert!(f.svg.contains(&escape(s)), "{}: {s:?} is not drawn", f.id);
+            }
+            for l in [&f.x_label, &f.y_label] {
+                let unit = l.rsplit_once('(').map(|(_, u)| u.trim_end_matches(')').trim());
+                assert!(unit.is_some_and(|u| !u.is_empty()), "{}: axis label {l:?} has no unit", f.id);
+            }
+        }
+    }
+
+    #[test]
+    fn missing_stages_leave_a_note_naming_the_command() {
+        let page = render_html(&ReportData { title: "Empty".into(), ..ReportData::default() });
+        check_well_formed(&page).unwrap();
+        for id in SECTIONS {
+            assert!(page.contains(&format!("<section id=\"{id}\">")), "{id}");
+        }
+        assert_eq!(page.matches("class=\"missing\"").count(), 7);
+        assert_eq!(page.matches("potclim run STUDY").count(), 7);
+    }
+
+    #[test]
+    fn report_data_round_trips_through_json() {
+        let d = sample_report();
+        let text = serde_json::to_string(&d).unwrap();
+        let back = super::super::parse_report_data(std::path::Path::new("r.json"), &text).unwrap();
+        // serde_json's default float parsing may differ in the last bit, so
+        // compare the two documents with a relative tolerance on numbers.
+        fn close(a: &serde_json::Value, b: &serde_json::Value) -> bool {
+            use serde_json::Value::*;
+            match (a, b) {
+                (Number(x), Number(y)) => {
+                    let (x, y) = (x.as_f64().unwrap(), y.as_f64().unwrap());
+                    (x - y).abs() <= 1e-14 * x.abs().max(y.abs()).max(1.0)
+                }
+                (Array(x), Array(y)) => x.len() == y.len() && x.iter().zip(y).all(|(p, q)| close(p, q)),
+                (Object(x), Object(y)) => {
+                    x.len() == y.len() && x.iter().all(|(k, v)| y.get(k).is_some_and(|w| close(v, w)))
+                }
+                _ => a == b,
+            }
+        }
+        let a: serde_json::Value = serde_json::from_str(&text).unwrap();
+        let b = serde_json::to_value(&back).unwrap();
+        assert!(close(&a, &b), "JSON changed on a round trip");
+        assert_eq!(back.title, d.title);
+        assert_eq!(back.verdict, d.verdict);
+        let err = super::super::parse_report_data(std::path::Path::new("r.json"), "{\n  \"title\": 3\n}")
+            .unwrap_err()
+            .to_string();
+        assert!(err.starts_with("r.json:2:"), "{err}");
+    }
+
+    fn small_report() -> ReportData {
+        ReportData {
+            title: "Snapshot study".into(),
+            compartment: Some(CompartmentSize { length: 4.0, width: 2.0 }),
+            verdict: Some(VerdictSection {
+                word: "correlation".into(),
+                reason: "An unmeasured effect explains it.".into(),
+                chosen_model: "base | exponential".into(),
+                best_by_aic: Some("base | exponential".into()),
+                trait_unit: Some("cm".into()),
+                drivers: vec![DriverRow {
+                    name: "cold".into(),
+                    unit: Some("h".into()),
+                    estimate: -0.123456,
+                    se: 0.0456789,
+                    se_with_mapping_uncertainty: Some(0.0512345),
+                    ci_low: -0.2130,
+                    ci_high: -0.0339,
+                    p_value: Some(0.00712),
+                    delta_aic: Some(4.56789),
+                    delta_aic_with_correlation: Some(-1.2345),
+                    vif: Some(1.0),
+                    confounded: true,
+                }],
+                cautions: vec!["Two loggers only.".into()],
+            }),
+            models: Some(ModelsSection {
+                comparison: vec![
+                    ComparisonRow {
+                        name: "base".into(),
+                        loglik: -20.123456,
+                        aic: 46.246912,
+                        bic: 48.1,
+                        n_params: 3,
+                        delta_aic: 3.0,
+                        akaike_weight: 0.18242552,
+                        ..ComparisonRow::default()
+                    },
+                    ComparisonRow {
+                        name: "base | exponential".into(),
+                        correlation: Some("exponential".into()),
+                        nugget: true,
+                        loglik: -17.623456,
+                        aic: 43.246912,
+                        bic: 46.0,
+                        n_params: 4,
+                        delta_aic: 0.0,
+                        akaike_weight: 0.81757448,
+                        ..ComparisonRow::default()
+                    },
+                ],
+                anova: vec![AnovaTable {
+                    model: "base".into(),
+                    kind: None,
+                    rows: vec![
+                        AnovaRow {
+                            term: "accession".into(),
+                            df: 2.0,
+                            sum_sq: Some(10.5),
+                            mean_sq: Some(5.25),
+                            f: Some(3.27654),
+                            p_value: Some(0.0712),
+                        },
+                        AnovaRow {
+                            term: "residual".into(),
+                            df: 9.0,
+                            sum_sq: Some(15.04),
+                            ..AnovaRow::default()
+                        },
+                    ],
+                }],
+                tie_margin: Some(2.0),
+                ..ModelsSection::default()
+            }),
+            adjusted_means: vec![AdjustedMean {
+                factor: "accession".into(),
+                level: "A1".into(),
+                mean: 10.0,
+                se: 0.25,
+                plain_mean: 9.5,
+                change: 0.5,
+            }],
+            adjusted_means_unit: Some("cm".into()),
+            ..ReportData::default()
+        }
+    }
+
+    /// Replace every inline SVG by a marker naming its size, so the snapshot
+    /// pins the page's text and tables; the figures have their own tests.
+    fn strip_svgs(page: &str) -> String {
+        let mut out = String::new();
+        let mut rest = page;
+        while let Some(a) = rest.find("<svg") {
+            out.push_str(&rest[..a]);
+            let end = rest[a..].find("</svg>").expect("closed svg") + a + "</svg>".len();
+            let head_end = rest[a..].find('>').unwrap() + a;
+            let head = &rest[a..head_end];
+            let attr = |k: &str| {
+                head.split(&format!("{k}=\""))
+                    .nth(1)
+                    .and_then(|s| s.split('"').next())
+                    .unwrap_or("?")
+                    .to_string()
+            };
+            out.push_str(&format!("<svg-figure width=\"{}\" height=\"{}\"/>", attr("width"), attr("height")));
+            rest = &rest[end..];
+        }
+        out.push_str(rest);
+        out
+    }
+
+    /// Snapshot of a small fixed report. Regenerate after an intended change
+    /// with `UPDATE_SNAPSHOTS=1 cargo test --lib report::html` and review the diff.
+    #[test]
+    fn snapshot_of_a_small_report() {
+        let page = strip_svgs(&render_html(&small_report()));
+        let path =
+            std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("src/report/snapshots/small_report.html");
+        if std::env::var_os("UPDATE_SNAPSHOTS").is_some() {
+            std::fs::create_dir_all(path.parent().unwrap()).unwrap();
+            std::fs::write(&path, &page).unwrap();
+        }
+        let want = std::fs::read_to_string(&path).expect("snapshot missing: run with UPDATE_SNAPSHOTS=1");
+        if want != page {
+            let line = want.lines().zip(page.lines()).position(|(a, b)| a != b).unwrap_or(0);
+            panic!(
+                "snapshot differs at line {}:\n  want: {}\n  got:  {}\n(full output:\n{page})",
+                line + 1,
+                want.lines().nth(line).unwrap_or(""),
+                page.lines().nth(line).unwrap_or("")
+            );
+        }
+    }
 }

@@ -79,6 +79,7 @@ pub fn parse_report_data(path: &std::path::Path, text: &str) -> Result<ReportDat
         line: e.line(),
         column: e.column(),
         message: e.to_string(),
-        hint: "this file is written by `potclim run`; run it again, or see docs/outputs.md for its fields".into(),
+        hint: "this file is written by `potclim run`; run it again, or see docs/outputs.md for its fields"
+            .into(),
     })
 }

@@ -128,7 +128,10 @@ pub fn figure_png(browser: &Path, fig: &Figure, out: &Path) -> Result<(), Report
             let tail: String = err.lines().rev().take(5).collect::<Vec<_>>().join(" | ");
             return Err(ReportError::Png {
                 figure: fig.id.clone(),
-                message: format!("the browser {} and wrote no PNG; its last messages: {tail}", if ok { "exited" } else { "failed" }),
+                message: format!(
+                    "the browser {} and wrote no PNG; its last messages: {tail}",
+                    if ok { "exited" } else { "failed" }
+                ),
             });
         }
         Ok(())

@@ -60,8 +60,16 @@ pub fn sample_report() -> ReportData {
                 y,
                 value: if k == 37 { None } else { Some(mass) },
             });
-            let dmin = sensors.iter().map(|s| ((s.x - x).powi(2) + (s.y - y).powi(2)).sqrt()).fold(f64::MAX, f64::min);
-            mapped.push(MappedValue { x, y, value: cold + 0.6 * wiggle(k + 1000), se: 0.4 + 0.9 * dmin.min(4.0) });
+            let dmin = sensors
+                .iter()
+                .map(|s| ((s.x - x).powi(2) + (s.y - y).powi(2)).sqrt())
+                .fold(f64::MAX, f64::min);
+            mapped.push(MappedValue {
+                x,
+                y,
+                value: cold + 0.6 * wiggle(k + 1000),
+                se: 0.4 + 0.9 * dmin.min(4.0),
+            });
             before.push(ResidualPoint { x, y, residual: -0.45 * (cold - 12.0) + resid });
             after.push(ResidualPoint { x, y, residual: resid });
             k += 1;
@@ -114,7 +122,8 @@ pub fn sample_report() -> ReportData {
                 let lag = i as f64 * 0.65;
                 VariogramBin {
                     lag,
-                    semivariance: 0.1 * sill + 0.9 * sill * (1.0 - (-lag / range).exp()) * (1.0 + 0.08 * wiggle(seed + i)),
+                    semivariance: 0.1 * sill
+                        + 0.9 * sill * (1.0 - (-lag / range).exp()) * (1.0 + 0.08 * wiggle(seed + i)),
                     pairs: 40 + 25 * i.min(6) - 3 * i.saturating_sub(6),
                 }
             })
@@ -122,7 +131,14 @@ pub fn sample_report() -> ReportData {
     };
     let comparison_rows = [
         ("base + night_cold_hours", vec!["night_cold_hours"], None, false, -241.3, 15),
-        ("base + night_cold_hours | exponential", vec!["night_cold_hours"], Some("exponential"), false, -240.6, 17),
+        (
+            "base + night_cold_hours | exponential",
+            vec!["night_cold_hours"],
+            Some("exponential"),
+            false,
+            -240.6,
+            17,
+        ),
         ("base + distance_cooling_pad", vec!["distance_cooling_pad"], None, false, -244.9, 15),
         ("base | exponential + nugget", vec![], Some("exponential"), true, -246.2, 17),
         ("base | gaussian", vec![], Some("gaussian"), false, -249.0, 16),

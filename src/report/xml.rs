@@ -144,7 +144,9 @@ fn check_text(s: &str) -> Result<(), String> {
         let semi = after.find(';').ok_or("bare `&`".to_string())?;
         let ent = &after[..semi];
         let ok = matches!(ent, "lt" | "gt" | "amp" | "quot" | "apos")
-            || ent.strip_prefix("#x").is_some_and(|h| !h.is_empty() && h.chars().all(|c| c.is_ascii_hexdigit()))
+            || ent
+                .strip_prefix("#x")
+                .is_some_and(|h| !h.is_empty() && h.chars().all(|c| c.is_ascii_hexdigit()))
             || ent.strip_prefix('#').is_some_and(|d| !d.is_empty() && d.chars().all(|c| c.is_ascii_digit()));
         if !ok {
             return Err(format!("unknown entity &{ent};"));
@@ -160,8 +162,10 @@ mod tests {
 
     #[test]
     fn accepts_well_formed_documents() {
-        check_well_formed(r#"<svg a="1" b='2'><g><text x="0">a &lt; b &amp; &#176; &#x3B1;</text></g><rect/></svg>"#)
-            .unwrap();
+        check_well_formed(
+            r#"<svg a="1" b='2'><g><text x="0">a &lt; b &amp; &#176; &#x3B1;</text></g><rect/></svg>"#,
+        )
+        .unwrap();
         check_well_formed("<!DOCTYPE html>\n<html><!-- c --><body><p>x > y</p></body></html>\n").unwrap();
         check_well_formed("<?xml version=\"1.0\"?><a/>").unwrap();
     }
