@@ -62,7 +62,7 @@ pub enum FigureError {
 type DrawResult = Result<(), Box<dyn std::error::Error>>;
 
 const FONT: &str = "sans-serif";
-const LEGEND_W: u32 = 120;
+const LEGEND_W: u32 = 134;
 
 fn rgb(c: Rgb) -> RGBColor {
     RGBColor(c.0, c.1, c.2)
@@ -121,7 +121,7 @@ fn colour_bar(area: &DrawingArea<SVGBackend<'_>, Shift>, scale: Scale, label: &s
         .margin_top(40)
         .margin_bottom(50)
         .margin_right(8)
-        .y_label_area_size(62)
+        .y_label_area_size(74)
         .build_cartesian_2d(0f64..1f64, lo..hi)?;
     chart
         .configure_mesh()
@@ -160,6 +160,9 @@ pub struct MapSpec<'a> {
     pub sensors: &'a [SensorPoint],
     /// Openings to mark (thick segments with their names).
     pub openings: &'a [OpeningSegment],
+    /// A full-width map (760 px plot) rather than a half-width one (460 px)
+    /// meant to stand beside another.
+    pub wide: bool,
 }
 
 /// A floor-plan map: points coloured by value, sensors and openings marked,
@@ -179,7 +182,7 @@ pub fn value_map(spec: &MapSpec<'_>) -> Result<Figure, FigureError> {
             (a - pad, b + pad, c - pad, d + pad)
         }
     };
-    let plot_w = 600.0;
+    let plot_w = if spec.wide { 760.0 } else { 460.0 };
     let plot_h = (plot_w * (y1 - y0) / (x1 - x0)).clamp(160.0, 620.0);
     let width = plot_w as u32 + 80 + LEGEND_W;
     let height = plot_h as u32 + 100;
@@ -200,7 +203,7 @@ pub fn value_map(spec: &MapSpec<'_>) -> Result<Figure, FigureError> {
             .bold_line_style(BLACK.mix(0.08))
             .x_desc(xl)
             .y_desc(yl)
-            .label_style((FONT, 11))
+            .label_style((FONT, 12))
             .axis_desc_style((FONT, 13))
             .draw()?;
         chart.draw_series(spec.points.iter().map(|&(x, y, v)| match v {
@@ -246,6 +249,7 @@ pub fn indicator_maps(
         legend: format!("{name} ({unit})"),
         sensors,
         openings: &[],
+        wide: false,
     };
     let se = MapSpec {
         id: format!("indicator-{base}-se"),
@@ -529,6 +533,7 @@ pub fn residual_maps(
             legend: format!("residual ({unit})"),
             sensors,
             openings,
+            wide: false,
         };
         out.push(value_map(&spec));
     }
@@ -612,6 +617,7 @@ mod tests {
             legend: "height (cm)".into(),
             sensors: &sensors,
             openings: &[],
+            wide: true,
         };
         let f = value_map(&spec).unwrap();
         assert_figure(&f);

@@ -210,6 +210,7 @@ fn layout_figure(d: &ReportData, l: &LayoutSection) -> Result<Figure, FigureErro
         legend: format!("{} ({})", l.trait_name, l.trait_unit),
         sensors: &l.sensors,
         openings: &l.openings,
+        wide: true,
     })
 }
 
