@@ -679,7 +679,20 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
             openings(d),
         ));
     }
-    out.into_iter().filter_map(Result::ok).collect()
+    // Ids become file names: two subjects with the same slug must not
+    // overwrite each other's file.
+    let mut figs: Vec<Figure> = out.into_iter().filter_map(Result::ok).collect();
+    let mut seen: Vec<String> = Vec::new();
+    for f in &mut figs {
+        let base = f.id.clone();
+        let mut k = 1;
+        while seen.contains(&f.id) {
+            k += 1;
+            f.id = format!("{base}-{k}");
+        }
+        seen.push(f.id.clone());
+    }
+    figs
 }
 
 #[cfg(test)]
@@ -750,6 +763,11 @@ mod tests {
 
     #[test]
     fn every_figure_is_xml_with_title_and_labelled_axes() {
+        let mut twice = sample_report();
+        let v = twice.variograms[0].clone();
+        twice.variograms.push(v);
+        let ids: Vec<String> = all_figures(&twice).into_iter().map(|f| f.id).collect();
+        assert!(ids.contains(&"variogram-night-cold-hours-2".to_string()), "{ids:?}");
         let figs = all_figures(&sample_report());
         assert_eq!(figs.len(), 10, "{:?}", figs.iter().map(|f| &f.id).collect::<Vec<_>>());
         let mut ids: Vec<&str> = figs.iter().map(|f| f.id.as_str()).collect();
