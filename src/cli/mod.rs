@@ -12,6 +12,7 @@ mod check;
 mod ingest;
 mod init;
 mod fit;
+mod report;
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
@@ -39,6 +40,8 @@ pub enum Command {
     Ingest(ingest::IngestArgs),
     /// Fit the trait models of `[model]`: OLS and ANOVA, and GLS with spatially correlated residuals by ML and REML.
     Fit(fit::FitArgs),
+    /// Redraw report.html from the report_data.json of an earlier run.
+    Report(report::ReportArgs),
 }
 
 /// Run the command line and return the process exit code.
@@ -68,5 +71,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Check(a) => check::run(a),
         Command::Ingest(a) => ingest::run(a),
         Command::Fit(args) => fit::run(args),
+        Command::Report(args) => report::run(args),
     }
 }

@@ -1,0 +1,627 @@
+//! The figures of the report, each a function from plain data to an SVG
+//! string drawn with plotters' SVG backend. A figure carries its title and
+//! axis labels (with units) beside the SVG so tests and the PNG export can
+//! check and size it without parsing the drawing.
+//!
+//! Text drawn through plotters is XML-escaped by plotters' SVG backend itself
+//! (its `escape_and_push`), so strings are handed to it raw; escaping them
+//! here as well would show `&amp;lt;` on the page. Anything this module writes
+//! into SVG markup by hand goes through [`super::html::escape`].
+//!
+//! Maps keep the compartment's aspect ratio (one metre is as long along x as
+//! along y) within a height clamp, so a long, narrow house is not stretched.
+
+use super::colour::{CATEGORICAL, Rgb, Scale, finite_extent};
+use super::data::{
+    ComparisonRow, DailySeries, MappedValue, OpeningSegment, ResidualMap, SensorPoint, VariogramPanel,
+};
+use plotters::coord::Shift;
+use plotters::prelude::*;
+
+/// One drawn figure.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Figure {
+    /// A stable identifier, usable as a file name (`[a-z0-9_-]`).
+    pub id: String,
+    /// The title drawn on top of the figure.
+    pub title: String,
+    /// The x-axis label, with its unit.
+    pub x_label: String,
+    /// The y-axis label, with its unit.
+    pub y_label: String,
+    /// Width, pixels.
+    pub width: u32,
+    /// Height, pixels.
+    pub height: u32,
+    /// The SVG document.
+    pub svg: String,
+}
+
+/// Why a figure could not be drawn.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum FigureError {
+    /// The drawing backend failed.
+    #[error("figure `{id}` could not be drawn: {message}")]
+    Draw {
+        /// The figure.
+        id: String,
+        /// The backend's message.
+        message: String,
+    },
+    /// Nothing to draw.
+    #[error("figure `{id}` has no data: {message}")]
+    Empty {
+        /// The figure.
+        id: String,
+        /// What is missing.
+        message: String,
+    },
+}
+
+type DrawResult = Result<(), Box<dyn std::error::Error>>;
+
+const FONT: &str = "sans-serif";
+const LEGEND_W: u32 = 134;
+
+fn rgb(c: Rgb) -> RGBColor {
+    RGBColor(c.0, c.1, c.2)
+}
+
+/// A stable id from free text: lower-case ASCII letters and digits, other
+/// characters folded to `-`.
+pub fn slug(s: &str) -> String {
+    let mut out = String::new();
+    for c in s.chars() {
+        if c.is_ascii_alphanumeric() {
+            out.push(c.to_ascii_lowercase());
+        } else if !out.ends_with('-') {
+            out.push('-');
+        }
+    }
+    let t = out.trim_matches('-');
+    if t.is_empty() { "x".into() } else { t.to_string() }
+}
+
+fn render(
+    id: &str,
+    title: &str,
+    labels: (&str, &str),
+    size: (u32, u32),
+    body: impl FnOnce(&DrawingArea<SVGBackend<'_>, Shift>) -> DrawResult,
+) -> Result<Figure, FigureError> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
+        let res = root
+            .fill(&WHITE)
+            .map_err(|e| e.into())
+            .and_then(|_| body(&root))
+            .and_then(|_| root.present().map_err(|e| e.into()));
+        if let Err(e) = res {
+            return Err(FigureError::Draw { id: id.to_string(), message: e.to_string() });
+        }
+    }
+    Ok(Figure {
+        id: id.to_string(),
+        title: title.to_string(),
+        x_label: labels.0.to_string(),
+        y_label: labels.1.to_string(),
+        width: size.0,
+        height: size.1,
+        svg,
+    })
+}
+
+/// A vertical colour bar with tick labels and a label naming the quantity
+/// and unit.
+fn colour_bar(area: &DrawingArea<SVGBackend<'_>, Shift>, scale: Scale, label: &str) -> DrawResult {
+    let (lo, hi) = scale.bounds();
+    let mut chart = ChartBuilder::on(area)
+        .margin_top(40)
+        .margin_bottom(50)
+        .margin_right(8)
+        .y_label_area_size(74)
+        .build_cartesian_2d(0f64..1f64, lo..hi)?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .disable_x_axis()
+        .y_labels(6)
+        .y_desc(label)
+        .label_style((FONT, 11))
+        .axis_desc_style((FONT, 12))
+        .draw()?;
+    let steps = 64;
+    chart.draw_series((0..steps).map(|k| {
+        let a = lo + (hi - lo) * k as f64 / steps as f64;
+        let b = lo + (hi - lo) * (k + 1) as f64 / steps as f64;
+        Rectangle::new([(0.0, a), (1.0, b)], rgb(scale.colour((a + b) / 2.0)).filled())
+    }))?;
+    Ok(())
+}
+
+/// Everything a map of values at positions needs.
+#[derive(Clone, Debug)]
+pub struct MapSpec<'a> {
+    /// Figure id.
+    pub id: String,
+    /// Figure title.
+    pub title: String,
+    /// `[0, length] x [0, width]`, metres; the points' extent when `None`.
+    pub extent: Option<(f64, f64)>,
+    /// `(x m, y m, value)`; `None` values are drawn as hollow grey marks.
+    pub points: Vec<(f64, f64, Option<f64>)>,
+    /// Colour scale of the values.
+    pub scale: Scale,
+    /// Legend label: quantity and unit (e.g. "height (cm)").
+    pub legend: String,
+    /// Sensors to mark (triangles with their ids).
+    pub sensors: &'a [SensorPoint],
+    /// Openings to mark (thick segments with their names).
+    pub openings: &'a [OpeningSegment],
+    /// A full-width map (760 px plot) rather than a half-width one (460 px)
+    /// meant to stand beside another.
+    pub wide: bool,
+}
+
+/// A floor-plan map: points coloured by value, sensors and openings marked,
+/// and a colour bar. Axes are x and y in metres.
+pub fn value_map(spec: &MapSpec<'_>) -> Result<Figure, FigureError> {
+    if spec.points.is_empty() {
+        return Err(FigureError::Empty { id: spec.id.clone(), message: "no positions".into() });
+    }
+    let xs = spec.points.iter().map(|p| p.0).chain(spec.sensors.iter().map(|s| s.x));
+    let ys = spec.points.iter().map(|p| p.1).chain(spec.sensors.iter().map(|s| s.y));
+    let (x0, x1, y0, y1) = match spec.extent {
+        Some((l, w)) => (0.0, l, 0.0, w),
+        None => {
+            let (a, b) = finite_extent(xs).unwrap_or((0.0, 1.0));
+            let (c, d) = finite_extent(ys).unwrap_or((0.0, 1.0));
+            let pad = 0.05 * (b - a).max(d - c).max(1.0);
+            (a - pad, b + pad, c - pad, d + pad)
+        }
+    };
+    let plot_w = if spec.wide { 760.0 } else { 460.0 };
+    let plot_h = (plot_w * (y1 - y0) / (x1 - x0)).clamp(160.0, 620.0);
+    let width = plot_w as u32 + 80 + LEGEND_W;
+    let height = plot_h as u32 + 100;
+    let n = spec.points.len() as f64;
+    let radius = ((plot_w * plot_h / n).sqrt() * 0.32).clamp(2.0, 9.0) as i32;
+    let (xl, yl) = ("x (m)", "y (m)");
+    render(&spec.id, &spec.title, (xl, yl), (width, height), |root| {
+        let (main, legend) = root.split_horizontally(width - LEGEND_W);
+        let mut chart = ChartBuilder::on(&main)
+            .caption(&spec.title, (FONT, 17))
+            .margin(10)
+            .x_label_area_size(40)
+            .y_label_area_size(50)
+            .build_cartesian_2d(x0..x1, y0..y1)?;
+        chart
+            .configure_mesh()
+            .light_line_style(WHITE.mix(0.0))
+            .bold_line_style(BLACK.mix(0.08))
+            .x_desc(xl)
+            .y_desc(yl)
+            .label_style((FONT, 12))
+            .axis_desc_style((FONT, 13))
+            .draw()?;
+        chart.draw_series(spec.points.iter().map(|&(x, y, v)| match v {
+            Some(v) if v.is_finite() => Circle::new((x, y), radius, rgb(spec.scale.colour(v)).filled()),
+            _ => Circle::new((x, y), radius, RGBColor(150, 150, 150).stroke_width(1)),
+        }))?;
+        for o in spec.openings {
+            chart.draw_series(LineSeries::new(
+                [(o.from[0], o.from[1]), (o.to[0], o.to[1])],
+                ShapeStyle { color: RGBColor(0, 0, 0).to_rgba(), filled: false, stroke_width: 5 },
+            ))?;
+            let mid = ((o.from[0] + o.to[0]) / 2.0, (o.from[1] + o.to[1]) / 2.0);
+            chart.draw_series(std::iter::once(
+                EmptyElement::at(mid) + Text::new(o.name.clone(), (6, 6), (FONT, 12).into_font()),
+            ))?;
+        }
+        chart.draw_series(spec.sensors.iter().map(|s| {
+            EmptyElement::at((s.x, s.y))
+                + TriangleMarker::new((0, 0), 8, WHITE.filled())
+                + TriangleMarker::new((0, 0), 8, BLACK.stroke_width(2))
+                + Text::new(s.id.clone(), (9, -14), (FONT, 11).into_font())
+        }))?;
+        colour_bar(&legend, spec.scale, &spec.legend)
+    })
+}
+
+/// The map of a mapped indicator and the map of its standard error, each
+/// with its own viridis scale in the indicator's unit.
+pub fn indicator_maps(
+    name: &str,
+    unit: &str,
+    points: &[MappedValue],
+    extent: Option<(f64, f64)>,
+    sensors: &[SensorPoint],
+) -> Result<(Figure, Figure), FigureError> {
+    let base = slug(name);
+    let value = MapSpec {
+        id: format!("indicator-{base}"),
+        title: format!("{name}: kriged value at each pot"),
+        extent,
+        points: points.iter().map(|p| (p.x, p.y, Some(p.value))).collect(),
+        scale: Scale::sequential(points.iter().map(|p| p.value)),
+        legend: format!("{name} ({unit})"),
+        sensors,
+        openings: &[],
+        wide: false,
+    };
+    let se = MapSpec {
+        id: format!("indicator-{base}-se"),
+        title: format!("{name}: standard error of the kriged value"),
+        points: points.iter().map(|p| (p.x, p.y, Some(p.se))).collect(),
+        scale: Scale::sequential(points.iter().map(|p| p.se)),
+        legend: format!("standard error ({unit})"),
+        ..value.clone()
+    };
+    Ok((value_map(&value)?, value_map(&se)?))
+}
+
+/// One small multiple: the daily values of every sensor for one variable.
+pub fn daily_series(s: &DailySeries) -> Result<Figure, FigureError> {
+    let id = format!("series-{}", slug(&s.variable));
+    if s.days.is_empty() || s.sensors.is_empty() {
+        return Err(FigureError::Empty { id, message: "no days or no sensors".into() });
+    }
+    let title = format!("{} per sensor and day", s.variable);
+    let xl = "day (local date)".to_string();
+    let yl = format!("{} ({})", s.variable, s.unit);
+    let vals = s.sensors.iter().flat_map(|t| t.values.iter().flatten().copied());
+    let (lo, hi) = finite_extent(vals).unwrap_or((0.0, 1.0));
+    let pad = if hi > lo { (hi - lo) * 0.08 } else { 0.05 * hi.abs().max(1.0) };
+    let n = s.days.len();
+    let x1 = (n.max(2) - 1) as f64;
+    render(&id, &title, (&xl, &yl), (560, 300), |root| {
+        let fmt = |v: &f64| {
+            let k = v.round();
+            if (v - k).abs() < 1e-6 && k >= 0.0 && (k as usize) < n {
+                s.days[k as usize].get(5..).unwrap_or(&s.days[k as usize]).to_string()
+            } else {
+                String::new()
+            }
+        };
+        let mut chart = ChartBuilder::on(root)
+            .caption(&title, (FONT, 15))
+            .margin(10)
+            .x_label_area_size(38)
+            .y_label_area_size(55)
+            .build_cartesian_2d(0f64..x1, (lo - pad)..(hi + pad))?;
+        chart
+            .configure_mesh()
+            .light_line_style(WHITE.mix(0.0))
+            .bold_line_style(BLACK.mix(0.08))
+            .x_labels(n.min(8))
+            .x_label_formatter(&fmt)
+            .x_desc(xl.as_str())
+            .y_desc(yl.as_str())
+            .label_style((FONT, 11))
+            .axis_desc_style((FONT, 12))
+            .draw()?;
+        for (k, t) in s.sensors.iter().enumerate() {
+            let col = rgb(CATEGORICAL[k % CATEGORICAL.len()]);
+            // Break the line at days without data rather than bridging them.
+            let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
+            for (d, v) in t.values.iter().enumerate().take(n) {
+                match v {
+                    Some(v) if v.is_finite() => runs.last_mut().expect("non-empty").push((d as f64, *v)),
+                    _ => runs.push(Vec::new()),
+                }
+            }
+            let mut first = true;
+            for run in runs.into_iter().filter(|r| !r.is_empty()) {
+                let pts = run.clone();
+                let series = chart.draw_series(LineSeries::new(run, col.stroke_width(2)))?;
+                if first {
+                    series.label(t.sensor.clone()).legend(move |(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2))
+                    });
+                    first = false;
+                }
+                chart.draw_series(pts.into_iter().map(|p| Circle::new(p, 2, col.filled())))?;
+            }
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK.mix(0.3))
+            .label_font((FONT, 11))
+            .draw()?;
+        Ok(())
+    })
+}
+
+/// An experimental variogram (bins as circles, area by pair count) with
+/// every fitted curve; the first fit's nugget, sill and range are marked.
+pub fn variogram(p: &VariogramPanel) -> Result<Figure, FigureError> {
+    let id = format!("variogram-{}", slug(&p.subject));
+    if p.bins.is_empty() {
+        return Err(FigureError::Empty { id, message: "no lag bins".into() });
+    }
+    let title = format!("Variogram of {}", p.subject);
+    let xl = "lag distance (m)".to_string();
+    let yl = format!("semivariance ({})", p.unit);
+    let curve_lag = p.fits.iter().flat_map(|f| f.curve.iter().map(|c| c[0]));
+    let xmax = finite_extent(p.bins.iter().map(|b| b.lag).chain(curve_lag)).map_or(1.0, |e| e.1) * 1.05;
+    let ymax = finite_extent(
+        p.bins
+            .iter()
+            .map(|b| b.semivariance)
+            .chain(p.fits.iter().map(|f| f.sill))
+            .chain(p.fits.iter().flat_map(|f| f.curve.iter().map(|c| c[1]))),
+    )
+    .map_or(1.0, |e| e.1)
+    .max(1e-12)
+        * 1.15;
+    let maxpairs = p.bins.iter().map(|b| b.pairs).max().unwrap_or(1).max(1) as f64;
+    render(&id, &title, (&xl, &yl), (560, 340), |root| {
+        let mut chart = ChartBuilder::on(root)
+            .caption(&title, (FONT, 15))
+            .margin(10)
+            .x_label_area_size(38)
+            .y_label_area_size(60)
+            .build_cartesian_2d(0f64..xmax.max(1e-9), 0f64..ymax)?;
+        chart
+            .configure_mesh()
+            .light_line_style(WHITE.mix(0.0))
+            .bold_line_style(BLACK.mix(0.08))
+            .x_desc(xl.as_str())
+            .y_desc(yl.as_str())
+            .label_style((FONT, 11))
+            .axis_desc_style((FONT, 12))
+            .draw()?;
+        if let Some(f) = p.fits.first() {
+            let grey = RGBColor(110, 110, 110);
+            let style = ShapeStyle { color: grey.to_rgba(), filled: false, stroke_width: 1 };
+            // The sill label sits above its line and the nugget label below
+            // its own, so the two stay apart when nugget and sill are close.
+            for (yv, name, dy) in [(f.nugget, "nugget", 3), (f.sill, "sill", -13)] {
+                chart.draw_series(DashedLineSeries::new([(0.0, yv), (xmax, yv)], 5, 4, style))?;
+                chart.draw_series(std::iter::once(
+                    EmptyElement::at((0.0, yv))
+                        + Text::new(format!("{name} ({})", f.family), (4, dy), (FONT, 10).into_font()),
+                ))?;
+            }
+            let r = f.practical_range.unwrap_or(f.range);
+            let label = if f.practical_range.is_some() { "practical range" } else { "range" };
+            chart.draw_series(DashedLineSeries::new([(r, 0.0), (r, ymax)], 5, 4, style))?;
+            chart.draw_series(std::iter::once(
+                EmptyElement::at((r, ymax)) + Text::new(label, (4, 4), (FONT, 10).into_font()),
+            ))?;
+        }
+        for (k, f) in p.fits.iter().enumerate() {
+            let col = rgb(CATEGORICAL[k % CATEGORICAL.len()]);
+            chart
+                .draw_series(LineSeries::new(f.curve.iter().map(|c| (c[0], c[1])), col.stroke_width(2)))?
+                .label(f.family.clone())
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2)));
+        }
+        chart.draw_series(p.bins.iter().map(|b| {
+            let r = (2.0 + 5.0 * (b.pairs as f64 / maxpairs).sqrt()) as i32;
+            Circle::new((b.lag, b.semivariance), r, BLACK.stroke_width(1))
+        }))?;
+        if !p.fits.is_empty() {
+            chart
+                .configure_series_labels()
+                .position(SeriesLabelPosition::LowerRight)
+                .background_style(WHITE.mix(0.85))
+                .border_style(BLACK.mix(0.3))
+                .label_font((FONT, 11))
+                .draw()?;
+        }
+        Ok(())
+    })
+}
+
+/// Shorten a long label for an axis, keeping its start and end.
+fn shorten(s: &str, max: usize) -> String {
+    let c: Vec<char> = s.chars().collect();
+    if c.len() <= max {
+        return s.to_string();
+    }
+    let head: String = c[..max / 2 - 1].iter().collect();
+    let tail: String = c[c.len() - (max - max / 2)..].iter().collect();
+    format!("{head}…{tail}")
+}
+
+/// Horizontal bars of delta-AIC per model, best on top, the chosen model in
+/// the accent colour and the tie margin as a dashed line.
+pub fn delta_aic_bars(
+    rows: &[ComparisonRow],
+    chosen: Option<&str>,
+    tie_margin: Option<f64>,
+) -> Result<Figure, FigureError> {
+    let id = "delta-aic".to_string();
+    if rows.is_empty() {
+        return Err(FigureError::Empty { id, message: "no models".into() });
+    }
+    let mut sorted: Vec<&ComparisonRow> = rows.iter().collect();
+    sorted.sort_by(|a, b| a.delta_aic.total_cmp(&b.delta_aic).then_with(|| a.name.cmp(&b.name)));
+    let names: Vec<String> = sorted.iter().map(|r| shorten(&r.name, 44)).collect();
+    let n = sorted.len();
+    let title = "How far each model is behind the best (ΔAIC)".to_string();
+    let xl = "ΔAIC (AIC units, 0 = best)".to_string();
+    let yl = "model (sorted by AIC)".to_string();
+    let xmax = sorted.iter().map(|r| r.delta_aic).fold(2.5f64, f64::max) * 1.08;
+    let label_w =
+        (names.iter().map(|s| s.chars().count()).max().unwrap_or(10) as u32 * 7 + 20).clamp(120, 340);
+    let height = 110 + 20 * n as u32;
+    let width = 460 + label_w;
+    render(&id, &title, (&xl, &yl), (width, height), |root| {
+        let fmt = |v: &SegmentValue<usize>| match v {
+            SegmentValue::CenterOf(i) if *i < n => names[n - 1 - *i].clone(),
+            _ => String::new(),
+        };
+        let mut chart = ChartBuilder::on(root)
+            .caption(&title, (FONT, 15))
+            .margin(10)
+            .x_label_area_size(40)
+            .y_label_area_size(label_w)
+            // A discrete usize range is inclusive of its end in plotters, so
+            // `0..n - 1` gives exactly n segments; a single model gets two
+            // (an empty one on top) because plotters labels no segment of `0..0`.
+            .build_cartesian_2d(0f64..xmax, (0usize..(n - 1).max(1)).into_segmented())?;
+        chart
+            .configure_mesh()
+            .disable_y_mesh()
+            .light_line_style(WHITE.mix(0.0))
+            .bold_line_style(BLACK.mix(0.08))
+            .y_labels(n.max(2))
+            .y_label_formatter(&fmt)
+            .x_desc(xl.as_str())
+            .y_desc(yl.as_str())
+            .label_style((FONT, 11))
+            .axis_desc_style((FONT, 12))
+            .draw()?;
+        let plain = rgb(CATEGORICAL[0]);
+        let accent = rgb(CATEGORICAL[1]);
+        chart.draw_series(sorted.iter().enumerate().map(|(k, r)| {
+            let i = n - 1 - k;
+            let col = if Some(r.name.as_str()) == chosen { accent } else { plain };
+            // A best model has ΔAIC 0: give it a sliver so it stays visible.
+            let w = r.delta_aic.max(xmax * 0.004);
+            let mut bar = Rectangle::new(
+                [(0.0, SegmentValue::Exact(i)), (w, SegmentValue::Exact(i + 1))],
+                col.filled(),
+            );
+            bar.set_margin(3, 3, 0, 0);
+            bar
+        }))?;
+        chart.draw_series(sorted.iter().enumerate().map(|(k, r)| {
+            let at = (r.delta_aic.max(xmax * 0.004), SegmentValue::CenterOf(n - 1 - k));
+            EmptyElement::at(at) + Text::new(format!("{:.1}", r.delta_aic), (4, -5), (FONT, 10).into_font())
+        }))?;
+        if let Some(m) = tie_margin {
+            let style = ShapeStyle { color: BLACK.to_rgba(), filled: false, stroke_width: 1 };
+            chart.draw_series(DashedLineSeries::new(
+                [(m, SegmentValue::Exact(0)), (m, SegmentValue::Exact(n))],
+                4,
+                4,
+                style,
+            ))?;
+        }
+        Ok(())
+    })
+}
+
+/// Residual maps of the plain and the chosen model on one diverging scale
+/// centred at zero, shared so that colours compare across the two maps.
+pub fn residual_maps(
+    before: Option<&ResidualMap>,
+    after: Option<&ResidualMap>,
+    unit: &str,
+    extent: Option<(f64, f64)>,
+    sensors: &[SensorPoint],
+    openings: &[OpeningSegment],
+) -> Vec<Result<Figure, FigureError>> {
+    let all = before.into_iter().chain(after).flat_map(|m| m.points.iter().map(|p| p.residual));
+    let scale = Scale::diverging(all);
+    let mut out = Vec::new();
+    for (m, which) in [(before, "before"), (after, "after")] {
+        let Some(m) = m else { continue };
+        let spec = MapSpec {
+            id: format!("residuals-{which}"),
+            title: format!("Residuals of {}", m.model),
+            extent,
+            points: m.points.iter().map(|p| (p.x, p.y, Some(p.residual))).collect(),
+            scale,
+            legend: format!("residual ({unit})"),
+            sensors,
+            openings,
+            wide: false,
+        };
+        out.push(value_map(&spec));
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::data::{VariogramBin, VariogramFit};
+    use super::super::xml::check_well_formed;
+    use super::*;
+
+    fn assert_figure(f: &Figure) {
+        check_well_formed(&f.svg).unwrap_or_else(|e| panic!("{}: {e}", f.id));
+        for s in [&f.title, &f.x_label, &f.y_label] {
+            let esc = super::super::html::escape(s);
+            assert!(f.svg.contains(&esc), "{}: {s:?} not drawn", f.id);
+        }
+        assert!(f.x_label.contains('(') && f.y_label.contains('('), "{}: labels need units", f.id);
+    }
+
+    #[test]
+    fn slugs_are_file_names() {
+        assert_eq!(slug("Night cold hours (<12 °C)"), "night-cold-hours-12-c");
+        assert_eq!(slug("***"), "x");
+    }
+
+    #[test]
+    fn variogram_marks_nugget_sill_range() {
+        let p = VariogramPanel {
+            subject: "night_cold_hours".into(),
+            unit: "h²".into(),
+            bins: vec![
+                VariogramBin { lag: 0.5, semivariance: 1.0, pairs: 30 },
+                VariogramBin { lag: 1.5, semivariance: 2.0, pairs: 80 },
+            ],
+            fits: vec![VariogramFit {
+                family: "exponential".into(),
+                nugget: 0.4,
+                sill: 2.2,
+                range: 1.0,
+                practical_range: Some(3.0),
+                curve: vec![[0.0, 0.4], [1.0, 1.5], [2.0, 2.0]],
+            }],
+        };
+        let f = variogram(&p).unwrap();
+        assert_figure(&f);
+        for s in ["nugget (exponential)", "sill (exponential)", "practical range"] {
+            assert!(f.svg.contains(s), "{s}");
+        }
+        let empty = VariogramPanel { bins: vec![], ..p };
+        assert!(matches!(variogram(&empty), Err(FigureError::Empty { .. })));
+    }
+
+    #[test]
+    fn delta_aic_bars_draw_any_number_of_models() {
+        let row = |name: &str, d: f64| ComparisonRow {
+            name: name.into(),
+            delta_aic: d,
+            ..ComparisonRow::default()
+        };
+        for rows in [vec![row("only", 0.0)], vec![row("a", 0.0), row("b", 3.5)]] {
+            let f = delta_aic_bars(&rows, Some("a"), Some(2.0)).unwrap();
+            assert_figure(&f);
+            for r in &rows {
+                assert!(f.svg.contains(&format!(">{}\n<", r.name)) || f.svg.contains(&r.name), "{}", r.name);
+            }
+        }
+        assert!(delta_aic_bars(&[], None, None).is_err());
+    }
+
+    #[test]
+    fn names_with_markup_are_text_in_svg() {
+        let sensors = vec![SensorPoint { id: "<script>alert(1)</script>".into(), x: 1.0, y: 1.0 }];
+        let spec = MapSpec {
+            id: "m".into(),
+            title: "T & <b>".into(),
+            extent: Some((4.0, 2.0)),
+            points: vec![(0.5, 0.5, Some(1.0)), (2.0, 1.0, None)],
+            scale: Scale::sequential([1.0, 2.0]),
+            legend: "height (cm)".into(),
+            sensors: &sensors,
+            openings: &[],
+            wide: true,
+        };
+        let f = value_map(&spec).unwrap();
+        assert_figure(&f);
+        assert!(!f.svg.contains("<script"));
+        assert!(f.svg.contains("&lt;script&gt;alert(1)&lt;/script&gt;"));
+    }
+}
