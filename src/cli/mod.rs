@@ -9,9 +9,9 @@ mod simulate;
 use clap::{Parser, Subcommand};
 
 mod check;
+mod fit;
 mod ingest;
 mod init;
-mod fit;
 mod report;
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.

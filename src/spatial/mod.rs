@@ -11,7 +11,7 @@ pub mod correlation;
 pub mod error;
 pub mod geometry;
 pub mod kriging;
+pub mod likelihood;
 pub mod mapping;
 pub mod outputs;
 pub mod variogram;
-pub mod likelihood;
