@@ -228,7 +228,7 @@ pub enum LrtNull {
 
 /// p-value of a likelihood-ratio statistic `lrt = 2 (l1 - l0) >= 0`.
 ///
-/// Check values (../shared/REFERENCE.md §5.4, [COMPUTED]): mixture p = 0.1587
+/// Check values (../shared/REFERENCE.md §5.4, computed there): mixture p = 0.1587
 /// at LRT 1.0, 0.0499 at 2.71, 0.0250 at 3.84.
 pub fn lrt_p_value(lrt: f64, null: LrtNull) -> f64 {
     let lrt = lrt.max(0.0);
@@ -379,7 +379,7 @@ mod tests {
         Candidate::new(name, Method::Ml, shape, ll, k, 100).unwrap()
     }
 
-    /// ../shared/REFERENCE.md §5.4 [COMPUTED] table: naive and mixture p.
+    /// ../shared/REFERENCE.md §5.4 computed table: naive and mixture p.
     #[test]
     fn boundary_lrt_matches_reference_table() {
         let rows =
@@ -392,7 +392,7 @@ mod tests {
         assert_abs_diff_eq!(lrt_p_value(5.1384, LrtNull::BoundaryMixture { df: 2.0 }), 0.05, epsilon = 1e-4);
     }
 
-    /// ../shared/REFERENCE.md §5.3 [COMPUTED] 6-point check: OLS with k = 3,
+    /// ../shared/REFERENCE.md §5.3 computed 6-point check: OLS with k = 3,
     /// l = -2.2517: AIC 10.5034, AICc 22.5034, BIC 9.8787; the spatial model
     /// with the same l and k = 4: AIC 12.5034, AICc 52.5034, BIC 11.6705.
     #[test]
