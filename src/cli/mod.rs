@@ -6,6 +6,8 @@
 
 use clap::{Parser, Subcommand};
 
+mod climate;
+
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
 #[command(name = "potclim", version, about, long_about = None)]
@@ -17,7 +19,10 @@ pub struct Cli {
 
 /// The subcommands.
 #[derive(Debug, Subcommand)]
-pub enum Command {}
+pub enum Command {
+    /// Climate indicators per sensor and local day (reads <output>/readings.parquet).
+    Climate(climate::ClimateArgs),
+}
 
 /// Run the command line and return the process exit code.
 pub fn main_entry() -> i32 {
@@ -40,5 +45,7 @@ pub fn main_entry() -> i32 {
 
 /// Dispatch a parsed command line.
 pub fn run(cli: Cli) -> anyhow::Result<()> {
-    match cli.command {}
+    match cli.command {
+        Command::Climate(args) => climate::run(args),
+    }
 }
