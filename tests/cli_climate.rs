@@ -137,7 +137,7 @@ fn computes_indicators_and_writes_both_outputs() {
     assert_eq!(names, ["sensor", "date", "indicator", "value", "coverage", "valid"]);
     let dates = daily.column("date").unwrap().str().unwrap();
     assert_eq!(dates.get(0), Some("2026-03-01"));
-    assert!(daily.column("coverage").unwrap().f64().unwrap().into_iter().all(|c| c == Some(1.0)));
+    assert!(daily.column("coverage").unwrap().f64().unwrap().iter().all(|c| c == Some(1.0)));
     // No staging folder is left behind.
     let hidden = std::fs::read_dir(d.path().join("out"))
         .unwrap()

@@ -165,14 +165,13 @@ pub fn time_range_ms(df: &DataFrame, path: &Path) -> Result<Option<(i64, i64)>> 
 
 fn time_ms_expr(df: &DataFrame, path: &Path) -> Result<Expr> {
     check_schema(df, path)?;
-    let dtype = df.column(columns::TIME).expect("checked").dtype().clone();
-    let raw = col(columns::TIME).cast(DataType::Int64);
-    Ok(match dtype {
-        DataType::Datetime(TimeUnit::Milliseconds, _) => raw,
-        DataType::Datetime(TimeUnit::Microseconds, _) => raw.floor_div(lit(1_000i64)),
-        DataType::Datetime(TimeUnit::Nanoseconds, _) => raw.floor_div(lit(1_000_000i64)),
+    let tz = match df.column(columns::TIME).expect("checked").dtype() {
+        DataType::Datetime(_, tz) => tz.clone(),
         _ => unreachable!("checked by check_schema"),
-    })
+    };
+    // Unit conversion by polars' integer cast between time units, then the
+    // physical value (UTC milliseconds since the epoch).
+    Ok(col(columns::TIME).cast(DataType::Datetime(TimeUnit::Milliseconds, tz)).cast(DataType::Int64))
 }
 
 /// Check the columns and types of the readings table.
@@ -239,7 +238,7 @@ pub fn regularise(
         .map_err(pe)?;
     let sensors: Vec<String> = sensors_df
         .column(columns::SENSOR)
-        .and_then(|c| c.str().map(|s| s.into_iter().flatten().map(str::to_string).collect()))
+        .and_then(|c| c.str().map(|s| s.iter().flatten().map(str::to_string).collect()))
         .map_err(pe)?;
     let grouped = df
         .clone()
@@ -247,7 +246,11 @@ pub fn regularise(
         .with_column(t.alias("__t_ms"))
         .filter(col("__t_ms").gt_eq(lit(calendar.start_ms)).and(col("__t_ms").lt(lit(end_ms))))
         .with_column(
-            (col("__t_ms") - lit(calendar.start_ms)).floor_div(lit(calendar.step_ms)).alias("__step"),
+            // Offsets are non-negative after the filter and below 2^53, so the
+            // float quotient truncated to an integer is the exact floor.
+            ((col("__t_ms") - lit(calendar.start_ms)).cast(DataType::Float64) / lit(calendar.step_ms as f64))
+                .cast(DataType::Int64)
+                .alias("__step"),
         )
         .group_by([col(columns::SENSOR), col("__step")])
         .agg([
