@@ -7,7 +7,7 @@
 //! The key-by-key documentation with defaults is `docs/climate.md`; keep the
 //! two in step.
 
-use super::error::{ClimateError, Result};
+use super::error::{ClimateError, Declaration, Result};
 use crate::io::error::closest;
 use crate::io::layout::parse_local_datetime;
 use crate::io::study::{Study, line_col};
@@ -367,7 +367,7 @@ impl Ctx<'_> {
         hint: Option<String>,
     ) -> ClimateError {
         let (line, column) = self.at(v.span());
-        ClimateError::Declaration {
+        ClimateError::from(Declaration {
             path: self.study.path.clone(),
             line,
             column,
@@ -375,7 +375,7 @@ impl Ctx<'_> {
             value: format!("{:?}", v.get_ref()),
             message: message.into(),
             hint,
-        }
+        })
     }
 
     fn choice<T>(
@@ -409,7 +409,7 @@ impl ClimateConfig {
         for (i, s) in doc.indicator.unwrap_or_default().into_iter().enumerate() {
             let ind = parse_indicator(&cx, i + 1, s)?;
             if ind.variable.needs_humidity() && !humidity_channel {
-                return Err(ClimateError::Declaration {
+                return Err(ClimateError::from(Declaration {
                     path: study.path.clone(),
                     line: ind.variable_at.0,
                     column: ind.variable_at.1,
@@ -417,10 +417,10 @@ impl ClimateConfig {
                     value: format!("{:?}", ind.variable.name()),
                     message: "needs relative humidity, but no [[logs]] block maps a humidity channel".into(),
                     hint: Some("add `humidity = { column = \"...\", unit = \"percent\" }` to [logs.columns], or use another variable".into()),
-                });
+                }));
             }
             if indicators.iter().any(|p| p.name == ind.name) {
-                return Err(ClimateError::Declaration {
+                return Err(ClimateError::from(Declaration {
                     path: study.path.clone(),
                     line: ind.variable_at.0,
                     column: ind.variable_at.1,
@@ -428,7 +428,7 @@ impl ClimateConfig {
                     value: format!("{:?}", ind.name),
                     message: "the name is used by an earlier indicator".into(),
                     hint: Some("give every indicator its own name".into()),
-                });
+                }));
             }
             indicators.push(ind);
         }
@@ -463,8 +463,10 @@ fn parse_spec(cx: &Ctx, sec: Option<ClimateSection>) -> Result<ClimateSpec> {
     };
     let start = datetime("climate.start", &sec.start)?;
     let end = datetime("climate.end", &sec.end)?;
-    if let (Some(s), Some(e), Some(ev)) = (start, end, &sec.end) {
-        if e <= s {
+    if let (Some(s), Some(e), Some(ev)) = (start, end, &sec.end)
+        && e <= s
+    {
+        {
             return Err(cx.err(
                 "climate.end",
                 ev,

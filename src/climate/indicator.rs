@@ -423,10 +423,10 @@ mod tests {
         let dark = [0.0];
         c.set_day_from_light(10.0, |_| &dark[..]);
         let i = ind(Variable::Temperature, Statistic::Mean, Period::Day);
-        assert_eq!(values(&i, &c, &vec![20.0; 24], &nan(24), &nan(24))[0], None);
+        assert_eq!(values(&i, &c, &[20.0; 24], &nan(24), &nan(24))[0], None);
         let i = ind(Variable::Temperature, Statistic::HoursBelow { threshold: 30.0 }, Period::Day);
-        assert_eq!(values(&i, &c, &vec![20.0; 24], &nan(24), &nan(24))[0], Some(0.0));
+        assert_eq!(values(&i, &c, &[20.0; 24], &nan(24), &nan(24))[0], Some(0.0));
         let c2 = cal(1, 60); // flags unknown
-        assert_eq!(values(&i, &c2, &vec![20.0; 24], &nan(24), &nan(24))[0], None);
+        assert_eq!(values(&i, &c2, &[20.0; 24], &nan(24), &nan(24))[0], None);
     }
 }

@@ -326,9 +326,9 @@ pub fn fill_gaps(v: &mut [f64], max_steps: usize) -> usize {
             let gap = i - a - 1;
             if gap > 0 && gap <= max_steps {
                 let (va, vb) = (v[a], v[i]);
-                for k in a + 1..i {
+                for (k, x) in v.iter_mut().enumerate().take(i).skip(a + 1) {
                     let w = (k - a) as f64 / (i - a) as f64;
-                    v[k] = va + w * (vb - va);
+                    *x = va + w * (vb - va);
                 }
                 filled += gap;
             }

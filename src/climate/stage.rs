@@ -9,7 +9,7 @@
 
 use super::calendar::{Calendar, CalendarError, local_time, local_to_utc_ms};
 use super::config::{ClimateConfig, DayRule, Period, Variable};
-use super::error::{ClimateError, Result};
+use super::error::{ClimateError, Declaration, Result};
 use super::indicator::{DayValue, WindowValue, combine_window, daily_values};
 use super::regular::{RegulariseReport, SensorGrid, read_readings, regularise, time_range_ms};
 use crate::io::output::StageWriter;
@@ -50,7 +50,7 @@ fn declaration(
     message: String,
     hint: Option<String>,
 ) -> ClimateError {
-    ClimateError::Declaration {
+    ClimateError::from(Declaration {
         path: study_path.to_path_buf(),
         line: at.0,
         column: at.1,
@@ -58,7 +58,7 @@ fn declaration(
         value: value.to_string(),
         message,
         hint,
-    }
+    })
 }
 
 /// Compute every indicator from an in-memory readings table. `study_path`
