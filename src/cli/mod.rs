@@ -13,6 +13,7 @@ mod fit;
 mod ingest;
 mod init;
 mod report;
+mod climate;
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
@@ -42,6 +43,8 @@ pub enum Command {
     Fit(fit::FitArgs),
     /// Redraw report.html from the report_data.json of an earlier run.
     Report(report::ReportArgs),
+    /// Climate indicators per sensor and local day (reads <output>/readings.parquet).
+    Climate(climate::ClimateArgs),
 }
 
 /// Run the command line and return the process exit code.
@@ -72,5 +75,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Ingest(a) => ingest::run(a),
         Command::Fit(args) => fit::run(args),
         Command::Report(args) => report::run(args),
+        Command::Climate(args) => climate::run(args),
     }
 }
