@@ -9,11 +9,11 @@ mod simulate;
 use clap::{Parser, Subcommand};
 
 mod check;
+mod climate;
 mod fit;
 mod ingest;
 mod init;
 mod report;
-mod climate;
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]

@@ -477,12 +477,13 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
     // is never followed by a second one cannot be placed and is flagged.
     let mut pending: std::collections::BTreeMap<u32, Vec<(usize, u32, Vec<u8>)>> = Default::default();
     let mut drop_rows: Vec<usize> = Vec::new();
-    let unplaced = |out: &mut FileRead, drop_rows: &mut Vec<usize>, sensor: u32, run: Vec<(usize, u32, Vec<u8>)>| {
-        for (idx, line, cell) in run {
-            flag(out, line, sensor, None, Variable::Time, &cell, Reason::AmbiguousTime);
-            drop_rows.push(idx);
-        }
-    };
+    let unplaced =
+        |out: &mut FileRead, drop_rows: &mut Vec<usize>, sensor: u32, run: Vec<(usize, u32, Vec<u8>)>| {
+            for (idx, line, cell) in run {
+                flag(out, line, sensor, None, Variable::Time, &cell, Reason::AmbiguousTime);
+                drop_rows.push(idx);
+            }
+        };
 
     while rdr.read_byte_record(&mut rec).map_err(csv_err)? {
         let line = (lines.line_of(&rec) + skip) as u32;
