@@ -11,10 +11,11 @@ use clap::{Parser, Subcommand};
 mod check;
 mod climate;
 mod fit;
-mod map;
 mod ingest;
 mod init;
+mod map;
 mod report;
+mod run;
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
@@ -45,6 +46,9 @@ pub enum Command {
     /// Map the climate indicators onto every pot by kriging, with standard errors.
     #[command(long_about = map::HELP)]
     Map(map::MapArgs),
+    /// Run the whole analysis: ingest, climate, map, verdict and report.
+    #[command(long_about = run::HELP)]
+    Run(run::RunArgs),
     /// Redraw report.html from the report_data.json of an earlier run.
     Report(report::ReportArgs),
     /// Climate indicators per sensor and local day (reads <output>/readings.parquet).
@@ -79,6 +83,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Ingest(a) => ingest::run(a),
         Command::Fit(args) => fit::run(args),
         Command::Map(args) => map::run(args),
+        Command::Run(args) => run::run(args),
         Command::Report(args) => report::run(args),
         Command::Climate(args) => climate::run(args),
     }

@@ -213,12 +213,18 @@ pub fn run(study: &Study) -> Result<(ClimateRun, Vec<PathBuf>)> {
     let readings_path = out.join(READINGS_FILE);
     let readings = read_readings(&readings_path)?;
     let run = compute(study, config, &readings, &readings_path)?;
-    let mut writer = StageWriter::new(&out, "climate")?;
-    writer.write(SENSOR_INDICATORS_FILE, &sensor_indicators_csv(&run))?;
-    let path = writer.path(SENSOR_DAILY_FILE);
-    write_daily_parquet(&run, &path)?;
-    let published = writer.commit()?;
+    let published = write_outputs(study, &run)?;
     Ok((run, published))
+}
+
+/// Publish `sensor_indicators.csv` and `sensor_daily.parquet` of a computed
+/// run into the study's output folder (atomically).
+pub fn write_outputs(study: &Study, run: &ClimateRun) -> Result<Vec<PathBuf>> {
+    let mut writer = StageWriter::new(&study.output_dir(), "climate")?;
+    writer.write(SENSOR_INDICATORS_FILE, &sensor_indicators_csv(run))?;
+    let path = writer.path(SENSOR_DAILY_FILE);
+    write_daily_parquet(run, &path)?;
+    Ok(writer.commit()?)
 }
 
 fn fmt(v: Option<f64>) -> String {

@@ -15,6 +15,7 @@
 //! text, so each is testable alone and a missing stage only blanks its own
 //! section with a note naming what is missing and the command that makes it.
 
+pub mod assemble;
 pub mod colour;
 pub mod data;
 pub mod figures;
