@@ -1,0 +1,124 @@
+//! `potclim map` and `potclim run` through the binary on a copy of the demo
+//! study, checked against the simulator's known truth (`truth/pots.csv`).
+
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+fn copy_dir(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for e in std::fs::read_dir(from).unwrap() {
+        let e = e.unwrap();
+        if e.file_name() == "output" {
+            continue;
+        }
+        let p = e.path();
+        if p.is_dir() {
+            copy_dir(&p, &to.join(e.file_name()));
+        } else {
+            std::fs::copy(&p, to.join(e.file_name())).unwrap();
+        }
+    }
+}
+
+fn demo_copy() -> (tempfile::TempDir, PathBuf) {
+    let d = tempfile::tempdir().unwrap();
+    copy_dir(&Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data"), d.path());
+    let s = d.path().join("study.toml");
+    (d, s)
+}
+
+fn potclim(args: &[&str]) -> (bool, String, String) {
+    let o = Command::new(env!("CARGO_BIN_EXE_potclim")).args(args).output().unwrap();
+    (o.status.success(), String::from_utf8_lossy(&o.stdout).into(), String::from_utf8_lossy(&o.stderr).into())
+}
+
+fn table(path: &Path) -> Vec<HashMap<String, String>> {
+    let mut r = csv::Reader::from_path(path).unwrap();
+    let h: Vec<String> = r.headers().unwrap().iter().map(str::to_string).collect();
+    r.records().map(|rec| h.iter().cloned().zip(rec.unwrap().iter().map(str::to_string)).collect()).collect()
+}
+
+fn pearson(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len() as f64;
+    let (ma, mb) = (a.iter().sum::<f64>() / n, b.iter().sum::<f64>() / n);
+    let cov: f64 = a.iter().zip(b).map(|(x, y)| (x - ma) * (y - mb)).sum();
+    let va: f64 = a.iter().map(|x| (x - ma).powi(2)).sum();
+    let vb: f64 = b.iter().map(|y| (y - mb).powi(2)).sum();
+    cov / (va * vb).sqrt()
+}
+
+#[test]
+fn map_needs_ingest_first() {
+    let (_d, s) = demo_copy();
+    let (ok, _, err) = potclim(&["map", s.to_str().unwrap()]);
+    assert!(!ok);
+    assert!(err.contains("readings.parquet") && err.contains("potclim ingest"), "{err}");
+}
+
+/// The mapped night cold hours follow the simulator's true values at the pots
+/// (computed from the true field over each pot's window), and every pot has a
+/// value, a positive standard error and its distance to the door.
+#[test]
+fn mapped_indicators_follow_the_true_field() {
+    let (d, s) = demo_copy();
+    let (ok, _, err) = potclim(&["ingest", s.to_str().unwrap()]);
+    assert!(ok, "{err}");
+    let (ok, out, err) = potclim(&["map", s.to_str().unwrap()]);
+    assert!(ok, "{err}");
+    assert!(out.contains("night_cold_hours"), "{out}");
+    let dir = d.path().join("output");
+    let cov = table(&dir.join("pot_covariates.csv"));
+    assert_eq!(cov.len(), 480);
+    let truth: HashMap<String, HashMap<String, String>> =
+        table(&d.path().join("truth/pots.csv")).into_iter().map(|r| (r["pot"].clone(), r)).collect();
+    let (mut est, mut tru) = (Vec::new(), Vec::new());
+    for r in &cov {
+        let v: f64 = r["night_cold_hours"].parse().unwrap();
+        let se: f64 = r["night_cold_hours_se"].parse().unwrap();
+        assert!(v.is_finite() && se > 0.0, "{r:?}");
+        let dist: f64 = r["distance_door"].parse().unwrap();
+        let t = &truth[&r["pot"]];
+        // The simulator's distance to the door segment is printed with 4 decimals.
+        assert!((dist - t["distance_door"].parse::<f64>().unwrap()).abs() < 1e-3);
+        est.push(v);
+        tru.push(t["night_cold_hours"].parse::<f64>().unwrap());
+    }
+    let r = pearson(&est, &tru);
+    assert!(r > 0.7, "correlation of mapped and true night cold hours {r}");
+    for f in ["variograms.csv", "variogram_fits.csv", "mapping_cv.csv"] {
+        assert!(dir.join(f).exists(), "{f}");
+    }
+    let cv = table(&dir.join("mapping_cv.csv"));
+    assert!(cv.iter().any(|r| r["chosen"] == "true"), "auto chose no method");
+}
+
+#[test]
+fn run_writes_every_stage_and_the_report() {
+    let (d, s) = demo_copy();
+    let (ok, out, err) = potclim(&["run", s.to_str().unwrap(), "--quiet"]);
+    assert!(ok, "{err}");
+    assert!(out.contains("report.html"), "{out}");
+    let dir = d.path().join("output");
+    for f in [
+        "readings.parquet",
+        "qc_flags.csv",
+        "qc_summary.csv",
+        "gaps.csv",
+        "sensor_indicators.csv",
+        "sensor_daily.parquet",
+        "pot_covariates.csv",
+        "report.html",
+        "report_data.json",
+    ] {
+        assert!(dir.join(f).exists(), "{f} missing");
+    }
+    let html = std::fs::read_to_string(dir.join("report.html")).unwrap();
+    for id in ["verdict", "layout", "climate", "spatial", "models", "means", "provenance"] {
+        assert!(html.contains(&format!("id=\"{id}\"")), "section {id}");
+    }
+    // No staging folder is left behind.
+    for e in std::fs::read_dir(&dir).unwrap() {
+        assert!(!e.unwrap().file_name().to_string_lossy().contains("partial"));
+    }
+}
