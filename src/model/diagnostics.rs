@@ -17,7 +17,7 @@
 //! fitted covariance (REFERENCE.md §6: "apply the formula to whitened residuals").
 //!
 //! The residual variogram is computed by the variogram code of
-//! [`crate::spatial`] once it exists (see docs/model.md).
+//! [`crate::spatial`] (see `model::stage::residual_variograms`).
 //!
 //! Cost: a k-d tree query per pot (`O(n log n)`) and `O(n k p + n p^2)` for the moments.
 

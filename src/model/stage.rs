@@ -40,6 +40,9 @@ pub struct FitReport {
     pub fits: Vec<Fit>,
     /// Moran's I of each fit's (whitened) residuals, aligned with `fits`.
     pub moran: Vec<Option<MoranTest>>,
+    /// Experimental (Matheron) variogram of each fit's normalised residuals,
+    /// aligned with `fits` (`None` when the pot layout gives no lag bins).
+    pub residual_variograms: Vec<Option<crate::spatial::variogram::Empirical>>,
     /// Notes for the user (pots left out, fits skipped and why).
     pub notes: Vec<String>,
 }
@@ -102,7 +105,43 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
         .iter()
         .map(|f| nb.as_ref().and_then(|nb| moran_residuals(&f.normalised, &f.whitened_x, nb)))
         .collect();
-    Ok(FitReport { spec, data, design, ols: ols_fit, anova: anovas, counts, fits, moran, notes })
+    let residual_variograms = residual_variograms(&data, &fits);
+    Ok(FitReport { spec, data, design, ols: ols_fit, anova: anovas, counts, fits, moran, residual_variograms, notes })
+}
+
+/// The experimental variogram of every fit's normalised residuals at the pot
+/// positions, by the one variogram implementation of [`crate::spatial`]
+/// (Matheron's estimator, default bins for the layout).
+pub fn residual_variograms(data: &ModelData, fits: &[Fit]) -> Vec<Option<crate::spatial::variogram::Empirical>> {
+    use crate::spatial::geometry::{Origin, Points};
+    use crate::spatial::variogram::{Bins, Estimator, experimental};
+    let Ok(points) = Points::new("pot", data.pots.clone(), data.x.clone(), data.y.clone(), None, &Origin::default())
+    else {
+        return vec![None; fits.len()];
+    };
+    let Ok(bins) = Bins::default_for(&points) else {
+        return vec![None; fits.len()];
+    };
+    fits.iter().map(|f| experimental(&points, &f.normalised, &bins, Estimator::Matheron, None).ok()).collect()
+}
+
+/// `residual_variograms.csv`: the variogram of each fit's normalised
+/// residuals (same layout as `variograms.csv`; `variable` is
+/// `<model> <method>`).
+pub fn residual_variograms_csv(r: &FitReport) -> Result<Vec<u8>> {
+    use crate::spatial::outputs::{VariogramTable, variograms_csv};
+    let names: Vec<String> =
+        r.fits.iter().map(|f| format!("{} {}", model_name(f), if f.method == Method::Ml { "ML" } else { "REML" })).collect();
+    let tables: Vec<VariogramTable> = r
+        .fits
+        .iter()
+        .zip(&r.residual_variograms)
+        .zip(&names)
+        .filter_map(|((_, v), name)| v.as_ref().map(|e| VariogramTable { variable: name, empirical: e, fits: &[] }))
+        .collect();
+    variograms_csv(&tables).map_err(|e| {
+        crate::io::IoError::Table { path: "residual_variograms.csv".into(), message: e.to_string() }.into()
+    })
 }
 
 fn num(v: f64) -> String {
@@ -302,5 +341,6 @@ pub fn write_outputs(study: &Study, r: &FitReport) -> Result<Vec<PathBuf>> {
     w.write("anova.csv", anova_csv(r).as_bytes())?;
     w.write("residuals.csv", residuals_csv(r).as_bytes())?;
     w.write("diagnostics.csv", diagnostics_csv(r).as_bytes())?;
+    w.write("residual_variograms.csv", &residual_variograms_csv(r)?)?;
     Ok(w.commit()?)
 }
