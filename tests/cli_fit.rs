@@ -87,6 +87,9 @@ fn fit_writes_every_table() {
     let coef = std::fs::read_to_string(out.join("coefficients.csv")).unwrap();
     assert!(coef.contains("ols,OLS,accession[k2]:regime[full],"));
     assert!(out.join("diagnostics.csv").exists());
+    let rv = std::fs::read_to_string(out.join("residual_variograms.csv")).unwrap();
+    assert!(rv.starts_with("variable,direction,"), "{rv}");
+    assert!(rv.lines().any(|l| l.starts_with("independent ML,")), "{rv}");
     // no staging folder left behind
     assert!(
         std::fs::read_dir(&out).unwrap().all(|e| !e.unwrap().file_name().to_string_lossy().starts_with('.'))
