@@ -106,16 +106,31 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
         .map(|f| nb.as_ref().and_then(|nb| moran_residuals(&f.normalised, &f.whitened_x, nb)))
         .collect();
     let residual_variograms = residual_variograms(&data, &fits);
-    Ok(FitReport { spec, data, design, ols: ols_fit, anova: anovas, counts, fits, moran, residual_variograms, notes })
+    Ok(FitReport {
+        spec,
+        data,
+        design,
+        ols: ols_fit,
+        anova: anovas,
+        counts,
+        fits,
+        moran,
+        residual_variograms,
+        notes,
+    })
 }
 
 /// The experimental variogram of every fit's normalised residuals at the pot
 /// positions, by the one variogram implementation of [`crate::spatial`]
 /// (Matheron's estimator, default bins for the layout).
-pub fn residual_variograms(data: &ModelData, fits: &[Fit]) -> Vec<Option<crate::spatial::variogram::Empirical>> {
+pub fn residual_variograms(
+    data: &ModelData,
+    fits: &[Fit],
+) -> Vec<Option<crate::spatial::variogram::Empirical>> {
     use crate::spatial::geometry::{Origin, Points};
     use crate::spatial::variogram::{Bins, Estimator, experimental};
-    let Ok(points) = Points::new("pot", data.pots.clone(), data.x.clone(), data.y.clone(), None, &Origin::default())
+    let Ok(points) =
+        Points::new("pot", data.pots.clone(), data.x.clone(), data.y.clone(), None, &Origin::default())
     else {
         return vec![None; fits.len()];
     };
@@ -130,14 +145,19 @@ pub fn residual_variograms(data: &ModelData, fits: &[Fit]) -> Vec<Option<crate::
 /// `<model> <method>`).
 pub fn residual_variograms_csv(r: &FitReport) -> Result<Vec<u8>> {
     use crate::spatial::outputs::{VariogramTable, variograms_csv};
-    let names: Vec<String> =
-        r.fits.iter().map(|f| format!("{} {}", model_name(f), if f.method == Method::Ml { "ML" } else { "REML" })).collect();
+    let names: Vec<String> = r
+        .fits
+        .iter()
+        .map(|f| format!("{} {}", model_name(f), if f.method == Method::Ml { "ML" } else { "REML" }))
+        .collect();
     let tables: Vec<VariogramTable> = r
         .fits
         .iter()
         .zip(&r.residual_variograms)
         .zip(&names)
-        .filter_map(|((_, v), name)| v.as_ref().map(|e| VariogramTable { variable: name, empirical: e, fits: &[] }))
+        .filter_map(|((_, v), name)| {
+            v.as_ref().map(|e| VariogramTable { variable: name, empirical: e, fits: &[] })
+        })
         .collect();
     variograms_csv(&tables).map_err(|e| {
         crate::io::IoError::Table { path: "residual_variograms.csv".into(), message: e.to_string() }.into()
