@@ -13,6 +13,7 @@ mod fit;
 mod ingest;
 mod init;
 mod report;
+mod verdict;
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
@@ -40,6 +41,8 @@ pub enum Command {
     Ingest(ingest::IngestArgs),
     /// Fit the trait models of `[model]`: OLS and ANOVA, and GLS with spatially correlated residuals by ML and REML.
     Fit(fit::FitArgs),
+    /// Decide between a measured climate driver and a spatially correlated residual; rank drivers; adjusted means.
+    Verdict(verdict::VerdictArgs),
     /// Redraw report.html from the report_data.json of an earlier run.
     Report(report::ReportArgs),
 }
@@ -71,6 +74,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Check(a) => check::run(a),
         Command::Ingest(a) => ingest::run(a),
         Command::Fit(args) => fit::run(args),
+        Command::Verdict(args) => verdict::run(args),
         Command::Report(args) => report::run(args),
     }
 }
