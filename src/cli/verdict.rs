@@ -20,10 +20,7 @@ pub fn run(args: VerdictArgs) -> anyhow::Result<()> {
         .with_context(|| format!("loading {}", args.study.display()))?;
     let opts = VerdictOptions::from_study(&study)?;
     let r = run_verdict(&study, &opts)?;
-    println!(
-        "trait `{}`: {} pots, {} fits in {:.1} s",
-        r.trait_name, r.n_pots, r.n_fits, r.seconds
-    );
+    println!("trait `{}`: {} pots, {} fits in {:.1} s", r.trait_name, r.n_pots, r.n_fits, r.seconds);
     for n in &r.notes {
         println!("note: {n}");
     }

@@ -3,8 +3,8 @@
 //! the adjusted means. Only copies and relabels; computes nothing new.
 
 use super::data::{
-    AdjustedMean, ComparisonRow, DriverRow, ModelsSection, MoranI, ResidualMap, ResidualPoint,
-    VariogramBin, VariogramPanel, VerdictSection,
+    AdjustedMean, ComparisonRow, DriverRow, ModelsSection, MoranI, ResidualMap, ResidualPoint, VariogramBin,
+    VariogramPanel, VerdictSection,
 };
 use crate::model::verdict::{MoranSummary, VerdictResult};
 
@@ -21,7 +21,12 @@ fn moran(m: &MoranSummary) -> MoranI {
     }
 }
 
-fn residual_map(r: &VerdictResult, model: &str, res: &[f64], m: Option<&MoranSummary>) -> Option<ResidualMap> {
+fn residual_map(
+    r: &VerdictResult,
+    model: &str,
+    res: &[f64],
+    m: Option<&MoranSummary>,
+) -> Option<ResidualMap> {
     if res.len() != r.positions.len() || res.is_empty() {
         return None;
     }
@@ -41,7 +46,9 @@ fn residual_map(r: &VerdictResult, model: &str, res: &[f64], m: Option<&MoranSum
 /// the models section, the adjusted means, and the residual variogram panel
 /// of the chosen model (empty when no bin was computed). Units are left
 /// `None` (the verdict stage does not know the trait's unit).
-pub fn to_report(r: &VerdictResult) -> (VerdictSection, ModelsSection, Vec<AdjustedMean>, Vec<VariogramPanel>) {
+pub fn to_report(
+    r: &VerdictResult,
+) -> (VerdictSection, ModelsSection, Vec<AdjustedMean>, Vec<VariogramPanel>) {
     let mut cautions = vec![
         "Correlation is not causation: the winning explanation is the best of those offered, not proof of a mechanism.".to_string(),
         r.residual_check.statement.clone(),
