@@ -127,3 +127,54 @@ fn unknown_verdict_key_is_refused() {
     assert!(!ok);
     assert!(stderr.contains("tie_margin"), "{stderr}");
 }
+
+/// A mapped climate driver from `<output>/pot_covariates.csv` with its
+/// sensor-level values in `<output>/sensor_indicators.csv`: the chosen model
+/// is refitted on conditional simulations and the inflated SE is reported
+/// next to the plug-in SE.
+#[test]
+fn mapped_driver_gets_an_inflated_se() {
+    let dir = tempfile::tempdir().unwrap();
+    // pot table without `cold`; `cold` comes from the mapping stage's file.
+    let full = pots_csv(|_| String::new(), "");
+    let mut pots = String::new();
+    let mut cov = String::from("pot,cold,cold_se\n");
+    for (k, l) in full.lines().enumerate() {
+        let f: Vec<&str> = l.split(',').collect();
+        let kept: Vec<&str> = f.iter().enumerate().filter(|(j, _)| *j != 5).map(|(_, v)| *v).collect();
+        pots.push_str(&kept.join(","));
+        pots.push('\n');
+        if k > 0 {
+            cov.push_str(&format!("{},{},0.2\n", f[0], f[5]));
+        }
+    }
+    let p = study(dir.path(), "[\"cold\"]", &pots);
+    let mut text = std::fs::read_to_string(&p).unwrap();
+    text = text.replace(
+        "[model]",
+        "[sensors]\nfile = \"sensors.csv\"\nid = \"sensor\"\nx = \"x\"\ny = \"y\"\n\n[model]",
+    );
+    text = text.replace("tie_delta = 2", "tie_delta = 2\ndraws = 8");
+    std::fs::write(&p, text).unwrap();
+    let mut sensors = String::from("sensor,x,y\n");
+    let mut ind = String::from("sensor,cold,cold_days\n");
+    for k in 0..8 {
+        let (x, y) = ((k % 4) as f64 * 0.9 + 0.1, (k / 4) as f64 * 2.0 + 0.4);
+        sensors.push_str(&format!("S{k},{x},{y}\n"));
+        // the test's cold gradient at the sensor (0.9 per 0.4 m along x)
+        ind.push_str(&format!("S{k},{},28\n", 2.0 + 0.9 * x / 0.4 + 0.2 * (k % 3) as f64));
+    }
+    std::fs::write(dir.path().join("sensors.csv"), sensors).unwrap();
+    std::fs::create_dir_all(dir.path().join("out")).unwrap();
+    std::fs::write(dir.path().join("out/pot_covariates.csv"), cov).unwrap();
+    std::fs::write(dir.path().join("out/sensor_indicators.csv"), ind).unwrap();
+    let (ok, stdout, stderr) = run(&p);
+    assert!(ok, "{stderr}");
+    assert!(stdout.contains("conditional simulations"), "{stdout}");
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out/summary.json")).unwrap()).unwrap();
+    let d = &summary["drivers"][0];
+    let (se, inflated) = (d["se"].as_f64().unwrap(), d["se_with_mapping_uncertainty"].as_f64());
+    let inflated = inflated.unwrap_or_else(|| panic!("no inflated SE: {summary}"));
+    assert!(inflated > 0.0 && inflated.is_finite() && se > 0.0, "{se} {inflated}");
+}

@@ -141,3 +141,63 @@ pub fn to_report(
     };
     (verdict, models, means, panels)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::verdict::{ModelRow, ResidualCheck, VerdictOptions};
+
+    #[test]
+    fn sections_carry_the_verdict_values() {
+        let r = VerdictResult {
+            verdict: "covariate".into(),
+            reason: "why".into(),
+            best_model: "base+cold".into(),
+            best_by_aic: "base+cold | exponential".into(),
+            options: VerdictOptions::default(),
+            trait_name: "h".into(),
+            n_pots: 2,
+            models: vec![ModelRow {
+                name: "base".into(),
+                drivers: vec![],
+                correlation: "none".into(),
+                nugget: false,
+                loglik: -3.0,
+                aic: 10.0,
+                bic: 11.0,
+                n_params: 2,
+                delta_aic: 0.0,
+                akaike_weight: 1.0,
+                range: None,
+                nugget_share: None,
+                converged: true,
+            }],
+            lrts: vec![],
+            chosen_coefficients: vec![],
+            residual_check: ResidualCheck {
+                moran: None,
+                variogram: vec![],
+                structure_left: false,
+                statement: "none left".into(),
+            },
+            drivers: vec![],
+            openings: None,
+            adjusted_means: vec![],
+            notes: vec![],
+            n_fits: 1,
+            seconds: 0.0,
+            positions: vec![("a".into(), 0.0, 0.0), ("b".into(), 1.0, 0.0)],
+            plain_residuals: vec![0.5, -0.5],
+            chosen_residuals: vec![0.1, -0.1],
+            plain_moran: None,
+            chosen_shape: (vec![], crate::model::gls::Errors::Independent),
+        };
+        let (v, m, means, panels) = to_report(&r);
+        assert_eq!(v.word, "covariate");
+        assert_eq!(v.best_by_aic.as_deref(), Some("base+cold | exponential"));
+        assert_eq!(m.comparison[0].correlation, None);
+        assert_eq!(m.tie_margin, Some(2.0));
+        assert_eq!(m.residuals_after.unwrap().points[1].residual, -0.1);
+        assert!(means.is_empty() && panels.is_empty());
+    }
+}
