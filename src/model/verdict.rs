@@ -474,6 +474,9 @@ pub fn load_sensor_values(study: &Study, names: &[String]) -> Result<Vec<SensorV
     Ok(out)
 }
 
+/// Pooled driver coefficient, the per-draw `(estimate, se)` and a note in words.
+pub type MappingDraws = (compare::Pooled, Vec<(f64, f64)>, String);
+
 /// Fewest sensors for fitting a variogram to one indicator (common practice;
 /// below it the documented default model is used).
 pub const MIN_SENSORS_FOR_VARIOGRAM: usize = 6;
@@ -497,7 +500,7 @@ pub fn mapping_uncertainty(
     shape: &(Vec<String>, Errors),
     sv: &SensorValues,
     opts: &VerdictOptions,
-) -> Result<(compare::Pooled, Vec<(f64, f64)>, String)> {
+) -> Result<MappingDraws> {
     use crate::spatial::correlation::Family;
     use crate::spatial::kriging::{Method as Kmethod, Spec, krige};
     use crate::spatial::likelihood::{CovParams, cholesky};
@@ -538,7 +541,7 @@ pub fn mapping_uncertainty(
     let ay: Vec<f64> = sv.points.y.iter().chain(&data.y).copied().collect();
     let dist_all = Distances::from_coords(&ax, &ay).map_err(|e| lerr("simulation positions", e))?;
     let sill = model.sill();
-    if !(sill > 0.0) {
+    if sill.is_nan() || sill <= 0.0 {
         return Err(bad(format!("driver `{}`: the sensor values do not vary", sv.name)));
     }
     let eta = (model.nugget / sill).max(1e-6);
