@@ -9,7 +9,9 @@ mod simulate;
 use clap::{Parser, Subcommand};
 
 mod check;
+mod climate;
 mod fit;
+mod map;
 mod ingest;
 mod init;
 mod report;
@@ -41,10 +43,15 @@ pub enum Command {
     Ingest(ingest::IngestArgs),
     /// Fit the trait models of `[model]`: OLS and ANOVA, and GLS with spatially correlated residuals by ML and REML.
     Fit(fit::FitArgs),
+    /// Map the climate indicators onto every pot by kriging, with standard errors.
+    #[command(long_about = map::HELP)]
+    Map(map::MapArgs),
     /// Decide between a measured climate driver and a spatially correlated residual; rank drivers; adjusted means.
     Verdict(verdict::VerdictArgs),
     /// Redraw report.html from the report_data.json of an earlier run.
     Report(report::ReportArgs),
+    /// Climate indicators per sensor and local day (reads <output>/readings.parquet).
+    Climate(climate::ClimateArgs),
 }
 
 /// Run the command line and return the process exit code.
@@ -74,7 +81,9 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Check(a) => check::run(a),
         Command::Ingest(a) => ingest::run(a),
         Command::Fit(args) => fit::run(args),
+        Command::Map(args) => map::run(args),
         Command::Verdict(args) => verdict::run(args),
         Command::Report(args) => report::run(args),
+        Command::Climate(args) => climate::run(args),
     }
 }

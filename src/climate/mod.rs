@@ -4,3 +4,30 @@
 //!
 //! It consumes the clean readings table of [`crate::io`] and produces daily
 //! values that [`crate::spatial`] maps onto pots.
+//!
+//! Layout, and what the spatial engine calls:
+//! * [`config`]: `[climate]` and `[[indicator]]`, validated once.
+//! * [`calendar`]: the grid, local days, expected steps per day, day flags.
+//! * [`regular`]: polars bucketing of readings onto the grid, gap filling,
+//!   and the time × sensor matrices ([`regular::SensorGrid`]).
+//! * [`indicator`]: per-day values from ONE location's series
+//!   ([`indicator::daily_values`]) and their combination over a window
+//!   ([`indicator::combine_window`]); plain slices, no polars, so they are
+//!   cheap to call on every pot's mapped series.
+//! * [`psychro`]: FAO-56 psychrometrics.
+//! * [`stage`]: the `climate` stage end to end and its output files.
+
+pub mod calendar;
+pub mod config;
+pub mod error;
+pub mod indicator;
+pub mod psychro;
+pub mod regular;
+pub mod stage;
+
+pub use calendar::Calendar;
+pub use config::{ClimateConfig, Indicator};
+pub use error::{ClimateError, Result};
+pub use indicator::{Combine, DayValue, LocationSeries, WindowValue, combine_window, daily_values};
+pub use regular::{SensorGrid, StepMatrix};
+pub use stage::{ClimateRun, compute, run};

@@ -10,9 +10,11 @@
 //! configuration (pattern, decimal mark, delimiter) is wrong, not the data.
 //!
 //! Ambiguous local times (the fall-back hour) are resolved by file order per
-//! sensor: the earliest instant when it comes after the sensor's previous
-//! reading, else the latest when that does; otherwise the row is flagged
-//! `ambiguous_time`.
+//! sensor: a run of rows in the repeated hour is the first pass when the same
+//! hour follows again (the clock jumps back), and the rows after the jump are
+//! the second pass. A run that is never repeated cannot be placed (the logger
+//! may have skipped either pass) and is flagged `ambiguous_time`, as is a
+//! repeated-hour row with no earlier reading of its sensor.
 
 use super::clock::{LocalClock, Resolution, Stamp, TimeFormat};
 use super::error::{IoError, Result, closest};
@@ -470,6 +472,19 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
         });
     };
 
+    // Rows in a fall-back hour read as the first pass, per sensor, until the
+    // second pass confirms it: (row index, line, time cell). A first pass that
+    // is never followed by a second one cannot be placed and is flagged.
+    let mut pending: std::collections::BTreeMap<u32, Vec<(usize, u32, Vec<u8>)>> = Default::default();
+    let mut drop_rows: Vec<usize> = Vec::new();
+    let unplaced =
+        |out: &mut FileRead, drop_rows: &mut Vec<usize>, sensor: u32, run: Vec<(usize, u32, Vec<u8>)>| {
+            for (idx, line, cell) in run {
+                flag(out, line, sensor, None, Variable::Time, &cell, Reason::AmbiguousTime);
+                drop_rows.push(idx);
+            }
+        };
+
     while rdr.read_byte_record(&mut rec).map_err(csv_err)? {
         let line = (lines.line_of(&rec) + skip) as u32;
         if rec.len() <= 1 && rec.iter().all(|c| trim(c).is_empty()) {
@@ -525,7 +540,12 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
             }
             Some(Stamp::Utc(t)) => t,
             Some(Stamp::Local(l)) => match clock.resolve(l) {
-                Resolution::Single(t) => t,
+                Resolution::Single(t) => {
+                    if let Some(run) = pending.remove(&sensor) {
+                        unplaced(&mut out, &mut drop_rows, sensor, run);
+                    }
+                    t
+                }
                 Resolution::Nonexistent => {
                     flag(&mut out, line, sensor, None, Variable::Time, tcell, Reason::NonexistentTime);
                     continue;
@@ -533,8 +553,14 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
                 Resolution::Ambiguous(early, late) => {
                     let prev = last_utc[sensor as usize];
                     match prev {
-                        Some(p) if early > p => early,
-                        Some(p) if early < p && late >= p => late,
+                        Some(p) if early > p => {
+                            pending.entry(sensor).or_default().push((out.rows.len(), line, tcell.to_vec()));
+                            early
+                        }
+                        Some(p) if early < p && late >= p => {
+                            pending.remove(&sensor);
+                            late
+                        }
                         _ => {
                             flag(&mut out, line, sensor, None, Variable::Time, tcell, Reason::AmbiguousTime);
                             continue;
@@ -565,6 +591,18 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
             }
         }
         out.rows.push(Row { time: utc, values, line, sensor, file, flagged });
+    }
+    for (sensor, run) in std::mem::take(&mut pending) {
+        unplaced(&mut out, &mut drop_rows, sensor, run);
+    }
+    if !drop_rows.is_empty() {
+        let drop: std::collections::HashSet<usize> = drop_rows.into_iter().collect();
+        out.rows = std::mem::take(&mut out.rows)
+            .into_iter()
+            .enumerate()
+            .filter(|(i, _)| !drop.contains(i))
+            .map(|(_, r)| r)
+            .collect();
     }
     if out.rows_read == 0 {
         return Err(IoError::Empty {

@@ -14,4 +14,5 @@ pub mod kriging;
 pub mod likelihood;
 pub mod mapping;
 pub mod outputs;
+pub mod stage;
 pub mod variogram;

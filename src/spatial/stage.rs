@@ -1,0 +1,407 @@
+//! The mapping stage (`potclim map`): from the climate stage's regular sensor
+//! series to every pot's indicator values with standard errors, plus the
+//! distance of every pot to every opening.
+//!
+//! For each climate variable an indicator needs (temperature, humidity,
+//! light; VPD and dew point need temperature and humidity):
+//! 1. the pooled variogram of the per-step anomalies at the sensors (the mean
+//!    removed at each step) is fitted for every configured family, and the
+//!    best fit by Cressie's criterion is kept ([`super::mapping::choose_model`]);
+//! 2. every candidate method is scored by leave-one-sensor-out
+//!    cross-validation over all time steps, and `auto` picks one
+//!    ([`super::mapping::choose`]);
+//! 3. the whole series is mapped onto every pot with weights computed once per
+//!    set of reporting sensors ([`super::mapping::map_series`]).
+//!
+//! Each pot's indicator is then computed from the pot's own mapped series by
+//! the climate stage's per-location code (so that non-linear indicators such
+//! as hours below a threshold come from the mapped series itself, not from a
+//! mapped summary), per local day, and combined over the pot's own growth
+//! window (`[pots].start`/`end`, else the study period).
+//!
+//! Standard errors of window indicators (an approximation, stated in
+//! `docs/spatial.md`): the indicator's study-period values at the sensors are
+//! kriged with the variable's variogram shape and their own profiled sill
+//! ([`super::mapping::map_summary`]); for a summed indicator the SE is scaled
+//! by the pot's share of the study period's valid days.
+
+use super::config::{MappingConfig, MethodChoice};
+use super::error::SpatialError;
+use super::geometry::{Points, opening_distances, pot_points, sensor_points};
+use super::kriging::{Drift, Method, Spec};
+use super::mapping::{CvScore, choose, choose_model, loso, map_series, map_summary};
+use super::outputs::{MappedColumn, mapping_cv_csv, pot_covariates_csv, variogram_fits_csv, variograms_csv};
+use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
+use crate::climate::config::Variable;
+use crate::climate::{ClimateError, ClimateRun, Combine, LocationSeries, combine_window, daily_values};
+use crate::io::layout::{Pots, Sensors, load_pots, load_sensors};
+use crate::io::output::StageWriter;
+use crate::io::study::Study;
+use crate::io::{IoError, ingest};
+use nalgebra::DMatrix;
+use std::path::PathBuf;
+
+/// An error of the mapping stage.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum MapError {
+    /// Input error.
+    #[error(transparent)]
+    Io(#[from] Box<IoError>),
+    /// Climate-stage error.
+    #[error(transparent)]
+    Climate(#[from] Box<ClimateError>),
+    /// Spatial error.
+    #[error("{0}")]
+    Spatial(#[from] SpatialError),
+    /// Something the study does not provide.
+    #[error("{0}")]
+    Missing(String),
+}
+
+impl From<IoError> for MapError {
+    fn from(e: IoError) -> Self {
+        MapError::Io(Box::new(e))
+    }
+}
+
+impl From<ClimateError> for MapError {
+    fn from(e: ClimateError) -> Self {
+        MapError::Climate(Box::new(e))
+    }
+}
+
+/// One mapped climate variable.
+#[derive(Debug, Clone)]
+pub struct VariableMap {
+    /// `temperature`, `humidity` or `light`.
+    pub name: &'static str,
+    /// Pooled omnidirectional variogram of the per-step anomalies.
+    pub empirical: Empirical,
+    /// Directional pooled variograms (anisotropy check).
+    pub directional: Vec<Empirical>,
+    /// Every family's WLS fit.
+    pub fits: Vec<(crate::spatial::correlation::Family, Option<VariogramFit>)>,
+    /// The family kriging uses (`None`: documented fallback).
+    pub chosen_family: Option<crate::spatial::correlation::Family>,
+    /// The kriging spec used to map.
+    pub spec: Spec,
+    /// Cross-validation score of every candidate method.
+    pub cv: Vec<CvScore>,
+    /// The method `auto` chose (index into `cv`) and why.
+    pub choice: Option<(usize, String)>,
+    /// Warnings (fallbacks).
+    pub warnings: Vec<String>,
+    /// Mapped series, steps x pots (NaN = no sensor reported).
+    pub mapped: DMatrix<f64>,
+}
+
+/// Everything `potclim map` computed.
+#[derive(Debug, Clone)]
+pub struct MapRun {
+    /// Pot ids, in pot-table order.
+    pub pots: Vec<String>,
+    /// Pot positions.
+    pub pot_points: Points,
+    /// Sensor positions, in the climate grid's sensor order.
+    pub sensor_points: Points,
+    /// The mapped variables.
+    pub variables: Vec<VariableMap>,
+    /// Each indicator at each pot over the pot's window, with SE.
+    pub indicators: Vec<MappedColumn>,
+    /// `distance_<opening>` per pot, metres.
+    pub distances: Vec<(String, Vec<f64>)>,
+}
+
+fn base_variables(v: Variable) -> &'static [&'static str] {
+    match v {
+        Variable::Temperature => &["temperature"],
+        Variable::Humidity => &["humidity"],
+        Variable::Light => &["light"],
+        Variable::Vpd | Variable::DewPoint => &["temperature", "humidity"],
+    }
+}
+
+fn matrix_of(m: &crate::climate::StepMatrix) -> DMatrix<f64> {
+    DMatrix::from_row_slice(m.n_steps, m.n_cols, &m.data)
+}
+
+/// Sensor positions in the order of the climate grid's sensors.
+fn grid_sensor_points(study: &Study, sensors: &Sensors, grid_ids: &[String]) -> Result<Points, MapError> {
+    let all = sensor_points(sensors, study.spec.compartment)?;
+    let index = sensors.index();
+    let mut idx = Vec::with_capacity(grid_ids.len());
+    for id in grid_ids {
+        match index.get(id.as_str()) {
+            Some(&i) => idx.push(i),
+            None => {
+                return Err(MapError::Missing(format!(
+                    "sensor `{id}` has readings but no position in the sensor table"
+                )));
+            }
+        }
+    }
+    Ok(all.subset(&idx))
+}
+
+fn map_variable(
+    name: &'static str,
+    series: DMatrix<f64>,
+    sensors: &Points,
+    pots: &Points,
+    cfg: &MappingConfig,
+    drift: Option<&(Vec<f64>, Vec<f64>)>,
+) -> Result<VariableMap, MapError> {
+    let bins = cfg.bins_for(sensors)?;
+    let empirical = pooled(sensors, &series, &bins, cfg.estimator, None, &Detrend::Mean)?;
+    let mut directional = Vec::new();
+    for d in &cfg.directions {
+        directional.push(pooled(sensors, &series, &bins, cfg.estimator, Some(*d), &Detrend::Mean)?);
+    }
+    // Variance of the anomalies, for the fallback model.
+    let (mut s2, mut cnt) = (0.0, 0usize);
+    for t in 0..series.nrows() {
+        let row: Vec<f64> = series.row(t).iter().copied().filter(|v| v.is_finite()).collect();
+        if row.len() > 1 {
+            let m = row.iter().sum::<f64>() / row.len() as f64;
+            s2 += row.iter().map(|v| (v - m).powi(2)).sum::<f64>();
+            cnt += row.len() - 1;
+        }
+    }
+    let variance = if cnt > 0 { s2 / cnt as f64 } else { f64::NAN };
+    let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: None };
+    let choice_model = choose_model(&empirical, &cfg.families, &opts, sensors, variance)?;
+    let mut warnings: Vec<String> = choice_model.warning.iter().cloned().collect();
+    let drift_spec = |m: Method| -> Option<Drift> {
+        match (m, drift) {
+            (Method::ExternalDrift, Some((s, t))) => Some(Drift {
+                name: cfg.drift.clone().unwrap_or_default(),
+                at_sensors: s.clone(),
+                at_targets: t.clone(),
+            }),
+            _ => None,
+        }
+    };
+    let spec_for = |m: Method| Spec { method: m, model: choice_model.model, neighbours: cfg.neighbours, drift: drift_spec(m) };
+    let mut cv = Vec::new();
+    let mut methods = Vec::new();
+    for m in cfg.candidates() {
+        match loso(sensors, &series, &spec_for(m)) {
+            Ok(Some(score)) => {
+                cv.push(score);
+                methods.push(m);
+            }
+            Ok(None) => {}
+            Err(e) => warnings.push(format!("{name}: {} skipped in cross-validation: {e}", m.name())),
+        }
+    }
+    let choice = choose(&cv);
+    let method = match cfg.method {
+        MethodChoice::Fixed(m) => m,
+        MethodChoice::Auto => match &choice {
+            Some((i, _)) => methods[*i],
+            None => Method::Ordinary,
+        },
+    };
+    let spec = spec_for(method);
+    let mut mapped = DMatrix::<f64>::from_element(series.nrows(), pots.len(), f64::NAN);
+    let summary = map_series(sensors, &series, pots, &spec, 256, |j, pred, _se| {
+        mapped.column_mut(j).copy_from_slice(pred);
+    })?;
+    for w in summary.warnings {
+        if !warnings.contains(&w) {
+            warnings.push(w);
+        }
+    }
+    Ok(VariableMap {
+        name,
+        empirical,
+        directional,
+        fits: choice_model.fits,
+        chosen_family: choice_model.chosen,
+        spec,
+        cv,
+        choice,
+        warnings,
+        mapped,
+    })
+}
+
+/// Map every declared indicator onto every pot. `climate` is the climate
+/// stage's result for the same study.
+pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> {
+    let cfg = MappingConfig::from_study(study)?;
+    let pots_table: Pots = load_pots(study)?;
+    let sensors_table = load_sensors(study)?.ok_or_else(|| {
+        MapError::Missing("mapping needs a [sensors] table with the loggers' positions".into())
+    })?;
+    let pots = pot_points(&pots_table, study.spec.compartment)?;
+    let sensors = grid_sensor_points(study, &sensors_table, &climate.grid.sensors)?;
+    let distances = opening_distances(&study.spec.openings, &pots);
+    let drift = match &cfg.drift {
+        Some(name) => {
+            let o = study.spec.openings.iter().find(|o| &o.name == name).ok_or_else(|| {
+                MapError::Missing(format!("[mapping].drift names opening `{name}`, which [[openings]] does not declare"))
+            })?;
+            let at_s = super::geometry::distances_to_opening(&sensors, o.from, o.to);
+            let at_p = super::geometry::distances_to_opening(&pots, o.from, o.to);
+            Some((at_s, at_p))
+        }
+        None => None,
+    };
+
+    let indicators = &climate.config.indicators;
+    let mut needed: Vec<&'static str> = Vec::new();
+    for ind in indicators {
+        for v in base_variables(ind.variable) {
+            if !needed.contains(v) {
+                needed.push(v);
+            }
+        }
+    }
+    let mut variables = Vec::new();
+    for name in ["temperature", "humidity", "light"] {
+        if !needed.contains(&name) {
+            continue;
+        }
+        let m = match name {
+            "temperature" => &climate.grid.temperature,
+            "humidity" => &climate.grid.humidity,
+            _ => &climate.grid.light,
+        };
+        let series = matrix_of(m);
+        variables.push(map_variable(name, series, &sensors, &pots, &cfg, drift.as_ref())?);
+    }
+    let get = |name: &str| variables.iter().find(|v| v.name == name);
+    let n_steps = climate.calendar.n_steps;
+    let nan = vec![f64::NAN; n_steps];
+    let cal = &climate.calendar;
+    let all_days = 0..cal.days.len();
+    let windows: Vec<std::ops::Range<usize>> = (0..pots.len())
+        .map(|j| match (&pots_table.start, &pots_table.end) {
+            (Some(s), Some(e)) => cal.window_days(s[j], e[j]),
+            (Some(s), None) => cal.window_days(s[j], cal_end(cal)),
+            (None, Some(e)) => cal.window_days(cal_start(cal), e[j]),
+            (None, None) => all_days.clone(),
+        })
+        .collect();
+    let min_cov = climate.config.spec.min_coverage;
+    let mut columns = Vec::new();
+    for (i, ind) in indicators.iter().enumerate() {
+        let how = ind.statistic.combine();
+        let mut value = vec![f64::NAN; pots.len()];
+        let mut valid = vec![0usize; pots.len()];
+        for j in 0..pots.len() {
+            let col = |name: &str| -> &[f64] {
+                match get(name) {
+                    // DMatrix storage is column-major: column j is one contiguous slice.
+                    Some(v) => &v.mapped.as_slice()[j * n_steps..(j + 1) * n_steps],
+                    None => &nan,
+                }
+            };
+            let (t, h, l) = (col("temperature"), col("humidity"), col("light"));
+            let series = LocationSeries { temperature: t, humidity: h, light: l };
+            let daily: Vec<Option<f64>> =
+                daily_values(ind, cal, &series, min_cov).into_iter().map(|d| d.value).collect();
+            let w = combine_window(&daily, windows[j].clone(), how);
+            value[j] = w.value.unwrap_or(f64::NAN);
+            valid[j] = w.valid_days;
+        }
+        // Standard errors from the indicator's study-period sensor values.
+        let base = base_variables(ind.variable)[0];
+        let se = match get(base) {
+            Some(v) if v.spec.method.is_kriging() => {
+                let sensor_vals: Vec<f64> =
+                    climate.study[i].iter().map(|w| w.value.unwrap_or(f64::NAN)).collect();
+                let sensor_days: Vec<usize> = climate.study[i].iter().map(|w| w.valid_days).collect();
+                let ok: Vec<usize> = (0..sensor_vals.len()).filter(|&k| sensor_vals[k].is_finite()).collect();
+                if ok.len() >= 2 {
+                    let sub = sensors.subset(&ok);
+                    let vals: Vec<f64> = ok.iter().map(|&k| sensor_vals[k]).collect();
+                    let spec = Spec {
+                        method: if v.spec.method == Method::ExternalDrift { Method::Ordinary } else { v.spec.method },
+                        drift: None,
+                        ..v.spec.clone()
+                    };
+                    match map_summary(&sub, &vals, &pots, &spec) {
+                        Ok(p) => p.se.map(|se| {
+                            let mean_days =
+                                ok.iter().map(|&k| sensor_days[k] as f64).sum::<f64>() / ok.len() as f64;
+                            se.iter()
+                                .enumerate()
+                                .map(|(j, s)| match how {
+                                    Combine::Sum if mean_days > 0.0 => s * valid[j] as f64 / mean_days,
+                                    _ => *s,
+                                })
+                                .collect()
+                        }),
+                        Err(_) => None,
+                    }
+                } else {
+                    None
+                }
+            }
+            _ => None,
+        };
+        columns.push(MappedColumn { name: ind.name.clone(), value, se });
+    }
+    Ok(MapRun {
+        pots: pots_table.ids.clone(),
+        pot_points: pots,
+        sensor_points: sensors,
+        variables,
+        indicators: columns,
+        distances,
+    })
+}
+
+fn cal_start(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
+    crate::climate::calendar::local_time(cal.timezone, cal.start_ms)
+}
+
+fn cal_end(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
+    crate::climate::calendar::local_time(cal.timezone, cal.start_ms + cal.step_ms * cal.n_steps as i64)
+}
+
+/// Write `pot_covariates.csv`, `variograms.csv`, `variogram_fits.csv` and
+/// `mapping_cv.csv` into the study's output folder (atomically).
+pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapError> {
+    let mut w = StageWriter::new(&study.output_dir(), "map")?;
+    w.write("pot_covariates.csv", &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
+    let mut tables = Vec::new();
+    for v in &run.variables {
+        tables.push(super::outputs::VariogramTable { variable: v.name, empirical: &v.empirical, fits: &v.fits });
+        for d in &v.directional {
+            tables.push(super::outputs::VariogramTable { variable: v.name, empirical: d, fits: &v.fits });
+        }
+    }
+    if !tables.is_empty() {
+        w.write("variograms.csv", &variograms_csv(&tables)?)?;
+    }
+    let fits: Vec<super::outputs::FitsRow> =
+        run.variables.iter().map(|v| (v.name, v.fits.as_slice(), v.chosen_family)).collect();
+    w.write("variogram_fits.csv", &variogram_fits_csv(&fits)?)?;
+    let cv: Vec<super::outputs::CvRow> =
+        run.variables.iter().map(|v| (v.name, v.cv.as_slice(), v.choice.clone())).collect();
+    w.write("mapping_cv.csv", &mapping_cv_csv(&cv)?)?;
+    Ok(w.commit()?)
+}
+
+/// The whole stage from the output folder's `readings.parquet`: climate
+/// series, mapping, outputs.
+pub fn run(study: &Study) -> Result<(MapRun, Vec<PathBuf>), MapError> {
+    let readings_path = study.output_dir().join("readings.parquet");
+    if !readings_path.exists() {
+        return Err(MapError::Missing(format!(
+            "{} does not exist; run `potclim ingest {}` first (or `potclim run`)",
+            readings_path.display(),
+            study.path.display()
+        )));
+    }
+    let readings = ingest::read_readings(&readings_path)?;
+    let config = crate::climate::ClimateConfig::from_study(study)?;
+    let climate = crate::climate::compute(study, config, &readings, &readings_path)?;
+    let run = compute(study, &climate)?;
+    let files = write_outputs(study, &run)?;
+    Ok((run, files))
+}
