@@ -69,7 +69,8 @@ fn ingest_recovers_the_simulated_truth() {
     let sensor = df.column("sensor").unwrap().str().unwrap().clone();
     let time = df.column("time").unwrap().datetime().unwrap().physical().clone();
     let chans = ["temperature_c", "rh_pct", "ppfd_umol_m2_s"];
-    let vals: Vec<Float64Chunked> = chans.iter().map(|c| df.column(c).unwrap().f64().unwrap().clone()).collect();
+    let vals: Vec<Float64Chunked> =
+        chans.iter().map(|c| df.column(c).unwrap().f64().unwrap().clone()).collect();
     let mut got: HashMap<(String, i64), [Option<f64>; 3]> = HashMap::new();
     for i in 0..df.height() {
         let key = (sensor.get(i).unwrap().to_string(), time.get(i).unwrap());

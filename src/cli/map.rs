@@ -66,14 +66,13 @@ pub fn summary(run: &MapRun) -> String {
         let vals: Vec<f64> = c.value.iter().copied().filter(|v| v.is_finite()).collect();
         let lo = vals.iter().copied().min_by(f64::total_cmp).unwrap_or(f64::NAN);
         let hi = vals.iter().copied().max_by(f64::total_cmp).unwrap_or(f64::NAN);
-        let se = c
-            .se
-            .as_ref()
-            .map(|se| {
-                let f: Vec<f64> = se.iter().copied().filter(|v| v.is_finite()).collect();
-                format!("mean SE {:.3}", f.iter().sum::<f64>() / f.len().max(1) as f64)
-            })
-            .unwrap_or_else(|| "no SE".into());
+        let se =
+            c.se.as_ref()
+                .map(|se| {
+                    let f: Vec<f64> = se.iter().copied().filter(|v| v.is_finite()).collect();
+                    format!("mean SE {:.3}", f.iter().sum::<f64>() / f.len().max(1) as f64)
+                })
+                .unwrap_or_else(|| "no SE".into());
         s.push_str(&format!(
             "{:<20} {:>10.3} .. {:<10.3} ({se}; {} of {} pots without a value)\n",
             c.name,

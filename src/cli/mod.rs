@@ -11,9 +11,9 @@ use clap::{Parser, Subcommand};
 mod check;
 mod climate;
 mod fit;
-mod map;
 mod ingest;
 mod init;
+mod map;
 mod report;
 mod verdict;
 

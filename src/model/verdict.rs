@@ -484,8 +484,9 @@ pub const MIN_SENSORS_FOR_VARIOGRAM: usize = 6;
 /// Refit the chosen model on `opts.draws` conditional simulations of one
 /// mapped driver and combine the driver's coefficient by Rubin's rules
 /// (Rubin 1987). Conditioning by kriging (Journel & Huijbregts 1978, ch. VII):
-/// an unconditional Gaussian draw `u` at sensors and pots (Cholesky of the
-/// variogram's covariance), then `z_c(pots) = K(z_obs) + u(pots) - K(u(sensors))`
+/// an unconditional Gaussian draw `u` of the signal (partial sill) at sensors
+/// and pots (Cholesky), plus the nugget as independent noise at the sensors
+/// only, then `z_c(pots) = K(z_obs) + u(pots) - K(u(sensors))`
 /// with `K` ordinary kriging from the sensors. The variogram is fitted by
 /// weighted least squares (exponential, with nugget) to the sensor values;
 /// with fewer than [`MIN_SENSORS_FOR_VARIOGRAM`] sensors or a failed fit the
@@ -544,8 +545,11 @@ pub fn mapping_uncertainty(
     if sill.is_nan() || sill <= 0.0 {
         return Err(bad(format!("driver `{}`: the sensor values do not vary", sv.name)));
     }
-    let eta = (model.nugget / sill).max(1e-6);
-    let l = cholesky(&dist_all, &CovParams { family: model.family, range: model.range, eta })
+    // The signal S (partial sill, no nugget) is simulated at sensors and pots;
+    // the nugget is measurement and micro-scale noise added at the sensors only,
+    // the split the kriging covariance makes (C(0) = c0 + c at a sensor, c rho
+    // between a sensor and a pot).
+    let l = cholesky(&dist_all, &CovParams { family: model.family, range: model.range, eta: 1e-9 })
         .map_err(|e| lerr("simulation covariance", e))?;
     let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| lerr("positions", e))?;
     let j = data.drivers.iter().position(|(n, _)| *n == sv.name).expect("driver loaded");
@@ -556,8 +560,13 @@ pub fn mapping_uncertainty(
     let mut d = data.clone();
     for _ in 0..opts.draws {
         let z: Vec<f64> = (0..m).map(|_| StandardNormal.sample(&mut rng)).collect();
-        let u: Vec<f64> =
-            (0..m).map(|i| sill.sqrt() * (0..=i).map(|k| l[(i, k)] * z[k]).sum::<f64>()).collect();
+        let mut u: Vec<f64> = (0..m)
+            .map(|i| model.partial_sill.sqrt() * (0..=i).map(|k| l[(i, k)] * z[k]).sum::<f64>())
+            .collect();
+        for v in u.iter_mut().take(ns) {
+            let e: f64 = StandardNormal.sample(&mut rng);
+            *v += model.nugget.sqrt() * e;
+        }
         let k_u = krige(&sv.points, &u[..ns], &pots, &kspec).map_err(kerr)?.value;
         d.drivers[j].1 = (0..pots.len()).map(|i| k_obs[i] + u[ns + i] - k_u[i]).collect();
         let design = design_for(&d, spec, &shape.0)?;

@@ -182,7 +182,12 @@ fn map_variable(
             _ => None,
         }
     };
-    let spec_for = |m: Method| Spec { method: m, model: choice_model.model, neighbours: cfg.neighbours, drift: drift_spec(m) };
+    let spec_for = |m: Method| Spec {
+        method: m,
+        model: choice_model.model,
+        neighbours: cfg.neighbours,
+        drift: drift_spec(m),
+    };
     let mut cv = Vec::new();
     let mut methods = Vec::new();
     for m in cfg.candidates() {
@@ -241,7 +246,9 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
     let drift = match &cfg.drift {
         Some(name) => {
             let o = study.spec.openings.iter().find(|o| &o.name == name).ok_or_else(|| {
-                MapError::Missing(format!("[mapping].drift names opening `{name}`, which [[openings]] does not declare"))
+                MapError::Missing(format!(
+                    "[mapping].drift names opening `{name}`, which [[openings]] does not declare"
+                ))
             })?;
             let at_s = super::geometry::distances_to_opening(&sensors, o.from, o.to);
             let at_p = super::geometry::distances_to_opening(&pots, o.from, o.to);
@@ -319,7 +326,11 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
                     let sub = sensors.subset(&ok);
                     let vals: Vec<f64> = ok.iter().map(|&k| sensor_vals[k]).collect();
                     let spec = Spec {
-                        method: if v.spec.method == Method::ExternalDrift { Method::Ordinary } else { v.spec.method },
+                        method: if v.spec.method == Method::ExternalDrift {
+                            Method::Ordinary
+                        } else {
+                            v.spec.method
+                        },
                         drift: None,
                         ..v.spec.clone()
                     };
@@ -370,7 +381,11 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
     w.write("pot_covariates.csv", &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
     let mut tables = Vec::new();
     for v in &run.variables {
-        tables.push(super::outputs::VariogramTable { variable: v.name, empirical: &v.empirical, fits: &v.fits });
+        tables.push(super::outputs::VariogramTable {
+            variable: v.name,
+            empirical: &v.empirical,
+            fits: &v.fits,
+        });
         for d in &v.directional {
             tables.push(super::outputs::VariogramTable { variable: v.name, empirical: d, fits: &v.fits });
         }
