@@ -16,6 +16,7 @@ mod init;
 mod map;
 mod report;
 mod run;
+mod verdict;
 
 /// Greenhouse microclimate and pot-trait analysis, from raw logger files to one report.
 #[derive(Debug, Parser)]
@@ -49,6 +50,8 @@ pub enum Command {
     /// Run the whole analysis: ingest, climate, map, verdict and report.
     #[command(long_about = run::HELP)]
     Run(run::RunArgs),
+    /// Decide between a measured climate driver and a spatially correlated residual; rank drivers; adjusted means.
+    Verdict(verdict::VerdictArgs),
     /// Redraw report.html from the report_data.json of an earlier run.
     Report(report::ReportArgs),
     /// Climate indicators per sensor and local day (reads <output>/readings.parquet).
@@ -84,6 +87,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Fit(args) => fit::run(args),
         Command::Map(args) => map::run(args),
         Command::Run(args) => run::run(args),
+        Command::Verdict(args) => verdict::run(args),
         Command::Report(args) => report::run(args),
         Command::Climate(args) => climate::run(args),
     }

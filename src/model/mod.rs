@@ -15,6 +15,7 @@ pub mod error;
 pub mod gls;
 pub mod ols;
 pub mod stage;
+pub mod verdict;
 
 pub use error::ModelError;
 

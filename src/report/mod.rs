@@ -19,6 +19,7 @@ pub mod assemble;
 pub mod colour;
 pub mod data;
 pub mod figures;
+pub mod from_verdict;
 pub mod html;
 pub mod png;
 pub mod sample;

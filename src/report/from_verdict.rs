@@ -1,0 +1,203 @@
+//! Conversion of the verdict stage's result ([`crate::model::verdict::VerdictResult`])
+//! into the report's data types: the verdict section, the models section and
+//! the adjusted means. Only copies and relabels; computes nothing new.
+
+use super::data::{
+    AdjustedMean, ComparisonRow, DriverRow, ModelsSection, MoranI, ResidualMap, ResidualPoint, VariogramBin,
+    VariogramPanel, VerdictSection,
+};
+use crate::model::verdict::{MoranSummary, VerdictResult};
+
+fn moran(m: &MoranSummary) -> MoranI {
+    MoranI {
+        i: m.i,
+        expectation: m.expected,
+        variance: m.variance,
+        p_value: m.p_value,
+        note: Some(format!(
+            "binary {}-nearest-neighbour weights, exact moments for regression residuals under normality, two-sided",
+            m.k
+        )),
+    }
+}
+
+fn residual_map(
+    r: &VerdictResult,
+    model: &str,
+    res: &[f64],
+    m: Option<&MoranSummary>,
+) -> Option<ResidualMap> {
+    if res.len() != r.positions.len() || res.is_empty() {
+        return None;
+    }
+    Some(ResidualMap {
+        model: model.to_string(),
+        points: r
+            .positions
+            .iter()
+            .zip(res)
+            .map(|((_, x, y), e)| ResidualPoint { x: *x, y: *y, residual: *e })
+            .collect(),
+        moran: m.map(moran),
+    })
+}
+
+/// The report sections filled from a verdict result: the verdict section,
+/// the models section, the adjusted means, and the residual variogram panel
+/// of the chosen model (empty when no bin was computed). Units are left
+/// `None` (the verdict stage does not know the trait's unit).
+pub fn to_report(
+    r: &VerdictResult,
+) -> (VerdictSection, ModelsSection, Vec<AdjustedMean>, Vec<VariogramPanel>) {
+    let mut cautions = vec![
+        "Correlation is not causation: the winning explanation is the best of those offered, not proof of a mechanism.".to_string(),
+        r.residual_check.statement.clone(),
+    ];
+    if let Some(o) = &r.openings {
+        cautions.push(o.statement.clone());
+    }
+    for d in r.drivers.iter().filter(|d| d.confounded) {
+        cautions.push(format!(
+            "`{}` is spatially confounded: its effect is clear with independent errors but not once a spatial correlation is modelled.",
+            d.name
+        ));
+    }
+    cautions.extend(r.notes.iter().cloned());
+    let verdict = VerdictSection {
+        word: r.verdict.clone(),
+        reason: r.reason.clone(),
+        chosen_model: r.best_model.clone(),
+        best_by_aic: (r.best_by_aic != r.best_model).then(|| r.best_by_aic.clone()),
+        trait_unit: None,
+        drivers: r
+            .drivers
+            .iter()
+            .map(|d| DriverRow {
+                name: d.name.clone(),
+                unit: None,
+                estimate: d.estimate,
+                se: d.se,
+                se_with_mapping_uncertainty: d.se_with_mapping_uncertainty,
+                ci_low: d.ci_low,
+                ci_high: d.ci_high,
+                p_value: Some(d.p_value),
+                delta_aic: Some(d.delta_aic),
+                delta_aic_with_correlation: d.delta_aic_with_correlation,
+                vif: d.vif,
+                confounded: d.confounded,
+            })
+            .collect(),
+        cautions,
+    };
+    let models = ModelsSection {
+        comparison: r
+            .models
+            .iter()
+            .map(|m| ComparisonRow {
+                name: m.name.clone(),
+                drivers: m.drivers.clone(),
+                correlation: (m.correlation != "none").then(|| m.correlation.clone()),
+                nugget: m.nugget,
+                loglik: m.loglik,
+                aic: m.aic,
+                bic: m.bic,
+                n_params: m.n_params as u64,
+                delta_aic: m.delta_aic,
+                akaike_weight: m.akaike_weight,
+            })
+            .collect(),
+        anova: Vec::new(),
+        residual_unit: None,
+        residuals_before: residual_map(r, "base", &r.plain_residuals, r.plain_moran.as_ref()),
+        residuals_after: residual_map(r, &r.best_model, &r.chosen_residuals, r.residual_check.moran.as_ref()),
+        tie_margin: Some(r.options.tie_delta),
+    };
+    let means = r
+        .adjusted_means
+        .iter()
+        .map(|a| AdjustedMean {
+            factor: a.factor.clone(),
+            level: a.level.clone(),
+            mean: a.mean,
+            se: a.se,
+            plain_mean: a.plain_mean,
+            change: a.change,
+        })
+        .collect();
+    let panels = if r.residual_check.variogram.is_empty() {
+        Vec::new()
+    } else {
+        vec![VariogramPanel {
+            subject: format!("normalised residuals of {}", r.best_model),
+            unit: "1".into(),
+            bins: r
+                .residual_check
+                .variogram
+                .iter()
+                .map(|b| VariogramBin { lag: b.lag, semivariance: b.semivariance, pairs: b.pairs as u64 })
+                .collect(),
+            fits: Vec::new(),
+        }]
+    };
+    (verdict, models, means, panels)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::verdict::{ModelRow, ResidualCheck, VerdictOptions};
+
+    #[test]
+    fn sections_carry_the_verdict_values() {
+        let r = VerdictResult {
+            verdict: "covariate".into(),
+            reason: "why".into(),
+            best_model: "base+cold".into(),
+            best_by_aic: "base+cold | exponential".into(),
+            options: VerdictOptions::default(),
+            trait_name: "h".into(),
+            n_pots: 2,
+            models: vec![ModelRow {
+                name: "base".into(),
+                drivers: vec![],
+                correlation: "none".into(),
+                nugget: false,
+                loglik: -3.0,
+                aic: 10.0,
+                bic: 11.0,
+                n_params: 2,
+                delta_aic: 0.0,
+                akaike_weight: 1.0,
+                range: None,
+                nugget_share: None,
+                converged: true,
+            }],
+            lrts: vec![],
+            chosen_coefficients: vec![],
+            residual_check: ResidualCheck {
+                moran: None,
+                variogram: vec![],
+                structure_left: false,
+                statement: "none left".into(),
+            },
+            drivers: vec![],
+            openings: None,
+            adjusted_means: vec![],
+            notes: vec![],
+            n_fits: 1,
+            seconds: 0.0,
+            positions: vec![("a".into(), 0.0, 0.0), ("b".into(), 1.0, 0.0)],
+            plain_residuals: vec![0.5, -0.5],
+            chosen_residuals: vec![0.1, -0.1],
+            plain_moran: None,
+            chosen_shape: (vec![], crate::model::gls::Errors::Independent),
+        };
+        let (v, m, means, panels) = to_report(&r);
+        assert_eq!(v.word, "covariate");
+        assert_eq!(v.best_by_aic.as_deref(), Some("base+cold | exponential"));
+        assert_eq!(m.comparison[0].correlation, None);
+        assert_eq!(m.tie_margin, Some(2.0));
+        assert_eq!(m.residuals_after.unwrap().points[1].residual, -0.1);
+        assert!(means.is_empty() && panels.is_empty());
+    }
+}

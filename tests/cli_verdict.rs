@@ -1,0 +1,180 @@
+//! `potclim verdict` through the binary: outputs and bad input, on a small
+//! invented bench (the numbers are checked in the unit tests of
+//! src/model/verdict.rs and src/model/compare.rs).
+
+use std::path::Path;
+use std::process::Command;
+
+/// 48 pots on a 8 x 6 bench; the trait falls with `cold` (a gradient along x
+/// with a small pseudo-random wiggle) plus deterministic noise.
+fn pots_csv(extra: impl Fn(usize) -> String, extra_name: &str) -> String {
+    let mut s = format!("pot,x,y,accession,regime,cold,{extra_name}height\n");
+    for i in 0..48 {
+        let (col, row) = (i % 8, i / 8);
+        let x = col as f64 * 0.4;
+        let y = row as f64 * 0.5;
+        let acc = ["k1", "k2", "k3"][i % 3];
+        let reg = ["shade", "full"][(i / 3) % 2];
+        let cold = 2.0 + 0.9 * col as f64 + ((i * 7) % 5) as f64 * 0.1;
+        let noise = (((i * 37 + 11) % 17) as f64 - 8.0) * 0.15;
+        let h = 25.0 + [0.0, 1.2, -0.8][i % 3] + [0.0, 2.0][(i / 3) % 2] - 1.1 * cold + noise;
+        s.push_str(&format!("P{i:02},{x},{y},{acc},{reg},{cold:.3},{}{h:.3}\n", extra(i)));
+    }
+    s
+}
+
+fn study(dir: &Path, drivers: &str, pots: &str) -> std::path::PathBuf {
+    std::fs::write(dir.join("pots.csv"), pots).unwrap();
+    let s = format!(
+        "[study]\ntitle = \"bench test\"\ntimezone = \"UTC\"\noutput = \"out\"\nseed = 5\n\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\n\n[model]\ntrait = \"height\"\nfactors = [\"accession\", \"regime\"]\ndrivers = {drivers}\ncorrelations = [\"exponential\"]\nnugget = true\n\n[verdict]\ntie_delta = 2\n"
+    );
+    let p = dir.join("study.toml");
+    std::fs::write(&p, s).unwrap();
+    p
+}
+
+fn run(study: &Path) -> (bool, String, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_potclim")).arg("verdict").arg(study).output().unwrap();
+    (
+        out.status.success(),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+#[test]
+fn verdict_writes_summary_and_tables() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study(dir.path(), "[\"cold\"]", &pots_csv(|_| String::new(), ""));
+    let (ok, stdout, stderr) = run(&p);
+    assert!(ok, "{stderr}");
+    assert!(stdout.contains("verdict: covariate"), "{stdout}");
+    let out = dir.path().join("out");
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(summary["verdict"], "covariate");
+    assert_eq!(summary["best_model"], "base+cold");
+    assert!(summary["reason"].as_str().unwrap().contains("cold"));
+    let models = summary["models"].as_array().unwrap();
+    // 2 driver sets x (independent, exponential, exponential+nugget)
+    assert_eq!(models.len(), 6);
+    for m in models {
+        for key in ["name", "drivers", "correlation", "nugget", "loglik", "aic", "bic", "n_params"] {
+            assert!(m.get(key).is_some(), "models[] lacks {key}");
+        }
+    }
+    let d = &summary["drivers"][0];
+    for key in ["name", "estimate", "se", "se_with_mapping_uncertainty", "p_value", "delta_aic"] {
+        assert!(d.get(key).is_some(), "drivers[] lacks {key}");
+    }
+    // The true slope is -1.1 per unit.
+    let est = d["estimate"].as_f64().unwrap();
+    assert!((est + 1.1).abs() < 0.2, "{est}");
+    let comparison = std::fs::read_to_string(out.join("comparison.csv")).unwrap();
+    assert_eq!(comparison.lines().count(), 7);
+    assert!(comparison.starts_with("model,drivers,correlation,nugget,loglik,aic,bic,n_params,delta_aic"));
+    let drivers = std::fs::read_to_string(out.join("drivers.csv")).unwrap();
+    assert_eq!(drivers.lines().count(), 2);
+    let means = std::fs::read_to_string(out.join("adjusted_means.csv")).unwrap();
+    // 3 accessions + 2 regimes
+    assert_eq!(means.lines().count(), 1 + 5, "{means}");
+}
+
+#[test]
+fn unknown_driver_lists_the_available_names() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study(dir.path(), "[\"night_cold\"]", &pots_csv(|_| String::new(), ""));
+    let (ok, _, stderr) = run(&p);
+    assert!(!ok);
+    assert!(stderr.contains("night_cold") && stderr.contains("available drivers"), "{stderr}");
+    assert!(stderr.contains("cold"), "{stderr}");
+    assert!(!dir.path().join("out/summary.json").exists());
+}
+
+#[test]
+fn constant_driver_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study(dir.path(), "[\"cold\", \"flat\"]", &pots_csv(|_| "3.5,".into(), "flat,"));
+    let (ok, _, stderr) = run(&p);
+    assert!(!ok);
+    assert!(stderr.contains("`flat` is constant"), "{stderr}");
+}
+
+#[test]
+fn collinear_drivers_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let pots = pots_csv(|_| String::new(), "");
+    // a second driver that is exactly 2 * cold + 1
+    let mut lines = pots.lines();
+    let mut s = format!("{},cold2\n", lines.next().unwrap());
+    for l in lines {
+        let cold: f64 = l.split(',').nth(5).unwrap().parse().unwrap();
+        s.push_str(&format!("{l},{}\n", 2.0 * cold + 1.0));
+    }
+    let p = study(dir.path(), "[\"cold\", \"cold2\"]", &s);
+    let (ok, _, stderr) = run(&p);
+    assert!(!ok);
+    assert!(stderr.contains("aliased") && stderr.contains("cold2"), "{stderr}");
+}
+
+#[test]
+fn unknown_verdict_key_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study(dir.path(), "[\"cold\"]", &pots_csv(|_| String::new(), ""));
+    let text = std::fs::read_to_string(&p).unwrap().replace("tie_delta = 2", "tie_margin = 2");
+    std::fs::write(&p, text).unwrap();
+    let (ok, _, stderr) = run(&p);
+    assert!(!ok);
+    assert!(stderr.contains("tie_margin"), "{stderr}");
+}
+
+/// A mapped climate driver from `<output>/pot_covariates.csv` with its
+/// sensor-level values in `<output>/sensor_indicators.csv`: the chosen model
+/// is refitted on conditional simulations and the inflated SE is reported
+/// next to the plug-in SE.
+#[test]
+fn mapped_driver_gets_an_inflated_se() {
+    let dir = tempfile::tempdir().unwrap();
+    // pot table without `cold`; `cold` comes from the mapping stage's file.
+    let full = pots_csv(|_| String::new(), "");
+    let mut pots = String::new();
+    let mut cov = String::from("pot,cold,cold_se\n");
+    for (k, l) in full.lines().enumerate() {
+        let f: Vec<&str> = l.split(',').collect();
+        let kept: Vec<&str> = f.iter().enumerate().filter(|(j, _)| *j != 5).map(|(_, v)| *v).collect();
+        pots.push_str(&kept.join(","));
+        pots.push('\n');
+        if k > 0 {
+            cov.push_str(&format!("{},{},0.2\n", f[0], f[5]));
+        }
+    }
+    let p = study(dir.path(), "[\"cold\"]", &pots);
+    let mut text = std::fs::read_to_string(&p).unwrap();
+    text = text.replace(
+        "[model]",
+        "[sensors]\nfile = \"sensors.csv\"\nid = \"sensor\"\nx = \"x\"\ny = \"y\"\n\n[model]",
+    );
+    text = text.replace("tie_delta = 2", "tie_delta = 2\ndraws = 8");
+    std::fs::write(&p, text).unwrap();
+    let mut sensors = String::from("sensor,x,y\n");
+    let mut ind = String::from("sensor,cold,cold_days\n");
+    for k in 0..8 {
+        let (x, y) = ((k % 4) as f64 * 0.9 + 0.1, (k / 4) as f64 * 2.0 + 0.4);
+        sensors.push_str(&format!("S{k},{x},{y}\n"));
+        // the test's cold gradient at the sensor (0.9 per 0.4 m along x)
+        ind.push_str(&format!("S{k},{},28\n", 2.0 + 0.9 * x / 0.4 + 0.2 * (k % 3) as f64));
+    }
+    std::fs::write(dir.path().join("sensors.csv"), sensors).unwrap();
+    std::fs::create_dir_all(dir.path().join("out")).unwrap();
+    std::fs::write(dir.path().join("out/pot_covariates.csv"), cov).unwrap();
+    std::fs::write(dir.path().join("out/sensor_indicators.csv"), ind).unwrap();
+    let (ok, stdout, stderr) = run(&p);
+    assert!(ok, "{stderr}");
+    assert!(stdout.contains("conditional simulations"), "{stdout}");
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out/summary.json")).unwrap()).unwrap();
+    let d = &summary["drivers"][0];
+    let (se, inflated) = (d["se"].as_f64().unwrap(), d["se_with_mapping_uncertainty"].as_f64());
+    let inflated = inflated.unwrap_or_else(|| panic!("no inflated SE: {summary}"));
+    assert!(inflated > 0.0 && inflated.is_finite() && se > 0.0, "{se} {inflated}");
+}
