@@ -95,6 +95,12 @@ pub fn run(args: RunArgs) -> anyhow::Result<()> {
     crate::spatial::stage::write_outputs(&study, &map).context("writing the mapping outputs")?;
     step.done(format!("map: {} indicators onto {} pots", map.indicators.len(), map.pots.len()));
 
+    let step = Step::new(args.quiet, 4, "fitting the comparison grid (ML) and deciding");
+    let opts = crate::model::verdict::VerdictOptions::from_study(&study)?;
+    let verdict = crate::model::verdict::run_verdict(&study, &opts).context("in the verdict stage")?;
+    crate::model::verdict::write_outputs(&study, &verdict).context("writing the verdict outputs")?;
+    step.done(format!("verdict: {} ({} fits): {}", verdict.verdict, verdict.n_fits, verdict.reason));
+
     let step = Step::new(args.quiet, 5, "writing the report");
     let pots = load_pots(&study)?;
     let sensors = load_sensors(&study)?;
@@ -113,6 +119,11 @@ pub fn run(args: RunArgs) -> anyhow::Result<()> {
         variograms: crate::report::assemble::variograms(&map),
         ..Default::default()
     };
+    let (vsection, models, means, residual_variograms) = crate::report::from_verdict::to_report(&verdict);
+    data.verdict = Some(vsection);
+    data.models = Some(models);
+    data.adjusted_means = means;
+    data.variograms.extend(residual_variograms);
     data.provenance = Some(crate::report::assemble::provenance(
         &study,
         Some(&ing),
