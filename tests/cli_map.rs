@@ -86,6 +86,14 @@ fn mapped_indicators_follow_the_true_field() {
     }
     let r = pearson(&est, &tru);
     assert!(r > 0.7, "correlation of mapped and true night cold hours {r}");
+    // ML fits on the sensors' study-period values: AIC = -2 l + 2 k with k = 4
+    // (mean, sigma², range, nugget share; [mapping].nugget defaults to true).
+    let ml = table(&dir.join("variogram_ml_fits.csv"));
+    assert_eq!(ml.len(), 2 * 5, "two indicators x five default families");
+    for r in &ml {
+        let (l, aic): (f64, f64) = (r["loglik"].parse().unwrap(), r["aic"].parse().unwrap());
+        assert!((aic - (-2.0 * l + 8.0)).abs() < 1e-9, "{r:?}");
+    }
     for f in ["variograms.csv", "variogram_fits.csv", "mapping_cv.csv"] {
         assert!(dir.join(f).exists(), "{f}");
     }

@@ -18,7 +18,8 @@ pub const HELP: &str = "Run the whole analysis of a study, from raw logger files
 Stages, each publishing its files into the output folder ([study].output):
   1. ingest   readings.parquet, qc_flags.csv, qc_summary.csv, gaps.csv
   2. climate  sensor_indicators.csv, sensor_daily.parquet
-  3. map      pot_covariates.csv, variograms.csv, variogram_fits.csv, mapping_cv.csv
+  3. map      pot_covariates.csv, variograms.csv, variogram_fits.csv, variogram_ml_fits.csv,
+              mapping_cv.csv
   4. verdict  summary.json, comparison.csv, drivers.csv, adjusted_means.csv
   5. report   report.html, report_data.json
 
