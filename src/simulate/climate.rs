@@ -33,22 +33,17 @@ use chrono::{DateTime, Duration, NaiveDate, Utc};
 use rand::{Rng, RngExt};
 use rand_distr::{Distribution, StandardNormal};
 
-/// Saturation vapour pressure over water, kPa, at air temperature `t` °C:
-/// `e°(T) = 0.6108 exp(17.27 T / (T + 237.3))`, FAO-56 eq. 11 (Allen,
-/// Pereira, Raes & Smith 1998, *Crop evapotranspiration*, FAO Irrigation and
-/// Drainage Paper 56, ch. 3). Cost O(1).
+/// Saturation vapour pressure (kPa) at `t` °C: FAO-56 eq. 11, the one
+/// implementation in [`crate::climate::psychro`] (the simulator's
+/// temperatures are finite and far above -237 °C, where it is defined).
 pub fn saturation_vapour_pressure(t: f64) -> f64 {
-    0.6108 * (17.27 * t / (t + 237.3)).exp()
+    crate::climate::psychro::saturation_vapour_pressure(t).unwrap_or(f64::NAN)
 }
 
-/// Distance (metres) from point `p` to the segment `a`-`b`.
+/// Distance (metres) from point `p` to the segment `a`-`b`
+/// ([`crate::spatial::geometry::distance_to_segment`]).
 pub fn distance_to_segment(p: [f64; 2], a: [f64; 2], b: [f64; 2]) -> f64 {
-    let (vx, vy) = (b[0] - a[0], b[1] - a[1]);
-    let len2 = vx * vx + vy * vy;
-    let t =
-        if len2 == 0.0 { 0.0 } else { (((p[0] - a[0]) * vx + (p[1] - a[1]) * vy) / len2).clamp(0.0, 1.0) };
-    let (cx, cy) = (a[0] + t * vx, a[1] + t * vy);
-    ((p[0] - cx).powi(2) + (p[1] - cy).powi(2)).sqrt()
+    crate::spatial::geometry::distance_to_segment(p[0], p[1], a, b)
 }
 
 fn logistic(u: f64) -> f64 {
