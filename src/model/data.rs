@@ -41,6 +41,7 @@ struct ModelSection {
     blocks: Option<OneOrMany>,
     correlations: Option<Vec<String>>,
     nugget: Option<bool>,
+    trait_unit: Option<String>,
 }
 
 /// The validated `[model]` section.
@@ -60,6 +61,8 @@ pub struct ModelSpec {
     pub correlations: Vec<Family>,
     /// Fit each family with and without a nugget (default true); without only if false.
     pub nugget: bool,
+    /// Unit of the trait (`"g"`, `"cm"`), for labels only; `None` when not given.
+    pub trait_unit: Option<String>,
 }
 
 impl ModelSpec {
@@ -135,6 +138,7 @@ impl ModelSpec {
             blocks,
             correlations,
             nugget: m.nugget.unwrap_or(true),
+            trait_unit: m.trait_unit.map(|u| u.trim().to_string()).filter(|u| !u.is_empty()),
         })
     }
 }

@@ -1216,6 +1216,7 @@ mod tests {
             blocks: vec![],
             correlations: vec![Family::Exponential],
             nugget: true,
+            trait_unit: None,
         }
     }
 
