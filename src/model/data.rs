@@ -337,6 +337,32 @@ pub fn assemble(
     })
 }
 
+/// Every `[[openings]]` entry is a candidate driver of the verdict: its
+/// distance covariate `distance_<name>` (metres from each pot to the nearest
+/// point of the opening's segment, `spatial::geometry::distance_to_segment`)
+/// is appended to `spec.drivers` and `data.drivers` unless the study already
+/// lists it. Computed from the analysed pots' positions, so it needs no
+/// mapping stage. Returns the names added.
+pub fn add_opening_drivers(study: &Study, spec: &mut ModelSpec, data: &mut ModelData) -> Vec<String> {
+    let mut added = Vec::new();
+    for o in &study.spec.openings {
+        let name = format!("{}{}", super::verdict::DISTANCE_PREFIX, o.name);
+        if spec.drivers.contains(&name) || data.drivers.iter().any(|(d, _)| *d == name) {
+            continue;
+        }
+        let d: Vec<f64> = data
+            .x
+            .iter()
+            .zip(&data.y)
+            .map(|(&x, &y)| crate::spatial::geometry::distance_to_segment(x, y, o.from, o.to))
+            .collect();
+        spec.drivers.push(name.clone());
+        data.drivers.push((name.clone(), d));
+        added.push(name);
+    }
+    added
+}
+
 fn unknown_driver(
     d: &str,
     table: &Table,
