@@ -19,6 +19,8 @@
 //!
 //! It prints one line per run and the tables of docs/verdict.md (for seeds
 //! 1..=10, the criterion, and for all seeds when there are more).
+//! With `POTCLIM_TRUTH_KEEP=DIR` every run is kept in `DIR/<truth>_<seed>`,
+//! for the checks of `tests/scenarios/findings.py`.
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
@@ -118,7 +120,18 @@ impl Outcome {
 /// pipeline on it, and read the outcome.
 fn run_one(truth: &'static str, seed: u64) -> Outcome {
     let dir = tempfile::tempdir().unwrap();
-    let study_dir = dir.path().join("study");
+    // POTCLIM_TRUTH_KEEP=DIR keeps every run in DIR/<truth>_<seed> (for
+    // tests/scenarios/findings.py); otherwise the run lives in a temporary folder.
+    let study_dir = match std::env::var_os("POTCLIM_TRUTH_KEEP") {
+        Some(keep) => {
+            let d = PathBuf::from(keep).join(format!("{truth}_{seed}"));
+            if d.exists() {
+                std::fs::remove_dir_all(&d).unwrap();
+            }
+            d
+        }
+        None => dir.path().join("study"),
+    };
     let started = Instant::now();
     let sc = scenario(truth);
     potclim(&[

@@ -423,14 +423,14 @@ mod tests {
         assert_eq!(rep.missing[0], [0, 6, 0]);
     }
 
-    /// One reading on every grid instant, on 30-minute and 1-hour grids over
+    /// One reading on every grid instant, on 15-minute, 30-minute and 1-hour grids over
     /// 16 days: every step holds exactly its own reading (no step empty, none
     /// averaged with its neighbour). The bucket index of a reading is an exact
     /// integer; a float quotient truncated to an integer put the readings of
     /// steps 1, 2, 4, 7, 8, 14, ... of a 1-hour grid into the step before.
     #[test]
     fn every_reading_lands_in_its_own_step_at_coarse_steps() {
-        for step_min in [30i64, 60] {
+        for step_min in [15i64, 30, 60] {
             let c = cal(16 * 24, step_min);
             let n = c.n_steps;
             let t0 = c.start_ms;
