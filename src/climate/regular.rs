@@ -246,11 +246,23 @@ pub fn regularise(
         .with_column(t.alias("__t_ms"))
         .filter(col("__t_ms").gt_eq(lit(calendar.start_ms)).and(col("__t_ms").lt(lit(end_ms))))
         .with_column(
-            // Offsets are non-negative after the filter and below 2^53, so the
-            // float quotient truncated to an integer is the exact floor.
-            ((col("__t_ms") - lit(calendar.start_ms)).cast(DataType::Float64) / lit(calendar.step_ms as f64))
-                .cast(DataType::Int64)
-                .alias("__step"),
+            // The step index k = floor(offset / step) of a non-negative offset.
+            // A float quotient truncated to an integer is not exact: polars
+            // divides by a scalar by multiplying with its reciprocal, and
+            // k * 3_600_000 * (1 / 3_600_000) falls just below k for some k,
+            // which put readings into the previous step. Here the offset is
+            // first cut to an exact multiple of the step by integer modulo;
+            // the float quotient of that multiple is k within a few ulps
+            // (k < 2^53), so adding one half and truncating gives k exactly.
+            // (Integer floor division would need another polars feature.)
+            ({
+                let offset = col("__t_ms") - lit(calendar.start_ms);
+                (offset.clone() - offset % lit(calendar.step_ms)).cast(DataType::Float64)
+                    / lit(calendar.step_ms as f64)
+                    + lit(0.5)
+            })
+            .cast(DataType::Int64)
+            .alias("__step"),
         )
         .group_by([col(columns::SENSOR), col("__step")])
         .agg([
@@ -409,6 +421,34 @@ mod tests {
         assert!(g.humidity.all_missing());
         assert_eq!(g.light.row(3), &[1.0, 1.0]);
         assert_eq!(rep.missing[0], [0, 6, 0]);
+    }
+
+    /// One reading on every grid instant, on 15-minute, 30-minute and 1-hour grids over
+    /// 16 days: every step holds exactly its own reading (no step empty, none
+    /// averaged with its neighbour). The bucket index of a reading is an exact
+    /// integer; a float quotient truncated to an integer put the readings of
+    /// steps 1, 2, 4, 7, 8, 14, ... of a 1-hour grid into the step before.
+    #[test]
+    fn every_reading_lands_in_its_own_step_at_coarse_steps() {
+        for step_min in [15i64, 30, 60] {
+            let c = cal(16 * 24, step_min);
+            let n = c.n_steps;
+            let t0 = c.start_ms;
+            let df = readings_frame(
+                vec!["s".into(); n],
+                (0..n as i64).map(|k| t0 + k * step_min * 60_000).collect(),
+                (0..n).map(|k| Some(k as f64)).collect(),
+                vec![None; n],
+                vec![None; n],
+            )
+            .unwrap();
+            let (g, rep) = regularise(&df, Path::new("r.parquet"), &c, 0).unwrap();
+            let col = g.temperature.column(0);
+            let wrong: Vec<usize> = (0..n).filter(|&k| col[k] != k as f64).collect();
+            assert!(wrong.is_empty(), "step {step_min} min: steps without their own reading: {wrong:?}");
+            assert_eq!(rep.missing[0][0], 0);
+            assert_eq!(rep.readings_used, n);
+        }
     }
 
     #[test]

@@ -1,0 +1,417 @@
+//! The truth study through the real pipeline: for each of the four truths
+//! (`tests/scenarios/truth_<truth>.toml`, described in
+//! `tests/scenarios/README.md`) and each seed, `potclim simulate` writes a
+//! study with known truth (logger exports, pot table, `truth/`), `potclim run`
+//! analyses it from the raw exports (ingest, climate indicators per pot
+//! window, kriging onto the pots, the comparison grid and the verdict), and the
+//! outcome is checked against the truth: the verdict word against the truth's
+//! name, the 95 % CI of the driver effect (from `summary.json`) against the
+//! true effect per unit (`truth/effects.json`), and the mapped driver
+//! (`output/pot_covariates.csv`) against its true per-pot values
+//! (`truth/pots.csv`).
+//!
+//! The fast tests run in CI. The full study is ignored (slow):
+//!
+//! ```sh
+//! cargo test --test truth_study -- --ignored --nocapture                            # seeds 1..=10
+//! POTCLIM_TRUTH_SEEDS=40 cargo test --test truth_study -- --ignored --nocapture     # seeds 1..=40
+//! ```
+//!
+//! It prints one line per run and the tables of docs/verdict.md (for seeds
+//! 1..=10, the issue's criterion, and for all seeds when there are more).
+//! With `POTCLIM_TRUTH_KEEP=DIR` every run is kept in `DIR/<truth>_<seed>`,
+//! for the checks of `tests/scenarios/findings.py`.
+
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::time::Instant;
+
+/// The four truths; each is also the verdict word it should produce.
+const TRUTHS: [&str; 4] = ["covariate", "correlation", "both", "none"];
+
+/// The driver every scenario declares.
+const DRIVER: &str = "night_cold_hours";
+
+fn scenario(truth: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/scenarios").join(format!("truth_{truth}.toml"))
+}
+
+/// Run the binary; panic with its output when it fails.
+fn potclim(args: &[&str]) {
+    let out = Command::new(env!("CARGO_BIN_EXE_potclim")).args(args).output().unwrap();
+    assert!(
+        out.status.success(),
+        "potclim {} failed:\n{}\n{}",
+        args.join(" "),
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+fn read_json(path: &Path) -> serde_json::Value {
+    let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    serde_json::from_str(&text).unwrap_or_else(|e| panic!("{}: {e}", path.display()))
+}
+
+/// Column `column` of a CSV file with a `pot` column, by pot id.
+fn pot_column(path: &Path, column: &str) -> HashMap<String, f64> {
+    let mut r = csv::Reader::from_path(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let headers = r.headers().unwrap().clone();
+    let pot = headers.iter().position(|h| h == "pot").expect("a pot column");
+    let col = headers
+        .iter()
+        .position(|h| h == column)
+        .unwrap_or_else(|| panic!("{} has no column {column}", path.display()));
+    r.records()
+        .map(|rec| {
+            let rec = rec.unwrap();
+            let v: f64 =
+                rec[col].parse().unwrap_or_else(|e| panic!("{}: {e}: {:?}", path.display(), &rec[col]));
+            (rec[pot].to_string(), v)
+        })
+        .collect()
+}
+
+/// What one simulated study gave, and its truth.
+#[derive(Debug)]
+struct Outcome {
+    truth: &'static str,
+    seed: u64,
+    verdict: String,
+    best_model: String,
+    /// The chosen model contains the driver.
+    driver_chosen: bool,
+    /// True effect per unit (`truth/effects.json`).
+    true_effect: f64,
+    estimate: f64,
+    se: f64,
+    ci_low: f64,
+    ci_high: f64,
+    se_with_mapping: Option<f64>,
+    /// Pearson correlation and RMSE of the mapped driver against its true per-pot values.
+    map_r: f64,
+    map_rmse: f64,
+    /// Standard deviation of the true driver over the pots.
+    true_sd: f64,
+    seconds: f64,
+}
+
+impl Outcome {
+    fn right(&self) -> bool {
+        self.verdict == self.truth
+    }
+
+    fn covers(&self) -> bool {
+        self.ci_low <= self.true_effect && self.true_effect <= self.ci_high
+    }
+
+    /// The same interval with the SE that carries the mapping uncertainty:
+    /// `estimate ± q · se_with_mapping_uncertainty`, `q` the quantile of the
+    /// plug-in CI (`(ci_high − estimate) / se`), so only the SE changes.
+    fn covers_with_mapping(&self) -> Option<bool> {
+        let s = self.se_with_mapping?;
+        let q = (self.ci_high - self.estimate) / self.se;
+        Some((self.estimate - q * s..=self.estimate + q * s).contains(&self.true_effect))
+    }
+}
+
+/// Simulate `truth` with `seed` into a temporary folder, run the whole
+/// pipeline on it, and read the outcome.
+fn run_one(truth: &'static str, seed: u64) -> Outcome {
+    let dir = tempfile::tempdir().unwrap();
+    // POTCLIM_TRUTH_KEEP=DIR keeps every run in DIR/<truth>_<seed> (for
+    // tests/scenarios/findings.py); otherwise the run lives in a temporary folder.
+    let study_dir = match std::env::var_os("POTCLIM_TRUTH_KEEP") {
+        Some(keep) => {
+            let d = PathBuf::from(keep).join(format!("{truth}_{seed}"));
+            if d.exists() {
+                std::fs::remove_dir_all(&d).unwrap();
+            }
+            d
+        }
+        None => dir.path().join("study"),
+    };
+    let started = Instant::now();
+    let sc = scenario(truth);
+    potclim(&[
+        "simulate",
+        sc.to_str().unwrap(),
+        "--out",
+        study_dir.to_str().unwrap(),
+        "--seed",
+        &seed.to_string(),
+    ]);
+    potclim(&["run", study_dir.join("study.toml").to_str().unwrap(), "--quiet"]);
+    let seconds = started.elapsed().as_secs_f64();
+
+    let summary = read_json(&study_dir.join("output/summary.json"));
+    let effects = read_json(&study_dir.join("truth/effects.json"));
+    let true_effect = effects["drivers"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|d| d["name"] == DRIVER)
+        .and_then(|d| d["effect_per_unit"].as_f64())
+        .expect("the driver's true effect");
+    let best_model = summary["best_model"].as_str().unwrap().to_string();
+    let driver_chosen = summary["models"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|m| m["name"] == best_model.as_str())
+        .expect("the chosen model is in the grid")["drivers"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|d| d == DRIVER);
+    let d = summary["drivers"].as_array().unwrap().iter().find(|d| d["name"] == DRIVER).expect("driver row");
+    let num = |k: &str| d[k].as_f64().unwrap_or_else(|| panic!("drivers[].{k} missing in summary.json"));
+
+    let truth_values = pot_column(&study_dir.join("truth/pots.csv"), DRIVER);
+    let mapped = pot_column(&study_dir.join("output/pot_covariates.csv"), DRIVER);
+    assert_eq!(truth_values.len(), mapped.len(), "every pot is mapped");
+    let pairs: Vec<(f64, f64)> = truth_values.iter().map(|(p, t)| (*t, mapped[p])).collect();
+    let n = pairs.len() as f64;
+    let (mt, mm) = (pairs.iter().map(|p| p.0).sum::<f64>() / n, pairs.iter().map(|p| p.1).sum::<f64>() / n);
+    let stt = pairs.iter().map(|p| (p.0 - mt).powi(2)).sum::<f64>();
+    let smm = pairs.iter().map(|p| (p.1 - mm).powi(2)).sum::<f64>();
+    let stm = pairs.iter().map(|p| (p.0 - mt) * (p.1 - mm)).sum::<f64>();
+    let map_r = stm / (stt * smm).sqrt();
+    let map_rmse = (pairs.iter().map(|p| (p.1 - p.0).powi(2)).sum::<f64>() / n).sqrt();
+
+    Outcome {
+        truth,
+        seed,
+        verdict: summary["verdict"].as_str().unwrap().to_string(),
+        best_model,
+        driver_chosen,
+        true_effect,
+        estimate: num("estimate"),
+        se: num("se"),
+        ci_low: num("ci_low"),
+        ci_high: num("ci_high"),
+        se_with_mapping: d["se_with_mapping_uncertainty"].as_f64(),
+        map_r,
+        map_rmse,
+        true_sd: (stt / n).sqrt(),
+        seconds,
+    }
+}
+
+fn line(o: &Outcome) -> String {
+    format!(
+        "{:<11} seed {:>3}: {:<11} {} chosen `{}`; estimate {:.4} [{:.4}, {:.4}] (true {}) covers {}; SE {:.4}, with mapping {}; mapped driver r {:.3}, RMSE {:.1} h (true SD {:.1} h); {:.1} s",
+        o.truth,
+        o.seed,
+        o.verdict,
+        if o.right() { "right" } else { "WRONG" },
+        o.best_model,
+        o.estimate,
+        o.ci_low,
+        o.ci_high,
+        o.true_effect,
+        o.covers(),
+        o.se,
+        o.se_with_mapping.map_or("-".to_string(), |s| format!("{s:.4}")),
+        o.map_r,
+        o.map_rmse,
+        o.true_sd,
+        o.seconds
+    )
+}
+
+/// Seeds of the fast subset: the first two seeds for which all four verdicts
+/// were right in the full study (docs/verdict.md). Seeds 1 and 2 are not used
+/// because each has a wrong verdict there (seed 1: `both` read as
+/// `correlation`; seed 2: `covariate` read as `both` and `none` as
+/// `correlation`); those are counted in the full study's rates, which this
+/// fast subset does not measure. It guards the pipeline against regressions
+/// on clear cases.
+const CI_SEEDS: [u64; 2] = [3, 4];
+
+/// The fast subset (CI): for every truth and each of [`CI_SEEDS`], the
+/// verdict must be right, the mapped driver must match the true one closely
+/// (r > 0.98), the chosen model must contain the driver exactly when the truth
+/// has a driver effect, and then its 95 % CI must cover the true effect.
+#[test]
+fn truth_verdicts_through_the_pipeline() {
+    for truth in TRUTHS {
+        for seed in CI_SEEDS {
+            let o = run_one(truth, seed);
+            println!("{}", line(&o));
+            assert!(o.right(), "truth `{truth}`, seed {seed}: verdict `{}` ({})", o.verdict, o.best_model);
+            assert!(o.map_r > 0.98, "truth `{truth}`, seed {seed}: mapped driver r = {:.3}", o.map_r);
+            assert_eq!(o.driver_chosen, matches!(truth, "covariate" | "both"), "{}", o.best_model);
+            if o.driver_chosen {
+                assert!(
+                    o.covers(),
+                    "truth `{truth}`, seed {seed}: CI [{}, {}] misses {}",
+                    o.ci_low,
+                    o.ci_high,
+                    o.true_effect
+                );
+            }
+        }
+    }
+}
+
+/// The four scenario files differ only in `[scenario].title` and `[trait]`,
+/// so that the truths share their climate, loggers and design: the same seed
+/// gives the same climate and the same mapped driver under every truth.
+#[test]
+fn truth_scenarios_differ_only_in_the_trait() {
+    let load = |t: &str| -> toml::Table {
+        let p = scenario(t);
+        toml::from_str(&std::fs::read_to_string(&p).unwrap())
+            .unwrap_or_else(|e| panic!("{}: {e}", p.display()))
+    };
+    let strip = |mut t: toml::Table| {
+        t.remove("trait").expect("a [trait] table");
+        t["scenario"].as_table_mut().unwrap().remove("title").expect("a title");
+        t
+    };
+    let base = strip(load(TRUTHS[0]));
+    for t in &TRUTHS[1..] {
+        assert_eq!(
+            strip(load(t)),
+            base,
+            "truth_{t}.toml differs from truth_{}.toml outside [trait]",
+            TRUTHS[0]
+        );
+    }
+    // The traits themselves: the effect is zero exactly where the truth has no
+    // driver, and the residual field is present exactly where it has one.
+    for t in TRUTHS {
+        let tr = load(t)["trait"].as_table().unwrap().clone();
+        let effect = tr["indicator"].as_array().unwrap()[0]["effect"].as_float().unwrap();
+        assert_eq!(effect != 0.0, matches!(t, "covariate" | "both"), "{t}: effect {effect}");
+        assert_eq!(tr.contains_key("residual_field"), matches!(t, "correlation" | "both"), "{t}");
+    }
+}
+
+/// Counts of one truth over a set of seeds.
+#[derive(Default)]
+struct Tally {
+    runs: usize,
+    right: usize,
+    wrong: Vec<String>,
+    with_driver: usize,
+    covered_chosen: usize,
+    covered_all: usize,
+    mapping_n: usize,
+    mapping_covered: usize,
+    r_sum: f64,
+    r_min: f64,
+    rmse_sum: f64,
+    rmse_max: f64,
+    seconds: f64,
+}
+
+impl Tally {
+    fn of(outcomes: &[&Outcome]) -> Tally {
+        let mut t = Tally { r_min: f64::INFINITY, ..Tally::default() };
+        for o in outcomes {
+            t.runs += 1;
+            t.seconds += o.seconds;
+            if o.right() {
+                t.right += 1;
+            } else {
+                t.wrong.push(format!("{} ({})", o.verdict, o.seed));
+            }
+            if o.driver_chosen {
+                t.with_driver += 1;
+                t.covered_chosen += usize::from(o.covers());
+            }
+            t.covered_all += usize::from(o.covers());
+            if let Some(c) = o.covers_with_mapping() {
+                t.mapping_n += 1;
+                t.mapping_covered += usize::from(c);
+            }
+            t.r_sum += o.map_r;
+            t.r_min = t.r_min.min(o.map_r);
+            t.rmse_sum += o.map_rmse;
+            t.rmse_max = t.rmse_max.max(o.map_rmse);
+        }
+        t
+    }
+}
+
+fn load_average() -> String {
+    std::fs::read_to_string("/proc/loadavg")
+        .map(|s| s.split_whitespace().take(3).collect::<Vec<_>>().join(" "))
+        .unwrap_or_else(|_| "n/a".into())
+}
+
+/// Print the Markdown table of docs/verdict.md for the outcomes with seed <= `max_seed`.
+fn print_table(outcomes: &[Outcome], max_seed: u64) -> Vec<(&'static str, Tally)> {
+    println!("\nseeds 1..={max_seed}:\n");
+    println!(
+        "| truth | right verdicts | wrong: verdict (seed) | CI covers the true effect, chosen model has the driver | CI covers, all seeds (drivers entry) | covers with the mapping SE | mapped driver r, mean (min) | mapped driver RMSE h, mean (max) | s per run |"
+    );
+    println!("|---|---|---|---|---|---|---|---|---|");
+    let mut out = Vec::new();
+    for truth in TRUTHS {
+        let these: Vec<&Outcome> =
+            outcomes.iter().filter(|o| o.truth == truth && o.seed <= max_seed).collect();
+        let t = Tally::of(&these);
+        println!(
+            "| `{truth}` | {}/{} | {} | {}/{} | {}/{} | {}/{} | {:.3} ({:.3}) | {:.1} ({:.1}) | {:.1} |",
+            t.right,
+            t.runs,
+            if t.wrong.is_empty() { "–".to_string() } else { t.wrong.join(", ") },
+            t.covered_chosen,
+            t.with_driver,
+            t.covered_all,
+            t.runs,
+            t.mapping_covered,
+            t.mapping_n,
+            t.r_sum / t.runs as f64,
+            t.r_min,
+            t.rmse_sum / t.runs as f64,
+            t.rmse_max,
+            t.seconds / t.runs as f64
+        );
+        out.push((truth, t));
+    }
+    out
+}
+
+/// The full study (slow; `POTCLIM_TRUTH_SEEDS`, default 10, seeds 1..=N per
+/// truth): prints every run and the tables of docs/verdict.md, then checks the
+/// issue's criterion: at most one wrong verdict in ten, for every truth, over
+/// seeds 1..=10 and over all seeds.
+#[test]
+#[ignore]
+fn truth_study_full() {
+    let n: u64 = std::env::var("POTCLIM_TRUTH_SEEDS").ok().and_then(|s| s.parse().ok()).unwrap_or(10);
+    let load_before = load_average();
+    let started = Instant::now();
+    let mut outcomes = Vec::new();
+    for truth in TRUTHS {
+        for seed in 1..=n {
+            let o = run_one(truth, seed);
+            println!("{}", line(&o));
+            outcomes.push(o);
+        }
+    }
+    println!(
+        "\n{} runs in {:.0} s; load average (1, 5, 15 min) before {load_before}, after {}",
+        outcomes.len(),
+        started.elapsed().as_secs_f64(),
+        load_average()
+    );
+    let mut failures = Vec::new();
+    for max_seed in if n > 10 { vec![10, n] } else { vec![n] } {
+        for (truth, t) in print_table(&outcomes, max_seed) {
+            if 10 * t.wrong.len() > t.runs {
+                failures.push(format!(
+                    "seeds 1..={max_seed}, truth `{truth}`: {} wrong of {}",
+                    t.wrong.len(),
+                    t.runs
+                ));
+            }
+        }
+    }
+    assert!(failures.is_empty(), "more than one wrong verdict in ten: {failures:?}");
+}
