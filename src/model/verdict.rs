@@ -50,7 +50,7 @@ struct VerdictSection {
 /// Options of the verdict stage (`[verdict]` of the study file).
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct VerdictOptions {
-    /// Tie margin in AIC units (`tie_delta`, default 2).
+    /// Tie margin in AIC units (`tie_delta`, default 4).
     pub tie_delta: f64,
     /// Conditional simulations per mapped driver (`draws`, default 20, at least 2).
     pub draws: usize,
@@ -77,7 +77,7 @@ impl VerdictOptions {
                         .invalid(
                             "verdict.tie_delta",
                             format!("tie_delta must be a number >= 0, got {t}"),
-                            Some("the default is 2 AIC units".into()),
+                            Some("the default is 4 AIC units".into()),
                         )
                         .into());
                 }
