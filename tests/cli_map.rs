@@ -125,6 +125,22 @@ fn run_writes_every_stage_and_the_report() {
     for id in ["verdict", "layout", "climate", "spatial", "models", "means", "provenance"] {
         assert!(html.contains(&format!("id=\"{id}\"")), "section {id}");
     }
+    // Units reach the labels: the trait's from `[model].trait_unit` (g in the
+    // demo), each driver's from its indicator (night cold hours in h, the
+    // daily light integral in mol m-2 d-1).
+    let data: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("report_data.json")).unwrap()).unwrap();
+    assert_eq!(data["verdict"]["trait_unit"], "g");
+    assert_eq!(data["adjusted_means_unit"], "g");
+    assert_eq!(data["layout"]["trait_unit"], "g");
+    let unit_of = |name: &str| {
+        data["verdict"]["drivers"].as_array().unwrap().iter().find(|d| d["name"] == name).unwrap()["unit"]
+            .clone()
+    };
+    assert_eq!(unit_of("night_cold_hours"), "h");
+    assert_eq!(unit_of("mean_dli"), "mol m-2 d-1");
+    assert!(html.contains("night_cold_hours (h)"), "driver label with its unit");
+    assert!(!html.contains("()"), "an empty unit label");
     // No staging folder is left behind.
     for e in std::fs::read_dir(&dir).unwrap() {
         assert!(!e.unwrap().file_name().to_string_lossy().contains("partial"));

@@ -178,3 +178,34 @@ fn mapped_driver_gets_an_inflated_se() {
     let inflated = inflated.unwrap_or_else(|| panic!("no inflated SE: {summary}"));
     assert!(inflated > 0.0 && inflated.is_finite() && se > 0.0, "{se} {inflated}");
 }
+
+/// Every `[[openings]]` entry becomes a candidate driver `distance_<name>`
+/// without being listed: the door runs along x = 0 from y = 0 to y = 3, so
+/// every pot's distance is its x (0 to 2.8 m). The trait follows `cold`
+/// (which rises along x with a wiggle the distance does not have), so the
+/// report can tell measured climate from plain distance.
+#[test]
+fn openings_are_candidate_drivers() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = study(dir.path(), "[\"cold\"]", &pots_csv(|_| String::new(), ""));
+    let mut text = std::fs::read_to_string(&p).unwrap();
+    text.push_str("\n[[openings]]\nname = \"door\"\nfrom = [0.0, 0.0]\nto = [0.0, 3.0]\n");
+    std::fs::write(&p, text).unwrap();
+    let (ok, _, stderr) = run(&p);
+    assert!(ok, "{stderr}");
+    let out = dir.path().join("out");
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    let names: Vec<&str> =
+        summary["drivers"].as_array().unwrap().iter().map(|d| d["name"].as_str().unwrap()).collect();
+    assert_eq!(names, ["cold", "distance_door"]);
+    let o = &summary["openings"];
+    assert_eq!(o["best_climate"], "cold");
+    assert_eq!(o["best_distance"], "distance_door");
+    assert!(o["aic_difference"].as_f64().unwrap() > 0.0, "climate explains better: {o}");
+    let notes = summary["notes"].as_array().unwrap();
+    assert!(notes.iter().any(|n| n.as_str().unwrap().contains("`distance_door` added")), "{notes:?}");
+    // Four driver sets (base, +cold, +distance_door, +both) x three error models.
+    let models = summary["models"].as_array().unwrap();
+    assert_eq!(models.len(), 4 * 3, "base, base+cold, base+distance_door, base+cold+distance_door");
+}

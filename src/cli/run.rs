@@ -106,6 +106,9 @@ pub fn run(args: RunArgs) -> anyhow::Result<()> {
     let pots = load_pots(&study)?;
     let sensors = load_sensors(&study)?;
     let spec = crate::model::data::ModelSpec::from_study(&study).ok();
+    let trait_unit = spec.as_ref().and_then(|s| s.trait_unit.as_deref());
+    let driver_names: Vec<String> = verdict.drivers.iter().map(|d| d.name.clone()).collect();
+    let units = crate::report::assemble::units(trait_unit, &climate.config.indicators, &driver_names);
     let mut data = ReportData {
         title: study.spec.study.title.clone(),
         compartment: study.spec.compartment.map(|c| CompartmentSize { length: c.length, width: c.width }),
@@ -114,13 +117,16 @@ pub fn run(args: RunArgs) -> anyhow::Result<()> {
             &pots,
             sensors.as_ref(),
             spec.as_ref().map(|s| s.trait_column.as_str()),
+            trait_unit,
             spec.as_ref().map(|s| s.factors.as_slice()).unwrap_or(&[]),
         )),
         climate: Some(crate::report::assemble::climate(&ing, &climate, &map)),
         variograms: crate::report::assemble::variograms(&map),
         ..Default::default()
     };
-    let (vsection, models, means, residual_variograms) = crate::report::from_verdict::to_report(&verdict);
+    let (vsection, models, means, residual_variograms) =
+        crate::report::from_verdict::to_report(&verdict, &units);
+    data.adjusted_means_unit = units.trait_unit.clone();
     data.verdict = Some(vsection);
     data.models = Some(models);
     data.adjusted_means = means;

@@ -284,7 +284,16 @@ pub fn decide(ranked: &[Ranked], tie_delta: f64) -> Result<Verdict, CompareError
         })
         .expect("the best model is within the margin");
     let e = chosen.candidate.explanation();
-    let drivers = chosen.candidate.drivers.join(", ");
+    let n_drivers = chosen.candidate.drivers.len();
+    let drivers = match chosen.candidate.drivers.as_slice() {
+        [] => String::new(),
+        [one] => format!("driver `{one}`"),
+        [rest @ .., last] => format!(
+            "drivers {} and `{last}`",
+            rest.iter().map(|d| format!("`{d}`")).collect::<Vec<_>>().join(", ")
+        ),
+    };
+    let (explains, them) = if n_drivers == 1 { ("explains", "it") } else { ("explain", "them") };
     let corr = chosen.candidate.correlation.clone().unwrap_or_default();
     let tie_note = if chosen.candidate.name != best.candidate.name {
         format!(
@@ -310,13 +319,13 @@ pub fn decide(ranked: &[Ranked], tie_delta: f64) -> Result<Verdict, CompareError
             "Neither the microclimate drivers nor a spatial correlation of the residuals improves on the factorial model enough to matter{tie_note}{runner_up}."
         ),
         Explanation::Covariate => format!(
-            "The measured driver(s) {drivers} explain the spatial pattern: with them in the model, independent errors fit as well as any correlated-error model{tie_note}{runner_up}."
+            "The measured {drivers} {explains} the spatial pattern: with {them} in the model, independent errors fit as well as any correlated-error model{tie_note}{runner_up}."
         ),
         Explanation::Correlation => format!(
             "An unmeasured, spatially correlated effect ({corr} correlation of the residuals) explains the pattern better than any measured driver{tie_note}{runner_up}."
         ),
         Explanation::Both => format!(
-            "The driver(s) {drivers} explain part of the pattern, and a spatially correlated residual ({corr}) remains beyond them{tie_note}{runner_up}."
+            "The measured {drivers} {explains} part of the pattern, and a spatially correlated residual ({corr}) remains beyond {them}{tie_note}{runner_up}."
         ),
     };
     Ok(Verdict {

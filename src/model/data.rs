@@ -41,6 +41,7 @@ struct ModelSection {
     blocks: Option<OneOrMany>,
     correlations: Option<Vec<String>>,
     nugget: Option<bool>,
+    trait_unit: Option<String>,
 }
 
 /// The validated `[model]` section.
@@ -60,6 +61,8 @@ pub struct ModelSpec {
     pub correlations: Vec<Family>,
     /// Fit each family with and without a nugget (default true); without only if false.
     pub nugget: bool,
+    /// Unit of the trait (`"g"`, `"cm"`), for labels only; `None` when not given.
+    pub trait_unit: Option<String>,
 }
 
 impl ModelSpec {
@@ -135,6 +138,7 @@ impl ModelSpec {
             blocks,
             correlations,
             nugget: m.nugget.unwrap_or(true),
+            trait_unit: m.trait_unit.map(|u| u.trim().to_string()).filter(|u| !u.is_empty()),
         })
     }
 }
@@ -331,6 +335,32 @@ pub fn assemble(
         drivers,
         excluded,
     })
+}
+
+/// Every `[[openings]]` entry is a candidate driver of the verdict: its
+/// distance covariate `distance_<name>` (metres from each pot to the nearest
+/// point of the opening's segment, `spatial::geometry::distance_to_segment`)
+/// is appended to `spec.drivers` and `data.drivers` unless the study already
+/// lists it. Computed from the analysed pots' positions, so it needs no
+/// mapping stage. Returns the names added.
+pub fn add_opening_drivers(study: &Study, spec: &mut ModelSpec, data: &mut ModelData) -> Vec<String> {
+    let mut added = Vec::new();
+    for o in &study.spec.openings {
+        let name = format!("{}{}", super::verdict::DISTANCE_PREFIX, o.name);
+        if spec.drivers.contains(&name) || data.drivers.iter().any(|(d, _)| *d == name) {
+            continue;
+        }
+        let d: Vec<f64> = data
+            .x
+            .iter()
+            .zip(&data.y)
+            .map(|(&x, &y)| crate::spatial::geometry::distance_to_segment(x, y, o.from, o.to))
+            .collect();
+        spec.drivers.push(name.clone());
+        data.drivers.push((name.clone(), d));
+        added.push(name);
+    }
+    added
 }
 
 fn unknown_driver(

@@ -392,9 +392,16 @@ fn t_quantile(df: f64) -> f64 {
 
 /// Load the study's `[model]` and `[verdict]` data and run the verdict.
 pub fn run_verdict(study: &Study, opts: &VerdictOptions) -> Result<VerdictResult> {
-    let spec = ModelSpec::from_study(study)?;
-    let data = load_model_data(study, &spec)?;
+    let mut spec = ModelSpec::from_study(study)?;
+    let mut data = load_model_data(study, &spec)?;
+    let added = crate::model::data::add_opening_drivers(study, &mut spec, &mut data);
     let mut r = analyse(&data, &spec, opts)?;
+    if !added.is_empty() {
+        r.notes.push(format!(
+            "{} added as candidate driver(s): every [[openings]] entry is compared as the plain distance from each pot to the opening",
+            added.iter().map(|a| format!("`{a}`")).collect::<Vec<_>>().join(", ")
+        ));
+    }
     let climate: Vec<String> =
         r.chosen_shape.0.iter().filter(|d| !d.starts_with(DISTANCE_PREFIX)).cloned().collect();
     if climate.is_empty() {
@@ -1216,6 +1223,7 @@ mod tests {
             blocks: vec![],
             correlations: vec![Family::Exponential],
             nugget: true,
+            trait_unit: None,
         }
     }
 

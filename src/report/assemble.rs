@@ -15,12 +15,14 @@ use sha2::{Digest, Sha256};
 use std::collections::BTreeMap;
 
 /// The layout section: pots coloured by the trait, sensors, openings, and the
-/// factor-by-factor count table of the first two factors.
+/// factor-by-factor count table of the first two factors. Without a trait
+/// unit the legend says "trait unit".
 pub fn layout(
     study: &Study,
     pots: &Pots,
     sensors: Option<&Sensors>,
     trait_column: Option<&str>,
+    trait_unit: Option<&str>,
     factors: &[String],
 ) -> LayoutSection {
     let values: Option<Vec<Option<f64>>> = trait_column.and_then(|c| pots.table.optional_numbers(c).ok());
@@ -77,12 +79,35 @@ pub fn layout(
     };
     LayoutSection {
         trait_name: trait_column.unwrap_or("trait").to_string(),
-        trait_unit: String::new(),
+        trait_unit: trait_unit.unwrap_or("trait unit").to_string(),
         pots: pts,
         sensors,
         openings,
         counts,
     }
+}
+
+/// The units of the verdict's labels: the trait's from `[model].trait_unit`;
+/// each driver's from its declared indicator (hours, °C d, mol m-2 d-1, ...),
+/// metres for a distance to an opening (`distance_<name>`), unknown for a
+/// driver taken from a pot-table column.
+pub fn units(
+    trait_unit: Option<&str>,
+    indicators: &[crate::climate::Indicator],
+    drivers: &[String],
+) -> super::from_verdict::Units {
+    let drivers = drivers
+        .iter()
+        .filter_map(|d| {
+            let unit = if d.starts_with(crate::model::verdict::DISTANCE_PREFIX) {
+                Some("m".to_string())
+            } else {
+                indicators.iter().find(|i| i.name == *d).map(|i| i.unit().to_string())
+            };
+            unit.map(|u| (d.clone(), u))
+        })
+        .collect();
+    super::from_verdict::Units { trait_unit: trait_unit.map(str::to_string), drivers }
 }
 
 /// The climate section: each mapped indicator with its SE, the sensors'

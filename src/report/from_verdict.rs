@@ -42,12 +42,32 @@ fn residual_map(
     })
 }
 
+/// Units for the labels of the verdict's tables: the trait's (from
+/// `[model].trait_unit`) and each driver's (from its indicator, `m` for a
+/// distance to an opening). `None` where unknown; the report then says
+/// "trait unit" rather than guess.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Units {
+    /// Unit of the trait.
+    pub trait_unit: Option<String>,
+    /// `(driver name, unit)` for every driver whose unit is known.
+    pub drivers: Vec<(String, String)>,
+}
+
+impl Units {
+    /// The unit of driver `name`, if known.
+    pub fn driver(&self, name: &str) -> Option<String> {
+        self.drivers.iter().find(|(n, _)| n == name).map(|(_, u)| u.clone())
+    }
+}
+
 /// The report sections filled from a verdict result: the verdict section,
 /// the models section, the adjusted means, and the residual variogram panel
-/// of the chosen model (empty when no bin was computed). Units are left
-/// `None` (the verdict stage does not know the trait's unit).
+/// of the chosen model (empty when no bin was computed), labelled with
+/// `units`.
 pub fn to_report(
     r: &VerdictResult,
+    units: &Units,
 ) -> (VerdictSection, ModelsSection, Vec<AdjustedMean>, Vec<VariogramPanel>) {
     let mut cautions = vec![
         "Correlation is not causation: the winning explanation is the best of those offered, not proof of a mechanism.".to_string(),
@@ -68,13 +88,13 @@ pub fn to_report(
         reason: r.reason.clone(),
         chosen_model: r.best_model.clone(),
         best_by_aic: (r.best_by_aic != r.best_model).then(|| r.best_by_aic.clone()),
-        trait_unit: None,
+        trait_unit: units.trait_unit.clone(),
         drivers: r
             .drivers
             .iter()
             .map(|d| DriverRow {
                 name: d.name.clone(),
-                unit: None,
+                unit: units.driver(&d.name),
                 estimate: d.estimate,
                 se: d.se,
                 se_with_mapping_uncertainty: d.se_with_mapping_uncertainty,
@@ -107,7 +127,7 @@ pub fn to_report(
             })
             .collect(),
         anova: Vec::new(),
-        residual_unit: None,
+        residual_unit: units.trait_unit.clone(),
         residuals_before: residual_map(r, "base", &r.plain_residuals, r.plain_moran.as_ref()),
         residuals_after: residual_map(r, &r.best_model, &r.chosen_residuals, r.residual_check.moran.as_ref()),
         tie_margin: Some(r.options.tie_delta),
@@ -192,8 +212,13 @@ mod tests {
             plain_moran: None,
             chosen_shape: (vec![], crate::model::gls::Errors::Independent),
         };
-        let (v, m, means, panels) = to_report(&r);
+        let units = Units { trait_unit: Some("g".into()), drivers: vec![("cold".into(), "h".into())] };
+        let (v, m, means, panels) = to_report(&r, &units);
         assert_eq!(v.word, "covariate");
+        assert_eq!(v.trait_unit.as_deref(), Some("g"));
+        assert_eq!(m.residual_unit.as_deref(), Some("g"));
+        assert_eq!(units.driver("cold").as_deref(), Some("h"));
+        assert_eq!(units.driver("warm"), None);
         assert_eq!(v.best_by_aic.as_deref(), Some("base+cold | exponential"));
         assert_eq!(m.comparison[0].correlation, None);
         assert_eq!(m.tie_margin, Some(2.0));

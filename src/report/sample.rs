@@ -197,7 +197,7 @@ pub fn sample_report() -> ReportData {
         compartment: Some(CompartmentSize { length: LENGTH, width: WIDTH }),
         verdict: Some(VerdictSection {
             word: "covariate".into(),
-            reason: "The measured driver(s) night_cold_hours explain the spatial pattern: with them in the model, independent errors fit as well as any correlated-error model.".into(),
+            reason: "The measured driver `night_cold_hours` explains the spatial pattern: with it in the model, independent errors fit as well as any correlated-error model.".into(),
             chosen_model: "base + night_cold_hours".into(),
             best_by_aic: Some("base + night_cold_hours".into()),
             trait_unit: Some("g".into()),

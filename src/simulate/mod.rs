@@ -637,6 +637,9 @@ fn study_toml(sc: &Scenario, seed: u64) -> String {
         corr.join(", ")
     )
     .unwrap();
+    if let Some(u) = spec.trait_.unit.as_deref().filter(|u| !u.trim().is_empty()) {
+        writeln!(s, "trait_unit = {}", q(u)).unwrap();
+    }
     s
 }
 

@@ -378,6 +378,9 @@ pub struct TraitSpec {
     /// Decimals printed. Default 1.
     #[serde(default)]
     pub decimals: Option<usize>,
+    /// Unit of the trait, copied to `[model].trait_unit`. Optional.
+    #[serde(default)]
+    pub unit: Option<String>,
     /// `[[trait.effect]]`.
     #[serde(default)]
     pub effect: Vec<EffectSpec>,
