@@ -102,6 +102,12 @@ impl Outcome {
         self.verdict == self.truth
     }
 
+    /// The right verdict, and the chosen model has the driver exactly when the
+    /// truth has a driver effect (not, say, the door distance in its place).
+    fn right_with_driver(&self) -> bool {
+        self.right() && self.driver_chosen == (self.true_effect != 0.0)
+    }
+
     fn covers(&self) -> bool {
         self.ci_low <= self.true_effect && self.true_effect <= self.ci_high
     }
@@ -221,14 +227,18 @@ fn line(o: &Outcome) -> String {
     )
 }
 
-/// Seeds of the fast subset: the first two seeds for which all four verdicts
-/// were right in the full study (docs/verdict.md). Seeds 1 and 2 are not used
-/// because each has a wrong verdict there (seed 1: `both` read as
-/// `correlation`; seed 2: `covariate` read as `both` and `none` as
-/// `correlation`); those are counted in the full study's rates, which this
-/// fast subset does not measure. It guards the pipeline against regressions
-/// on clear cases.
-const CI_SEEDS: [u64; 2] = [3, 4];
+/// Seeds of the fast subset, chosen by a fixed rule: the two lowest seeds for
+/// which all four truths were read right in the full study (docs/verdict.md):
+/// the right verdict, with `night_cold_hours` in the chosen model exactly when
+/// the truth has a driver effect.
+/// The other seeds' wrong verdicts are counted in the full study's rates,
+/// which this fast subset does not measure; it guards the pipeline against
+/// regressions on clear cases. When a change to potclim changes these
+/// verdicts, rerun the full study, record it, and choose again by the same
+/// rule (since every opening became a candidate driver, `both` at seed 1 is
+/// read with the door distance instead of night cold hours, and at seed 3 as
+/// `covariate`).
+const CI_SEEDS: [u64; 2] = [4, 9];
 
 /// The fast subset (CI): for every truth and each of [`CI_SEEDS`], the
 /// verdict must be right, the mapped driver must match the true one closely
@@ -242,7 +252,12 @@ fn truth_verdicts_through_the_pipeline() {
             println!("{}", line(&o));
             assert!(o.right(), "truth `{truth}`, seed {seed}: verdict `{}` ({})", o.verdict, o.best_model);
             assert!(o.map_r > 0.98, "truth `{truth}`, seed {seed}: mapped driver r = {:.3}", o.map_r);
-            assert_eq!(o.driver_chosen, matches!(truth, "covariate" | "both"), "{}", o.best_model);
+            assert_eq!(
+                o.driver_chosen,
+                matches!(truth, "covariate" | "both"),
+                "truth `{truth}`, seed {seed}: chosen `{}`",
+                o.best_model
+            );
             if o.driver_chosen {
                 assert!(
                     o.covers(),
@@ -295,6 +310,7 @@ fn truth_scenarios_differ_only_in_the_trait() {
 struct Tally {
     runs: usize,
     right: usize,
+    right_with_driver: usize,
     wrong: Vec<String>,
     with_driver: usize,
     covered_chosen: usize,
@@ -314,6 +330,7 @@ impl Tally {
         for o in outcomes {
             t.runs += 1;
             t.seconds += o.seconds;
+            t.right_with_driver += usize::from(o.right_with_driver());
             if o.right() {
                 t.right += 1;
             } else {
@@ -347,17 +364,19 @@ fn load_average() -> String {
 fn print_table(outcomes: &[Outcome], max_seed: u64) -> Vec<(&'static str, Tally)> {
     println!("\nseeds 1..={max_seed}:\n");
     println!(
-        "| truth | right verdicts | wrong: verdict (seed) | CI covers the true effect, chosen model has the driver | CI covers, all seeds (drivers entry) | covers with the mapping SE | mapped driver r, mean (min) | mapped driver RMSE h, mean (max) | s per run |"
+        "| truth | right verdicts | right, driver in the chosen model iff it has an effect | wrong: verdict (seed) | CI covers the true effect, chosen model has the driver | CI covers, all seeds (drivers entry) | covers with the mapping SE | mapped driver r, mean (min) | mapped driver RMSE h, mean (max) | s per run |"
     );
-    println!("|---|---|---|---|---|---|---|---|---|");
+    println!("|---|---|---|---|---|---|---|---|---|---|");
     let mut out = Vec::new();
     for truth in TRUTHS {
         let these: Vec<&Outcome> =
             outcomes.iter().filter(|o| o.truth == truth && o.seed <= max_seed).collect();
         let t = Tally::of(&these);
         println!(
-            "| `{truth}` | {}/{} | {} | {}/{} | {}/{} | {}/{} | {:.3} ({:.3}) | {:.1} ({:.1}) | {:.1} |",
+            "| `{truth}` | {}/{} | {}/{} | {} | {}/{} | {}/{} | {}/{} | {:.3} ({:.3}) | {:.1} ({:.1}) | {:.1} |",
             t.right,
+            t.runs,
+            t.right_with_driver,
             t.runs,
             if t.wrong.is_empty() { "–".to_string() } else { t.wrong.join(", ") },
             t.covered_chosen,
