@@ -221,7 +221,7 @@ mod tests {
         assert_eq!(units.driver("warm"), None);
         assert_eq!(v.best_by_aic.as_deref(), Some("base+cold | exponential"));
         assert_eq!(m.comparison[0].correlation, None);
-        assert_eq!(m.tie_margin, Some(2.0));
+        assert_eq!(m.tie_margin, Some(r.options.tie_delta));
         assert_eq!(m.residuals_after.unwrap().points[1].residual, -0.1);
         assert!(means.is_empty() && panels.is_empty());
     }
