@@ -174,7 +174,8 @@ mod tests {
             reason: "why".into(),
             best_model: "base+cold".into(),
             best_by_aic: "base+cold | exponential".into(),
-            options: VerdictOptions::default(),
+            // A tie margin other than the default, so that the check below sees it passed through.
+            options: VerdictOptions { tie_delta: 3.0, ..VerdictOptions::default() },
             trait_name: "h".into(),
             n_pots: 2,
             models: vec![ModelRow {
@@ -221,7 +222,7 @@ mod tests {
         assert_eq!(units.driver("warm"), None);
         assert_eq!(v.best_by_aic.as_deref(), Some("base+cold | exponential"));
         assert_eq!(m.comparison[0].correlation, None);
-        assert_eq!(m.tie_margin, Some(2.0));
+        assert_eq!(m.tie_margin, Some(3.0));
         assert_eq!(m.residuals_after.unwrap().points[1].residual, -0.1);
         assert!(means.is_empty() && panels.is_empty());
     }
