@@ -147,6 +147,20 @@ impl TimeFormat {
             }
         }
     }
+
+    /// [`TimeFormat::parse`] on the bytes of a cell. A fixed-width pattern
+    /// reads the bytes directly; a cell it cannot read, and every other
+    /// format, goes through [`TimeFormat::parse`] (text that is not UTF-8
+    /// never matches), so the result is always that of `parse`.
+    #[inline]
+    pub fn parse_bytes(&self, cell: &[u8], decimal_comma: bool) -> Option<Stamp> {
+        if let TimeFormat::Pattern(Pattern { fast: Some(items), has_offset: false, .. }) = self
+            && let Some(ms) = parse_fast(items, cell)
+        {
+            return Some(Stamp::Local(ms));
+        }
+        self.parse(std::str::from_utf8(cell).ok()?, decimal_comma)
+    }
 }
 
 fn compile_fast(spec: &str) -> Option<Vec<Item>> {
@@ -396,6 +410,31 @@ mod tests {
         let f = TimeFormat::compile("%Y-%m-%d %H:%M:%S").unwrap();
         for bad in ["2026-02-29 00:00:00", "2026-13-01 00:00:00", "2026-03-01 24:00:00", "garbage", ""] {
             assert_eq!(f.parse(bad, false), None, "{bad}");
+        }
+    }
+
+    #[test]
+    fn parse_bytes_agrees_with_parse() {
+        for pat in ["%Y-%m-%d %H:%M:%S", "%d.%m.%Y %H:%M", "%Y-%m-%d %H:%M:%S%.f", "rfc3339", "unix"] {
+            let f = TimeFormat::compile(pat).unwrap();
+            for c in [
+                "2026-03-01 08:05:09",
+                " 2026-03-01 08:05:09",
+                "01.03.2026 08:05",
+                "1.3.2026 8:05",
+                "2026-03-01 00:00:01.250",
+                "2026-03-01T08:00:00+01:00",
+                "1772352000",
+                "1772352000,5",
+                "2026-02-30 00:00:00",
+                "",
+                "x",
+            ] {
+                for comma in [false, true] {
+                    assert_eq!(f.parse_bytes(c.as_bytes(), comma), f.parse(c, comma), "{pat} {c:?}");
+                }
+            }
+            assert_eq!(f.parse_bytes(b"2026-03-01 08:05:\xB0", false), None);
         }
     }
 

@@ -153,33 +153,89 @@ pub fn display_name(study: &Study, path: &Path) -> String {
     path.strip_prefix(&study.dir).unwrap_or(path).to_string_lossy().replace('\\', "/")
 }
 
-/// Read every file of every block, in parallel over files; results in file order.
-fn read_all(jobs: &[(&LogFormat, PathBuf)]) -> Result<Vec<FileRead>> {
+/// Run `f` on every job, spread over the cores (each idle thread takes the
+/// next job in order); the results come back in job order.
+fn par_map<J: Send, R: Send>(jobs: Vec<J>, f: impl Fn(J) -> R + Sync) -> Vec<R> {
     let n = jobs.len();
     let workers = std::thread::available_parallelism().map(|x| x.get()).unwrap_or(1).min(n).max(1);
-    let next = std::sync::atomic::AtomicUsize::new(0);
-    let mut slots: Vec<Option<Result<FileRead>>> = (0..n).map(|_| None).collect();
-    let results = std::sync::Mutex::new(&mut slots);
+    if workers == 1 {
+        return jobs.into_iter().map(f).collect();
+    }
+    let queue = std::sync::Mutex::new(jobs.into_iter().enumerate());
+    let mut out: Vec<Option<R>> = (0..n).map(|_| None).collect();
     std::thread::scope(|s| {
-        for _ in 0..workers {
-            s.spawn(|| {
-                loop {
-                    let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
-                    if i >= n {
-                        break;
+        let handles: Vec<_> = (0..workers)
+            .map(|_| {
+                s.spawn(|| {
+                    let mut done = Vec::new();
+                    loop {
+                        let next = queue.lock().unwrap_or_else(|e| e.into_inner()).next();
+                        let Some((i, job)) = next else { break };
+                        done.push((i, f(job)));
                     }
-                    let (fmt, path) = &jobs[i];
-                    let r = read_file(fmt, path, i as u32);
-                    results.lock().unwrap_or_else(|e| e.into_inner())[i] = Some(r);
-                }
-            });
+                    done
+                })
+            })
+            .collect();
+        for h in handles {
+            for (i, r) in h.join().unwrap_or_else(|e| std::panic::resume_unwind(e)) {
+                out[i] = Some(r);
+            }
         }
     });
-    slots.into_iter().map(|r| r.unwrap_or_else(|| unreachable!("every job ran"))).collect()
+    out.into_iter().map(|r| r.unwrap_or_else(|| unreachable!("every job ran"))).collect()
+}
+
+/// Read every file of every block, in parallel over files; results in file order.
+fn read_all(jobs: &[(&LogFormat, PathBuf)]) -> Result<Vec<FileRead>> {
+    let idx: Vec<usize> = (0..jobs.len()).collect();
+    par_map(idx, |i| read_file(jobs[i].0, &jobs[i].1, i as u32)).into_iter().collect()
+}
+
+/// A run of consecutive rows of one sensor in a buffer of rows.
+#[derive(Debug, Clone, Copy)]
+struct Run {
+    sensor: u32,
+    start: usize,
+    end: usize,
+    /// Times never decrease along the run.
+    sorted: bool,
+}
+
+/// Give the rows of one file their global sensor index (`map`, by local
+/// index) and list its runs of one sensor. One pass.
+fn remap_runs(rows: &mut [Row], map: &[u32]) -> Vec<Run> {
+    let mut runs: Vec<Run> = Vec::new();
+    for i in 0..rows.len() {
+        let s = map[rows[i].sensor as usize];
+        rows[i].sensor = s;
+        match runs.last_mut() {
+            Some(run) if run.sensor == s => {
+                run.sorted &= rows[i - 1].time <= rows[i].time;
+                run.end = i + 1;
+            }
+            _ => runs.push(Run { sensor: s, start: i, end: i + 1, sorted: true }),
+        }
+    }
+    runs
 }
 
 /// Ingest every logger export of `study` (see the module docs).
+///
+/// The rows stay in the buffers they were read into when every sensor's rows
+/// form one time-ordered run in one file (the usual export: one file per
+/// logger or per group of loggers, rows in time order); otherwise all rows
+/// are merged into one buffer and sorted (stable). Either way each sensor's
+/// rows then form one segment, and segments are processed on all cores:
+/// row rules (unknown sensor, duplicate, study period), then value rules and
+/// gaps on columns written straight into the readings table.
 pub fn ingest(study: &Study) -> Result<Ingested> {
+    ingest_with(study, false).map(|(ing, _)| ing)
+}
+
+/// [`ingest`]; `merge` forces the merged, sorted buffer (for tests). Also
+/// says whether the rows stayed in the buffers they were read into.
+fn ingest_with(study: &Study, merge: bool) -> Result<(Ingested, bool)> {
     let settings = &study.spec.qc;
     settings.check().map_err(|(k, m)| study.invalid(&k, m, None))?;
     let period = study_period(study)?;
@@ -207,9 +263,8 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
             by_reason: [0; Reason::ALL.len()],
         })
         .collect();
-    let total: usize = reads.iter().map(|r| r.rows.len()).sum();
-    let mut rows: Vec<Row> = Vec::with_capacity(total);
     let mut flags: Vec<Flag> = Vec::new();
+    let mut buffers: Vec<(Vec<Row>, Vec<u32>)> = Vec::with_capacity(reads.len());
     for (fi, r) in reads.into_iter().enumerate() {
         let map: Vec<u32> = r
             .sensors
@@ -223,15 +278,13 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
                 })
             })
             .collect();
-        let remap = |s: u32| if s == u32::MAX { s } else { map[s as usize] };
         flags.extend(r.flags.into_iter().map(|mut f| {
-            f.sensor = remap(f.sensor);
+            if f.sensor != u32::MAX {
+                f.sensor = map[f.sensor as usize];
+            }
             f
         }));
-        rows.extend(r.rows.into_iter().map(|mut x| {
-            x.sensor = remap(x.sensor);
-            x
-        }));
+        buffers.push((r.rows, map));
     }
     if !unknown.is_empty() && !settings.drop_unknown_sensors {
         let list: Vec<String> = unknown.iter().map(|(s, f, l)| format!("`{s}` (first at {f}:{l})")).collect();
@@ -247,92 +300,89 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
     }
 
     // Order: sensor, then time; stable, so file and line order break ties.
-    if !rows.windows(2).all(|w| (w[0].sensor, w[0].time) <= (w[1].sensor, w[1].time)) {
-        rows.sort_by_key(|r| (r.sensor, r.time));
+    let mut runs: Vec<Vec<Run>> = par_map(buffers.iter_mut().collect(), |(rows, map)| remap_runs(rows, map));
+    let mut buffers: Vec<Vec<Row>> = buffers.into_iter().map(|(rows, _)| rows).collect();
+    let mut seen = vec![false; sensors.len()];
+    let in_place = !merge
+        && runs.iter().flatten().all(|r| r.sorted && !std::mem::replace(&mut seen[r.sensor as usize], true));
+    if !in_place {
+        let total: usize = buffers.iter().map(Vec::len).sum();
+        let mut all: Vec<Row> = Vec::with_capacity(total);
+        for b in buffers {
+            all.extend(b);
+        }
+        all.sort_by_key(|r| (r.sensor, r.time));
+        let identity: Vec<u32> = (0..sensors.len() as u32).collect();
+        runs = vec![remap_runs(&mut all, &identity)];
+        buffers = vec![all];
     }
-
-    // Row rules: unknown sensor, duplicate, outside the period (compacted in place).
-    let mut w = 0;
-    for i in 0..rows.len() {
-        let r = rows[i];
-        let reason = if r.sensor as usize >= known {
-            Some((Reason::UnknownSensor, Variable::Sensor, sensors[r.sensor as usize].clone()))
-        } else if w > 0 && rows[w - 1].sensor == r.sensor && rows[w - 1].time == r.time {
-            let prev = &rows[w - 1];
-            Some((
-                Reason::Duplicate,
-                Variable::Row,
-                format!("same instant as {}:{}", files[prev.file as usize].name, prev.line),
-            ))
-        } else if !period.contains(r.time) {
-            Some((Reason::OutsidePeriod, Variable::Time, format_utc(r.time)))
-        } else {
-            None
-        };
-        match reason {
-            Some((reason, variable, value)) => flags.push(Flag {
-                file: r.file,
-                line: r.line,
-                sensor: r.sensor,
-                time: Some(r.time),
-                variable,
-                value,
-                reason,
-            }),
-            None => {
-                rows[w] = r;
-                w += 1;
-            }
+    // One segment per sensor, in sensor order.
+    let mut segs: Vec<(u32, &mut [Row])> = Vec::new();
+    for (rows, runs) in buffers.iter_mut().zip(&runs) {
+        let mut rest: &mut [Row] = rows;
+        for run in runs {
+            let (seg, tail) = std::mem::take(&mut rest).split_at_mut(run.end - run.start);
+            segs.push((run.sensor, seg));
+            rest = tail;
         }
     }
-    rows.truncate(w);
+    segs.sort_by_key(|s| s.0);
 
-    // Value rules and gaps per sensor, sensors spread over the cores.
-    let mut segs: Vec<&mut [Row]> = Vec::new();
-    let mut rest: &mut [Row] = &mut rows;
-    while !rest.is_empty() {
-        let s0 = rest[0].sensor;
-        let n = rest.iter().position(|r| r.sensor != s0).unwrap_or(rest.len());
-        let (seg, tail) = std::mem::take(&mut rest).split_at_mut(n);
-        segs.push(seg);
-        rest = tail;
+    // Row rules: unknown sensor, duplicate, outside the period (each segment
+    // compacted in place to its kept rows).
+    let (names, file_names) = (&sensors, &files);
+    let row_flags = par_map(segs.iter_mut().collect(), |(s, seg)| {
+        let unknown = *s as usize >= known;
+        row_rules(seg, unknown, &names[*s as usize], file_names, period)
+    });
+    let mut kept_segs: Vec<(u32, &mut [Row])> = Vec::with_capacity(segs.len());
+    for ((s, seg), (kept, f)) in segs.into_iter().zip(row_flags) {
+        flags.extend(f);
+        if kept > 0 {
+            kept_segs.push((s, &mut seg[..kept]));
+        }
     }
-    let workers = std::thread::available_parallelism().map(|x| x.get()).unwrap_or(1).min(segs.len()).max(1);
-    let mut buckets: Vec<Vec<&mut [Row]>> = (0..workers).map(|_| Vec::new()).collect();
-    for (i, seg) in segs.into_iter().enumerate() {
-        buckets[i % workers].push(seg);
+
+    // Value rules and gaps per sensor, on the columns of the readings table.
+    let n: usize = kept_segs.iter().map(|(_, seg)| seg.len()).sum();
+    let mut times: Vec<i64> = vec![0; n];
+    let mut values: [Vec<f64>; 3] = std::array::from_fn(|_| vec![0.0; n]);
+    let mut parts: Vec<(&mut [Row], Columns)> = Vec::with_capacity(kept_segs.len());
+    {
+        let mut t_rest: &mut [i64] = &mut times;
+        let [v0, v1, v2] = &mut values;
+        let mut v_rest: [&mut [f64]; 3] = [v0, v1, v2];
+        for (_, seg) in kept_segs.iter_mut() {
+            let m = seg.len();
+            let (t, tr) = std::mem::take(&mut t_rest).split_at_mut(m);
+            t_rest = tr;
+            let v = v_rest.each_mut().map(|r| {
+                let (a, b) = std::mem::take(r).split_at_mut(m);
+                *r = b;
+                a
+            });
+            parts.push((&mut **seg, Columns { times: t, values: v }));
+        }
     }
-    let names = &sensors;
-    let results: Vec<(Vec<Flag>, Vec<Gap>)> = std::thread::scope(|sc| {
-        let handles: Vec<_> = buckets
-            .into_iter()
-            .map(|bucket| {
-                sc.spawn(move || {
-                    let (mut f, mut g) = (Vec::new(), Vec::new());
-                    for seg in bucket {
-                        value_rules(seg, settings, &mut f);
-                        g.extend(find_gaps(seg, &names[seg[0].sensor as usize], settings.gap_factor, period));
-                    }
-                    (f, g)
-                })
-            })
-            .collect();
-        handles.into_iter().map(|h| h.join().unwrap_or_else(|e| std::panic::resume_unwind(e))).collect()
+    let results = par_map(parts, |(seg, mut cols)| {
+        cols.fill(seg);
+        let mut f = Vec::new();
+        value_rules(seg, &mut cols, settings, &mut f);
+        let g = find_gaps(&cols, &names[seg[0].sensor as usize], settings.gap_factor, period);
+        (f, g, kept_by_file(seg))
     });
     let mut gaps = Vec::new();
-    for (f, g) in results {
+    for (f, g, kept) in results {
         flags.extend(f);
         gaps.extend(g);
+        for (file, k) in kept {
+            files[file as usize].rows_kept += k;
+        }
     }
     gaps.sort_by(|a, b| (&a.sensor, a.channel, a.from).cmp(&(&b.sensor, b.channel, b.from)));
 
     // Accounting.
     flags.sort_by_key(|x| (x.file, x.line, x.variable, x.reason));
-    for r in &rows {
-        if !r.flagged {
-            files[r.file as usize].rows_kept += 1;
-        }
-    }
     let mut i = 0;
     while i < flags.len() {
         let (f, l) = (flags[i].file, flags[i].line);
@@ -359,18 +409,102 @@ pub fn ingest(study: &Study) -> Result<Ingested> {
         }
     }
 
-    let readings = readings_frame(&rows, &sensors).map_err(|e| IoError::Table {
+    let span = kept_segs
+        .iter()
+        .map(|(_, seg)| (seg[0].time, seg[seg.len() - 1].time))
+        .reduce(|(a, b), (c, d)| (a.min(c), b.max(d)));
+    let runs: Vec<(u32, usize)> = kept_segs.iter().map(|(s, seg)| (*s, seg.len())).collect();
+    let readings = readings_frame(&runs, times, values, &sensors).map_err(|e| IoError::Table {
         path: study.output_dir(),
         message: format!("cannot build the readings table: {e}"),
     })?;
-    let span = rows.iter().map(|r| r.time).min().zip(rows.iter().map(|r| r.time).max());
-    Ok(Ingested { readings, flags, files, gaps, sensors, period, span })
+    Ok((Ingested { readings, flags, files, gaps, sensors, period, span }, in_place))
 }
 
-/// Range, spike and stuck rules on one sensor's rows (sorted by time).
-fn value_rules(seg: &mut [Row], q: &QcSettings, flags: &mut Vec<Flag>) {
-    let times: Vec<i64> = seg.iter().map(|r| r.time).collect();
-    let mut cols: [Vec<f64>; 3] = std::array::from_fn(|k| seg.iter().map(|r| r.values[k]).collect());
+/// Row rules on one sensor's rows (sorted by time): every row of a sensor
+/// absent from the sensor table, a second row for the same instant (the
+/// first is kept), a row outside the study period. The kept rows are moved
+/// to the front; returns their number and the flags.
+fn row_rules(
+    seg: &mut [Row],
+    unknown: bool,
+    sensor: &str,
+    files: &[FileSummary],
+    period: Period,
+) -> (usize, Vec<Flag>) {
+    let mut flags = Vec::new();
+    let mut w = 0;
+    for i in 0..seg.len() {
+        let r = seg[i];
+        let reason = if unknown {
+            Some((Reason::UnknownSensor, Variable::Sensor, sensor.to_string()))
+        } else if w > 0 && seg[w - 1].time == r.time {
+            let prev = &seg[w - 1];
+            Some((
+                Reason::Duplicate,
+                Variable::Row,
+                format!("same instant as {}:{}", files[prev.file as usize].name, prev.line),
+            ))
+        } else if !period.contains(r.time) {
+            Some((Reason::OutsidePeriod, Variable::Time, format_utc(r.time)))
+        } else {
+            None
+        };
+        match reason {
+            Some((reason, variable, value)) => flags.push(Flag {
+                file: r.file,
+                line: r.line,
+                sensor: r.sensor,
+                time: Some(r.time),
+                variable,
+                value,
+                reason,
+            }),
+            None => {
+                seg[w] = r;
+                w += 1;
+            }
+        }
+    }
+    (w, flags)
+}
+
+/// Rows kept with every value as is, per file, run-length coded in row
+/// order.
+fn kept_by_file(seg: &[Row]) -> Vec<(u32, usize)> {
+    let mut out: Vec<(u32, usize)> = Vec::new();
+    for r in seg.iter().filter(|r| !r.flagged) {
+        match out.last_mut() {
+            Some((f, k)) if *f == r.file => *k += 1,
+            _ => out.push((r.file, 1)),
+        }
+    }
+    out
+}
+
+/// One sensor's part of the readings table's columns (times and the three
+/// channels; `NaN` = no value).
+struct Columns<'a> {
+    times: &'a mut [i64],
+    values: [&'a mut [f64]; 3],
+}
+
+impl Columns<'_> {
+    /// Copy the rows' times and values in.
+    fn fill(&mut self, seg: &[Row]) {
+        for (i, r) in seg.iter().enumerate() {
+            self.times[i] = r.time;
+            for k in 0..3 {
+                self.values[k][i] = r.values[k];
+            }
+        }
+    }
+}
+
+/// Range, spike and stuck rules on one sensor's rows (sorted by time) and
+/// their columns (filled from the rows). A flagged value becomes `NaN` in the
+/// columns and in its row, and the row is marked flagged.
+fn value_rules(seg: &mut [Row], cols: &mut Columns, q: &QcSettings, flags: &mut Vec<Flag>) {
     let mut flag = |seg: &mut [Row], i: usize, k: usize, reason: Reason, v: f64| {
         let r = &mut seg[i];
         flags.push(Flag {
@@ -385,7 +519,7 @@ fn value_rules(seg: &mut [Row], q: &QcSettings, flags: &mut Vec<Flag>) {
         r.values[k] = f64::NAN;
         r.flagged = true;
     };
-    for (k, col) in cols.iter_mut().enumerate() {
+    for (k, col) in cols.values.iter_mut().enumerate() {
         let (lo, hi) = q.range(k);
         for (i, v) in col.iter_mut().enumerate() {
             if !v.is_nan() && (*v < lo || *v > hi) {
@@ -403,11 +537,12 @@ fn value_rules(seg: &mut [Row], q: &QcSettings, flags: &mut Vec<Flag>) {
     // and holds when no other channel has readings there.
     let min_ms = (q.stuck_hours * 3_600_000.0) as i64;
     let mut stuck_idx: [Vec<usize>; 3] = Default::default();
+    let values = &cols.values;
     for k in 0..3 {
         let skip = (k == 2 && q.stuck_skip_dark).then_some(0.0);
         let moving = |a: usize, b: usize| {
             let mut any_data = false;
-            for (j, col) in cols.iter().enumerate() {
+            for (j, col) in values.iter().enumerate() {
                 if j == k {
                     continue;
                 }
@@ -426,11 +561,12 @@ fn value_rules(seg: &mut [Row], q: &QcSettings, flags: &mut Vec<Flag>) {
             }
             !any_data
         };
-        stuck_idx[k] = qc::stuck(&times, &cols[k], min_ms, skip, moving);
+        stuck_idx[k] = qc::stuck(cols.times, &values[k], min_ms, skip, moving);
     }
     for (k, idx) in stuck_idx.iter().enumerate() {
         for &i in idx {
-            flag(seg, i, k, Reason::Stuck, cols[k][i]);
+            flag(seg, i, k, Reason::Stuck, cols.values[k][i]);
+            cols.values[k][i] = f64::NAN;
         }
     }
 }
@@ -445,66 +581,67 @@ fn format_value(v: f64) -> String {
 /// further apart than `factor` logging steps, where the step is the median
 /// interval between the sensor's rows; with a study period, also from its
 /// start to the first reading and from the last reading to its end.
-fn find_gaps(seg: &[Row], sensor: &str, factor: f64, period: Period) -> Vec<Gap> {
-    let mut d: Vec<i64> = seg.windows(2).map(|w| w[1].time - w[0].time).filter(|&x| x > 0).collect();
+fn find_gaps(cols: &Columns, sensor: &str, factor: f64, period: Period) -> Vec<Gap> {
+    let times = &*cols.times;
+    let mut d: Vec<i64> = times.windows(2).map(|w| w[1] - w[0]).filter(|&x| x > 0).collect();
     if d.is_empty() {
         return Vec::new();
     }
-    d.sort_unstable();
-    let step = d[d.len() / 2];
+    // The upper median: the element a full sort would put at len/2.
+    let mid = d.len() / 2;
+    let step = *d.select_nth_unstable(mid).1;
     let limit = (step as f64 * factor) as i64;
     let mut out = Vec::new();
     for ch in Channel::ALL {
-        let k = ch.index();
-        let times: Vec<i64> = seg.iter().filter(|r| !r.values[k].is_nan()).map(|r| r.time).collect();
-        if times.is_empty() {
-            continue;
-        }
+        let col = &*cols.values[ch.index()];
+        let mut present = times.iter().zip(col).filter(|(_, v)| !v.is_nan()).map(|(&t, _)| t);
+        let Some(first) = present.next() else { continue };
         let mut push = |from: i64, to: i64| {
             if to - from > limit {
                 out.push(Gap { sensor: sensor.to_string(), channel: ch, from, to, step });
             }
         };
         if let Some(s) = period.start {
-            push(s, times[0]);
+            push(s, first);
         }
-        for w in times.windows(2) {
-            push(w[0], w[1]);
+        let mut last = first;
+        for t in present {
+            push(last, t);
+            last = t;
         }
         if let Some(e) = period.end {
-            push(times[times.len() - 1], e);
+            push(last, e);
         }
     }
     out
 }
 
-fn readings_frame(rows: &[Row], sensors: &[String]) -> PolarsResult<DataFrame> {
-    // Rows come in runs of one sensor: one repeated value per run (cheap in
-    // polars' string-view layout), concatenated.
+/// The readings table from its columns; `runs` gives the sensor of each
+/// stretch of rows, in order. `NaN` values become nulls.
+fn readings_frame(
+    runs: &[(u32, usize)],
+    times: Vec<i64>,
+    values: [Vec<f64>; 3],
+    sensors: &[String],
+) -> PolarsResult<DataFrame> {
+    let n = times.len();
+    // One repeated value per run (cheap in polars' string-view layout),
+    // concatenated.
     let mut sensor = StringChunked::full("sensor".into(), "", 0);
-    let mut a = 0;
-    while a < rows.len() {
-        let s = rows[a].sensor;
-        let n = rows[a..].iter().position(|r| r.sensor != s).unwrap_or(rows.len() - a);
-        sensor.append(&StringChunked::full("sensor".into(), &sensors[s as usize], n))?;
-        a += n;
+    for &(s, len) in runs {
+        sensor.append(&StringChunked::full("sensor".into(), &sensors[s as usize], len))?;
     }
     let sensor = sensor.rechunk().into_owned();
-    let time = Int64Chunked::from_vec("time".into(), rows.iter().map(|r| r.time).collect())
+    let time = Int64Chunked::from_vec("time".into(), times)
         .into_datetime(TimeUnit::Milliseconds, Some(TimeZone::UTC));
     let mut cols: Vec<Column> = vec![sensor.into_series().into(), time.into_series().into()];
-    for ch in Channel::ALL {
-        let k = ch.index();
-        let v = Float64Chunked::from_iter_options(
-            ch.column().into(),
-            rows.iter().map(|r| {
-                let x = r.values[k];
-                (!x.is_nan()).then_some(x)
-            }),
-        );
+    for (ch, v) in Channel::ALL.into_iter().zip(values) {
+        let v = Float64Chunked::from_vec(ch.column().into(), v);
+        let nan = v.is_nan();
+        let v = if nan.any() { v.set(&nan, None)? } else { v };
         cols.push(v.into_series().into());
     }
-    DataFrame::new(rows.len(), cols)
+    DataFrame::new(n, cols)
 }
 
 /// Write `readings.parquet`, `qc_flags.csv`, `qc_summary.csv` and `gaps.csv`
@@ -636,6 +773,18 @@ mod tests {
         Row { time: t, values: v, line, sensor: 0, file: 0, flagged: false }
     }
 
+    /// Storage for the columns of `seg`.
+    fn storage(seg: &[Row]) -> (Vec<i64>, [Vec<f64>; 3]) {
+        (vec![0; seg.len()], std::array::from_fn(|_| vec![0.0; seg.len()]))
+    }
+
+    fn columns<'a>(seg: &[Row], t: &'a mut [i64], v: &'a mut [Vec<f64>; 3]) -> Columns<'a> {
+        let [a, b, c] = v;
+        let mut cols = Columns { times: t, values: [a, b, c] };
+        cols.fill(seg);
+        cols
+    }
+
     #[test]
     fn value_rules_flag_range_spike_and_stuck() {
         let step = 300_000;
@@ -649,7 +798,10 @@ mod tests {
         seg[50].values[0] = 40.0; // spike
         let q = QcSettings::default();
         let mut flags = Vec::new();
-        value_rules(&mut seg, &q, &mut flags);
+        let (mut t, mut v) = storage(&seg);
+        let mut cols = columns(&seg, &mut t, &mut v);
+        value_rules(&mut seg, &mut cols, &q, &mut flags);
+        assert!(cols.values[0][50].is_nan() && cols.values[1][5].is_nan() && cols.values[1][7].is_nan());
         let reasons: Vec<(u32, Reason, &str)> =
             flags.iter().map(|f| (f.line, f.reason, f.variable.name())).collect();
         assert!(reasons.contains(&(7, Reason::OutOfRange, "rh_pct")));
@@ -668,11 +820,96 @@ mod tests {
             (0..20).map(|i| row(i64::from(i) * step, [20.0, f64::NAN, f64::NAN], 0)).collect();
         seg.drain(8..11); // readings 8, 9, 10 missing: 7 -> 11 is 4 steps
         seg[2].values[0] = f64::NAN; // one missing value: 1 -> 3 is 2 steps, not a gap
-        let g = find_gaps(&seg, "S", 2.0, Period::default());
+        let (mut t, mut v) = storage(&seg);
+        let cols = columns(&seg, &mut t, &mut v);
+        let g = find_gaps(&cols, "S", 2.0, Period::default());
         assert_eq!(g.len(), 1);
         assert_eq!((g[0].from, g[0].to, g[0].step), (7 * step, 11 * step, step));
         let p = Period { start: Some(-5 * step), end: Some(19 * step) };
-        assert_eq!(find_gaps(&seg, "S", 2.0, p).len(), 2);
+        assert_eq!(find_gaps(&cols, "S", 2.0, p).len(), 2);
+    }
+
+    /// A study of four loggers (S4 absent from the sensor table and dropped)
+    /// in two exports; `layout` chooses how their rows are spread over the
+    /// files. Five-minute readings with a spike, a duplicate row, a stuck RH
+    /// channel, a gap, unreadable cells and rows outside the study period.
+    fn layout_study(layout: usize) -> (tempfile::TempDir, Study) {
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        std::fs::create_dir_all(d.join("logs")).unwrap();
+        std::fs::write(d.join("pots.csv"), "pot,x,y\np1,0,0\n").unwrap();
+        std::fs::write(d.join("sensors.csv"), "id,x,y\nS1,0,0\nS2,1,0\nS3,2,0\n").unwrap();
+        let rows = |s: usize| -> Vec<String> {
+            (0..150)
+                .filter(|&i| !(s == 2 && (60..75).contains(&i)))
+                .map(|i| {
+                    let min = 5 * i;
+                    let t = format!("2026-03-0{} {:02}:{:02}", 1 + min / 1440, min / 60 % 24, min % 60);
+                    let temp = if s == 1 && i == 40 { 35.0 } else { 18.0 + 0.1 * (i % 7) as f64 + s as f64 };
+                    let rh =
+                        if s == 3 && (20..100).contains(&i) { 55.0 } else { 60.0 + 0.5 * (i % 5) as f64 };
+                    let rh = if s == 1 && i == 90 { "n/a".to_string() } else { format!("{rh}") };
+                    format!("S{s},{t},{temp:.1},{rh}")
+                })
+                .collect()
+        };
+        let mut per: Vec<Vec<String>> = (1..=4).map(rows).collect();
+        let dup = per[0][30].clone();
+        per[0].insert(31, dup); // a duplicate row
+        let head = "id,time,temp,rh".to_string();
+        let (a, b): (Vec<String>, Vec<String>) = match layout {
+            // One sorted run per sensor: S2, S1 in one file, S3, S4 in the other.
+            0 => (
+                per[1].iter().chain(&per[0]).cloned().collect(),
+                per[2].iter().chain(&per[3]).cloned().collect(),
+            ),
+            // S1 split over both files.
+            1 => (
+                per[0][..70].iter().chain(&per[1]).cloned().collect(),
+                per[0][70..].iter().chain(&per[2]).chain(&per[3]).cloned().collect(),
+            ),
+            // Rows interleaved and one out of time order.
+            _ => {
+                let mut a: Vec<String> =
+                    (0..150).flat_map(|i| [&per[0], &per[1]].map(|p| p.get(i).cloned())).flatten().collect();
+                a.swap(10, 30);
+                (a, per[2].iter().chain(&per[3]).cloned().collect())
+            }
+        };
+        for (name, rows) in [("a", a), ("b", b)] {
+            let text = std::iter::once(&head).chain(&rows).cloned().collect::<Vec<_>>().join("\n");
+            std::fs::write(d.join(format!("logs/{name}.csv")), text).unwrap();
+        }
+        let toml = "[study]\ntitle = \"t\"\ntimezone = \"UTC\"\noutput = \"out\"\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\n[sensors]\nfile = \"sensors.csv\"\nid = \"id\"\nx = \"x\"\ny = \"y\"\n[[logs]]\nfiles = [\"logs/*.csv\"]\ntime = \"time\"\ntime_format = \"%Y-%m-%d %H:%M\"\nsensor = \"id\"\n[logs.columns]\ntemperature = { column = \"temp\", unit = \"degC\" }\nhumidity = { column = \"rh\", unit = \"percent\" }\n[qc]\ndrop_unknown_sensors = true\n[climate]\nstart = \"2026-03-01 00:30\"\nend = \"2026-03-01 12:00\"\nstep = \"10min\"\n";
+        std::fs::write(d.join("study.toml"), toml).unwrap();
+        let study = Study::load(&d.join("study.toml")).unwrap();
+        (dir, study)
+    }
+
+    /// Rows processed where they were read give exactly what the merged,
+    /// stably sorted buffer gives: same table, flags, accounting and gaps.
+    #[test]
+    fn rows_in_place_and_merged_give_the_same_result() {
+        for (layout, want_in_place) in [(0, true), (1, false), (2, false)] {
+            let (_dir, study) = layout_study(layout);
+            let (a, in_place) = ingest_with(&study, false).unwrap();
+            let (b, merged) = ingest_with(&study, true).unwrap();
+            assert_eq!((in_place, merged), (want_in_place, false), "layout {layout}");
+            assert!(a.readings.equals_missing(&b.readings), "layout {layout}");
+            assert_eq!(a.flags, b.flags, "layout {layout}");
+            assert_eq!(a.files, b.files, "layout {layout}");
+            assert_eq!(a.gaps, b.gaps, "layout {layout}");
+            assert_eq!((a.span, &a.sensors), (b.span, &b.sensors), "layout {layout}");
+            // Every rule fired.
+            let reasons: std::collections::BTreeSet<&str> = a.flags.iter().map(|f| f.reason.name()).collect();
+            for r in ["spike", "duplicate", "stuck", "unparsable_value", "outside_period", "unknown_sensor"] {
+                assert!(reasons.contains(r), "layout {layout}: no {r} in {reasons:?}");
+            }
+            assert!(!a.gaps.is_empty(), "layout {layout}");
+            let sensors = a.readings.column("sensor").unwrap().str().unwrap().clone();
+            let order: Vec<&str> = sensors.iter().flatten().collect();
+            assert!(order.windows(2).all(|w| w[0] <= w[1]), "layout {layout}: sorted by sensor");
+        }
     }
 
     #[test]

@@ -2,9 +2,14 @@
 //! delimiter, decimal mark, time format and zone, sensor id, channels with
 //! units), and the reading of one export into time-stamped rows.
 //!
-//! Files are read whole and split with the csv crate, which keeps the
-//! physical line of every record; messages and `qc_flags.csv` name those
-//! lines (1-based, counting preamble and header). A cell that cannot be read
+//! Files are read whole. Text without quote characters (nearly every logger
+//! export) is split by a vectorised search for the delimiter and `\n`, which
+//! counts physical lines as it goes; text with quotes (or with a `\r` that
+//! does not end a line) is split by the csv crate, with the lines counted
+//! from the bytes before each record. Both splitters feed one row parser and
+//! give the same rows, flags and lines on the same content (tests below).
+//! Messages and `qc_flags.csv` name physical lines (1-based, counting
+//! preamble and header). A cell that cannot be read
 //! flags its reading; a column that fails on most rows stops the run with an
 //! error naming file, line, column, value and pattern, because then the
 //! configuration (pattern, decimal mark, delimiter) is wrong, not the data.
@@ -297,7 +302,21 @@ fn decode(b: &[u8]) -> String {
     }
 }
 
+/// Read a number cell; `decimal_comma` reads `,` (and still `.`) as the
+/// decimal mark. Non-finite results are `None`.
+///
+/// Plain decimals with at most 15 digits (`-12.5`, `0.25`, `1013`, `,5`)
+/// take an exact fast path: the digits form an integer `m < 10^15 < 2^53`
+/// and the `f` digits after the mark give `x = m / 10^f`, one IEEE division
+/// of two exactly representable numbers (`10^f` is exact for `f <= 22`),
+/// hence the correctly rounded value of the decimal: the fast path of
+/// W. D. Clinger, "How to read floating point numbers accurately", PLDI 1990.
+/// Rust's `str::parse::<f64>` is correctly rounded too, so both give the same
+/// bits; every other cell (exponents, more digits, words) goes to it.
 fn parse_number(cell: &[u8], decimal_comma: bool) -> Option<f64> {
+    if let Some(x) = parse_plain_decimal(cell, decimal_comma) {
+        return Some(x);
+    }
     let mut buf = [0u8; 48];
     let s: &[u8] = if decimal_comma {
         if cell.len() > buf.len() {
@@ -312,6 +331,43 @@ fn parse_number(cell: &[u8], decimal_comma: bool) -> Option<f64> {
     };
     let x: f64 = std::str::from_utf8(s).ok()?.parse().ok()?;
     x.is_finite().then_some(x)
+}
+
+/// Powers of ten that are exact in binary64 (10^0 ..= 10^15).
+const POW10: [f64; 16] =
+    [1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15];
+
+/// The fast path of [`parse_number`]: an optional sign, digits with at most
+/// one decimal mark, at least one and at most 15 digits; else `None`.
+#[inline]
+fn parse_plain_decimal(cell: &[u8], decimal_comma: bool) -> Option<f64> {
+    let (neg, digits) = match cell.first()? {
+        b'-' => (true, &cell[1..]),
+        b'+' => (false, &cell[1..]),
+        _ => (false, cell),
+    };
+    if digits.len() > 16 {
+        return None;
+    }
+    let mut m: u64 = 0;
+    let mut nd = 0usize;
+    let mut mark: Option<usize> = None;
+    for &c in digits {
+        match c {
+            b'0'..=b'9' => {
+                m = m * 10 + u64::from(c - b'0');
+                nd += 1;
+            }
+            b'.' if mark.is_none() => mark = Some(nd),
+            b',' if decimal_comma && mark.is_none() => mark = Some(nd),
+            _ => return None,
+        }
+    }
+    if nd == 0 || nd > 15 {
+        return None;
+    }
+    let x = m as f64 / POW10[nd - mark.unwrap_or(nd)];
+    Some(if neg { -x } else { x })
 }
 
 fn trim(b: &[u8]) -> &[u8] {
@@ -352,12 +408,59 @@ pub fn read_file(fmt: &LogFormat, path: &Path, file: u32) -> Result<FileRead> {
     read_bytes(fmt, path, file, &bytes)
 }
 
+/// How the records of an export are split into cells.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Splitter {
+    /// Lines split at `\n` and cells at the delimiter byte (the common case;
+    /// see [`plain_text`]).
+    Plain,
+    /// The csv crate (quoted fields, stray carriage returns).
+    Csv,
+}
+
+/// Whether the text after the preamble can be split without a CSV state
+/// machine: it has no quote character and every `\r` ends a line (`\r\n`).
+/// Then a record is a physical line and a cell is the text between two
+/// delimiters, exactly as the csv crate would split it, so both splitters give
+/// the same rows, flags and lines. Cost O(n) with a vectorised byte search.
+pub fn plain_text(body: &[u8]) -> bool {
+    memchr::memchr(b'"', body).is_none()
+        && memchr::memchr_iter(b'\r', body).all(|i| body.get(i + 1) == Some(&b'\n'))
+}
+
 /// [`read_file`] on bytes already in memory.
 pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Result<FileRead> {
-    // Skip the preamble: `skip_lines` physical lines.
+    let body = &bytes[preamble_end(fmt, path, bytes)?..];
+    let plain = !matches!(fmt.delimiter, b'"' | b'\n' | b'\r') && plain_text(body);
+    match plain {
+        true => read_plain(fmt, path, file, body),
+        false => read_csv(fmt, path, file, body),
+    }
+}
+
+/// [`read_bytes`] with a chosen splitter. [`Splitter::Plain`] on text that is
+/// not [`plain_text`] splits quoted cells wrongly; it is public so that tests
+/// and benchmarks can compare the two splitters on the same text.
+pub fn read_bytes_with(
+    fmt: &LogFormat,
+    path: &Path,
+    file: u32,
+    bytes: &[u8],
+    splitter: Splitter,
+) -> Result<FileRead> {
+    let start = preamble_end(fmt, path, bytes)?;
+    let body = &bytes[start..];
+    match splitter {
+        Splitter::Plain => read_plain(fmt, path, file, body),
+        Splitter::Csv => read_csv(fmt, path, file, body),
+    }
+}
+
+/// Byte offset after the `skip_lines` physical lines of the preamble.
+fn preamble_end(fmt: &LogFormat, path: &Path, bytes: &[u8]) -> Result<usize> {
     let mut start = 0;
     for _ in 0..fmt.skip_lines {
-        match bytes[start..].iter().position(|&c| c == b'\n') {
+        match memchr::memchr(b'\n', &bytes[start..]) {
             Some(p) => start += p + 1,
             None => {
                 return Err(IoError::Empty {
@@ -370,14 +473,63 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
             }
         }
     }
+    Ok(start)
+}
+
+fn empty_file(path: &Path) -> IoError {
+    IoError::Empty {
+        path: path.to_path_buf(),
+        hint: Some("the file is empty; it needs a header line and data rows".into()),
+    }
+}
+
+/// The cells of one record, whichever splitter produced them.
+trait Cells {
+    fn count(&self) -> usize;
+    fn cell(&self, i: usize) -> &[u8];
+    fn all_blank(&self) -> bool {
+        (0..self.count()).all(|i| trim(self.cell(i)).is_empty())
+    }
+}
+
+impl Cells for csv::ByteRecord {
+    fn count(&self) -> usize {
+        self.len()
+    }
+    fn cell(&self, i: usize) -> &[u8] {
+        self.get(i).unwrap_or_default()
+    }
+}
+
+/// One line of plain text: cell `i` is `text[bounds[i]..bounds[i + 1] - 1]`
+/// (each bound is one past a delimiter; the last is one past the cell end).
+struct Split<'a> {
+    text: &'a [u8],
+    bounds: &'a [usize],
+}
+
+impl Cells for Split<'_> {
+    fn count(&self) -> usize {
+        self.bounds.len() - 1
+    }
+    #[inline]
+    fn cell(&self, i: usize) -> &[u8] {
+        &self.text[self.bounds[i]..self.bounds[i + 1] - 1]
+    }
+}
+
+/// The csv-crate splitter: quoted cells (with delimiters, quotes or line
+/// breaks inside), lone `\r` line ends. Physical lines come from
+/// [`LineCounter`], which counts the `\n` bytes before each record.
+fn read_csv(fmt: &LogFormat, path: &Path, file: u32, body: &[u8]) -> Result<FileRead> {
     let skip = fmt.skip_lines as u64;
     let mut rdr = csv::ReaderBuilder::new()
         .delimiter(fmt.delimiter)
         .has_headers(false)
         .flexible(true)
-        .from_reader(&bytes[start..]);
+        .from_reader(body);
     let mut rec = csv::ByteRecord::new();
-    let mut lines = LineCounter::new(&bytes[start..]);
+    let mut lines = LineCounter::new(body);
     let csv_err = |e: csv::Error| IoError::Table {
         path: path.to_path_buf(),
         message: match e.position() {
@@ -386,83 +538,226 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
         },
     };
     // Header: the first non-blank record.
-    let header_line;
-    let headers: Vec<String> = loop {
+    let mut parser = loop {
         if !rdr.read_byte_record(&mut rec).map_err(csv_err)? {
-            return Err(IoError::Empty {
-                path: path.to_path_buf(),
-                hint: Some("the file is empty; it needs a header line and data rows".into()),
-            });
+            return Err(empty_file(path));
         }
-        if rec.iter().all(|c| trim(c).is_empty()) {
+        if rec.all_blank() {
             continue;
         }
-        header_line = lines.line_of(&rec) as usize + fmt.skip_lines;
-        break rec.iter().map(decode).collect();
+        let header_line = lines.line_of(&rec) as usize + fmt.skip_lines;
+        break Parser::new(fmt, path, file, &rec, header_line, body.len())?;
     };
-    let column = |name: &str| -> Result<usize> {
-        headers.iter().position(|h| h == name).ok_or_else(|| {
-            if headers.len() == 1 {
-                for d in [b';', b',', b'\t', b'|'] {
-                    if d != fmt.delimiter && headers[0].contains(d as char) {
-                        return IoError::Table {
-                            path: path.to_path_buf(),
-                            message: format!(
-                                "line {header_line}: the header is one field `{}`; the delimiter of logs[{}] is {:?} but the file looks {:?}-delimited (set `delimiter = \"{}\"`)",
-                                headers[0], fmt.block, fmt.delimiter as char, d as char,
-                                if d == b'\t' { "tab".to_string() } else { (d as char).to_string() }
-                            ),
-                        };
+    while rdr.read_byte_record(&mut rec).map_err(csv_err)? {
+        let line = (lines.line_of(&rec) + skip) as u32;
+        parser.record(&rec, line);
+    }
+    parser.finish()
+}
+
+/// The plain splitter (see [`plain_text`]): one pass of a vectorised search
+/// for the delimiter and `\n` over the whole text gives every cell bound and
+/// every line end, so physical lines are counted as they pass. A `\r` before
+/// `\n` ends the line; a UTF-8 byte-order mark at the start is skipped (as
+/// the csv crate does); a last line without `\n` is a record.
+fn read_plain(fmt: &LogFormat, path: &Path, file: u32, body: &[u8]) -> Result<FileRead> {
+    let text = body.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(body);
+    let mut records = PlainRecords::new(text, fmt.delimiter, fmt.skip_lines as u32 + 1);
+    let mut bounds: Vec<usize> = Vec::with_capacity(16);
+    // Header: the first non-blank line.
+    let mut parser = loop {
+        let Some(line) = records.next_record(&mut bounds) else {
+            return Err(empty_file(path));
+        };
+        let cells = Split { text, bounds: &bounds };
+        if !cells.all_blank() {
+            break Parser::new(fmt, path, file, &cells, line as usize, text.len())?;
+        }
+    };
+    while let Some(line) = records.next_record(&mut bounds) {
+        parser.record(&Split { text, bounds: &bounds }, line);
+    }
+    parser.finish()
+}
+
+/// The lines of plain text as records (see [`read_plain`]).
+struct PlainRecords<'h> {
+    text: &'h [u8],
+    hits: memchr::Memchr2<'h>,
+    /// Start of the next line; past the end when done.
+    start: usize,
+    /// Physical line of the next line.
+    line: u32,
+}
+
+impl<'h> PlainRecords<'h> {
+    fn new(text: &'h [u8], delimiter: u8, first_line: u32) -> PlainRecords<'h> {
+        PlainRecords { text, hits: memchr::memchr2_iter(delimiter, b'\n', text), start: 0, line: first_line }
+    }
+
+    /// Fill `bounds` (see [`Split`]) with the next line and return its
+    /// physical line; `None` at the end. Every line is returned, blank ones
+    /// too (the parser skips them), and a last line without `\n` when it has
+    /// any byte.
+    #[inline]
+    fn next_record(&mut self, bounds: &mut Vec<usize>) -> Option<u32> {
+        if self.start > self.text.len() {
+            return None;
+        }
+        bounds.clear();
+        bounds.push(self.start);
+        let line = self.line;
+        for i in self.hits.by_ref() {
+            if self.text[i] == b'\n' {
+                self.close(bounds, i);
+                self.start = i + 1;
+                self.line += 1;
+                return Some(line);
+            }
+            bounds.push(i + 1);
+        }
+        let end = self.text.len();
+        let any = end > self.start;
+        self.start = end + 1;
+        if any {
+            self.close(bounds, end);
+            return Some(line);
+        }
+        None
+    }
+
+    /// End the last cell at `end`, before a `\r` that ends the line.
+    #[inline]
+    fn close(&self, bounds: &mut Vec<usize>, end: usize) {
+        let last = bounds[bounds.len() - 1];
+        let end = if end > last && self.text[end - 1] == b'\r' { end - 1 } else { end };
+        bounds.push(end + 1);
+    }
+}
+
+/// Row processing shared by both splitters: columns, sensor ids, time stamps,
+/// the fall-back hour, values, flags and the failure counts.
+struct Parser<'a> {
+    fmt: &'a LogFormat,
+    path: &'a Path,
+    file: u32,
+    header_line: usize,
+    ncols: usize,
+    time_col: usize,
+    sensor_col: Option<usize>,
+    stem_sensor: Option<u32>,
+    chan_cols: [Option<(usize, Conversion)>; 3],
+    out: FileRead,
+    last_utc: Vec<Option<i64>>,
+    last_sensor: Option<(Vec<u8>, u32)>,
+    clock: LocalClock,
+    time_fail: Failures,
+    value_fail: [Failures; 3],
+    /// Rows in a fall-back hour read as the first pass, per sensor, until
+    /// the second pass confirms it: (row index, line, time cell). A first
+    /// pass that is never followed by a second one cannot be placed and is
+    /// flagged.
+    pending: std::collections::BTreeMap<u32, Vec<(usize, u32, Vec<u8>)>>,
+    drop_rows: Vec<usize>,
+}
+
+impl<'a> Parser<'a> {
+    /// Look up the configured columns in the header record.
+    fn new<C: Cells>(
+        fmt: &'a LogFormat,
+        path: &'a Path,
+        file: u32,
+        header: &C,
+        header_line: usize,
+        text_len: usize,
+    ) -> Result<Parser<'a>> {
+        let headers: Vec<String> = (0..header.count()).map(|i| decode(header.cell(i))).collect();
+        let column = |name: &str| -> Result<usize> {
+            headers.iter().position(|h| h == name).ok_or_else(|| {
+                if headers.len() == 1 {
+                    for d in [b';', b',', b'\t', b'|'] {
+                        if d != fmt.delimiter && headers[0].contains(d as char) {
+                            return IoError::Table {
+                                path: path.to_path_buf(),
+                                message: format!(
+                                    "line {header_line}: the header is one field `{}`; the delimiter of logs[{}] is {:?} but the file looks {:?}-delimited (set `delimiter = \"{}\"`)",
+                                    headers[0], fmt.block, fmt.delimiter as char, d as char,
+                                    if d == b'\t' { "tab".to_string() } else { (d as char).to_string() }
+                                ),
+                            };
+                        }
                     }
                 }
+                IoError::MissingColumn {
+                    path: path.to_path_buf(),
+                    line: header_line,
+                    column: name.to_string(),
+                    suggestion: closest(name, headers.iter().map(String::as_str)),
+                    available: headers.clone(),
+                }
+            })
+        };
+        let time_col = column(&fmt.time_column)?;
+        let sensor_col = match &fmt.sensor {
+            SensorSource::Column(c) => Some(column(c)?),
+            SensorSource::FileStem => None,
+        };
+        let mut chan_cols: [Option<(usize, Conversion)>; 3] = [None; 3];
+        for ch in Channel::ALL {
+            if let Some((name, conv)) = &fmt.channels[ch.index()] {
+                chan_cols[ch.index()] = Some((column(name)?, *conv));
             }
-            IoError::MissingColumn {
-                path: path.to_path_buf(),
-                line: header_line,
-                column: name.to_string(),
-                suggestion: closest(name, headers.iter().map(String::as_str)),
-                available: headers.clone(),
+        }
+        let mut out = FileRead {
+            rows_read: 0,
+            rows: Vec::with_capacity(text_len / 32),
+            flags: Vec::new(),
+            sensors: Vec::new(),
+            first_line: Vec::new(),
+        };
+        let mut last_utc: Vec<Option<i64>> = Vec::new();
+        let stem_sensor = match &fmt.sensor {
+            SensorSource::FileStem => {
+                let stem = path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
+                out.sensors.push(stem);
+                out.first_line.push(0);
+                last_utc.push(None);
+                Some(0u32)
             }
-        })
-    };
-    let time_col = column(&fmt.time_column)?;
-    let sensor_col = match &fmt.sensor {
-        SensorSource::Column(c) => Some(column(c)?),
-        SensorSource::FileStem => None,
-    };
-    let mut chan_cols: [Option<(usize, Conversion)>; 3] = [None; 3];
-    for ch in Channel::ALL {
-        if let Some((name, conv)) = &fmt.channels[ch.index()] {
-            chan_cols[ch.index()] = Some((column(name)?, *conv));
-        }
-    }
-    let ncols = headers.len();
-
-    let mut out = FileRead {
-        rows_read: 0,
-        rows: Vec::with_capacity(bytes.len() / 32),
-        flags: Vec::new(),
-        sensors: Vec::new(),
-        first_line: Vec::new(),
-    };
-    let mut last_utc: Vec<Option<i64>> = Vec::new();
-    let stem_sensor = match &fmt.sensor {
-        SensorSource::FileStem => {
-            let stem = path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
-            out.sensors.push(stem);
-            out.first_line.push(0);
-            last_utc.push(None);
-            Some(0u32)
-        }
-        SensorSource::Column(_) => None,
-    };
-    let mut last_sensor: Option<(Vec<u8>, u32)> = None;
-    let mut clock = LocalClock::new(fmt.timezone);
-    let mut time_fail = Failures::new();
-    let mut value_fail = [Failures::new(), Failures::new(), Failures::new()];
-    let flag = |out: &mut FileRead, line, sensor, time, variable, value: &[u8], reason| {
-        out.flags.push(Flag {
+            SensorSource::Column(_) => None,
+        };
+        Ok(Parser {
+            fmt,
+            path,
             file,
+            header_line,
+            ncols: headers.len(),
+            time_col,
+            sensor_col,
+            stem_sensor,
+            chan_cols,
+            out,
+            last_utc,
+            last_sensor: None,
+            clock: LocalClock::new(fmt.timezone),
+            time_fail: Failures::new(),
+            value_fail: [Failures::new(), Failures::new(), Failures::new()],
+            pending: Default::default(),
+            drop_rows: Vec::new(),
+        })
+    }
+
+    fn flag(
+        &mut self,
+        line: u32,
+        sensor: u32,
+        time: Option<i64>,
+        variable: Variable,
+        value: &[u8],
+        reason: Reason,
+    ) {
+        self.out.flags.push(Flag {
+            file: self.file,
             line,
             sensor,
             time,
@@ -470,185 +765,192 @@ pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Resu
             value: String::from_utf8_lossy(value).into_owned(),
             reason,
         });
-    };
+    }
 
-    // Rows in a fall-back hour read as the first pass, per sensor, until the
-    // second pass confirms it: (row index, line, time cell). A first pass that
-    // is never followed by a second one cannot be placed and is flagged.
-    let mut pending: std::collections::BTreeMap<u32, Vec<(usize, u32, Vec<u8>)>> = Default::default();
-    let mut drop_rows: Vec<usize> = Vec::new();
-    let unplaced =
-        |out: &mut FileRead, drop_rows: &mut Vec<usize>, sensor: u32, run: Vec<(usize, u32, Vec<u8>)>| {
-            for (idx, line, cell) in run {
-                flag(out, line, sensor, None, Variable::Time, &cell, Reason::AmbiguousTime);
-                drop_rows.push(idx);
+    /// Flag and drop a first-pass run of the fall-back hour that was never
+    /// confirmed by a second pass.
+    fn unplaced(&mut self, sensor: u32, run: Vec<(usize, u32, Vec<u8>)>) {
+        for (idx, line, cell) in run {
+            self.flag(line, sensor, None, Variable::Time, &cell, Reason::AmbiguousTime);
+            self.drop_rows.push(idx);
+        }
+    }
+
+    /// The sensor index of a row, or `None` (flagged) for an empty id.
+    #[inline]
+    fn sensor<C: Cells>(&mut self, rec: &C, line: u32) -> Option<u32> {
+        if let Some(s) = self.stem_sensor {
+            return Some(s);
+        }
+        let c = self.sensor_col.unwrap_or_else(|| unreachable!("a sensor source is always set"));
+        let id = trim(rec.cell(c));
+        if id.is_empty() {
+            self.flag(line, u32::MAX, None, Variable::Sensor, b"", Reason::MalformedRow);
+            return None;
+        }
+        if let Some((b, s)) = &self.last_sensor
+            && b.as_slice() == id
+        {
+            return Some(*s);
+        }
+        let name = decode(id);
+        let s = match self.out.sensors.iter().position(|x| *x == name) {
+            Some(s) => s as u32,
+            None => {
+                self.out.sensors.push(name);
+                self.out.first_line.push(line);
+                self.last_utc.push(None);
+                (self.out.sensors.len() - 1) as u32
             }
         };
+        self.last_sensor = Some((id.to_vec(), s));
+        Some(s)
+    }
 
-    while rdr.read_byte_record(&mut rec).map_err(csv_err)? {
-        let line = (lines.line_of(&rec) + skip) as u32;
-        if rec.len() <= 1 && rec.iter().all(|c| trim(c).is_empty()) {
-            continue;
+    /// One data record at physical line `line`.
+    #[inline]
+    fn record<C: Cells>(&mut self, rec: &C, line: u32) {
+        let n = rec.count();
+        if n <= 1 && rec.all_blank() {
+            return;
         }
-        out.rows_read += 1;
-        if rec.len() != ncols {
-            let msg = format!("{} fields where the header has {ncols}", rec.len());
-            flag(&mut out, line, u32::MAX, None, Variable::Row, msg.as_bytes(), Reason::MalformedRow);
-            continue;
+        self.out.rows_read += 1;
+        if n != self.ncols {
+            let msg = format!("{n} fields where the header has {}", self.ncols);
+            self.flag(line, u32::MAX, None, Variable::Row, msg.as_bytes(), Reason::MalformedRow);
+            return;
         }
-        // Sensor.
-        let sensor = match (stem_sensor, sensor_col) {
-            (Some(s), _) => s,
-            (None, Some(c)) => {
-                let id = trim(&rec[c]);
-                if id.is_empty() {
-                    flag(&mut out, line, u32::MAX, None, Variable::Sensor, b"", Reason::MalformedRow);
-                    continue;
-                }
-                match &last_sensor {
-                    Some((b, s)) if b.as_slice() == id => *s,
-                    _ => {
-                        let name = decode(id);
-                        let s = match out.sensors.iter().position(|x| *x == name) {
-                            Some(s) => s as u32,
-                            None => {
-                                out.sensors.push(name);
-                                out.first_line.push(line);
-                                last_utc.push(None);
-                                (out.sensors.len() - 1) as u32
-                            }
-                        };
-                        last_sensor = Some((id.to_vec(), s));
-                        s
-                    }
-                }
-            }
-            (None, None) => unreachable!("a sensor source is always set"),
-        };
-        if out.first_line[sensor as usize] == 0 {
-            out.first_line[sensor as usize] = line;
+        let Some(sensor) = self.sensor(rec, line) else { return };
+        if self.out.first_line[sensor as usize] == 0 {
+            self.out.first_line[sensor as usize] = line;
         }
         // Time.
-        let tcell = trim(&rec[time_col]);
-        time_fail.tried += 1;
-        let stamp = std::str::from_utf8(tcell).ok().and_then(|s| fmt.time_format.parse(s, fmt.decimal_comma));
-        let utc = match stamp {
+        let tcell = trim(rec.cell(self.time_col));
+        self.time_fail.tried += 1;
+        let utc = match self.fmt.time_format.parse_bytes(tcell, self.fmt.decimal_comma) {
             None => {
-                time_fail.fail(line, tcell);
-                flag(&mut out, line, sensor, None, Variable::Time, tcell, Reason::UnparsableTime);
-                continue;
+                self.time_fail.fail(line, tcell);
+                self.flag(line, sensor, None, Variable::Time, tcell, Reason::UnparsableTime);
+                return;
             }
             Some(Stamp::Utc(t)) => t,
-            Some(Stamp::Local(l)) => match clock.resolve(l) {
+            Some(Stamp::Local(l)) => match self.clock.resolve(l) {
                 Resolution::Single(t) => {
-                    if let Some(run) = pending.remove(&sensor) {
-                        unplaced(&mut out, &mut drop_rows, sensor, run);
+                    if !self.pending.is_empty()
+                        && let Some(run) = self.pending.remove(&sensor)
+                    {
+                        self.unplaced(sensor, run);
                     }
                     t
                 }
                 Resolution::Nonexistent => {
-                    flag(&mut out, line, sensor, None, Variable::Time, tcell, Reason::NonexistentTime);
-                    continue;
+                    self.flag(line, sensor, None, Variable::Time, tcell, Reason::NonexistentTime);
+                    return;
                 }
-                Resolution::Ambiguous(early, late) => {
-                    let prev = last_utc[sensor as usize];
-                    match prev {
-                        Some(p) if early > p => {
-                            pending.entry(sensor).or_default().push((out.rows.len(), line, tcell.to_vec()));
-                            early
-                        }
-                        Some(p) if early < p && late >= p => {
-                            pending.remove(&sensor);
-                            late
-                        }
-                        _ => {
-                            flag(&mut out, line, sensor, None, Variable::Time, tcell, Reason::AmbiguousTime);
-                            continue;
-                        }
+                Resolution::Ambiguous(early, late) => match self.last_utc[sensor as usize] {
+                    Some(p) if early > p => {
+                        let idx = self.out.rows.len();
+                        self.pending.entry(sensor).or_default().push((idx, line, tcell.to_vec()));
+                        early
                     }
-                }
+                    Some(p) if early < p && late >= p => {
+                        self.pending.remove(&sensor);
+                        late
+                    }
+                    _ => {
+                        self.flag(line, sensor, None, Variable::Time, tcell, Reason::AmbiguousTime);
+                        return;
+                    }
+                },
             },
         };
-        last_utc[sensor as usize] = Some(utc);
+        self.last_utc[sensor as usize] = Some(utc);
         // Values.
         let mut values = [f64::NAN; 3];
         let mut flagged = false;
-        for (k, cc) in chan_cols.iter().enumerate() {
-            let Some((c, conv)) = cc else { continue };
-            let cell = trim(&rec[*c]);
+        for k in 0..3 {
+            let Some((c, conv)) = self.chan_cols[k] else { continue };
+            let cell = trim(rec.cell(c));
             if is_missing(cell) {
                 continue;
             }
-            value_fail[k].tried += 1;
-            match parse_number(cell, fmt.decimal_comma) {
+            self.value_fail[k].tried += 1;
+            match parse_number(cell, self.fmt.decimal_comma) {
                 Some(x) => values[k] = conv.apply(x),
                 None => {
-                    value_fail[k].fail(line, cell);
+                    self.value_fail[k].fail(line, cell);
                     flagged = true;
                     let var = Variable::Channel(Channel::ALL[k]);
-                    flag(&mut out, line, sensor, Some(utc), var, cell, Reason::UnparsableValue);
+                    self.flag(line, sensor, Some(utc), var, cell, Reason::UnparsableValue);
                 }
             }
         }
-        out.rows.push(Row { time: utc, values, line, sensor, file, flagged });
+        self.out.rows.push(Row { time: utc, values, line, sensor, file: self.file, flagged });
     }
-    for (sensor, run) in std::mem::take(&mut pending) {
-        unplaced(&mut out, &mut drop_rows, sensor, run);
-    }
-    if !drop_rows.is_empty() {
-        let drop: std::collections::HashSet<usize> = drop_rows.into_iter().collect();
-        out.rows = std::mem::take(&mut out.rows)
-            .into_iter()
-            .enumerate()
-            .filter(|(i, _)| !drop.contains(i))
-            .map(|(_, r)| r)
-            .collect();
-    }
-    if out.rows_read == 0 {
-        return Err(IoError::Empty {
-            path: path.to_path_buf(),
-            hint: Some(format!("only a header (line {header_line}) was found")),
-        });
-    }
-    if time_fail.most() {
-        let (line, value) = time_fail.first.clone().unwrap_or_default();
-        return Err(IoError::BadValue {
-            path: path.to_path_buf(),
-            line: line as usize,
-            column: fmt.time_column.clone(),
-            value,
-            message: format!(
-                "{} of {} time stamps do not match the pattern `{}` of logs[{}]",
-                time_fail.count,
-                time_fail.tried,
-                fmt.time_format.describe(),
-                fmt.block
-            ),
-            hint: Some(
-                "fix `time_format`: chrono strftime fields such as %Y-%m-%d %H:%M:%S, %d.%m.%Y %H:%M, %m/%d/%Y %I:%M %p; or \"rfc3339\" / \"unix\"".into(),
-            ),
-        });
-    }
-    for ch in Channel::ALL {
-        let f = &value_fail[ch.index()];
-        if f.most() {
-            let (line, value) = f.first.clone().unwrap_or_default();
-            let name = fmt.channels[ch.index()].as_ref().map(|c| c.0.clone()).unwrap_or_default();
+
+    /// Settle the fall-back runs still open, then check the failure counts.
+    fn finish(mut self) -> Result<FileRead> {
+        for (sensor, run) in std::mem::take(&mut self.pending) {
+            self.unplaced(sensor, run);
+        }
+        let (fmt, path) = (self.fmt, self.path);
+        let mut out = self.out;
+        if !self.drop_rows.is_empty() {
+            let drop: std::collections::HashSet<usize> = self.drop_rows.into_iter().collect();
+            out.rows = std::mem::take(&mut out.rows)
+                .into_iter()
+                .enumerate()
+                .filter(|(i, _)| !drop.contains(i))
+                .map(|(_, r)| r)
+                .collect();
+        }
+        if out.rows_read == 0 {
+            return Err(IoError::Empty {
+                path: path.to_path_buf(),
+                hint: Some(format!("only a header (line {}) was found", self.header_line)),
+            });
+        }
+        let time_fail = &self.time_fail;
+        if time_fail.most() {
+            let (line, value) = time_fail.first.clone().unwrap_or_default();
             return Err(IoError::BadValue {
                 path: path.to_path_buf(),
                 line: line as usize,
-                column: name,
+                column: fmt.time_column.clone(),
                 value,
-                message: format!("{} of {} {ch} values are not numbers", f.count, f.tried),
-                hint: Some(if fmt.decimal_comma {
-                    "logs[..].decimal is \",\"; if the file writes 21.5, set decimal = \".\"".into()
-                } else {
-                    "if the file writes 21,5 set `decimal = \",\"` (and a `;` delimiter)".into()
-                }),
+                message: format!(
+                    "{} of {} time stamps do not match the pattern `{}` of logs[{}]",
+                    time_fail.count,
+                    time_fail.tried,
+                    fmt.time_format.describe(),
+                    fmt.block
+                ),
+                hint: Some(
+                    "fix `time_format`: chrono strftime fields such as %Y-%m-%d %H:%M:%S, %d.%m.%Y %H:%M, %m/%d/%Y %I:%M %p; or \"rfc3339\" / \"unix\"".into(),
+                ),
             });
         }
+        for ch in Channel::ALL {
+            let f = &self.value_fail[ch.index()];
+            if f.most() {
+                let (line, value) = f.first.clone().unwrap_or_default();
+                let name = fmt.channels[ch.index()].as_ref().map(|c| c.0.clone()).unwrap_or_default();
+                return Err(IoError::BadValue {
+                    path: path.to_path_buf(),
+                    line: line as usize,
+                    column: name,
+                    value,
+                    message: format!("{} of {} {ch} values are not numbers", f.count, f.tried),
+                    hint: Some(if fmt.decimal_comma {
+                        "logs[..].decimal is \",\"; if the file writes 21.5, set decimal = \".\"".into()
+                    } else {
+                        "if the file writes 21,5 set `decimal = \",\"` (and a `;` delimiter)".into()
+                    }),
+                });
+            }
+        }
+        Ok(out)
     }
-    Ok(out)
 }
 
 #[cfg(test)]
@@ -801,5 +1103,265 @@ mod tests {
         assert_eq!(reasons, vec![Reason::AmbiguousTime, Reason::NonexistentTime]);
         assert_eq!(r.rows.len(), 1);
         assert_eq!(r.rows[0].time, utc("2026-03-08 07:00"));
+    }
+
+    /// Everything a read gives, as text (NaN prints as NaN, so missing values
+    /// compare equal), or the error message.
+    fn outcome(r: Result<FileRead>) -> String {
+        match r {
+            Ok(r) => format!(
+                "read {} sensors {:?} first {:?}\nrows {:?}\nflags {:?}",
+                r.rows_read, r.sensors, r.first_line, r.rows, r.flags
+            ),
+            Err(e) => format!("error: {e}"),
+        }
+    }
+
+    fn both(f: &LogFormat, name: &str, text: &[u8]) -> (String, String) {
+        let p = Path::new(name);
+        (
+            outcome(read_bytes_with(f, p, 2, text, Splitter::Plain)),
+            outcome(read_bytes_with(f, p, 2, text, Splitter::Csv)),
+        )
+    }
+
+    /// The plain splitter and the csv crate give the same rows, flags and
+    /// lines on the same content: CRLF, blank and whitespace-only lines, a
+    /// preamble, a byte-order mark, a last line without `\n`, a file ending
+    /// in a partial row, decimal commas with semicolons, bad cells.
+    #[test]
+    fn plain_splitter_agrees_with_csv_crate() {
+        let comma = fmt(b',', false, "%Y-%m-%d %H:%M", chrono_tz::UTC, SensorSource::Column("id".into()), 0);
+        let semi = fmt(b';', true, "%d.%m.%Y %H:%M", chrono_tz::UTC, SensorSource::FileStem, 2);
+        let cases: Vec<(&LogFormat, &[u8])> = vec![
+            (&comma, b"id,time,temp,rh\r\nA,2026-03-01 00:00,60,50\r\n\r\nA,2026-03-01 00:05,61,51\r\n"),
+            (&comma, b"\n\nid,time,temp,rh\n  \n,,,\nA,2026-03-01 00:00,60,50\nA,2026-03-01 00:05,6O,\nB,2026-03-01 00:05"),
+            (&comma, b"id,time,temp,rh\nA,2026-03-01 00:00,60,50\nA,2026-03-01 00:05,61,51"),
+            (&comma, b"id,time,temp,rh\nA,2026-03-01 00:00,60,50\nA,2026-03-01 00:05,61,"),
+            (&comma, b"id,time,temp,rh\nA,2026-03-01 00:00,60,50\nA,2026-03-01 00:05,61,51,\n"),
+            (&comma, b"\xEF\xBB\xBFid,time,temp,rh\nA , 2026-03-01 00:00 , 60 ,NA\n"),
+            (&comma, b"\xEF\xBB\xBF\nid,time,temp,rh\nA,2026-03-01 00:00,60,50\n"),
+            (&comma, b"id,time,temp,rh\n"),
+            (&comma, b""),
+            (&comma, b"id;time;temp;rh\nA;2026-03-01 00:00;60;50\n"),
+            (&comma, b"id,time,tmp,rh\nA,2026-03-01 00:00,60,50\n"),
+            (&comma, b"id,time,temp,rh\nA,01/03/2026,60,50\nA,02/03/2026,60,50\n"),
+            (&semi, b"Logger export v2\r\nSerial: 123\r\ntime;temp;rh\r\n01.03.2026 00:00;68,0;55,5\r\n\r\n01.03.2026 00:05;50;NA\r\n01.03.2026 00:10;5,0"),
+            (&semi, b"Logger \"v2\"\nSerial\ntime;temp;rh\n01.03.2026 00:00;68,0;55,5\n"),
+            (&semi, b"only one line"),
+            (&semi, b"a\nb\ntime;Temp (\xB0C);rh\n01.03.2026 00:00;68,0;55,5\n"),
+        ];
+        for (f, text) in cases {
+            let (plain, csv) = both(f, "dir/S01.csv", text);
+            assert_eq!(plain, csv, "{}", String::from_utf8_lossy(text));
+        }
+    }
+
+    /// The fall-back hour is resolved the same way by both splitters.
+    #[test]
+    fn plain_splitter_agrees_on_the_fall_back_hour() {
+        let f = fmt(
+            b',',
+            false,
+            "%Y-%m-%d %H:%M",
+            chrono_tz::Europe::Amsterdam,
+            SensorSource::Column("id".into()),
+            0,
+        );
+        let mut text = String::from("id,time,temp,rh\r\n");
+        for (id, t) in [
+            ("A", "01:40"),
+            ("A", "02:00"),
+            ("B", "02:20"),
+            ("A", "02:40"),
+            ("A", "02:00"),
+            ("B", "03:00"),
+            ("A", "03:00"),
+        ] {
+            text.push_str(&format!("{id},2026-10-25 {t},60,50\r\n"));
+        }
+        let (plain, csv) = both(&f, "x.csv", text.as_bytes());
+        assert_eq!(plain, csv);
+        assert!(plain.contains("AmbiguousTime"), "{plain}");
+    }
+
+    /// A quoted export reads like the same content without quotes: same rows,
+    /// flags and lines (the quoted one goes through the csv crate).
+    #[test]
+    fn quoted_and_unquoted_exports_read_alike() {
+        let f = fmt(b';', true, "%d.%m.%Y %H:%M", chrono_tz::UTC, SensorSource::Column("id".into()), 1);
+        let plain = "Export\nid;time;temp;rh\nS1;01.03.2026 00:00;68,0;55,5\n\nS1;01.03.2026 00:05;x;50\nS2;01.03.2026 00:05;50\n";
+        let quoted = "Export \"A\"\n\"id\";\"time\";\"temp\";\"rh\"\n\"S1\";\"01.03.2026 00:00\";\"68,0\";\"55,5\"\n\n\"S1\";\"01.03.2026 00:05\";\"x\";50\n\"S2\";01.03.2026 00:05;\"50\"\n";
+        assert!(plain_text(plain.as_bytes()) && !plain_text(&quoted.as_bytes()[12..]));
+        let p = Path::new("x.csv");
+        let a = outcome(read_bytes(&f, p, 0, plain.as_bytes()));
+        let b = outcome(read_bytes(&f, p, 0, quoted.as_bytes()));
+        assert_eq!(a, b);
+        assert!(a.contains("UnparsableValue") && a.contains("MalformedRow"), "{a}");
+        // A lone carriage return is a line end for the csv crate: such text
+        // is not plain, and goes to the csv crate.
+        assert!(!plain_text(b"a,b\rc,d\n") && plain_text(b"a,b\r\nc,d\n"));
+    }
+
+    /// Generated messy exports (seeded): both splitters agree on every one.
+    #[test]
+    fn plain_splitter_agrees_with_csv_crate_on_generated_files() {
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(20261025);
+        let times = [
+            "2026-10-25 01:40",
+            "2026-10-25 02:00",
+            "2026-10-25 02:20",
+            "2026-10-25 02:40",
+            "2026-10-25 03:00",
+            "2026-03-29 02:30",
+            "2026-03-29 03:00",
+        ];
+        let cells = [
+            "21.5",
+            "-3",
+            "1e2",
+            "",
+            "NA",
+            " 7.25 ",
+            "x",
+            "0.000001",
+            "+4",
+            ".5",
+            "5.",
+            "123456789012345678",
+        ];
+        let ids = ["A", "B", " A", "", "Ä"];
+        let mut read_ok = 0;
+        for case in 0..300 {
+            let delim = [b',', b';', b'\t'][rng.random_range(0..3)];
+            let comma = delim != b',' && rng.random_bool(0.5);
+            let skip = rng.random_range(0..3);
+            let by_column = rng.random_bool(0.7);
+            let sensor = if by_column { SensorSource::Column("id".into()) } else { SensorSource::FileStem };
+            let f = fmt(delim, comma, "%Y-%m-%d %H:%M", chrono_tz::Europe::Amsterdam, sensor, skip);
+            let d = delim as char;
+            let eol = |rng: &mut rand_chacha::ChaCha20Rng| if rng.random_bool(0.3) { "\r\n" } else { "\n" };
+            let mut text = String::new();
+            for i in 0..skip {
+                text.push_str(&format!("preamble {i}{}", eol(&mut rng)));
+            }
+            if rng.random_bool(0.2) {
+                text.push_str(eol(&mut rng));
+            }
+            text.push_str(&format!("id{d}time{d}temp{d}rh{}", eol(&mut rng)));
+            let n = rng.random_range(0..40);
+            for _ in 0..n {
+                match rng.random_range(0..20) {
+                    0 => text.push_str(eol(&mut rng)),
+                    1 => text.push_str(&format!("  {}", eol(&mut rng))),
+                    2 => text.push_str(&format!("{d}{d}{d}{}", eol(&mut rng))),
+                    _ => {
+                        let mut fields = vec![
+                            ids[rng.random_range(0..ids.len())].to_string(),
+                            times[rng.random_range(0..times.len())].to_string(),
+                        ];
+                        for _ in 0..2 {
+                            let mut c = cells[rng.random_range(0..cells.len())].to_string();
+                            if comma {
+                                c = c.replace('.', ",");
+                            }
+                            fields.push(c);
+                        }
+                        let keep = match rng.random_range(0..12) {
+                            0 => rng.random_range(1..4),
+                            1 => 5,
+                            _ => 4,
+                        };
+                        fields.resize(keep, "9".into());
+                        text.push_str(&fields.join(&d.to_string()));
+                        text.push_str(eol(&mut rng));
+                    }
+                }
+            }
+            if rng.random_bool(0.3) {
+                // A last line without its line end, possibly cut short.
+                let row = format!("A{d}2026-10-25 03:20{d}1");
+                text.push_str(&row[..rng.random_range(0..row.len())]);
+            }
+            assert!(plain_text(text.as_bytes()), "case {case}");
+            let (plain, csv) = both(&f, "dir/S9.csv", text.as_bytes());
+            assert_eq!(plain, csv, "case {case}:\n{text}");
+            read_ok += usize::from(!plain.starts_with("error"));
+        }
+        // Most cases read (a few stop on a column that fails on most rows).
+        assert!(read_ok > 200, "{read_ok} of 300 generated files read");
+    }
+
+    /// The fast path of `parse_number` gives the bits of Rust's own
+    /// correctly rounded `str::parse::<f64>` (the general-purpose parser).
+    #[test]
+    fn number_fast_path_matches_std_parse() {
+        use rand::{RngExt, SeedableRng};
+        let reference = |s: &str, comma: bool| -> Option<f64> {
+            let s = if comma { s.replace(',', ".") } else { s.to_string() };
+            s.parse::<f64>().ok().filter(|x| x.is_finite())
+        };
+        let bits = |x: Option<f64>| x.map(f64::to_bits);
+        let fixed = [
+            "0",
+            "-0",
+            "+5",
+            ".5",
+            "5.",
+            "-.5",
+            "-5.",
+            ".",
+            "-",
+            "+",
+            "",
+            "1e3",
+            "0001.5000",
+            "1.2.3",
+            "1,5",
+            "-0.0",
+            "999999999999999",
+            "9999999999999999",
+            "0.000000000000001",
+            "12345678901234.5",
+            "123456789012345.6",
+            "inf",
+            "NaN",
+            "0x10",
+            "1 5",
+            "1_0",
+            "٣",
+        ];
+        for s in fixed {
+            for comma in [false, true] {
+                assert_eq!(
+                    bits(parse_number(s.as_bytes(), comma)),
+                    bits(reference(s, comma)),
+                    "{s:?} {comma}"
+                );
+            }
+        }
+        let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(7);
+        for _ in 0..200_000 {
+            let int_digits = rng.random_range(0..10);
+            let frac_digits = rng.random_range(0..10);
+            let mut s = String::new();
+            match rng.random_range(0..4) {
+                0 => s.push('-'),
+                1 => s.push('+'),
+                _ => {}
+            }
+            for _ in 0..int_digits {
+                s.push(char::from(b'0' + rng.random_range(0..10u8)));
+            }
+            let comma = rng.random_bool(0.3);
+            if frac_digits > 0 || rng.random_bool(0.1) {
+                s.push(if comma { ',' } else { '.' });
+            }
+            for _ in 0..frac_digits {
+                s.push(char::from(b'0' + rng.random_range(0..10u8)));
+            }
+            assert_eq!(bits(parse_number(s.as_bytes(), comma)), bits(reference(&s, comma)), "{s:?}");
+        }
     }
 }
