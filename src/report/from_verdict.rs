@@ -174,7 +174,8 @@ mod tests {
             reason: "why".into(),
             best_model: "base+cold".into(),
             best_by_aic: "base+cold | exponential".into(),
-            options: VerdictOptions::default(),
+            // A tie margin other than the default, so that the check below sees it passed through.
+            options: VerdictOptions { tie_delta: 3.0, ..VerdictOptions::default() },
             trait_name: "h".into(),
             n_pots: 2,
             models: vec![ModelRow {
