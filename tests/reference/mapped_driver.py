@@ -23,7 +23,8 @@ joint-Gaussian algebra in numpy, written independently of potclim's code:
   correlation matrix R of V = sigma^2 R under the prior 1/sigma^2 (Gelman et
   al. 2013, *Bayesian Data Analysis*, 3rd ed., §14.2): GLS estimate, RSS and
   the posterior moments E[sigma^2] = RSS/(n-p-2), E[1/sigma^2] = (n-p)/RSS
-  and Cov(beta | sigma^2) = sigma^2 (Z'R^-1 Z)^-1.
+  and Cov(beta | sigma^2) = sigma^2 (Z'R^-1 Z)^-1;
+* the sample autocorrelation of a short series (numpy.correlate, divisor n).
 
 Conventions (docs/spatial.md, docs/verdict.md): exponential correlation
 exp(-d/a); the sensor covariance is c0 + c on the diagonal and c rho(d)
@@ -152,6 +153,12 @@ for name, cs in cases.items():
             "zrz_inv": np.linalg.inv(A).tolist(),
         },
     }
+
+# ---- sample autocorrelation (divisor n in both sums), an AR(1)-like invented series ----
+series = np.array([0.3, 0.9, 1.4, 0.8, -0.2, -0.9, -0.4, 0.5, 1.1, 0.7, 0.1, -0.6, -1.2, -0.3, 0.4])
+dev = series - series.mean()
+full = np.correlate(dev, dev, mode="full")[len(dev) - 1 :]
+out["autocorrelation"] = {"series": series.tolist(), "lags": [1, 2, 5], "acf": [float(full[k] / full[0]) for k in (1, 2, 5)]}
 
 path = os.path.join(HERE, "fixtures", "mapped_driver.json")
 with open(path, "w") as f:
