@@ -32,6 +32,16 @@ pub enum ModelError {
         /// How to fix it.
         hint: Option<String>,
     },
+    /// The imputation of a mapped driver failed (see `docs/verdict.md`).
+    #[error("driver `{driver}`: {message}{}", hint_suffix(hint))]
+    Imputation {
+        /// The mapped driver.
+        driver: String,
+        /// What went wrong.
+        message: String,
+        /// How to fix it.
+        hint: Option<String>,
+    },
     /// Fits that must not be compared were offered for comparison.
     #[error("cannot compare these fits: {0}")]
     Comparison(String),

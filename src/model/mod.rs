@@ -13,6 +13,7 @@ pub mod design;
 pub mod diagnostics;
 pub mod error;
 pub mod gls;
+pub mod imputation;
 pub mod ols;
 pub mod stage;
 pub mod verdict;

@@ -95,11 +95,22 @@ pub struct DriverRow {
     pub estimate: f64,
     /// Plug-in standard error of `estimate` (same units).
     pub se: f64,
-    /// Standard error including the uncertainty of the mapped driver (Rubin's
-    /// rules over conditional simulations); `None` when not computed (e.g. a
+    /// Estimate pooled over imputations of the mapped driver drawn given the
+    /// loggers and the trait (Rubin's rules); `None` when not computed (e.g. a
     /// distance covariate, which is known exactly).
     #[serde(default)]
+    pub estimate_with_mapping_uncertainty: Option<f64>,
+    /// Standard error including the uncertainty of the mapped driver (Rubin's
+    /// rules over the imputations); `None` when not computed.
+    #[serde(default)]
     pub se_with_mapping_uncertainty: Option<f64>,
+    /// 95 % confidence interval of the pooled estimate (t on Rubin's degrees
+    /// of freedom): lower end; `None` when not computed.
+    #[serde(default)]
+    pub ci_low_with_mapping_uncertainty: Option<f64>,
+    /// Upper end of that interval.
+    #[serde(default)]
+    pub ci_high_with_mapping_uncertainty: Option<f64>,
     /// Lower end of the 95 % confidence interval of `estimate`.
     pub ci_low: f64,
     /// Upper end of the 95 % confidence interval of `estimate`.

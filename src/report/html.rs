@@ -159,7 +159,8 @@ fn section_verdict(d: &ReportData, out: &mut String) {
         let _ = write!(
             out,
             "<div class=\"scroll\"><table>\n<tr><th>driver (unit)</th><th class=\"n\">effect per driver unit ({})</th>\
-             <th class=\"n\">SE</th><th class=\"n\">SE incl. mapping</th><th class=\"n\">95 % CI</th>\
+             <th class=\"n\">SE</th><th class=\"n\">95 % CI</th><th class=\"n\">effect incl. mapping</th>\
+             <th class=\"n\">SE incl. mapping</th><th class=\"n\">95 % CI incl. mapping</th>\
              <th class=\"n\">p</th><th class=\"n\">ΔAIC alone</th>\
              <th class=\"n\">ΔAIC with correlation</th><th class=\"n\">VIF</th><th>note</th></tr>\n",
             escape(unit)
@@ -167,15 +168,21 @@ fn section_verdict(d: &ReportData, out: &mut String) {
         for r in &v.drivers {
             let _ = writeln!(
                 out,
-                "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>\
-                 <td class=\"n\">{} to {}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>\
+                "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{} to {}</td>\
+                 <td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>\
+                 <td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>\
                  <td class=\"n\">{}</td><td>{}</td></tr>",
                 with_unit(&r.name, r.unit.as_deref()),
                 sig(r.estimate, 4),
                 sig(r.se, 3),
-                opt(r.se_with_mapping_uncertainty, |s| sig(s, 3)),
                 sig(r.ci_low, 4),
                 sig(r.ci_high, 4),
+                opt(r.estimate_with_mapping_uncertainty, |s| sig(s, 4)),
+                opt(r.se_with_mapping_uncertainty, |s| sig(s, 3)),
+                match (r.ci_low_with_mapping_uncertainty, r.ci_high_with_mapping_uncertainty) {
+                    (Some(a), Some(b)) => format!("{} to {}", sig(a, 4), sig(b, 4)),
+                    _ => "–".into(),
+                },
                 p_value(r.p_value),
                 opt(r.delta_aic, |x| fixed(x, 2)),
                 opt(r.delta_aic_with_correlation, |x| fixed(x, 2)),
@@ -183,7 +190,7 @@ fn section_verdict(d: &ReportData, out: &mut String) {
                 if r.confounded { "<span class=\"flag\">spatially confounded</span>" } else { "" }
             );
         }
-        out.push_str("</table></div>\n<p class=\"lead\">Effect: change of the trait per unit of the driver. SE incl. mapping: the standard error once the uncertainty of the kriged driver map is included (combined over conditional simulations by Rubin's rules). ΔAIC: AIC of the model without the driver minus AIC with it, alone with independent errors and with the best correlation model; positive values mean the driver improves the model. VIF: variance inflation against the other drivers; above about 5 the drivers are hard to tell apart (common practice). Spatially confounded: the effect vanishes once spatial correlation is modelled.</p>\n");
+        out.push_str("</table></div>\n<p class=\"lead\">Effect: change of the trait per unit of the driver. Incl. mapping: the effect, its standard error and interval once the uncertainty of the kriged driver map is included: the model is refitted on imputations of the driver drawn given the loggers and the trait, and the fits are combined by Rubin's rules; the plug-in columns treat the map as exact. ΔAIC: AIC of the model without the driver minus AIC with it, alone with independent errors and with the best correlation model; positive values mean the driver improves the model. VIF: variance inflation against the other drivers; above about 5 the drivers are hard to tell apart (common practice). Spatially confounded: the effect vanishes once spatial correlation is modelled.</p>\n");
     }
     out.push_str("<h3>What the data can and cannot show</h3>\n<ul class=\"cautions\">\n");
     for c in &v.cautions {
@@ -844,7 +851,10 @@ mod tests {
                     unit: Some("h".into()),
                     estimate: -0.123456,
                     se: 0.0456789,
+                    estimate_with_mapping_uncertainty: Some(-0.118765),
                     se_with_mapping_uncertainty: Some(0.0512345),
+                    ci_low_with_mapping_uncertainty: Some(-0.2211),
+                    ci_high_with_mapping_uncertainty: Some(-0.0164),
                     ci_low: -0.2130,
                     ci_high: -0.0339,
                     p_value: Some(0.00712),

@@ -576,6 +576,72 @@ pub fn rescale_to(
     Ok(unit.scaled(s2.max(f64::MIN_POSITIVE)))
 }
 
+/// Ordinary kriging of the *signal* (the field without its nugget) at many
+/// targets at once: the weights and the joint error covariance of the
+/// predictions.
+#[derive(Clone, Debug)]
+pub struct SignalKriging {
+    /// `lambda[(r, t)]`: weight of sensor `r` for target `t` (each column sums to 1).
+    pub weights: DMatrix<f64>,
+    /// `S[(t, u)] = Cov(X(t) - lambda_t' W, X(u) - lambda_u' W)`, targets x targets
+    /// (units of the variable, squared).
+    pub error_cov: DMatrix<f64>,
+}
+
+/// Ordinary kriging of the signal `X` from sensor values `W = X(s) + e`,
+/// `e` the nugget (measurement and micro-scale noise, independent between
+/// sensors), at every target, with the joint error covariance of the
+/// predictions (Cressie 1993, *Statistics for Spatial Data*, §3.2.1 on
+/// kriging with measurement error, and §3.4 for the ordinary system).
+///
+/// Convention (the one of [`System`] and `docs/spatial.md`): the sensor
+/// matrix `K` has `c0 + c` on its diagonal and `c rho(d)` between different
+/// sensors; the sensor-target and target-target covariances are `c rho(d)`
+/// without the nugget, also at distance 0 (the signal at a pot is not the
+/// reading of a logger standing there). Weights solve
+/// `[K 1; 1' 0] [lambda_t; nu_t] = [k_t; 1]`, `k_t = c rho(d(s, t))`, and
+/// `S_tu = c rho(d_tu) - lambda_t' k_u - lambda_u' k_t + lambda_t' K lambda_u`.
+/// Read as a posterior, `X(targets) | W ~ N(lambda' W, S)` when the constant
+/// mean has a flat prior (Cressie 1993, §3.4.5).
+///
+/// Cost: one LU of order `n + 1` (n sensors), then O(m n) per target for the
+/// weights and O(m^2 n) for `S` (m targets); `S` holds m^2 numbers.
+pub fn signal_kriging(sensors: &Points, targets: &Points, model: &VariogramModel) -> Result<SignalKriging> {
+    let spec = Spec { method: Method::Ordinary, model: *model, neighbours: None, drift: None };
+    let n = sensors.len();
+    let sys = System::new(sensors, &(0..n).collect::<Vec<_>>(), &spec)?;
+    let lu = sys.lu.as_ref().ok_or_else(|| sys.singular())?;
+    let model = sys.model;
+    let m = targets.len();
+    let mut rhs = DMatrix::<f64>::zeros(n + 1, m);
+    for t in 0..m {
+        for r in 0..n {
+            rhs[(r, t)] = model.cross_covariance(sensors.dist_to(r, targets, t));
+        }
+        rhs[(n, t)] = 1.0;
+    }
+    let sol = lu.solve(&rhs).ok_or_else(|| sys.singular())?;
+    let weights = sol.rows(0, n).into_owned();
+    let k = rhs.rows(0, n).into_owned();
+    let mut kss = DMatrix::<f64>::zeros(n, n);
+    for i in 0..n {
+        for j in 0..n {
+            kss[(i, j)] =
+                if i == j { model.sill() } else { model.cross_covariance(sensors.dist_to(i, sensors, j)) };
+        }
+    }
+    let lk = weights.transpose() * &k; // (t, u) = lambda_t' k_u
+    let lkl = weights.transpose() * (&kss * &weights);
+    let mut error_cov = DMatrix::<f64>::zeros(m, m);
+    for u in 0..m {
+        for t in 0..m {
+            let c = model.cross_covariance(targets.dist_to(t, targets, u));
+            error_cov[(t, u)] = c - lk[(t, u)] - lk[(u, t)] + lkl[(t, u)];
+        }
+    }
+    Ok(SignalKriging { weights, error_cov })
+}
+
 /// Test helpers shared by the spatial tests: the MASS topo data and the
 /// reference fixture.
 #[cfg(test)]
