@@ -243,7 +243,8 @@ impl Imputer {
     /// `G diag(sigma2 λ / (gamma² λ + sigma2)) G'`. Cost O(n³).
     pub fn conditional(&self, p: &TraitParams) -> Result<(Vec<f64>, Mat<f64>)> {
         self.check(p)?;
-        let (m, v): (Vec<f64>, Vec<f64>) = (0..self.n).map(|k| self.shrink(p, k)).map(|(m, v, _)| (m, v)).unzip();
+        let (m, v): (Vec<f64>, Vec<f64>) =
+            (0..self.n).map(|k| self.shrink(p, k)).map(|(m, v, _)| (m, v)).unzip();
         let gd = Mat::from_fn(self.n, self.n, |i, k| self.g[(i, k)] * v[k]);
         let cov = &gd * self.g.transpose();
         Ok((self.to_pots(&m), cov))
@@ -525,7 +526,11 @@ mod tests {
             for j in 0..n {
                 let e = draws.iter().map(|d| (d[i] - m[i]) * (d[j] - m[j])).sum::<f64>() / (nd - 1.0);
                 let tol = 5.0 * ((cov(i, i) * cov(j, j) + cov(i, j).powi(2)) / nd).sqrt();
-                assert!((e - cov(i, j)).abs() < tol, "{what}: cov [{i},{j}]: {e} vs {} (tol {tol})", cov(i, j));
+                assert!(
+                    (e - cov(i, j)).abs() < tol,
+                    "{what}: cov [{i},{j}]: {e} vs {} (tol {tol})",
+                    cov(i, j)
+                );
             }
         }
     }
@@ -540,7 +545,8 @@ mod tests {
         for case in ["independent", "correlated"] {
             let (_, _, imp, theta, c) = example(case);
             let mut rng = ChaCha20Rng::seed_from_u64(20261202);
-            let draws: Vec<Vec<f64>> = (0..100_000).map(|_| imp.draw(Some(&theta), &mut rng).unwrap()).collect();
+            let draws: Vec<Vec<f64>> =
+                (0..100_000).map(|_| imp.draw(Some(&theta), &mut rng).unwrap()).collect();
             let v = matrix(&c["cond_cov"]);
             check_moments(&draws, &floats(&c["cond_mean"]), &|i, j| v[i][j], case);
             let prior: Vec<Vec<f64>> = (0..100_000).map(|_| imp.draw(None, &mut rng).unwrap()).collect();

@@ -594,7 +594,8 @@ pub fn impute_and_pool(
     use crate::spatial::likelihood::cholesky;
     use rand::SeedableRng;
     let name = sv.name.as_str();
-    let bad = |message: String, hint: Option<String>| ModelError::Imputation { driver: name.into(), message, hint };
+    let bad =
+        |message: String, hint: Option<String>| ModelError::Imputation { driver: name.into(), message, hint };
     let ns = sv.values.len();
     if ns < 3 {
         return Err(bad(
@@ -623,11 +624,15 @@ pub fn impute_and_pool(
     let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| lerr("positions", e))?;
     let design = design_for(data, spec, &shape.0)?;
     let plug = fit(&design, data, &dist, shape.1, Method::Reml)?;
-    let c = plug.names.iter().position(|c| c == name).ok_or_else(|| {
-        bad("not in the chosen model".into(), None)
-    })?;
+    let c = plug
+        .names
+        .iter()
+        .position(|c| c == name)
+        .ok_or_else(|| bad("not in the chosen model".into(), None))?;
     let chol_r = match &plug.covariance {
-        Some(cov) => Some(cholesky(&dist, &cov.params).map_err(|e| lerr(&model_name(&shape.0, &shape.1), e))?),
+        Some(cov) => {
+            Some(cholesky(&dist, &cov.params).map_err(|e| lerr(&model_name(&shape.0, &shape.1), e))?)
+        }
         None => None,
     };
     let other: Vec<Vec<f64>> = (0..design.p()).filter(|&k| k != c).map(|k| design.x[k].clone()).collect();
