@@ -561,7 +561,7 @@ fn value_rules(seg: &mut [Row], cols: &mut Columns, q: &QcSettings, flags: &mut 
             }
             !any_data
         };
-        stuck_idx[k] = qc::stuck(cols.times, &values[k], min_ms, skip, moving);
+        stuck_idx[k] = qc::stuck(cols.times, values[k], min_ms, skip, moving);
     }
     for (k, idx) in stuck_idx.iter().enumerate() {
         for &i in idx {

@@ -868,6 +868,7 @@ impl<'a> Parser<'a> {
         // Values.
         let mut values = [f64::NAN; 3];
         let mut flagged = false;
+        #[allow(clippy::needless_range_loop)] // k indexes four parallel arrays
         for k in 0..3 {
             let Some((c, conv)) = self.chan_cols[k] else { continue };
             let cell = trim(rec.cell(c));

@@ -379,7 +379,7 @@ impl Imputer {
         let total = BURN_IN + m.saturating_sub(1) * THIN + 1;
         for it in 0..total {
             let xi = self.draw_rotated(Some(&theta), rng);
-            if it >= BURN_IN && (it - BURN_IN) % THIN == 0 {
+            if it >= BURN_IN && (it - BURN_IN).is_multiple_of(THIN) {
                 draws.push(self.to_pots(&xi));
             }
             theta = self.draw_params(&xi, rng)?;
