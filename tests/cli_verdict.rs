@@ -170,7 +170,7 @@ fn mapped_driver_gets_an_inflated_se() {
     std::fs::write(dir.path().join("out/sensor_indicators.csv"), ind).unwrap();
     let (ok, stdout, stderr) = run(&p);
     assert!(ok, "{stderr}");
-    assert!(stdout.contains("conditional simulations"), "{stdout}");
+    assert!(stdout.contains("imputations of the mapped driver"), "{stdout}");
     let summary: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("out/summary.json")).unwrap()).unwrap();
     let d = &summary["drivers"][0];
