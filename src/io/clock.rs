@@ -48,6 +48,10 @@ pub enum TimeFormat {
 pub struct Pattern {
     text: String,
     fast: Option<Vec<Item>>,
+    /// For a fast pattern whose date and hour fields all come before its
+    /// minute and second fields: the index of the first item after them and
+    /// its byte offset (see [`StampMemo`]).
+    split: Option<(usize, usize)>,
     has_offset: bool,
 }
 
@@ -87,11 +91,9 @@ impl TimeFormat {
             return Err(format!("`{spec}` does not name a date and an hour (e.g. \"%Y-%m-%d %H:%M:%S\")"));
         }
         let has_offset = has(&["%z", "%:z", "%#z", "%::z", "%:::z"]);
-        Ok(TimeFormat::Pattern(Pattern {
-            text: spec.to_string(),
-            fast: if has_offset { None } else { compile_fast(spec) },
-            has_offset,
-        }))
+        let fast = if has_offset { None } else { compile_fast(spec) };
+        let split = fast.as_deref().and_then(split_of);
+        Ok(TimeFormat::Pattern(Pattern { text: spec.to_string(), fast, split, has_offset }))
     }
 
     /// Whether stamps of this format carry their own offset (no zone needed).
@@ -161,6 +163,66 @@ impl TimeFormat {
         }
         self.parse(std::str::from_utf8(cell).ok()?, decimal_comma)
     }
+
+    /// [`TimeFormat::parse_bytes`] that remembers the date-and-hour part of
+    /// the last cell it read in `memo`: a cell with the same part (the next
+    /// reading of the same hour) reads only its minutes and seconds. Same
+    /// results as `parse_bytes`, whatever `memo` holds.
+    #[inline]
+    pub fn parse_bytes_memo(&self, cell: &[u8], decimal_comma: bool, memo: &mut StampMemo) -> Option<Stamp> {
+        let TimeFormat::Pattern(Pattern {
+            fast: Some(items), has_offset: false, split: Some((i, off)), ..
+        }) = self
+        else {
+            return self.parse_bytes(cell, decimal_comma);
+        };
+        let (i, off) = (*i, *off);
+        if memo.valid && cell.len() >= off && cell[..off] == memo.key[..] {
+            let mut f = memo.fields;
+            if read_items(&items[i..], &cell[off..], &mut f).is_some() && f.minute <= 59 && f.second <= 59 {
+                return Some(Stamp::Local(memo.base + i64::from(f.minute * 60 + f.second) * 1000));
+            }
+        } else {
+            let mut f = Fields::default();
+            if read_items(items, cell, &mut f).is_some()
+                && let Some(ms) = f.millis()
+            {
+                memo.key.clear();
+                memo.key.extend_from_slice(&cell[..off]);
+                memo.fields = f;
+                memo.base = ms - i64::from(f.minute * 60 + f.second) * 1000;
+                memo.valid = true;
+                return Some(Stamp::Local(ms));
+            }
+        }
+        self.parse(std::str::from_utf8(cell).ok()?, decimal_comma)
+    }
+}
+
+/// The last date-and-hour part read by [`TimeFormat::parse_bytes_memo`]:
+/// its bytes, its fields and its local milliseconds at minute 0, second 0.
+/// One per reader (a file); start with `StampMemo::default()`.
+#[derive(Debug, Clone, Default)]
+pub struct StampMemo {
+    valid: bool,
+    key: Vec<u8>,
+    fields: Fields,
+    base: i64,
+}
+
+/// Where the minutes and seconds of a fast pattern start: the index of the
+/// first item after every year, month, day and hour field, and its byte
+/// offset; `None` when a date or hour field comes after a minute or second.
+fn split_of(items: &[Item]) -> Option<(usize, usize)> {
+    let is_date_hour =
+        |it: &Item| matches!(it, Item::Num(Field::Year | Field::Month | Field::Day | Field::Hour, _));
+    let last = items.iter().rposition(is_date_hour)?;
+    let head = &items[..=last];
+    if head.iter().any(|it| matches!(it, Item::Num(Field::Minute | Field::Second, _))) {
+        return None;
+    }
+    let off = head.iter().map(|it| if let Item::Num(_, w) = it { *w } else { 1 }).sum();
+    Some((last + 1, off))
 }
 
 fn compile_fast(spec: &str) -> Option<Vec<Item>> {
@@ -198,10 +260,41 @@ fn compile_fast(spec: &str) -> Option<Vec<Item>> {
     Some(items)
 }
 
-/// The byte-level parser for fixed-width patterns. Returns local milliseconds
-/// since 1970-01-01 00:00, or `None` (the caller then asks chrono).
-fn parse_fast(items: &[Item], s: &[u8]) -> Option<i64> {
-    let (mut y, mut mo, mut d, mut h, mut mi, mut se) = (1970i64, 1u32, 1u32, 0u32, 0u32, 0u32);
+/// The fields of a time stamp read so far (defaults: 1970-01-01 00:00:00).
+#[derive(Debug, Clone, Copy)]
+struct Fields {
+    year: i64,
+    month: u32,
+    day: u32,
+    hour: u32,
+    minute: u32,
+    second: u32,
+}
+
+impl Default for Fields {
+    fn default() -> Fields {
+        Fields { year: 1970, month: 1, day: 1, hour: 0, minute: 0, second: 0 }
+    }
+}
+
+impl Fields {
+    /// Local milliseconds since 1970-01-01 00:00, or `None` when a field is
+    /// out of its range (month 13, 31 April, hour 24, ...).
+    fn millis(&self) -> Option<i64> {
+        let Fields { year: y, month: mo, day: d, hour: h, minute: mi, second: se } = *self;
+        if !(1..=12).contains(&mo) || d < 1 || d > days_in_month(y, mo) || h > 23 || mi > 59 || se > 59 {
+            return None;
+        }
+        let days = days_from_civil(y, mo, d);
+        Some(((days * 86_400) + i64::from(h * 3600 + mi * 60 + se)) * 1000)
+    }
+}
+
+/// Read `items` from the whole of `s` into `f`; `None` when `s` does not
+/// match them (a literal differs, a field is not all digits, bytes are left
+/// over or missing).
+#[inline]
+fn read_items(items: &[Item], s: &[u8], f: &mut Fields) -> Option<()> {
     let mut pos = 0;
     for it in items {
         match *it {
@@ -211,7 +304,7 @@ fn parse_fast(items: &[Item], s: &[u8]) -> Option<i64> {
                 }
                 pos += 1;
             }
-            Item::Num(f, w) => {
+            Item::Num(field, w) => {
                 let digits = s.get(pos..pos + w)?;
                 let mut v = 0u32;
                 for &c in digits {
@@ -221,29 +314,26 @@ fn parse_fast(items: &[Item], s: &[u8]) -> Option<i64> {
                     v = v * 10 + u32::from(c - b'0');
                 }
                 pos += w;
-                match f {
-                    Field::Year => y = i64::from(v),
-                    Field::Month => mo = v,
-                    Field::Day => d = v,
-                    Field::Hour => h = v,
-                    Field::Minute => mi = v,
-                    Field::Second => se = v,
+                match field {
+                    Field::Year => f.year = i64::from(v),
+                    Field::Month => f.month = v,
+                    Field::Day => f.day = v,
+                    Field::Hour => f.hour = v,
+                    Field::Minute => f.minute = v,
+                    Field::Second => f.second = v,
                 }
             }
         }
     }
-    if pos != s.len()
-        || !(1..=12).contains(&mo)
-        || d < 1
-        || d > days_in_month(y, mo)
-        || h > 23
-        || mi > 59
-        || se > 59
-    {
-        return None;
-    }
-    let days = days_from_civil(y, mo, d);
-    Some(((days * 86_400) + i64::from(h * 3600 + mi * 60 + se)) * 1000)
+    (pos == s.len()).then_some(())
+}
+
+/// The byte-level parser for fixed-width patterns. Returns local milliseconds
+/// since 1970-01-01 00:00, or `None` (the caller then asks chrono).
+fn parse_fast(items: &[Item], s: &[u8]) -> Option<i64> {
+    let mut f = Fields::default();
+    read_items(items, s, &mut f)?;
+    f.millis()
 }
 
 fn is_leap(y: i64) -> bool {
@@ -436,6 +526,50 @@ mod tests {
             }
             assert_eq!(f.parse_bytes(b"2026-03-01 08:05:\xB0", false), None);
         }
+    }
+
+    /// The memo that skips re-reading a repeated date and hour changes no
+    /// result: a long sequence of cells (consecutive minutes, with damaged
+    /// cells mixed in) read with one memo gives what chrono's own parser
+    /// gives for each cell alone.
+    #[test]
+    fn memo_parse_agrees_with_chrono_cell_by_cell() {
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(11);
+        for pat in
+            ["%Y-%m-%d %H:%M:%S", "%d.%m.%Y %H:%M", "%m/%d/%Y %H:%M:%S", "%H:%M %d.%m.%Y", "%Y%m%d%H%M"]
+        {
+            let f = TimeFormat::compile(pat).unwrap();
+            let mut memo = StampMemo::default();
+            let mut t = NaiveDate::from_ymd_opt(2026, 2, 27).unwrap().and_hms_opt(22, 50, 0).unwrap();
+            let mut hits = 0;
+            for _ in 0..20_000 {
+                t += chrono::Duration::seconds(rng.random_range(0..200));
+                let mut c = t.format(pat).to_string().into_bytes();
+                match rng.random_range(0..20) {
+                    0 => {
+                        let i = rng.random_range(0..c.len());
+                        c[i] = b"x9:0 -"[rng.random_range(0..6)];
+                    }
+                    1 => c.truncate(rng.random_range(0..c.len())),
+                    2 => c.push(b'7'),
+                    3 => c.insert(0, b' '),
+                    _ => {}
+                }
+                let text = String::from_utf8(c.clone()).unwrap();
+                let want = NaiveDateTime::parse_from_str(text.trim(), pat)
+                    .ok()
+                    .filter(|_| !text.trim().is_empty())
+                    .map(|t| Stamp::Local(t.and_utc().timestamp_millis()));
+                let got = f.parse_bytes_memo(&c, false, &mut memo);
+                assert_eq!(got, want, "{pat} {text:?}");
+                hits += usize::from(got.is_some());
+            }
+            assert!(hits > 15_000, "{pat}: {hits}");
+        }
+        // Patterns with the hour after the minutes read without a memo.
+        assert!(split_of(&compile_fast("%H:%M %d.%m.%Y").unwrap()).is_none());
+        assert_eq!(split_of(&compile_fast("%Y-%m-%d %H:%M:%S").unwrap()), Some((7, 13)));
     }
 
     #[test]

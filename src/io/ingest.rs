@@ -16,7 +16,7 @@
 use super::clock::{Resolution, format_utc};
 use super::error::{IoError, Result};
 use super::layout::{load_sensors, parse_local_datetime};
-use super::logs::{FileRead, Flag, LogFormat, Row, Variable, compile_logs, read_file};
+use super::logs::{FileRead, Flag, LogFormat, Row, Variable, compile_logs, read_file_with};
 use super::output::StageWriter;
 use super::qc::{self, QcSettings, Reason};
 use super::study::Study;
@@ -156,10 +156,21 @@ pub fn display_name(study: &Study, path: &Path) -> String {
 /// Run `f` on every job, spread over the cores (each idle thread takes the
 /// next job in order); the results come back in job order.
 fn par_map<J: Send, R: Send>(jobs: Vec<J>, f: impl Fn(J) -> R + Sync) -> Vec<R> {
+    par_map_with(jobs, || (), |_, j| f(j))
+}
+
+/// [`par_map`] where each worker owns a state made by `init` (a reusable
+/// buffer, say) that `f` may use for every job it runs.
+fn par_map_with<J: Send, R: Send, S>(
+    jobs: Vec<J>,
+    init: impl Fn() -> S + Sync,
+    f: impl Fn(&mut S, J) -> R + Sync,
+) -> Vec<R> {
     let n = jobs.len();
     let workers = std::thread::available_parallelism().map(|x| x.get()).unwrap_or(1).min(n).max(1);
     if workers == 1 {
-        return jobs.into_iter().map(f).collect();
+        let mut state = init();
+        return jobs.into_iter().map(|j| f(&mut state, j)).collect();
     }
     let queue = std::sync::Mutex::new(jobs.into_iter().enumerate());
     let mut out: Vec<Option<R>> = (0..n).map(|_| None).collect();
@@ -168,10 +179,11 @@ fn par_map<J: Send, R: Send>(jobs: Vec<J>, f: impl Fn(J) -> R + Sync) -> Vec<R> 
             .map(|_| {
                 s.spawn(|| {
                     let mut done = Vec::new();
+                    let mut state = init();
                     loop {
                         let next = queue.lock().unwrap_or_else(|e| e.into_inner()).next();
                         let Some((i, job)) = next else { break };
-                        done.push((i, f(job)));
+                        done.push((i, f(&mut state, job)));
                     }
                     done
                 })
@@ -186,10 +198,13 @@ fn par_map<J: Send, R: Send>(jobs: Vec<J>, f: impl Fn(J) -> R + Sync) -> Vec<R> 
     out.into_iter().map(|r| r.unwrap_or_else(|| unreachable!("every job ran"))).collect()
 }
 
-/// Read every file of every block, in parallel over files; results in file order.
+/// Read every file of every block, in parallel over files (each worker reuses
+/// one byte buffer); results in file order.
 fn read_all(jobs: &[(&LogFormat, PathBuf)]) -> Result<Vec<FileRead>> {
     let idx: Vec<usize> = (0..jobs.len()).collect();
-    par_map(idx, |i| read_file(jobs[i].0, &jobs[i].1, i as u32)).into_iter().collect()
+    par_map_with(idx, Vec::new, |buf, i| read_file_with(jobs[i].0, &jobs[i].1, i as u32, buf))
+        .into_iter()
+        .collect()
 }
 
 /// A run of consecutive rows of one sensor in a buffer of rows.
@@ -617,7 +632,10 @@ fn find_gaps(cols: &Columns, sensor: &str, factor: f64, period: Period) -> Vec<G
 }
 
 /// The readings table from its columns; `runs` gives the sensor of each
-/// stretch of rows, in order. `NaN` values become nulls.
+/// stretch of rows, in order. `NaN` values become nulls. Each column has one
+/// chunk per run: the sensor column repeats one value per chunk (cheap in
+/// polars' string-view layout), and the other columns are zero-copy slices
+/// of their one buffer, so no column is copied to be concatenated.
 fn readings_frame(
     runs: &[(u32, usize)],
     times: Vec<i64>,
@@ -625,23 +643,33 @@ fn readings_frame(
     sensors: &[String],
 ) -> PolarsResult<DataFrame> {
     let n = times.len();
-    // One repeated value per run (cheap in polars' string-view layout),
-    // concatenated.
     let mut sensor = StringChunked::full("sensor".into(), "", 0);
     for &(s, len) in runs {
         sensor.append(&StringChunked::full("sensor".into(), &sensors[s as usize], len))?;
     }
-    let sensor = sensor.rechunk().into_owned();
     let time = Int64Chunked::from_vec("time".into(), times)
         .into_datetime(TimeUnit::Milliseconds, Some(TimeZone::UTC));
-    let mut cols: Vec<Column> = vec![sensor.into_series().into(), time.into_series().into()];
+    let mut cols: Vec<Column> =
+        vec![sensor.into_series().into(), chunk_by_runs(time.into_series(), runs)?.into()];
     for (ch, v) in Channel::ALL.into_iter().zip(values) {
         let v = Float64Chunked::from_vec(ch.column().into(), v);
         let nan = v.is_nan();
         let v = if nan.any() { v.set(&nan, None)? } else { v };
-        cols.push(v.into_series().into());
+        cols.push(chunk_by_runs(v.into_series(), runs)?.into());
     }
     DataFrame::new(n, cols)
+}
+
+/// `s` as one chunk per run (zero-copy slices).
+fn chunk_by_runs(s: Series, runs: &[(u32, usize)]) -> PolarsResult<Series> {
+    let Some(((_, first), rest)) = runs.split_first() else { return Ok(s) };
+    let mut out = s.slice(0, *first);
+    let mut offset = *first;
+    for &(_, len) in rest {
+        out.append(&s.slice(offset as i64, len))?;
+        offset += len;
+    }
+    Ok(out)
 }
 
 /// Write `readings.parquet`, `qc_flags.csv`, `qc_summary.csv` and `gaps.csv`

@@ -21,7 +21,7 @@
 //! may have skipped either pass) and is flagged `ambiguous_time`, as is a
 //! repeated-hour row with no earlier reading of its sensor.
 
-use super::clock::{LocalClock, Resolution, Stamp, TimeFormat};
+use super::clock::{LocalClock, Resolution, Stamp, StampMemo, TimeFormat};
 use super::error::{IoError, Result, closest};
 use super::qc::Reason;
 use super::study::{LogSection, Study, delimiter_byte};
@@ -404,8 +404,22 @@ impl Failures {
 
 /// Read one export of format `fmt`. `file` is its index in the run.
 pub fn read_file(fmt: &LogFormat, path: &Path, file: u32) -> Result<FileRead> {
-    let bytes = std::fs::read(path).map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
-    read_bytes(fmt, path, file, &bytes)
+    read_file_with(fmt, path, file, &mut Vec::new())
+}
+
+/// [`read_file`] with a byte buffer to read the file into (its contents are
+/// replaced). Reusing one buffer for several files saves allocating and
+/// zeroing fresh memory for each.
+pub fn read_file_with(fmt: &LogFormat, path: &Path, file: u32, buf: &mut Vec<u8>) -> Result<FileRead> {
+    use std::io::Read;
+    let err = |source| IoError::Read { path: path.to_path_buf(), source };
+    let mut f = std::fs::File::open(path).map_err(err)?;
+    buf.clear();
+    if let Ok(m) = f.metadata() {
+        buf.reserve(m.len() as usize);
+    }
+    f.read_to_end(buf).map_err(err)?;
+    read_bytes(fmt, path, file, buf)
 }
 
 /// How the records of an export are split into cells.
@@ -651,6 +665,8 @@ struct Parser<'a> {
     last_utc: Vec<Option<i64>>,
     last_sensor: Option<(Vec<u8>, u32)>,
     clock: LocalClock,
+    /// The last time cell's date and hour (see [`StampMemo`]).
+    memo: StampMemo,
     time_fail: Failures,
     value_fail: [Failures; 3],
     /// Rows in a fall-back hour read as the first pass, per sensor, until
@@ -740,6 +756,7 @@ impl<'a> Parser<'a> {
             last_utc,
             last_sensor: None,
             clock: LocalClock::new(fmt.timezone),
+            memo: StampMemo::default(),
             time_fail: Failures::new(),
             value_fail: [Failures::new(), Failures::new(), Failures::new()],
             pending: Default::default(),
@@ -827,7 +844,7 @@ impl<'a> Parser<'a> {
         // Time.
         let tcell = trim(rec.cell(self.time_col));
         self.time_fail.tried += 1;
-        let utc = match self.fmt.time_format.parse_bytes(tcell, self.fmt.decimal_comma) {
+        let utc = match self.fmt.time_format.parse_bytes_memo(tcell, self.fmt.decimal_comma, &mut self.memo) {
             None => {
                 self.time_fail.fail(line, tcell);
                 self.flag(line, sensor, None, Variable::Time, tcell, Reason::UnparsableTime);

@@ -233,27 +233,27 @@ fn median(v: &mut [f64]) -> f64 {
 /// level step (lamps on, vents open) is never a spike. First and last
 /// readings are not tested. Cost: O(n) plus O(w log w) per candidate.
 pub fn spikes(values: &[f64], window: usize, k: f64, min_jump: f64) -> Vec<usize> {
-    let idx: Vec<usize> = (0..values.len()).filter(|&i| !values[i].is_nan()).collect();
+    let idx = Readings::of(values);
     let mut out = Vec::new();
     let mut buf = Vec::with_capacity(2 * window);
     for j in 1..idx.len().saturating_sub(1) {
-        let x = values[idx[j]];
-        let dp = x - values[idx[j - 1]];
-        let dn = x - values[idx[j + 1]];
+        let x = values[idx.at(j)];
+        let dp = x - values[idx.at(j - 1)];
+        let dn = x - values[idx.at(j + 1)];
         if !(dp.abs() > min_jump && dn.abs() > min_jump && dp.signum() == dn.signum()) {
             continue;
         }
         buf.clear();
         let lo = j.saturating_sub(window);
         let hi = (j + window).min(idx.len() - 1);
-        buf.extend((lo..=hi).filter(|&q| q != j).map(|q| values[idx[q]]));
+        buf.extend((lo..=hi).filter(|&q| q != j).map(|q| values[idx.at(q)]));
         let m = median(&mut buf);
         for b in buf.iter_mut() {
             *b = (*b - m).abs();
         }
         let mad = median(&mut buf);
         if (x - m).abs() > min_jump.max(k * MAD_TO_SD * mad) {
-            out.push(idx[j]);
+            out.push(idx.at(j));
         }
     }
     out
@@ -275,20 +275,55 @@ pub fn stuck(
     if min_ms <= 0 {
         return out;
     }
-    let idx: Vec<usize> = (0..values.len()).filter(|&i| !values[i].is_nan()).collect();
+    let idx = Readings::of(values);
     let mut a = 0;
     while a < idx.len() {
         let mut b = a;
-        while b + 1 < idx.len() && values[idx[b + 1]] == values[idx[a]] {
+        while b + 1 < idx.len() && values[idx.at(b + 1)] == values[idx.at(a)] {
             b += 1;
         }
-        let v = values[idx[a]];
-        if times[idx[b]] - times[idx[a]] > min_ms && skip != Some(v) && moving(idx[a], idx[b]) {
-            out.extend(&idx[a..=b]);
+        let v = values[idx.at(a)];
+        let (first, last) = (idx.at(a), idx.at(b));
+        if times[last] - times[first] > min_ms && skip != Some(v) && moving(first, last) {
+            out.extend((a..=b).map(|q| idx.at(q)));
         }
         a = b + 1;
     }
     out
+}
+
+/// The positions of the readings (non-`NaN` values) of a series: the `j`-th
+/// reading is at `at(j)`. No list is built when every value is a reading
+/// (the usual case), so a long series costs no allocation.
+enum Readings {
+    All(usize),
+    Some(Vec<usize>),
+}
+
+impl Readings {
+    fn of(values: &[f64]) -> Readings {
+        if values.iter().any(|v| v.is_nan()) {
+            Readings::Some((0..values.len()).filter(|&i| !values[i].is_nan()).collect())
+        } else {
+            Readings::All(values.len())
+        }
+    }
+
+    #[inline]
+    fn len(&self) -> usize {
+        match self {
+            Readings::All(n) => *n,
+            Readings::Some(v) => v.len(),
+        }
+    }
+
+    #[inline]
+    fn at(&self, j: usize) -> usize {
+        match self {
+            Readings::All(_) => j,
+            Readings::Some(v) => v[j],
+        }
+    }
 }
 
 #[cfg(test)]
