@@ -95,6 +95,7 @@ struct Outcome {
     /// Pearson correlation and RMSE of the mapped driver against its true per-pot values.
     map_r: f64,
     map_rmse: f64,
+    map_msse: f64,
     /// Standard deviation of the true driver over the pots.
     true_sd: f64,
     seconds: f64,
@@ -187,6 +188,11 @@ fn run_one(truth: &'static str, seed: u64) -> Outcome {
     let stm = pairs.iter().map(|p| (p.0 - mt) * (p.1 - mm)).sum::<f64>();
     let map_r = stm / (stt * smm).sqrt();
     let map_rmse = (pairs.iter().map(|p| (p.1 - p.0).powi(2)).sum::<f64>() / n).sqrt();
+    // Mean squared standardised error of the mapped driver against its truth
+    // (near 1 when the mapping SEs are honest; below 1 when they are too wide).
+    let se = pot_column(&study_dir.join("output/pot_covariates.csv"), &format!("{DRIVER}_se"));
+    let map_msse = truth_values.iter().map(|(p, t)| ((mapped[p] - t) / se[p]).powi(2)).sum::<f64>()
+        / truth_values.len() as f64;
 
     Outcome {
         truth,
@@ -210,6 +216,7 @@ fn run_one(truth: &'static str, seed: u64) -> Outcome {
         },
         map_r,
         map_rmse,
+        map_msse,
         true_sd: (stt / n).sqrt(),
         seconds,
     }
@@ -217,7 +224,7 @@ fn run_one(truth: &'static str, seed: u64) -> Outcome {
 
 fn line(o: &Outcome) -> String {
     format!(
-        "{:<11} seed {:>3}: {:<11} {} chosen `{}`; estimate {:.4} [{:.4}, {:.4}] (true {}) covers {}; SE {:.4}, with mapping {}, pooled {}; mapped driver r {:.3}, RMSE {:.1} h (true SD {:.1} h); {:.1} s",
+        "{:<11} seed {:>3}: {:<11} {} chosen `{}`; estimate {:.4} [{:.4}, {:.4}] (true {}) covers {}; SE {:.4}, with mapping {}, pooled {}; mapped driver r {:.3}, RMSE {:.1} h (true SD {:.1} h), MSSE {:.2}; {:.1} s",
         o.truth,
         o.seed,
         o.verdict,
@@ -237,6 +244,7 @@ fn line(o: &Outcome) -> String {
         o.map_r,
         o.map_rmse,
         o.true_sd,
+        o.map_msse,
         o.seconds
     )
 }
@@ -336,6 +344,7 @@ struct Tally {
     r_min: f64,
     rmse_sum: f64,
     rmse_max: f64,
+    msse_sum: f64,
     seconds: f64,
 }
 
@@ -364,6 +373,7 @@ impl Tally {
             t.r_min = t.r_min.min(o.map_r);
             t.rmse_sum += o.map_rmse;
             t.rmse_max = t.rmse_max.max(o.map_rmse);
+            t.msse_sum += o.map_msse;
         }
         t
     }
@@ -379,16 +389,16 @@ fn load_average() -> String {
 fn print_table(outcomes: &[Outcome], max_seed: u64) -> Vec<(&'static str, Tally)> {
     println!("\nseeds 1..={max_seed}:\n");
     println!(
-        "| truth | right verdicts | right, driver in the chosen model iff it has an effect | wrong: verdict (seed) | CI covers the true effect, chosen model has the driver | CI covers, all seeds (drivers entry) | pooled CI incl. mapping covers | mapped driver r, mean (min) | mapped driver RMSE h, mean (max) | s per run |"
+        "| truth | right verdicts | right, driver in the chosen model iff it has an effect | wrong: verdict (seed) | CI covers the true effect, chosen model has the driver | CI covers, all seeds (drivers entry) | pooled CI incl. mapping covers | mapped driver r, mean (min) | mapped driver RMSE h, mean (max) | mapped driver MSSE, mean | s per run |"
     );
-    println!("|---|---|---|---|---|---|---|---|---|---|");
+    println!("|---|---|---|---|---|---|---|---|---|---|---|");
     let mut out = Vec::new();
     for truth in TRUTHS {
         let these: Vec<&Outcome> =
             outcomes.iter().filter(|o| o.truth == truth && o.seed <= max_seed).collect();
         let t = Tally::of(&these);
         println!(
-            "| `{truth}` | {}/{} | {}/{} | {} | {}/{} | {}/{} | {}/{} | {:.3} ({:.3}) | {:.1} ({:.1}) | {:.1} |",
+            "| `{truth}` | {}/{} | {}/{} | {} | {}/{} | {}/{} | {}/{} | {:.3} ({:.3}) | {:.1} ({:.1}) | {:.2} | {:.1} |",
             t.right,
             t.runs,
             t.right_with_driver,
@@ -404,6 +414,7 @@ fn print_table(outcomes: &[Outcome], max_seed: u64) -> Vec<(&'static str, Tally)
             t.r_min,
             t.rmse_sum / t.runs as f64,
             t.rmse_max,
+            t.msse_sum / t.runs as f64,
             t.seconds / t.runs as f64
         );
         out.push((truth, t));
