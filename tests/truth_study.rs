@@ -266,7 +266,8 @@ const CI_SEEDS: [u64; 2] = [3, 4];
 /// The fast subset (CI): for every truth and each of [`CI_SEEDS`], the
 /// verdict must be right, the mapped driver must match the true one closely
 /// (r > 0.98), the chosen model must contain the driver exactly when the truth
-/// has a driver effect, and then its 95 % CI must cover the true effect.
+/// has a driver effect, and then its 95 % CI and the pooled 95 % interval
+/// over the imputations of the mapped driver must cover the true effect.
 #[test]
 fn truth_verdicts_through_the_pipeline() {
     for truth in TRUTHS {
@@ -287,6 +288,15 @@ fn truth_verdicts_through_the_pipeline() {
                     "truth `{truth}`, seed {seed}: CI [{}, {}] misses {}",
                     o.ci_low,
                     o.ci_high,
+                    o.true_effect
+                );
+                // The pooled interval over imputations of the mapped driver
+                // (given the loggers and the trait) is reported and covers too.
+                assert_eq!(
+                    o.covers_with_mapping(),
+                    Some(true),
+                    "truth `{truth}`, seed {seed}: pooled {:?} vs {}",
+                    o.pooled,
                     o.true_effect
                 );
             }
