@@ -140,6 +140,22 @@ fn run_writes_every_stage_and_the_report() {
     assert_eq!(unit_of("night_cold_hours"), "h");
     assert_eq!(unit_of("mean_dli"), "mol m-2 d-1");
     assert!(html.contains("night_cold_hours (h)"), "driver label with its unit");
+    // The design's count table: levels sorted (as `potclim check` prints
+    // them), each cell the number of pots counted straight from pots.csv.
+    let c = &data["layout"]["counts"];
+    let levels = |k: &str| -> Vec<String> {
+        c[k].as_array().unwrap().iter().map(|v| v.as_str().unwrap().to_string()).collect()
+    };
+    let (rl, cl) = (levels("row_levels"), levels("col_levels"));
+    assert!(rl.is_sorted() && cl.is_sorted(), "{rl:?} {cl:?}");
+    let pots = table(&d.path().join("pots.csv"));
+    let (rf, cf) = (c["row_factor"].as_str().unwrap(), c["col_factor"].as_str().unwrap());
+    for (i, a) in rl.iter().enumerate() {
+        for (j, b) in cl.iter().enumerate() {
+            let n = pots.iter().filter(|r| r[rf] == *a && r[cf] == *b).count();
+            assert_eq!(c["counts"][i][j].as_u64(), Some(n as u64), "{a} x {b}");
+        }
+    }
     assert!(!html.contains("()"), "an empty unit label");
     // No staging folder is left behind.
     for e in std::fs::read_dir(&dir).unwrap() {

@@ -58,6 +58,11 @@ pub fn layout(
                         cl.push(y.to_string());
                     }
                 }
+                // Sorted, as `potclim check` prints its count table, so that a
+                // reader finds a level where expected (the model keeps the
+                // order of first appearance for its reference level).
+                rl.sort();
+                cl.sort();
                 let mut counts = vec![vec![0u64; cl.len()]; rl.len()];
                 for (x, y) in a.iter().zip(&b) {
                     let i = rl.iter().position(|l| l == x).unwrap_or(0);
