@@ -8,8 +8,9 @@ pipeline"), run on kept study folders:
 
 It prints
 1. the verdict recomputed from each run's output/comparison.csv by the rule of docs/verdict.md
-   ("The rule"), at tie margins 2, 3, 4 and 6, with the number of runs where the margin-2 verdict
-   differs from potclim's summary.json;
+   ("The rule"), at tie margins 2, 3, 4 and 6, with the number of runs where the verdict at
+   potclim's default margin (POTCLIM_MARGIN below; 4 since 2026-12-02, 2 before) differs from
+   potclim's summary.json;
 2. the coverage of the 95 % CI of the driver by GLS with the TRUE covariance of the residual
    (truth/effects.json: residual field and noise), on the mapped driver and the design of the study
    (intercept, factors, their interaction), a normal quantile;
@@ -33,6 +34,8 @@ from scipy.optimize import minimize
 TRUTHS = ["covariate", "correlation", "both", "none"]
 DRIVER = "night_cold_hours"
 ORDER = {"none": 0, "covariate": 1, "correlation": 2, "both": 3}
+# potclim's default tie margin (`[verdict].tie_delta`), used by the runs being checked.
+POTCLIM_MARGIN = 4
 
 
 def kind(row):
@@ -132,9 +135,10 @@ def main(root):
             for d in ds:
                 v = decide(list(csv.DictReader(open(d / "output/comparison.csv"))), margin)
                 right += v == t
-                if margin == 2:
+                if margin == POTCLIM_MARGIN:
                     mism += v != json.load(open(d / "output/summary.json"))["verdict"]
-            parts.append(f"{t} {right}/{len(ds)}" + (f" (differs from potclim: {mism})" if margin == 2 else ""))
+            same = margin == POTCLIM_MARGIN
+            parts.append(f"{t} {right}/{len(ds)}" + (f" (differs from potclim: {mism})" if same else ""))
         print(f"   margin {margin}: " + "; ".join(parts))
     print("2. GLS with the true covariance: 95 % CI of the driver covers the true effect")
     for t, ds in by_truth.items():
