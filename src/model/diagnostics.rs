@@ -194,8 +194,8 @@ mod tests {
 #[cfg(test)]
 mod reference_tests {
     use super::*;
-    use crate::model::ols::least_squares;
     use crate::model::testdata::{column, csv, fixture};
+    use crate::spatial::factor::least_squares;
     use approx::assert_relative_eq;
 
     /// Moran's I of OLS residuals on 4-nearest-neighbour binary weights against
@@ -208,7 +208,7 @@ mod reference_tests {
         let (x, y, v) = (num("x"), num("y"), num("value"));
         let n = v.len();
         let cols = vec![vec![1.0; n], x.clone(), y.clone()];
-        let (beta, _, _) = least_squares(&cols, &v).unwrap();
+        let beta = least_squares(&cols, &v).unwrap().beta;
         let e: Vec<f64> = (0..n).map(|i| v[i] - (0..3).map(|j| cols[j][i] * beta[j]).sum::<f64>()).collect();
         let fx = fixture("model_moran.json");
         let nb = knn(&x, &y, 4).unwrap();

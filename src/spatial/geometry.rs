@@ -9,6 +9,14 @@ use std::path::PathBuf;
 /// in metres from each pot to one `[[openings]]` entry ([`distances_to_opening`]).
 pub const DISTANCE_PREFIX: &str = "distance_";
 
+/// The crate's one distance: Euclidean, in metres, between `(ax, ay)` and
+/// `(bx, by)`, computed with `hypot` (no overflow or underflow of the
+/// squares). O(1).
+#[inline]
+pub fn distance(ax: f64, ay: f64, bx: f64, by: f64) -> f64 {
+    (ax - bx).hypot(ay - by)
+}
+
 /// Two positions closer than this (metres) count as the same position.
 pub const DUPLICATE_TOLERANCE: f64 = 1e-6;
 
@@ -96,7 +104,7 @@ impl Points {
     /// Distance between point `i` of `self` and point `j` of `other`.
     #[inline]
     pub fn dist_to(&self, i: usize, other: &Points, j: usize) -> f64 {
-        (self.x[i] - other.x[j]).hypot(self.y[i] - other.y[j])
+        distance(self.x[i], self.y[i], other.x[j], other.y[j])
     }
 
     /// The subset at `idx`, in that order.
