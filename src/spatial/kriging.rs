@@ -19,12 +19,10 @@
 use super::covariance::Kernel;
 use super::error::{Result, SpatialError};
 use super::factor::{Bordered, Cholesky};
-use super::geometry::Points;
+use super::geometry::{PointTree, Points};
 use super::variogram::VariogramModel;
 use faer::Mat;
-use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use nalgebra::{DMatrix, DVector};
-use std::num::NonZeroUsize;
 
 /// A mapping method.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -454,18 +452,13 @@ fn solve_stacked(sys: &Bordered, rhs: &DMatrix<f64>) -> DMatrix<f64> {
 /// direct scan for small ones).
 pub struct Neighbours<'a> {
     pts: &'a Points,
-    tree: Option<ImmutableKdTree<f64, 2>>,
+    tree: Option<PointTree>,
 }
 
 impl<'a> Neighbours<'a> {
     /// Index `pts`.
     pub fn new(pts: &'a Points) -> Neighbours<'a> {
-        let tree = if pts.len() > 32 {
-            let entries: Vec<[f64; 2]> = (0..pts.len()).map(|i| [pts.x[i], pts.y[i]]).collect();
-            ImmutableKdTree::new_from_slice(&entries).ok()
-        } else {
-            None
-        };
+        let tree = if pts.len() > 32 { PointTree::new(&pts.x, &pts.y) } else { None };
         Neighbours { pts, tree }
     }
 
@@ -474,13 +467,7 @@ impl<'a> Neighbours<'a> {
     pub fn nearest(&self, x: f64, y: f64, k: usize) -> Vec<(usize, f64)> {
         let k = k.clamp(1, self.pts.len().max(1));
         let mut out: Vec<(usize, f64)> = match &self.tree {
-            Some(tree) => tree
-                .query(&[x, y])
-                .nearest_n::<SquaredEuclidean<f64>>(NonZeroUsize::new(k).expect("k >= 1"))
-                .execute()
-                .into_iter()
-                .map(|r| (r.item as usize, r.distance.sqrt()))
-                .collect(),
+            Some(tree) => tree.nearest(x, y, k).into_iter().map(|(i, d2)| (i, d2.sqrt())).collect(),
             None => (0..self.pts.len())
                 .map(|i| (i, super::geometry::distance(self.pts.x[i], self.pts.y[i], x, y)))
                 .collect(),

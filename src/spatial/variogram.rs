@@ -9,9 +9,8 @@
 
 use super::correlation::Family;
 use super::error::{Result, SpatialError};
-use super::geometry::Points;
+use super::geometry::{PointTree, Points};
 use super::optimise::{Budget, Simplex, Stop, nelder_mead_restarted};
-use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use nalgebra::DMatrix;
 
 /// The estimator of the semivariance in a lag bin.
@@ -170,19 +169,15 @@ pub fn pairs_within(points: &Points, max_lag: f64) -> Vec<(u32, u32, f64)> {
     if n < 2 {
         return Vec::new();
     }
-    let entries: Vec<[f64; 2]> = (0..n).map(|i| [points.x[i], points.y[i]]).collect();
-    let tree: ImmutableKdTree<f64, 2> = match ImmutableKdTree::new_from_slice(&entries) {
-        Ok(t) => t,
-        Err(_) => return brute_pairs(points, max_lag),
+    let Some(tree) = PointTree::new(&points.x, &points.y) else {
+        return brute_pairs(points, max_lag);
     };
     // A hair of slack on the squared radius so that a pair exactly at the
     // maximum lag is found; the exact test below decides.
     let r2 = max_lag * max_lag * (1.0 + 1e-12);
     let mut out = Vec::new();
-    for (i, p) in entries.iter().enumerate() {
-        let found = tree.query(p).within::<SquaredEuclidean<f64>>(r2).unsorted().execute();
-        for item in found {
-            let j = item.item as usize;
+    for i in 0..n {
+        for j in tree.within(points.x[i], points.y[i], r2) {
             if j > i {
                 let d = points.dist_to(i, points, j);
                 if d > 0.0 && d <= max_lag {
