@@ -11,7 +11,7 @@
 
 use potclim::spatial::correlation::Family;
 use potclim::spatial::likelihood::{
-    CovParams, Distances, Method, SearchOptions, cholesky, maximise, profiled,
+    CovParams, Distances, LikelihoodKind, SearchOptions, cholesky, maximise, profiled,
 };
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -84,13 +84,13 @@ fn main() {
         let reps = if n >= 4000 { 3 } else { 5 };
         let mut t_eval = Vec::new();
         let mut t_fill_chol = Vec::new();
-        let _ = profiled(&dist, &p, &cols, &z, Method::Reml).unwrap();
+        let _ = profiled(&dist, &p, &cols, &z, LikelihoodKind::Reml).unwrap();
         for _ in 0..reps {
             let t = Instant::now();
             let _l = cholesky(&dist, &p).unwrap();
             t_fill_chol.push(t.elapsed().as_secs_f64());
             let t = Instant::now();
-            let r = profiled(&dist, &p, &cols, &z, Method::Reml).unwrap();
+            let r = profiled(&dist, &p, &cols, &z, LikelihoodKind::Reml).unwrap();
             t_eval.push(t.elapsed().as_secs_f64());
             std::hint::black_box(r.loglik);
         }
@@ -141,9 +141,15 @@ fn main() {
         [(Family::Exponential, true), (Family::Exponential, false), (Family::Spherical, true)]
     {
         let t = Instant::now();
-        let m =
-            maximise(&dist, family, &cols, &z, Method::Reml, &SearchOptions { nugget, ..Default::default() })
-                .unwrap();
+        let m = maximise(
+            &dist,
+            family,
+            &cols,
+            &z,
+            LikelihoodKind::Reml,
+            &SearchOptions { nugget, ..Default::default() },
+        )
+        .unwrap();
         println!(
             "whole REML fit, {family}{} at n = {n}: {} likelihood evaluations, {:.2} s, converged {}, range {:.4}, nugget share {:.4}, loglik {:.4}",
             if nugget { "+nugget" } else { "" },

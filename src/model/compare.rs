@@ -11,6 +11,7 @@
 //!
 //! The decision rule is documented for users in `docs/verdict.md`.
 
+use crate::spatial::likelihood::LikelihoodKind;
 use serde::Serialize;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
@@ -50,15 +51,27 @@ impl Explanation {
     }
 }
 
-/// Estimation method of a fit.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
-pub enum Method {
-    /// Maximum likelihood.
-    #[serde(rename = "ML")]
-    Ml,
-    /// Restricted (residual) maximum likelihood.
-    #[serde(rename = "REML")]
-    Reml,
+/// Information criteria of a fit with maximised log-likelihood `l`, `k`
+/// estimated parameters and `n` observations: `AIC = -2 l + 2k` (Akaike
+/// 1974), `BIC = -2 l + k ln n` (Schwarz 1978), `AICc = AIC + 2k(k+1)/(n-k-1)`
+/// (Hurvich & Tsai 1989; `None` when `n - k - 1 <= 0`). The one place they
+/// are computed.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Criteria {
+    /// AIC.
+    pub aic: f64,
+    /// BIC.
+    pub bic: f64,
+    /// AICc.
+    pub aicc: Option<f64>,
+}
+
+/// [`Criteria`] of `(loglik, k, n)`.
+pub fn information_criteria(loglik: f64, k: usize, n: usize) -> Criteria {
+    let aic = -2.0 * loglik + 2.0 * k as f64;
+    let bic = -2.0 * loglik + k as f64 * (n as f64).ln();
+    let aicc = if n > k + 1 { Some(aic + 2.0 * (k * (k + 1)) as f64 / (n - k - 1) as f64) } else { None };
+    Criteria { aic, bic, aicc }
 }
 
 /// One ML fit entering the comparison.
@@ -122,7 +135,7 @@ impl Candidate {
     /// Build a candidate from an ML fit. A REML fit is refused.
     pub fn new(
         name: impl Into<String>,
-        method: Method,
+        method: LikelihoodKind,
         shape: Shape,
         loglik: f64,
         n_params: usize,
@@ -130,7 +143,7 @@ impl Candidate {
     ) -> Result<Candidate, CompareError> {
         let name = name.into();
         let Shape { drivers, correlation, nugget } = shape;
-        if method != Method::Ml {
+        if method != LikelihoodKind::Ml {
             return Err(CompareError::NotMl(name));
         }
         if !loglik.is_finite() {
@@ -139,20 +152,24 @@ impl Candidate {
         Ok(Candidate { name, drivers, correlation, nugget, loglik, n_params, n_obs })
     }
 
+    /// Its information criteria ([`information_criteria`]).
+    pub fn criteria(&self) -> Criteria {
+        information_criteria(self.loglik, self.n_params, self.n_obs)
+    }
+
     /// AIC = -2 l + 2 k (Akaike 1974).
     pub fn aic(&self) -> f64 {
-        -2.0 * self.loglik + 2.0 * self.n_params as f64
+        self.criteria().aic
     }
 
     /// BIC = -2 l + k ln n (Schwarz 1978).
     pub fn bic(&self) -> f64 {
-        -2.0 * self.loglik + self.n_params as f64 * (self.n_obs as f64).ln()
+        self.criteria().bic
     }
 
     /// AICc = AIC + 2k(k+1)/(n-k-1) (Hurvich & Tsai 1989); `None` when n - k - 1 <= 0.
     pub fn aicc(&self) -> Option<f64> {
-        let (k, n) = (self.n_params as f64, self.n_obs as f64);
-        (n - k - 1.0 > 0.0).then(|| self.aic() + 2.0 * k * (k + 1.0) / (n - k - 1.0))
+        self.criteria().aicc
     }
 
     /// The explanation this model stands for.
@@ -391,7 +408,7 @@ mod tests {
             correlation: corr.map(str::to_string),
             nugget: false,
         };
-        Candidate::new(name, Method::Ml, shape, ll, k, 100).unwrap()
+        Candidate::new(name, LikelihoodKind::Ml, shape, ll, k, 100).unwrap()
     }
 
     /// ../shared/REFERENCE.md §5.4 computed table: naive and mixture p.
@@ -412,10 +429,10 @@ mod tests {
     /// with the same l and k = 4: AIC 12.5034, AICc 52.5034, BIC 11.6705.
     #[test]
     fn information_criteria_match_reference() {
-        let ols = Candidate::new("ols", Method::Ml, Shape::default(), -2.2517, 3, 6).unwrap();
+        let ols = Candidate::new("ols", LikelihoodKind::Ml, Shape::default(), -2.2517, 3, 6).unwrap();
         let sp = Candidate::new(
             "sp",
-            Method::Ml,
+            LikelihoodKind::Ml,
             Shape { correlation: Some("exponential".into()), ..Shape::default() },
             -2.2517,
             4,
@@ -428,13 +445,13 @@ mod tests {
         assert_abs_diff_eq!(sp.aic(), 12.5034, epsilon = 1e-4);
         assert_abs_diff_eq!(sp.aicc().unwrap(), 52.5034, epsilon = 1e-4);
         assert_abs_diff_eq!(sp.bic(), 11.6705, epsilon = 1e-4);
-        let tiny = Candidate::new("t", Method::Ml, Shape::default(), 0.0, 5, 6).unwrap();
+        let tiny = Candidate::new("t", LikelihoodKind::Ml, Shape::default(), 0.0, 5, 6).unwrap();
         assert!(tiny.aicc().is_none());
     }
 
     #[test]
     fn reml_fits_cannot_enter_a_comparison() {
-        let e = Candidate::new("m", Method::Reml, Shape::default(), -1.0, 2, 10).unwrap_err();
+        let e = Candidate::new("m", LikelihoodKind::Reml, Shape::default(), -1.0, 2, 10).unwrap_err();
         assert_eq!(e, CompareError::NotMl("m".into()));
     }
 

@@ -84,20 +84,6 @@ impl Design {
         self.x.len()
     }
 
-    /// A fingerprint of the treatment-coded `X` (bits of every entry), used to
-    /// refuse REML comparisons across different fixed effects.
-    pub fn fingerprint(&self) -> u64 {
-        use std::hash::{Hash, Hasher};
-        let mut h = std::collections::hash_map::DefaultHasher::new();
-        self.n.hash(&mut h);
-        for c in &self.x {
-            for v in c {
-                v.to_bits().hash(&mut h);
-            }
-        }
-        h.finish()
-    }
-
     /// Build the design that `spec` names from `data`.
     pub fn build(data: &ModelData, spec: &DesignSpec) -> Result<Design> {
         let n = data.response.len();
@@ -297,29 +283,10 @@ fn check_cells(data: &ModelData, idx: &[usize]) -> Result<()> {
 }
 
 /// Indices of columns that are (numerically) linear combinations of the
-/// columns before them: modified Gram–Schmidt, a column is aliased when less
-/// than `1e-9` of its norm remains after projection (Björck 1996, *Numerical
-/// Methods for Least Squares Problems*, §2.4).
+/// columns before them, with the crate's one rank tolerance
+/// ([`crate::spatial::factor::aliased_columns`]).
 pub fn aliased_columns(x: &[Vec<f64>]) -> Vec<usize> {
-    let mut basis: Vec<Vec<f64>> = Vec::new();
-    let mut out = Vec::new();
-    for (j, c) in x.iter().enumerate() {
-        let norm0 = c.iter().map(|v| v * v).sum::<f64>().sqrt();
-        let mut v = c.clone();
-        for q in &basis {
-            let d: f64 = v.iter().zip(q).map(|(a, b)| a * b).sum();
-            for (vi, qi) in v.iter_mut().zip(q) {
-                *vi -= d * qi;
-            }
-        }
-        let norm = v.iter().map(|a| a * a).sum::<f64>().sqrt();
-        if norm0 == 0.0 || norm <= 1e-9 * norm0 {
-            out.push(j);
-        } else {
-            basis.push(v.into_iter().map(|a| a / norm).collect());
-        }
-    }
-    out
+    crate::spatial::factor::aliased_columns(x)
 }
 
 /// The factor-by-factor count table: for each pair of factors (and for a

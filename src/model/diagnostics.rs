@@ -21,9 +21,8 @@
 //!
 //! Cost: a k-d tree query per pot (`O(n log n)`) and `O(n k p + n p^2)` for the moments.
 
-use kiddo::{ImmutableKdTree, SquaredEuclidean};
+use crate::spatial::geometry::PointTree;
 use statrs::distribution::{ContinuousCDF, Normal};
-use std::num::NonZero;
 
 /// Neighbours per pot for Moran's I (common practice for regular bench layouts: the 4 adjacent pots).
 pub const MORAN_NEIGHBOURS: usize = 4;
@@ -35,16 +34,12 @@ pub fn knn(x: &[f64], y: &[f64], k: usize) -> Option<Vec<Vec<usize>>> {
     if k == 0 || n <= k {
         return None;
     }
-    let pts: Vec<[f64; 2]> = x.iter().zip(y).map(|(&a, &b)| [a, b]).collect();
-    let tree: ImmutableKdTree<f64, 2> = ImmutableKdTree::new_from_slice(&pts).ok()?;
+    let tree = PointTree::new(x, y)?;
     let mut out = Vec::with_capacity(n);
-    for (i, p) in pts.iter().enumerate() {
-        let found = tree
-            .query(p)
-            .nearest_n::<SquaredEuclidean<f64>>(NonZero::new(k + 1).expect("k + 1 > 0"))
-            .execute();
+    for i in 0..n {
+        let found = tree.nearest(x[i], y[i], k + 1);
         let mut nb: Vec<(f64, usize)> =
-            found.iter().map(|r| (r.distance, r.item as usize)).filter(|&(_, j)| j != i).collect();
+            found.iter().map(|&(j, d2)| (d2, j)).filter(|&(_, j)| j != i).collect();
         nb.sort_by(|a, b| a.0.total_cmp(&b.0));
         nb.truncate(k);
         out.push(nb.into_iter().map(|(_, j)| j).collect());
@@ -194,8 +189,8 @@ mod tests {
 #[cfg(test)]
 mod reference_tests {
     use super::*;
-    use crate::model::ols::least_squares;
     use crate::model::testdata::{column, csv, fixture};
+    use crate::spatial::factor::least_squares;
     use approx::assert_relative_eq;
 
     /// Moran's I of OLS residuals on 4-nearest-neighbour binary weights against
@@ -208,7 +203,7 @@ mod reference_tests {
         let (x, y, v) = (num("x"), num("y"), num("value"));
         let n = v.len();
         let cols = vec![vec![1.0; n], x.clone(), y.clone()];
-        let (beta, _, _) = least_squares(&cols, &v).unwrap();
+        let beta = least_squares(&cols, &v).unwrap().beta;
         let e: Vec<f64> = (0..n).map(|i| v[i] - (0..3).map(|j| cols[j][i] * beta[j]).sum::<f64>()).collect();
         let fx = fixture("model_moran.json");
         let nb = knn(&x, &y, 4).unwrap();

@@ -42,6 +42,19 @@ pub enum ModelError {
         /// How to fix it.
         hint: Option<String>,
     },
+    /// A least-squares fit met a column aliased with the columns before it
+    /// (rank tolerance [`crate::spatial::factor::RANK_TOLERANCE`]).
+    #[error(
+        "{what}: column `{column}` is a linear combination of the columns before it ({remainder:e} of its length remains after projection)"
+    )]
+    Rank {
+        /// The fit concerned.
+        what: String,
+        /// The aliased column.
+        column: String,
+        /// `|r_jj| / ||x_j||` of that column.
+        remainder: f64,
+    },
     /// Fits that must not be compared were offered for comparison.
     #[error("cannot compare these fits: {0}")]
     Comparison(String),

@@ -1,5 +1,5 @@
 //! Fitted trait models with independent or spatially correlated errors, by ML
-//! or REML, and the only way to compare them ([`Comparison`]).
+//! or REML (the comparison of ML fits is [`crate::model::compare`]).
 //!
 //! A [`Fit`] holds the GLS estimates at the maximised covariance parameters
 //! (see [`crate::spatial::likelihood`] for the likelihoods and their
@@ -18,11 +18,13 @@
 //!   `AIC = -2 l + 2k`, `BIC = -2 l + k ln n`, `AICc = AIC + 2k(k+1)/(n-k-1)`
 //!   (Akaike 1974; Schwarz 1978; Hurvich & Tsai 1989).
 
+use super::compare::{Criteria, information_criteria};
 use super::design::Design;
 use super::error::{ModelError, Result};
-use super::ols::{f_p, least_squares, t_p};
+use super::ols::{f_p, fit_least_squares, t_p};
 use crate::spatial::correlation::Family;
-use crate::spatial::likelihood::{self, CovParams, Distances, Method, Profiled, SearchOptions};
+use crate::spatial::factor::{LeastSquares, small_spd};
+use crate::spatial::likelihood::{self, CovParams, Distances, LikelihoodKind, Profiled, SearchOptions};
 
 /// The residual covariance of a fit.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -122,7 +124,7 @@ pub struct Search {
 #[derive(Clone, Debug)]
 pub struct Fit {
     /// ML or REML.
-    pub method: Method,
+    pub method: LikelihoodKind,
     /// The residual covariance.
     pub errors: Errors,
     /// Column names of `X` (treatment coding).
@@ -168,18 +170,12 @@ pub struct Fit {
     pub whitened_x: Vec<Vec<f64>>,
     /// Number of pots.
     pub n: usize,
-    fingerprint: u64,
 }
 
 impl Fit {
     /// True when the fit converged (always for independent errors).
     pub fn converged(&self) -> bool {
         self.search.as_ref().is_none_or(|s| s.converged)
-    }
-
-    /// Whether two fits have the identical fixed-effect design matrix.
-    pub fn same_fixed_effects(&self, other: &Fit) -> bool {
-        self.fingerprint == other.fingerprint && self.names == other.names
     }
 
     /// Correlation at distance `d` metres (1 at 0 for independent errors, 0 elsewhere);
@@ -198,13 +194,6 @@ impl Fit {
     }
 }
 
-fn criteria(loglik: f64, k: usize, n: usize) -> (f64, f64, Option<f64>) {
-    let aic = -2.0 * loglik + 2.0 * k as f64;
-    let bic = -2.0 * loglik + k as f64 * (n as f64).ln();
-    let aicc = if n > k + 1 { Some(aic + 2.0 * (k * (k + 1)) as f64 / (n - k - 1) as f64) } else { None };
-    (aic, bic, aicc)
-}
-
 fn wald_tests(design: &Design, beta_sum: &[f64], inv_sum: &[f64], s2: f64, df_resid: usize) -> Vec<WaldTest> {
     let p = design.p();
     let mut out = Vec::new();
@@ -213,7 +202,7 @@ fn wald_tests(design: &Design, beta_sum: &[f64], inv_sum: &[f64], s2: f64, df_re
         let m = c.len();
         let sub: Vec<f64> = c.iter().flat_map(|&i| c.iter().map(move |&j| s2 * inv_sum[i * p + j])).collect();
         let b: Vec<f64> = c.iter().map(|&i| beta_sum[i]).collect();
-        let Some((subinv, _)) = likelihood::spd_inverse(&sub, m) else {
+        let Some((subinv, _)) = small_spd(&sub, m) else {
             continue;
         };
         let quad: f64 = (0..m).map(|i| (0..m).map(|j| b[i] * subinv[i * m + j] * b[j]).sum::<f64>()).sum();
@@ -234,7 +223,7 @@ fn wald_tests(design: &Design, beta_sum: &[f64], inv_sum: &[f64], s2: f64, df_re
 fn assemble(
     design: &Design,
     y: &[f64],
-    method: Method,
+    method: LikelihoodKind,
     errors: Errors,
     prof: &Profiled,
     prof_sum: (&[f64], &[f64]),
@@ -255,7 +244,7 @@ fn assemble(
     let sd = prof.sigma2.sqrt();
     let normalised = prof.whitened.iter().map(|w| w / sd).collect();
     let k = p + 1 + errors.n_cov_params();
-    let (aic, bic, aicc) = criteria(prof.loglik, k, n);
+    let Criteria { aic, bic, aicc } = information_criteria(prof.loglik, k, n);
     let covariance = match errors {
         Errors::Independent => None,
         Errors::Correlated { family, .. } => Some(Covariance {
@@ -289,32 +278,27 @@ fn assemble(
         normalised,
         whitened_x,
         n,
-        fingerprint: design.fingerprint(),
     }
 }
 
 /// Fit with independent errors by ML or REML (closed form: `V = I`).
-pub fn fit_independent(design: &Design, y: &[f64], method: Method) -> Result<Fit> {
+pub fn fit_independent(design: &Design, y: &[f64], method: LikelihoodKind) -> Result<Fit> {
     let n = y.len();
     let p = design.p();
-    let (beta, rss, inv) = least_squares(&design.x, y).ok_or_else(|| ModelError::Likelihood {
-        model: "independent".into(),
-        source: likelihood::LikelihoodError::SingularDesign,
-        hint: None,
-    })?;
-    let (beta_s, _, inv_s) = least_squares(&design.x_sum, y).expect("same column space");
+    let LeastSquares { beta, rss, xtx_inv: inv, logdet_xtx } =
+        fit_least_squares("independent errors", &design.x, &design.names, y)?;
+    let LeastSquares { beta: beta_s, xtx_inv: inv_s, .. } =
+        fit_least_squares("independent errors (sum-to-zero coding)", &design.x_sum, &design.names, y)?;
     let ln2pi = (2.0 * std::f64::consts::PI).ln();
     let (loglik, sigma2, logdet_xtx) = match method {
-        Method::Ml => {
+        LikelihoodKind::Ml => {
             let s2 = rss / n as f64;
             (-(n as f64) / 2.0 * (ln2pi + 1.0 + s2.ln()), s2, 0.0)
         }
-        Method::Reml => {
+        LikelihoodKind::Reml => {
             let m = (n - p) as f64;
             let s2 = rss / m;
-            let (_, ld) = likelihood::spd_inverse(&inv, p).expect("positive definite");
-            // ln|X'X| = -ln|(X'X)^-1|
-            (-m / 2.0 * (ln2pi + 1.0 + s2.ln()) + 0.5 * ld, s2, -ld)
+            (-m / 2.0 * (ln2pi + 1.0 + s2.ln()) - 0.5 * logdet_xtx, s2, logdet_xtx)
         }
     };
     let fitted: Vec<f64> = (0..n).map(|i| (0..p).map(|j| design.x[j][i] * beta[j]).sum()).collect();
@@ -360,7 +344,7 @@ pub fn fit_correlated(
     pots: &[String],
     family: Family,
     nugget: bool,
-    method: Method,
+    method: LikelihoodKind,
 ) -> Result<Fit> {
     let lerr =
         |source, hint: Option<String>| ModelError::Likelihood { model: model.to_string(), source, hint };
@@ -410,104 +394,6 @@ pub fn fit_correlated(
     ))
 }
 
-/// A set of fits whose likelihoods may be compared: all by ML, or all by
-/// REML with the identical fixed-effect design (REML likelihoods of
-/// different `X` are densities of different data and cannot be compared;
-/// REFERENCE: Welham & Thompson 1997; Verbyla 1990). The only constructor
-/// checks this, so a wrong comparison cannot be built.
-#[derive(Debug)]
-pub struct Comparison<'a> {
-    fits: Vec<&'a Fit>,
-}
-
-/// One row of a [`Comparison`].
-#[derive(Clone, Debug, PartialEq)]
-pub struct ComparisonRow {
-    /// Index into the fits given.
-    pub index: usize,
-    /// Log-likelihood.
-    pub loglik: f64,
-    /// Parameters counted.
-    pub n_params: usize,
-    /// AIC.
-    pub aic: f64,
-    /// BIC.
-    pub bic: f64,
-    /// AIC minus the smallest AIC.
-    pub delta_aic: f64,
-    /// Akaike weight `exp(-delta/2) / sum exp(-delta/2)` (Burnham & Anderson 2002, §2.9).
-    pub weight: f64,
-}
-
-impl<'a> Comparison<'a> {
-    /// Check that `fits` may be compared: same pots, and either all ML, or
-    /// all REML with identical `X`.
-    pub fn new(fits: &[&'a Fit]) -> Result<Comparison<'a>> {
-        let Some(first) = fits.first() else {
-            return Err(ModelError::Comparison("no fits given".into()));
-        };
-        for f in fits {
-            if f.n != first.n {
-                return Err(ModelError::Comparison(format!(
-                    "fits on different pots ({} and {})",
-                    first.n, f.n
-                )));
-            }
-            if f.method != first.method {
-                return Err(ModelError::Comparison("ML and REML likelihoods are not comparable".into()));
-            }
-            if f.method == Method::Reml && !f.same_fixed_effects(first) {
-                return Err(ModelError::Comparison(
-                    "REML likelihoods of models with different fixed effects are not comparable; refit by ML"
-                        .into(),
-                ));
-            }
-        }
-        Ok(Comparison { fits: fits.to_vec() })
-    }
-
-    /// The fits.
-    pub fn fits(&self) -> &[&'a Fit] {
-        &self.fits
-    }
-
-    /// Information-criterion table in the order given.
-    pub fn table(&self) -> Vec<ComparisonRow> {
-        let best = self.fits.iter().map(|f| f.aic).fold(f64::INFINITY, f64::min);
-        let total: f64 = self.fits.iter().map(|f| (-(f.aic - best) / 2.0).exp()).sum();
-        self.fits
-            .iter()
-            .enumerate()
-            .map(|(index, f)| ComparisonRow {
-                index,
-                loglik: f.loglik,
-                n_params: f.n_params,
-                aic: f.aic,
-                bic: f.bic,
-                delta_aic: f.aic - best,
-                weight: (-(f.aic - best) / 2.0).exp() / total,
-            })
-            .collect()
-    }
-
-    /// The likelihood-ratio statistic `2 (l_alt - l_null)` and its df
-    /// (difference in parameter counts) for fits `null` and `alt` of this
-    /// comparison; the caller chooses the reference distribution (a boundary
-    /// parameter needs a chi-square mixture, Self & Liang 1987).
-    pub fn lrt(&self, null: usize, alt: usize) -> Result<(f64, usize)> {
-        let (a, b) = (
-            self.fits.get(null).ok_or_else(|| ModelError::Comparison("no such fit".into()))?,
-            self.fits.get(alt).ok_or_else(|| ModelError::Comparison("no such fit".into()))?,
-        );
-        if b.n_params <= a.n_params {
-            return Err(ModelError::Comparison(
-                "the alternative must have more parameters than the null".into(),
-            ));
-        }
-        Ok((2.0 * (b.loglik - a.loglik), b.n_params - a.n_params))
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -554,7 +440,7 @@ mod tests {
             .filter(|f| f["dataset"] == "sim_gls")
         {
             let family = Family::parse(want["family"].as_str().unwrap()).unwrap();
-            let method = if want["method"] == "ML" { Method::Ml } else { Method::Reml };
+            let method = if want["method"] == "ML" { LikelihoodKind::Ml } else { LikelihoodKind::Reml };
             let f = fit_correlated("t", &design, &data.response, &dist, &data.pots, family, true, method)
                 .unwrap();
             check_fit(&f, want);
@@ -580,7 +466,7 @@ mod tests {
             let design = Design::build(&data, &DesignSpec { drivers, ..Default::default() }).unwrap();
             let dist = Distances::from_coords(&data.x, &data.y).unwrap();
             let family = Family::parse(want["family"].as_str().unwrap()).unwrap();
-            let method = if want["method"] == "ML" { Method::Ml } else { Method::Reml };
+            let method = if want["method"] == "ML" { LikelihoodKind::Ml } else { LikelihoodKind::Reml };
             let nugget = want["nugget"].as_bool().unwrap();
             let f = fit_correlated("t", &design, &data.response, &dist, &data.pots, family, nugget, method)
                 .unwrap();
@@ -599,7 +485,7 @@ mod tests {
             ..Default::default()
         };
         let design = Design::build(&data, &spec).unwrap();
-        let f = fit_independent(&design, &data.response, Method::Ml).unwrap();
+        let f = fit_independent(&design, &data.response, LikelihoodKind::Ml).unwrap();
         assert_relative_eq!(
             f.loglik,
             fixture("model_ols.json")["warpbreaks"]["llf"].as_f64().unwrap(),
@@ -608,39 +494,5 @@ mod tests {
         assert_eq!(f.n_params, 7);
         // statsmodels counts only the 6 mean parameters in its AIC; ours adds sigma2: +2
         assert_relative_eq!(f.aic, -2.0 * f.loglik + 14.0, max_relative = 1e-14);
-    }
-
-    /// REML fits with different fixed effects cannot be put into one comparison;
-    /// ML fits can; REML fits with the same X can.
-    #[test]
-    fn reml_comparison_across_fixed_effects_is_refused() {
-        let data = model_data("topo.csv", "z", &[], &["x", "y"], Some(("x", "y")), &[]);
-        let d1 = Design::build(&data, &DesignSpec::default()).unwrap();
-        let d2 =
-            Design::build(&data, &DesignSpec { drivers: vec!["x".into()], ..Default::default() }).unwrap();
-        let dist = Distances::from_coords(&data.x, &data.y).unwrap();
-        let r1 = fit_independent(&d1, &data.response, Method::Reml).unwrap();
-        let r2 = fit_independent(&d2, &data.response, Method::Reml).unwrap();
-        assert!(Comparison::new(&[&r1, &r2]).is_err());
-        let m1 = fit_independent(&d1, &data.response, Method::Ml).unwrap();
-        let m2 = fit_independent(&d2, &data.response, Method::Ml).unwrap();
-        assert!(Comparison::new(&[&m1, &r1]).is_err());
-        let c = Comparison::new(&[&m1, &m2]).unwrap();
-        let (lrt, df) = c.lrt(0, 1).unwrap();
-        assert_eq!(df, 1);
-        assert_relative_eq!(lrt, 2.0 * (m2.loglik - m1.loglik));
-        let s1 = fit_correlated(
-            "e",
-            &d1,
-            &data.response,
-            &dist,
-            &data.pots,
-            Family::Exponential,
-            false,
-            Method::Reml,
-        )
-        .unwrap();
-        let t = Comparison::new(&[&r1, &s1]).unwrap().table();
-        assert_relative_eq!(t.iter().map(|r| r.weight).sum::<f64>(), 1.0, epsilon = 1e-12);
     }
 }

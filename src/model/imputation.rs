@@ -47,9 +47,9 @@
 //! O(n p) per iteration.
 
 use super::error::{ModelError, Result};
+use crate::spatial::factor::Cholesky;
 use faer::linalg::triangular_solve::solve_lower_triangular_in_place;
 use faer::{Mat, Par, Side};
-use nalgebra::{DMatrix, DVector};
 use rand::Rng;
 use rand_distr::{ChiSquared, Distribution, StandardNormal};
 
@@ -101,6 +101,10 @@ pub struct Imputer {
     mu: Vec<f64>,
     /// `G = L Q` (n x n).
     g: Mat<f64>,
+    /// `Q` (n x n), orthogonal.
+    q: Mat<f64>,
+    /// `L` (n x n), `None` for `R = I`.
+    l: Option<Mat<f64>>,
     /// `Λ`, clipped at 0.
     lambda: Vec<f64>,
     /// `G⁻¹ D` column by column (the design without the driver).
@@ -186,6 +190,8 @@ impl Imputer {
             n,
             mu,
             g,
+            q,
+            l: chol_r.cloned(),
             lambda,
             other_rot: (0..other.len()).map(col).collect(),
             y_rot: col(other.len()),
@@ -284,28 +290,29 @@ impl Imputer {
 
     /// The GLS fit of `Y` on `[D X]` for the rotated driver `xi`: estimate,
     /// lower Cholesky factor of `Z'R⁻¹Z`, residual sum of squares.
-    fn gls(&self, xi: &[f64]) -> Result<(Vec<f64>, nalgebra::Cholesky<f64, nalgebra::Dyn>, f64)> {
+    fn gls(&self, xi: &[f64]) -> Result<(Vec<f64>, Cholesky, f64)> {
         let n = self.n;
         let po = self.other_rot.len();
         let p = po + 1;
         let x: Vec<f64> = (0..n).map(|k| self.mu_rot[k] + xi[k]).collect();
         let cols: Vec<&[f64]> = self.other_rot.iter().map(Vec::as_slice).chain([x.as_slice()]).collect();
         let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(u, v)| u * v).sum::<f64>();
-        let ztz = DMatrix::from_fn(p, p, |i, j| dot(cols[i], cols[j]));
-        let zty = DVector::from_fn(p, |i, _| dot(cols[i], &self.y_rot));
-        let chol = ztz.cholesky().ok_or_else(|| ModelError::Imputation {
+        let ztz = Mat::from_fn(p, p, |i, j| dot(cols[i], cols[j]));
+        let chol = Cholesky::new(ztz, 0.0).map_err(|e| ModelError::Imputation {
             driver: self.driver.clone(),
-            message: "an imputed driver is collinear with the other design columns".into(),
+            message: format!("an imputed driver is collinear with the other design columns ({e})"),
             hint: Some("check that the driver varies over the pots".into()),
         })?;
-        let b = chol.solve(&zty);
+        let mut b = Mat::from_fn(p, 1, |i, _| dot(cols[i], &self.y_rot));
+        chol.solve(&mut b);
+        let b: Vec<f64> = (0..p).map(|j| b[(j, 0)]).collect();
         let rss: f64 = (0..n)
             .map(|k| {
                 let f: f64 = (0..p).map(|j| cols[j][k] * b[j]).sum();
                 (self.y_rot[k] - f).powi(2)
             })
             .sum();
-        Ok((b.iter().copied().collect(), chol, rss))
+        Ok((b, chol, rss))
     }
 
     /// One draw of `theta | X, Y` for the rotated driver `xi` under the prior
@@ -322,9 +329,10 @@ impl Imputer {
         let chi: f64 = ChiSquared::new(df as f64).expect("df > 0").sample(rng);
         let sigma2 = rss / chi;
         // v = L_A^-T z has covariance (L_A L_A')^-1 = (Z'R^-1 Z)^-1.
-        let z = DVector::from_fn(p, |_, _| StandardNormal.sample(rng));
-        let v = chol.l().transpose().solve_upper_triangular(&z).expect("positive diagonal");
-        let coef: Vec<f64> = (0..p).map(|j| b[j] + sigma2.sqrt() * v[j]).collect();
+        let z: Vec<f64> = (0..p).map(|_| StandardNormal.sample(rng)).collect();
+        let mut v = Mat::from_fn(p, 1, |i, _| z[i]);
+        chol.solve_transposed(&mut v);
+        let coef: Vec<f64> = (0..p).map(|j| b[j] + sigma2.sqrt() * v[(j, 0)]).collect();
         Ok(TraitParams { beta: coef[..p - 1].to_vec(), gamma: coef[p - 1], sigma2 })
     }
 
@@ -334,15 +342,19 @@ impl Imputer {
         let xi = self.rotate_driver(x);
         let (b, chol, rss) = self.gls(&xi)?;
         let inv = chol.inverse();
-        Ok((b, rss, inv.transpose().iter().copied().collect()))
+        let p = inv.nrows();
+        Ok((b, rss, (0..p * p).map(|k| inv[(k / p, k % p)]).collect()))
     }
 
-    /// `G⁻¹ (x − mu)` for a driver `x` at the pots, by solving `G ξ = x − mu`
-    /// (G is well conditioned: `G G' = R`). Cost O(n³); used by checks only.
+    /// `G⁻¹ (x − mu) = Q' L⁻¹ (x − mu)` for a driver `x` at the pots.
+    /// Cost O(n²); used by checks only.
     fn rotate_driver(&self, x: &[f64]) -> Vec<f64> {
-        let gm = DMatrix::from_fn(self.n, self.n, |i, j| self.g[(i, j)]);
-        let r = DVector::from_fn(self.n, |i, _| x[i] - self.mu[i]);
-        gm.lu().solve(&r).map(|v| v.iter().copied().collect()).unwrap_or_else(|| vec![f64::NAN; self.n])
+        let mut r = Mat::from_fn(self.n, 1, |i, _| x[i] - self.mu[i]);
+        if let Some(l) = &self.l {
+            solve_lower_triangular_in_place(l.as_ref(), r.as_mut(), Par::Seq);
+        }
+        let xi = self.q.transpose() * &r;
+        (0..self.n).map(|i| xi[(i, 0)]).collect()
     }
 
     /// `count` draws of `theta | X, Y` for the driver `x` (for checks).

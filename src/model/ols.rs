@@ -14,69 +14,23 @@
 //! `F = (SS / df) / (RSS / (n - p))`, p from the F distribution (statrs).
 
 use super::design::{Design, TermKind};
+use super::error::{ModelError, Result};
+use crate::spatial::factor::{FactorError, LeastSquares, least_squares};
 use statrs::distribution::{ContinuousCDF, FisherSnedecor, StudentsT};
 
-/// Least squares by modified Gram–Schmidt QR (Björck 1996, §2.4):
-/// returns `(beta, rss, (X'X)^-1 row-major)` or `None` when a column is
-/// (numerically) dependent on the earlier ones.
-///
-/// Cost: `O(n p^2)`.
-pub fn least_squares(x: &[Vec<f64>], y: &[f64]) -> Option<(Vec<f64>, f64, Vec<f64>)> {
-    let p = x.len();
-    let mut q: Vec<Vec<f64>> = Vec::with_capacity(p);
-    let mut r = vec![0.0; p * p];
-    for j in 0..p {
-        let mut v = x[j].clone();
-        let norm0 = v.iter().map(|a| a * a).sum::<f64>().sqrt();
-        for (k, qk) in q.iter().enumerate() {
-            let d: f64 = v.iter().zip(qk).map(|(a, b)| a * b).sum();
-            r[k * p + j] = d;
-            for (vi, qi) in v.iter_mut().zip(qk) {
-                *vi -= d * qi;
-            }
-        }
-        let norm = v.iter().map(|a| a * a).sum::<f64>().sqrt();
-        if norm0 == 0.0 || norm <= 1e-9 * norm0 {
-            return None;
-        }
-        r[j * p + j] = norm;
-        q.push(v.into_iter().map(|a| a / norm).collect());
-    }
-    // residual by projecting y (twice, for orthogonality)
-    let mut e = y.to_vec();
-    let mut qty = vec![0.0; p];
-    for _ in 0..2 {
-        for (k, qk) in q.iter().enumerate() {
-            let d: f64 = e.iter().zip(qk).map(|(a, b)| a * b).sum();
-            qty[k] += d;
-            for (ei, qi) in e.iter_mut().zip(qk) {
-                *ei -= d * qi;
-            }
-        }
-    }
-    let rss: f64 = e.iter().map(|a| a * a).sum();
-    // back substitution R beta = Q'y
-    let mut beta = vec![0.0; p];
-    for i in (0..p).rev() {
-        let s: f64 = (i + 1..p).map(|k| r[i * p + k] * beta[k]).sum();
-        beta[i] = (qty[i] - s) / r[i * p + i];
-    }
-    // (X'X)^-1 = R^-1 R^-T
-    let mut rinv = vec![0.0; p * p];
-    for c in 0..p {
-        for i in (0..=c).rev() {
-            let rhs = if i == c { 1.0 } else { 0.0 };
-            let s: f64 = (i + 1..=c).map(|k| r[i * p + k] * rinv[k * p + c]).sum();
-            rinv[i * p + c] = (rhs - s) / r[i * p + i];
-        }
-    }
-    let mut inv = vec![0.0; p * p];
-    for i in 0..p {
-        for j in 0..p {
-            inv[i * p + j] = (0..p).map(|k| rinv[i * p + k] * rinv[j * p + k]).sum();
-        }
-    }
-    Some((beta, rss, inv))
+/// Least squares `y ~ X` (`x` by columns) through the crate's one QR path
+/// ([`crate::spatial::factor::least_squares`], Householder QR with the one
+/// rank tolerance); an aliased column is a [`ModelError::Rank`] naming it
+/// (`names[j]`, or its index when no names are given).
+pub fn fit_least_squares(what: &str, x: &[Vec<f64>], names: &[String], y: &[f64]) -> Result<LeastSquares> {
+    least_squares(x, y).map_err(|e| match e {
+        FactorError::Aliased { index, remainder } => ModelError::Rank {
+            what: what.to_string(),
+            column: names.get(index).cloned().unwrap_or_else(|| format!("#{}", index + 1)),
+            remainder,
+        },
+        other => ModelError::Rank { what: what.to_string(), column: other.to_string(), remainder: f64::NAN },
+    })
 }
 
 /// An OLS fit.
@@ -122,11 +76,12 @@ pub(crate) fn f_p(f: f64, d1: f64, d2: f64) -> f64 {
     d.sf(f)
 }
 
-/// Fit by OLS. The design has already been checked for aliasing and `n > p`.
-pub fn ols(design: &Design, y: &[f64]) -> OlsFit {
+/// Fit by OLS. The design has already been checked for aliasing (with the
+/// same rank tolerance) and `n > p`.
+pub fn ols(design: &Design, y: &[f64]) -> Result<OlsFit> {
     let n = y.len();
     let p = design.p();
-    let (beta, rss, inv) = least_squares(&design.x, y).expect("the design is checked for aliasing");
+    let LeastSquares { beta, rss, xtx_inv: inv, .. } = fit_least_squares("OLS", &design.x, &design.names, y)?;
     let df = n - p;
     let s2 = rss / df as f64;
     let se: Vec<f64> = (0..p).map(|i| (s2 * inv[i * p + i]).sqrt()).collect();
@@ -138,7 +93,7 @@ pub fn ols(design: &Design, y: &[f64]) -> OlsFit {
     let tss: f64 = y.iter().map(|v| (v - mean) * (v - mean)).sum();
     let r2 = 1.0 - rss / tss;
     let adj_r2 = 1.0 - (1.0 - r2) * (n as f64 - 1.0) / df as f64;
-    OlsFit {
+    Ok(OlsFit {
         names: design.names.clone(),
         beta,
         se,
@@ -152,7 +107,7 @@ pub fn ols(design: &Design, y: &[f64]) -> OlsFit {
         fitted,
         residuals,
         xtx_inv: inv,
-    }
+    })
 }
 
 /// Which sums of squares.
@@ -203,23 +158,25 @@ pub struct AnovaTable {
     pub rows: Vec<AnovaRow>,
 }
 
-fn rss_of(cols: &[Vec<f64>], keep: &[usize], y: &[f64]) -> f64 {
+fn rss_of(cols: &[Vec<f64>], names: &[String], keep: &[usize], y: &[f64]) -> Result<f64> {
     let sel: Vec<Vec<f64>> = keep.iter().map(|&j| cols[j].clone()).collect();
     if sel.is_empty() {
-        return y.iter().map(|v| v * v).sum();
+        return Ok(y.iter().map(|v| v * v).sum());
     }
-    least_squares(&sel, y).map(|r| r.1).expect("a subset of an unaliased design is unaliased")
+    let sel_names: Vec<String> = keep.iter().map(|&j| names.get(j).cloned().unwrap_or_default()).collect();
+    Ok(fit_least_squares("analysis of variance", &sel, &sel_names, y)?.rss)
 }
 
 /// The ANOVA table of `kind` for the OLS fit of `y` on `design`.
 ///
 /// Cost: one least-squares fit per term (two for type II), each `O(n p^2)`.
-pub fn anova(design: &Design, y: &[f64], kind: SsType) -> AnovaTable {
+pub fn anova(design: &Design, y: &[f64], kind: SsType) -> Result<AnovaTable> {
     let n = y.len();
     let p = design.p();
     let cols = if kind == SsType::Marginal { &design.x_sum } else { &design.x };
     let all: Vec<usize> = (0..p).collect();
-    let rss_full = rss_of(cols, &all, y);
+    let names = &design.names;
+    let rss_full = rss_of(cols, names, &all, y)?;
     let df_resid = n - p;
     let ms_resid = rss_full / df_resid as f64;
     let contains = |outer: &TermKind, inner: &[usize]| -> bool {
@@ -237,7 +194,7 @@ pub fn anova(design: &Design, y: &[f64], kind: SsType) -> AnovaTable {
             SsType::Sequential => {
                 let before: Vec<usize> = (0..term.columns.start).collect();
                 let upto: Vec<usize> = (0..term.columns.end).collect();
-                rss_of(cols, &before, y) - rss_of(cols, &upto, y)
+                rss_of(cols, names, &before, y)? - rss_of(cols, names, &upto, y)?
             }
             SsType::Hierarchical => {
                 // columns of all terms that do not contain `term` (and not term itself)
@@ -250,11 +207,11 @@ pub fn anova(design: &Design, y: &[f64], kind: SsType) -> AnovaTable {
                     .collect();
                 let mut with = base.clone();
                 with.extend(term.columns.clone());
-                rss_of(cols, &base, y) - rss_of(cols, &with, y)
+                rss_of(cols, names, &base, y)? - rss_of(cols, names, &with, y)?
             }
             SsType::Marginal => {
                 let without: Vec<usize> = all.iter().copied().filter(|j| !term.columns.contains(j)).collect();
-                rss_of(cols, &without, y) - rss_full
+                rss_of(cols, names, &without, y)? - rss_full
             }
         };
         let df = term.columns.len();
@@ -276,7 +233,7 @@ pub fn anova(design: &Design, y: &[f64], kind: SsType) -> AnovaTable {
         f: None,
         p: None,
     });
-    AnovaTable { kind, rows }
+    Ok(AnovaTable { kind, rows })
 }
 
 #[cfg(test)]
@@ -312,7 +269,7 @@ mod tests {
             ..Default::default()
         };
         let design = Design::build(&data, &spec).unwrap();
-        let fit = ols(&design, &data.response);
+        let fit = ols(&design, &data.response).unwrap();
         let names: Vec<String> =
             fx["names"].as_array().unwrap().iter().map(|v| own_name(v.as_str().unwrap())).collect();
         let (params, bse, pv) = (floats(&fx["params"]), floats(&fx["bse"]), floats(&fx["pvalues"]));
@@ -332,7 +289,7 @@ mod tests {
         for (kind, key) in
             [(SsType::Sequential, "type1"), (SsType::Hierarchical, "type2"), (SsType::Marginal, "type3")]
         {
-            let table = anova(&design, &data.response, kind);
+            let table = anova(&design, &data.response, kind).unwrap();
             let rows = fx[key].as_array().unwrap();
             assert_eq!(table.rows.len(), rows.len(), "{case} {key}");
             for (own, r) in table.rows.iter().zip(rows) {

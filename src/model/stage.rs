@@ -11,7 +11,7 @@ use super::gls::{Errors, Fit, fit_correlated, fit_independent};
 use super::ols::{AnovaTable, OlsFit, SsType, anova, ols};
 use crate::io::output::StageWriter;
 use crate::io::study::Study;
-use crate::spatial::likelihood::{Distances, Method};
+use crate::spatial::likelihood::{Distances, LikelihoodKind};
 use std::fmt::Write as _;
 use std::path::PathBuf;
 
@@ -56,11 +56,11 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
     };
     let design = Design::build(&data, &dspec)?;
     let y = &data.response;
-    let ols_fit = ols(&design, y);
+    let ols_fit = ols(&design, y)?;
     let anovas = [SsType::Sequential, SsType::Hierarchical, SsType::Marginal]
         .iter()
         .map(|&k| anova(&design, y, k))
-        .collect();
+        .collect::<Result<Vec<_>>>()?;
     let counts = count_tables(&data);
     let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| {
         super::error::ModelError::Likelihood { model: "positions".into(), source: e, hint: None }
@@ -77,7 +77,7 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
         ));
     }
     let mut fits = Vec::new();
-    for method in [Method::Ml, Method::Reml] {
+    for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
         fits.push(fit_independent(&design, y, method)?);
     }
     for &family in &spec.correlations {
@@ -92,7 +92,7 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
                 ));
                 continue;
             }
-            for method in [Method::Ml, Method::Reml] {
+            for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
                 fits.push(fit_correlated(&label, &design, y, &dist, &data.pots, family, nugget, method)?);
             }
         }
@@ -145,7 +145,7 @@ pub fn residual_variograms_csv(r: &FitReport) -> Result<Vec<u8>> {
     let names: Vec<String> = r
         .fits
         .iter()
-        .map(|f| format!("{} {}", model_name(f), if f.method == Method::Ml { "ML" } else { "REML" }))
+        .map(|f| format!("{} {}", model_name(f), if f.method == LikelihoodKind::Ml { "ML" } else { "REML" }))
         .collect();
     let tables: Vec<VariogramTable> = r
         .fits

@@ -366,7 +366,7 @@ pub struct ModelsSection {
     pub tie_margin: Option<f64>,
 }
 
-/// One row of the model comparison (see `model::compare::Ranked`).
+/// One row of the model comparison (the verdict's `ModelRow`).
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct ComparisonRow {
     /// Model name.
@@ -392,24 +392,6 @@ pub struct ComparisonRow {
     pub delta_aic: f64,
     /// Akaike weight (0..1).
     pub akaike_weight: f64,
-}
-
-impl From<&crate::model::compare::Ranked> for ComparisonRow {
-    fn from(r: &crate::model::compare::Ranked) -> Self {
-        let c = &r.candidate;
-        ComparisonRow {
-            name: c.name.clone(),
-            drivers: c.drivers.clone(),
-            correlation: c.correlation.clone(),
-            nugget: c.nugget,
-            loglik: c.loglik,
-            aic: r.aic,
-            bic: r.bic,
-            n_params: c.n_params as u64,
-            delta_aic: r.delta_aic,
-            akaike_weight: r.akaike_weight,
-        }
-    }
 }
 
 /// An ANOVA table of one model.

@@ -15,19 +15,25 @@
 //! jitter used is reported ([`FieldSampler::jitter`]) so that the truth says
 //! exactly which covariance was simulated.
 //!
-//! Cost: `O(n^3 / 3)` once for the factorisation (nalgebra's dense
-//! Cholesky; about 0.05 s at n = 600), then `O(n^2)` per field.
+//! The covariance is filled by the crate's one kernel
+//! ([`crate::spatial::covariance::Kernel`], no nugget) and factorised by its
+//! one Cholesky path ([`crate::spatial::factor::Cholesky`], any positive
+//! pivot accepted).
+//!
+//! Cost: `O(n^3 / 3)` once for the factorisation, then `O(n^2)` per field.
 
 use super::error::{Result, SimError};
 use crate::spatial::correlation::Family;
-use nalgebra::{DMatrix, DVector};
+use crate::spatial::covariance::{CovParams, Kernel};
+use crate::spatial::factor::Cholesky;
+use faer::Mat;
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 
 /// A factorised covariance, ready to draw fields on its points.
 #[derive(Debug, Clone)]
 pub struct FieldSampler {
-    l: DMatrix<f64>,
+    l: Mat<f64>,
     jitter: f64,
 }
 
@@ -42,20 +48,20 @@ impl FieldSampler {
         what: &str,
     ) -> Result<FieldSampler> {
         let n = points.len();
-        let cov = DMatrix::from_fn(n, n, |i, j| {
-            let d = ((points[i][0] - points[j][0]).powi(2) + (points[i][1] - points[j][1]).powi(2)).sqrt();
-            sill * family.correlation(d, range)
-        });
         if sill == 0.0 {
-            return Ok(FieldSampler { l: DMatrix::zeros(n, n), jitter: 0.0 });
+            return Ok(FieldSampler { l: Mat::zeros(n, n), jitter: 0.0 });
         }
+        let kernel = Kernel::scaled(&CovParams { family, range, eta: 0.0 }, sill);
+        let cov = kernel.fill_lower(n, |i, j| {
+            crate::spatial::geometry::distance(points[i][0], points[i][1], points[j][0], points[j][1])
+        });
         for eps in [0.0, 1e-12, 1e-10, 1e-8, 1e-6] {
             let mut c = cov.clone();
             for i in 0..n {
                 c[(i, i)] += eps * sill;
             }
-            if let Some(ch) = c.cholesky() {
-                return Ok(FieldSampler { l: ch.l(), jitter: eps });
+            if let Ok(ch) = Cholesky::new(c, 0.0) {
+                return Ok(FieldSampler { l: ch.into_l(), jitter: eps });
             }
         }
         Err(SimError::Covariance {
@@ -83,9 +89,8 @@ impl FieldSampler {
     /// Draw one field: `n` standard normal draws in order, then `L u`.
     pub fn draw<R: Rng + ?Sized>(&self, rng: &mut R) -> Vec<f64> {
         let n = self.len();
-        let u = DVector::from_iterator(n, (0..n).map(|_| -> f64 { StandardNormal.sample(rng) }));
-        let z = &self.l * u;
-        z.iter().copied().collect()
+        let u: Vec<f64> = (0..n).map(|_| -> f64 { StandardNormal.sample(rng) }).collect();
+        (0..n).map(|i| (0..=i).map(|j| self.l[(i, j)] * u[j]).sum()).collect()
     }
 }
 

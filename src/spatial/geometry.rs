@@ -3,11 +3,61 @@
 //! collinearity. Coordinates are metres on the compartment floor plan.
 
 use super::error::{Result, SpatialError};
+use kiddo::{ImmutableKdTree, SquaredEuclidean};
+use std::num::NonZeroUsize;
 use std::path::PathBuf;
 
 /// Prefix of the distance covariates: `distance_<opening>` is the distance
 /// in metres from each pot to one `[[openings]]` entry ([`distances_to_opening`]).
 pub const DISTANCE_PREFIX: &str = "distance_";
+
+/// The crate's one distance: Euclidean, in metres, between `(ax, ay)` and
+/// `(bx, by)`, computed with `hypot` (no overflow or underflow of the
+/// squares). O(1).
+#[inline]
+pub fn distance(ax: f64, ay: f64, bx: f64, by: f64) -> f64 {
+    (ax - bx).hypot(ay - by)
+}
+
+/// The crate's one k-d tree over planar points (kiddo): nearest-neighbour
+/// and fixed-radius queries. Results come in the tree's order; callers sort
+/// and break ties as they document. Cost: O(n log n) to build, O(log n + k)
+/// per query.
+pub struct PointTree {
+    tree: ImmutableKdTree<f64, 2>,
+}
+
+impl PointTree {
+    /// Index the points `(x[i], y[i])`; `None` when the tree cannot be built.
+    pub fn new(x: &[f64], y: &[f64]) -> Option<PointTree> {
+        let entries: Vec<[f64; 2]> = x.iter().zip(y).map(|(&a, &b)| [a, b]).collect();
+        ImmutableKdTree::new_from_slice(&entries).ok().map(|tree| PointTree { tree })
+    }
+
+    /// The `k >= 1` points nearest to `(x, y)`: `(index, squared distance)`,
+    /// in the tree's order (nearest first, ties as the tree meets them).
+    pub fn nearest(&self, x: f64, y: f64, k: usize) -> Vec<(usize, f64)> {
+        self.tree
+            .query(&[x, y])
+            .nearest_n::<SquaredEuclidean<f64>>(NonZeroUsize::new(k.max(1)).expect("k >= 1"))
+            .execute()
+            .into_iter()
+            .map(|r| (r.item as usize, r.distance))
+            .collect()
+    }
+
+    /// Indices of the points within squared distance `r2` of `(x, y)`, unsorted.
+    pub fn within(&self, x: f64, y: f64, r2: f64) -> Vec<usize> {
+        self.tree
+            .query(&[x, y])
+            .within::<SquaredEuclidean<f64>>(r2)
+            .unsorted()
+            .execute()
+            .into_iter()
+            .map(|r| r.item as usize)
+            .collect()
+    }
+}
 
 /// Two positions closer than this (metres) count as the same position.
 pub const DUPLICATE_TOLERANCE: f64 = 1e-6;
@@ -96,7 +146,7 @@ impl Points {
     /// Distance between point `i` of `self` and point `j` of `other`.
     #[inline]
     pub fn dist_to(&self, i: usize, other: &Points, j: usize) -> f64 {
-        (self.x[i] - other.x[j]).hypot(self.y[i] - other.y[j])
+        distance(self.x[i], self.y[i], other.x[j], other.y[j])
     }
 
     /// The subset at `idx`, in that order.
@@ -190,14 +240,7 @@ pub fn sensor_points(
     compartment: Option<crate::io::study::Compartment>,
 ) -> Result<Points> {
     let origin = Origin { path: Some(sensors.table.path.clone()), lines: Some(sensors.table.lines.clone()) };
-    Points::new(
-        "sensor",
-        sensors.ids.clone(),
-        sensors.x.clone(),
-        sensors.y.clone(),
-        compartment.map(|c| (c.length, c.width)),
-        &origin,
-    )
+    table_points("sensor", (&sensors.ids, &sensors.x, &sensors.y), compartment, &origin)
 }
 
 /// The pots of the pot table as a checked point set (as [`sensor_points`]).
@@ -206,14 +249,17 @@ pub fn pot_points(
     compartment: Option<crate::io::study::Compartment>,
 ) -> Result<Points> {
     let origin = Origin { path: Some(pots.table.path.clone()), lines: Some(pots.table.lines.clone()) };
-    Points::new(
-        "pot",
-        pots.ids.clone(),
-        pots.x.clone(),
-        pots.y.clone(),
-        compartment.map(|c| (c.length, c.width)),
-        &origin,
-    )
+    table_points("pot", (&pots.ids, &pots.x, &pots.y), compartment, &origin)
+}
+
+/// A checked point set of one table's `(ids, x, y)`.
+fn table_points(
+    kind: &'static str,
+    (ids, x, y): (&[String], &[f64], &[f64]),
+    compartment: Option<crate::io::study::Compartment>,
+    origin: &Origin,
+) -> Result<Points> {
+    Points::new(kind, ids.to_vec(), x.to_vec(), y.to_vec(), compartment.map(|c| (c.length, c.width)), origin)
 }
 
 /// The `distance_<name>` covariate of every `[[openings]]` entry, in the

@@ -16,12 +16,13 @@
 //! the variance elsewhere is that of the value at the target including its
 //! micro-scale part.
 
+use super::covariance::Kernel;
 use super::error::{Result, SpatialError};
-use super::geometry::Points;
+use super::factor::{Bordered, Cholesky};
+use super::geometry::{PointTree, Points};
 use super::variogram::VariogramModel;
-use kiddo::{ImmutableKdTree, SquaredEuclidean};
+use faer::Mat;
 use nalgebra::{DMatrix, DVector};
-use std::num::NonZeroUsize;
 
 /// A mapping method.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -136,15 +137,16 @@ pub struct Prediction {
 }
 
 /// A prepared kriging system for one set of sensors: the factorised
-/// `[K F; F' 0]` with full neighbourhood, solved once and reused for every
-/// target block. Cost O((n + p)^3) once, then O((n + p)^2) per target.
+/// `[K F; F' 0]` with full neighbourhood ([`Bordered`]: Cholesky of `K` and
+/// of the Schur complement of the drift block), solved once and reused for
+/// every target block. Cost O(n^3) once, then O(n^2) per target.
 pub struct System {
     sensors: Vec<usize>,
     pts: Points,
     method: Method,
     model: VariogramModel,
     drift_s: Option<Vec<f64>>,
-    lu: Option<nalgebra::LU<f64, nalgebra::Dyn, nalgebra::Dyn>>,
+    lu: Option<Bordered>,
     warnings: Vec<String>,
 }
 
@@ -306,6 +308,7 @@ impl System {
             }
             _ => {
                 let mut var = vec![0.0; m];
+                let kern = Kernel::from_variogram(&self.model);
                 match (&self.lu, spec.neighbours) {
                     (Some(lu), _) => {
                         let p = self.method.trend_len();
@@ -313,7 +316,7 @@ impl System {
                         let mut f0 = vec![0.0; p];
                         for (c, t) in idx.clone().enumerate() {
                             for r in 0..n {
-                                rhs[(r, c)] = self.model.covariance(self.pts.dist_to(r, targets, t));
+                                rhs[(r, c)] = kern.at_distance(self.pts.dist_to(r, targets, t));
                             }
                             basis(
                                 self.method,
@@ -326,7 +329,7 @@ impl System {
                                 rhs[(n + q, c)] = f0[q];
                             }
                         }
-                        let sol = lu.solve(&rhs).ok_or_else(|| self.singular())?;
+                        let sol = solve_stacked(lu, &rhs);
                         for c in 0..m {
                             let mut v = self.model.sill();
                             for r in 0..n + p {
@@ -358,16 +361,16 @@ impl System {
                             }
                             let lu = factor(&sub, method, &self.model, ds.as_deref())?;
                             let p = method.trend_len();
-                            let mut rhs = DVector::<f64>::zeros(sub.len() + p);
+                            let mut rhs = DMatrix::<f64>::zeros(sub.len() + p, 1);
                             for r in 0..sub.len() {
-                                rhs[r] = self.model.covariance(sub.dist_to(r, targets, t));
+                                rhs[r] = kern.at_distance(sub.dist_to(r, targets, t));
                             }
                             let mut f0 = vec![0.0; p];
                             basis(method, targets.x[t], targets.y[t], drift_t.map_or(0.0, |d| d[t]), &mut f0);
                             for q in 0..p {
                                 rhs[sub.len() + q] = f0[q];
                             }
-                            let sol = lu.solve(&rhs).ok_or_else(|| self.singular())?;
+                            let sol = solve_stacked(&lu, &rhs);
                             var[c] = clean_var(self.model.sill() - sol.dot(&rhs), self.model.sill());
                             for (r, &j) in near.iter().enumerate() {
                                 lambda[(j, c)] = sol[r];
@@ -412,58 +415,50 @@ fn clean_var(v: f64, sill: f64) -> f64 {
     if v < 0.0 && v > -1e-9 * sill { 0.0 } else { v.max(0.0) }
 }
 
-/// LU factorisation of `[K F; F' 0]`.
-fn factor(
-    pts: &Points,
-    method: Method,
-    model: &VariogramModel,
-    drift: Option<&[f64]>,
-) -> Result<nalgebra::LU<f64, nalgebra::Dyn, nalgebra::Dyn>> {
+/// Factorise `[K F; F' 0]` ([`Bordered`]): `K` the covariance of the
+/// sensors ([`Kernel::from_variogram`]: the sill on the diagonal, `c rho(d)`
+/// between different sensors), `F` the drift basis of `method`.
+fn factor(pts: &Points, method: Method, model: &VariogramModel, drift: Option<&[f64]>) -> Result<Bordered> {
     let n = pts.len();
     let p = method.trend_len();
-    let mut a = DMatrix::<f64>::zeros(n + p, n + p);
-    for i in 0..n {
-        for j in 0..=i {
-            let c = if i == j { model.sill() } else { model.cross_covariance(pts.dist_to(i, pts, j)) };
-            a[(i, j)] = c;
-            a[(j, i)] = c;
-        }
-    }
+    let k = Kernel::from_variogram(model).fill_lower(n, |i, j| pts.dist_to(i, pts, j));
+    let mut fm = Mat::<f64>::zeros(n, p);
     let mut f = vec![0.0; p];
     for i in 0..n {
         basis(method, pts.x[i], pts.y[i], drift.map_or(0.0, |d| d[i]), &mut f);
         for q in 0..p {
-            a[(i, n + q)] = f[q];
-            a[(n + q, i)] = f[q];
+            fm[(i, q)] = f[q];
         }
     }
-    let lu = a.lu();
-    if !lu.is_invertible() {
-        return Err(SpatialError::Singular {
-            method: method.name().into(),
-            n,
-            hint: "add a nugget, or check for sensors at (nearly) the same position".into(),
-        });
-    }
-    Ok(lu)
+    Bordered::new(k, fm).map_err(|e| SpatialError::Singular {
+        method: method.name().into(),
+        n,
+        hint: format!("add a nugget, or check for sensors at (nearly) the same position ({e})"),
+    })
+}
+
+/// Solve the factorised system for the right-hand sides `rhs`
+/// (`(n + p) x m`: covariances to the targets, then the drift basis at the
+/// targets); the solution is stacked the same way (`lambda`, then `mu`).
+fn solve_stacked(sys: &Bordered, rhs: &DMatrix<f64>) -> DMatrix<f64> {
+    let (n, p, m) = (sys.n(), sys.p(), rhs.ncols());
+    let top = Mat::from_fn(n, m, |r, c| rhs[(r, c)]);
+    let bottom = Mat::from_fn(p, m, |q, c| rhs[(n + q, c)]);
+    let (lambda, mu) = sys.solve(&top, &bottom);
+    DMatrix::from_fn(n + p, m, |r, c| if r < n { lambda[(r, c)] } else { mu[(r - n, c)] })
 }
 
 /// k-nearest-neighbour search over a sensor set (kiddo for large sets, a
 /// direct scan for small ones).
 pub struct Neighbours<'a> {
     pts: &'a Points,
-    tree: Option<ImmutableKdTree<f64, 2>>,
+    tree: Option<PointTree>,
 }
 
 impl<'a> Neighbours<'a> {
     /// Index `pts`.
     pub fn new(pts: &'a Points) -> Neighbours<'a> {
-        let tree = if pts.len() > 32 {
-            let entries: Vec<[f64; 2]> = (0..pts.len()).map(|i| [pts.x[i], pts.y[i]]).collect();
-            ImmutableKdTree::new_from_slice(&entries).ok()
-        } else {
-            None
-        };
+        let tree = if pts.len() > 32 { PointTree::new(&pts.x, &pts.y) } else { None };
         Neighbours { pts, tree }
     }
 
@@ -472,14 +467,10 @@ impl<'a> Neighbours<'a> {
     pub fn nearest(&self, x: f64, y: f64, k: usize) -> Vec<(usize, f64)> {
         let k = k.clamp(1, self.pts.len().max(1));
         let mut out: Vec<(usize, f64)> = match &self.tree {
-            Some(tree) => tree
-                .query(&[x, y])
-                .nearest_n::<SquaredEuclidean<f64>>(NonZeroUsize::new(k).expect("k >= 1"))
-                .execute()
-                .into_iter()
-                .map(|r| (r.item as usize, r.distance.sqrt()))
+            Some(tree) => tree.nearest(x, y, k).into_iter().map(|(i, d2)| (i, d2.sqrt())).collect(),
+            None => (0..self.pts.len())
+                .map(|i| (i, super::geometry::distance(self.pts.x[i], self.pts.y[i], x, y)))
                 .collect(),
-            None => (0..self.pts.len()).map(|i| (i, (self.pts.x[i] - x).hypot(self.pts.y[i] - y))).collect(),
         };
         out.sort_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
         out.truncate(k);
@@ -548,17 +539,15 @@ pub fn rescale_to(
         });
     }
     let unit = model.scaled(1.0 / model.sill());
-    let v = DMatrix::from_fn(
-        n,
-        n,
-        |i, j| if i == j { 1.0 } else { unit.cross_covariance(pts.dist_to(i, &pts, j)) },
-    );
-    let chol = v.cholesky().ok_or_else(|| SpatialError::Singular {
+    let mut kern = Kernel::from_variogram(&unit);
+    kern.total = 1.0; // a correlation matrix: unit diagonal exactly
+    let v = kern.fill_lower(n, |i, j| pts.dist_to(i, &pts, j));
+    let chol = Cholesky::new(v, 0.0).map_err(|e| SpatialError::Singular {
         method: "variance scale".into(),
         n,
-        hint: "sensors share positions and the nugget is zero".into(),
+        hint: format!("sensors share positions and the nugget is zero ({e})"),
     })?;
-    let mut f = DMatrix::<f64>::zeros(n, p);
+    let mut f = Mat::<f64>::zeros(n, p);
     let mut row = vec![0.0; p];
     for (r, &i) in idx.iter().enumerate() {
         basis(method, sensors.x[i], sensors.y[i], drift.map_or(0.0, |d| d[i]), &mut row);
@@ -566,13 +555,18 @@ pub fn rescale_to(
             f[(r, q)] = row[q];
         }
     }
-    let z = DVector::from_iterator(n, idx.iter().map(|&i| values[i]));
-    let vif = chol.solve(&f);
-    let viz = chol.solve(&z);
-    let beta =
-        (f.transpose() * &vif).lu().solve(&(f.transpose() * &viz)).ok_or(SpatialError::Collinear { n })?;
-    let r = &z - &f * beta;
-    let s2 = r.dot(&chol.solve(&r)) / (n - p) as f64;
+    let z = Mat::from_fn(n, 1, |r, _| values[idx[r]]);
+    let mut vif = f.clone();
+    chol.solve(&mut vif);
+    let mut viz = z.clone();
+    chol.solve(&mut viz);
+    let gram = Cholesky::new(f.transpose() * &vif, 0.0).map_err(|_| SpatialError::Collinear { n })?;
+    let mut beta = f.transpose() * &viz;
+    gram.solve(&mut beta);
+    let r = &z - &f * &beta;
+    let mut vir = r.clone();
+    chol.solve(&mut vir);
+    let s2 = (0..n).map(|i| r[(i, 0)] * vir[(i, 0)]).sum::<f64>() / (n - p) as f64;
     Ok(unit.scaled(s2.max(f64::MIN_POSITIVE)))
 }
 
@@ -604,7 +598,7 @@ pub struct SignalKriging {
 /// Read as a posterior, `X(targets) | W ~ N(lambda' W, S)` when the constant
 /// mean has a flat prior (Cressie 1993, §3.4.5).
 ///
-/// Cost: one LU of order `n + 1` (n sensors), then O(m n) per target for the
+/// Cost: one Cholesky of order `n` (n sensors), then O(m n) per target for the
 /// weights and O(m^2 n) for `S` (m targets); `S` holds m^2 numbers.
 pub fn signal_kriging(sensors: &Points, targets: &Points, model: &VariogramModel) -> Result<SignalKriging> {
     let spec = Spec { method: Method::Ordinary, model: *model, neighbours: None, drift: None };
@@ -612,30 +606,26 @@ pub fn signal_kriging(sensors: &Points, targets: &Points, model: &VariogramModel
     let sys = System::new(sensors, &(0..n).collect::<Vec<_>>(), &spec)?;
     let lu = sys.lu.as_ref().ok_or_else(|| sys.singular())?;
     let model = sys.model;
+    let kern = Kernel::from_variogram(&model);
     let m = targets.len();
     let mut rhs = DMatrix::<f64>::zeros(n + 1, m);
     for t in 0..m {
         for r in 0..n {
-            rhs[(r, t)] = model.cross_covariance(sensors.dist_to(r, targets, t));
+            rhs[(r, t)] = kern.between(sensors.dist_to(r, targets, t));
         }
         rhs[(n, t)] = 1.0;
     }
-    let sol = lu.solve(&rhs).ok_or_else(|| sys.singular())?;
+    let sol = solve_stacked(lu, &rhs);
     let weights = sol.rows(0, n).into_owned();
     let k = rhs.rows(0, n).into_owned();
-    let mut kss = DMatrix::<f64>::zeros(n, n);
-    for i in 0..n {
-        for j in 0..n {
-            kss[(i, j)] =
-                if i == j { model.sill() } else { model.cross_covariance(sensors.dist_to(i, sensors, j)) };
-        }
-    }
+    let kss_f = kern.fill_symmetric(n, |i, j| sensors.dist_to(i, sensors, j));
+    let kss = DMatrix::from_fn(n, n, |i, j| kss_f[(i, j)]);
     let lk = weights.transpose() * &k; // (t, u) = lambda_t' k_u
     let lkl = weights.transpose() * (&kss * &weights);
     let mut error_cov = DMatrix::<f64>::zeros(m, m);
     for u in 0..m {
         for t in 0..m {
-            let c = model.cross_covariance(targets.dist_to(t, targets, u));
+            let c = kern.between(targets.dist_to(t, targets, u));
             error_cov[(t, u)] = c - lk[(t, u)] - lk[(u, t)] + lkl[(t, u)];
         }
     }

@@ -35,17 +35,20 @@
 //! starts, each restarted once at its end point (a standard guard against
 //! the simplex collapsing early; Press et al. 2007, *Numerical Recipes*, §10.5).
 
+pub use super::covariance::CovParams;
+use super::covariance::Kernel;
+pub use super::factor::whiten;
+use super::factor::{CORRELATION_MIN_DIAGONAL, Cholesky, FactorError, small_spd};
+use super::optimise::{Budget, Simplex, Stop, nelder_mead, ranked_starts};
 use crate::spatial::correlation::Family;
-use faer::linalg::cholesky::llt::factor::{LltRegularization, cholesky_in_place, cholesky_in_place_scratch};
-use faer::linalg::triangular_solve::solve_lower_triangular_in_place;
-use faer::{Mat, MatRef, Par};
+use faer::{Mat, MatRef};
 
 /// Errors of the likelihood engine.
 #[derive(Debug, thiserror::Error, Clone, PartialEq)]
 pub enum LikelihoodError {
     /// The covariance matrix is not positive definite at these parameters.
     #[error(
-        "the residual covariance ({family}, range {range}, nugget share {eta}) is not positive definite{}",
+        "the residual covariance ({family}, range {range}, nugget share {eta}) is not positive definite ({location}){}",
         if *eta == 0.0 { "; pots at the same position (or nearly so) make it singular without a nugget: fit with a nugget" } else { "" }
     )]
     NotPositiveDefinite {
@@ -55,6 +58,8 @@ pub enum LikelihoodError {
         range: f64,
         /// The nugget share.
         eta: f64,
+        /// Where the factorisation failed (pivot index and value).
+        location: FactorError,
     },
     /// `X'V^-1 X` is singular: the fixed-effect columns are linearly dependent.
     #[error("the fixed-effect columns are linearly dependent (X'V^-1 X is singular)")]
@@ -64,24 +69,28 @@ pub enum LikelihoodError {
     Invalid(String),
 }
 
-/// The estimation method.
+/// Which likelihood is maximised: the full (ML) or the restricted (REML) one.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
-pub enum Method {
+pub enum LikelihoodKind {
     /// Maximum likelihood.
     Ml,
     /// Restricted (residual) maximum likelihood.
     Reml,
 }
 
-impl Method {
+impl LikelihoodKind {
     /// `ML` or `REML`.
     pub fn label(&self) -> &'static str {
         match self {
-            Method::Ml => "ML",
-            Method::Reml => "REML",
+            LikelihoodKind::Ml => "ML",
+            LikelihoodKind::Reml => "REML",
         }
     }
 }
+
+/// The former name of [`LikelihoodKind`], kept only for `src/cli/fit.rs`
+/// until it names the new one.
+pub type Method = LikelihoodKind;
 
 /// Distances between `n` observations: computed from planar coordinates on
 /// the fly, or given as a full symmetric matrix.
@@ -155,7 +164,7 @@ impl Distances {
     #[inline]
     pub fn get(&self, i: usize, j: usize) -> f64 {
         match self {
-            Distances::Coords { x, y } => (x[i] - x[j]).hypot(y[i] - y[j]),
+            Distances::Coords { x, y } => super::geometry::distance(x[i], y[i], x[j], y[j]),
             Distances::Matrix { n, d } => d[i * n + j],
         }
     }
@@ -198,68 +207,6 @@ impl Distances {
     }
 }
 
-/// Correlation parameters of `V = (1 - eta) R(d; range) + eta I`.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct CovParams {
-    /// The correlation family.
-    pub family: Family,
-    /// Range parameter `a` in metres (see [`Family::correlation`]).
-    pub range: f64,
-    /// Nugget share `eta` in `[0, 1)`.
-    pub eta: f64,
-}
-
-/// Fill the lower triangle of `V` (column-major, faer) in parallel over
-/// column blocks of equal work.
-fn fill_lower(m: &mut Mat<f64>, dist: &Distances, p: &CovParams) {
-    let n = m.nrows();
-    let threads = std::thread::available_parallelism().map(|t| t.get()).unwrap_or(1).min(8);
-    let fill_cols = |mut part: faer::MatMut<'_, f64>, j0: usize| {
-        for jj in 0..part.ncols() {
-            let j = j0 + jj;
-            let col = part
-                .as_mut()
-                .col_mut(jj)
-                .try_as_col_major_mut()
-                .expect("owned columns are contiguous")
-                .as_slice_mut();
-            col[j] = 1.0;
-            for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
-                *c = (1.0 - p.eta) * p.family.correlation(dist.get(i, j), p.range);
-            }
-        }
-    };
-    if threads <= 1 || n < 256 {
-        fill_cols(m.as_mut(), 0);
-        return;
-    }
-    // split columns so that each block has about the same number of lower-triangle entries
-    let total = (n * (n + 1) / 2) as f64;
-    let mut cuts = vec![0usize];
-    let mut acc = 0.0;
-    for j in 0..n {
-        acc += (n - j) as f64;
-        if acc >= total * cuts.len() as f64 / threads as f64 && cuts.len() < threads {
-            cuts.push(j + 1);
-        }
-    }
-    cuts.push(n);
-    cuts.dedup();
-    std::thread::scope(|s| {
-        let mut rest = m.as_mut();
-        let mut start = 0usize;
-        for w in cuts.windows(2) {
-            let width = w[1] - w[0];
-            let (left, right) = rest.split_at_col_mut(width);
-            rest = right;
-            let j0 = start;
-            start += width;
-            let f = &fill_cols;
-            s.spawn(move || f(left, j0));
-        }
-    });
-}
-
 /// The lower Cholesky factor `L` of `V(params)` (`L L' = V`).
 ///
 /// Cost: `n^2/2` correlation evaluations and `n^3/3` flops.
@@ -271,43 +218,23 @@ pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, Likeli
             params.range, params.eta
         )));
     }
-    let mut m = Mat::<f64>::zeros(n, n);
-    fill_lower(&mut m, dist, params);
-    let par = Par::rayon(0);
-    let mut mem =
-        faer::dyn_stack::MemBuffer::new(cholesky_in_place_scratch::<f64>(n, par, Default::default()));
-    let stack = faer::dyn_stack::MemStack::new(&mut mem);
-    let npd = || LikelihoodError::NotPositiveDefinite {
-        family: params.family.name(),
-        range: params.range,
-        eta: params.eta,
-    };
-    cholesky_in_place(m.as_mut(), LltRegularization::default(), par, stack, Default::default())
-        .map_err(|_| npd())?;
-    // a pivot that is positive but tiny relative to 1 means V is numerically singular
-    for i in 0..n {
-        if m[(i, i)].is_nan() || m[(i, i)] <= 1e-7 {
-            return Err(npd());
+    let v = Kernel::correlation(params).fill_lower(n, |i, j| dist.get(i, j));
+    let c = Cholesky::new(v, CORRELATION_MIN_DIAGONAL).map_err(|location| {
+        LikelihoodError::NotPositiveDefinite {
+            family: params.family.name(),
+            range: params.range,
+            eta: params.eta,
+            location,
         }
-    }
-    for j in 0..n {
-        for i in 0..j {
-            m[(i, j)] = 0.0;
-        }
-    }
-    Ok(m)
-}
-
-/// Solve `L Z = B` in place (`B` is `n x k`).
-pub fn whiten(l: MatRef<'_, f64>, b: &mut Mat<f64>) {
-    solve_lower_triangular_in_place(l, b.as_mut(), Par::rayon(0));
+    })?;
+    Ok(c.into_l())
 }
 
 /// One profiled likelihood evaluation and what the GLS needs from it.
 #[derive(Clone, Debug)]
 pub struct Profiled {
     /// The method.
-    pub method: Method,
+    pub method: LikelihoodKind,
     /// The correlation parameters.
     pub params: CovParams,
     /// Profiled log-likelihood with all constants (see the module docs).
@@ -332,60 +259,11 @@ pub struct Profiled {
     pub p: usize,
 }
 
-/// Inverse and log-determinant of a small dense SPD matrix by Cholesky (p x p, row-major). Returns
-/// (inverse, ln det) or `None` when not positive definite relative to its scale.
-pub fn spd_inverse(a: &[f64], p: usize) -> Option<(Vec<f64>, f64)> {
-    let mut l = vec![0.0; p * p];
-    let scale = (0..p).map(|i| a[i * p + i].abs()).fold(0.0, f64::max).max(f64::MIN_POSITIVE);
-    for j in 0..p {
-        let mut s = a[j * p + j];
-        for k in 0..j {
-            s -= l[j * p + k] * l[j * p + k];
-        }
-        if s.is_nan() || s <= 1e-11 * scale.max(a[j * p + j]) {
-            return None;
-        }
-        let d = s.sqrt();
-        l[j * p + j] = d;
-        for i in j + 1..p {
-            let mut s = a[i * p + j];
-            for k in 0..j {
-                s -= l[i * p + k] * l[j * p + k];
-            }
-            l[i * p + j] = s / d;
-        }
-    }
-    let logdet = 2.0 * (0..p).map(|i| l[i * p + i].ln()).sum::<f64>();
-    // inverse: solve L L' X = I column by column
-    let mut inv = vec![0.0; p * p];
-    for c in 0..p {
-        let mut z = vec![0.0; p];
-        for i in 0..p {
-            let mut s = if i == c { 1.0 } else { 0.0 };
-            for k in 0..i {
-                s -= l[i * p + k] * z[k];
-            }
-            z[i] = s / l[i * p + i];
-        }
-        for i in (0..p).rev() {
-            let mut s = z[i];
-            for k in i + 1..p {
-                s -= l[k * p + i] * z[k];
-            }
-            z[i] = s / l[i * p + i];
-        }
-        for i in 0..p {
-            inv[i * p + c] = z[i];
-        }
-    }
-    Some((inv, logdet))
-}
-
 /// GLS quantities from an already whitened `[Xw | yw]` (`n x (p+1)`) and `ln|V|`.
 fn profile_whitened(
     w: &Mat<f64>,
     logdet_v: f64,
-    method: Method,
+    method: LikelihoodKind,
     params: CovParams,
 ) -> Result<Profiled, LikelihoodError> {
     let n = w.nrows();
@@ -402,18 +280,18 @@ fn profile_whitened(
         b[i] = cols[i].iter().zip(cols[p]).map(|(u, v)| u * v).sum();
     }
     let (inv, logdet_xtvx) =
-        if p == 0 { (Vec::new(), 0.0) } else { spd_inverse(&a, p).ok_or(LikelihoodError::SingularDesign)? };
+        if p == 0 { (Vec::new(), 0.0) } else { small_spd(&a, p).ok_or(LikelihoodError::SingularDesign)? };
     let beta: Vec<f64> = (0..p).map(|i| (0..p).map(|j| inv[i * p + j] * b[j]).sum()).collect();
     let whitened: Vec<f64> =
         (0..n).map(|r| cols[p][r] - (0..p).map(|j| cols[j][r] * beta[j]).sum::<f64>()).collect();
     let q: f64 = whitened.iter().map(|v| v * v).sum();
     let ln2pi = (2.0 * std::f64::consts::PI).ln();
     let (loglik, sigma2) = match method {
-        Method::Ml => {
+        LikelihoodKind::Ml => {
             let s2 = q / n as f64;
             (-(n as f64) / 2.0 * (ln2pi + 1.0 + s2.ln()) - 0.5 * logdet_v, s2)
         }
-        Method::Reml => {
+        LikelihoodKind::Reml => {
             if n <= p {
                 return Err(LikelihoodError::Invalid(format!(
                     "REML needs more observations ({n}) than columns ({p})"
@@ -472,7 +350,7 @@ pub fn profiled(
     params: &CovParams,
     x: &[Vec<f64>],
     y: &[f64],
-    method: Method,
+    method: LikelihoodKind,
 ) -> Result<Profiled, LikelihoodError> {
     check_sizes(dist, x, y)?;
     let l = cholesky(dist, params)?;
@@ -485,7 +363,7 @@ pub fn profiled_with_factor(
     params: &CovParams,
     x: &[Vec<f64>],
     y: &[f64],
-    method: Method,
+    method: LikelihoodKind,
 ) -> Result<Profiled, LikelihoodError> {
     let n = y.len();
     let logdet_v = 2.0 * (0..n).map(|i| l[(i, i)].ln()).sum::<f64>();
@@ -587,7 +465,7 @@ pub fn maximise(
     family: Family,
     x: &[Vec<f64>],
     y: &[f64],
-    method: Method,
+    method: LikelihoodKind,
     opts: &SearchOptions,
 ) -> Result<Maximum, LikelihoodError> {
     check_sizes(dist, x, y)?;
@@ -609,7 +487,7 @@ pub fn maximise(
         first_error: Option<LikelihoodError>,
     }
     let state = std::cell::RefCell::new(State { evaluations: 0, best: None, first_error: None });
-    let mut eval = |t: &[f64]| -> f64 {
+    let eval = |t: &[f64]| -> f64 {
         let params = CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } };
         let result = profiled(dist, &params, x, y, method);
         let mut st = state.borrow_mut();
@@ -631,18 +509,23 @@ pub fn maximise(
         }
     };
     let unit = family.practical_range(1.0);
-    let mut grid: Vec<(Vec<f64>, f64)> = Vec::new();
+    let mut starts: Vec<Vec<f64>> = Vec::new();
     for q in [0.02, 0.05, 0.10, 0.20, 0.35, 0.50, 0.75] {
         let d = sample[((sample.len() - 1) as f64 * q).round() as usize];
         let r = (d / unit).clamp(lo, hi).ln();
         let etas: &[f64] = if dim == 2 { &[0.05, 0.3, 0.6] } else { &[0.0] };
         for &e in etas {
-            let t = if dim == 2 { vec![r, e.min(eta_max)] } else { vec![r] };
-            let v = eval(&t);
-            grid.push((t, v));
+            starts.push(if dim == 2 { vec![r, e.min(eta_max)] } else { vec![r] });
         }
     }
-    grid.sort_by(|a, b| b.1.total_cmp(&a.1));
+    // best start first (ranked by -l, the simplex minimises)
+    let grid: Vec<(Vec<f64>, f64)> =
+        ranked_starts(&mut |t: &[f64]| -eval(t), starts).into_iter().map(|(t, v)| (t, -v)).collect();
+    // minimise -l (NaN counts as +inf)
+    let mut neg = |t: &[f64]| -> f64 {
+        let r = eval(t);
+        if r.is_nan() { f64::INFINITY } else { -r }
+    };
     if !grid[0].1.is_finite() {
         let e = state.borrow_mut().first_error.take();
         return Err(e.unwrap_or(LikelihoodError::Invalid("no start point has a finite likelihood".into())));
@@ -665,10 +548,19 @@ pub fn maximise(
         for round in 0..2 {
             let scale = if round == 0 { 1.0 } else { 0.1 };
             let step: Vec<f64> = steps[..dim].iter().map(|s| s * scale).collect();
-            let r = nelder_mead_max(&mut eval, &start, &step, &box_lo[..dim], &box_hi[..dim], opts);
-            start = r.0;
-            fval = r.1;
-            if !r.2 {
+            let m = nelder_mead(
+                &mut neg,
+                &start,
+                &Simplex {
+                    step: &step,
+                    bounds: Some((&box_lo[..dim], &box_hi[..dim])),
+                    stop: Stop::Absolute { f_tol: opts.f_tol, x_tol: opts.x_tol },
+                    budget: Budget::Evaluations(opts.max_evals),
+                },
+            );
+            start = m.x;
+            fval = -m.value;
+            if !m.converged {
                 converged = false;
             }
         }
@@ -702,112 +594,6 @@ pub fn maximise(
     Ok(Maximum { best, converged, at_bounds, evaluations, range_bounds: (lo, hi), other_optimum })
 }
 
-/// Bounded Nelder–Mead maximisation of `f` from `x0` with initial steps
-/// `step` (projected onto `[lo, hi]`). Returns (best point, best value,
-/// converged within `opts.max_evals`). Coefficients: reflection 1,
-/// expansion 2, contraction 0.5, shrink 0.5 (Nelder & Mead 1965).
-pub fn nelder_mead_max(
-    f: &mut dyn FnMut(&[f64]) -> f64,
-    x0: &[f64],
-    step: &[f64],
-    lo: &[f64],
-    hi: &[f64],
-    opts: &SearchOptions,
-) -> (Vec<f64>, f64, bool) {
-    let d = x0.len();
-    let clamp = |v: &mut Vec<f64>| {
-        for k in 0..d {
-            v[k] = v[k].clamp(lo[k], hi[k]);
-        }
-    };
-    // minimise g = -f
-    let mut g = |v: &[f64]| -> f64 {
-        let r = f(v);
-        if r.is_nan() { f64::INFINITY } else { -r }
-    };
-    let mut simplex: Vec<(Vec<f64>, f64)> = Vec::with_capacity(d + 1);
-    let mut x = x0.to_vec();
-    clamp(&mut x);
-    let gx = g(&x);
-    simplex.push((x.clone(), gx));
-    for k in 0..d {
-        let mut v = x.clone();
-        v[k] += step[k];
-        if v[k] > hi[k] {
-            v[k] = x[k] - step[k];
-        }
-        clamp(&mut v);
-        let gv = g(&v);
-        simplex.push((v, gv));
-    }
-    let mut evals = d + 1;
-    let mut converged = false;
-    while evals < opts.max_evals {
-        simplex.sort_by(|a, b| a.1.total_cmp(&b.1));
-        let fspread = simplex[d].1 - simplex[0].1;
-        let xspread = simplex
-            .iter()
-            .skip(1)
-            .map(|(v, _)| v.iter().zip(&simplex[0].0).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max))
-            .fold(0.0, f64::max);
-        if fspread.is_finite() && fspread <= opts.f_tol && xspread <= opts.x_tol.max(1e-12) {
-            converged = true;
-            break;
-        }
-        if fspread.is_finite() && fspread <= opts.f_tol * 1e-3 && xspread <= 1e-4 {
-            // flat to working precision: the likelihood does not distinguish the vertices
-            converged = true;
-            break;
-        }
-        let centroid: Vec<f64> =
-            (0..d).map(|k| simplex[..d].iter().map(|(v, _)| v[k]).sum::<f64>() / d as f64).collect();
-        let worst = simplex[d].clone();
-        let along = |t: f64| -> Vec<f64> {
-            let mut v: Vec<f64> = (0..d).map(|k| centroid[k] + t * (worst.0[k] - centroid[k])).collect();
-            for k in 0..d {
-                v[k] = v[k].clamp(lo[k], hi[k]);
-            }
-            v
-        };
-        let xr = along(-1.0);
-        let gr = g(&xr);
-        evals += 1;
-        if gr < simplex[0].1 {
-            let xe = along(-2.0);
-            let ge = g(&xe);
-            evals += 1;
-            simplex[d] = if ge < gr { (xe, ge) } else { (xr, gr) };
-        } else if gr < simplex[d - 1].1 {
-            simplex[d] = (xr, gr);
-        } else {
-            let (xc, gc) = if gr < worst.1 {
-                let xc = along(-0.5);
-                let gc = g(&xc);
-                (xc, gc)
-            } else {
-                let xc = along(0.5);
-                let gc = g(&xc);
-                (xc, gc)
-            };
-            evals += 1;
-            if gc < worst.1.min(gr) {
-                simplex[d] = (xc, gc);
-            } else {
-                let b = simplex[0].0.clone();
-                for s in simplex.iter_mut().skip(1) {
-                    let v: Vec<f64> = (0..d).map(|k| b[k] + 0.5 * (s.0[k] - b[k])).collect();
-                    let gv = g(&v);
-                    *s = (v, gv);
-                    evals += 1;
-                }
-            }
-        }
-    }
-    simplex.sort_by(|a, b| a.1.total_cmp(&b.1));
-    let (x, gx) = simplex.swap_remove(0);
-    (x, -gx, converged)
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -822,34 +608,34 @@ mod tests {
         let dist = Distances::from_coords(&x, &[0.0; 6]).unwrap();
         let p = CovParams { family: Family::Exponential, range: 1.5, eta: 0.0 };
         let xs = vec![vec![1.0; 6], x.to_vec()];
-        let ml = profiled(&dist, &p, &xs, &y, Method::Ml).unwrap();
+        let ml = profiled(&dist, &p, &xs, &y, LikelihoodKind::Ml).unwrap();
         assert_relative_eq!(ml.loglik, -3.366053, epsilon = 1e-6);
         assert_relative_eq!(ml.beta[0], 1.349503, epsilon = 1e-6);
         assert_relative_eq!(ml.beta[1], 0.385452, epsilon = 1e-6);
         assert_relative_eq!(ml.sigma2, 0.212718, epsilon = 1e-6);
-        let reml = profiled(&dist, &p, &xs, &y, Method::Reml).unwrap();
+        let reml = profiled(&dist, &p, &xs, &y, LikelihoodKind::Reml).unwrap();
         assert_relative_eq!(reml.loglik, -5.253599, epsilon = 1e-6);
         assert_relative_eq!(reml.sigma2, 0.319077, epsilon = 1e-6);
         let one = vec![vec![1.0; 6]];
         assert_relative_eq!(
-            profiled(&dist, &p, &one, &y, Method::Ml).unwrap().loglik,
+            profiled(&dist, &p, &one, &y, LikelihoodKind::Ml).unwrap().loglik,
             -8.194006,
             epsilon = 1e-6
         );
         assert_relative_eq!(
-            profiled(&dist, &p, &one, &y, Method::Reml).unwrap().loglik,
+            profiled(&dist, &p, &one, &y, LikelihoodKind::Reml).unwrap().loglik,
             -7.798416,
             epsilon = 1e-6
         );
         // rescaling a covariate leaves ML unchanged and moves REML by ln 10 (REFERENCE.md §5.1)
         let xs10 = vec![vec![1.0; 6], x.iter().map(|v| v / 10.0).collect()];
         assert_relative_eq!(
-            profiled(&dist, &p, &xs10, &y, Method::Ml).unwrap().loglik,
+            profiled(&dist, &p, &xs10, &y, LikelihoodKind::Ml).unwrap().loglik,
             -3.366053,
             epsilon = 1e-6
         );
         assert_relative_eq!(
-            profiled(&dist, &p, &xs10, &y, Method::Reml).unwrap().loglik,
+            profiled(&dist, &p, &xs10, &y, LikelihoodKind::Reml).unwrap().loglik,
             -2.951014,
             epsilon = 1e-6
         );
@@ -866,24 +652,6 @@ mod tests {
         let e = cholesky(&dist, &p).unwrap_err();
         assert!(e.to_string().contains("fit with a nugget"), "{e}");
         assert!(cholesky(&dist, &CovParams { eta: 0.2, ..p }).is_ok());
-    }
-
-    #[test]
-    fn nelder_mead_finds_a_bounded_maximum() {
-        // maximum of -(x-1)^2-(y-3)^2 inside [0,2]x[0,2] lies on the bound y = 2
-        let mut f = |v: &[f64]| -(v[0] - 1.0).powi(2) - (v[1] - 3.0).powi(2);
-        let (x, fx, ok) = nelder_mead_max(
-            &mut f,
-            &[0.2, 0.2],
-            &[0.5, 0.5],
-            &[0.0, 0.0],
-            &[2.0, 2.0],
-            &SearchOptions::default(),
-        );
-        assert!(ok);
-        assert_relative_eq!(x[0], 1.0, epsilon = 1e-5);
-        assert_relative_eq!(x[1], 2.0, epsilon = 1e-9);
-        assert_relative_eq!(fx, -1.0, epsilon = 1e-9);
     }
 
     fn fixture(name: &str) -> serde_json::Value {
@@ -923,7 +691,7 @@ mod tests {
             } else {
                 vec![vec![1.0; n], x.clone(), y.clone()]
             };
-            let method = if case["method"] == "ML" { Method::Ml } else { Method::Reml };
+            let method = if case["method"] == "ML" { LikelihoodKind::Ml } else { LikelihoodKind::Reml };
             let p = CovParams {
                 family: family(case["family"].as_str().unwrap()),
                 range: case["range"].as_f64().unwrap(),
@@ -936,7 +704,7 @@ mod tests {
             for (b, w) in r.beta.iter().zip(case["beta"].as_array().unwrap()) {
                 assert_relative_eq!(*b, w.as_f64().unwrap(), max_relative = 1e-9);
             }
-            if method == Method::Ml {
+            if method == LikelihoodKind::Ml {
                 assert_relative_eq!(
                     r.loglik,
                     case["loglik_mvn_at_ml_sigma2"].as_f64().unwrap(),
@@ -949,7 +717,7 @@ mod tests {
         let ys = [1.2, 1.9, 2.1, 3.2, 2.8, 4.5];
         let d6 = Distances::from_coords(&xs, &[0.0; 6]).unwrap();
         let p6 = CovParams { family: Family::Exponential, range: 1.5, eta: 0.0 };
-        for (m, key) in [(Method::Ml, "ML"), (Method::Reml, "REML")] {
+        for (m, key) in [(LikelihoodKind::Ml, "ML"), (LikelihoodKind::Reml, "REML")] {
             let r = profiled(&d6, &p6, &[vec![1.0; 6], xs.to_vec()], &ys, m).unwrap();
             assert_relative_eq!(r.loglik, six[key]["loglik"].as_f64().unwrap(), max_relative = 1e-12);
         }
@@ -984,7 +752,7 @@ mod tests {
         let dist = Distances::from_coords(&x, &y).unwrap();
         let fx = fixture("model_gls_known.json");
         let p = CovParams { family: Family::Exponential, range: 2.0, eta: 0.1 };
-        let r = profiled(&dist, &p, &[vec![1.0; n], x.clone(), y.clone()], &z, Method::Ml).unwrap();
+        let r = profiled(&dist, &p, &[vec![1.0; n], x.clone(), y.clone()], &z, LikelihoodKind::Ml).unwrap();
         assert_relative_eq!(r.loglik, fx["llf"].as_f64().unwrap(), max_relative = 1e-10);
         let scale = r.q / (n - 3) as f64;
         assert_relative_eq!(scale, fx["scale"].as_f64().unwrap(), max_relative = 1e-9);

@@ -2,17 +2,25 @@
 //! variogram model fitting, kriging onto pots, the mapping of sensor time series
 //! through time, and leave-one-sensor-out cross-validation.
 //!
+//! Its numeric kernel is shared by the whole crate: [`covariance`] (the one
+//! covariance model and matrix fill), [`factor`] (the one dense
+//! factorisation path: Cholesky, whitening, log-determinant, least squares
+//! with one rank tolerance) and [`optimise`] (the one simplex optimiser).
+//!
 //! It owns geometry and spatial statistics only. It consumes the regular
 //! sensor series and indicator definitions of [`crate::climate`] and is used by
 //! [`crate::model`] (which shares [`correlation`]) and [`crate::simulate`].
 
 pub mod config;
 pub mod correlation;
+pub mod covariance;
 pub mod error;
+pub mod factor;
 pub mod geometry;
 pub mod kriging;
 pub mod likelihood;
 pub mod mapping;
+pub mod optimise;
 pub mod outputs;
 pub mod stage;
 pub mod variogram;

@@ -9,8 +9,8 @@
 
 use super::correlation::Family;
 use super::error::{Result, SpatialError};
-use super::geometry::Points;
-use kiddo::{ImmutableKdTree, SquaredEuclidean};
+use super::geometry::{PointTree, Points};
+use super::optimise::{Budget, Simplex, Stop, nelder_mead_restarted};
 use nalgebra::DMatrix;
 
 /// The estimator of the semivariance in a lag bin.
@@ -169,19 +169,15 @@ pub fn pairs_within(points: &Points, max_lag: f64) -> Vec<(u32, u32, f64)> {
     if n < 2 {
         return Vec::new();
     }
-    let entries: Vec<[f64; 2]> = (0..n).map(|i| [points.x[i], points.y[i]]).collect();
-    let tree: ImmutableKdTree<f64, 2> = match ImmutableKdTree::new_from_slice(&entries) {
-        Ok(t) => t,
-        Err(_) => return brute_pairs(points, max_lag),
+    let Some(tree) = PointTree::new(&points.x, &points.y) else {
+        return brute_pairs(points, max_lag);
     };
     // A hair of slack on the squared radius so that a pair exactly at the
     // maximum lag is found; the exact test below decides.
     let r2 = max_lag * max_lag * (1.0 + 1e-12);
     let mut out = Vec::new();
-    for (i, p) in entries.iter().enumerate() {
-        let found = tree.query(p).within::<SquaredEuclidean<f64>>(r2).unsorted().execute();
-        for item in found {
-            let j = item.item as usize;
+    for i in 0..n {
+        for j in tree.within(points.x[i], points.y[i], r2) {
             if j > i {
                 let d = points.dist_to(i, points, j);
                 if d > 0.0 && d <= max_lag {
@@ -566,7 +562,18 @@ pub fn fit_wls(emp: &Empirical, family: Family, opts: &FitOptions) -> Option<Var
             }
             let x0 = clamp(&[(ra * hmax).ln(), nf * plateau, (1.0 - nf) * plateau]);
             let scale = [0.5, 0.1 * plateau.max(0.05), 0.2 * plateau.max(0.05)];
-            let (x, fx) = nelder_mead(&f, &x0, &scale, 3000, 1e-12);
+            let (x, fx) = nelder_mead_restarted(
+                &mut |p: &[f64]| f(p),
+                &x0,
+                &Simplex {
+                    step: &scale,
+                    bounds: None,
+                    stop: Stop::Relative { tol: 1e-12 },
+                    budget: Budget::Iterations(3000),
+                },
+                1e-12,
+                4,
+            );
             let x = clamp(&x);
             if best.is_none_or(|(_, fb)| fx < fb) {
                 best = Some((x, fx));
@@ -581,97 +588,6 @@ pub fn fit_wls(emp: &Empirical, family: Family, opts: &FitOptions) -> Option<Var
     let on_bound =
         near(x[0], lo[0], hi[0]) || (opts.fit_nugget && near(x[1], lo[1], hi[1])) || near(x[2], lo[2], hi[2]);
     Some(VariogramFit { model: model_of(x), criterion: fx, bins_used: k, on_bound })
-}
-
-/// Nelder–Mead simplex minimisation (standard coefficients 1, 2, 0.5, 0.5)
-/// with restarts of the simplex around the best point until it stops moving.
-/// Returns the best point and value.
-pub(crate) fn nelder_mead<F: Fn(&[f64]) -> f64>(
-    f: &F,
-    x0: &[f64],
-    scale: &[f64],
-    max_iter: usize,
-    tol: f64,
-) -> (Vec<f64>, f64) {
-    let n = x0.len();
-    let mut start = x0.to_vec();
-    let mut best_val = f64::INFINITY;
-    let mut out = start.clone();
-    for _restart in 0..4 {
-        let mut simplex: Vec<Vec<f64>> = vec![start.clone()];
-        for i in 0..n {
-            let mut p = start.clone();
-            p[i] += scale[i];
-            simplex.push(p);
-        }
-        let mut vals: Vec<f64> = simplex.iter().map(|p| f(p)).collect();
-        for _ in 0..max_iter {
-            let mut order: Vec<usize> = (0..=n).collect();
-            order.sort_by(|&a, &b| vals[a].total_cmp(&vals[b]));
-            simplex = order.iter().map(|&i| simplex[i].clone()).collect();
-            vals = order.iter().map(|&i| vals[i]).collect();
-            let spread = (vals[n] - vals[0]).abs();
-            if spread <= tol * (vals[0].abs() + tol) {
-                break;
-            }
-            let centroid: Vec<f64> =
-                (0..n).map(|j| simplex[..n].iter().map(|p| p[j]).sum::<f64>() / n as f64).collect();
-            let along = |t: f64| -> Vec<f64> {
-                (0..n).map(|j| centroid[j] + t * (simplex[n][j] - centroid[j])).collect()
-            };
-            let xr = along(-1.0);
-            let fr = f(&xr);
-            if fr < vals[0] {
-                let xe = along(-2.0);
-                let fe = f(&xe);
-                if fe < fr {
-                    simplex[n] = xe;
-                    vals[n] = fe;
-                } else {
-                    simplex[n] = xr;
-                    vals[n] = fr;
-                }
-            } else if fr < vals[n - 1] {
-                simplex[n] = xr;
-                vals[n] = fr;
-            } else {
-                let (xc, fc) = if fr < vals[n] {
-                    let xc = along(-0.5);
-                    let fc = f(&xc);
-                    (xc, fc)
-                } else {
-                    let xc = along(0.5);
-                    let fc = f(&xc);
-                    (xc, fc)
-                };
-                if fc < vals[n].min(fr) {
-                    simplex[n] = xc;
-                    vals[n] = fc;
-                } else {
-                    let best = simplex[0].clone();
-                    for i in 1..=n {
-                        for (v, b) in simplex[i].iter_mut().zip(&best) {
-                            *v = b + 0.5 * (*v - b);
-                        }
-                        vals[i] = f(&simplex[i]);
-                    }
-                }
-            }
-        }
-        let ib = (0..=n).min_by(|&a, &b| vals[a].total_cmp(&vals[b])).unwrap_or(0);
-        if vals[ib] < best_val - tol * (best_val.abs() + tol) || best_val.is_infinite() {
-            best_val = vals[ib];
-            out = simplex[ib].clone();
-            start = out.clone();
-        } else {
-            if vals[ib] < best_val {
-                best_val = vals[ib];
-                out = simplex[ib].clone();
-            }
-            break;
-        }
-    }
-    (out, best_val)
 }
 
 /// Fit every family in `families`; `None` for a family that cannot be fitted.
@@ -933,7 +849,7 @@ pub struct MlFit {
 /// `eta = 0`. Non-finite values are left out. `None` when fewer than three
 /// values remain or the engine fails (e.g. all points at one position).
 pub fn fit_ml(points: &Points, values: &[f64], family: Family, fit_nugget: bool) -> Option<MlFit> {
-    use super::likelihood::{Distances, Method, SearchOptions, maximise};
+    use super::likelihood::{Distances, LikelihoodKind, SearchOptions, maximise};
     let keep: Vec<usize> = (0..values.len().min(points.len())).filter(|&i| values[i].is_finite()).collect();
     if keep.len() < 3 {
         return None;
@@ -944,7 +860,7 @@ pub fn fit_ml(points: &Points, values: &[f64], family: Family, fit_nugget: bool)
     let dist = Distances::from_coords(&x, &y).ok()?;
     let ones = vec![vec![1.0; z.len()]];
     let opts = SearchOptions { nugget: fit_nugget, ..SearchOptions::default() };
-    let m = maximise(&dist, family, &ones, &z, Method::Ml, &opts).ok()?;
+    let m = maximise(&dist, family, &ones, &z, LikelihoodKind::Ml, &opts).ok()?;
     let p = &m.best;
     Some(MlFit {
         model: VariogramModel {

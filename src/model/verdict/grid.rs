@@ -8,7 +8,7 @@ use crate::model::data::{ModelData, ModelSpec};
 use crate::model::design::{Design, DesignSpec};
 use crate::model::error::{ModelError, Result};
 use crate::model::gls::{Errors, Fit, fit_correlated, fit_independent};
-use crate::spatial::likelihood::{Distances, Method};
+use crate::spatial::likelihood::{Distances, LikelihoodKind};
 
 pub(super) fn lerr(model: &str, e: crate::spatial::likelihood::LikelihoodError) -> ModelError {
     ModelError::Likelihood { model: model.into(), source: e, hint: None }
@@ -45,7 +45,7 @@ pub(super) fn fit(
     data: &ModelData,
     dist: &Distances,
     errors: Errors,
-    method: Method,
+    method: LikelihoodKind,
 ) -> Result<Fit> {
     match errors {
         Errors::Independent => fit_independent(design, &data.response, method),
@@ -117,7 +117,7 @@ pub(super) fn fit_grid(
             design_for(data, spec, drivers)?
         };
         for &errors in &error_models {
-            let f = fit(&design, data, dist, errors, Method::Ml)?;
+            let f = fit(&design, data, dist, errors, LikelihoodKind::Ml)?;
             grid.push(GridFit { drivers: drivers.clone(), errors, fit: f });
         }
     }

@@ -52,7 +52,7 @@ use super::diagnostics::{MORAN_NEIGHBOURS, knn, moran_residuals};
 use super::error::Result;
 use super::gls::{Fit, fit_independent};
 use crate::io::study::Study;
-use crate::spatial::likelihood::{Distances, Method};
+use crate::spatial::likelihood::{Distances, LikelihoodKind};
 use serde::{Deserialize, Serialize};
 use statrs::distribution::{ContinuousCDF, StudentsT};
 use std::time::Instant;
@@ -199,9 +199,9 @@ pub fn analyse(data: &ModelData, spec: &ModelSpec, opts: &VerdictOptions) -> Res
     // The chosen model, refitted by REML.
     let chosen_ml = by_name(&verdict.chosen);
     let chosen_design = design_for(data, spec, &chosen_ml.drivers)?;
-    let chosen = fit(&chosen_design, data, &dist, chosen_ml.errors, Method::Reml)?;
+    let chosen = fit(&chosen_design, data, &dist, chosen_ml.errors, LikelihoodKind::Reml)?;
     let base_design = design_for(data, spec, &[])?;
-    let plain = fit_independent(&base_design, &data.response, Method::Reml)?;
+    let plain = fit_independent(&base_design, &data.response, LikelihoodKind::Reml)?;
     let chosen_coefficients = (0..chosen.beta.len())
         .map(|j| CoefRow {
             term: chosen.names[j].clone(),

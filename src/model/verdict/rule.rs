@@ -7,6 +7,7 @@ use super::result::{LrtRow, ModelRow};
 use crate::model::compare::{self, Candidate, LrtNull, Ranked, Shape, Verdict};
 use crate::model::error::{ModelError, Result};
 use crate::model::gls::Errors;
+use crate::spatial::likelihood::LikelihoodKind;
 
 /// Rank the grid's ML fits of `n` pots by AIC and decide the verdict with the
 /// tie margin `tie_delta` (AIC units).
@@ -16,7 +17,7 @@ pub(super) fn rank_and_decide(grid: &[GridFit], n: usize, tie_delta: f64) -> Res
         .map(|g| {
             Candidate::new(
                 model_name(&g.drivers, &g.errors),
-                compare::Method::Ml,
+                LikelihoodKind::Ml,
                 Shape {
                     drivers: g.drivers.clone(),
                     correlation: match g.errors {

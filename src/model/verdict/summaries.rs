@@ -11,7 +11,7 @@ use super::{ALPHA, DISTANCE_PREFIX, mean_sd, t_quantile};
 use crate::model::data::{ModelData, ModelSpec};
 use crate::model::design::{Design, TermKind};
 use crate::model::gls::{Errors, Fit};
-use crate::model::ols::least_squares;
+use crate::spatial::factor::least_squares;
 use crate::spatial::geometry::Points;
 use crate::spatial::variogram::{Bins, Estimator, experimental};
 
@@ -138,7 +138,7 @@ fn vif(v: &[f64], others: &[&Vec<f64>]) -> Option<f64> {
     }
     let mut x = vec![vec![1.0; v.len()]];
     x.extend(others.iter().map(|o| (*o).clone()));
-    let (_, rss, _) = least_squares(&x, v)?;
+    let rss = least_squares(&x, v).ok()?.rss;
     let (m, _) = mean_sd(v);
     let tss: f64 = v.iter().map(|a| (a - m).powi(2)).sum();
     let r2 = 1.0 - rss / tss;

@@ -254,7 +254,7 @@ fn mapping_uncertainty_pools_by_rubin() {
     assert!(b > 0.0 && p1.pooled.se > ubar.sqrt(), "{}", p1.note);
     assert!(p1.ci.0 < qbar && qbar < p1.ci.1);
     let design = design_for(&d, &spec(&["cold"]), &shape.0).unwrap();
-    let plug = fit_independent(&design, &d.response, Method::Reml).unwrap();
+    let plug = fit_independent(&design, &d.response, LikelihoodKind::Reml).unwrap();
     let c = plug.names.iter().position(|n| n == "cold").unwrap();
     assert_eq!(p1.plug_in, (plug.beta[c], plug.se[c]));
     let p2 = mapping_uncertainty(&d, &spec(&["cold"]), &shape, &sv, &opts).unwrap();

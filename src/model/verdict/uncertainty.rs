@@ -12,7 +12,7 @@ use crate::model::error::{ModelError, Result};
 use crate::model::gls::Errors;
 use crate::model::imputation::{BURN_IN, Conditioning, Imputer, THIN, TraitParams};
 use crate::spatial::geometry::Points;
-use crate::spatial::likelihood::{Distances, Method};
+use crate::spatial::likelihood::{Distances, LikelihoodKind};
 use crate::spatial::variogram::{Bins, Estimator, VariogramModel, experimental};
 
 /// The sensor-level indicator file written by the climate stage, inside the output folder.
@@ -201,7 +201,7 @@ pub fn impute_and_pool(
     // The chosen model on the map: start of the chain and its correlation matrix.
     let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| lerr("positions", e))?;
     let design = design_for(data, spec, &shape.0)?;
-    let plug = fit(&design, data, &dist, shape.1, Method::Reml)?;
+    let plug = fit(&design, data, &dist, shape.1, LikelihoodKind::Reml)?;
     let c = plug
         .names
         .iter()
@@ -229,7 +229,7 @@ pub fn impute_and_pool(
     for x in imp.draws {
         d.drivers[j].1 = x;
         let design = design_for(&d, spec, &shape.0)?;
-        let f = fit(&design, &d, &dist, shape.1, Method::Reml)?;
+        let f = fit(&design, &d, &dist, shape.1, LikelihoodKind::Reml)?;
         fits.push((f.beta[c], f.se[c]));
     }
     let pooled = compare::rubin(&fits).ok_or_else(|| bad("Rubin's rules undefined".into(), None))?;
