@@ -12,7 +12,7 @@ use serde::Deserialize;
 use std::path::PathBuf;
 
 /// The file of mapped drivers written by the mapping stage, inside the output folder.
-pub const COVARIATES_FILE: &str = "pot_covariates.csv";
+pub use crate::spatial::outputs::POT_COVARIATES_FILE as COVARIATES_FILE;
 
 #[derive(Deserialize)]
 struct Doc {
@@ -346,7 +346,7 @@ pub fn assemble(
 pub fn add_opening_drivers(study: &Study, spec: &mut ModelSpec, data: &mut ModelData) -> Vec<String> {
     let mut added = Vec::new();
     for o in &study.spec.openings {
-        let name = format!("{}{}", super::verdict::DISTANCE_PREFIX, o.name);
+        let name = format!("{}{}", crate::spatial::outputs::DISTANCE_PREFIX, o.name);
         if spec.drivers.contains(&name) || data.drivers.iter().any(|(d, _)| *d == name) {
             continue;
         }
