@@ -54,6 +54,7 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
         ),
     }
     let mut overall: Option<(i64, i64)> = None;
+    let mut warnings = 0;
     for (i, files) in inv.logs.iter().enumerate() {
         println!("logs[{}]: {} file(s)", i + 1, files.len());
         for f in files {
@@ -67,6 +68,17 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
             println!("  {}: {} rows, {s}, sensors: {shown}", f.name, f.lines);
             if f.sample_flags > 0 {
                 println!("    {} reading(s) in the sampled rows would be flagged", f.sample_flags);
+            }
+            if f.mostly_flagged() {
+                warnings += 1;
+                println!(
+                    "warning: {} of {} sampled rows of {} would be flagged",
+                    f.flagged_rows, f.sample_rows, f.name
+                );
+                if let Some((cause, fix)) = f.cause_and_fix(i + 1) {
+                    println!("  cause: {cause}");
+                    println!("  fix: {fix}");
+                }
             }
             if let Some((a, b)) = f.span {
                 overall = Some(overall.map_or((a, b), |(x, y)| (x.min(a), y.max(b))));
@@ -108,6 +120,12 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
             println!("{line}");
         }
     }
-    println!("ok: every input is readable");
+    if warnings > 0 {
+        println!(
+            "checked with {warnings} warning(s): fix the blocks named above before ingesting, or most of those rows will be dropped"
+        );
+    } else {
+        println!("ok: every input is readable");
+    }
     Ok(())
 }

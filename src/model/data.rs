@@ -346,7 +346,7 @@ pub fn assemble(
 pub fn add_opening_drivers(study: &Study, spec: &mut ModelSpec, data: &mut ModelData) -> Vec<String> {
     let mut added = Vec::new();
     for o in &study.spec.openings {
-        let name = format!("{}{}", crate::spatial::outputs::DISTANCE_PREFIX, o.name);
+        let name = format!("{}{}", crate::spatial::geometry::DISTANCE_PREFIX, o.name);
         if spec.drivers.contains(&name) || data.drivers.iter().any(|(d, _)| *d == name) {
             continue;
         }

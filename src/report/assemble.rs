@@ -82,7 +82,7 @@ pub fn units(
     let drivers = drivers
         .iter()
         .filter_map(|d| {
-            let unit = if d.starts_with(crate::spatial::outputs::DISTANCE_PREFIX) {
+            let unit = if d.starts_with(crate::spatial::geometry::DISTANCE_PREFIX) {
                 Some("m".to_string())
             } else {
                 indicators.iter().find(|i| i.name == *d).map(|i| i.unit().to_string())

@@ -377,7 +377,7 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
     }
     s.push_str(",light_factor");
     for o in &spec.opening {
-        write!(s, ",{}{}", crate::spatial::outputs::DISTANCE_PREFIX, o.name).unwrap();
+        write!(s, ",{}{}", crate::spatial::geometry::DISTANCE_PREFIX, o.name).unwrap();
     }
     for ind in inds {
         write!(s, ",{}", ind.name).unwrap();

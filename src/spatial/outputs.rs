@@ -4,17 +4,15 @@
 //! that the stage's files are published together. Formats: `docs/spatial.md`.
 //! Every table is written in the one CSV format of [`crate::io::output`]
 //! (shortest round-trip numbers; an undefined value is an empty cell). The
-//! stage's file names and the `distance_` column prefix are defined here once.
+//! stage's file names are defined here once (the `distance_` column prefix in
+//! [`super::geometry`], which computes the distances).
 
 use super::correlation::Family;
 use super::error::{Result, SpatialError};
+use super::geometry::DISTANCE_PREFIX;
 use super::mapping::CvScore;
 use super::variogram::{Empirical, VariogramFit};
 use crate::io::output::{CsvTable, number, opt_number};
-
-/// The column prefix of the distance to an opening in `pot_covariates.csv`
-/// (`distance_<opening>`); the model stage reads drivers by this name.
-pub const DISTANCE_PREFIX: &str = "distance_";
 
 /// File name of the mapped drivers per pot.
 pub const POT_COVARIATES_FILE: &str = "pot_covariates.csv";

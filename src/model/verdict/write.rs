@@ -1,0 +1,138 @@
+//! The verdict stage's files: `summary.json` (the whole [`VerdictResult`]),
+//! `comparison.csv`, `drivers.csv` and `adjusted_means.csv` (columns in
+//! docs/outputs.md), written atomically into the output folder, every table
+//! in the one CSV format of [`crate::io::output`].
+
+use super::result::VerdictResult;
+use crate::io::output::{CsvTable, StageWriter, number as num, opt_number as opt};
+use crate::io::study::Study;
+use crate::model::error::Result;
+use std::path::PathBuf;
+
+/// The whole verdict result as JSON.
+pub const SUMMARY_FILE: &str = "summary.json";
+/// The grid of fits, sorted by AIC.
+pub const COMPARISON_FILE: &str = "comparison.csv";
+/// One row per driver of the chosen model.
+pub const DRIVERS_FILE: &str = "drivers.csv";
+/// Adjusted and plain means per factor level.
+pub const ADJUSTED_MEANS_FILE: &str = "adjusted_means.csv";
+
+/// Render `comparison.csv` (the grid, sorted by AIC).
+pub fn comparison_csv(r: &VerdictResult) -> String {
+    let mut t = CsvTable::new([
+        "model",
+        "drivers",
+        "correlation",
+        "nugget",
+        "loglik",
+        "aic",
+        "bic",
+        "n_params",
+        "delta_aic",
+        "akaike_weight",
+        "range",
+        "nugget_share",
+        "converged",
+        "chosen",
+    ]);
+    for m in &r.models {
+        t.row([
+            m.name.clone(),
+            m.drivers.join("+"),
+            m.correlation.clone(),
+            m.nugget.to_string(),
+            num(m.loglik),
+            num(m.aic),
+            num(m.bic),
+            m.n_params.to_string(),
+            num(m.delta_aic),
+            num(m.akaike_weight),
+            opt(m.range),
+            opt(m.nugget_share),
+            m.converged.to_string(),
+            (m.name == r.best_model).to_string(),
+        ]);
+    }
+    t.into_string()
+}
+
+/// Render `drivers.csv`.
+pub fn drivers_csv(r: &VerdictResult) -> String {
+    let mut t = CsvTable::new([
+        "driver",
+        "kind",
+        "source_model",
+        "estimate",
+        "estimate_per_sd",
+        "driver_sd",
+        "se",
+        "ci_low",
+        "ci_high",
+        "p_value",
+        "delta_aic",
+        "delta_aic_with_correlation",
+        "p_independent",
+        "p_with_correlation",
+        "vif",
+        "confounded",
+        "estimate_with_mapping_uncertainty",
+        "se_with_mapping_uncertainty",
+        "ci_low_with_mapping_uncertainty",
+        "ci_high_with_mapping_uncertainty",
+    ]);
+    for d in &r.drivers {
+        t.row([
+            d.name.clone(),
+            d.kind.to_string(),
+            d.source_model.clone(),
+            num(d.estimate),
+            num(d.estimate_per_sd),
+            num(d.driver_sd),
+            num(d.se),
+            num(d.ci_low),
+            num(d.ci_high),
+            num(d.p_value),
+            num(d.delta_aic),
+            opt(d.delta_aic_with_correlation),
+            num(d.p_independent),
+            opt(d.p_with_correlation),
+            opt(d.vif),
+            d.confounded.to_string(),
+            opt(d.estimate_with_mapping_uncertainty),
+            opt(d.se_with_mapping_uncertainty),
+            opt(d.ci_low_with_mapping_uncertainty),
+            opt(d.ci_high_with_mapping_uncertainty),
+        ]);
+    }
+    t.into_string()
+}
+
+/// Render `adjusted_means.csv`.
+pub fn adjusted_means_csv(r: &VerdictResult) -> String {
+    let mut t = CsvTable::new(["factor", "level", "mean", "se", "plain_mean", "plain_se", "change"]);
+    for a in &r.adjusted_means {
+        t.row([
+            a.factor.clone(),
+            a.level.clone(),
+            num(a.mean),
+            num(a.se),
+            num(a.plain_mean),
+            num(a.plain_se),
+            num(a.change),
+        ]);
+    }
+    t.into_string()
+}
+
+/// Write `summary.json`, `comparison.csv`, `drivers.csv` and
+/// `adjusted_means.csv` into the output folder atomically.
+pub fn write_outputs(study: &Study, r: &VerdictResult) -> Result<Vec<PathBuf>> {
+    let mut w = StageWriter::new(&study.output_dir(), "verdict")?;
+    let json = serde_json::to_string_pretty(r).expect("plain data serialises");
+    w.write(SUMMARY_FILE, json.as_bytes())?;
+    w.write(COMPARISON_FILE, comparison_csv(r).as_bytes())?;
+    w.write(DRIVERS_FILE, drivers_csv(r).as_bytes())?;
+    w.write(ADJUSTED_MEANS_FILE, adjusted_means_csv(r).as_bytes())?;
+    Ok(w.commit()?)
+}
