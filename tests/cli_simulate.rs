@@ -282,7 +282,10 @@ fn demo_exports_read_back_to_the_true_readings() {
                     } else {
                         cells[*j].to_string()
                     };
-                    let got = potclim::simulate::exports::from_unit(unit, raw.parse::<f64>().unwrap());
+                    // Read as ingestion reads it (io's conversion, not the simulator's).
+                    let conv = potclim::io::units::Conversion::of(potclim::io::units::Channel::ALL[k], unit)
+                        .unwrap_or_else(|| panic!("{rel}: unit {unit} unknown to ingestion"));
+                    let got = conv.apply(raw.parse::<f64>().unwrap());
                     let w = want[k].unwrap();
                     assert!((got - w).abs() <= 1e-4, "{rel}:{number}: {got} vs true {w}");
                     compared += 1;

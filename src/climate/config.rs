@@ -208,23 +208,6 @@ impl Statistic {
         "degree_days",
         "daily_integral",
     ];
-
-    /// How daily values combine over a window.
-    pub fn combine(&self) -> super::indicator::Combine {
-        use super::indicator::Combine;
-        match self {
-            Statistic::Min => Combine::Min,
-            Statistic::Max => Combine::Max,
-            Statistic::HoursBelow { .. } | Statistic::HoursAbove { .. } | Statistic::DegreeDays { .. } => {
-                Combine::Sum
-            }
-            Statistic::Mean
-            | Statistic::MeanDailyMin
-            | Statistic::MeanDailyMax
-            | Statistic::MeanDailyRange
-            | Statistic::DailyIntegral => Combine::Mean,
-        }
-    }
 }
 
 /// Which part of each day an indicator looks at.

@@ -83,6 +83,27 @@ pub enum Combine {
     Max,
 }
 
+impl Statistic {
+    /// How daily values of this statistic combine over a window. Defined
+    /// here, beside [`Combine`], so that `config` (which declares the
+    /// statistics) does not depend on the computation: inside `climate` the
+    /// dependencies run one way, `config` ← `calendar` ← `indicator`.
+    pub fn combine(&self) -> Combine {
+        match self {
+            Statistic::Min => Combine::Min,
+            Statistic::Max => Combine::Max,
+            Statistic::HoursBelow { .. } | Statistic::HoursAbove { .. } | Statistic::DegreeDays { .. } => {
+                Combine::Sum
+            }
+            Statistic::Mean
+            | Statistic::MeanDailyMin
+            | Statistic::MeanDailyMax
+            | Statistic::MeanDailyRange
+            | Statistic::DailyIntegral => Combine::Mean,
+        }
+    }
+}
+
 /// An indicator over a window of days.
 #[derive(Debug, Clone, PartialEq)]
 pub struct WindowValue {

@@ -16,6 +16,10 @@
 //!   cheap to call on every pot's mapped series.
 //! * [`psychro`]: FAO-56 psychrometrics.
 //! * [`stage`]: the `climate` stage end to end and its output files.
+//!
+//! Inside the module, dependencies run one way: `config` (what was declared)
+//! ← `calendar` (the grid and day rule) ← `indicator` (the computation; it
+//! also says how each declared statistic combines over a window) ← `stage`.
 
 pub mod calendar;
 pub mod config;

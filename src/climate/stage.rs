@@ -12,14 +12,14 @@ use super::config::{ClimateConfig, DayRule, Period, Variable};
 use super::error::{ClimateError, Declaration, Result};
 use super::indicator::{DayValue, WindowValue, combine_window, daily_values};
 use super::regular::{RegulariseReport, SensorGrid, read_readings, regularise, time_range_ms};
-use crate::io::output::StageWriter;
+use crate::io::ingest::READINGS_FILE;
+use crate::io::output::{CsvTable, StageWriter, opt_number};
 use crate::io::study::Study;
+use crate::io::units::Channel;
 use chrono::Duration;
 use polars::prelude::*;
 use std::path::{Path, PathBuf};
 
-/// File name of the readings table in the output folder.
-pub const READINGS_FILE: &str = "readings.parquet";
 /// Per-sensor indicators over the study period.
 pub const SENSOR_INDICATORS_FILE: &str = "sensor_indicators.csv";
 /// Per-sensor, per-day indicator values.
@@ -40,6 +40,51 @@ pub struct ClimateRun {
     pub daily: Vec<Vec<Vec<DayValue>>>,
     /// `study[i][j]`: indicator `i` of sensor `j` over the whole study period.
     pub study: Vec<Vec<WindowValue>>,
+    /// Daily means of the regular series, per channel that has any value
+    /// (in [`Channel::ALL`] order), for summaries and plots.
+    pub daily_means: Vec<ChannelDailyMeans>,
+}
+
+/// The daily means of one channel's regular series at every sensor.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ChannelDailyMeans {
+    /// The channel (°C, %, µmol m-2 s-1).
+    pub channel: Channel,
+    /// `values[j][d]`: sensor `j` (in [`SensorGrid::sensors`] order), local
+    /// day `d` (in [`Calendar::days`] order); `None` when the day has no
+    /// finite step.
+    pub values: Vec<Vec<Option<f64>>>,
+}
+
+/// The daily means of every channel with any value: per sensor and local
+/// day, the arithmetic mean of the day's finite regular steps (no coverage
+/// rule: this is a picture of the data, not an indicator). Cost
+/// O(steps × sensors) per channel.
+pub fn daily_means(grid: &SensorGrid, calendar: &Calendar) -> Vec<ChannelDailyMeans> {
+    let mut out = Vec::new();
+    for (channel, m) in [
+        (Channel::Temperature, &grid.temperature),
+        (Channel::Humidity, &grid.humidity),
+        (Channel::Light, &grid.light),
+    ] {
+        if m.all_missing() {
+            continue;
+        }
+        let values = (0..m.n_cols)
+            .map(|j| {
+                calendar
+                    .day_steps
+                    .iter()
+                    .map(|r| {
+                        let v: Vec<f64> = r.clone().map(|t| m.get(t, j)).filter(|v| v.is_finite()).collect();
+                        (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64)
+                    })
+                    .collect()
+            })
+            .collect();
+        out.push(ChannelDailyMeans { channel, values });
+    }
+    out
 }
 
 fn declaration(
@@ -187,7 +232,8 @@ pub fn compute(
         daily.push(per_sensor);
         study_values.push(windows);
     }
-    Ok(ClimateRun { config, calendar, grid, report, daily, study: study_values })
+    let daily_means = daily_means(&grid, &calendar);
+    Ok(ClimateRun { config, calendar, grid, report, daily, study: study_values, daily_means })
 }
 
 fn midnight(tz: chrono_tz::Tz, d: chrono::NaiveDate) -> i64 {
@@ -227,30 +273,25 @@ pub fn write_outputs(study: &Study, run: &ClimateRun) -> Result<Vec<PathBuf>> {
     Ok(writer.commit()?)
 }
 
-fn fmt(v: Option<f64>) -> String {
-    v.map(|x| x.to_string()).unwrap_or_default()
-}
-
 /// `sensor_indicators.csv`: `sensor`, then per indicator `<name>` (over the
-/// study period; empty when no day is valid) and `<name>_days` (valid days).
-/// Full precision (shortest round-trip decimal).
+/// study period; empty when no day is valid) and `<name>_days` (valid days),
+/// in the one CSV format of [`crate::io::output`].
 pub fn sensor_indicators_csv(run: &ClimateRun) -> Vec<u8> {
-    let mut w = csv::Writer::from_writer(Vec::new());
     let mut header = vec!["sensor".to_string()];
     for ind in &run.config.indicators {
         header.push(ind.name.clone());
         header.push(format!("{}_days", ind.name));
     }
-    w.write_record(&header).expect("writing to memory");
+    let mut t = CsvTable::new(header);
     for (j, s) in run.grid.sensors.iter().enumerate() {
         let mut rec = vec![s.clone()];
         for i in 0..run.config.indicators.len() {
-            rec.push(fmt(run.study[i][j].value));
+            rec.push(opt_number(run.study[i][j].value));
             rec.push(run.study[i][j].valid_days.to_string());
         }
-        w.write_record(&rec).expect("writing to memory");
+        t.row(rec);
     }
-    w.into_inner().expect("writing to memory")
+    t.into_bytes()
 }
 
 /// The long daily table: one row per sensor, day and indicator, with columns

@@ -17,7 +17,7 @@ use super::clock::{Resolution, format_utc};
 use super::error::{IoError, Result};
 use super::layout::{load_sensors, parse_local_datetime};
 use super::logs::{FileRead, Flag, LogFormat, Row, Variable, compile_logs, read_file_with};
-use super::output::StageWriter;
+use super::output::{CsvTable, StageWriter, number};
 use super::qc::{self, QcSettings, Reason};
 use super::study::Study;
 use super::units::Channel;
@@ -528,7 +528,7 @@ fn value_rules(seg: &mut [Row], cols: &mut Columns, q: &QcSettings, flags: &mut 
             sensor: r.sensor,
             time: Some(r.time),
             variable: Variable::Channel(Channel::ALL[k]),
-            value: format_value(v),
+            value: number(v),
             reason,
         });
         r.values[k] = f64::NAN;
@@ -584,12 +584,6 @@ fn value_rules(seg: &mut [Row], cols: &mut Columns, q: &QcSettings, flags: &mut 
             cols.values[k][i] = f64::NAN;
         }
     }
-}
-
-fn format_value(v: f64) -> String {
-    let s = format!("{v:.6}");
-    let s = s.trim_end_matches('0').trim_end_matches('.');
-    if s == "-0" { "0".into() } else { s.to_string() }
 }
 
 /// Gaps of each channel of one sensor: consecutive readings (non-null values)
@@ -672,6 +666,16 @@ fn chunk_by_runs(s: Series, runs: &[(u32, usize)]) -> PolarsResult<Series> {
     Ok(out)
 }
 
+/// The readings table (Parquet): [`write_outputs`] writes it, the climate
+/// and mapping stages read it.
+pub const READINGS_FILE: &str = "readings.parquet";
+/// Every reading not kept as is, with its reason.
+pub const QC_FLAGS_FILE: &str = "qc_flags.csv";
+/// Rows read, kept and flagged per input file and reason.
+pub const QC_SUMMARY_FILE: &str = "qc_summary.csv";
+/// Gaps per sensor and channel.
+pub const GAPS_FILE: &str = "gaps.csv";
+
 /// Write `readings.parquet`, `qc_flags.csv`, `qc_summary.csv` and `gaps.csv`
 /// into the study's output folder, all published together (see
 /// `io::output`). Returns the published paths.
@@ -683,74 +687,51 @@ pub fn write_outputs(study: &Study, ing: &Ingested) -> Result<Vec<PathBuf>> {
         source: std::io::Error::other(e.to_string()),
     };
 
-    let p = w.path("readings.parquet");
+    let p = w.path(READINGS_FILE);
     let f = std::fs::File::create(&p).map_err(|source| IoError::Read { path: p.clone(), source })?;
     let mut df = ing.readings.clone();
     ParquetWriter::new(f).finish(&mut df).map_err(|e| werr(&p, &e))?;
 
-    let csv_file = |w: &mut StageWriter,
-                    name: &str,
-                    header: &[&str],
-                    rows: &mut dyn Iterator<Item = Vec<String>>|
-     -> Result<()> {
-        let p = w.path(name);
-        let mut c = csv::Writer::from_path(&p).map_err(|e| werr(&p, &e))?;
-        c.write_record(header).map_err(|e| werr(&p, &e))?;
-        for r in rows {
-            c.write_record(&r).map_err(|e| werr(&p, &e))?;
-        }
-        c.flush().map_err(|source| IoError::Read { path: p.clone(), source })
-    };
-
     let sensor_name = |s: u32| if s == u32::MAX { String::new() } else { ing.sensors[s as usize].clone() };
-    csv_file(
-        &mut w,
-        "qc_flags.csv",
-        &["file", "line", "sensor", "time", "variable", "value", "reason"],
-        &mut ing.flags.iter().map(|f| {
-            vec![
-                ing.files[f.file as usize].name.clone(),
-                f.line.to_string(),
-                sensor_name(f.sensor),
-                f.time.map(format_utc).unwrap_or_default(),
-                f.variable.name().to_string(),
-                f.value.clone(),
-                f.reason.name().to_string(),
-            ]
-        }),
-    )?;
+    let mut t = CsvTable::new(["file", "line", "sensor", "time", "variable", "value", "reason"]);
+    for f in &ing.flags {
+        t.row([
+            ing.files[f.file as usize].name.clone(),
+            f.line.to_string(),
+            sensor_name(f.sensor),
+            f.time.map(format_utc).unwrap_or_default(),
+            f.variable.name().to_string(),
+            f.value.clone(),
+            f.reason.name().to_string(),
+        ]);
+    }
+    w.write(QC_FLAGS_FILE, &t.into_bytes())?;
     let mut header = vec!["file", "rows_read", "rows_kept", "rows_flagged"];
     header.extend(Reason::ALL.iter().map(|r| r.name()));
-    csv_file(
-        &mut w,
-        "qc_summary.csv",
-        &header,
-        &mut ing.files.iter().map(|s| {
-            let mut r = vec![
-                s.name.clone(),
-                s.rows_read.to_string(),
-                s.rows_kept.to_string(),
-                s.rows_flagged.to_string(),
-            ];
-            r.extend(s.by_reason.iter().map(|n| n.to_string()));
-            r
-        }),
-    )?;
-    csv_file(
-        &mut w,
-        "gaps.csv",
-        &["sensor", "variable", "from", "to", "hours", "step_minutes"],
-        &mut ing.gaps.iter().map(|g| {
-            vec![
-                g.sensor.clone(),
-                g.channel.column().to_string(),
-                format_utc(g.from),
-                format_utc(g.to),
-                format_value((g.to - g.from) as f64 / 3_600_000.0),
-                format_value(g.step as f64 / 60_000.0),
-            ]
-        }),
-    )?;
+    let mut t = CsvTable::new(header);
+    for s in &ing.files {
+        let mut r = vec![
+            s.name.clone(),
+            s.rows_read.to_string(),
+            s.rows_kept.to_string(),
+            s.rows_flagged.to_string(),
+        ];
+        r.extend(s.by_reason.iter().map(|n| n.to_string()));
+        t.row(r);
+    }
+    w.write(QC_SUMMARY_FILE, &t.into_bytes())?;
+    let mut t = CsvTable::new(["sensor", "variable", "from", "to", "hours", "step_minutes"]);
+    for g in &ing.gaps {
+        t.row([
+            g.sensor.clone(),
+            g.channel.column().to_string(),
+            format_utc(g.from),
+            format_utc(g.to),
+            number((g.to - g.from) as f64 / 3_600_000.0),
+            number(g.step as f64 / 60_000.0),
+        ]);
+    }
+    w.write(GAPS_FILE, &t.into_bytes())?;
     w.commit()
 }
 
@@ -945,12 +926,5 @@ mod tests {
         let p = Period { start: Some(10), end: Some(20) };
         assert!(p.contains(10) && p.contains(20) && !p.contains(9) && !p.contains(21));
         assert!(Period::default().contains(i64::MIN));
-    }
-
-    #[test]
-    fn values_are_formatted_without_noise() {
-        assert_eq!(format_value(20.0), "20");
-        assert_eq!(format_value(-0.0000001), "0");
-        assert_eq!(format_value(104.25), "104.25");
     }
 }

@@ -10,7 +10,7 @@ use super::layout::{load_pots, load_sensors};
 use super::logs::{LogFormat, compile_logs, read_bytes};
 use super::qc::Reason;
 use super::study::Study;
-use super::table::is_missing;
+use super::table::{Table, is_missing};
 use std::collections::{BTreeMap, BTreeSet};
 
 /// Data rows parsed at the start and at the end of each export.
@@ -115,6 +115,27 @@ pub struct CrossTab {
     pub counts: Vec<Vec<usize>>,
 }
 
+/// Pots per combination of the levels of columns `rows` and `cols` of
+/// `table`, with the levels of each sorted (the order `potclim check` prints
+/// and the report shows). Cells count as written: a missing cell is a level
+/// of its own, so the counts always add up to the table's rows. Cost
+/// O(rows × levels). Errors when a column is absent.
+pub fn cross_tab(table: &Table, rows: &str, cols: &str) -> Result<CrossTab> {
+    let a = table.text(rows)?;
+    let b = table.text(cols)?;
+    let rl: Vec<String> =
+        a.iter().copied().collect::<BTreeSet<&str>>().into_iter().map(str::to_string).collect();
+    let cl: Vec<String> =
+        b.iter().copied().collect::<BTreeSet<&str>>().into_iter().map(str::to_string).collect();
+    let mut counts = vec![vec![0; cl.len()]; rl.len()];
+    for (x, y) in a.iter().zip(&b) {
+        let i = rl.binary_search_by(|l| l.as_str().cmp(x)).unwrap_or(0);
+        let j = cl.binary_search_by(|l| l.as_str().cmp(y)).unwrap_or(0);
+        counts[i][j] += 1;
+    }
+    Ok(CrossTab { rows: rows.to_string(), cols: cols.to_string(), row_levels: rl, col_levels: cl, counts })
+}
+
 /// What `potclim check` reports.
 #[derive(Debug, Clone)]
 pub struct Inventory {
@@ -168,7 +189,6 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
     }
     let t = &pots.table;
     let mut factors = Vec::new();
-    let mut factor_cols = Vec::new();
     for (j, h) in t.headers.iter().enumerate() {
         if skip.contains(h.as_str()) {
             continue;
@@ -186,26 +206,11 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
             continue; // a label per pot, not a factor
         }
         factors.push(Factor { name: h.clone(), levels: counts.into_iter().collect() });
-        factor_cols.push(j);
     }
     let mut crosstabs = Vec::new();
     for a in 0..factors.len() {
         for b in a + 1..factors.len() {
-            let rl: Vec<String> = factors[a].levels.iter().map(|l| l.0.clone()).collect();
-            let cl: Vec<String> = factors[b].levels.iter().map(|l| l.0.clone()).collect();
-            let mut counts = vec![vec![0; cl.len()]; rl.len()];
-            for r in &t.rows {
-                let i = rl.iter().position(|l| *l == r[factor_cols[a]]).unwrap_or(0);
-                let j = cl.iter().position(|l| *l == r[factor_cols[b]]).unwrap_or(0);
-                counts[i][j] += 1;
-            }
-            crosstabs.push(CrossTab {
-                rows: factors[a].name.clone(),
-                cols: factors[b].name.clone(),
-                row_levels: rl,
-                col_levels: cl,
-                counts,
-            });
+            crosstabs.push(cross_tab(t, &factors[a].name, &factors[b].name)?);
         }
     }
     Ok(Inventory {

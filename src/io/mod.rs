@@ -17,6 +17,7 @@ pub mod inventory;
 pub mod layout;
 pub mod logs;
 pub mod output;
+pub mod provenance;
 pub mod qc;
 pub mod study;
 pub mod table;

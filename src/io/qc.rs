@@ -59,7 +59,7 @@ impl Reason {
     ];
 
     /// The name used in `qc_flags.csv` and `qc_summary.csv`.
-    pub fn name(self) -> &'static str {
+    pub const fn name(self) -> &'static str {
         match self {
             Reason::OutOfRange => "out_of_range",
             Reason::Spike => "spike",

@@ -25,8 +25,9 @@ impl Channel {
     /// The three channels in column order of `readings.parquet`.
     pub const ALL: [Channel; 3] = [Channel::Temperature, Channel::Humidity, Channel::Light];
 
-    /// The key of the channel in `[logs.columns]`.
-    pub fn key(self) -> &'static str {
+    /// The key of the channel in `[logs.columns]` (also the channel's name
+    /// in `qc_flags.csv` and in the simulator's scenario files).
+    pub const fn key(self) -> &'static str {
         match self {
             Channel::Temperature => "temperature",
             Channel::Humidity => "humidity",
@@ -35,7 +36,7 @@ impl Channel {
     }
 
     /// The output column of the channel (name carries the unit).
-    pub fn column(self) -> &'static str {
+    pub const fn column(self) -> &'static str {
         match self {
             Channel::Temperature => "temperature_c",
             Channel::Humidity => "rh_pct",
@@ -43,8 +44,9 @@ impl Channel {
         }
     }
 
-    /// The unit names accepted for this channel.
-    pub fn unit_names(self) -> &'static [&'static str] {
+    /// The unit names accepted for this channel (the same list for reading
+    /// logger exports and for writing simulated ones).
+    pub const fn unit_names(self) -> &'static [&'static str] {
         match self {
             Channel::Temperature => &["degC", "degF", "K"],
             Channel::Humidity => &["percent", "fraction"],
@@ -55,6 +57,11 @@ impl Channel {
     /// Index 0, 1, 2 in [`Channel::ALL`].
     pub fn index(self) -> usize {
         self as usize
+    }
+
+    /// The channel whose [`Channel::key`] is `key`.
+    pub fn from_key(key: &str) -> Option<Channel> {
+        Channel::ALL.into_iter().find(|c| c.key() == key)
     }
 }
 
@@ -107,6 +114,15 @@ impl Conversion {
     #[inline]
     pub fn apply(self, raw: f64) -> f64 {
         raw.mul_add(self.scale, self.offset)
+    }
+
+    /// The inverse, internal unit → raw unit: `raw = (internal − offset) /
+    /// scale`. Used to write values in a logger's unit (the simulator), so
+    /// that [`Conversion::apply`] reads them back. Every scale is non-zero.
+    /// Cost: one subtraction and one division.
+    #[inline]
+    pub fn invert(self, internal: f64) -> f64 {
+        (internal - self.offset) / self.scale
     }
 
     /// The conversion of unit `name` of `channel` into the internal unit, or
@@ -185,6 +201,37 @@ mod tests {
     fn humidity_fraction_to_percent() {
         assert_abs_diff_eq!(conv(Channel::Humidity, "fraction", 0.655), 65.5, epsilon = 1e-12);
         assert_abs_diff_eq!(conv(Channel::Humidity, "percent", 65.5), 65.5, epsilon = 1e-12);
+    }
+
+    /// `invert` undoes `apply` for every unit of every channel, within a few
+    /// ulps of the operands (property of an affine map with a non-zero scale).
+    #[test]
+    fn invert_undoes_apply_for_every_unit() {
+        for ch in Channel::ALL {
+            assert_eq!(Channel::from_key(ch.key()), Some(ch));
+            for u in ch.unit_names() {
+                let c = Conversion::of(ch, u).unwrap();
+                for x in [-40.0, 0.0, 0.655, 17.3, 1234.5] {
+                    let back = c.apply(c.invert(x));
+                    // Rounding of the subtraction and the multiply-add: a few
+                    // ulps of the larger of |x| and the offset.
+                    let tol = 4.0 * f64::EPSILON * (x.abs() + c.offset.abs()).max(1.0);
+                    assert!((back - x).abs() <= tol, "{ch} {u} {x} {back}");
+                }
+            }
+        }
+        // Defining points (see above): 100 °C = 212 °F = 373.15 K.
+        assert_abs_diff_eq!(
+            Conversion::of(Channel::Temperature, "degF").unwrap().invert(100.0),
+            212.0,
+            epsilon = 1e-12
+        );
+        assert_abs_diff_eq!(
+            Conversion::of(Channel::Temperature, "K").unwrap().invert(100.0),
+            373.15,
+            epsilon = 1e-12
+        );
+        assert_eq!(Channel::from_key("pressure"), None);
     }
 
     #[test]

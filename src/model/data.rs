@@ -12,7 +12,7 @@ use serde::Deserialize;
 use std::path::PathBuf;
 
 /// The file of mapped drivers written by the mapping stage, inside the output folder.
-pub const COVARIATES_FILE: &str = "pot_covariates.csv";
+pub use crate::spatial::outputs::POT_COVARIATES_FILE as COVARIATES_FILE;
 
 #[derive(Deserialize)]
 struct Doc {

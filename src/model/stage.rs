@@ -157,16 +157,15 @@ pub fn residual_variograms_csv(r: &FitReport) -> Result<Vec<u8>> {
         })
         .collect();
     variograms_csv(&tables).map_err(|e| {
-        crate::io::IoError::Table { path: "residual_variograms.csv".into(), message: e.to_string() }.into()
+        crate::io::IoError::Table { path: RESIDUAL_VARIOGRAMS_FILE.into(), message: e.to_string() }.into()
     })
 }
 
-fn num(v: f64) -> String {
-    if v.is_finite() { format!("{v:?}") } else { String::new() }
-}
+// Numbers and text cells in the one CSV format of `crate::io::output`.
+use crate::io::output::number as num;
 
 fn csv_field(s: &str) -> String {
-    if s.contains([',', '"', '\n']) { format!("\"{}\"", s.replace('"', "\"\"")) } else { s.to_string() }
+    crate::io::output::field(s, ',').into_owned()
 }
 
 /// The name of a fit in the output tables: the error structure.
@@ -350,14 +349,27 @@ pub fn diagnostics_csv(r: &FitReport) -> String {
     s
 }
 
+/// The files of the stage, in the order [`write_outputs`] writes them.
+pub const MODELS_FILE: &str = "models.csv";
+/// Coefficients of OLS and of every fit.
+pub const COEFFICIENTS_FILE: &str = "coefficients.csv";
+/// Analysis-of-variance and Wald tables.
+pub const ANOVA_FILE: &str = "anova.csv";
+/// Fitted values and residuals per pot and fit.
+pub const RESIDUALS_FILE: &str = "residuals.csv";
+/// Residual diagnostics per fit.
+pub const DIAGNOSTICS_FILE: &str = "diagnostics.csv";
+/// Variograms of the normalised residuals.
+pub const RESIDUAL_VARIOGRAMS_FILE: &str = "residual_variograms.csv";
+
 /// Write every output of the stage into the study's output folder atomically.
 pub fn write_outputs(study: &Study, r: &FitReport) -> Result<Vec<PathBuf>> {
     let mut w = StageWriter::new(&study.output_dir(), "fit")?;
-    w.write("models.csv", models_csv(r).as_bytes())?;
-    w.write("coefficients.csv", coefficients_csv(r).as_bytes())?;
-    w.write("anova.csv", anova_csv(r).as_bytes())?;
-    w.write("residuals.csv", residuals_csv(r).as_bytes())?;
-    w.write("diagnostics.csv", diagnostics_csv(r).as_bytes())?;
-    w.write("residual_variograms.csv", &residual_variograms_csv(r)?)?;
+    w.write(MODELS_FILE, models_csv(r).as_bytes())?;
+    w.write(COEFFICIENTS_FILE, coefficients_csv(r).as_bytes())?;
+    w.write(ANOVA_FILE, anova_csv(r).as_bytes())?;
+    w.write(RESIDUALS_FILE, residuals_csv(r).as_bytes())?;
+    w.write(DIAGNOSTICS_FILE, diagnostics_csv(r).as_bytes())?;
+    w.write(RESIDUAL_VARIOGRAMS_FILE, &residual_variograms_csv(r)?)?;
     Ok(w.commit()?)
 }

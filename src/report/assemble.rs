@@ -1,17 +1,19 @@
 //! Assembly of [`ReportData`] sections from the stages' results: the layout,
 //! the climate (mapped surfaces, daily sensor series, QC and gaps), the
-//! variograms and the provenance. It copies and reshapes numbers the stages
-//! computed; the only arithmetic is the daily mean of the regular sensor
-//! series for the small-multiple plots and the evaluation of fitted
-//! variogram curves at plotting lags.
+//! variograms and the provenance. It copies, labels and reshapes what the
+//! stages computed and carry in their results (the count table from
+//! [`crate::io::inventory::cross_tab`], the daily means in
+//! [`ClimateRun::daily_means`], the fitted curves in
+//! [`crate::spatial::stage::VariableMap::fit_curves`], the input digests from
+//! [`crate::io::provenance`]); it computes nothing.
 
 use super::data::*;
 use crate::climate::ClimateRun;
 use crate::io::ingest::Ingested;
 use crate::io::layout::{Pots, Sensors};
 use crate::io::study::Study;
+use crate::io::units::Channel;
 use crate::spatial::stage::MapRun;
-use sha2::{Digest, Sha256};
 use std::collections::BTreeMap;
 
 /// The layout section: pots coloured by the trait, sensors, openings, and the
@@ -45,42 +47,18 @@ pub fn layout(
         .iter()
         .map(|o| OpeningSegment { name: o.name.clone(), from: o.from, to: o.to })
         .collect();
-    let counts = if factors.len() >= 2 {
-        match (pots.table.text(&factors[0]), pots.table.text(&factors[1])) {
-            (Ok(a), Ok(b)) => {
-                let mut rl: Vec<String> = Vec::new();
-                let mut cl: Vec<String> = Vec::new();
-                for (x, y) in a.iter().zip(&b) {
-                    if !rl.iter().any(|l| l == x) {
-                        rl.push(x.to_string());
-                    }
-                    if !cl.iter().any(|l| l == y) {
-                        cl.push(y.to_string());
-                    }
-                }
-                // Sorted, as `potclim check` prints its count table, so that a
-                // reader finds a level where expected (the model keeps the
-                // order of first appearance for its reference level).
-                rl.sort();
-                cl.sort();
-                let mut counts = vec![vec![0u64; cl.len()]; rl.len()];
-                for (x, y) in a.iter().zip(&b) {
-                    let i = rl.iter().position(|l| l == x).unwrap_or(0);
-                    let j = cl.iter().position(|l| l == y).unwrap_or(0);
-                    counts[i][j] += 1;
-                }
-                Some(CountTable {
-                    row_factor: factors[0].clone(),
-                    col_factor: factors[1].clone(),
-                    row_levels: rl,
-                    col_levels: cl,
-                    counts,
-                })
-            }
-            _ => None,
-        }
-    } else {
-        None
+    // Sorted levels, as `potclim check` prints its count table, so that a
+    // reader finds a level where expected (the model keeps the order of first
+    // appearance for its reference level).
+    let counts = match factors {
+        [a, b, ..] => crate::io::inventory::cross_tab(&pots.table, a, b).ok().map(|c| CountTable {
+            row_factor: c.rows,
+            col_factor: c.cols,
+            row_levels: c.row_levels,
+            col_levels: c.col_levels,
+            counts: c.counts.into_iter().map(|r| r.into_iter().map(|n| n as u64).collect()).collect(),
+        }),
+        _ => None,
     };
     LayoutSection {
         trait_name: trait_column.unwrap_or("trait").to_string(),
@@ -104,7 +82,7 @@ pub fn units(
     let drivers = drivers
         .iter()
         .filter_map(|d| {
-            let unit = if d.starts_with(crate::model::verdict::DISTANCE_PREFIX) {
+            let unit = if d.starts_with(crate::spatial::geometry::DISTANCE_PREFIX) {
                 Some("m".to_string())
             } else {
                 indicators.iter().find(|i| i.name == *d).map(|i| i.unit().to_string())
@@ -141,38 +119,31 @@ pub fn climate(ing: &Ingested, climate: &ClimateRun, map: &MapRun) -> ClimateSec
             points,
         });
     }
-    let cal = &climate.calendar;
-    let days: Vec<String> = cal.days.iter().map(|d| d.to_string()).collect();
-    let mut series = Vec::new();
-    for (name, unit, m) in [
-        ("temperature", "°C", &climate.grid.temperature),
-        ("relative humidity", "%", &climate.grid.humidity),
-        ("PPFD", "µmol m-2 s-1", &climate.grid.light),
-    ] {
-        if m.all_missing() {
-            continue;
-        }
-        let sensors = (0..m.n_cols)
-            .map(|j| SensorSeries {
-                sensor: climate.grid.sensors[j].clone(),
-                values: cal
-                    .day_steps
-                    .iter()
-                    .map(|r| {
-                        let v: Vec<f64> = r.clone().map(|t| m.get(t, j)).filter(|v| v.is_finite()).collect();
-                        (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64)
-                    })
-                    .collect(),
-            })
-            .filter(|s| s.values.iter().any(Option::is_some))
-            .collect();
-        series.push(DailySeries {
-            variable: format!("daily mean {name}"),
-            unit: unit.into(),
-            days: days.clone(),
-            sensors,
-        });
-    }
+    let days: Vec<String> = climate.calendar.days.iter().map(|d| d.to_string()).collect();
+    let series = climate
+        .daily_means
+        .iter()
+        .map(|m| {
+            let (name, unit) = match m.channel {
+                Channel::Temperature => ("temperature", "°C"),
+                Channel::Humidity => ("relative humidity", "%"),
+                Channel::Light => ("PPFD", "µmol m-2 s-1"),
+            };
+            let sensors = m
+                .values
+                .iter()
+                .zip(&climate.grid.sensors)
+                .filter(|(v, _)| v.iter().any(Option::is_some))
+                .map(|(v, s)| SensorSeries { sensor: s.clone(), values: v.clone() })
+                .collect();
+            DailySeries {
+                variable: format!("daily mean {name}"),
+                unit: unit.into(),
+                days: days.clone(),
+                sensors,
+            }
+        })
+        .collect();
     let qc = ing
         .files
         .iter()
@@ -223,14 +194,13 @@ pub fn variograms(map: &MapRun) -> Vec<VariogramPanel> {
                     Some(VariogramBin { lag: b.lag, semivariance: s, pairs: b.pairs as u64 })
                 })
                 .collect();
-            let max_lag = v.empirical.bins.last().map(|b| b.to).unwrap_or(1.0);
             let fits = v
                 .fits
                 .iter()
-                .filter_map(|(fam, f)| {
+                .zip(&v.fit_curves)
+                .filter_map(|((fam, f), curve)| {
                     let m = f.as_ref()?.model;
-                    let curve =
-                        (0..=60).map(|k| max_lag * k as f64 / 60.0).map(|h| [h, m.semivariance(h)]).collect();
+                    let curve = curve.clone()?;
                     Some(VariogramFit {
                         family: fam.name(),
                         nugget: m.nugget,
@@ -256,30 +226,13 @@ pub fn variograms(map: &MapRun) -> Vec<VariogramPanel> {
         .collect()
 }
 
-fn input_file(study: &Study, path: &std::path::Path) -> Option<InputFile> {
-    let bytes = std::fs::read(path).ok()?;
-    let shown = path.strip_prefix(&study.dir).unwrap_or(path).display().to_string();
-    Some(InputFile {
-        path: shown,
-        bytes: bytes.len() as u64,
-        sha256: Sha256::digest(&bytes).iter().map(|b| format!("{b:02x}")).collect(),
-    })
-}
-
 /// Provenance: every input file with size and SHA-256, the study file's
 /// text, the tool version and seed.
 pub fn provenance(study: &Study, ing: Option<&Ingested>, started: &str, seconds: Option<f64>) -> Provenance {
-    let mut inputs = Vec::new();
-    inputs.extend(input_file(study, &study.path));
-    inputs.extend(input_file(study, &study.resolve(&study.spec.pots.file)));
-    if let Some(s) = &study.spec.sensors {
-        inputs.extend(input_file(study, &study.resolve(&s.file)));
-    }
-    if let Some(ing) = ing {
-        for f in &ing.files {
-            inputs.extend(input_file(study, &f.path));
-        }
-    }
+    let inputs = crate::io::provenance::input_files(study, ing)
+        .into_iter()
+        .map(|f| InputFile { path: f.path, bytes: f.bytes, sha256: f.sha256 })
+        .collect();
     Provenance {
         inputs,
         study_file: study.source.clone(),
@@ -287,28 +240,5 @@ pub fn provenance(study: &Study, ing: Option<&Ingested>, started: &str, seconds:
         seed: study.seed(),
         started: started.to_string(),
         seconds,
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    /// SHA-256 of "abc": FIPS 180-2, Appendix B.1 (the standard's own example).
-    #[test]
-    fn input_checksum_matches_the_standard_example() {
-        let d = tempfile::tempdir().unwrap();
-        let p = d.path().join("study.toml");
-        std::fs::write(
-            &p,
-            "[study]\ntitle = \"t\"\ntimezone = \"UTC\"\noutput = \"out\"\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\n",
-        )
-        .unwrap();
-        let study = Study::load(&p).unwrap();
-        std::fs::write(d.path().join("abc.txt"), "abc").unwrap();
-        let f = input_file(&study, &d.path().join("abc.txt")).unwrap();
-        assert_eq!(f.sha256, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
-        assert_eq!(f.bytes, 3);
-        assert_eq!(f.path, "abc.txt");
     }
 }

@@ -5,6 +5,7 @@
 //! nothing in the analysis reads this module.
 
 use super::data::*;
+use crate::model::compare::{Candidate, Method, Shape, rank};
 use std::collections::BTreeMap;
 
 const LENGTH: f64 = 12.0;
@@ -144,24 +145,33 @@ pub fn sample_report() -> ReportData {
         ("base | gaussian", vec![], Some("gaussian"), false, -249.0, 16),
         ("base", vec![], None, false, -262.8, 14),
     ];
-    let aics: Vec<f64> = comparison_rows.iter().map(|r| -2.0 * r.4 + 2.0 * r.5 as f64).collect();
-    let best = aics.iter().copied().fold(f64::INFINITY, f64::min);
-    let raw: Vec<f64> = aics.iter().map(|a| (-(a - best) / 2.0).exp()).collect();
-    let total: f64 = raw.iter().sum();
-    let comparison = comparison_rows
+    // AIC, BIC, delta-AIC and Akaike weights by the model stage's own
+    // ranking (the report never computes them), on 96 invented pots.
+    let candidates: Vec<Candidate> = comparison_rows
         .iter()
-        .zip(aics.iter().zip(&raw))
-        .map(|(r, (aic, w))| ComparisonRow {
-            name: r.0.into(),
-            drivers: r.1.iter().map(|s| s.to_string()).collect(),
-            correlation: r.2.map(str::to_string),
-            nugget: r.3,
-            loglik: r.4,
-            aic: *aic,
-            bic: -2.0 * r.4 + r.5 as f64 * 96f64.ln(),
-            n_params: r.5,
-            delta_aic: aic - best,
-            akaike_weight: w / total,
+        .map(|r| {
+            let shape = Shape {
+                drivers: r.1.iter().map(|s| s.to_string()).collect(),
+                correlation: r.2.map(str::to_string),
+                nugget: r.3,
+            };
+            Candidate::new(r.0, Method::Ml, shape, r.4, r.5, 96).expect("finite invented likelihoods")
+        })
+        .collect();
+    let comparison = rank(&candidates)
+        .expect("one data set")
+        .into_iter()
+        .map(|r| ComparisonRow {
+            name: r.candidate.name,
+            drivers: r.candidate.drivers,
+            correlation: r.candidate.correlation,
+            nugget: r.candidate.nugget,
+            loglik: r.candidate.loglik,
+            aic: r.aic,
+            bic: r.bic,
+            n_params: r.candidate.n_params as u64,
+            delta_aic: r.delta_aic,
+            akaike_weight: r.akaike_weight,
         })
         .collect();
     let mut adjusted = Vec::new();

@@ -12,10 +12,12 @@
 use super::climate::Reference;
 use super::error::Result;
 use super::scenario::{ExportChannel, ExportSpec, Scenario};
+use crate::io::qc::Reason;
+use crate::io::units::{Channel, Conversion};
 use chrono::{DateTime, Duration, SecondsFormat, TimeZone, Utc};
 
-/// Channels in a fixed order.
-pub const CHANNELS: [&str; 3] = ["temperature", "humidity", "light"];
+/// Channel names in a fixed order: the keys of [`Channel::ALL`].
+pub const CHANNELS: [&str; 3] = [Channel::Temperature.key(), Channel::Humidity.key(), Channel::Light.key()];
 
 /// One injected fault that a reader of the files should flag.
 #[derive(Debug, Clone, PartialEq)]
@@ -72,34 +74,27 @@ pub struct Exports {
     pub truth: Vec<TruthReading>,
 }
 
-/// SI value -> value in an export unit. Temperature: °F = °C * 9/5 + 32,
-/// K = °C + 273.15 (BIPM SI Brochure, 9th ed., 2019, §2.3.1 for kelvin).
-/// Humidity: fraction = % / 100. Light: `lux_sunlight` uses the daylight
-/// factor of Thimijan & Heins (1983), *HortScience* 18: 818-822,
-/// PPFD = lux * 0.0185, so lux = PPFD / 0.0185.
-pub fn to_unit(unit: &str, si: f64) -> f64 {
-    match unit {
-        "degF" => si * 9.0 / 5.0 + 32.0,
-        "K" => si + 273.15,
-        "fraction" => si / 100.0,
-        "lux_sunlight" => si / LUX_SUNLIGHT,
-        _ => si,
-    }
+/// The conversion of export unit `unit` of channel `k` (index into
+/// [`CHANNELS`]) into potclim's internal unit: the one ingestion applies
+/// ([`crate::io::units::Conversion::of`]), so that a simulated export reads
+/// back to the value the simulator meant. Scenario checking rejects any unit
+/// that ingestion does not know, so `None` here is a bug.
+fn conversion(k: usize, unit: &str) -> Conversion {
+    Conversion::of(Channel::ALL[k], unit)
+        .expect("scenario checking admits only units that ingestion converts")
 }
 
-/// Inverse of [`to_unit`].
-pub fn from_unit(unit: &str, v: f64) -> f64 {
-    match unit {
-        "degF" => (v - 32.0) * 5.0 / 9.0,
-        "K" => v - 273.15,
-        "fraction" => v * 100.0,
-        "lux_sunlight" => v * LUX_SUNLIGHT,
-        _ => v,
-    }
+/// SI value -> value in export unit `unit` of channel `k`: the inverse of
+/// ingestion's conversion ([`Conversion::invert`]).
+pub fn to_unit(k: usize, unit: &str, si: f64) -> f64 {
+    conversion(k, unit).invert(si)
 }
 
-/// µmol m-2 s-1 per lux of daylight (Thimijan & Heins 1983, via REFERENCE.md §2.2).
-pub const LUX_SUNLIGHT: f64 = 0.0185;
+/// Export value -> SI value, exactly as ingestion converts it
+/// ([`Conversion::apply`]).
+pub fn from_unit(k: usize, unit: &str, v: f64) -> f64 {
+    conversion(k, unit).apply(v)
+}
 
 /// `v` with `decimals` fixed decimals and no negative zero.
 pub fn fixed(v: f64, decimals: usize) -> String {
@@ -112,7 +107,7 @@ struct Row {
     idx: usize,
     time_text: String,
     cells: [Option<String>; 3],
-    faults: Vec<(String, &'static str)>,
+    faults: Vec<(String, Reason)>,
     copy: usize,
 }
 
@@ -124,11 +119,12 @@ fn channel(e: &ExportSpec, k: usize) -> Option<&ExportChannel> {
     }
 }
 
-/// Printed text and the SI value it means.
-fn print(c: &ExportChannel, si: f64, comma: bool) -> (String, f64) {
+/// Printed text of channel `k` and the SI value it means (what ingestion
+/// reads back from that text).
+fn print(k: usize, c: &ExportChannel, si: f64, comma: bool) -> (String, f64) {
     let d = c.decimals.unwrap_or(1);
-    let s = fixed(to_unit(&c.unit, si), d);
-    let back = from_unit(&c.unit, s.parse::<f64>().expect("a printed number parses"));
+    let s = fixed(to_unit(k, &c.unit, si), d);
+    let back = from_unit(k, &c.unit, s.parse::<f64>().expect("a printed number parses"));
     (if comma { s.replace('.', ",") } else { s }, back)
 }
 
@@ -152,12 +148,10 @@ fn fold(sc: &Scenario, t: DateTime<Utc>) -> Option<bool> {
     }
 }
 
+/// A cell of an export: the one quoting rule of [`crate::io::output::field`]
+/// with the export's delimiter.
 fn quote(s: &str, delim: char) -> String {
-    if s.contains(delim) || s.contains('"') || s.contains('\n') {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
-    }
+    crate::io::output::field(s, delim).into_owned()
 }
 
 /// Write every export. `readings[l][i]` is the genuine SI reading of logger
@@ -177,7 +171,7 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
                 let mut cells = [None, None, None];
                 for (k, cell) in cells.iter_mut().enumerate() {
                     if let Some(c) = channel(e, k) {
-                        *cell = Some(print(c, readings[li][i][k], comma).0);
+                        *cell = Some(print(k, c, readings[li][i][k], comma).0);
                     }
                 }
                 Row { idx: i, time_text: time_text(sc, e, r.times[i]), cells, faults: Vec::new(), copy: 0 }
@@ -232,7 +226,7 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
                     }
                     rows.retain(|w| fold(sc, r.times[w.idx]) != Some(true));
                     for w in rows.iter_mut().filter(|w| fold(sc, r.times[w.idx]) == Some(false)) {
-                        w.faults.push((String::new(), "ambiguous_time"));
+                        w.faults.push((String::new(), Reason::AmbiguousTime));
                     }
                     out.gaps.push(GapRecord {
                         sensor: lg.id.clone(),
@@ -284,9 +278,9 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
                     conflict(&rows[j], CHANNELS[k])?;
                     let genuine = readings[li][rows[j].idx][k];
                     let (text, reason) = match f.kind.as_str() {
-                        "spike" => (print(c, genuine + f.value.unwrap_or(0.0), comma).0, "spike"),
-                        "out_of_range" => (print(c, f.value.unwrap_or(0.0), comma).0, "out_of_range"),
-                        _ => (f.text.clone().unwrap_or_else(|| "ERR".into()), "unparsable_value"),
+                        "spike" => (print(k, c, genuine + f.value.unwrap_or(0.0), comma).0, Reason::Spike),
+                        "out_of_range" => (print(k, c, f.value.unwrap_or(0.0), comma).0, Reason::OutOfRange),
+                        _ => (f.text.clone().unwrap_or_else(|| "ERR".into()), Reason::UnparsableValue),
                     };
                     rows[j].cells[k] = Some(text);
                     rows[j].faults.push((CHANNELS[k].to_string(), reason));
@@ -309,18 +303,18 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
                             None,
                         ));
                     }
-                    let frozen = print(c, readings[li][rows[js[0]].idx][k], comma).0;
+                    let frozen = print(k, c, readings[li][rows[js[0]].idx][k], comma).0;
                     for &j in &js {
                         conflict(&rows[j], CHANNELS[k])?;
                         rows[j].cells[k] = Some(frozen.clone());
-                        rows[j].faults.push((CHANNELS[k].to_string(), "stuck"));
+                        rows[j].faults.push((CHANNELS[k].to_string(), Reason::Stuck));
                     }
                 }
                 "unparsable_time" => {
                     let j = find(&rows, &key("at"), f.at.as_deref().unwrap_or(""))?;
                     conflict(&rows[j], "")?;
                     rows[j].time_text = f.text.clone().unwrap_or_else(|| "--".into());
-                    rows[j].faults.push((String::new(), "unparsable_time"));
+                    rows[j].faults.push((String::new(), Reason::UnparsableTime));
                 }
                 "duplicate" => {
                     let j = find(&rows, &key("at"), f.at.as_deref().unwrap_or(""))?;
@@ -331,7 +325,7 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
             }
         }
         for w in rows.iter_mut().filter(|w| r.times[w.idx] < t0) {
-            w.faults.push((String::new(), "outside_period"));
+            w.faults.push((String::new(), Reason::OutsidePeriod));
         }
         // Truth: every genuine row inside the period (faulted or not).
         for w in &rows {
@@ -341,7 +335,7 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
             let mut values = [None, None, None];
             for (k, v) in values.iter_mut().enumerate() {
                 if let Some(c) = channel(e, k) {
-                    *v = Some(print(c, readings[li][w.idx][k], comma).1);
+                    *v = Some(print(k, c, readings[li][w.idx][k], comma).1);
                 }
             }
             out.truth.push(TruthReading { logger: li, time: r.times[w.idx], values });
@@ -351,7 +345,7 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
             for c in (1..=copies).rev() {
                 let mut w = rows[j].clone();
                 w.copy = c;
-                w.faults = vec![(String::new(), "duplicate")];
+                w.faults = vec![(String::new(), Reason::Duplicate)];
                 rows.insert(j + 1, w);
             }
         }
@@ -418,7 +412,7 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
                         sensor: sc.spec.logger[l].id.clone(),
                         time: r.times[w.idx],
                         variable: var.clone(),
-                        reason: reason.to_string(),
+                        reason: reason.name().to_string(),
                     });
                 }
             }
@@ -436,17 +430,23 @@ mod tests {
 
     /// °F and K against the defining relations (BIPM SI Brochure §2.3.1:
     /// T/K = t/°C + 273.15; t/°F = 9/5 t/°C + 32): 100 °C = 212 °F = 373.15 K,
-    /// -40 °C = -40 °F. Lux: 10 000 lux of daylight = 185 µmol m-2 s-1
-    /// (Thimijan & Heins 1983 via REFERENCE.md §2.2).
+    /// -40 °C = -40 °F. Lux: 10 000 lux of daylight = 185 µmol m-2 s-1, and
+    /// 10 000 lux of HPS light = 122 (Thimijan & Heins 1983 via REFERENCE.md
+    /// §2.2). Shortwave: 950 W m-2 ↔ 1900 µmol m-2 s-1 at io's factor 2.0.
     #[test]
     fn unit_conversions_match_definitions() {
-        assert_abs_diff_eq!(to_unit("degF", 100.0), 212.0, epsilon = 1e-12);
-        assert_abs_diff_eq!(to_unit("degF", -40.0), -40.0, epsilon = 1e-12);
-        assert_abs_diff_eq!(to_unit("K", 100.0), 373.15, epsilon = 1e-12);
-        assert_abs_diff_eq!(from_unit("lux_sunlight", 10000.0), 185.0, epsilon = 1e-9);
-        assert_abs_diff_eq!(to_unit("fraction", 55.0), 0.55, epsilon = 1e-15);
-        for u in ["degC", "degF", "K", "percent", "fraction", "umol_m2_s", "lux_sunlight"] {
-            assert_abs_diff_eq!(from_unit(u, to_unit(u, 17.3)), 17.3, epsilon = 1e-9);
+        let (t, h, l) = (0, 1, 2);
+        assert_abs_diff_eq!(to_unit(t, "degF", 100.0), 212.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(to_unit(t, "degF", -40.0), -40.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(to_unit(t, "K", 100.0), 373.15, epsilon = 1e-12);
+        assert_abs_diff_eq!(from_unit(l, "lux_sunlight", 10000.0), 185.0, epsilon = 1e-9);
+        assert_abs_diff_eq!(to_unit(l, "lux_hps", 122.0), 10000.0, epsilon = 1e-9);
+        assert_abs_diff_eq!(to_unit(l, "w_m2_shortwave", 1900.0), 950.0, epsilon = 1e-9);
+        assert_abs_diff_eq!(to_unit(h, "fraction", 55.0), 0.55, epsilon = 1e-15);
+        for (k, ch) in Channel::ALL.into_iter().enumerate() {
+            for u in ch.unit_names() {
+                assert_abs_diff_eq!(from_unit(k, u, to_unit(k, u, 17.3)), 17.3, epsilon = 1e-9);
+            }
         }
     }
 

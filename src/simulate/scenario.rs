@@ -9,7 +9,9 @@
 
 use super::error::{Result, SimError};
 use crate::io::error::closest;
+use crate::io::qc::Reason;
 use crate::io::study::{delimiter_byte, parse_timezone, toml_error};
+use crate::io::units::Channel;
 use crate::spatial::correlation::Family;
 use chrono::{NaiveDate, NaiveDateTime, NaiveTime, TimeZone, Utc};
 use serde::Deserialize;
@@ -498,21 +500,17 @@ pub struct Position {
     pub grid: Option<(usize, usize, usize)>,
 }
 
-/// The light units an export can write.
-pub const LIGHT_UNITS: &[&str] = &["umol_m2_s", "lux_sunlight", "w_m2_shortwave"];
-/// The temperature units an export can write.
-pub const TEMPERATURE_UNITS: &[&str] = &["degC", "degF", "K"];
-/// The humidity units an export can write.
-pub const HUMIDITY_UNITS: &[&str] = &["percent", "fraction"];
-/// Fault kinds.
+/// Fault kinds: the quality-control reasons that ingestion should report
+/// for them (named by [`Reason::name`]), and two kinds that remove rows
+/// (`gap`, `fallback_single_pass`).
 pub const FAULT_KINDS: &[&str] = &[
-    "spike",
-    "stuck",
+    Reason::Spike.name(),
+    Reason::Stuck.name(),
     "gap",
-    "duplicate",
-    "out_of_range",
-    "unparsable_value",
-    "unparsable_time",
+    Reason::Duplicate.name(),
+    Reason::OutOfRange.name(),
+    Reason::UnparsableValue.name(),
+    Reason::UnparsableTime.name(),
     "fallback_single_pass",
 ];
 
@@ -648,16 +646,62 @@ fn inside(c: &CompartmentSpec, x: f64, y: f64) -> bool {
     x.is_finite() && y.is_finite() && (0.0..=c.length).contains(&x) && (0.0..=c.width).contains(&y)
 }
 
+/// A date of the scenario (`2026-10-05`).
+fn date(p: &Path, key: &str, v: &str) -> Result<NaiveDate> {
+    NaiveDate::parse_from_str(v.trim(), "%Y-%m-%d")
+        .map_err(|_| bad(p, key, format!("`{v}` is not a date"), Some("write e.g. \"2026-10-05\"".into())))
+}
+
+/// The checked `[scenario]` section: zone, period and logging step.
+struct Period {
+    tz: chrono_tz::Tz,
+    start_d: NaiveDate,
+    end_d: NaiveDate,
+    start: NaiveDateTime,
+    end: NaiveDateTime,
+    step_minutes: i64,
+}
+
+/// Check every section in reading order, each by its own function, and
+/// resolve the names that later sections refer to.
 fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
     let p = path;
-    let tz = parse_timezone(p, "scenario.timezone", &spec.scenario.timezone)?;
-    let date = |key: &str, v: &str| -> Result<NaiveDate> {
-        NaiveDate::parse_from_str(v.trim(), "%Y-%m-%d").map_err(|_| {
-            bad(p, key, format!("`{v}` is not a date"), Some("write e.g. \"2026-10-05\"".into()))
-        })
-    };
-    let start_d = date("scenario.start", &spec.scenario.start)?;
-    let end_d = date("scenario.end", &spec.scenario.end)?;
+    let period = check_period(p, &spec.scenario)?;
+    let c = spec.compartment;
+    check_compartment(p, &c)?;
+    let positions = check_layout(p, &spec.layout, &c)?;
+    let (names, sowing) = check_design(p, &spec.design, &spec.layout, &positions, &period)?;
+    let onames = check_openings(p, &spec.opening)?;
+    let (sunrise_h, sunset_h, climate_field) = check_climate(p, &spec.climate, &onames)?;
+    let enames = check_exports(p, &spec.export)?;
+    let (lids, logger_export) = check_loggers(p, &spec, &c, &enames)?;
+    check_faults(p, &spec, &lids, &logger_export)?;
+    let residual_field = check_trait(p, &spec.trait_, &spec.design, &names)?;
+    check_analysis(p, spec.analysis.as_ref())?;
+    let Period { tz, start, end, step_minutes, .. } = period;
+    Ok(Scenario {
+        path: p.to_path_buf(),
+        tz,
+        start,
+        end,
+        step_minutes,
+        sunrise_h,
+        sunset_h,
+        positions,
+        sowing,
+        climate_field,
+        residual_field,
+        logger_export,
+        spec,
+    })
+}
+
+/// `[scenario]`: time zone, study period (local midnights that exist once)
+/// and logging step.
+fn check_period(p: &Path, sc: &Header) -> Result<Period> {
+    let tz = parse_timezone(p, "scenario.timezone", &sc.timezone)?;
+    let start_d = date(p, "scenario.start", &sc.start)?;
+    let end_d = date(p, "scenario.end", &sc.end)?;
     if end_d <= start_d {
         return Err(bad(p, "scenario.end", "must be after scenario.start", None));
     }
@@ -676,8 +720,12 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
             ));
         }
     }
-    let step_minutes = parse_step(p, &spec.scenario.step)?;
-    let c = spec.compartment;
+    let step_minutes = parse_step(p, &sc.step)?;
+    Ok(Period { tz, start_d, end_d, start, end, step_minutes })
+}
+
+/// `[compartment]`: positive length and width.
+fn check_compartment(p: &Path, c: &CompartmentSpec) -> Result<()> {
     if !(c.length.is_finite() && c.length > 0.0 && c.width.is_finite() && c.width > 0.0) {
         return Err(bad(
             p,
@@ -686,9 +734,11 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
             None,
         ));
     }
+    Ok(())
+}
 
-    // Layout.
-    let l = &spec.layout;
+/// `[layout]`: the positions a pot can take, all inside the compartment.
+fn check_layout(p: &Path, l: &LayoutSpec, c: &CompartmentSpec) -> Result<Vec<Position>> {
     let mut positions = Vec::new();
     match l.kind.as_str() {
         "benches" => {
@@ -756,7 +806,7 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
         }
     }
     for (i, q) in positions.iter().enumerate() {
-        if !inside(&c, q.x, q.y) {
+        if !inside(c, q.x, q.y) {
             return Err(bad(
                 p,
                 "layout",
@@ -772,9 +822,20 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
             ));
         }
     }
+    Ok(positions)
+}
 
-    // Design.
-    let d = &spec.design;
+/// `[design]`: factors and levels, replicates that fit the layout (and its
+/// benches for blocks), sowing dates whose growth window lies in the period.
+/// Returns the factor names and the sowing dates.
+fn check_design(
+    p: &Path,
+    d: &DesignSpec,
+    l: &LayoutSpec,
+    positions: &[Position],
+    period: &Period,
+) -> Result<(std::collections::BTreeSet<String>, Vec<NaiveDate>)> {
+    let (start_d, end_d) = (period.start_d, period.end_d);
     if d.factor.is_empty() {
         return Err(bad(p, "design.factor", "needs at least one factor", None));
     }
@@ -857,7 +918,7 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
     }
     let mut sowing = Vec::new();
     for (i, s) in d.sowing.iter().enumerate() {
-        let sd = date(&format!("design.sowing[{}]", i + 1), s)?;
+        let sd = date(p, &format!("design.sowing[{}]", i + 1), s)?;
         let scored = sd + chrono::Duration::days(d.growth_days as i64);
         if sd < start_d || scored > end_d {
             return Err(bad(
@@ -877,10 +938,13 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
     if d.growth_days == 0 {
         return Err(bad(p, "design.growth_days", "must be at least 1", None));
     }
+    Ok((names, sowing))
+}
 
-    // Openings.
+/// `[[opening]]`: unique names and finite coordinates. Returns the names.
+fn check_openings<'a>(p: &Path, opening: &'a [OpeningSpec]) -> Result<std::collections::BTreeSet<&'a str>> {
     let mut onames = std::collections::BTreeSet::new();
-    for (i, o) in spec.opening.iter().enumerate() {
+    for (i, o) in opening.iter().enumerate() {
         let key = format!("opening[{}]", i + 1);
         if o.name.is_empty() || !o.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_') {
             return Err(bad(
@@ -897,9 +961,18 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
             return Err(bad(p, &key, "coordinates must be finite numbers", None));
         }
     }
+    Ok(onames)
+}
 
-    // Climate.
-    let cl = &spec.climate;
+/// `[climate]`: the day, plausible temperatures, light and vapour pressure,
+/// draughts at known openings, shades, the field and the noise. Returns
+/// sunrise and sunset (hours) and the climate field.
+#[allow(clippy::type_complexity)]
+fn check_climate(
+    p: &Path,
+    cl: &ClimateSpec,
+    onames: &std::collections::BTreeSet<&str>,
+) -> Result<(f64, f64, Option<(Family, f64, f64)>)> {
     let sunrise_h = clock(p, "climate.sunrise", &cl.sunrise)?;
     let sunset_h = clock(p, "climate.sunset", &cl.sunset)?;
     if sunset_h <= sunrise_h + 1.0 {
@@ -970,10 +1043,15 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
             return Err(bad(p, k, "must be a standard deviation >= 0", None));
         }
     }
+    Ok((sunrise_h, sunset_h, climate_field))
+}
 
-    // Exports and loggers.
+/// `[[export]]`: names, layout, delimiter and decimal mark, clock and time
+/// format, lead time, columns and units (the units ingestion converts).
+/// Returns the export names.
+fn check_exports<'a>(p: &Path, export: &'a [ExportSpec]) -> Result<Vec<&'a str>> {
     let mut enames = Vec::new();
-    for (i, e) in spec.export.iter().enumerate() {
+    for (i, e) in export.iter().enumerate() {
         let key = |k: &str| format!("export[{}].{k}", i + 1);
         if e.name.is_empty() || !e.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '-') {
             return Err(bad(
@@ -1038,19 +1116,28 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
         if cols.temperature.is_none() && cols.humidity.is_none() && cols.light.is_none() {
             return Err(bad(p, &key("columns"), "writes no channel", None));
         }
-        for (ch, c, units) in [
-            ("temperature", &cols.temperature, TEMPERATURE_UNITS),
-            ("humidity", &cols.humidity, HUMIDITY_UNITS),
-            ("light", &cols.light, LIGHT_UNITS),
-        ] {
+        // The units ingestion converts, so that every simulated export reads back.
+        for (ch, c) in Channel::ALL.into_iter().zip([&cols.temperature, &cols.humidity, &cols.light]) {
             if let Some(c) = c {
-                one_of(p, &key(&format!("columns.{ch}.unit")), &c.unit, units)?;
+                one_of(p, &key(&format!("columns.{ch}.unit")), &c.unit, ch.unit_names())?;
                 if c.decimals.unwrap_or(1) > 6 {
                     return Err(bad(p, &key(&format!("columns.{ch}.decimals")), "at most 6", None));
                 }
             }
         }
     }
+    Ok(enames)
+}
+
+/// `[[logger]]`: unique ids inside the compartment, each writing a known
+/// export, and every export written by some logger. Returns the ids and the
+/// export index of every logger.
+fn check_loggers<'a>(
+    p: &Path,
+    spec: &'a ScenarioSpec,
+    c: &CompartmentSpec,
+    enames: &[&str],
+) -> Result<(Vec<&'a str>, Vec<usize>)> {
     if spec.logger.is_empty() {
         return Err(bad(p, "logger", "needs at least one [[logger]]", None));
     }
@@ -1070,7 +1157,7 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
             return Err(bad(p, &key("id"), format!("`{}` is used twice", lg.id), None));
         }
         lids.push(&lg.id);
-        if !inside(&c, lg.x, lg.y) {
+        if !inside(c, lg.x, lg.y) {
             return Err(bad(
                 p,
                 &key("x"),
@@ -1100,8 +1187,12 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
             ));
         }
     }
+    Ok((lids, logger_export))
+}
 
-    // Faults: names only; times are checked when the rows exist.
+/// `[[fault]]`: kinds, loggers and the keys each kind needs (names only;
+/// times are checked when the rows exist).
+fn check_faults(p: &Path, spec: &ScenarioSpec, lids: &[&str], logger_export: &[usize]) -> Result<()> {
     for (i, f) in spec.fault.iter().enumerate() {
         let key = |k: &str| format!("fault[{}].{k}", i + 1);
         one_of(p, &key("kind"), &f.kind, FAULT_KINDS)?;
@@ -1184,9 +1275,17 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
             }
         }
     }
+    Ok(())
+}
 
-    // Trait.
-    let t = &spec.trait_;
+/// `[trait]`: its name, noise, effects and interactions of known levels,
+/// climate drivers and the residual field. Returns the residual field.
+fn check_trait(
+    p: &Path,
+    t: &TraitSpec,
+    d: &DesignSpec,
+    names: &std::collections::BTreeSet<String>,
+) -> Result<Option<(Family, f64, f64)>> {
     if t.name.is_empty()
         || !t.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_')
         || names.contains(&t.name)
@@ -1294,27 +1393,17 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
         }
     }
     let residual_field = parse_field(p, "trait.residual_field", &t.residual_field)?;
-    if let Some(a) = &spec.analysis {
+    Ok(residual_field)
+}
+
+/// `[analysis]`: correlation families that the mapping stage knows.
+fn check_analysis(p: &Path, analysis: Option<&AnalysisSpec>) -> Result<()> {
+    if let Some(a) = analysis {
         for (i, f) in a.correlations.iter().flatten().enumerate() {
             Family::parse(f).map_err(|m| bad(p, &format!("analysis.correlations[{}]", i + 1), m, None))?;
         }
     }
-
-    Ok(Scenario {
-        path: p.to_path_buf(),
-        tz,
-        start,
-        end,
-        step_minutes,
-        sunrise_h,
-        sunset_h,
-        positions,
-        sowing,
-        climate_field,
-        residual_field,
-        logger_export,
-        spec,
-    })
+    Ok(())
 }
 
 #[cfg(test)]

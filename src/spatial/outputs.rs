@@ -2,28 +2,28 @@
 //! `variograms.csv`, `variogram_fits.csv` and `mapping_cv.csv`. Each writer
 //! returns the file's bytes for [`crate::io::output::StageWriter::write`], so
 //! that the stage's files are published together. Formats: `docs/spatial.md`.
-//! Numbers are written with Rust's shortest round-trip formatting; an
-//! undefined value is an empty cell.
+//! Every table is written in the one CSV format of [`crate::io::output`]
+//! (shortest round-trip numbers; an undefined value is an empty cell). The
+//! stage's file names are defined here once (the `distance_` column prefix in
+//! [`super::geometry`], which computes the distances).
 
 use super::correlation::Family;
 use super::error::{Result, SpatialError};
+use super::geometry::DISTANCE_PREFIX;
 use super::mapping::CvScore;
 use super::variogram::{Empirical, VariogramFit};
+use crate::io::output::{CsvTable, number, opt_number};
 
-fn num(v: Option<f64>) -> String {
-    match v {
-        Some(x) if x.is_finite() => format!("{x}"),
-        _ => String::new(),
-    }
-}
-
-fn finish(w: csv::Writer<Vec<u8>>) -> Result<Vec<u8>> {
-    w.into_inner().map_err(|e| SpatialError::BadInput { what: "csv".into(), message: e.to_string() })
-}
-
-fn row(w: &mut csv::Writer<Vec<u8>>, fields: &[String]) -> Result<()> {
-    w.write_record(fields).map_err(|e| SpatialError::BadInput { what: "csv".into(), message: e.to_string() })
-}
+/// File name of the mapped drivers per pot.
+pub const POT_COVARIATES_FILE: &str = "pot_covariates.csv";
+/// File name of the empirical variograms and the fitted models at their lags.
+pub const VARIOGRAMS_FILE: &str = "variograms.csv";
+/// File name of the weighted least-squares variogram fits.
+pub const VARIOGRAM_FITS_FILE: &str = "variogram_fits.csv";
+/// File name of the leave-one-sensor-out scores of the mapping methods.
+pub const MAPPING_CV_FILE: &str = "mapping_cv.csv";
+/// File name of the maximum-likelihood variogram fits.
+pub const VARIOGRAM_ML_FITS_FILE: &str = "variogram_ml_fits.csv";
 
 /// One mapped indicator: a value and (optionally) a standard error per pot.
 #[derive(Clone, Debug, PartialEq)]
@@ -56,33 +56,32 @@ pub fn pot_covariates_csv(
     for (name, d) in openings {
         if d.len() != n {
             return Err(SpatialError::BadInput {
-                what: format!("distance_{name}"),
+                what: format!("{DISTANCE_PREFIX}{name}"),
                 message: format!("{} values for {n} pots", d.len()),
             });
         }
     }
-    let mut w = csv::Writer::from_writer(Vec::new());
     let mut head = vec!["pot".to_string()];
     for c in indicators {
         head.push(c.name.clone());
         head.push(format!("{}_se", c.name));
     }
     for (name, _) in openings {
-        head.push(format!("distance_{name}"));
+        head.push(format!("{DISTANCE_PREFIX}{name}"));
     }
-    row(&mut w, &head)?;
+    let mut w = CsvTable::new(&head);
     for i in 0..n {
         let mut r = vec![pots[i].clone()];
         for c in indicators {
-            r.push(num(Some(c.value[i])));
-            r.push(num(c.se.as_ref().map(|s| s[i])));
+            r.push(number(c.value[i]));
+            r.push(opt_number(c.se.as_ref().map(|s| s[i])));
         }
         for (_, d) in openings {
-            r.push(num(Some(d[i])));
+            r.push(number(d[i]));
         }
-        row(&mut w, &r)?;
+        w.row(&r);
     }
-    finish(w)
+    Ok(w.into_bytes())
 }
 
 /// One variogram of `variograms.csv`: the variable's name, the empirical
@@ -103,7 +102,6 @@ pub struct VariogramTable<'a> {
 /// family of the first table (all tables must list the same families).
 pub fn variograms_csv(tables: &[VariogramTable]) -> Result<Vec<u8>> {
     let fams: Vec<Family> = tables.first().map(|t| t.fits.iter().map(|f| f.0).collect()).unwrap_or_default();
-    let mut w = csv::Writer::from_writer(Vec::new());
     let mut head: Vec<String> = [
         "variable",
         "direction",
@@ -120,35 +118,35 @@ pub fn variograms_csv(tables: &[VariogramTable]) -> Result<Vec<u8>> {
     .map(|s| s.to_string())
     .collect();
     head.extend(fams.iter().map(|f| format!("model_{}", f.name())));
-    row(&mut w, &head)?;
+    let mut w = CsvTable::new(&head);
     for t in tables {
         let tf: Vec<Family> = t.fits.iter().map(|f| f.0).collect();
         if tf != fams {
             return Err(SpatialError::BadInput {
-                what: "variograms.csv".into(),
+                what: VARIOGRAMS_FILE.into(),
                 message: format!("variable `{}` lists other families", t.variable),
             });
         }
         for b in &t.empirical.bins {
             let mut r = vec![
                 t.variable.to_string(),
-                num(t.empirical.direction.map(|d| d.angle_deg)),
-                num(t.empirical.direction.map(|d| d.tolerance_deg)),
+                opt_number(t.empirical.direction.map(|d| d.angle_deg)),
+                opt_number(t.empirical.direction.map(|d| d.tolerance_deg)),
                 t.empirical.estimator.name().to_string(),
-                num(Some(b.from)),
-                num(Some(b.to)),
-                num(Some(b.lag)),
-                num(b.semivariance),
+                number(b.from),
+                number(b.to),
+                number(b.lag),
+                opt_number(b.semivariance),
                 b.pairs.to_string(),
                 b.steps.to_string(),
             ];
             for (_, f) in t.fits {
-                r.push(num(f.map(|f| f.model.semivariance(b.lag))));
+                r.push(opt_number(f.map(|f| f.model.semivariance(b.lag))));
             }
-            row(&mut w, &r)?;
+            w.row(&r);
         }
     }
-    finish(w)
+    Ok(w.into_bytes())
 }
 
 /// One variable of `variogram_fits.csv`: its name, every family's fit, and
@@ -165,46 +163,38 @@ pub type CvRow<'a> = (&'a str, &'a [CvScore], Option<(usize, String)>);
 /// `bins_used`, `on_bound`, `chosen`. A family that could not be fitted has
 /// empty cells.
 pub fn variogram_fits_csv(rows: &[FitsRow]) -> Result<Vec<u8>> {
-    let mut w = csv::Writer::from_writer(Vec::new());
-    row(
-        &mut w,
-        &[
-            "variable",
-            "family",
-            "nugget",
-            "partial_sill",
-            "sill",
-            "range",
-            "practical_range",
-            "criterion",
-            "bins_used",
-            "on_bound",
-            "chosen",
-        ]
-        .map(String::from),
-    )?;
+    let mut w = CsvTable::new([
+        "variable",
+        "family",
+        "nugget",
+        "partial_sill",
+        "sill",
+        "range",
+        "practical_range",
+        "criterion",
+        "bins_used",
+        "on_bound",
+        "chosen",
+    ]);
     for (var, fits, chosen) in rows {
         for (fam, f) in fits.iter() {
             let m = f.map(|f| f.model);
-            row(
-                &mut w,
-                &[
-                    var.to_string(),
-                    fam.name(),
-                    num(m.map(|m| m.nugget)),
-                    num(m.map(|m| m.partial_sill)),
-                    num(m.map(|m| m.sill())),
-                    num(m.map(|m| m.range)),
-                    num(m.map(|m| m.practical_range())),
-                    num(f.map(|f| f.criterion)),
-                    f.map(|f| f.bins_used.to_string()).unwrap_or_default(),
-                    f.map(|f| f.on_bound.to_string()).unwrap_or_default(),
-                    (Some(*fam) == *chosen).to_string(),
-                ],
-            )?;
+            w.row([
+                var.to_string(),
+                fam.name(),
+                opt_number(m.map(|m| m.nugget)),
+                opt_number(m.map(|m| m.partial_sill)),
+                opt_number(m.map(|m| m.sill())),
+                opt_number(m.map(|m| m.range)),
+                opt_number(m.map(|m| m.practical_range())),
+                opt_number(f.map(|f| f.criterion)),
+                f.map(|f| f.bins_used.to_string()).unwrap_or_default(),
+                f.map(|f| f.on_bound.to_string()).unwrap_or_default(),
+                (Some(*fam) == *chosen).to_string(),
+            ]);
         }
     }
-    finish(w)
+    Ok(w.into_bytes())
 }
 
 /// `mapping_cv.csv`: one row per variable and method: `variable`, `method`,
@@ -212,34 +202,23 @@ pub fn variogram_fits_csv(rows: &[FitsRow]) -> Result<Vec<u8>> {
 /// and nearest sensor), `chosen`, `reason` (why `auto` chose it, on the
 /// chosen row).
 pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
-    let mut w = csv::Writer::from_writer(Vec::new());
-    row(
-        &mut w,
-        &["variable", "method", "n", "rmse", "mean_error", "msse", "chosen", "reason"].map(String::from),
-    )?;
+    let mut w = CsvTable::new(["variable", "method", "n", "rmse", "mean_error", "msse", "chosen", "reason"]);
     for (var, scores, choice) in rows {
         for (i, s) in scores.iter().enumerate() {
             let chosen = choice.as_ref().is_some_and(|(k, _)| *k == i);
-            row(
-                &mut w,
-                &[
-                    var.to_string(),
-                    s.method.name().to_string(),
-                    s.n.to_string(),
-                    num(Some(s.rmse)),
-                    num(Some(s.mean_error)),
-                    num(s.msse),
-                    chosen.to_string(),
-                    if chosen {
-                        choice.as_ref().map(|c| c.1.clone()).unwrap_or_default()
-                    } else {
-                        String::new()
-                    },
-                ],
-            )?;
+            w.row([
+                var.to_string(),
+                s.method.name().to_string(),
+                s.n.to_string(),
+                number(s.rmse),
+                number(s.mean_error),
+                opt_number(s.msse),
+                chosen.to_string(),
+                if chosen { choice.as_ref().map(|c| c.1.clone()).unwrap_or_default() } else { String::new() },
+            ]);
         }
     }
-    finish(w)
+    Ok(w.into_bytes())
 }
 
 #[cfg(test)]

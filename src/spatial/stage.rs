@@ -30,12 +30,15 @@ use super::error::SpatialError;
 use super::geometry::{Points, opening_distances, pot_points, sensor_points};
 use super::kriging::{Drift, Method, Spec};
 use super::mapping::{CvScore, choose, choose_model, loso, map_series, map_summary};
-use super::outputs::{MappedColumn, mapping_cv_csv, pot_covariates_csv, variogram_fits_csv, variograms_csv};
+use super::outputs::{
+    MAPPING_CV_FILE, MappedColumn, POT_COVARIATES_FILE, VARIOGRAM_FITS_FILE, VARIOGRAM_ML_FITS_FILE,
+    VARIOGRAMS_FILE, mapping_cv_csv, pot_covariates_csv, variogram_fits_csv, variograms_csv,
+};
 use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
 use crate::climate::{ClimateError, ClimateRun, Combine, LocationSeries, combine_window, daily_values};
 use crate::io::layout::{Pots, Sensors, load_pots, load_sensors};
-use crate::io::output::StageWriter;
+use crate::io::output::{CsvTable, StageWriter, number};
 use crate::io::study::Study;
 use crate::io::{IoError, ingest};
 use nalgebra::DMatrix;
@@ -71,6 +74,9 @@ impl From<ClimateError> for MapError {
     }
 }
 
+/// Intervals of the fitted variogram curves in [`VariableMap::fit_curves`].
+pub const CURVE_STEPS: usize = 60;
+
 /// One mapped climate variable.
 #[derive(Debug, Clone)]
 pub struct VariableMap {
@@ -82,6 +88,10 @@ pub struct VariableMap {
     pub directional: Vec<Empirical>,
     /// Every family's WLS fit.
     pub fits: Vec<(crate::spatial::correlation::Family, Option<VariogramFit>)>,
+    /// Every fitted family's model at [`CURVE_STEPS`]` + 1` lags from 0 to
+    /// the upper edge of the last bin, `[lag m, semivariance]`; parallel to
+    /// `fits` (`None` where the family could not be fitted).
+    pub fit_curves: Vec<Option<Vec<[f64; 2]>>>,
     /// The family kriging uses (`None`: documented fallback).
     pub chosen_family: Option<crate::spatial::correlation::Family>,
     /// The kriging spec used to map.
@@ -223,10 +233,17 @@ fn map_variable(
             warnings.push(w);
         }
     }
+    let max_lag = empirical.bins.last().map(|b| b.to).unwrap_or(1.0);
+    let fit_curves = choice_model
+        .fits
+        .iter()
+        .map(|(_, f)| f.as_ref().map(|f| f.model.curve(max_lag, CURVE_STEPS)))
+        .collect();
     Ok(VariableMap {
         name,
         empirical,
         directional,
+        fit_curves,
         fits: choice_model.fits,
         chosen_family: choice_model.chosen,
         spec,
@@ -396,7 +413,7 @@ fn cal_end(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
 /// `mapping_cv.csv` into the study's output folder (atomically).
 pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapError> {
     let mut w = StageWriter::new(&study.output_dir(), "map")?;
-    w.write("pot_covariates.csv", &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
+    w.write(POT_COVARIATES_FILE, &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
     let mut tables = Vec::new();
     for v in &run.variables {
         tables.push(super::outputs::VariogramTable {
@@ -409,15 +426,15 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
         }
     }
     if !tables.is_empty() {
-        w.write("variograms.csv", &variograms_csv(&tables)?)?;
+        w.write(VARIOGRAMS_FILE, &variograms_csv(&tables)?)?;
     }
     let fits: Vec<super::outputs::FitsRow> =
         run.variables.iter().map(|v| (v.name, v.fits.as_slice(), v.chosen_family)).collect();
-    w.write("variogram_fits.csv", &variogram_fits_csv(&fits)?)?;
+    w.write(VARIOGRAM_FITS_FILE, &variogram_fits_csv(&fits)?)?;
     let cv: Vec<super::outputs::CvRow> =
         run.variables.iter().map(|v| (v.name, v.cv.as_slice(), v.choice.clone())).collect();
-    w.write("mapping_cv.csv", &mapping_cv_csv(&cv)?)?;
-    w.write("variogram_ml_fits.csv", variogram_ml_fits_csv(run).as_bytes())?;
+    w.write(MAPPING_CV_FILE, &mapping_cv_csv(&cv)?)?;
+    w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(run))?;
     Ok(w.commit()?)
 }
 
@@ -427,40 +444,50 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
 /// loglik,aic,evaluations,at_bounds` (AIC counts mean, sigma², range and, when
 /// fitted, the nugget share). Empty cells where the fit failed (fewer than three
 /// sensors with a value).
-pub fn variogram_ml_fits_csv(run: &MapRun) -> String {
-    let mut s = String::from(
-        "variable,family,nugget,partial_sill,sill,range,practical_range,loglik,aic,evaluations,at_bounds\n",
-    );
+pub fn variogram_ml_fits_csv(run: &MapRun) -> Vec<u8> {
+    let mut t = CsvTable::new([
+        "variable",
+        "family",
+        "nugget",
+        "partial_sill",
+        "sill",
+        "range",
+        "practical_range",
+        "loglik",
+        "aic",
+        "evaluations",
+        "at_bounds",
+    ]);
     for (name, fam, f) in &run.ml_fits {
+        let mut r = vec![name.clone(), fam.name()];
         match f {
             Some(f) => {
                 let m = &f.model;
                 // Parameters: mean, sigma², range, and the nugget share when it was estimated.
                 let k = if run.ml_nugget { 4.0 } else { 3.0 };
-                s.push_str(&format!(
-                    "{name},{},{},{},{},{},{},{},{},{},{}\n",
-                    fam.name(),
-                    m.nugget,
-                    m.partial_sill,
-                    m.sill(),
-                    m.range,
-                    m.practical_range(),
-                    f.loglik,
-                    -2.0 * f.loglik + 2.0 * k,
-                    f.evaluations,
-                    f.at_bounds.join("+")
-                ));
+                r.extend([
+                    number(m.nugget),
+                    number(m.partial_sill),
+                    number(m.sill()),
+                    number(m.range),
+                    number(m.practical_range()),
+                    number(f.loglik),
+                    number(-2.0 * f.loglik + 2.0 * k),
+                    f.evaluations.to_string(),
+                    f.at_bounds.join("+"),
+                ]);
             }
-            None => s.push_str(&format!("{name},{},,,,,,,,,\n", fam.name())),
+            None => r.extend(std::iter::repeat_n(String::new(), 9)),
         }
+        t.row(r);
     }
-    s
+    t.into_bytes()
 }
 
 /// The whole stage from the output folder's `readings.parquet`: climate
 /// series, mapping, outputs.
 pub fn run(study: &Study) -> Result<(MapRun, Vec<PathBuf>), MapError> {
-    let readings_path = study.output_dir().join("readings.parquet");
+    let readings_path = study.output_dir().join(crate::io::ingest::READINGS_FILE);
     if !readings_path.exists() {
         return Err(MapError::Missing(format!(
             "{} does not exist; run `potclim ingest {}` first (or `potclim run`)",

@@ -456,6 +456,14 @@ impl VariogramModel {
         self.partial_sill * self.family.correlation(h, self.range)
     }
 
+    /// The model at `n + 1` evenly spaced lags `h_k = k · max_lag / n`,
+    /// `k = 0 ..= n`, as `[h, gamma(h)]` pairs (a curve to draw over the
+    /// empirical bins). Cost O(n).
+    pub fn curve(&self, max_lag: f64, n: usize) -> Vec<[f64; 2]> {
+        let n = n.max(1);
+        (0..=n).map(|k| max_lag * k as f64 / n as f64).map(|h| [h, self.semivariance(h)]).collect()
+    }
+
     /// The sill `c0 + c`.
     pub fn sill(&self) -> f64 {
         self.nugget + self.partial_sill

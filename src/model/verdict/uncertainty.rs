@@ -16,7 +16,7 @@ use crate::spatial::likelihood::{Distances, LikelihoodKind};
 use crate::spatial::variogram::{Bins, Estimator, VariogramModel, experimental};
 
 /// The sensor-level indicator file written by the climate stage, inside the output folder.
-pub const SENSOR_FILE: &str = "sensor_indicators.csv";
+pub use crate::climate::stage::SENSOR_INDICATORS_FILE as SENSOR_FILE;
 
 /// Sensor-level values of one mapped indicator.
 #[derive(Clone, Debug)]

@@ -1,66 +1,91 @@
 //! The verdict stage's files: `summary.json` (the whole [`VerdictResult`]),
 //! `comparison.csv`, `drivers.csv` and `adjusted_means.csv` (columns in
-//! docs/outputs.md), written atomically into the output folder.
+//! docs/outputs.md), written atomically into the output folder, every table
+//! in the one CSV format of [`crate::io::output`].
 
 use super::result::VerdictResult;
-use crate::io::output::StageWriter;
+use crate::io::output::{CsvTable, StageWriter, number as num, opt_number as opt};
 use crate::io::study::Study;
 use crate::model::error::Result;
-use std::fmt::Write as _;
 use std::path::PathBuf;
 
-fn num(v: f64) -> String {
-    if v.is_finite() { format!("{v:?}") } else { String::new() }
-}
-
-fn opt(v: Option<f64>) -> String {
-    v.map(num).unwrap_or_default()
-}
-
-fn csv_field(s: &str) -> String {
-    if s.contains([',', '"', '\n']) { format!("\"{}\"", s.replace('"', "\"\"")) } else { s.to_string() }
-}
+/// The whole verdict result as JSON.
+pub const SUMMARY_FILE: &str = "summary.json";
+/// The grid of fits, sorted by AIC.
+pub const COMPARISON_FILE: &str = "comparison.csv";
+/// One row per driver of the chosen model.
+pub const DRIVERS_FILE: &str = "drivers.csv";
+/// Adjusted and plain means per factor level.
+pub const ADJUSTED_MEANS_FILE: &str = "adjusted_means.csv";
 
 /// Render `comparison.csv` (the grid, sorted by AIC).
 pub fn comparison_csv(r: &VerdictResult) -> String {
-    let mut s = String::from(
-        "model,drivers,correlation,nugget,loglik,aic,bic,n_params,delta_aic,akaike_weight,range,nugget_share,converged,chosen\n",
-    );
+    let mut t = CsvTable::new([
+        "model",
+        "drivers",
+        "correlation",
+        "nugget",
+        "loglik",
+        "aic",
+        "bic",
+        "n_params",
+        "delta_aic",
+        "akaike_weight",
+        "range",
+        "nugget_share",
+        "converged",
+        "chosen",
+    ]);
     for m in &r.models {
-        let _ = writeln!(
-            s,
-            "{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
-            csv_field(&m.name),
-            csv_field(&m.drivers.join("+")),
-            csv_field(&m.correlation),
-            m.nugget,
+        t.row([
+            m.name.clone(),
+            m.drivers.join("+"),
+            m.correlation.clone(),
+            m.nugget.to_string(),
             num(m.loglik),
             num(m.aic),
             num(m.bic),
-            m.n_params,
+            m.n_params.to_string(),
             num(m.delta_aic),
             num(m.akaike_weight),
             opt(m.range),
             opt(m.nugget_share),
-            m.converged,
-            m.name == r.best_model
-        );
+            m.converged.to_string(),
+            (m.name == r.best_model).to_string(),
+        ]);
     }
-    s
+    t.into_string()
 }
 
 /// Render `drivers.csv`.
 pub fn drivers_csv(r: &VerdictResult) -> String {
-    let mut s = String::from(
-        "driver,kind,source_model,estimate,estimate_per_sd,driver_sd,se,ci_low,ci_high,p_value,delta_aic,delta_aic_with_correlation,p_independent,p_with_correlation,vif,confounded,estimate_with_mapping_uncertainty,se_with_mapping_uncertainty,ci_low_with_mapping_uncertainty,ci_high_with_mapping_uncertainty\n",
-    );
+    let mut t = CsvTable::new([
+        "driver",
+        "kind",
+        "source_model",
+        "estimate",
+        "estimate_per_sd",
+        "driver_sd",
+        "se",
+        "ci_low",
+        "ci_high",
+        "p_value",
+        "delta_aic",
+        "delta_aic_with_correlation",
+        "p_independent",
+        "p_with_correlation",
+        "vif",
+        "confounded",
+        "estimate_with_mapping_uncertainty",
+        "se_with_mapping_uncertainty",
+        "ci_low_with_mapping_uncertainty",
+        "ci_high_with_mapping_uncertainty",
+    ]);
     for d in &r.drivers {
-        let _ = writeln!(
-            s,
-            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
-            csv_field(&d.name),
-            d.kind,
-            csv_field(&d.source_model),
+        t.row([
+            d.name.clone(),
+            d.kind.to_string(),
+            d.source_model.clone(),
             num(d.estimate),
             num(d.estimate_per_sd),
             num(d.driver_sd),
@@ -73,33 +98,31 @@ pub fn drivers_csv(r: &VerdictResult) -> String {
             num(d.p_independent),
             opt(d.p_with_correlation),
             opt(d.vif),
-            d.confounded,
+            d.confounded.to_string(),
             opt(d.estimate_with_mapping_uncertainty),
             opt(d.se_with_mapping_uncertainty),
             opt(d.ci_low_with_mapping_uncertainty),
-            opt(d.ci_high_with_mapping_uncertainty)
-        );
+            opt(d.ci_high_with_mapping_uncertainty),
+        ]);
     }
-    s
+    t.into_string()
 }
 
 /// Render `adjusted_means.csv`.
 pub fn adjusted_means_csv(r: &VerdictResult) -> String {
-    let mut s = String::from("factor,level,mean,se,plain_mean,plain_se,change\n");
+    let mut t = CsvTable::new(["factor", "level", "mean", "se", "plain_mean", "plain_se", "change"]);
     for a in &r.adjusted_means {
-        let _ = writeln!(
-            s,
-            "{},{},{},{},{},{},{}",
-            csv_field(&a.factor),
-            csv_field(&a.level),
+        t.row([
+            a.factor.clone(),
+            a.level.clone(),
             num(a.mean),
             num(a.se),
             num(a.plain_mean),
             num(a.plain_se),
-            num(a.change)
-        );
+            num(a.change),
+        ]);
     }
-    s
+    t.into_string()
 }
 
 /// Write `summary.json`, `comparison.csv`, `drivers.csv` and
@@ -107,9 +130,9 @@ pub fn adjusted_means_csv(r: &VerdictResult) -> String {
 pub fn write_outputs(study: &Study, r: &VerdictResult) -> Result<Vec<PathBuf>> {
     let mut w = StageWriter::new(&study.output_dir(), "verdict")?;
     let json = serde_json::to_string_pretty(r).expect("plain data serialises");
-    w.write("summary.json", json.as_bytes())?;
-    w.write("comparison.csv", comparison_csv(r).as_bytes())?;
-    w.write("drivers.csv", drivers_csv(r).as_bytes())?;
-    w.write("adjusted_means.csv", adjusted_means_csv(r).as_bytes())?;
+    w.write(SUMMARY_FILE, json.as_bytes())?;
+    w.write(COMPARISON_FILE, comparison_csv(r).as_bytes())?;
+    w.write(DRIVERS_FILE, drivers_csv(r).as_bytes())?;
+    w.write(ADJUSTED_MEANS_FILE, adjusted_means_csv(r).as_bytes())?;
     Ok(w.commit()?)
 }
