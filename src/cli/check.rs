@@ -63,6 +63,7 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
         ),
     }
     let mut overall: Option<(i64, i64)> = None;
+    let mut warnings = 0;
     for (i, files) in inv.logs.iter().enumerate() {
         outln!("logs[{}]: {} file(s)", i + 1, files.len());
         for f in files {
@@ -76,6 +77,19 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
             outln!("  {}: {} rows, {s}, sensors: {shown}", f.name, f.lines);
             if f.sample_flags > 0 {
                 outln!("    {} reading(s) in the sampled rows would be flagged", f.sample_flags);
+            }
+            if f.mostly_flagged() {
+                warnings += 1;
+                outln!(
+                    "warning: {} of {} sampled rows of {} would be flagged",
+                    f.flagged_rows,
+                    f.sample_rows,
+                    f.name
+                );
+                if let Some((cause, fix)) = f.cause_and_fix(i + 1) {
+                    outln!("  cause: {cause}");
+                    outln!("  fix: {fix}");
+                }
             }
             if let Some((a, b)) = f.span {
                 overall = Some(overall.map_or((a, b), |(x, y)| (x.min(a), y.max(b))));
@@ -118,7 +132,13 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
             outln!("{line}");
         }
     }
-    outln!("ok: every input is readable and every section is ready for `potclim run`");
+    if warnings > 0 {
+        outln!(
+            "checked with {warnings} warning(s): fix the blocks named above before ingesting, or most of those rows will be dropped"
+        );
+    } else {
+        outln!("ok: every input is readable and every section is ready for `potclim run`");
+    }
     Ok(())
 }
 

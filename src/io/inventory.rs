@@ -8,6 +8,7 @@ use super::error::Result;
 use super::ingest::{Period, display_name, study_period};
 use super::layout::{load_pots, load_sensors};
 use super::logs::{LogFormat, compile_logs, read_bytes};
+use super::qc::Reason;
 use super::study::Study;
 use super::table::is_missing;
 use std::collections::{BTreeMap, BTreeSet};
@@ -30,6 +31,65 @@ pub struct FileInventory {
     pub sensors: BTreeSet<String>,
     /// Flags raised on the sampled rows.
     pub sample_flags: usize,
+    /// Data rows in the sample.
+    pub sample_rows: usize,
+    /// Sampled rows with at least one flag.
+    pub flagged_rows: usize,
+    /// The most frequent reason among the sample's flags, with its count and
+    /// its first flag (line, variable and value), when any row was flagged.
+    pub main_cause: Option<(Reason, usize, super::logs::Flag)>,
+}
+
+impl FileInventory {
+    /// Whether most sampled rows were flagged: then the block, not the data,
+    /// is likely wrong, and `check` warns instead of calling the input readable.
+    pub fn mostly_flagged(&self) -> bool {
+        self.sample_rows > 0 && self.flagged_rows * 2 > self.sample_rows
+    }
+
+    /// The main cause of the sample's flags and how to fix the block
+    /// (`block` is its 1-based number), as two sentences for `check`.
+    pub fn cause_and_fix(&self, block: usize) -> Option<(String, String)> {
+        use super::logs::Variable;
+        let (reason, n, f) = self.main_cause.as_ref()?;
+        let at = format!("{}:{}", self.name, f.line);
+        let k = block;
+        Some(match (reason, f.variable) {
+            (Reason::MalformedRow, Variable::Sensor) => (
+                format!("{n} row(s) have no sensor id (first at {at})"),
+                format!(
+                    "if the sensor column is filled in the first row only or not at all, take the id from elsewhere in logs[{k}]: `sensor_from = \"file_stem\"`"
+                ),
+            ),
+            (Reason::MalformedRow, _) => (
+                format!("{n} row(s) do not split into the header's columns (first at {at}: {})", f.value),
+                format!(
+                    "check `delimiter` and `skip_lines` of logs[{k}] (the header must be the first line after the preamble)"
+                ),
+            ),
+            (Reason::UnparsableTime, _) => (
+                format!("{n} time cell(s) do not match the pattern (first at {at}: `{}`)", f.value),
+                format!("fix `time_format` of logs[{k}] to the way the file writes its times"),
+            ),
+            (Reason::UnparsableValue, _) => (
+                format!("{n} value(s) are not numbers (first at {at}, {}: `{}`)", f.variable.name(), f.value),
+                format!("check `decimal` and the channel columns of logs[{k}]"),
+            ),
+            (Reason::AmbiguousTime | Reason::NonexistentTime, _) => (
+                format!(
+                    "{n} local time(s) fall in a daylight-saving change and cannot be placed (first at {at}: `{}`)",
+                    f.value
+                ),
+                format!(
+                    "if the logger keeps one offset all year, set `timezone` of logs[{k}] to a fixed zone (\"UTC\", or \"Etc/GMT-1\" for UTC+01:00)"
+                ),
+            ),
+            (r, _) => (
+                format!("{n} flag(s) `{}` (first at {at}: {})", r.name(), f.value),
+                format!("check logs[{k}] against the file"),
+            ),
+        })
+    }
 }
 
 /// The counts of one factor column of the pot table.
@@ -198,7 +258,16 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
     let mut seen = BTreeSet::new();
     let mut span: Option<(i64, i64)> = None;
     let mut sample_flags = 0;
+    let mut sample_rows = 0;
+    let mut flagged_rows = 0;
+    let mut causes: BTreeMap<Reason, (usize, super::logs::Flag)> = BTreeMap::new();
     let mut take = |r: super::logs::FileRead| {
+        sample_rows += r.rows_read;
+        let lines: BTreeSet<u32> = r.flags.iter().map(|f| f.line).collect();
+        flagged_rows += lines.len();
+        for f in &r.flags {
+            causes.entry(f.reason).or_insert_with(|| (0, f.clone())).0 += 1;
+        }
         for row in &r.rows {
             span = Some(match span {
                 None => (row.time, row.time),
@@ -220,12 +289,17 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
     if let super::logs::SensorSource::Column(name) = &fmt.sensor {
         seen.extend(sensor_column_ids(fmt, name, &bytes[starts[header]..]));
     }
+    let main_cause =
+        causes.into_iter().max_by_key(|(r, (n, _))| (*n, std::cmp::Reverse(*r))).map(|(r, (n, f))| (r, n, f));
     Ok(FileInventory {
         name: display_name(study, path),
         lines: data.len(),
         span,
         sensors: seen,
         sample_flags,
+        sample_rows,
+        flagged_rows,
+        main_cause,
     })
 }
 

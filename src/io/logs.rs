@@ -657,6 +657,11 @@ struct Parser<'a> {
     file: u32,
     header_line: usize,
     ncols: usize,
+    /// One past the last column the block uses: a row with fewer fields than
+    /// the header is still complete when it has at least this many.
+    need: usize,
+    /// The columns the block uses, by index, for messages.
+    used: Vec<(usize, String)>,
     time_col: usize,
     sensor_col: Option<usize>,
     stem_sensor: Option<u32>,
@@ -724,6 +729,17 @@ impl<'a> Parser<'a> {
                 chan_cols[ch.index()] = Some((column(name)?, *conv));
             }
         }
+        let mut used: Vec<(usize, String)> = vec![(time_col, fmt.time_column.clone())];
+        if let (Some(c), SensorSource::Column(name)) = (sensor_col, &fmt.sensor) {
+            used.push((c, name.clone()));
+        }
+        for ch in Channel::ALL {
+            if let (Some((c, _)), Some((name, _))) = (chan_cols[ch.index()], &fmt.channels[ch.index()]) {
+                used.push((c, name.clone()));
+            }
+        }
+        used.sort();
+        let need = used.last().map_or(1, |u| u.0 + 1);
         let mut out = FileRead {
             rows_read: 0,
             rows: Vec::with_capacity(text_len / 32),
@@ -748,6 +764,8 @@ impl<'a> Parser<'a> {
             file,
             header_line,
             ncols: headers.len(),
+            need,
+            used,
             time_col,
             sensor_col,
             stem_sensor,
@@ -824,6 +842,20 @@ impl<'a> Parser<'a> {
         Some(s)
     }
 
+    /// Whether a record whose field count differs from the header's is
+    /// still a complete reading: fewer fields, but a cell for every column
+    /// the block uses (loggers that fill a trailing column such as a serial
+    /// number in the first row only); or more fields, the extra ones blank
+    /// (a delimiter at the end of the line).
+    fn complete<C: Cells>(&self, rec: &C) -> bool {
+        let n = rec.count();
+        match n.cmp(&self.ncols) {
+            std::cmp::Ordering::Less => n >= self.need,
+            std::cmp::Ordering::Equal => true,
+            std::cmp::Ordering::Greater => (self.ncols..n).all(|i| trim(rec.cell(i)).is_empty()),
+        }
+    }
+
     /// One data record at physical line `line`.
     #[inline]
     fn record<C: Cells>(&mut self, rec: &C, line: u32) {
@@ -832,8 +864,13 @@ impl<'a> Parser<'a> {
             return;
         }
         self.out.rows_read += 1;
-        if n != self.ncols {
-            let msg = format!("{n} fields where the header has {}", self.ncols);
+        if n != self.ncols && !self.complete(rec) {
+            let msg = match self.used.iter().find(|u| u.0 >= n) {
+                Some((_, name)) if n < self.ncols => {
+                    format!("{n} fields where the header has {}: no cell for column `{name}`", self.ncols)
+                }
+                _ => format!("{n} fields where the header has {}", self.ncols),
+            };
             self.flag(line, u32::MAX, None, Variable::Row, msg.as_bytes(), Reason::MalformedRow);
             return;
         }

@@ -3,12 +3,12 @@
 //! (numeric pot-table columns or columns of `<output>/pot_covariates.csv`).
 
 use super::error::{ModelError, Result};
-use super::verdict::DISTANCE_PREFIX;
 use crate::io::error::closest;
 use crate::io::layout::{Pots, load_pots};
 use crate::io::study::Study;
 use crate::io::table::{Table, is_missing};
 use crate::spatial::correlation::Family;
+use crate::spatial::geometry::DISTANCE_PREFIX;
 use serde::Deserialize;
 use std::path::{Path, PathBuf};
 

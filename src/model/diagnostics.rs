@@ -25,6 +25,9 @@ use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use statrs::distribution::{ContinuousCDF, Normal};
 use std::num::NonZero;
 
+/// Neighbours per pot for Moran's I (common practice for regular bench layouts: the 4 adjacent pots).
+pub const MORAN_NEIGHBOURS: usize = 4;
+
 /// k-nearest-neighbour lists (excluding the point itself). Ties at the k-th
 /// distance are broken by the k-d tree's order.
 pub fn knn(x: &[f64], y: &[f64], k: usize) -> Option<Vec<Vec<usize>>> {

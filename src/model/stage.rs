@@ -5,7 +5,7 @@
 
 use super::data::{ModelData, ModelSpec, load_model_data};
 use super::design::{CountTable, Design, DesignSpec, count_tables};
-use super::diagnostics::{MoranTest, knn, moran_residuals};
+use super::diagnostics::{MORAN_NEIGHBOURS, MoranTest, knn, moran_residuals};
 use super::error::Result;
 use super::gls::{Errors, Fit, fit_correlated, fit_independent};
 use super::ols::{AnovaTable, OlsFit, SsType, anova, ols};
@@ -14,9 +14,6 @@ use crate::io::study::Study;
 use crate::spatial::likelihood::{Distances, Method};
 use std::fmt::Write as _;
 use std::path::PathBuf;
-
-/// Neighbours per pot for Moran's I (common practice for regular bench layouts: the 4 adjacent pots).
-pub const MORAN_NEIGHBOURS: usize = 4;
 
 /// Reference distances (metres) at which the fitted correlation is reported.
 pub const REFERENCE_DISTANCES: [f64; 4] = [0.5, 1.0, 2.0, 5.0];

@@ -5,6 +5,10 @@
 use super::error::{Result, SpatialError};
 use std::path::PathBuf;
 
+/// Prefix of the distance covariates: `distance_<opening>` is the distance
+/// in metres from each pot to one `[[openings]]` entry ([`distances_to_opening`]).
+pub const DISTANCE_PREFIX: &str = "distance_";
+
 /// Two positions closer than this (metres) count as the same position.
 pub const DUPLICATE_TOLERANCE: f64 = 1e-6;
 

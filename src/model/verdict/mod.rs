@@ -1,0 +1,257 @@
+//! The verdict stage: the comparison grid of ML fits (base design; base plus
+//! each driver; base plus all climate drivers; each with independent errors and with
+//! every declared correlation family, with and without nugget), the verdict
+//! word and its reason ([`compare::decide`]), the REML refit of the chosen
+//! model with its residual check (Moran's I and the residual variogram), the
+//! driver ranking, the openings question (measured climate against plain
+//! distance) and the adjusted means. The rules are stated in `docs/verdict.md`.
+//!
+//! [`run_verdict`] reads the study; [`analyse`] works on loaded
+//! [`ModelData`] so that it can be tested on data with known truth. This file
+//! holds the options, the two entry points and the order of the work; the
+//! files of the stage, in reading order:
+//!
+//! - `result`: the result types (one row type per output table);
+//! - `grid`: which models the grid holds (driver sets times error models) and
+//!   the one helper that fits any of them by ML or REML;
+//! - `rule`: the grid ranked by AIC, the verdict word and reason
+//!   ([`compare::decide`]), the rows of `comparison.csv` and the
+//!   likelihood-ratio tests of nested pairs;
+//! - `summaries`: what is said about the chosen model: the residual check,
+//!   the driver ranking, the openings question and the adjusted means;
+//! - `uncertainty`: the mapped drivers' uncertainty, propagated by multiple
+//!   imputation and Rubin's rules;
+//! - `write`: `summary.json`, `comparison.csv`, `drivers.csv` and
+//!   `adjusted_means.csv`.
+
+mod grid;
+mod result;
+mod rule;
+mod summaries;
+mod uncertainty;
+mod write;
+
+pub use self::grid::model_name;
+pub use self::result::{
+    AdjustedMeanRow, CoefRow, DriverSummary, LrtRow, ModelRow, MoranSummary, OpeningsSummary, ResidualBin,
+    ResidualCheck, VerdictResult,
+};
+pub use self::uncertainty::{
+    MIN_SENSORS_FOR_VARIOGRAM, MappingDraws, SENSOR_FILE, SensorValues, impute_and_pool, load_sensor_values,
+    mapping_uncertainty, sensor_variogram,
+};
+pub use self::write::{adjusted_means_csv, comparison_csv, drivers_csv, write_outputs};
+pub use crate::spatial::geometry::DISTANCE_PREFIX;
+
+use self::grid::{GridFit, design_for, fit, fit_grid, lerr};
+use self::rule::{lrt_rows, model_rows, rank_and_decide};
+use self::summaries::{adjusted_means, driver_summaries, openings_summary, residual_check};
+use super::compare;
+use super::data::{ModelData, ModelSpec, load_model_data};
+use super::diagnostics::{MORAN_NEIGHBOURS, knn, moran_residuals};
+use super::error::Result;
+use super::gls::{Fit, fit_independent};
+use crate::io::study::Study;
+use crate::spatial::likelihood::{Distances, Method};
+use serde::{Deserialize, Serialize};
+use statrs::distribution::{ContinuousCDF, StudentsT};
+use std::time::Instant;
+
+/// Significance level of the confounding and residual-structure rules
+/// (common practice: 5 %).
+pub const ALPHA: f64 = 0.05;
+
+#[derive(Deserialize)]
+struct Doc {
+    verdict: Option<VerdictSection>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct VerdictSection {
+    tie_delta: Option<f64>,
+    draws: Option<usize>,
+}
+
+/// Options of the verdict stage (`[verdict]` of the study file).
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct VerdictOptions {
+    /// Tie margin in AIC units (`tie_delta`, default 4).
+    pub tie_delta: f64,
+    /// Conditional simulations per mapped driver (`draws`, default 20, at least 2).
+    pub draws: usize,
+    /// Seed of every random step (`[study] seed`).
+    pub seed: u64,
+}
+
+impl Default for VerdictOptions {
+    fn default() -> Self {
+        VerdictOptions { tie_delta: compare::DEFAULT_TIE_DELTA, draws: 20, seed: 1 }
+    }
+}
+
+impl VerdictOptions {
+    /// Read and validate `[verdict]` (every key optional; unknown keys refused
+    /// with their line and column).
+    pub fn from_study(study: &Study) -> Result<VerdictOptions> {
+        let doc: Doc = study.section()?;
+        let mut o = VerdictOptions { seed: study.seed(), ..VerdictOptions::default() };
+        if let Some(v) = doc.verdict {
+            if let Some(t) = v.tie_delta {
+                if !(t.is_finite() && t >= 0.0) {
+                    return Err(study
+                        .invalid(
+                            "verdict.tie_delta",
+                            format!("tie_delta must be a number >= 0, got {t}"),
+                            Some("the default is 4 AIC units".into()),
+                        )
+                        .into());
+                }
+                o.tie_delta = t;
+            }
+            if let Some(d) = v.draws {
+                if d < 2 {
+                    return Err(study
+                        .invalid(
+                            "verdict.draws",
+                            format!("draws must be at least 2, got {d}"),
+                            Some("Rubin's rules need two or more draws; the default is 20".into()),
+                        )
+                        .into());
+                }
+                o.draws = d;
+            }
+        }
+        Ok(o)
+    }
+}
+
+pub(super) fn mean_sd(v: &[f64]) -> (f64, f64) {
+    let n = v.len() as f64;
+    let m = v.iter().sum::<f64>() / n;
+    let var = v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0).max(1.0);
+    (m, var.sqrt())
+}
+
+pub(super) fn t_quantile(df: f64) -> f64 {
+    StudentsT::new(0.0, 1.0, df.max(1.0)).map(|t| t.inverse_cdf(0.975)).unwrap_or(1.959964)
+}
+
+/// Load the study's `[model]` and `[verdict]` data and run the verdict.
+pub fn run_verdict(study: &Study, opts: &VerdictOptions) -> Result<VerdictResult> {
+    let mut spec = ModelSpec::from_study(study)?;
+    let mut data = load_model_data(study, &spec)?;
+    let added = crate::model::data::add_opening_drivers(study, &mut spec, &mut data);
+    let mut r = analyse(&data, &spec, opts)?;
+    if !added.is_empty() {
+        r.notes.push(format!(
+            "{} added as candidate driver(s): every [[openings]] entry is compared as the plain distance from each pot to the opening",
+            added.iter().map(|a| format!("`{a}`")).collect::<Vec<_>>().join(", ")
+        ));
+    }
+    let climate: Vec<String> =
+        r.chosen_shape.0.iter().filter(|d| !d.starts_with(DISTANCE_PREFIX)).cloned().collect();
+    if climate.is_empty() {
+        return Ok(r);
+    }
+    let sensor_values = load_sensor_values(study, &climate)?;
+    let start = Instant::now();
+    for d in &climate {
+        let Some(sv) = sensor_values.iter().find(|s| &s.name == d) else {
+            r.notes.push(format!(
+                "`{d}`: no sensor-level values in {SENSOR_FILE} (or no [sensors] table), so the uncertainty of the mapped driver is not propagated; its SE treats the mapped values as known"
+            ));
+            continue;
+        };
+        let m = mapping_uncertainty(&data, &spec, &r.chosen_shape, sv, opts)?;
+        if let Some(row) = r.drivers.iter_mut().find(|x| &x.name == d) {
+            row.estimate_with_mapping_uncertainty = Some(m.pooled.estimate);
+            row.se_with_mapping_uncertainty = Some(m.pooled.se);
+            row.ci_low_with_mapping_uncertainty = Some(m.ci.0);
+            row.ci_high_with_mapping_uncertainty = Some(m.ci.1);
+        }
+        r.notes.push(m.note);
+    }
+    r.seconds += start.elapsed().as_secs_f64();
+    Ok(r)
+}
+
+/// Run the comparison grid, the verdict, the driver ranking and the adjusted
+/// means on loaded data. Cost: one ML fit per grid model (each correlated fit
+/// is a likelihood search of O(n³) evaluations), plus one REML refit.
+pub fn analyse(data: &ModelData, spec: &ModelSpec, opts: &VerdictOptions) -> Result<VerdictResult> {
+    let start = Instant::now();
+    let n = data.response.len();
+    // Build the full design first: collinear drivers are refused here with their names.
+    let full = design_for(data, spec, &spec.drivers)?;
+    let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| lerr("positions", e))?;
+    let mut notes = Vec::new();
+    let grid = fit_grid(data, spec, &full, &dist, &mut notes)?;
+    let (ranked, verdict) = rank_and_decide(&grid, n, opts.tie_delta)?;
+    let by_name = |name: &str| -> &GridFit {
+        grid.iter()
+            .find(|g| model_name(&g.drivers, &g.errors) == name)
+            .expect("every candidate is a grid fit")
+    };
+    let models = model_rows(&ranked, &grid);
+    let lrts = lrt_rows(&grid);
+
+    // The chosen model, refitted by REML.
+    let chosen_ml = by_name(&verdict.chosen);
+    let chosen_design = design_for(data, spec, &chosen_ml.drivers)?;
+    let chosen = fit(&chosen_design, data, &dist, chosen_ml.errors, Method::Reml)?;
+    let base_design = design_for(data, spec, &[])?;
+    let plain = fit_independent(&base_design, &data.response, Method::Reml)?;
+    let chosen_coefficients = (0..chosen.beta.len())
+        .map(|j| CoefRow {
+            term: chosen.names[j].clone(),
+            estimate: chosen.beta[j],
+            se: chosen.se[j],
+            p_value: chosen.p_value[j],
+        })
+        .collect();
+    let nb = knn(&data.x, &data.y, MORAN_NEIGHBOURS);
+    let moran_of = |f: &Fit| {
+        nb.as_ref().and_then(|nb| moran_residuals(&f.normalised, &f.whitened_x, nb)).map(|m| MoranSummary {
+            k: m.k,
+            i: m.i,
+            expected: m.expected,
+            variance: m.variance,
+            z: m.z,
+            p_value: m.p,
+        })
+    };
+    let residual_check = residual_check(data, &chosen, moran_of(&chosen), &verdict.chosen);
+
+    let drivers = driver_summaries(data, &grid, &chosen, chosen_ml.errors, &verdict.chosen);
+    let openings = openings_summary(&drivers);
+    let adjusted_means = adjusted_means(data, spec, &chosen_design, &chosen, &base_design, &plain);
+    let positions = (0..n).map(|i| (data.pots[i].clone(), data.x[i], data.y[i])).collect();
+    Ok(VerdictResult {
+        verdict: verdict.verdict.word().into(),
+        reason: verdict.reason.clone(),
+        best_model: verdict.chosen.clone(),
+        best_by_aic: verdict.best_by_aic.clone(),
+        options: opts.clone(),
+        trait_name: data.trait_name.clone(),
+        n_pots: n,
+        models,
+        lrts,
+        chosen_coefficients,
+        residual_check,
+        drivers,
+        openings,
+        adjusted_means,
+        notes,
+        n_fits: grid.len() + 2,
+        seconds: start.elapsed().as_secs_f64(),
+        positions,
+        plain_residuals: plain.residuals.clone(),
+        chosen_residuals: chosen.residuals.clone(),
+        plain_moran: moran_of(&plain),
+        chosen_shape: (chosen_ml.drivers.clone(), chosen_ml.errors),
+    })
+}
+
+#[cfg(test)]
+mod tests;
