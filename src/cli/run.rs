@@ -150,6 +150,15 @@ fn print_outcome(r: &RunResults) -> anyhow::Result<()> {
     outln!("verdict: {}", v.verdict);
     outln!("reason: {}", v.reason);
     outln!("chosen model: {}", v.best_model);
+    if !v.left_out.is_empty() {
+        let list: Vec<String> = v.left_out.iter().map(|p| format!("{} (line {})", p.pot, p.line)).collect();
+        outln!(
+            "left out: {} pot(s) because `{}` is missing: {}",
+            v.left_out.len(),
+            v.trait_name,
+            list.join(", ")
+        );
+    }
     outln!("report: {}", r.report_path.display());
     Ok(())
 }

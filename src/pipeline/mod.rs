@@ -277,52 +277,7 @@ fn verdict_in_memory(
     let mut data = assemble(&plan.pots, &spec, Some(&cov), &cov.path)?;
     let added = add_opening_drivers(study, &mut spec, &mut data);
     let sensor_values = sensor_values(plan, climate);
-    let _ = progress;
-    Ok(interim_verdict(study, &data, &spec, &added, &sensor_values, &plan.verdict)?)
-}
-
-// Interim copy of the tail of `run_verdict` until the verdict module offers
-// it on loaded data (see the split of model/verdict.rs).
-fn interim_verdict(
-    _study: &Study,
-    data: &crate::model::data::ModelData,
-    spec: &crate::model::data::ModelSpec,
-    added: &[String],
-    sensor_values: &[SensorValues],
-    opts: &crate::model::verdict::VerdictOptions,
-) -> Result<VerdictResult, ModelError> {
-    use crate::model::verdict::{DISTANCE_PREFIX, SENSOR_FILE, analyse, mapping_uncertainty};
-    let mut r = analyse(data, spec, opts)?;
-    if !added.is_empty() {
-        r.notes.push(format!(
-            "{} added as candidate driver(s): every [[openings]] entry is compared as the plain distance from each pot to the opening",
-            added.iter().map(|a| format!("`{a}`")).collect::<Vec<_>>().join(", ")
-        ));
-    }
-    let climate: Vec<String> =
-        r.chosen_shape.0.iter().filter(|d| !d.starts_with(DISTANCE_PREFIX)).cloned().collect();
-    if climate.is_empty() {
-        return Ok(r);
-    }
-    let start = Instant::now();
-    for d in &climate {
-        let Some(sv) = sensor_values.iter().find(|s| &s.name == d) else {
-            r.notes.push(format!(
-                "`{d}`: no sensor-level values in {SENSOR_FILE} (or no [sensors] table), so the uncertainty of the mapped driver is not propagated; its SE treats the mapped values as known"
-            ));
-            continue;
-        };
-        let m = mapping_uncertainty(data, spec, &r.chosen_shape, sv, opts)?;
-        if let Some(row) = r.drivers.iter_mut().find(|x| &x.name == d) {
-            row.estimate_with_mapping_uncertainty = Some(m.pooled.estimate);
-            row.se_with_mapping_uncertainty = Some(m.pooled.se);
-            row.ci_low_with_mapping_uncertainty = Some(m.ci.0);
-            row.ci_high_with_mapping_uncertainty = Some(m.ci.1);
-        }
-        r.notes.push(m.note);
-    }
-    r.seconds += start.elapsed().as_secs_f64();
-    Ok(r)
+    Ok(crate::model::verdict::verdict_on(&data, &spec, &added, &sensor_values, &plan.verdict, progress)?)
 }
 
 /// Each indicator's value per sensor over the study period, with the
