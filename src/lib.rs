@@ -5,7 +5,7 @@
 //! The crate is split by stage, and dependencies flow one way:
 //!
 //! ```text
-//! io -> climate -> spatial -> model -> report -> cli
+//! io -> climate -> spatial -> model -> report -> pipeline -> cli
 //!                     \-> simulate (uses io formats and spatial covariances)
 //! ```
 //!
@@ -19,6 +19,9 @@
 //!   REML and ML, and their diagnostics.
 //! * [`simulate`] owns synthetic studies with known truth.
 //! * [`report`] renders results; it never computes them.
+//! * [`pipeline`] runs the whole analysis as one call ([`run`]): every section
+//!   of the study file validated first ([`Plan`], the same code as `potclim
+//!   check`), then each stage's result passed to the next in memory.
 //! * [`cli`] is the only module that knows about the command line.
 #![warn(missing_docs)]
 
@@ -26,6 +29,9 @@ pub mod cli;
 pub mod climate;
 pub mod io;
 pub mod model;
+pub mod pipeline;
 pub mod report;
 pub mod simulate;
 pub mod spatial;
+
+pub use pipeline::{Plan, Progress, RunResults, run};

@@ -56,7 +56,30 @@ fn fit_writes_every_table() {
     let p = study(dir.path(), MODEL, &pots_csv(false, height));
     let (ok, stdout, stderr) = run(&p);
     assert!(ok, "{stderr}");
-    assert!(stdout.contains("ANOVA, type III"), "{stdout}");
+    assert!(
+        stdout
+            .contains("analysis of variance: each term after all the others, sum-to-zero coding (type III)"),
+        "{stdout}"
+    );
+    // The screen's own wording: column labels, the remainder row, the summary lines, the reference levels.
+    assert!(stdout.contains("pots per combination: accession down, regime across"), "{stdout}");
+    let head = stdout.lines().find(|l| l.starts_with("source ")).expect("anova header");
+    let labels: Vec<&str> = head.split("  ").map(str::trim).filter(|s| !s.is_empty()).collect();
+    assert_eq!(
+        labels,
+        ["source", "sum of squares", "deg. fr.", "mean square", "F ratio", "p-value"],
+        "{head}"
+    );
+    assert!(stdout.lines().any(|l| l.starts_with("remainder ")), "{stdout}");
+    assert!(stdout.contains("spread left unexplained (standard deviation): "), "{stdout}");
+    assert!(stdout.contains("share of the trait's variance explained: "), "{stdout}");
+    assert!(stdout.lines().any(|l| l.starts_with("baseline ")), "{stdout}");
+    assert!(stdout.lines().any(|l| l.starts_with("accession=k2 & regime=full ")), "{stdout}");
+    // Reference levels: those of the first pot in the file (P00: k1, shade).
+    assert!(stdout.contains("reference levels (first appearance among the analysed pots, line 2): accession = k1, regime = shade"), "{stdout}");
+    for old in ["(intercept)", "[k2]", "residuals ", "sum sq ", "mean sq ", "adjusted R2", "residual SE"] {
+        assert!(!stdout.contains(old), "`{old}` in: {stdout}");
+    }
     let out = dir.path().join("out");
     let models = std::fs::read_to_string(out.join("models.csv")).unwrap();
     let mut lines = models.lines();
@@ -82,10 +105,17 @@ fn fit_writes_every_table() {
     let residuals = std::fs::read_to_string(out.join("residuals.csv")).unwrap();
     assert_eq!(residuals.lines().count(), 1 + 48 * rows.len());
     let anova = std::fs::read_to_string(out.join("anova.csv")).unwrap();
+    assert_eq!(
+        anova.lines().next().unwrap(),
+        "model,method,test,term,df,df_remainder,sum_of_squares,mean_square,f_ratio,p_value"
+    );
     assert!(anova.contains("ols,OLS,type_I,accession:regime,2,"));
+    assert!(anova.contains("ols,OLS,type_I,remainder,41,,"), "{anova}");
+    assert!(anova.contains("ols,OLS,type_III,baseline,1,41,"), "{anova}");
     assert!(anova.contains(",REML,wald,substrate_temp,1,41,"));
     let coef = std::fs::read_to_string(out.join("coefficients.csv")).unwrap();
-    assert!(coef.contains("ols,OLS,accession[k2]:regime[full],"));
+    assert!(coef.contains("ols,OLS,accession=k2 & regime=full,"), "{coef}");
+    assert!(coef.contains("ols,OLS,baseline,"), "{coef}");
     assert!(out.join("diagnostics.csv").exists());
     let rv = std::fs::read_to_string(out.join("residual_variograms.csv")).unwrap();
     assert!(rv.starts_with("variable,direction,"), "{rv}");
@@ -182,4 +212,39 @@ fn unknown_model_key_is_refused_with_its_position() {
         &pots_csv(false, height),
         &["study.toml:", "factor"],
     );
+}
+
+#[test]
+fn single_factor_count_table_is_worded_as_levels() {
+    let dir = tempfile::tempdir().unwrap();
+    let model =
+        "trait = \"height\"\nfactors = [\"accession\"]\ncorrelations = [\"exponential\"]\nnugget = false";
+    let p = study(dir.path(), model, &pots_csv(false, height));
+    let (ok, stdout, stderr) = run(&p);
+    assert!(ok, "{stderr}");
+    assert!(stdout.contains("pots per level of accession\n"), "{stdout}");
+    assert!(!stdout.contains(" x count"), "{stdout}");
+    let k1 = stdout.lines().find(|l| l.trim_start().starts_with("k1 ")).expect("row of k1");
+    assert_eq!(k1.split_whitespace().collect::<Vec<_>>(), ["k1", "16"]);
+}
+
+#[test]
+fn fit_into_a_closed_pipe_ends_quietly_with_status_0() {
+    use std::process::Stdio;
+    let dir = tempfile::tempdir().unwrap();
+    let p = study(dir.path(), MODEL, &pots_csv(false, height));
+    // Standard output is a pipe whose reader is already gone (as when `head`
+    // has read its lines and exited): every write fails with a broken pipe.
+    let (reader, writer) = std::io::pipe().unwrap();
+    drop(reader);
+    let o = Command::new(env!("CARGO_BIN_EXE_potclim"))
+        .arg("fit")
+        .arg(&p)
+        .stdout(Stdio::from(writer))
+        .stderr(Stdio::piped())
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(0), "{stderr}");
+    assert!(stderr.is_empty(), "{stderr}");
 }

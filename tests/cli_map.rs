@@ -104,9 +104,22 @@ fn mapped_indicators_follow_the_true_field() {
 #[test]
 fn run_writes_every_stage_and_the_report() {
     let (d, s) = demo_copy();
-    let (ok, out, err) = potclim(&["run", s.to_str().unwrap(), "--quiet"]);
+    // Standard output is a pipe here, as in `potclim run study.toml > log.txt`:
+    // the outcome is printed there, and no progress reaches standard error.
+    let (ok, out, err) = potclim(&["run", s.to_str().unwrap()]);
     assert!(ok, "{err}");
-    assert!(out.contains("report.html"), "{out}");
+    assert!(err.is_empty(), "progress drawn although standard error is not a terminal: {err}");
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.path().join("output/summary.json")).unwrap())
+            .unwrap();
+    for (label, key) in [("verdict: ", "verdict"), ("reason: ", "reason"), ("chosen model: ", "best_model")] {
+        let want = format!("{label}{}", summary[key].as_str().unwrap());
+        assert!(out.lines().any(|l| l == want), "`{want}` not in: {out}");
+    }
+    assert!(out.lines().any(|l| l.starts_with("report: ") && l.ends_with("report.html")), "{out}");
+    for stage in ["ingest: ", "climate: ", "map: ", "verdict: ", "report: "] {
+        assert!(out.lines().any(|l| l.starts_with(stage)), "no `{stage}` line: {out}");
+    }
     let dir = d.path().join("output");
     for f in [
         "readings.parquet",

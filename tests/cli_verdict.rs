@@ -211,3 +211,50 @@ fn openings_are_candidate_drivers() {
     assert_eq!(models.len(), 3 * 3, "base, base+cold, base+distance_door");
     assert!(models.iter().all(|m| m["name"].as_str().unwrap().matches('+').count() <= 2), "{models:?}");
 }
+
+#[test]
+fn pots_without_a_trait_value_are_named_in_output_summary_and_notes() {
+    let dir = tempfile::tempdir().unwrap();
+    // P05 (line 7) and P17 (line 19) lose their height.
+    let pots: String = pots_csv(|_| String::new(), "")
+        .lines()
+        .map(|l| {
+            if l.starts_with("P05,") || l.starts_with("P17,") {
+                let cut = l.rfind(',').unwrap();
+                format!("{},NA\n", &l[..cut])
+            } else {
+                format!("{l}\n")
+            }
+        })
+        .collect();
+    let p = study(dir.path(), "[\"cold\"]", &pots);
+    let (ok, stdout, stderr) = run(&p);
+    assert!(ok, "{stderr}");
+    assert!(stdout.contains("46 pots"), "{stdout}");
+    assert!(
+        stdout.contains("note: 2 pot(s) left out because `height` is missing: P05 (line 7), P17 (line 19)"),
+        "{stdout}"
+    );
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out/summary.json")).unwrap()).unwrap();
+    assert_eq!(summary["n_pots"], 46);
+    let left: Vec<(String, u64, String)> = summary["left_out"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| {
+            (
+                p["pot"].as_str().unwrap().into(),
+                p["line"].as_u64().unwrap(),
+                p["reason"].as_str().unwrap().into(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        left,
+        [
+            ("P05".to_string(), 7, "`height` is missing".to_string()),
+            ("P17".into(), 19, "`height` is missing".into())
+        ]
+    );
+}

@@ -5,11 +5,11 @@ use std::path::PathBuf;
 use timefmt::{span, utc};
 
 /// The long help of `potclim check`.
-pub const HELP: &str = "Validate every input of a study without computing anything heavy: the study file (unknown keys, units, time zones, time patterns), the pot table, the sensor table, and every logger export matched by the [[logs]] globs (the header's columns, and the first and last 200 rows parsed with the block's delimiter, decimal mark, time format and zone).
+pub const HELP: &str = "Validate every input of a study without computing anything heavy: every section of the study file as `potclim run` reads it before any work ([climate] and at least one [[indicator]], [mapping], [model] with its trait, factors, blocks and drivers checked against the pot table, the indicators and the openings, [verdict]; unknown keys, units, time zones, time patterns), the pot table, the sensor table, and every logger export matched by the [[logs]] globs (the header's columns, the sensor ids of every row, and the first and last 200 rows parsed with the block's delimiter, decimal mark, time format and zone).
 
-Prints the number of pots and sensors, each export with its row count and time span, sensor ids missing from the sensor table, and the pot table's factor columns with their level counts and a count table for every pair of factors, so that an unbalanced design shows before any model is fitted.
+Prints the number of pots and sensors (and which sensors have no readings in any export), each export with its row count and time span, sensor ids missing from the sensor table, the trait's pots left out for a missing value, the reference level of each model factor, and the pot table's factor columns with their level counts and a count table for every pair of factors, so that an unbalanced design shows before any model is fitted.
 
-Exits with status 1 and a message naming file, line and column at the first problem.";
+Exits with status 1 and a message naming file, line and column at the first problem: whatever `potclim run` would refuse, `check` refuses first.";
 
 /// Arguments of `potclim check`.
 #[derive(Debug, clap::Args)]
@@ -36,18 +36,27 @@ pub(crate) mod timefmt {
 /// Run `potclim check`.
 pub fn run(a: CheckArgs) -> anyhow::Result<()> {
     let study = crate::io::study::Study::load(&a.study)?;
+    let plan = crate::pipeline::Plan::from_study(&study)
+        .with_context(|| format!("while checking {}", a.study.display()))?;
     let inv = crate::io::inventory::inventory(&study)
         .with_context(|| format!("while checking {}", a.study.display()))?;
-    println!("study: {} ({})", study.spec.study.title, study.path.display());
-    println!("time zone: {}", study.timezone);
-    println!("pots: {}", inv.pots);
+    outln!("study: {} ({})", study.spec.study.title, study.path.display());
+    outln!("time zone: {}", study.timezone);
+    outln!("pots: {}", inv.pots);
     match inv.sensors {
-        Some(n) => println!("sensors: {n}"),
-        None => println!("sensors: none (no [sensors] table)"),
+        Some(n) => outln!("sensors: {n} in the sensor table, {} with readings", n - inv.silent_sensors.len()),
+        None => outln!("sensors: none (no [sensors] table)"),
+    }
+    if !inv.silent_sensors.is_empty() {
+        outln!(
+            "warning: no readings from {} sensor(s) of the sensor table (no row in any export): {}; nothing is mapped from them",
+            inv.silent_sensors.len(),
+            inv.silent_sensors.join(", ")
+        );
     }
     match (inv.period.start, inv.period.end) {
-        (None, None) => println!("study period: not set ([climate] start/end)"),
-        (s, e) => println!(
+        (None, None) => outln!("study period: not set ([climate] start/end)"),
+        (s, e) => outln!(
             "study period: {} .. {}",
             s.map(utc).unwrap_or_else(|| "open".into()),
             e.map(utc).unwrap_or_else(|| "open".into())
@@ -56,7 +65,7 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
     let mut overall: Option<(i64, i64)> = None;
     let mut warnings = 0;
     for (i, files) in inv.logs.iter().enumerate() {
-        println!("logs[{}]: {} file(s)", i + 1, files.len());
+        outln!("logs[{}]: {} file(s)", i + 1, files.len());
         for f in files {
             let s = f.span.map(|(a, b)| span(a, b)).unwrap_or_else(|| "no readable time".into());
             let ids: Vec<&str> = f.sensors.iter().map(String::as_str).collect();
@@ -65,19 +74,21 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
             } else {
                 ids.join(", ")
             };
-            println!("  {}: {} rows, {s}, sensors: {shown}", f.name, f.lines);
+            outln!("  {}: {} rows, {s}, sensors: {shown}", f.name, f.lines);
             if f.sample_flags > 0 {
-                println!("    {} reading(s) in the sampled rows would be flagged", f.sample_flags);
+                outln!("    {} reading(s) in the sampled rows would be flagged", f.sample_flags);
             }
             if f.mostly_flagged() {
                 warnings += 1;
-                println!(
+                outln!(
                     "warning: {} of {} sampled rows of {} would be flagged",
-                    f.flagged_rows, f.sample_rows, f.name
+                    f.flagged_rows,
+                    f.sample_rows,
+                    f.name
                 );
                 if let Some((cause, fix)) = f.cause_and_fix(i + 1) {
-                    println!("  cause: {cause}");
-                    println!("  fix: {fix}");
+                    outln!("  cause: {cause}");
+                    outln!("  fix: {fix}");
                 }
             }
             if let Some((a, b)) = f.span {
@@ -86,24 +97,25 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
         }
     }
     if let Some((a, b)) = overall {
-        println!("time span of the logs (first and last rows): {}", span(a, b));
+        outln!("time span of the logs (first and last rows): {}", span(a, b));
     }
     if !inv.unknown_sensors.is_empty() {
         let ids: Vec<&str> = inv.unknown_sensors.iter().map(String::as_str).collect();
-        println!(
+        outln!(
             "warning: sensor id(s) in the logs but not in the sensor table: {} (ingest will stop unless [qc] drop_unknown_sensors = true)",
             ids.join(", ")
         );
     }
+    print_model(&plan)?;
     if inv.factors.is_empty() {
-        println!("factors: none found (text columns of the pot table with repeated levels)");
+        outln!("factors: none found (text columns of the pot table with repeated levels)");
     }
     for f in &inv.factors {
         let lv: Vec<String> = f.levels.iter().map(|(l, n)| format!("{l} ({n})")).collect();
-        println!("factor {}: {} levels: {}", f.name, f.levels.len(), lv.join(", "));
+        outln!("factor {}: {} levels: {}", f.name, f.levels.len(), lv.join(", "));
     }
     for t in &inv.crosstabs {
-        println!("pots by {} x {}:", t.rows, t.cols);
+        outln!("pots by {} x {}:", t.rows, t.cols);
         let w0 =
             t.row_levels.iter().map(|l| l.chars().count()).max().unwrap_or(0).max(t.rows.chars().count());
         let widths: Vec<usize> = t.col_levels.iter().map(|l| l.chars().count().max(3)).collect();
@@ -111,21 +123,60 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
         for (l, w) in t.col_levels.iter().zip(&widths) {
             head.push_str(&format!("  {l:>w$}"));
         }
-        println!("{head}");
+        outln!("{head}");
         for (i, rl) in t.row_levels.iter().enumerate() {
             let mut line = format!("  {rl:w0$}");
             for (j, w) in widths.iter().enumerate() {
                 line.push_str(&format!("  {:>w$}", t.counts[i][j]));
             }
-            println!("{line}");
+            outln!("{line}");
         }
     }
     if warnings > 0 {
-        println!(
+        outln!(
             "checked with {warnings} warning(s): fix the blocks named above before ingesting, or most of those rows will be dropped"
         );
     } else {
-        println!("ok: every input is readable");
+        outln!("ok: every input is readable and every section is ready for `potclim run`");
+    }
+    Ok(())
+}
+
+/// What the model will analyse: the trait's pots, the pots left out, the
+/// drivers by source and each factor's reference level.
+fn print_model(plan: &crate::pipeline::Plan) -> anyhow::Result<()> {
+    let d = &plan.pot_data;
+    outln!("trait {}: {} pots with a value", d.trait_name, d.response.len());
+    if !d.excluded.is_empty() {
+        let list: Vec<String> = d.excluded.iter().map(|(id, line)| format!("{id} (line {line})")).collect();
+        outln!(
+            "note: {} pot(s) will be left out because `{}` is missing: {}",
+            d.excluded.len(),
+            d.trait_name,
+            list.join(", ")
+        );
+    }
+    let mapped = &plan.mapped;
+    let drivers: Vec<String> = plan
+        .model
+        .drivers
+        .iter()
+        .map(|name| match mapped.iter().find(|(n, _)| n == name) {
+            Some((_, kind)) => format!("{name} ({kind})"),
+            None => format!("{name} (pot table)"),
+        })
+        .collect();
+    if !drivers.is_empty() {
+        outln!("drivers: {}", drivers.join(", "));
+    }
+    let factors: Vec<String> =
+        d.blocks.iter().chain(&d.factors).map(|f| format!("{} = {}", f.name, f.levels[0])).collect();
+    if let (false, Some(line)) = (factors.is_empty(), d.lines.first()) {
+        outln!(
+            "reference levels (first appearance among the analysed pots: pot {}, line {line}): {}",
+            d.pots[0],
+            factors.join(", ")
+        );
     }
     Ok(())
 }

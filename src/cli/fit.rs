@@ -18,11 +18,11 @@ pub fn run(args: FitArgs) -> anyhow::Result<()> {
     let study = crate::io::study::Study::load(&args.study)
         .with_context(|| format!("loading {}", args.study.display()))?;
     let report = crate::model::stage::fit_study(&study)?;
-    print_report(&report);
+    print_report(&report)?;
     let files = crate::model::stage::write_outputs(&study, &report)?;
-    println!();
+    outln!();
     for f in files {
-        println!("wrote {}", f.display());
+        outln!("wrote {}", f.display());
     }
     Ok(())
 }
@@ -41,48 +41,74 @@ mod potclim_model_print {
     }
 
     /// Print the tables of a fit report.
-    pub fn print_report(r: &FitReport) {
-        println!(
+    pub fn print_report(r: &FitReport) -> anyhow::Result<()> {
+        outln!(
             "trait `{}`: {} pots, {} coefficients",
             r.data.trait_name,
             r.data.response.len(),
             r.design.p()
         );
         for n in &r.notes {
-            println!("note: {n}");
+            outln!("note: {n}");
+        }
+        let refs: Vec<String> = r
+            .data
+            .blocks
+            .iter()
+            .chain(&r.data.factors)
+            .map(|f| format!("{} = {}", f.name, f.levels[0]))
+            .collect();
+        if !refs.is_empty() {
+            outln!(
+                "reference levels (first appearance among the analysed pots, line {}): {}",
+                r.data.lines.first().copied().unwrap_or(0),
+                refs.join(", ")
+            );
         }
         for t in &r.counts {
-            println!();
-            println!(
-                "pots per cell: {} x {}",
-                t.rows_name,
-                if t.cols_name.is_empty() { "count" } else { &t.cols_name }
-            );
-            print!("{:>14}", "");
-            for c in &t.cols {
-                print!(" {c:>10}");
+            outln!();
+            if t.cols_name.is_empty() {
+                outln!("pots per level of {}", t.rows_name);
+            } else {
+                outln!("pots per combination: {} down, {} across", t.rows_name, t.cols_name);
             }
-            println!();
+            out!("{:>14}", "");
+            for c in &t.cols {
+                out!(" {c:>10}");
+            }
+            outln!();
             for (i, row) in t.rows.iter().enumerate() {
-                print!("{row:>14}");
+                out!("{row:>14}");
                 for c in &t.counts[i] {
-                    print!(" {c:>10}");
+                    out!(" {c:>10}");
                 }
-                println!();
+                outln!();
             }
         }
         let o = &r.ols;
-        println!();
-        println!(
-            "OLS, independent errors: residual SE {} on {} df, R2 {}, adjusted R2 {}",
+        outln!();
+        outln!("least squares with independent errors");
+        outln!(
+            "  spread left unexplained (standard deviation): {}, from {} degrees of freedom",
             fmt(o.resid_se),
-            o.df_resid,
-            fmt(o.r2),
-            fmt(o.adj_r2)
+            o.df_resid
         );
-        println!("{:<36} {:>12} {:>12} {:>9} {:>10}", "column", "estimate", "SE", "t", "p");
+        outln!(
+            "  share of the trait's variance explained: {} ({} once the {} coefficients are paid for)",
+            fmt(o.r2),
+            fmt(o.adj_r2),
+            o.beta.len()
+        );
+        outln!(
+            "{:<36} {:>12} {:>12} {:>9} {:>10}",
+            "design column",
+            "estimate",
+            "std error",
+            "t ratio",
+            "p-value"
+        );
         for j in 0..o.beta.len() {
-            println!(
+            outln!(
                 "{:<36} {:>12} {:>12} {:>9} {:>10}",
                 o.names[j],
                 fmt(o.beta[j]),
@@ -92,24 +118,32 @@ mod potclim_model_print {
             );
         }
         for t in &r.anova {
-            println!();
-            println!("ANOVA, type {} sums of squares", t.kind.label());
-            println!("{:<28} {:>5} {:>14} {:>14} {:>10} {:>10}", "term", "df", "sum sq", "mean sq", "F", "p");
+            outln!();
+            outln!("analysis of variance: {} (type {})", t.kind.describe(), t.kind.label());
+            outln!(
+                "{:<28} {:>15} {:>10} {:>14} {:>10} {:>10}",
+                "source",
+                "sum of squares",
+                "deg. fr.",
+                "mean square",
+                "F ratio",
+                "p-value"
+            );
             for row in &t.rows {
-                println!(
-                    "{:<28} {:>5} {:>14} {:>14} {:>10} {:>10}",
+                outln!(
+                    "{:<28} {:>15} {:>10} {:>14} {:>10} {:>10}",
                     row.term,
-                    row.df,
                     fmt(row.sum_sq),
+                    row.df,
                     fmt(row.mean_sq),
                     row.f.map(fmt).unwrap_or_default(),
                     row.p.map(fmt).unwrap_or_default()
                 );
             }
         }
-        println!();
-        println!("residual covariance fits (k = coefficients + variance + range + nugget share)");
-        println!(
+        outln!();
+        outln!("residual covariance fits (k = coefficients + variance + range + nugget share)");
+        outln!(
             "{:<24} {:>6} {:>12} {:>10} {:>10} {:>3} {:>9} {:>10} {:>10} {:>8} {:>9} {:>6}",
             "model",
             "method",
@@ -129,7 +163,7 @@ mod potclim_model_print {
                 Some(c) => (fmt(c.params.range), fmt(c.practical_range), fmt(c.params.eta)),
                 None => ("-".into(), "-".into(), "-".into()),
             };
-            println!(
+            outln!(
                 "{:<24} {:>6} {:>12} {:>10} {:>10} {:>3} {:>9} {:>10} {:>10} {:>8} {:>9} {:>6}",
                 model_name(f),
                 f.method.label(),
@@ -146,10 +180,10 @@ mod potclim_model_print {
             );
             if let Some(s) = &f.search {
                 if !s.at_bounds.is_empty() {
-                    println!("{:<24} estimate on a bound: {}", "", s.at_bounds.join(", "));
+                    outln!("{:<24} estimate on a bound: {}", "", s.at_bounds.join(", "));
                 }
                 if let Some((p, ll)) = &s.other_optimum {
-                    println!(
+                    outln!(
                         "{:<24} another local optimum: range {} nugget share {} loglik {}",
                         "",
                         fmt(p.range),
@@ -159,29 +193,29 @@ mod potclim_model_print {
                 }
             }
         }
-        println!();
-        println!("correlation at reference distances (REML fits; nugget share included)");
-        print!("{:<24}", "model");
+        outln!();
+        outln!("correlation at reference distances (REML fits; nugget share included)");
+        out!("{:<24}", "model");
         for d in REFERENCE_DISTANCES {
-            print!(" {:>8}", format!("{d} m"));
+            out!(" {:>8}", format!("{d} m"));
         }
-        println!();
+        outln!();
         for f in r
             .fits
             .iter()
             .filter(|f| f.covariance.is_some() && f.method == crate::spatial::likelihood::Method::Reml)
         {
-            print!("{:<24}", model_name(f));
+            out!("{:<24}", model_name(f));
             for d in REFERENCE_DISTANCES {
-                print!(" {:>8}", fmt(f.correlation_at(d)));
+                out!(" {:>8}", fmt(f.correlation_at(d)));
             }
-            println!();
+            outln!();
         }
         for f in r.fits.iter().filter(|f| f.method == crate::spatial::likelihood::Method::Reml) {
-            println!();
-            println!("{} (REML): coefficients and marginal Wald tests", model_name(f));
+            outln!();
+            outln!("{} (REML): coefficients and marginal Wald tests", model_name(f));
             for j in 0..f.beta.len() {
-                println!(
+                outln!(
                     "{:<36} {:>12} {:>12} {:>9} {:>10}",
                     f.names[j],
                     fmt(f.beta[j]),
@@ -191,7 +225,7 @@ mod potclim_model_print {
                 );
             }
             for w in &f.wald {
-                println!(
+                outln!(
                     "  Wald F {:<27} F({}, {}) = {:>10}  p = {}",
                     w.term,
                     w.df,
@@ -201,5 +235,6 @@ mod potclim_model_print {
                 );
             }
         }
+        Ok(())
     }
 }

@@ -42,12 +42,12 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     let read: usize = ing.files.iter().map(|f| f.rows_read).sum();
     let kept: usize = ing.files.iter().map(|f| f.rows_kept).sum();
     let flagged: usize = ing.files.iter().map(|f| f.rows_flagged).sum();
-    println!("{} file(s), {read} rows read: {kept} kept as is, {flagged} with flags", ing.files.len());
+    outln!("{} file(s), {read} rows read: {kept} kept as is, {flagged} with flags", ing.files.len());
     let h = ing.readings.height();
     let sensors = ing.readings.column("sensor").ok().and_then(|c| c.n_unique().ok()).unwrap_or(0);
-    println!("readings: {h} rows from {sensors} sensor(s)");
+    outln!("readings: {h} rows from {sensors} sensor(s)");
     if let Some((lo, hi)) = ing.span {
-        println!("time span: {}", span(lo, hi));
+        outln!("time span: {}", span(lo, hi));
     }
     let mut by_reason = [0usize; Reason::ALL.len()];
     for f in &ing.flags {
@@ -55,12 +55,12 @@ pub fn run(a: IngestArgs) -> anyhow::Result<()> {
     }
     for (r, n) in Reason::ALL.iter().zip(by_reason) {
         if n > 0 {
-            println!("  {:<17} {n} flag(s)", r.name());
+            outln!("  {:<17} {n} flag(s)", r.name());
         }
     }
-    println!("gaps: {}", ing.gaps.len());
+    outln!("gaps: {}", ing.gaps.len());
     for p in published {
-        println!("wrote {}", p.display());
+        outln!("wrote {}", p.display());
     }
     Ok(())
 }

@@ -35,8 +35,8 @@ pub fn run(a: InitArgs) -> anyhow::Result<()> {
         );
     }
     std::fs::write(&path, TEMPLATE).with_context(|| format!("cannot write {}", path.display()))?;
-    println!("wrote {}", path.display());
-    println!("next: edit it to name your files, then run `potclim check {}`", path.display());
+    outln!("wrote {}", path.display());
+    outln!("next: edit it to name your files, then run `potclim check {}`", path.display());
     Ok(())
 }
 

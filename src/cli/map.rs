@@ -33,9 +33,9 @@ pub fn run(args: MapArgs) -> anyhow::Result<()> {
     let study = Study::load(&args.study)
         .with_context(|| format!("while reading the study file {}", args.study.display()))?;
     let (run, published) = stage::run(&study).context("in the mapping stage")?;
-    print!("{}", summary(&run));
+    out!("{}", summary(&run));
     for p in published {
-        println!("wrote {}", p.display());
+        outln!("wrote {}", p.display());
     }
     Ok(())
 }

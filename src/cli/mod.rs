@@ -2,7 +2,32 @@
 //! lives in its own file, parses its arguments into domain types, calls the
 //! library and prints a short human summary. Errors from the stages are
 //! printed with their full chain (`{:#}`) and mapped to exit code 1; usage
-//! errors exit with 2.
+//! errors exit with 2. Everything meant for the user's eyes or a script
+//! goes to standard output through `outln!`/`out!`, which return a write
+//! error instead of panicking: a reader that closes the pipe early
+//! (`potclim check study.toml | head`) ends the command quietly with status 0.
+//! Progress goes to standard error, and only on a terminal.
+
+/// `println!` to standard output that returns (with `?`) the write error
+/// instead of panicking; see [`main_entry`] for a closed pipe.
+macro_rules! outln {
+    () => {{
+        use std::io::Write as _;
+        writeln!(std::io::stdout().lock())?
+    }};
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        writeln!(std::io::stdout().lock(), $($arg)*)?
+    }};
+}
+
+/// `print!` to standard output; see `outln!`.
+macro_rules! out {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        write!(std::io::stdout().lock(), $($arg)*)?
+    }};
+}
 
 mod simulate;
 
@@ -68,13 +93,26 @@ pub fn main_entry() -> i32 {
             return code;
         }
     };
-    match run(cli) {
+    let result = run(cli).and_then(|()| {
+        use std::io::Write as _;
+        Ok(std::io::stdout().flush()?)
+    });
+    match result {
         Ok(()) => 0,
+        Err(e) if is_broken_pipe(&e) => 0,
         Err(e) => {
             eprintln!("error: {e:#}");
             1
         }
     }
+}
+
+/// True when the error is standard output closed by its reader (`| head`):
+/// not an error of potclim, so the command ends quietly with status 0.
+fn is_broken_pipe(e: &anyhow::Error) -> bool {
+    e.chain().any(|c| {
+        c.downcast_ref::<std::io::Error>().is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+    })
 }
 
 /// Dispatch a parsed command line.

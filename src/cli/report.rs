@@ -50,9 +50,9 @@ pub fn run(args: ReportArgs) -> anyhow::Result<()> {
         }
     }
     let published = writer.commit()?;
-    println!("wrote {}", published[0].display());
+    outln!("wrote {}", published[0].display());
     if n_png > 0 {
-        println!("wrote {n_png} figures as PNG in {}", out.join("figures").display());
+        outln!("wrote {n_png} figures as PNG in {}", out.join("figures").display());
     }
     Ok(())
 }

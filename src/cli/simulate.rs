@@ -28,7 +28,7 @@ pub struct SimulateArgs {
 pub fn run(args: SimulateArgs) -> anyhow::Result<()> {
     let s = crate::simulate::run(&args.scenario, &args.out, args.seed)
         .with_context(|| format!("simulating {}", args.scenario.display()))?;
-    println!(
+    outln!(
         "wrote {} files ({:.1} MB) to {}: {} pots, {} loggers, {} injected faults listed in truth/faults.csv",
         s.files.len(),
         s.bytes as f64 / 1e6,

@@ -20,26 +20,38 @@ pub fn run(args: VerdictArgs) -> anyhow::Result<()> {
         .with_context(|| format!("loading {}", args.study.display()))?;
     let opts = VerdictOptions::from_study(&study)?;
     let r = run_verdict(&study, &opts)?;
-    println!("trait `{}`: {} pots, {} fits in {:.1} s", r.trait_name, r.n_pots, r.n_fits, r.seconds);
+    outln!("trait `{}`: {} pots, {} fits in {:.1} s", r.trait_name, r.n_pots, r.n_fits, r.seconds);
     for n in &r.notes {
-        println!("note: {n}");
+        outln!("note: {n}");
     }
-    println!();
-    println!("{:<48} {:>10} {:>10} {:>4} {:>8} {:>7}", "model", "loglik", "AIC", "k", "dAIC", "weight");
+    outln!();
+    outln!("{:<48} {:>10} {:>10} {:>4} {:>8} {:>7}", "model", "loglik", "AIC", "k", "dAIC", "weight");
     for m in &r.models {
-        println!(
+        outln!(
             "{:<48} {:>10.2} {:>10.2} {:>4} {:>8.2} {:>7.3}",
-            m.name, m.loglik, m.aic, m.n_params, m.delta_aic, m.akaike_weight
+            m.name,
+            m.loglik,
+            m.aic,
+            m.n_params,
+            m.delta_aic,
+            m.akaike_weight
         );
     }
     if !r.drivers.is_empty() {
-        println!();
-        println!(
+        outln!();
+        outln!(
             "{:<24} {:>11} {:>11} {:>10} {:>10} {:>8} {:>8} {:>6}",
-            "driver", "estimate", "per SD", "SE", "p", "dAIC", "dAIC|cor", "VIF"
+            "driver",
+            "estimate",
+            "per SD",
+            "SE",
+            "p",
+            "dAIC",
+            "dAIC|cor",
+            "VIF"
         );
         for d in &r.drivers {
-            println!(
+            outln!(
                 "{:<24} {:>11.4} {:>11.4} {:>10.4} {:>10.3e} {:>8.2} {:>8} {:>6}{}",
                 d.name,
                 d.estimate,
@@ -54,18 +66,18 @@ pub fn run(args: VerdictArgs) -> anyhow::Result<()> {
         }
     }
     if let Some(o) = &r.openings {
-        println!();
-        println!("{}", o.statement);
+        outln!();
+        outln!("{}", o.statement);
     }
-    println!();
-    println!("{}", r.residual_check.statement);
-    println!();
-    println!("verdict: {}", r.verdict);
-    println!("{}", r.reason);
+    outln!();
+    outln!("{}", r.residual_check.statement);
+    outln!();
+    outln!("verdict: {}", r.verdict);
+    outln!("{}", r.reason);
     let files = write_outputs(&study, &r)?;
-    println!();
+    outln!();
     for f in files {
-        println!("wrote {}", f.display());
+        outln!("wrote {}", f.display());
     }
     Ok(())
 }

@@ -26,7 +26,8 @@ pub struct FileInventory {
     pub lines: usize,
     /// Earliest and latest instant among the sampled rows (UTC ms).
     pub span: Option<(i64, i64)>,
-    /// Sensor ids seen in the sampled rows.
+    /// Sensor ids with at least one row in the file (every row's sensor
+    /// cell is read, not only the sampled rows).
     pub sensors: BTreeSet<String>,
     /// Flags raised on the sampled rows.
     pub sample_flags: usize,
@@ -145,8 +146,11 @@ pub struct Inventory {
     pub sensors: Option<usize>,
     /// Per `[[logs]]` block, its files.
     pub logs: Vec<Vec<FileInventory>>,
-    /// Sensor ids seen in sampled log rows but absent from the sensor table.
+    /// Sensor ids seen in the logs but absent from the sensor table.
     pub unknown_sensors: BTreeSet<String>,
+    /// Sensors of the sensor table (in its order) with no row in any export:
+    /// they have no readings, so nothing is mapped from them.
+    pub silent_sensors: Vec<String>,
     /// The pot table's factor columns: text columns other than id and
     /// growth-window columns, with fewer levels than pots.
     pub factors: Vec<Factor>,
@@ -175,6 +179,12 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
         }
         logs.push(files);
     }
+    let logged: BTreeSet<&str> =
+        logs.iter().flatten().flat_map(|f| f.sensors.iter().map(String::as_str)).collect();
+    let silent_sensors: Vec<String> = sensors
+        .as_ref()
+        .map(|s| s.ids.iter().filter(|id| !logged.contains(id.as_str())).cloned().collect())
+        .unwrap_or_default();
 
     // Factor columns.
     let spec = &study.spec.pots;
@@ -218,6 +228,7 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
         sensors: sensors.map(|s| s.ids.len()),
         logs,
         unknown_sensors: unknown,
+        silent_sensors,
         factors,
         crosstabs,
         period,
@@ -280,6 +291,9 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
         tail.extend_from_slice(&bytes[starts[tail_from]..]);
         take(read_bytes(fmt, path, 0, &tail)?);
     }
+    if let super::logs::SensorSource::Column(name) = &fmt.sensor {
+        seen.extend(sensor_column_ids(fmt, name, &bytes[starts[header]..]));
+    }
     let main_cause =
         causes.into_iter().max_by_key(|(r, (n, _))| (*n, std::cmp::Reverse(*r))).map(|(r, (n, f))| (r, n, f));
     Ok(FileInventory {
@@ -292,4 +306,31 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
         flagged_rows,
         main_cause,
     })
+}
+
+/// Every distinct, non-empty id in column `name` of an export, from its
+/// header line on (`text` starts at the header). Only the sensor cell of each
+/// record is decoded, so a whole file is scanned quickly; a malformed record
+/// ends the scan (the sampled rows report such problems with their line).
+/// Cost: one pass over the bytes.
+fn sensor_column_ids(fmt: &LogFormat, name: &str, text: &[u8]) -> BTreeSet<String> {
+    let mut rdr = csv::ReaderBuilder::new()
+        .delimiter(fmt.delimiter)
+        .has_headers(false)
+        .flexible(true)
+        .from_reader(text);
+    let mut rec = csv::ByteRecord::new();
+    let cell = |b: &[u8]| {
+        let b = b.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(b);
+        String::from_utf8_lossy(b).trim().to_string()
+    };
+    let mut ids = BTreeSet::new();
+    let Ok(true) = rdr.read_byte_record(&mut rec) else { return ids };
+    let Some(j) = rec.iter().position(|h| cell(h) == name) else { return ids };
+    while let Ok(true) = rdr.read_byte_record(&mut rec) {
+        if let Some(id) = rec.get(j).map(cell).filter(|id| !id.is_empty()) {
+            ids.insert(id);
+        }
+    }
+    ids
 }

@@ -296,6 +296,56 @@ impl Study {
         IoError::Invalid { path: self.path.clone(), key: key.to_string(), message: message.into(), hint }
     }
 
+    /// An error about the string `value` of key `key` in section `section`
+    /// (`"model"`), located at the value's line and column in the study file
+    /// when the text shows it there (first quoted occurrence inside the
+    /// section); otherwise an [`IoError::Invalid`] naming the key.
+    pub fn invalid_value(
+        &self,
+        section: &str,
+        key: &str,
+        value: &str,
+        message: impl Into<String>,
+        hint: Option<String>,
+    ) -> IoError {
+        let message = message.into();
+        match self.locate_value(section, value) {
+            Some((line, column)) => IoError::Toml {
+                path: self.path.clone(),
+                line,
+                column,
+                message: format!(
+                    "`{key}`: {message}{}",
+                    hint.map(|h| format!(" (hint: {h})")).unwrap_or_default()
+                ),
+            },
+            None => self.invalid(key, message, hint),
+        }
+    }
+
+    /// 1-based line and column of the first `"value"` (or `'value'`) inside
+    /// the table `[section]` of the source text.
+    fn locate_value(&self, section: &str, value: &str) -> Option<(usize, usize)> {
+        let header = format!("[{section}]");
+        let mut offset = 0;
+        let mut inside = false;
+        for line in self.source.split_inclusive('\n') {
+            let t = line.trim();
+            if t.starts_with('[') {
+                inside = t.starts_with(&header);
+            } else if inside {
+                let code = line.split('#').next().unwrap_or("");
+                for q in ['"', '\''] {
+                    if let Some(p) = code.find(&format!("{q}{value}{q}")) {
+                        return Some(line_col(&self.source, offset + p));
+                    }
+                }
+            }
+            offset += line.len();
+        }
+        None
+    }
+
     fn validate(&self) -> Result<()> {
         let s = &self.spec;
         if s.study.output.trim().is_empty() {
@@ -555,6 +605,16 @@ y = "y"
     fn positions_must_be_columns_or_grid() {
         let e = parse(&MINIMAL.replace("x = \"x\"\n", "")).unwrap_err().to_string();
         assert!(e.contains("pots"), "{e}");
+    }
+
+    #[test]
+    fn invalid_value_points_at_the_value_in_its_section() {
+        let st = parse(&format!("{MINIMAL}\n[model]\ntrait = \"h\"\ndrivers = [\"cold\", \"x\"]\n")).unwrap();
+        // `"x"` also appears in [pots] (line 10); inside [model] it is on line 15, column 20.
+        let e = st.invalid_value("model", "model.drivers", "x", "no such driver", None).to_string();
+        assert!(e.starts_with("dir/study.toml:15:20:"), "{e}");
+        let e = st.invalid_value("model", "model.drivers", "nowhere", "no such driver", None).to_string();
+        assert!(e.starts_with("dir/study.toml: `model.drivers`"), "{e}");
     }
 
     #[test]

@@ -8,8 +8,9 @@ use crate::io::layout::{Pots, load_pots};
 use crate::io::study::Study;
 use crate::io::table::{Table, is_missing};
 use crate::spatial::correlation::Family;
+use crate::spatial::geometry::DISTANCE_PREFIX;
 use serde::Deserialize;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// The file of mapped drivers written by the mapping stage, inside the output folder.
 pub use crate::spatial::outputs::POT_COVARIATES_FILE as COVARIATES_FILE;
@@ -143,6 +144,102 @@ impl ModelSpec {
     }
 }
 
+impl ModelSpec {
+    /// Check the columns this spec names against the pot table before any
+    /// work: the trait column exists and holds numbers (with at least one
+    /// value), every factor and block is a column, and every driver is a
+    /// numeric column of the pot table or one of `mapped` (the per-pot
+    /// columns the mapping stage will produce: indicator names and
+    /// `distance_<opening>`). Errors name the file and the line (the header
+    /// line for a missing column, the row for a bad cell) and suggest the
+    /// closest name. Then the pot-table part of the data is assembled as the
+    /// model stage will (missing factor levels, single-level factors,
+    /// missing or constant pot-table drivers are refused) and returned: its
+    /// factors carry their reference levels.
+    pub fn check(&self, study: &Study, pots: &Pots, mapped: &[String]) -> Result<ModelData> {
+        let table = &pots.table;
+        let column = |key: &str, name: &str| -> Result<()> {
+            if table.headers.iter().any(|h| h == name) {
+                return Ok(());
+            }
+            let hint = closest(name, table.headers.iter().map(String::as_str))
+                .map(|s| format!("did you mean `{s}`?"));
+            Err(study
+                .invalid_value(
+                    "model",
+                    key,
+                    name,
+                    format!(
+                        "`{name}` is not a column of {} (header, line {}: {})",
+                        table.path.display(),
+                        table.header_line,
+                        table.headers.join(", ")
+                    ),
+                    hint,
+                )
+                .into())
+        };
+        column("model.trait", &self.trait_column)?;
+        for b in &self.blocks {
+            column("model.blocks", b)?;
+        }
+        for f in &self.factors {
+            column("model.factors", f)?;
+        }
+        let trait_values = table.optional_numbers(&self.trait_column)?;
+        if trait_values.iter().all(Option::is_none) {
+            return Err(ModelError::Design {
+                path: table.path.clone(),
+                message: format!(
+                    "the trait column `{}` has no values (every cell is empty or NA)",
+                    self.trait_column
+                ),
+                hint: Some("name the column that holds the measured trait in `[model] trait`".into()),
+            });
+        }
+        for d in &self.drivers {
+            if table.headers.contains(d) {
+                table.optional_numbers(d)?;
+                continue;
+            }
+            if mapped.contains(d) {
+                continue;
+            }
+            let numeric: Vec<&str> = table
+                .headers
+                .iter()
+                .filter(|h| **h != self.trait_column)
+                .filter(|h| table.optional_numbers(h).is_ok_and(|v| v.iter().any(|x| x.is_some())))
+                .map(|h| h.as_str())
+                .collect();
+            let candidates = numeric.iter().copied().chain(mapped.iter().map(String::as_str));
+            let hint = match closest(d, candidates) {
+                Some(s) => format!("did you mean `{s}`?"),
+                None => "a driver is a numeric column of the pot table, the name of an [[indicator]], or distance_<opening> for an [[openings]] entry".into(),
+            };
+            return Err(study
+                .invalid_value(
+                    "model",
+                    "model.drivers",
+                    d,
+                    format!(
+                        "driver `{d}` names no indicator, no opening and no column of {}; available: indicators and openings [{}], numeric pot-table columns [{}]",
+                        table.path.display(),
+                        mapped.join(", "),
+                        numeric.join(", ")
+                    ),
+                    Some(hint),
+                )
+                .into());
+        }
+        let own = ModelSpec {
+            drivers: self.drivers.iter().filter(|d| table.headers.contains(d)).cloned().collect(),
+            ..self.clone()
+        };
+        assemble(pots, &own, None, Path::new(COVARIATES_FILE))
+    }
+}
+
 /// One categorical column over the analysed pots.
 #[derive(Clone, Debug, PartialEq)]
 pub struct FactorData {
@@ -199,22 +296,88 @@ pub struct ModelData {
     pub excluded: Vec<(String, usize)>,
 }
 
+/// Per-pot values of the mapped drivers: the mapping stage's result, either
+/// carried in memory ([`PotCovariates::from_map`], as `potclim run` does) or
+/// read back from `<output>/pot_covariates.csv` ([`PotCovariates::read`], as
+/// the standalone `potclim verdict` and `potclim fit` do). Both give the same
+/// numbers: the file holds each value in its shortest round-trip decimal.
+#[derive(Clone, Debug, PartialEq)]
+pub struct PotCovariates {
+    /// The file the values were read from, or the file the mapping stage
+    /// writes them to (named in messages).
+    pub path: PathBuf,
+    /// Pot ids, one per row.
+    pub pots: Vec<String>,
+    /// Physical line of each row in the file; `None` for values in memory.
+    pub lines: Option<Vec<usize>>,
+    /// Columns other than `pot`: name and value per row (`None`: missing).
+    pub columns: Vec<(String, Vec<Option<f64>>)>,
+}
+
+impl PotCovariates {
+    /// Read `pot_covariates.csv` (column `pot`, then numeric columns; an empty
+    /// cell is a missing value, any other non-number an error naming its line).
+    pub fn read(path: &Path) -> Result<PotCovariates> {
+        let t = Table::read(path, b',')?;
+        let pots = t.text("pot")?.into_iter().map(|s| s.trim().to_string()).collect();
+        let columns = t
+            .headers
+            .iter()
+            .filter(|h| h.as_str() != "pot")
+            .map(|h| Ok((h.clone(), t.optional_numbers(h)?)))
+            .collect::<Result<Vec<_>>>()?;
+        Ok(PotCovariates { path: path.to_path_buf(), pots, lines: Some(t.lines.clone()), columns })
+    }
+
+    /// The mapping stage's result in memory, with the columns of
+    /// `pot_covariates.csv`: `<indicator>`, `<indicator>_se`, then
+    /// `distance_<opening>`. A value that is not finite is missing, as an
+    /// empty cell of the file is. `path` names the file for messages.
+    pub fn from_map(path: &Path, map: &crate::spatial::stage::MapRun) -> PotCovariates {
+        let finite =
+            |v: &[f64]| -> Vec<Option<f64>> { v.iter().map(|x| x.is_finite().then_some(*x)).collect() };
+        let mut columns = Vec::new();
+        for c in &map.indicators {
+            columns.push((c.name.clone(), finite(&c.value)));
+            let se = match &c.se {
+                Some(se) => finite(se),
+                None => vec![None; c.value.len()],
+            };
+            columns.push((format!("{}_se", c.name), se));
+        }
+        for (name, d) in &map.distances {
+            columns.push((format!("{DISTANCE_PREFIX}{name}"), finite(d)));
+        }
+        PotCovariates { path: path.to_path_buf(), pots: map.pots.clone(), lines: None, columns }
+    }
+
+    fn column(&self, name: &str) -> Option<&[Option<f64>]> {
+        self.columns.iter().find(|(n, _)| n == name).map(|(_, v)| v.as_slice())
+    }
+
+    fn names(&self) -> impl Iterator<Item = &str> {
+        self.columns.iter().map(|(n, _)| n.as_str())
+    }
+}
+
 /// Load the data that `spec` names: the pot table, and `<output>/pot_covariates.csv`
 /// for drivers the pot table does not hold.
 pub fn load_model_data(study: &Study, spec: &ModelSpec) -> Result<ModelData> {
     let pots = load_pots(study)?;
     let cov_path = study.output_dir().join(COVARIATES_FILE);
     let needs_cov = spec.drivers.iter().any(|d| !pots.table.headers.contains(d));
-    let covariates = if needs_cov && cov_path.exists() { Some(Table::read(&cov_path, b',')?) } else { None };
+    let covariates =
+        if needs_cov && cov_path.exists() { Some(PotCovariates::read(&cov_path)?) } else { None };
     assemble(&pots, spec, covariates.as_ref(), &cov_path)
 }
 
-/// Build [`ModelData`] from a loaded pot table and optional covariate table.
+/// Build [`ModelData`] from a loaded pot table and the mapped drivers, if
+/// any (`cov_path` names their file in messages when there are none).
 pub fn assemble(
     pots: &Pots,
     spec: &ModelSpec,
-    covariates: Option<&Table>,
-    cov_path: &std::path::Path,
+    covariates: Option<&PotCovariates>,
+    cov_path: &Path,
 ) -> Result<ModelData> {
     let table = &pots.table;
     let path = table.path.clone();
@@ -285,11 +448,9 @@ pub fn assemble(
                     })
                 })
                 .collect::<Result<Vec<_>>>()?
-        } else if let Some(cov) = covariates.filter(|c| c.headers.contains(d)) {
-            let ids = cov.text("pot")?;
-            let v = cov.optional_numbers(d)?;
+        } else if let Some((cov, v)) = covariates.and_then(|c| c.column(d).map(|v| (c, v))) {
             let index: std::collections::HashMap<&str, usize> =
-                ids.iter().enumerate().map(|(k, id)| (id.trim(), k)).collect();
+                cov.pots.iter().enumerate().map(|(k, id)| (id.as_str(), k)).collect();
             keep.iter()
                 .map(|&i| {
                     let id = pots.ids[i].as_str();
@@ -298,14 +459,20 @@ pub fn assemble(
                         message: format!("pot `{id}` (pot table line {}) has no row", table.lines[i]),
                         hint: Some("rerun the mapping stage for the current pot table".into()),
                     })?;
-                    v[k].ok_or_else(|| {
-                        ModelError::from(cov.bad(
-                            cov.lines[k],
-                            d,
-                            &cov.rows[k][cov.column(d).unwrap_or(0)],
-                            "a driver value is missing",
-                            None,
-                        ))
+                    v[k].ok_or_else(|| match &cov.lines {
+                        Some(lines) => ModelError::from(crate::io::IoError::BadValue {
+                            path: cov.path.clone(),
+                            line: lines[k],
+                            column: d.clone(),
+                            value: String::new(),
+                            message: "a driver value is missing".into(),
+                            hint: None,
+                        }),
+                        None => ModelError::Design {
+                            path: cov.path.clone(),
+                            message: format!("driver `{d}` has no mapped value at pot `{id}`"),
+                            hint: Some("the kriging of this indicator gave no finite value there; see mapping_cv.csv and the variogram fits".into()),
+                        },
                     })
                 })
                 .collect::<Result<Vec<_>>>()?
@@ -346,7 +513,7 @@ pub fn assemble(
 pub fn add_opening_drivers(study: &Study, spec: &mut ModelSpec, data: &mut ModelData) -> Vec<String> {
     let mut added = Vec::new();
     for o in &study.spec.openings {
-        let name = format!("{}{}", crate::spatial::geometry::DISTANCE_PREFIX, o.name);
+        let name = format!("{DISTANCE_PREFIX}{}", o.name);
         if spec.drivers.contains(&name) || data.drivers.iter().any(|(d, _)| *d == name) {
             continue;
         }
@@ -363,21 +530,14 @@ pub fn add_opening_drivers(study: &Study, spec: &mut ModelSpec, data: &mut Model
     added
 }
 
-fn unknown_driver(
-    d: &str,
-    table: &Table,
-    covariates: Option<&Table>,
-    cov_path: &std::path::Path,
-) -> ModelError {
+fn unknown_driver(d: &str, table: &Table, covariates: Option<&PotCovariates>, cov_path: &Path) -> ModelError {
     let numeric: Vec<&str> = table
         .headers
         .iter()
         .filter(|h| table.optional_numbers(h).is_ok_and(|v| v.iter().any(|x| x.is_some())))
         .map(|h| h.as_str())
         .collect();
-    let mapped: Vec<&str> = covariates
-        .map(|c| c.headers.iter().filter(|h| h.as_str() != "pot").map(|h| h.as_str()).collect())
-        .unwrap_or_default();
+    let mapped: Vec<&str> = covariates.map(|c| c.names().collect()).unwrap_or_default();
     let all: Vec<&str> = numeric.iter().chain(&mapped).copied().collect();
     let mut message = format!(
         "driver `{d}` is neither a column of the pot table nor of {}; available drivers: numeric pot-table columns [{}]",

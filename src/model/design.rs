@@ -17,6 +17,19 @@ use super::data::{FactorData, ModelData};
 use super::error::{ModelError, Result};
 use std::ops::Range;
 
+/// Name of the first design column (all ones): the expected trait at the
+/// reference level of every factor and block with every driver at 0.
+pub const BASELINE: &str = "baseline";
+
+/// Joins the level columns of an interaction column's factors.
+pub const INTERACTION_JOIN: &str = " & ";
+
+/// Name of the design column of level `level` of factor `factor`:
+/// `factor=level` (for example `variety=Lisa`).
+pub fn level_column(factor: &str, level: &str) -> String {
+    format!("{factor}={level}")
+}
+
 /// What a term is.
 #[derive(Clone, Debug, PartialEq)]
 pub enum TermKind {
@@ -35,7 +48,7 @@ pub enum TermKind {
 /// One term of the model and its columns.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Term {
-    /// Term name: `(intercept)`, a column name, or factors joined by `:`.
+    /// Term name: [`BASELINE`], a column name, or factors joined by `:`.
     pub name: String,
     /// What it is.
     pub kind: TermKind,
@@ -64,7 +77,8 @@ pub struct DesignSpec {
 pub struct Design {
     /// Terms in model order; the first is the intercept.
     pub terms: Vec<Term>,
-    /// Column names in treatment coding, e.g. `accession[a2]`, `accession[a2]:regime[dry]`, `moisture`.
+    /// Column names in treatment coding, e.g. `accession=a2`, `accession=a2 & regime=dry`, `moisture`
+    /// (see [`level_column`]).
     pub names: Vec<String>,
     /// Column names in sum-to-zero coding.
     pub sum_names: Vec<String>,
@@ -97,16 +111,12 @@ impl Design {
                 .position(|f| f.name == name)
                 .ok_or_else(|| bad(format!("`{name}` is not a loaded factor"), None))
         };
-        let mut terms = vec![Term {
-            name: "(intercept)".into(),
-            kind: TermKind::Intercept,
-            factors: vec![],
-            columns: 0..1,
-        }];
+        let mut terms =
+            vec![Term { name: BASELINE.into(), kind: TermKind::Intercept, factors: vec![], columns: 0..1 }];
         let mut x = vec![vec![1.0; n]];
         let mut xs = vec![vec![1.0; n]];
-        let mut names = vec!["(intercept)".to_string()];
-        let mut sum_names = vec!["(intercept)".to_string()];
+        let mut names = vec![BASELINE.to_string()];
+        let mut sum_names = vec![BASELINE.to_string()];
         let mut push = |terms: &mut Vec<Term>,
                         name: String,
                         kind: TermKind,
@@ -204,7 +214,7 @@ fn trt(f: &FactorData) -> Vec<(String, Vec<f64>)> {
     (1..f.levels.len())
         .map(|l| {
             (
-                format!("{}[{}]", f.name, f.levels[l]),
+                level_column(&f.name, &f.levels[l]),
                 f.codes.iter().map(|&c| if c == l { 1.0 } else { 0.0 }).collect(),
             )
         })
@@ -217,7 +227,7 @@ fn sum(f: &FactorData) -> Vec<(String, Vec<f64>)> {
     (0..k - 1)
         .map(|l| {
             (
-                format!("{}[{}]", f.name, f.levels[l]),
+                level_column(&f.name, &f.levels[l]),
                 f.codes
                     .iter()
                     .map(|&c| {
@@ -239,7 +249,7 @@ fn product(a: &[(String, Vec<f64>)], b: &[(String, Vec<f64>)]) -> Vec<(String, V
     let mut out = Vec::with_capacity(a.len() * b.len());
     for (na, ca) in a {
         for (nb, cb) in b {
-            let name = if na.is_empty() { nb.clone() } else { format!("{na}:{nb}") };
+            let name = if na.is_empty() { nb.clone() } else { format!("{na}{INTERACTION_JOIN}{nb}") };
             out.push((name, ca.iter().zip(cb).map(|(u, v)| u * v).collect()));
         }
     }

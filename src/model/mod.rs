@@ -15,6 +15,7 @@ pub mod error;
 pub mod gls;
 pub mod imputation;
 pub mod ols;
+pub mod progress;
 pub mod stage;
 pub mod verdict;
 

@@ -130,12 +130,24 @@ impl SsType {
             SsType::Marginal => "III",
         }
     }
+
+    /// In words: how each term's sum of squares is taken.
+    pub fn describe(&self) -> &'static str {
+        match self {
+            SsType::Sequential => "each term after the terms before it",
+            SsType::Hierarchical => "each term after every term that does not contain it",
+            SsType::Marginal => "each term after all the others, sum-to-zero coding",
+        }
+    }
 }
+
+/// Name of the last row of an ANOVA table: what the model leaves unexplained.
+pub const RESIDUAL_TERM: &str = "remainder";
 
 /// One ANOVA row.
 #[derive(Clone, Debug, PartialEq)]
 pub struct AnovaRow {
-    /// Term name (`residuals` for the last row).
+    /// Term name ([`RESIDUAL_TERM`] for the last row).
     pub term: String,
     /// Degrees of freedom.
     pub df: usize,
@@ -226,7 +238,7 @@ pub fn anova(design: &Design, y: &[f64], kind: SsType) -> Result<AnovaTable> {
         });
     }
     rows.push(AnovaRow {
-        term: "residuals".into(),
+        term: RESIDUAL_TERM.into(),
         df: df_resid,
         sum_sq: rss_full,
         mean_sq: ms_resid,
@@ -243,19 +255,19 @@ mod tests {
     use crate::model::testdata::{fixture, floats, model_data};
     use approx::assert_relative_eq;
 
-    /// `C(Litter)[T.B]:C(Mother)[T.I]` -> `Litter[B]:Mother[I]`.
+    /// `C(Litter)[T.B]:C(Mother)[T.I]` -> `Litter=B & Mother=I`.
     fn own_name(sm: &str) -> String {
         if sm == "Intercept" {
-            return "(intercept)".into();
+            return crate::model::design::BASELINE.into();
         }
         sm.split(':')
             .map(|part| {
                 let f = part.trim_start_matches("C(").split(')').next().unwrap();
                 let level = part.split("[T.").nth(1).unwrap().trim_end_matches(']');
-                format!("{f}[{level}]")
+                crate::model::design::level_column(f, level)
             })
             .collect::<Vec<_>>()
-            .join(":")
+            .join(crate::model::design::INTERACTION_JOIN)
     }
 
     fn check(case: &str, file: &str, response: &str, a: &str, b: &str, drop: &[&str]) {

@@ -240,8 +240,12 @@ pub fn coefficients_csv(r: &FitReport) -> String {
 
 /// Render `anova.csv`: OLS sums of squares of types I, II, III, then the
 /// marginal Wald F tests of every fit (test `wald`, no sum of squares).
+/// Columns: `df` of the term, `df_remainder` (the F ratio's second degrees of
+/// freedom), `sum_of_squares`, `mean_square`, `f_ratio`, `p_value`; the last
+/// row of each OLS table is [`super::ols::RESIDUAL_TERM`].
 pub fn anova_csv(r: &FitReport) -> String {
-    let mut s = String::from("model,method,test,term,df,df_resid,sum_sq,mean_sq,F,p\n");
+    let mut s =
+        String::from("model,method,test,term,df,df_remainder,sum_of_squares,mean_square,f_ratio,p_value\n");
     let df_resid = r.ols.df_resid;
     for t in &r.anova {
         for row in &t.rows {

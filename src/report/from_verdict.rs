@@ -181,6 +181,7 @@ mod tests {
             options: VerdictOptions { tie_delta: 3.0, ..VerdictOptions::default() },
             trait_name: "h".into(),
             n_pots: 2,
+            left_out: vec![],
             models: vec![ModelRow {
                 name: "base".into(),
                 drivers: vec![],

@@ -72,13 +72,14 @@ pub(super) struct GridFit {
 /// Fit every model of the grid by ML, in a fixed order (driver sets outer,
 /// error models inner). `full` is the design with every driver (built first
 /// so that collinear drivers are refused with their names). Error models left
-/// out are said in `notes`.
+/// out are said in `notes`. Each finished fit is a step of `progress`.
 pub(super) fn fit_grid(
     data: &ModelData,
     spec: &ModelSpec,
     full: &Design,
     dist: &Distances,
     notes: &mut Vec<String>,
+    progress: &dyn crate::model::progress::FitProgress,
 ) -> Result<Vec<GridFit>> {
     // Every driver alone; the measured climate drivers together. A distance
     // to an opening is a smooth function of position, a stand-in for any
@@ -110,6 +111,11 @@ pub(super) fn fit_grid(
         }
     }
     let mut grid: Vec<GridFit> = Vec::new();
+    let counter = crate::model::progress::Counter::begin(
+        progress,
+        "comparison grid (ML fits)",
+        driver_sets.len() * error_models.len(),
+    );
     for drivers in &driver_sets {
         let design = if drivers.len() == spec.drivers.len() && !drivers.is_empty() {
             full.clone()
@@ -119,6 +125,7 @@ pub(super) fn fit_grid(
         for &errors in &error_models {
             let f = fit(&design, data, dist, errors, LikelihoodKind::Ml)?;
             grid.push(GridFit { drivers: drivers.clone(), errors, fit: f });
+            counter.step();
         }
     }
     Ok(grid)

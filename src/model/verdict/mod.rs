@@ -33,12 +33,13 @@ mod write;
 
 pub use self::grid::model_name;
 pub use self::result::{
-    AdjustedMeanRow, CoefRow, DriverSummary, LrtRow, ModelRow, MoranSummary, OpeningsSummary, ResidualBin,
-    ResidualCheck, VerdictResult,
+    AdjustedMeanRow, CoefRow, DriverSummary, LeftOutPot, LrtRow, ModelRow, MoranSummary, OpeningsSummary,
+    ResidualBin, ResidualCheck, VerdictResult,
 };
 pub use self::uncertainty::{
-    MIN_SENSORS_FOR_VARIOGRAM, MappingDraws, SENSOR_FILE, SensorValues, impute_and_pool, load_sensor_values,
-    mapping_uncertainty, sensor_variogram,
+    MIN_SENSORS_FOR_VARIOGRAM, MappingDraws, SENSOR_FILE, SensorValues, impute_and_pool,
+    impute_and_pool_with, load_sensor_values, mapping_uncertainty, mapping_uncertainty_with,
+    sensor_variogram,
 };
 pub use self::write::{adjusted_means_csv, comparison_csv, drivers_csv, write_outputs};
 pub use crate::spatial::geometry::DISTANCE_PREFIX;
@@ -137,12 +138,54 @@ pub(super) fn t_quantile(df: f64) -> f64 {
     StudentsT::new(0.0, 1.0, df.max(1.0)).map(|t| t.inverse_cdf(0.975)).unwrap_or(1.959964)
 }
 
-/// Load the study's `[model]` and `[verdict]` data and run the verdict.
+/// Load the study's `[model]` and `[verdict]` data and run the verdict: the
+/// standalone `potclim verdict`, which reads the earlier stages' results from
+/// `<output>/pot_covariates.csv` and `<output>/sensor_indicators.csv` (a run
+/// of the whole pipeline passes them in memory to [`verdict_on`] instead).
 pub fn run_verdict(study: &Study, opts: &VerdictOptions) -> Result<VerdictResult> {
     let mut spec = ModelSpec::from_study(study)?;
     let mut data = load_model_data(study, &spec)?;
     let added = crate::model::data::add_opening_drivers(study, &mut spec, &mut data);
-    let mut r = analyse(&data, &spec, opts)?;
+    let climate: Vec<String> =
+        spec.drivers.iter().filter(|d| !d.starts_with(DISTANCE_PREFIX)).cloned().collect();
+    let sensor_values = load_sensor_values(study, &climate)?;
+    verdict_on(&data, &spec, &added, &sensor_values, opts, &crate::model::progress::Silent)
+}
+
+/// The verdict on loaded data: [`analyse`], then the uncertainty of each
+/// mapped climate driver of the chosen model propagated from `sensor_values`
+/// (a driver without sensor values keeps its plug-in SE, with a note).
+/// `added` names the opening distances [`crate::model::data::add_opening_drivers`]
+/// added. The pots left out for a missing trait value are listed in
+/// [`VerdictResult::left_out`] and in a note. The grid's fits and the
+/// imputations' refits are steps of `progress`.
+pub fn verdict_on(
+    data: &ModelData,
+    spec: &ModelSpec,
+    added: &[String],
+    sensor_values: &[SensorValues],
+    opts: &VerdictOptions,
+    progress: &dyn crate::model::progress::FitProgress,
+) -> Result<VerdictResult> {
+    let mut r = analyse_with(data, spec, opts, progress)?;
+    r.left_out = data
+        .excluded
+        .iter()
+        .map(|(pot, line)| LeftOutPot {
+            pot: pot.clone(),
+            line: *line,
+            reason: format!("`{}` is missing", data.trait_name),
+        })
+        .collect();
+    if !r.left_out.is_empty() {
+        let list: Vec<String> = r.left_out.iter().map(|p| format!("{} (line {})", p.pot, p.line)).collect();
+        r.notes.push(format!(
+            "{} pot(s) left out because `{}` is missing: {}",
+            r.left_out.len(),
+            data.trait_name,
+            list.join(", ")
+        ));
+    }
     if !added.is_empty() {
         r.notes.push(format!(
             "{} added as candidate driver(s): every [[openings]] entry is compared as the plain distance from each pot to the opening",
@@ -154,7 +197,6 @@ pub fn run_verdict(study: &Study, opts: &VerdictOptions) -> Result<VerdictResult
     if climate.is_empty() {
         return Ok(r);
     }
-    let sensor_values = load_sensor_values(study, &climate)?;
     let start = Instant::now();
     for d in &climate {
         let Some(sv) = sensor_values.iter().find(|s| &s.name == d) else {
@@ -163,7 +205,7 @@ pub fn run_verdict(study: &Study, opts: &VerdictOptions) -> Result<VerdictResult
             ));
             continue;
         };
-        let m = mapping_uncertainty(&data, &spec, &r.chosen_shape, sv, opts)?;
+        let m = mapping_uncertainty_with(data, spec, &r.chosen_shape, sv, opts, progress)?;
         if let Some(row) = r.drivers.iter_mut().find(|x| &x.name == d) {
             row.estimate_with_mapping_uncertainty = Some(m.pooled.estimate);
             row.se_with_mapping_uncertainty = Some(m.pooled.se);
@@ -180,13 +222,23 @@ pub fn run_verdict(study: &Study, opts: &VerdictOptions) -> Result<VerdictResult
 /// means on loaded data. Cost: one ML fit per grid model (each correlated fit
 /// is a likelihood search of O(n³) evaluations), plus one REML refit.
 pub fn analyse(data: &ModelData, spec: &ModelSpec, opts: &VerdictOptions) -> Result<VerdictResult> {
+    analyse_with(data, spec, opts, &crate::model::progress::Silent)
+}
+
+/// [`analyse`], reporting each fit of the grid as a step of `progress`.
+pub fn analyse_with(
+    data: &ModelData,
+    spec: &ModelSpec,
+    opts: &VerdictOptions,
+    progress: &dyn crate::model::progress::FitProgress,
+) -> Result<VerdictResult> {
     let start = Instant::now();
     let n = data.response.len();
     // Build the full design first: collinear drivers are refused here with their names.
     let full = design_for(data, spec, &spec.drivers)?;
     let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| lerr("positions", e))?;
     let mut notes = Vec::new();
-    let grid = fit_grid(data, spec, &full, &dist, &mut notes)?;
+    let grid = fit_grid(data, spec, &full, &dist, &mut notes, progress)?;
     let (ranked, verdict) = rank_and_decide(&grid, n, opts.tie_delta)?;
     let by_name = |name: &str| -> &GridFit {
         grid.iter()
@@ -235,6 +287,7 @@ pub fn analyse(data: &ModelData, spec: &ModelSpec, opts: &VerdictOptions) -> Res
         options: opts.clone(),
         trait_name: data.trait_name.clone(),
         n_pots: n,
+        left_out: Vec::new(),
         models,
         lrts,
         chosen_coefficients,

@@ -188,6 +188,17 @@ pub struct AdjustedMeanRow {
     pub change: f64,
 }
 
+/// A pot of the pot table that the verdict does not analyse.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct LeftOutPot {
+    /// Pot id.
+    pub pot: String,
+    /// Physical line in the pot table.
+    pub line: usize,
+    /// Why, in words (e.g. "`height` is missing").
+    pub reason: String,
+}
+
 /// Everything the verdict stage computed.
 #[derive(Clone, Debug, Serialize)]
 pub struct VerdictResult {
@@ -205,6 +216,9 @@ pub struct VerdictResult {
     pub trait_name: String,
     /// Pots analysed.
     pub n_pots: usize,
+    /// Pots of the pot table left out of the analysis, each with its line and
+    /// the reason (today: the trait value is missing).
+    pub left_out: Vec<LeftOutPot>,
     /// The grid, sorted by AIC.
     pub models: Vec<ModelRow>,
     /// Likelihood-ratio tests of nested pairs.

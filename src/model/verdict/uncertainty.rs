@@ -152,8 +152,21 @@ pub fn mapping_uncertainty(
     sv: &SensorValues,
     opts: &VerdictOptions,
 ) -> Result<MappingDraws> {
+    mapping_uncertainty_with(data, spec, shape, sv, opts, &crate::model::progress::Silent)
+}
+
+/// [`mapping_uncertainty`], reporting each REML refit on an imputation as a
+/// step of `progress`.
+pub fn mapping_uncertainty_with(
+    data: &ModelData,
+    spec: &ModelSpec,
+    shape: &(Vec<String>, Errors),
+    sv: &SensorValues,
+    opts: &VerdictOptions,
+    progress: &dyn crate::model::progress::FitProgress,
+) -> Result<MappingDraws> {
     let (model, how) = sensor_variogram(sv);
-    impute_and_pool(data, spec, shape, sv, (model, how), Conditioning::LoggersAndTrait, opts)
+    impute_and_pool_with(data, spec, shape, sv, (model, how), Conditioning::LoggersAndTrait, opts, progress)
 }
 
 /// [`mapping_uncertainty`] with a given variogram `(model, how in words)` and a
@@ -167,6 +180,23 @@ pub fn impute_and_pool(
     (model, how): (VariogramModel, &str),
     conditioning: Conditioning,
     opts: &VerdictOptions,
+) -> Result<MappingDraws> {
+    let silent = crate::model::progress::Silent;
+    impute_and_pool_with(data, spec, shape, sv, (model, how), conditioning, opts, &silent)
+}
+
+/// [`impute_and_pool`], reporting each REML refit on an imputation as a step
+/// of `progress`.
+#[allow(clippy::too_many_arguments)]
+pub fn impute_and_pool_with(
+    data: &ModelData,
+    spec: &ModelSpec,
+    shape: &(Vec<String>, Errors),
+    sv: &SensorValues,
+    (model, how): (VariogramModel, &str),
+    conditioning: Conditioning,
+    opts: &VerdictOptions,
+    progress: &dyn crate::model::progress::FitProgress,
 ) -> Result<MappingDraws> {
     use crate::spatial::kriging::signal_kriging;
     use crate::spatial::likelihood::cholesky;
@@ -226,12 +256,16 @@ pub fn impute_and_pool(
 
     let mut fits = Vec::with_capacity(imp.draws.len());
     let mut d = data.clone();
+    let what = format!("imputations of `{name}` (REML refits)");
+    let counter = crate::model::progress::Counter::begin(progress, &what, imp.draws.len());
     for x in imp.draws {
         d.drivers[j].1 = x;
         let design = design_for(&d, spec, &shape.0)?;
         let f = fit(&design, &d, &dist, shape.1, LikelihoodKind::Reml)?;
         fits.push((f.beta[c], f.se[c]));
+        counter.step();
     }
+    drop(counter);
     let pooled = compare::rubin(&fits).ok_or_else(|| bad("Rubin's rules undefined".into(), None))?;
     let tq = if pooled.df.is_finite() { t_quantile(pooled.df) } else { 1.959964 };
     let ci = (pooled.estimate - tq * pooled.se, pooled.estimate + tq * pooled.se);
