@@ -233,7 +233,7 @@ fn demo_exports_read_back_to_the_true_readings() {
             let col = |n: &str| {
                 header.iter().position(|h| *h == n).unwrap_or_else(|| panic!("{rel}: no column {n}"))
             };
-            let tcol = col(&log.time);
+            let tcol = col(log.time.names()[0]);
             let scol = log.sensor.as_deref().map(col);
             let chans = [&log.columns.temperature, &log.columns.humidity, &log.columns.light];
             let ccols: Vec<Option<(usize, String)>> =

@@ -170,11 +170,15 @@ pub struct LogSection {
     /// Decimal mark: `.` (default) or `,`.
     #[serde(default)]
     pub decimal: Option<String>,
-    /// Column with the time stamp.
-    pub time: String,
+    /// Column with the time stamp, or two columns (date, then time of day)
+    /// whose cells are joined with one space before `time_format` reads them.
+    pub time: TimeColumns,
     /// chrono strftime pattern, `rfc3339`, or `unix` (epoch seconds).
     pub time_format: String,
-    /// IANA zone of times without offset; default `[study].timezone`.
+    /// Zone of times without offset: an IANA name, a fixed offset
+    /// (`UTC+01:00`, `GMT-05:00`, `+0530`), or `in_header` (the offset written
+    /// in the time column's header). Default: the header's offset when it
+    /// has one, else `[study].timezone`.
     #[serde(default)]
     pub timezone: Option<String>,
     /// Column with the sensor id (exclusive with `sensor_from`).
@@ -188,6 +192,26 @@ pub struct LogSection {
     pub skip_lines: Option<usize>,
     /// Which columns hold which channel, in which unit.
     pub columns: LogColumns,
+}
+
+/// `time` of `[[logs]]`: one column, or a date column and a time column.
+#[derive(Debug, Clone, Deserialize, PartialEq, Eq)]
+#[serde(untagged)]
+pub enum TimeColumns {
+    /// One column holds date and time.
+    One(String),
+    /// `[date, time]`: two columns (checked to be exactly two).
+    Split(Vec<String>),
+}
+
+impl TimeColumns {
+    /// The column names, in order.
+    pub fn names(&self) -> Vec<&str> {
+        match self {
+            TimeColumns::One(c) => vec![c.as_str()],
+            TimeColumns::Split(v) => v.iter().map(String::as_str).collect(),
+        }
+    }
 }
 
 /// `[logs.columns]`.
@@ -373,7 +397,19 @@ impl Study {
                 }
             }
             if let Some(tz) = &log.timezone {
-                parse_timezone(&self.path, &key("timezone"), tz)?;
+                parse_log_zone(&self.path, &key("timezone"), tz)?;
+            }
+            if let TimeColumns::Split(v) = &log.time
+                && v.len() != 2
+            {
+                return Err(self.invalid(
+                    &key("time"),
+                    format!("names {} columns; give one column, or two: [date, time of day]", v.len()),
+                    Some(
+                        "e.g. `time = [\"Date\", \"Time\"]` with `time_format = \"%d/%m/%Y %H:%M:%S\"`"
+                            .into(),
+                    ),
+                ));
             }
             if let Some(d) = &log.decimal
                 && d != "."
@@ -438,6 +474,54 @@ pub fn delimiter_byte(d: &str) -> std::result::Result<u8, String> {
         _ if d.len() == 1 && d.is_ascii() => Ok(d.as_bytes()[0]),
         _ => Err(format!("must be one ASCII character (or \"tab\"), got {d:?}")),
     }
+}
+
+/// The zone of a `[[logs]]` block's local times.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LogZone {
+    /// An IANA zone, daylight-saving rules included.
+    Iana(chrono_tz::Tz),
+    /// A fixed offset east of UTC, seconds, all year.
+    Fixed(i32),
+    /// The offset written in the time column's header (`GMT+01:00`).
+    InHeader,
+}
+
+/// Parse `timezone` of `[[logs]]`: `in_header`, a fixed offset (see
+/// [`fixed_offset`]), or an IANA name (errors as [`parse_timezone`]).
+pub fn parse_log_zone(path: &Path, key: &str, text: &str) -> Result<LogZone> {
+    if text.eq_ignore_ascii_case("in_header") {
+        return Ok(LogZone::InHeader);
+    }
+    if let Some(s) = fixed_offset(text) {
+        return Ok(LogZone::Fixed(s));
+    }
+    parse_timezone(path, key, text).map(LogZone::Iana)
+}
+
+/// A fixed UTC offset written as `UTC+01:00`, `GMT-5`, `+0530`, `UTC+1`
+/// (optional `UTC`/`GMT` prefix, a sign, hours of one or two digits, and
+/// optionally minutes after a colon or as two more digits): seconds east of
+/// UTC, or `None` when the text is not of that form or beyond ±15:59.
+pub fn fixed_offset(text: &str) -> Option<i32> {
+    let t = text.trim();
+    let t = ["UTC", "GMT", "utc", "gmt"].iter().find_map(|p| t.strip_prefix(p)).unwrap_or(t).trim_start();
+    let (sign, rest) = match t.as_bytes().first()? {
+        b'+' => (1, &t[1..]),
+        b'-' => (-1, &t[1..]),
+        _ => return None,
+    };
+    let (h, m) = match rest.split_once(':') {
+        Some((h, m)) => (h, m),
+        None if rest.len() == 4 => rest.split_at(2),
+        None => (rest, "0"),
+    };
+    let ok = |s: &str, n: usize| !s.is_empty() && s.len() <= n && s.bytes().all(|c| c.is_ascii_digit());
+    if !ok(h, 2) || !ok(m, 2) {
+        return None;
+    }
+    let (h, m): (i32, i32) = (h.parse().ok()?, m.parse().ok()?);
+    (h <= 15 && m <= 59).then_some(sign * (h * 3600 + m * 60))
 }
 
 /// Parse an IANA time-zone name, with a suggestion when it is misspelt.
@@ -555,6 +639,27 @@ y = "y"
     fn positions_must_be_columns_or_grid() {
         let e = parse(&MINIMAL.replace("x = \"x\"\n", "")).unwrap_err().to_string();
         assert!(e.contains("pots"), "{e}");
+    }
+
+    #[test]
+    fn fixed_offsets_are_read_with_sign_hours_and_minutes() {
+        for (t, want) in [
+            ("UTC+01:00", Some(3600)),
+            ("GMT-5", Some(-18000)),
+            ("+0530", Some(19800)),
+            ("UTC -03:30", Some(-12600)),
+            ("+14:00", Some(50400)),
+            ("UTC", None),
+            ("Europe/Amsterdam", None),
+            ("+1:5x", None),
+            ("+16:00", None),
+            ("+01:60", None),
+        ] {
+            assert_eq!(fixed_offset(t), want, "{t}");
+        }
+        assert_eq!(parse_log_zone(Path::new("s.toml"), "k", "in_header").unwrap(), LogZone::InHeader);
+        assert_eq!(parse_log_zone(Path::new("s.toml"), "k", "GMT+02:00").unwrap(), LogZone::Fixed(7200));
+        assert!(parse_log_zone(Path::new("s.toml"), "k", "Europe/Amsterdm").is_err());
     }
 
     #[test]
