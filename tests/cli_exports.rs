@@ -235,3 +235,135 @@ fn offset_in_the_time_header_is_the_zone() {
     assert_eq!(code, 1);
     assert!(err.contains("logs/roof.csv") && err.contains("line 2") && err.contains("`Date Time`"), "{err}");
 }
+
+/// Readings from a study whose only block is `block`, on the files `files`.
+fn ingest_files(
+    block: &str,
+    ids: &[&str],
+    files: &[(&str, &str)],
+) -> (Vec<(String, i64, Option<f64>)>, String) {
+    let d = tempfile::tempdir().unwrap();
+    let st = study(d.path(), ids, "UTC", block);
+    for (name, text) in files {
+        write(d.path(), name, text.as_bytes());
+    }
+    let out = ingest_ok(&st);
+    (readings(d.path()), out)
+}
+
+fn ms(s: &str) -> i64 {
+    chrono::NaiveDateTime::parse_from_str(s, "%Y-%m-%d %H:%M:%S").unwrap().and_utc().timestamp_millis()
+}
+
+/// The four-header-line datalogger table: a station line, field names,
+/// units (`TS`, `RN`, `Deg C`, `%`), processing codes; quoted. A block of
+/// three lines reads it: the station name is the sensor id, the channels
+/// come from names and units (battery voltage is not a channel).
+#[test]
+fn four_line_header_layout_in_three_lines() {
+    let mut text = String::from(
+        "\"FMT4\",\"glasshouse2\",\"logger-x\",\"1234\",\"os 1\",\"prog.x\",\"5678\",\"ten_min\"\n\"TIMESTAMP\",\"RECORD\",\"BattV_Min\",\"AirT_Avg\",\"RH\",\"PAR_Avg\"\n\"TS\",\"RN\",\"Volts\",\"Deg C\",\"%\",\"umol/s/m^2\"\n\"\",\"\",\"Min\",\"Avg\",\"Smp\",\"Avg\"\n",
+    );
+    let mut want = Vec::new();
+    for i in 0..30 {
+        let t = format!("2026-05-01 {:02}:{:02}:00", i / 6, i % 6 * 10);
+        text.push_str(&format!("\"{t}\",{i},12.6,{}.5,{},{}\n", 15 + i % 4, 60 + i % 9, i * 3));
+        want.push(("glasshouse2".to_string(), ms(&t), Some(15.5 + (i % 4) as f64)));
+    }
+    let block = "[[logs]]\nfiles = [\"logs/*.dat\"]\nlayout = \"four-line-header\"\n";
+    let (got, out) = ingest_files(block, &["glasshouse2"], &[("logs/gh2_table.dat", &text)]);
+    assert!(out.contains("30 rows read: 30 kept as is"), "{out}");
+    assert_eq!(got, want);
+}
+
+/// A titled export with a row-number column, the offset in the time
+/// column's header and unit and serial number in the channel headers: the
+/// three-line block reads the same readings as the hand-written one.
+#[test]
+fn titled_layout_reads_like_the_hand_written_block() {
+    let mut text = String::from(
+        "\"Export of bench 4\"\n\"#\",\"Date Time, GMT+02:00\",\"Temp, °C (S/N: 990112)\",\"RH, % (S/N: 990112)\",\"Coupler Attached (S/N: 990112)\"\n",
+    );
+    for i in 0..40 {
+        let h = i / 4;
+        let (h12, ampm) = (if h % 12 == 0 { 12 } else { h % 12 }, if h < 12 { "AM" } else { "PM" });
+        text.push_str(&format!(
+            "{},06/14/26 {h12:02}:{:02}:00 {ampm},{}.{},{}\n",
+            i + 1,
+            i % 4 * 15,
+            20 + i % 5,
+            i % 10,
+            50 + i
+        ));
+    }
+    text.push_str("41,06/14/26 10:00:00 AM,,,Logged\n");
+    let layout = "[[logs]]\nfiles = [\"logs/*.csv\"]\nlayout = \"titled-with-offset\"\n";
+    let hand = "[[logs]]\nfiles = [\"logs/*.csv\"]\nskip_lines = 1\ntime = \"Date Time, GMT+02:00\"\ntime_format = \"%m/%d/%y %I:%M:%S %p\"\ntimezone = \"UTC+02:00\"\nsensor_from = \"file_stem\"\n[logs.columns]\ntemperature = { column = \"Temp, °C (S/N: 990112)\", unit = \"degC\" }\nhumidity = { column = \"RH, % (S/N: 990112)\", unit = \"percent\" }\n";
+    let files = [("logs/990112.csv", text.as_str())];
+    let (a, out) = ingest_files(layout, &["990112"], &files);
+    let (b, _) = ingest_files(hand, &["990112"], &files);
+    assert!(out.contains("41 rows read: 41 kept as is"), "{out}");
+    assert_eq!(a.len(), 41);
+    assert_eq!(a, b);
+    // 06/14/26 12:00:00 AM at UTC+02:00 is 2026-06-13 22:00 UTC.
+    assert_eq!(a[0].1, ms("2026-06-13 22:00:00"));
+}
+
+/// A USB logger export with the sensor name in the first header cell and
+/// the serial number in the first row only: the three-line block takes the
+/// name as the sensor id and keeps every row.
+#[test]
+fn name_in_first_cell_layout_reads_like_the_hand_written_block() {
+    let mut text = String::from("attic-07,Time,Celsius(°C),Humidity(%rh),Dew Point(°C),Serial Number\n");
+    for i in 0..50 {
+        text.push_str(&format!(
+            "{},2026-07-02 {:02}:{:02}:00,{}.0,{}.5,11.0",
+            i + 1,
+            i / 4,
+            i % 4 * 15,
+            24 + i % 3,
+            40 + i % 7
+        ));
+        if i == 0 {
+            text.push_str(",SN0091");
+        }
+        text.push('\n');
+    }
+    let layout = "[[logs]]\nfiles = [\"logs/*.csv\"]\nlayout = \"name-in-first-cell\"\n";
+    let hand = "[[logs]]\nfiles = [\"logs/*.csv\"]\ntime = \"Time\"\ntime_format = \"%Y-%m-%d %H:%M:%S\"\nsensor_from = \"file_stem\"\n[logs.columns]\ntemperature = { column = \"Celsius(°C)\", unit = \"degC\" }\nhumidity = { column = \"Humidity(%rh)\", unit = \"percent\" }\n";
+    let (a, out) = ingest_files(layout, &["attic-07"], &[("logs/export.csv", &text)]);
+    let (b, _) = ingest_files(hand, &["attic-07"], &[("logs/attic-07.csv", &text)]);
+    assert!(out.contains("50 rows read: 50 kept as is"), "{out}");
+    assert_eq!(a, b);
+    assert_eq!(a[0], ("attic-07".to_string(), ms("2026-07-02 00:00:00"), Some(24.0)));
+}
+
+/// A file that does not fit its layout: the message shows the lines read
+/// and says what was not recognised.
+#[test]
+fn a_file_that_fits_no_layout_shows_the_lines_read() {
+    let d = tempfile::tempdir().unwrap();
+    let st = study(
+        d.path(),
+        &["x"],
+        "UTC",
+        "[[logs]]\nfiles = [\"logs/*.csv\"]\nlayout = \"name-in-first-cell\"\n",
+    );
+    write(d.path(), "logs/x.csv", b"x,Stamp,Value\n1,2026-07-02 00:00:00,3\n");
+    let (code, _, err) = run(&["ingest", st.to_str().unwrap()]);
+    assert_eq!(code, 1);
+    assert!(
+        err.contains("logs/x.csv")
+            && err.contains("name-in-first-cell")
+            && err.contains("no time column `Time`")
+            && err.contains("line 1: x | Stamp | Value"),
+        "{err}"
+    );
+    write(d.path(), "logs/x.csv", b"x,Time,Value\n1,2026-07-02 00:00:00,3\n");
+    let (code, _, err) = run(&["ingest", st.to_str().unwrap()]);
+    assert_eq!(code, 1);
+    assert!(
+        err.contains("no temperature, humidity or light column recognised") && err.contains("x, Time, Value"),
+        "{err}"
+    );
+}

@@ -61,6 +61,11 @@ pub enum SensorSource {
     Column(String),
     /// The file name without extension.
     FileStem,
+    /// One id for the whole file, read from its header lines by a layout.
+    Fixed(String),
+    /// Where the block's layout writes it (resolved per file by
+    /// [`super::layouts::resolve`]).
+    Layout,
 }
 
 /// A compiled `[[logs]]` block.
@@ -88,6 +93,10 @@ pub struct LogFormat {
     pub sensor: SensorSource,
     /// Preamble lines before the header.
     pub skip_lines: usize,
+    /// Non-data lines after the header (units, processing codes).
+    pub after_header: usize,
+    /// The block's layout, resolved per file before reading.
+    pub layout: Option<super::layouts::Layout>,
     /// Per channel (order of `Channel::ALL`): column name and conversion.
     pub channels: [Option<(String, Conversion)>; 3],
     /// The files matched by the globs, sorted, deduplicated.
@@ -114,9 +123,10 @@ struct UnitsDoc {
 }
 #[derive(serde::Deserialize)]
 struct UnitsBlock {
+    #[serde(default)]
     columns: UnitsColumns,
 }
-#[derive(serde::Deserialize)]
+#[derive(serde::Deserialize, Default)]
 struct UnitsColumns {
     temperature: Option<UnitCell>,
     humidity: Option<UnitCell>,
@@ -147,8 +157,10 @@ fn compile_block(
     spans: Option<&[Option<std::ops::Range<usize>>; 3]>,
 ) -> Result<LogFormat> {
     let key = |k: &str| format!("logs[{}].{k}", i + 1);
+    let layout = log.layout.as_deref().and_then(super::layouts::Layout::parse);
+    let implied = layout.map(|l| l.implied());
     let delimiter = match &log.delimiter {
-        None => b',',
+        None => implied.map_or(b',', |m| m.delimiter),
         Some(d) => delimiter_byte(d).map_err(|m| study.invalid(&key("delimiter"), m, None))?,
     };
     let decimal_comma = log.decimal.as_deref() == Some(",");
@@ -159,7 +171,12 @@ fn compile_block(
             Some("exports with decimal commas usually use `delimiter = \";\"`".into()),
         ));
     }
-    let time_format = TimeFormat::compile(&log.time_format).map_err(|m| {
+    let pattern = match (&log.time_format, implied) {
+        (Some(p), _) => p.clone(),
+        (None, Some(m)) => m.time_format.to_string(),
+        (None, None) => return Err(study.invalid(&key("time_format"), "is required", None)),
+    };
+    let time_format = TimeFormat::compile(&pattern).map_err(|m| {
         study.invalid(
             &key("time_format"),
             m,
@@ -173,10 +190,15 @@ fn compile_block(
         Some(tz) => (super::study::parse_log_zone(&study.path, &key("timezone"), tz)?, true),
         None => (LogZone::Iana(study.timezone), false),
     };
-    let names = log.time.names();
-    let sensor = match &log.sensor {
-        Some(c) => SensorSource::Column(c.clone()),
-        None => SensorSource::FileStem,
+    let names: Vec<String> = match (&log.time, implied) {
+        (Some(t), _) => t.names().into_iter().map(String::from).collect(),
+        (None, Some(m)) => vec![m.time.to_string()],
+        (None, None) => return Err(study.invalid(&key("time"), "is required", None)),
+    };
+    let sensor = match (&log.sensor, &log.sensor_from, layout) {
+        (Some(c), _, _) => SensorSource::Column(c.clone()),
+        (None, None, Some(_)) => SensorSource::Layout,
+        _ => SensorSource::FileStem,
     };
     let mut channels: [Option<(String, Conversion)>; 3] = [None, None, None];
     let cols = [&log.columns.temperature, &log.columns.humidity, &log.columns.light];
@@ -242,7 +264,9 @@ fn compile_block(
         zone,
         zone_given,
         sensor,
-        skip_lines: log.skip_lines.unwrap_or(0),
+        skip_lines: log.skip_lines.or(implied.map(|m| m.skip_lines)).unwrap_or(0),
+        after_header: implied.map_or(0, |m| m.after_header),
+        layout,
         channels,
         files,
     })
@@ -464,6 +488,10 @@ pub fn plain_text(body: &[u8]) -> bool {
 
 /// [`read_file`] on bytes already in memory.
 pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Result<FileRead> {
+    if let Some(layout) = fmt.layout {
+        let resolved = super::layouts::resolve(fmt, layout, path, bytes)?;
+        return read_bytes(&resolved, path, file, bytes);
+    }
     let body = &bytes[preamble_end(fmt, path, bytes)?..];
     let plain = !matches!(fmt.delimiter, b'"' | b'\n' | b'\r') && plain_text(body);
     match plain {
@@ -680,6 +708,8 @@ struct Parser<'a> {
     /// One past the last column the block uses: a row with fewer fields than
     /// the header is still complete when it has at least this many.
     need: usize,
+    /// Non-data records still to pass after the header.
+    skip_after: usize,
     /// The columns the block uses, by index, for messages.
     used: Vec<(usize, String)>,
     time_col: usize,
@@ -784,7 +814,7 @@ impl<'a> Parser<'a> {
         };
         let sensor_col = match &fmt.sensor {
             SensorSource::Column(c) => Some(column(c)?),
-            SensorSource::FileStem => None,
+            _ => None,
         };
         let mut chan_cols: [Option<(usize, Conversion)>; 3] = [None; 3];
         for ch in Channel::ALL {
@@ -815,9 +845,12 @@ impl<'a> Parser<'a> {
         };
         let mut last_utc: Vec<Option<i64>> = Vec::new();
         let stem_sensor = match &fmt.sensor {
-            SensorSource::FileStem => {
-                let stem = path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
-                out.sensors.push(stem);
+            SensorSource::FileStem | SensorSource::Fixed(_) | SensorSource::Layout => {
+                let id = match &fmt.sensor {
+                    SensorSource::Fixed(id) => id.clone(),
+                    _ => path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default(),
+                };
+                out.sensors.push(id);
                 out.first_line.push(0);
                 last_utc.push(None);
                 Some(0u32)
@@ -831,6 +864,7 @@ impl<'a> Parser<'a> {
             header_line,
             ncols: headers.len(),
             need,
+            skip_after: fmt.after_header,
             used,
             time_col,
             clock_col,
@@ -976,6 +1010,10 @@ impl<'a> Parser<'a> {
     fn record<C: Cells>(&mut self, rec: &C, line: u32) {
         let n = rec.count();
         if n <= 1 && rec.all_blank() {
+            return;
+        }
+        if self.skip_after > 0 {
+            self.skip_after -= 1;
             return;
         }
         self.out.rows_read += 1;
@@ -1124,6 +1162,8 @@ mod tests {
             zone_given: true,
             sensor,
             skip_lines: skip,
+            after_header: 0,
+            layout: None,
             channels: [
                 Some(("temp".into(), Conversion::of(Channel::Temperature, "degF").unwrap())),
                 Some(("rh".into(), Conversion::of(Channel::Humidity, "percent").unwrap())),

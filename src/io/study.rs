@@ -170,11 +170,19 @@ pub struct LogSection {
     /// Decimal mark: `.` (default) or `,`.
     #[serde(default)]
     pub decimal: Option<String>,
+    /// A recurring export layout (see `io::layouts`) that implies the other
+    /// keys; each key given still overrides it.
+    #[serde(default)]
+    pub layout: Option<String>,
     /// Column with the time stamp, or two columns (date, then time of day)
     /// whose cells are joined with one space before `time_format` reads them.
-    pub time: TimeColumns,
+    /// Required unless a layout implies it.
+    #[serde(default)]
+    pub time: Option<TimeColumns>,
     /// chrono strftime pattern, `rfc3339`, or `unix` (epoch seconds).
-    pub time_format: String,
+    /// Required unless a layout implies it.
+    #[serde(default)]
+    pub time_format: Option<String>,
     /// Zone of times without offset: an IANA name, a fixed offset
     /// (`UTC+01:00`, `GMT-05:00`, `+0530`), or `in_header` (the offset written
     /// in the time column's header). Default: the header's offset when it
@@ -190,7 +198,9 @@ pub struct LogSection {
     /// Preamble lines before the header. Default 0.
     #[serde(default)]
     pub skip_lines: Option<usize>,
-    /// Which columns hold which channel, in which unit.
+    /// Which columns hold which channel, in which unit (with a layout, the
+    /// channels not named are found by their header words).
+    #[serde(default)]
     pub columns: LogColumns,
 }
 
@@ -215,7 +225,7 @@ impl TimeColumns {
 }
 
 /// `[logs.columns]`.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct LogColumns {
     /// Air temperature; units `degC`, `degF`, `K`.
@@ -371,8 +381,34 @@ impl Study {
             if log.files.is_empty() {
                 return Err(self.invalid(&key("files"), "needs at least one glob pattern", None));
             }
+            let layout = match &log.layout {
+                Some(l) => Some(super::layouts::Layout::parse(l).ok_or_else(|| {
+                    self.invalid(
+                        &key("layout"),
+                        format!("unknown layout `{l}`"),
+                        Some(format!("the layouts are {}", super::layouts::Layout::names().join(", "))),
+                    )
+                })?),
+                None => None,
+            };
+            if layout.is_none() {
+                for (k, missing) in [("time", log.time.is_none()), ("time_format", log.time_format.is_none())]
+                {
+                    if missing {
+                        return Err(self.invalid(
+                            &key(k),
+                            "is required (no `layout` implies it)",
+                            Some(format!(
+                                "name `{k}`, or a `layout` ({})",
+                                super::layouts::Layout::names().join(", ")
+                            )),
+                        ));
+                    }
+                }
+            }
             match (&log.sensor, &log.sensor_from) {
                 (Some(_), None) => {}
+                (None, None) if layout.is_some() => {}
                 (None, Some(f)) if f == "file_stem" => {}
                 (None, Some(f)) => {
                     return Err(self.invalid(
@@ -399,7 +435,7 @@ impl Study {
             if let Some(tz) = &log.timezone {
                 parse_log_zone(&self.path, &key("timezone"), tz)?;
             }
-            if let TimeColumns::Split(v) = &log.time
+            if let Some(TimeColumns::Split(v)) = &log.time
                 && v.len() != 2
             {
                 return Err(self.invalid(
@@ -424,7 +460,8 @@ impl Study {
             if let Some(d) = &log.delimiter {
                 delimiter_byte(d).map_err(|m| self.invalid(&key("delimiter"), m, None))?;
             }
-            if log.columns.temperature.is_none()
+            if layout.is_none()
+                && log.columns.temperature.is_none()
                 && log.columns.humidity.is_none()
                 && log.columns.light.is_none()
             {
