@@ -233,7 +233,7 @@ fn demo_exports_read_back_to_the_true_readings() {
             let col = |n: &str| {
                 header.iter().position(|h| *h == n).unwrap_or_else(|| panic!("{rel}: no column {n}"))
             };
-            let tcol = col(&log.time);
+            let tcol = col(log.time.as_ref().unwrap().names()[0]);
             let scol = log.sensor.as_deref().map(col);
             let chans = [&log.columns.temperature, &log.columns.humidity, &log.columns.light];
             let ccols: Vec<Option<(usize, String)>> =
@@ -249,10 +249,12 @@ fn demo_exports_read_back_to_the_true_readings() {
                     Some(j) => cells[j].to_string(),
                     None => path.file_stem().unwrap().to_string_lossy().to_string(),
                 };
-                let t: DateTime<Utc> = if log.time_format == "rfc3339" {
+                let t: DateTime<Utc> = if log.time_format.as_deref() == Some("rfc3339") {
                     DateTime::parse_from_rfc3339(cells[tcol]).unwrap().with_timezone(&Utc)
                 } else {
-                    let local = NaiveDateTime::parse_from_str(cells[tcol], &log.time_format).unwrap();
+                    let local =
+                        NaiveDateTime::parse_from_str(cells[tcol], log.time_format.as_deref().unwrap())
+                            .unwrap();
                     match tz.from_local_datetime(&local) {
                         chrono::LocalResult::Single(t) => t.with_timezone(&Utc),
                         chrono::LocalResult::Ambiguous(a, b) => {

@@ -59,6 +59,8 @@ pub struct Pattern {
 enum Item {
     Lit(u8),
     Num(Field, usize),
+    /// `%p`: `AM` or `PM`, any case.
+    AmPm,
 }
 
 #[derive(Debug, Clone, Copy)]
@@ -67,6 +69,8 @@ enum Field {
     Month,
     Day,
     Hour,
+    /// `%I`: hour of a 12-hour clock, 01..12.
+    Hour12,
     Minute,
     Second,
 }
@@ -214,8 +218,12 @@ pub struct StampMemo {
 /// first item after every year, month, day and hour field, and its byte
 /// offset; `None` when a date or hour field comes after a minute or second.
 fn split_of(items: &[Item]) -> Option<(usize, usize)> {
-    let is_date_hour =
-        |it: &Item| matches!(it, Item::Num(Field::Year | Field::Month | Field::Day | Field::Hour, _));
+    if items.iter().any(|it| matches!(it, Item::AmPm)) {
+        return None; // the hour is not known before the AM/PM mark
+    }
+    let is_date_hour = |it: &Item| {
+        matches!(it, Item::Num(Field::Year | Field::Month | Field::Day | Field::Hour | Field::Hour12, _))
+    };
     let last = items.iter().rposition(is_date_hour)?;
     let head = &items[..=last];
     if head.iter().any(|it| matches!(it, Item::Num(Field::Minute | Field::Second, _))) {
@@ -237,6 +245,8 @@ fn compile_fast(spec: &str) -> Option<Vec<Item>> {
                 b'm' => Item::Num(Field::Month, 2),
                 b'd' => Item::Num(Field::Day, 2),
                 b'H' => Item::Num(Field::Hour, 2),
+                b'I' => Item::Num(Field::Hour12, 2),
+                b'p' => Item::AmPm,
                 b'M' => Item::Num(Field::Minute, 2),
                 b'S' => Item::Num(Field::Second, 2),
                 b'%' => Item::Lit(b'%'),
@@ -257,6 +267,15 @@ fn compile_fast(spec: &str) -> Option<Vec<Item>> {
             }
         }
     }
+    // A 12-hour clock needs its AM/PM mark and no 24-hour field (chrono
+    // decides the other combinations).
+    let has = |f: &dyn Fn(&Item) -> bool| items.iter().any(f);
+    let h12 = has(&|it| matches!(it, Item::Num(Field::Hour12, _)));
+    let ampm = has(&|it| matches!(it, Item::AmPm));
+    let h24 = has(&|it| matches!(it, Item::Num(Field::Hour, _)));
+    if h12 != ampm || (h12 && h24) {
+        return None;
+    }
     Some(items)
 }
 
@@ -269,11 +288,14 @@ struct Fields {
     hour: u32,
     minute: u32,
     second: u32,
+    /// The hour is of a 12-hour clock (1..=12), `pm` says which half.
+    h12: bool,
+    pm: bool,
 }
 
 impl Default for Fields {
     fn default() -> Fields {
-        Fields { year: 1970, month: 1, day: 1, hour: 0, minute: 0, second: 0 }
+        Fields { year: 1970, month: 1, day: 1, hour: 0, minute: 0, second: 0, h12: false, pm: false }
     }
 }
 
@@ -281,7 +303,13 @@ impl Fields {
     /// Local milliseconds since 1970-01-01 00:00, or `None` when a field is
     /// out of its range (month 13, 31 April, hour 24, ...).
     fn millis(&self) -> Option<i64> {
-        let Fields { year: y, month: mo, day: d, hour: h, minute: mi, second: se } = *self;
+        let Fields { year: y, month: mo, day: d, hour: h, minute: mi, second: se, h12, pm } = *self;
+        // 12 AM is midnight, 12 PM noon (chrono's reading of %I with %p).
+        let h = match h12 {
+            true if !(1..=12).contains(&h) => return None,
+            true => h % 12 + if pm { 12 } else { 0 },
+            false => h,
+        };
         if !(1..=12).contains(&mo) || d < 1 || d > days_in_month(y, mo) || h > 23 || mi > 59 || se > 59 {
             return None;
         }
@@ -304,6 +332,15 @@ fn read_items(items: &[Item], s: &[u8], f: &mut Fields) -> Option<()> {
                 }
                 pos += 1;
             }
+            Item::AmPm => {
+                let m = s.get(pos..pos + 2)?;
+                f.pm = match (m[0].to_ascii_uppercase(), m[1].to_ascii_uppercase()) {
+                    (b'A', b'M') => false,
+                    (b'P', b'M') => true,
+                    _ => return None,
+                };
+                pos += 2;
+            }
             Item::Num(field, w) => {
                 let digits = s.get(pos..pos + w)?;
                 let mut v = 0u32;
@@ -319,6 +356,10 @@ fn read_items(items: &[Item], s: &[u8], f: &mut Fields) -> Option<()> {
                     Field::Month => f.month = v,
                     Field::Day => f.day = v,
                     Field::Hour => f.hour = v,
+                    Field::Hour12 => {
+                        f.hour = v;
+                        f.h12 = true;
+                    }
                     Field::Minute => f.minute = v,
                     Field::Second => f.second = v,
                 }
@@ -500,6 +541,57 @@ mod tests {
         let f = TimeFormat::compile("%Y-%m-%d %H:%M:%S").unwrap();
         for bad in ["2026-02-29 00:00:00", "2026-13-01 00:00:00", "2026-03-01 24:00:00", "garbage", ""] {
             assert_eq!(f.parse(bad, false), None, "{bad}");
+        }
+    }
+
+    /// 12-hour clocks (`%I` with `%p`) take the byte-level parser and agree
+    /// with chrono's parser cell by cell on generated stamps: hours 00..13,
+    /// marks in any case and malformed marks, day-first and month-first.
+    #[test]
+    fn twelve_hour_clock_agrees_with_chrono() {
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(12);
+        let marks = ["AM", "PM", "am", "pm", "Pm", "aM", "XM", "A.", "  "];
+        let mut fast_hits = 0;
+        for pat in ["%m/%d/%Y %I:%M:%S %p", "%d/%m/%Y %I:%M %p", "%Y-%m-%d %I:%M:%S%p"] {
+            let f = TimeFormat::compile(pat).unwrap();
+            let TimeFormat::Pattern(p) = &f else { unreachable!() };
+            let items = p.fast.as_deref().expect("a 12-hour pattern takes the fast parser");
+            assert!(p.split.is_none());
+            for _ in 0..20_000 {
+                let (y, mo, d) =
+                    (rng.random_range(2024..2028), rng.random_range(0..14), rng.random_range(0..32));
+                let (h, mi, se) = (rng.random_range(0..14), rng.random_range(0..61), rng.random_range(0..61));
+                let mark = marks[rng.random_range(0..marks.len())];
+                let c = match pat {
+                    "%m/%d/%Y %I:%M:%S %p" => format!("{mo:02}/{d:02}/{y} {h:02}:{mi:02}:{se:02} {mark}"),
+                    "%d/%m/%Y %I:%M %p" => format!("{d:02}/{mo:02}/{y} {h:02}:{mi:02} {mark}"),
+                    _ => format!("{y}-{mo:02}-{d:02} {h:02}:{mi:02}:{se:02}{mark}"),
+                };
+                let want =
+                    NaiveDateTime::parse_from_str(&c, pat).ok().map(|t| t.and_utc().timestamp_millis());
+                let fast = parse_fast(items, c.as_bytes());
+                // chrono reads second 60 (a leap second); the fast parser
+                // leaves it to chrono.
+                if se < 60 || fast.is_some() {
+                    assert_eq!(fast, want, "{pat} {c:?}");
+                }
+                assert_eq!(f.parse(&c, false), want.map(Stamp::Local), "{pat} {c:?}");
+                fast_hits += usize::from(fast.is_some());
+            }
+        }
+        assert!(fast_hits > 5_000, "{fast_hits}");
+        // 12 AM is midnight and 12 PM noon.
+        let f = TimeFormat::compile("%m/%d/%Y %I:%M %p").unwrap();
+        let at = |s: &str| {
+            NaiveDateTime::parse_from_str(s, "%Y-%m-%d %H:%M").unwrap().and_utc().timestamp_millis()
+        };
+        assert_eq!(f.parse("03/08/2026 12:30 AM", false), Some(Stamp::Local(at("2026-03-08 00:30"))));
+        assert_eq!(f.parse("03/08/2026 12:30 PM", false), Some(Stamp::Local(at("2026-03-08 12:30"))));
+        // Without its mark, or with a 24-hour field, chrono decides.
+        for pat in ["%m/%d/%Y %I:%M", "%m/%d/%Y %H:%M %p"] {
+            let TimeFormat::Pattern(p) = TimeFormat::compile(pat).unwrap() else { unreachable!() };
+            assert!(p.fast.is_none(), "{pat}");
         }
     }
 

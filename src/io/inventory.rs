@@ -257,6 +257,11 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
         read_bytes(fmt, path, 0, &bytes)?;
         unreachable!("an empty file is an error");
     };
+    // Lines after the header that are not data (a layout's units line).
+    let header = (header..starts.len())
+        .filter(|&i| !line_text(i).trim_ascii().is_empty())
+        .nth(fmt.after_header)
+        .unwrap_or(header);
     let data: Vec<usize> =
         (header + 1..starts.len()).filter(|&i| !line_text(i).trim_ascii().is_empty()).collect();
     let head_end = data.get(SAMPLE_ROWS).map(|&i| starts[i]).unwrap_or(bytes.len());

@@ -24,7 +24,7 @@
 use super::clock::{LocalClock, Resolution, Stamp, StampMemo, TimeFormat};
 use super::error::{IoError, Result, closest};
 use super::qc::Reason;
-use super::study::{LogSection, Study, delimiter_byte};
+use super::study::{LogSection, LogZone, Study, delimiter_byte};
 use super::table::LineCounter;
 use super::units::{Channel, Conversion};
 use std::path::{Path, PathBuf};
@@ -61,6 +61,11 @@ pub enum SensorSource {
     Column(String),
     /// The file name without extension.
     FileStem,
+    /// One id for the whole file, read from its header lines by a layout.
+    Fixed(String),
+    /// Where the block's layout writes it (resolved per file by
+    /// [`super::layouts::resolve`]).
+    Layout,
 }
 
 /// A compiled `[[logs]]` block.
@@ -72,16 +77,26 @@ pub struct LogFormat {
     pub delimiter: u8,
     /// Decimal mark is a comma.
     pub decimal_comma: bool,
-    /// Time column.
+    /// Time column (the date column when date and time are apart).
     pub time_column: String,
+    /// The time-of-day column, when date and time are apart: its cell is
+    /// joined to the date cell with one space before parsing.
+    pub clock_column: Option<String>,
     /// Time format.
     pub time_format: TimeFormat,
     /// Zone of local times.
-    pub timezone: chrono_tz::Tz,
+    pub zone: LogZone,
+    /// Whether `zone` was set by the block; when not, an offset written in
+    /// the time column's header takes precedence over `[study].timezone`.
+    pub zone_given: bool,
     /// Sensor id source.
     pub sensor: SensorSource,
     /// Preamble lines before the header.
     pub skip_lines: usize,
+    /// Non-data lines after the header (units, processing codes).
+    pub after_header: usize,
+    /// The block's layout, resolved per file before reading.
+    pub layout: Option<super::layouts::Layout>,
     /// Per channel (order of `Channel::ALL`): column name and conversion.
     pub channels: [Option<(String, Conversion)>; 3],
     /// The files matched by the globs, sorted, deduplicated.
@@ -108,9 +123,10 @@ struct UnitsDoc {
 }
 #[derive(serde::Deserialize)]
 struct UnitsBlock {
+    #[serde(default)]
     columns: UnitsColumns,
 }
-#[derive(serde::Deserialize)]
+#[derive(serde::Deserialize, Default)]
 struct UnitsColumns {
     temperature: Option<UnitCell>,
     humidity: Option<UnitCell>,
@@ -141,8 +157,10 @@ fn compile_block(
     spans: Option<&[Option<std::ops::Range<usize>>; 3]>,
 ) -> Result<LogFormat> {
     let key = |k: &str| format!("logs[{}].{k}", i + 1);
+    let layout = log.layout.as_deref().and_then(super::layouts::Layout::parse);
+    let implied = layout.map(|l| l.implied());
     let delimiter = match &log.delimiter {
-        None => b',',
+        None => implied.map_or(b',', |m| m.delimiter),
         Some(d) => delimiter_byte(d).map_err(|m| study.invalid(&key("delimiter"), m, None))?,
     };
     let decimal_comma = log.decimal.as_deref() == Some(",");
@@ -153,7 +171,12 @@ fn compile_block(
             Some("exports with decimal commas usually use `delimiter = \";\"`".into()),
         ));
     }
-    let time_format = TimeFormat::compile(&log.time_format).map_err(|m| {
+    let pattern = match (&log.time_format, implied) {
+        (Some(p), _) => p.clone(),
+        (None, Some(m)) => m.time_format.to_string(),
+        (None, None) => return Err(study.invalid(&key("time_format"), "is required", None)),
+    };
+    let time_format = TimeFormat::compile(&pattern).map_err(|m| {
         study.invalid(
             &key("time_format"),
             m,
@@ -163,13 +186,19 @@ fn compile_block(
             ),
         )
     })?;
-    let timezone = match &log.timezone {
-        Some(tz) => super::study::parse_timezone(&study.path, &key("timezone"), tz)?,
-        None => study.timezone,
+    let (zone, zone_given) = match &log.timezone {
+        Some(tz) => (super::study::parse_log_zone(&study.path, &key("timezone"), tz)?, true),
+        None => (LogZone::Iana(study.timezone), false),
     };
-    let sensor = match &log.sensor {
-        Some(c) => SensorSource::Column(c.clone()),
-        None => SensorSource::FileStem,
+    let names: Vec<String> = match (&log.time, implied) {
+        (Some(t), _) => t.names().into_iter().map(String::from).collect(),
+        (None, Some(m)) => vec![m.time.to_string()],
+        (None, None) => return Err(study.invalid(&key("time"), "is required", None)),
+    };
+    let sensor = match (&log.sensor, &log.sensor_from, layout) {
+        (Some(c), _, _) => SensorSource::Column(c.clone()),
+        (None, None, Some(_)) => SensorSource::Layout,
+        _ => SensorSource::FileStem,
     };
     let mut channels: [Option<(String, Conversion)>; 3] = [None, None, None];
     let cols = [&log.columns.temperature, &log.columns.humidity, &log.columns.light];
@@ -229,11 +258,15 @@ fn compile_block(
         block: i + 1,
         delimiter,
         decimal_comma,
-        time_column: log.time.clone(),
+        time_column: names.first().map(|s| s.to_string()).unwrap_or_default(),
+        clock_column: names.get(1).map(|s| s.to_string()),
         time_format,
-        timezone,
+        zone,
+        zone_given,
         sensor,
-        skip_lines: log.skip_lines.unwrap_or(0),
+        skip_lines: log.skip_lines.or(implied.map(|m| m.skip_lines)).unwrap_or(0),
+        after_header: implied.map_or(0, |m| m.after_header),
+        layout,
         channels,
         files,
     })
@@ -300,6 +333,17 @@ fn decode(b: &[u8]) -> String {
         Ok(s) => s.trim().to_string(),
         Err(_) => b.iter().map(|&c| c as char).collect::<String>().trim().to_string(),
     }
+}
+
+/// An offset from UTC written in a header cell (`Date Time, GMT+01:00`,
+/// `Time (UTC-05:00)`, `Time (UTC)`): the cell's name without it, and the
+/// offset in seconds east of UTC; `None` when the cell names no offset.
+pub fn header_offset(cell: &str) -> Option<(&str, i32)> {
+    let p = cell.find("GMT").or_else(|| cell.find("UTC"))?;
+    let rest = cell[p + 3..].trim_end_matches([')', ']', ' ']);
+    let secs = if rest.trim().is_empty() { 0 } else { super::study::fixed_offset(rest)? };
+    let name = cell[..p].trim_end_matches([' ', ',', '(', '[', '-', ';']);
+    Some((name, secs))
 }
 
 /// Read a number cell; `decimal_comma` reads `,` (and still `.`) as the
@@ -444,6 +488,10 @@ pub fn plain_text(body: &[u8]) -> bool {
 
 /// [`read_file`] on bytes already in memory.
 pub fn read_bytes(fmt: &LogFormat, path: &Path, file: u32, bytes: &[u8]) -> Result<FileRead> {
+    if let Some(layout) = fmt.layout {
+        let resolved = super::layouts::resolve(fmt, layout, path, bytes)?;
+        return read_bytes(&resolved, path, file, bytes);
+    }
     let body = &bytes[preamble_end(fmt, path, bytes)?..];
     let plain = !matches!(fmt.delimiter, b'"' | b'\n' | b'\r') && plain_text(body);
     match plain {
@@ -660,9 +708,17 @@ struct Parser<'a> {
     /// One past the last column the block uses: a row with fewer fields than
     /// the header is still complete when it has at least this many.
     need: usize,
+    /// Non-data records still to pass after the header.
+    skip_after: usize,
     /// The columns the block uses, by index, for messages.
     used: Vec<(usize, String)>,
     time_col: usize,
+    /// The time-of-day column when date and time are apart.
+    clock_col: Option<usize>,
+    /// The date and time cells joined (reused buffer).
+    joined: Vec<u8>,
+    /// A fixed offset of local times (ms east of UTC), when the zone is one.
+    fixed_offset: Option<i64>,
     sensor_col: Option<usize>,
     stem_sensor: Option<u32>,
     chan_cols: [Option<(usize, Conversion)>; 3],
@@ -718,10 +774,47 @@ impl<'a> Parser<'a> {
                 }
             })
         };
-        let time_col = column(&fmt.time_column)?;
+        // A time column may carry the zone's offset in its header
+        // (`Date Time, GMT+01:00`): it is found by its name without it.
+        let time_column = |name: &str| -> Result<(usize, Option<i32>)> {
+            if let Some(i) = headers.iter().position(|h| h == name) {
+                return Ok((i, header_offset(&headers[i]).map(|o| o.1)));
+            }
+            match headers.iter().position(|h| header_offset(h).is_some_and(|(n, _)| n == name)) {
+                Some(i) => Ok((i, header_offset(&headers[i]).map(|o| o.1))),
+                None => column(name).map(|i| (i, None)),
+            }
+        };
+        let (time_col, offset_a) = time_column(&fmt.time_column)?;
+        let (clock_col, offset_b) = match &fmt.clock_column {
+            Some(c) => {
+                let (i, o) = time_column(c)?;
+                (Some(i), o)
+            }
+            None => (None, None),
+        };
+        let in_header = offset_a.or(offset_b);
+        let fixed_offset = match (fmt.zone, fmt.zone_given, in_header) {
+            (LogZone::InHeader, _, Some(o)) | (_, false, Some(o)) => Some(i64::from(o) * 1000),
+            (LogZone::InHeader, _, None) => {
+                return Err(IoError::Table {
+                    path: path.to_path_buf(),
+                    message: format!(
+                        "line {header_line}: logs[{}] takes its offset from the header (`timezone = \"in_header\"`), but the time column's header `{}` names none (such as `GMT+01:00`); set `timezone` to a zone or an offset",
+                        fmt.block, headers[time_col]
+                    ),
+                });
+            }
+            (LogZone::Fixed(s), _, _) => Some(i64::from(s) * 1000),
+            (LogZone::Iana(_), _, _) => None,
+        };
+        let tz = match fmt.zone {
+            LogZone::Iana(tz) => tz,
+            _ => chrono_tz::UTC,
+        };
         let sensor_col = match &fmt.sensor {
             SensorSource::Column(c) => Some(column(c)?),
-            SensorSource::FileStem => None,
+            _ => None,
         };
         let mut chan_cols: [Option<(usize, Conversion)>; 3] = [None; 3];
         for ch in Channel::ALL {
@@ -730,6 +823,9 @@ impl<'a> Parser<'a> {
             }
         }
         let mut used: Vec<(usize, String)> = vec![(time_col, fmt.time_column.clone())];
+        if let (Some(c), Some(name)) = (clock_col, &fmt.clock_column) {
+            used.push((c, name.clone()));
+        }
         if let (Some(c), SensorSource::Column(name)) = (sensor_col, &fmt.sensor) {
             used.push((c, name.clone()));
         }
@@ -749,9 +845,12 @@ impl<'a> Parser<'a> {
         };
         let mut last_utc: Vec<Option<i64>> = Vec::new();
         let stem_sensor = match &fmt.sensor {
-            SensorSource::FileStem => {
-                let stem = path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
-                out.sensors.push(stem);
+            SensorSource::FileStem | SensorSource::Fixed(_) | SensorSource::Layout => {
+                let id = match &fmt.sensor {
+                    SensorSource::Fixed(id) => id.clone(),
+                    _ => path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default(),
+                };
+                out.sensors.push(id);
                 out.first_line.push(0);
                 last_utc.push(None);
                 Some(0u32)
@@ -765,15 +864,19 @@ impl<'a> Parser<'a> {
             header_line,
             ncols: headers.len(),
             need,
+            skip_after: fmt.after_header,
             used,
             time_col,
+            clock_col,
+            joined: Vec::new(),
+            fixed_offset,
             sensor_col,
             stem_sensor,
             chan_cols,
             out,
             last_utc,
             last_sensor: None,
-            clock: LocalClock::new(fmt.timezone),
+            clock: LocalClock::new(tz),
             memo: StampMemo::default(),
             time_fail: Failures::new(),
             value_fail: [Failures::new(), Failures::new(), Failures::new()],
@@ -856,11 +959,61 @@ impl<'a> Parser<'a> {
         }
     }
 
+    /// The instant of a time cell of `sensor` at `line`, or `None` with the
+    /// row flagged (unparsable, nonexistent or ambiguous local time).
+    #[inline]
+    fn instant(&mut self, tcell: &[u8], sensor: u32, line: u32) -> Option<i64> {
+        self.time_fail.tried += 1;
+        let utc = match self.fmt.time_format.parse_bytes_memo(tcell, self.fmt.decimal_comma, &mut self.memo) {
+            None => {
+                self.time_fail.fail(line, tcell);
+                self.flag(line, sensor, None, Variable::Time, tcell, Reason::UnparsableTime);
+                return None;
+            }
+            Some(Stamp::Utc(t)) => t,
+            Some(Stamp::Local(l)) if self.fixed_offset.is_some() => l - self.fixed_offset.unwrap_or(0),
+            Some(Stamp::Local(l)) => match self.clock.resolve(l) {
+                Resolution::Single(t) => {
+                    if !self.pending.is_empty()
+                        && let Some(run) = self.pending.remove(&sensor)
+                    {
+                        self.unplaced(sensor, run);
+                    }
+                    t
+                }
+                Resolution::Nonexistent => {
+                    self.flag(line, sensor, None, Variable::Time, tcell, Reason::NonexistentTime);
+                    return None;
+                }
+                Resolution::Ambiguous(early, late) => match self.last_utc[sensor as usize] {
+                    Some(p) if early > p => {
+                        let idx = self.out.rows.len();
+                        self.pending.entry(sensor).or_default().push((idx, line, tcell.to_vec()));
+                        early
+                    }
+                    Some(p) if early < p && late >= p => {
+                        self.pending.remove(&sensor);
+                        late
+                    }
+                    _ => {
+                        self.flag(line, sensor, None, Variable::Time, tcell, Reason::AmbiguousTime);
+                        return None;
+                    }
+                },
+            },
+        };
+        Some(utc)
+    }
+
     /// One data record at physical line `line`.
     #[inline]
     fn record<C: Cells>(&mut self, rec: &C, line: u32) {
         let n = rec.count();
         if n <= 1 && rec.all_blank() {
+            return;
+        }
+        if self.skip_after > 0 {
+            self.skip_after -= 1;
             return;
         }
         self.out.rows_read += 1;
@@ -878,46 +1031,21 @@ impl<'a> Parser<'a> {
         if self.out.first_line[sensor as usize] == 0 {
             self.out.first_line[sensor as usize] = line;
         }
-        // Time.
-        let tcell = trim(rec.cell(self.time_col));
-        self.time_fail.tried += 1;
-        let utc = match self.fmt.time_format.parse_bytes_memo(tcell, self.fmt.decimal_comma, &mut self.memo) {
-            None => {
-                self.time_fail.fail(line, tcell);
-                self.flag(line, sensor, None, Variable::Time, tcell, Reason::UnparsableTime);
-                return;
+        // Time: the time cell, or the date and time cells joined by a space.
+        let mut joined = std::mem::take(&mut self.joined);
+        let tcell = match self.clock_col {
+            Some(c) => {
+                joined.clear();
+                joined.extend_from_slice(trim(rec.cell(self.time_col)));
+                joined.push(b' ');
+                joined.extend_from_slice(trim(rec.cell(c)));
+                &joined[..]
             }
-            Some(Stamp::Utc(t)) => t,
-            Some(Stamp::Local(l)) => match self.clock.resolve(l) {
-                Resolution::Single(t) => {
-                    if !self.pending.is_empty()
-                        && let Some(run) = self.pending.remove(&sensor)
-                    {
-                        self.unplaced(sensor, run);
-                    }
-                    t
-                }
-                Resolution::Nonexistent => {
-                    self.flag(line, sensor, None, Variable::Time, tcell, Reason::NonexistentTime);
-                    return;
-                }
-                Resolution::Ambiguous(early, late) => match self.last_utc[sensor as usize] {
-                    Some(p) if early > p => {
-                        let idx = self.out.rows.len();
-                        self.pending.entry(sensor).or_default().push((idx, line, tcell.to_vec()));
-                        early
-                    }
-                    Some(p) if early < p && late >= p => {
-                        self.pending.remove(&sensor);
-                        late
-                    }
-                    _ => {
-                        self.flag(line, sensor, None, Variable::Time, tcell, Reason::AmbiguousTime);
-                        return;
-                    }
-                },
-            },
+            None => trim(rec.cell(self.time_col)),
         };
+        let utc = self.instant(tcell, sensor, line);
+        self.joined = joined;
+        let Some(utc) = utc else { return };
         self.last_utc[sensor as usize] = Some(utc);
         // Values.
         let mut values = [f64::NAN; 3];
@@ -971,7 +1099,10 @@ impl<'a> Parser<'a> {
             return Err(IoError::BadValue {
                 path: path.to_path_buf(),
                 line: line as usize,
-                column: fmt.time_column.clone(),
+                column: match &fmt.clock_column {
+                    Some(c) => format!("{} + {c}", fmt.time_column),
+                    None => fmt.time_column.clone(),
+                },
                 value,
                 message: format!(
                     "{} of {} time stamps do not match the pattern `{}` of logs[{}]",
@@ -1025,10 +1156,14 @@ mod tests {
             delimiter: delim,
             decimal_comma: comma,
             time_column: "time".into(),
+            clock_column: None,
             time_format: TimeFormat::compile(pattern).unwrap(),
-            timezone: tz,
+            zone: LogZone::Iana(tz),
+            zone_given: true,
             sensor,
             skip_lines: skip,
+            after_header: 0,
+            layout: None,
             channels: [
                 Some(("temp".into(), Conversion::of(Channel::Temperature, "degF").unwrap())),
                 Some(("rh".into(), Conversion::of(Channel::Humidity, "percent").unwrap())),
@@ -1056,6 +1191,15 @@ mod tests {
         approx::assert_abs_diff_eq!(r.rows[1].values[0], 10.0, epsilon = 1e-12);
         assert!(r.rows[1].values[1].is_nan());
         assert_eq!(r.rows[1].time, utc("2026-03-01 00:05"));
+    }
+
+    #[test]
+    fn offsets_in_header_cells() {
+        assert_eq!(header_offset("Date Time, GMT+01:00"), Some(("Date Time", 3600)));
+        assert_eq!(header_offset("Time (UTC-05:00)"), Some(("Time", -18000)));
+        assert_eq!(header_offset("Time (UTC)"), Some(("Time", 0)));
+        assert_eq!(header_offset("Timestamp"), None);
+        assert_eq!(header_offset("GMT offset note"), None);
     }
 
     #[test]

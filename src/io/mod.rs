@@ -15,6 +15,7 @@ pub mod error;
 pub mod ingest;
 pub mod inventory;
 pub mod layout;
+pub mod layouts;
 pub mod logs;
 pub mod output;
 pub mod provenance;

@@ -170,11 +170,23 @@ pub struct LogSection {
     /// Decimal mark: `.` (default) or `,`.
     #[serde(default)]
     pub decimal: Option<String>,
-    /// Column with the time stamp.
-    pub time: String,
+    /// A recurring export layout (see `io::layouts`) that implies the other
+    /// keys; each key given still overrides it.
+    #[serde(default)]
+    pub layout: Option<String>,
+    /// Column with the time stamp, or two columns (date, then time of day)
+    /// whose cells are joined with one space before `time_format` reads them.
+    /// Required unless a layout implies it.
+    #[serde(default)]
+    pub time: Option<TimeColumns>,
     /// chrono strftime pattern, `rfc3339`, or `unix` (epoch seconds).
-    pub time_format: String,
-    /// IANA zone of times without offset; default `[study].timezone`.
+    /// Required unless a layout implies it.
+    #[serde(default)]
+    pub time_format: Option<String>,
+    /// Zone of times without offset: an IANA name, a fixed offset
+    /// (`UTC+01:00`, `GMT-05:00`, `+0530`), or `in_header` (the offset written
+    /// in the time column's header). Default: the header's offset when it
+    /// has one, else `[study].timezone`.
     #[serde(default)]
     pub timezone: Option<String>,
     /// Column with the sensor id (exclusive with `sensor_from`).
@@ -186,12 +198,34 @@ pub struct LogSection {
     /// Preamble lines before the header. Default 0.
     #[serde(default)]
     pub skip_lines: Option<usize>,
-    /// Which columns hold which channel, in which unit.
+    /// Which columns hold which channel, in which unit (with a layout, the
+    /// channels not named are found by their header words).
+    #[serde(default)]
     pub columns: LogColumns,
 }
 
+/// `time` of `[[logs]]`: one column, or a date column and a time column.
+#[derive(Debug, Clone, Deserialize, PartialEq, Eq)]
+#[serde(untagged)]
+pub enum TimeColumns {
+    /// One column holds date and time.
+    One(String),
+    /// `[date, time]`: two columns (checked to be exactly two).
+    Split(Vec<String>),
+}
+
+impl TimeColumns {
+    /// The column names, in order.
+    pub fn names(&self) -> Vec<&str> {
+        match self {
+            TimeColumns::One(c) => vec![c.as_str()],
+            TimeColumns::Split(v) => v.iter().map(String::as_str).collect(),
+        }
+    }
+}
+
 /// `[logs.columns]`.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct LogColumns {
     /// Air temperature; units `degC`, `degF`, `K`.
@@ -397,8 +431,34 @@ impl Study {
             if log.files.is_empty() {
                 return Err(self.invalid(&key("files"), "needs at least one glob pattern", None));
             }
+            let layout = match &log.layout {
+                Some(l) => Some(super::layouts::Layout::parse(l).ok_or_else(|| {
+                    self.invalid(
+                        &key("layout"),
+                        format!("unknown layout `{l}`"),
+                        Some(format!("the layouts are {}", super::layouts::Layout::names().join(", "))),
+                    )
+                })?),
+                None => None,
+            };
+            if layout.is_none() {
+                for (k, missing) in [("time", log.time.is_none()), ("time_format", log.time_format.is_none())]
+                {
+                    if missing {
+                        return Err(self.invalid(
+                            &key(k),
+                            "is required (no `layout` implies it)",
+                            Some(format!(
+                                "name `{k}`, or a `layout` ({})",
+                                super::layouts::Layout::names().join(", ")
+                            )),
+                        ));
+                    }
+                }
+            }
             match (&log.sensor, &log.sensor_from) {
                 (Some(_), None) => {}
+                (None, None) if layout.is_some() => {}
                 (None, Some(f)) if f == "file_stem" => {}
                 (None, Some(f)) => {
                     return Err(self.invalid(
@@ -423,7 +483,19 @@ impl Study {
                 }
             }
             if let Some(tz) = &log.timezone {
-                parse_timezone(&self.path, &key("timezone"), tz)?;
+                parse_log_zone(&self.path, &key("timezone"), tz)?;
+            }
+            if let Some(TimeColumns::Split(v)) = &log.time
+                && v.len() != 2
+            {
+                return Err(self.invalid(
+                    &key("time"),
+                    format!("names {} columns; give one column, or two: [date, time of day]", v.len()),
+                    Some(
+                        "e.g. `time = [\"Date\", \"Time\"]` with `time_format = \"%d/%m/%Y %H:%M:%S\"`"
+                            .into(),
+                    ),
+                ));
             }
             if let Some(d) = &log.decimal
                 && d != "."
@@ -438,7 +510,8 @@ impl Study {
             if let Some(d) = &log.delimiter {
                 delimiter_byte(d).map_err(|m| self.invalid(&key("delimiter"), m, None))?;
             }
-            if log.columns.temperature.is_none()
+            if layout.is_none()
+                && log.columns.temperature.is_none()
                 && log.columns.humidity.is_none()
                 && log.columns.light.is_none()
             {
@@ -488,6 +561,54 @@ pub fn delimiter_byte(d: &str) -> std::result::Result<u8, String> {
         _ if d.len() == 1 && d.is_ascii() => Ok(d.as_bytes()[0]),
         _ => Err(format!("must be one ASCII character (or \"tab\"), got {d:?}")),
     }
+}
+
+/// The zone of a `[[logs]]` block's local times.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LogZone {
+    /// An IANA zone, daylight-saving rules included.
+    Iana(chrono_tz::Tz),
+    /// A fixed offset east of UTC, seconds, all year.
+    Fixed(i32),
+    /// The offset written in the time column's header (`GMT+01:00`).
+    InHeader,
+}
+
+/// Parse `timezone` of `[[logs]]`: `in_header`, a fixed offset (see
+/// [`fixed_offset`]), or an IANA name (errors as [`parse_timezone`]).
+pub fn parse_log_zone(path: &Path, key: &str, text: &str) -> Result<LogZone> {
+    if text.eq_ignore_ascii_case("in_header") {
+        return Ok(LogZone::InHeader);
+    }
+    if let Some(s) = fixed_offset(text) {
+        return Ok(LogZone::Fixed(s));
+    }
+    parse_timezone(path, key, text).map(LogZone::Iana)
+}
+
+/// A fixed UTC offset written as `UTC+01:00`, `GMT-5`, `+0530`, `UTC+1`
+/// (optional `UTC`/`GMT` prefix, a sign, hours of one or two digits, and
+/// optionally minutes after a colon or as two more digits): seconds east of
+/// UTC, or `None` when the text is not of that form or beyond ±15:59.
+pub fn fixed_offset(text: &str) -> Option<i32> {
+    let t = text.trim();
+    let t = ["UTC", "GMT", "utc", "gmt"].iter().find_map(|p| t.strip_prefix(p)).unwrap_or(t).trim_start();
+    let (sign, rest) = match t.as_bytes().first()? {
+        b'+' => (1, &t[1..]),
+        b'-' => (-1, &t[1..]),
+        _ => return None,
+    };
+    let (h, m) = match rest.split_once(':') {
+        Some((h, m)) => (h, m),
+        None if rest.len() == 4 => rest.split_at(2),
+        None => (rest, "0"),
+    };
+    let ok = |s: &str, n: usize| !s.is_empty() && s.len() <= n && s.bytes().all(|c| c.is_ascii_digit());
+    if !ok(h, 2) || !ok(m, 2) {
+        return None;
+    }
+    let (h, m): (i32, i32) = (h.parse().ok()?, m.parse().ok()?);
+    (h <= 15 && m <= 59).then_some(sign * (h * 3600 + m * 60))
 }
 
 /// Parse an IANA time-zone name, with a suggestion when it is misspelt.
@@ -615,6 +736,27 @@ y = "y"
         assert!(e.starts_with("dir/study.toml:15:20:"), "{e}");
         let e = st.invalid_value("model", "model.drivers", "nowhere", "no such driver", None).to_string();
         assert!(e.starts_with("dir/study.toml: `model.drivers`"), "{e}");
+    }
+
+    #[test]
+    fn fixed_offsets_are_read_with_sign_hours_and_minutes() {
+        for (t, want) in [
+            ("UTC+01:00", Some(3600)),
+            ("GMT-5", Some(-18000)),
+            ("+0530", Some(19800)),
+            ("UTC -03:30", Some(-12600)),
+            ("+14:00", Some(50400)),
+            ("UTC", None),
+            ("Europe/Amsterdam", None),
+            ("+1:5x", None),
+            ("+16:00", None),
+            ("+01:60", None),
+        ] {
+            assert_eq!(fixed_offset(t), want, "{t}");
+        }
+        assert_eq!(parse_log_zone(Path::new("s.toml"), "k", "in_header").unwrap(), LogZone::InHeader);
+        assert_eq!(parse_log_zone(Path::new("s.toml"), "k", "GMT+02:00").unwrap(), LogZone::Fixed(7200));
+        assert!(parse_log_zone(Path::new("s.toml"), "k", "Europe/Amsterdm").is_err());
     }
 
     #[test]
