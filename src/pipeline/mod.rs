@@ -201,7 +201,7 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
     })?;
 
     let climate = in_stage(Stage::Climate, progress, || {
-        let readings_path = study.output_dir().join(crate::climate::stage::READINGS_FILE);
+        let readings_path = study.output_dir().join(crate::io::ingest::READINGS_FILE);
         let climate =
             crate::climate::stage::compute(study, plan.climate.clone(), &ing.readings, &readings_path)?;
         files.extend(crate::climate::stage::write_outputs(study, &climate)?);

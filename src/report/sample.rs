@@ -5,7 +5,8 @@
 //! nothing in the analysis reads this module.
 
 use super::data::*;
-use crate::model::compare::{Candidate, Method, Shape, rank};
+use crate::model::compare::{Candidate, Shape, rank};
+use crate::spatial::likelihood::LikelihoodKind;
 use std::collections::BTreeMap;
 
 const LENGTH: f64 = 12.0;
@@ -155,7 +156,7 @@ pub fn sample_report() -> ReportData {
                 correlation: r.2.map(str::to_string),
                 nugget: r.3,
             };
-            Candidate::new(r.0, Method::Ml, shape, r.4, r.5, 96).expect("finite invented likelihoods")
+            Candidate::new(r.0, LikelihoodKind::Ml, shape, r.4, r.5, 96).expect("finite invented likelihoods")
         })
         .collect();
     let comparison = rank(&candidates)
