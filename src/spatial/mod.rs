@@ -8,6 +8,7 @@
 
 pub mod config;
 pub mod correlation;
+pub mod drift;
 pub mod error;
 pub mod geometry;
 pub mod kriging;

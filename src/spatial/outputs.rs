@@ -210,12 +210,26 @@ pub fn variogram_fits_csv(rows: &[FitsRow]) -> Result<Vec<u8>> {
 /// `mapping_cv.csv`: one row per variable and method: `variable`, `method`,
 /// `n` (predictions compared), `rmse`, `mean_error`, `msse` (empty for IDW
 /// and nearest sensor), `chosen`, `reason` (why `auto` chose it, on the
-/// chosen row).
+/// chosen row), `drift` (the opening whose decaying distance is the external
+/// drift, else empty) and `decay_length` (its decay length `L` in metres,
+/// estimated by cross-validation, else empty).
 pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
     let mut w = csv::Writer::from_writer(Vec::new());
     row(
         &mut w,
-        &["variable", "method", "n", "rmse", "mean_error", "msse", "chosen", "reason"].map(String::from),
+        &[
+            "variable",
+            "method",
+            "n",
+            "rmse",
+            "mean_error",
+            "msse",
+            "chosen",
+            "reason",
+            "drift",
+            "decay_length",
+        ]
+        .map(String::from),
     )?;
     for (var, scores, choice) in rows {
         for (i, s) in scores.iter().enumerate() {
@@ -235,6 +249,8 @@ pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
                     } else {
                         String::new()
                     },
+                    s.drift.as_ref().map(|d| d.0.clone()).unwrap_or_default(),
+                    num(s.drift.as_ref().map(|d| d.1)),
                 ],
             )?;
         }
@@ -301,6 +317,7 @@ mod tests {
                 mean_error: 0.1,
                 msse: Some(1.1),
                 warnings: vec![],
+                drift: None,
             },
             CvScore {
                 method: Method::Nearest,
@@ -309,10 +326,21 @@ mod tests {
                 mean_error: 0.2,
                 msse: None,
                 warnings: vec![],
+                drift: None,
+            },
+            CvScore {
+                method: Method::ExternalDrift,
+                n: 5,
+                rmse: 0.5,
+                mean_error: 0.0,
+                msse: Some(0.9),
+                warnings: vec![],
+                drift: Some(("door".into(), 2.5)),
             },
         ];
         let rows = parse(&mapping_cv_csv(&[("z", scores.as_slice(), Some((0, "because".into())))]).unwrap());
-        assert_eq!(rows[1], ["z", "ordinary", "5", "1", "0.1", "1.1", "true", "because"]);
+        assert_eq!(rows[1], ["z", "ordinary", "5", "1", "0.1", "1.1", "true", "because", "", ""]);
         assert_eq!(rows[2][5], "");
+        assert_eq!(rows[3][8..], ["door", "2.5"]);
     }
 }

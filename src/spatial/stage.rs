@@ -29,11 +29,13 @@ use super::config::{MappingConfig, MethodChoice};
 use super::error::SpatialError;
 use super::geometry::{Points, opening_distances, pot_points, sensor_points};
 use super::kriging::{Drift, Method, Spec};
-use super::mapping::{CvScore, choose, choose_model, loso, map_series, map_summary};
+use super::mapping::{CvScore, ModelChoice, choose, choose_model, loso, map_series, map_summary};
 use super::outputs::{MappedColumn, mapping_cv_csv, pot_covariates_csv, variogram_fits_csv, variograms_csv};
 use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
-use crate::climate::{ClimateError, ClimateRun, Combine, LocationSeries, combine_window, daily_values};
+use crate::climate::{
+    ClimateError, ClimateRun, Combine, LocationSeries, combine_window, daily_values_expected,
+};
 use crate::io::layout::{Pots, Sensors, load_pots, load_sensors};
 use crate::io::output::StageWriter;
 use crate::io::study::Study;
@@ -94,6 +96,9 @@ pub struct VariableMap {
     pub warnings: Vec<String>,
     /// Mapped series, steps x pots (NaN = no sensor reported).
     pub mapped: DMatrix<f64>,
+    /// Kriging standard error of every mapped step, steps x pots (`None` for
+    /// IDW and nearest sensor); the nugget is included.
+    pub mapped_se: Option<DMatrix<f64>>,
 }
 
 /// Everything `potclim map` computed.
@@ -149,13 +154,30 @@ fn grid_sensor_points(study: &Study, sensors: &Sensors, grid_ids: &[String]) -> 
     Ok(all.subset(&idx))
 }
 
+/// An opening as a candidate external drift: its name and the distances of
+/// the sensors and the pots to it, metres.
+struct OpeningDrift {
+    name: String,
+    at_sensors: Vec<f64>,
+    at_pots: Vec<f64>,
+}
+
+/// The range bounds of the variogram fits: from 2 % of the largest lag to
+/// the largest sensor-pair distance (a longer range than the layout's extent
+/// cannot be told apart from a trend, so it is not identifiable).
+fn range_bounds(sensors: &Points, bins: &super::variogram::Bins) -> Option<(f64, f64)> {
+    let hi = sensors.max_distance();
+    let lo = 0.02 * bins.max_lag();
+    (hi.is_finite() && hi > lo && lo > 0.0).then_some((lo, hi))
+}
+
 fn map_variable(
     name: &'static str,
     series: DMatrix<f64>,
     sensors: &Points,
     pots: &Points,
     cfg: &MappingConfig,
-    drift: Option<&(Vec<f64>, Vec<f64>)>,
+    openings: &[OpeningDrift],
 ) -> Result<VariableMap, MapError> {
     let bins = cfg.bins_for(sensors)?;
     let empirical = pooled(sensors, &series, &bins, cfg.estimator, None, &Detrend::Mean)?;
@@ -174,49 +196,108 @@ fn map_variable(
         }
     }
     let variance = if cnt > 0 { s2 / cnt as f64 } else { f64::NAN };
-    let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: None };
+    let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, &bins) };
     let choice_model = choose_model(&empirical, &cfg.families, &opts, sensors, variance)?;
     let mut warnings: Vec<String> = choice_model.warning.iter().cloned().collect();
-    let drift_spec = |m: Method| -> Option<Drift> {
-        match (m, drift) {
-            (Method::ExternalDrift, Some((s, t))) => Some(Drift {
-                name: cfg.drift.clone().unwrap_or_default(),
-                at_sensors: s.clone(),
-                at_targets: t.clone(),
-            }),
-            _ => None,
-        }
-    };
-    let spec_for = |m: Method| Spec {
-        method: m,
-        model: choice_model.model,
-        neighbours: cfg.neighbours,
-        drift: drift_spec(m),
-    };
-    let mut cv = Vec::new();
-    let mut methods = Vec::new();
+    let spec_for =
+        |m: Method| Spec { method: m, model: choice_model.model, neighbours: cfg.neighbours, drift: None };
+    // Every candidate: its score, the spec that maps with it, and its variogram.
+    let mut cv: Vec<CvScore> = Vec::new();
+    let mut specs: Vec<Spec> = Vec::new();
+    let mut variograms: Vec<(Empirical, ModelChoice)> = Vec::new();
     for m in cfg.candidates() {
+        if m == Method::ExternalDrift {
+            continue;
+        }
         match loso(sensors, &series, &spec_for(m)) {
             Ok(Some(score)) => {
                 cv.push(score);
-                methods.push(m);
+                specs.push(spec_for(m));
+                variograms.push((empirical.clone(), choice_model.clone()));
             }
             Ok(None) => {}
             Err(e) => warnings.push(format!("{name}: {} skipped in cross-validation: {e}", m.name())),
         }
     }
+    // Openings as external drift `exp(-d / L)`, L chosen by cross-validation
+    // (`super::drift`): every declared opening for `auto`, the named one for
+    // `external_drift`.
+    let drift_openings: Vec<&OpeningDrift> = match cfg.method {
+        MethodChoice::Auto => openings.iter().collect(),
+        MethodChoice::Fixed(Method::ExternalDrift) => {
+            openings.iter().filter(|o| cfg.drift.as_deref() == Some(o.name.as_str())).collect()
+        }
+        MethodChoice::Fixed(_) => Vec::new(),
+    };
+    for o in drift_openings {
+        let grid = super::drift::length_grid(&o.at_sensors, sensors.max_distance(), 12);
+        let search = super::drift::search_length(&grid, 8, |l| {
+            let v = super::drift::decay(&o.at_sensors, l);
+            let emp = pooled(sensors, &series, &bins, cfg.estimator, None, &Detrend::Drift(v.clone()))?;
+            let Ok(mc) = choose_model(&emp, &cfg.families, &opts, sensors, variance) else {
+                return Ok(None);
+            };
+            let spec = Spec {
+                method: Method::ExternalDrift,
+                model: mc.model,
+                neighbours: cfg.neighbours,
+                drift: Some(Drift {
+                    name: o.name.clone(),
+                    at_sensors: v,
+                    at_targets: super::drift::decay(&o.at_pots, l),
+                }),
+            };
+            Ok(match loso(sensors, &series, &spec) {
+                Ok(Some(mut score)) => {
+                    score.drift = Some((o.name.clone(), l));
+                    Some((score.rmse, (score, spec, emp, mc)))
+                }
+                _ => None,
+            })
+        });
+        match search {
+            Ok(Some(found)) => {
+                let (_, (score, spec, emp, mc)) = found.best;
+                cv.push(score);
+                specs.push(spec);
+                variograms.push((emp, mc));
+            }
+            Ok(None) => warnings.push(format!(
+                "{name}: the opening `{}` as external drift could not be cross-validated at any decay length",
+                o.name
+            )),
+            Err(e) => {
+                warnings.push(format!("{name}: the opening `{}` as external drift skipped: {e}", o.name))
+            }
+        }
+    }
     let choice = choose(&cv);
-    let method = match cfg.method {
-        MethodChoice::Fixed(m) => m,
-        MethodChoice::Auto => match &choice {
-            Some((i, _)) => methods[*i],
-            None => Method::Ordinary,
+    let pick = match cfg.method {
+        MethodChoice::Fixed(m) => (0..cv.len()).find(|&i| cv[i].method == m),
+        MethodChoice::Auto => choice.as_ref().map(|c| c.0),
+    };
+    let (spec, (empirical, choice_model)) = match pick {
+        Some(i) => (specs[i].clone(), variograms[i].clone()),
+        None => match cfg.method {
+            MethodChoice::Fixed(Method::ExternalDrift) => {
+                return Err(MapError::Missing(format!(
+                    "{name}: external drift on `{}` could not be fitted at any decay length",
+                    cfg.drift.clone().unwrap_or_default()
+                )));
+            }
+            MethodChoice::Fixed(m) => (spec_for(m), (empirical, choice_model)),
+            MethodChoice::Auto => (spec_for(Method::Ordinary), (empirical, choice_model)),
         },
     };
-    let spec = spec_for(method);
-    let mut mapped = DMatrix::<f64>::from_element(series.nrows(), pots.len(), f64::NAN);
-    let summary = map_series(sensors, &series, pots, &spec, 256, |j, pred, _se| {
+    let steps = series.nrows();
+    let mut mapped = DMatrix::<f64>::from_element(steps, pots.len(), f64::NAN);
+    let mut mapped_se =
+        spec.method.is_kriging().then(|| DMatrix::<f64>::from_element(steps, pots.len(), f64::NAN));
+    let summary = map_series(sensors, &series, pots, &spec, 256, |j, pred, se| {
         mapped.column_mut(j).copy_from_slice(pred);
+        if let (Some(m), Some(se)) = (mapped_se.as_mut(), se) {
+            m.column_mut(j).copy_from_slice(se);
+        }
     })?;
     for w in summary.warnings {
         if !warnings.contains(&w) {
@@ -234,6 +315,7 @@ fn map_variable(
         choice,
         warnings,
         mapped,
+        mapped_se,
     })
 }
 
@@ -248,20 +330,16 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
     let pots = pot_points(&pots_table, study.spec.compartment)?;
     let sensors = grid_sensor_points(study, &sensors_table, &climate.grid.sensors)?;
     let distances = opening_distances(&study.spec.openings, &pots);
-    let drift = match &cfg.drift {
-        Some(name) => {
-            let o = study.spec.openings.iter().find(|o| &o.name == name).ok_or_else(|| {
-                MapError::Missing(format!(
-                    "[mapping].drift names opening `{name}`, which [[openings]] does not declare"
-                ))
-            })?;
-            let at_s = super::geometry::distances_to_opening(&sensors, o.from, o.to);
-            let at_p = super::geometry::distances_to_opening(&pots, o.from, o.to);
-            Some((at_s, at_p))
-        }
-        None => None,
-    };
-
+    let openings: Vec<OpeningDrift> = study
+        .spec
+        .openings
+        .iter()
+        .map(|o| OpeningDrift {
+            name: o.name.clone(),
+            at_sensors: super::geometry::distances_to_opening(&sensors, o.from, o.to),
+            at_pots: super::geometry::distances_to_opening(&pots, o.from, o.to),
+        })
+        .collect();
     let indicators = &climate.config.indicators;
     let mut needed: Vec<&'static str> = Vec::new();
     for ind in indicators {
@@ -282,7 +360,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
             _ => &climate.grid.light,
         };
         let series = matrix_of(m);
-        variables.push(map_variable(name, series, &sensors, &pots, &cfg, drift.as_ref())?);
+        variables.push(map_variable(name, series, &sensors, &pots, &cfg, &openings)?);
     }
     let get = |name: &str| variables.iter().find(|v| v.name == name);
     let n_steps = climate.calendar.n_steps;
@@ -313,8 +391,15 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
             };
             let (t, h, l) = (col("temperature"), col("humidity"), col("light"));
             let series = LocationSeries { temperature: t, humidity: h, light: l };
-            let daily: Vec<Option<f64>> =
-                daily_values(ind, cal, &series, min_cov).into_iter().map(|d| d.value).collect();
+            // Threshold statistics of temperature as expectations over each
+            // step's kriged distribution (`crate::climate::exceedance`).
+            let t_se = get("temperature")
+                .and_then(|v| v.mapped_se.as_ref())
+                .map(|m| &m.as_slice()[j * n_steps..(j + 1) * n_steps]);
+            let daily: Vec<Option<f64>> = daily_values_expected(ind, cal, &series, t_se, min_cov)
+                .into_iter()
+                .map(|d| d.value)
+                .collect();
             let w = combine_window(&daily, windows[j].clone(), how);
             value[j] = w.value.unwrap_or(f64::NAN);
             valid[j] = w.valid_days;
@@ -330,13 +415,14 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
                 if ok.len() >= 2 {
                     let sub = sensors.subset(&ok);
                     let vals: Vec<f64> = ok.iter().map(|&k| sensor_vals[k]).collect();
+                    // The same method as the map, an external drift included
+                    // (its values at the sensors that have the summary).
                     let spec = Spec {
-                        method: if v.spec.method == Method::ExternalDrift {
-                            Method::Ordinary
-                        } else {
-                            v.spec.method
-                        },
-                        drift: None,
+                        drift: v.spec.drift.as_ref().map(|d| Drift {
+                            name: d.name.clone(),
+                            at_sensors: ok.iter().map(|&k| d.at_sensors[k]).collect(),
+                            at_targets: d.at_targets.clone(),
+                        }),
                         ..v.spec.clone()
                     };
                     match map_summary(&sub, &vals, &pots, &spec) {
