@@ -151,4 +151,56 @@ mod tests {
         let none = search_length(&grid, 3, |_| -> Result<Option<(f64, ())>> { Ok(None) }).unwrap();
         assert!(none.is_none());
     }
+
+    /// Kriging with the decaying door drift, and leave-one-sensor-out
+    /// cross-validation with it, against dense numpy solves
+    /// (`tests/reference/drift.py` -> `fixtures/drift.json`).
+    #[test]
+    fn external_drift_matches_numpy_fixture() {
+        use crate::spatial::correlation::Family;
+        use crate::spatial::geometry::distances_to_opening;
+        use crate::spatial::kriging::testdata::{nums, pts};
+        use crate::spatial::kriging::{Drift, Method, Spec, krige};
+        use crate::spatial::mapping::loso;
+        use crate::spatial::variogram::VariogramModel;
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/fixtures/drift.json");
+        let f: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+        let xy = |v: &serde_json::Value| -> Vec<[f64; 2]> {
+            v.as_array().unwrap().iter().map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()]).collect()
+        };
+        let (s, t) = (pts(&xy(&f["sensors"])), pts(&xy(&f["targets"])));
+        let z = nums(&f["values"]);
+        let door = xy(&f["door"]);
+        let (ds, dt) =
+            (distances_to_opening(&s, door[0], door[1]), distances_to_opening(&t, door[0], door[1]));
+        let m = &f["model"];
+        let model = VariogramModel {
+            family: Family::Exponential,
+            nugget: m["nugget"].as_f64().unwrap(),
+            partial_sill: m["partial_sill"].as_f64().unwrap(),
+            range: m["range"].as_f64().unwrap(),
+        };
+        let spec = |l: f64| Spec {
+            method: Method::ExternalDrift,
+            model,
+            neighbours: None,
+            drift: Some(Drift { name: "door".into(), at_sensors: decay(&ds, l), at_targets: decay(&dt, l) }),
+        };
+        let k = &f["ked"];
+        let p = krige(&s, &z, &t, &spec(k["length"].as_f64().unwrap())).unwrap();
+        assert_eq!(p.method, Method::ExternalDrift);
+        let se = p.se.unwrap();
+        for (i, (pv, vv)) in nums(&k["pred"]).iter().zip(nums(&k["var"])).enumerate() {
+            assert_relative_eq!(p.value[i], *pv, max_relative = 1e-10);
+            assert_relative_eq!(se[i] * se[i], vv, max_relative = 1e-9);
+        }
+        for case in f["loo"].as_array().unwrap() {
+            let l = case["length"].as_f64().unwrap();
+            let series = nalgebra::DMatrix::from_row_slice(1, z.len(), &z);
+            let sc = loso(&s, &series, &spec(l)).unwrap().unwrap();
+            assert_relative_eq!(sc.rmse, case["rmse"].as_f64().unwrap(), max_relative = 1e-9);
+            assert_relative_eq!(sc.mean_error, case["mean_error"].as_f64().unwrap(), max_relative = 1e-8);
+            assert_relative_eq!(sc.msse.unwrap(), case["msse"].as_f64().unwrap(), max_relative = 1e-9);
+        }
+    }
 }
