@@ -114,7 +114,7 @@ fn mapped_indicators_follow_the_true_field() {
         let (l, aic): (f64, f64) = (r["loglik"].parse().unwrap(), r["aic"].parse().unwrap());
         assert!((aic - (-2.0 * l + 8.0)).abs() < 1e-9, "{r:?}");
     }
-    for f in ["variograms.csv", "variogram_fits.csv", "mapping_cv.csv"] {
+    for f in ["variograms.csv", "variogram_fits.csv", "mapping_cv.csv", "mapping_check.csv"] {
         assert!(dir.join(f).exists(), "{f}");
     }
     let cv = table(&dir.join("mapping_cv.csv"));
@@ -126,6 +126,19 @@ fn mapped_indicators_follow_the_true_field() {
     let l: f64 = t["decay_length"].parse().unwrap();
     assert!((1.5..6.0).contains(&l), "decay length {l}");
     assert!(t["reason"].contains("decay length"), "{t:?}");
+    // The map checks itself: every logger left out in turn; the logger nearest
+    // the door (L01) is named, and its left-out value is lower than its own
+    // reading (the door's cold is strongest there).
+    let chk = table(&dir.join("mapping_check.csv"));
+    // Night cold hours at all ten loggers; the light integral at the seven
+    // with a light sensor (the radio nodes N08-N10 have none).
+    assert_eq!(chk.len(), 10 + 7);
+    let l01 = chk.iter().find(|r| r["indicator"] == "night_cold_hours" && r["sensor"] == "L01").unwrap();
+    assert_eq!(l01["nearest_to_opening"], "door", "{l01:?}");
+    let (obs, pred): (f64, f64) =
+        (l01["observed"].parse().unwrap(), l01["predicted_without"].parse().unwrap());
+    assert!(pred < obs && obs > 300.0, "{l01:?}");
+    eprintln!("self-check at L01: {pred:.1} h without it, {obs:.1} h measured, flagged {}", l01["flagged"]);
 }
 
 #[test]

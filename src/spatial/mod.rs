@@ -15,5 +15,6 @@ pub mod kriging;
 pub mod likelihood;
 pub mod mapping;
 pub mod outputs;
+pub mod selfcheck;
 pub mod stage;
 pub mod variogram;

@@ -121,6 +121,8 @@ pub struct MapRun {
     pub ml_fits: Vec<(String, crate::spatial::correlation::Family, Option<super::variogram::MlFit>)>,
     /// Whether the ML fits estimated a nugget share (`[mapping].nugget`).
     pub ml_nugget: bool,
+    /// Leave-one-sensor-out check of every indicator at every logger.
+    pub checks: Vec<super::selfcheck::SensorCheck>,
 }
 
 fn base_variables(v: Variable) -> &'static [&'static str] {
@@ -447,6 +449,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         };
         columns.push(MappedColumn { name: ind.name.clone(), value, se });
     }
+    let checks = self_check(climate, &sensors, &openings, &variables, min_cov);
     let mut ml_fits = Vec::new();
     for (i, ind) in indicators.iter().enumerate() {
         let vals: Vec<f64> = climate.study[i].iter().map(|w| w.value.unwrap_or(f64::NAN)).collect();
@@ -467,7 +470,129 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         variables,
         indicators: columns,
         distances,
+        checks,
     })
+}
+
+/// A variable mapped at one location: its name, series and per-step SE.
+type LocationMap = (&'static str, Vec<f64>, Option<Vec<f64>>);
+
+/// The spec of `spec` with sensor `k` left out: the drift at the other
+/// sensors, and at sensor `k` as the target.
+fn leave_out(spec: &Spec, others: &[usize], k: usize) -> Spec {
+    Spec {
+        drift: spec.drift.as_ref().map(|d| Drift {
+            name: d.name.clone(),
+            at_sensors: others.iter().map(|&j| d.at_sensors[j]).collect(),
+            at_targets: vec![d.at_sensors[k]],
+        }),
+        ..spec.clone()
+    }
+}
+
+/// Leave-one-sensor-out check of every indicator at every logger
+/// ([`super::selfcheck`]): the logger's series are mapped at its position from
+/// the other loggers with the variable's own spec, the indicator computed
+/// over the study period as at a pot (expectation form included), and its SE
+/// from the other loggers' study-period values kriged as for the pots. A
+/// check that cannot be computed (too few other loggers) is left out.
+fn self_check(
+    climate: &ClimateRun,
+    sensors: &Points,
+    openings: &[OpeningDrift],
+    variables: &[VariableMap],
+    min_cov: f64,
+) -> Vec<super::selfcheck::SensorCheck> {
+    let n = sensors.len();
+    let mut nearest: Vec<Vec<String>> = vec![Vec::new(); n];
+    for o in openings {
+        if let Some(k) = (0..n).min_by(|&a, &b| o.at_sensors[a].total_cmp(&o.at_sensors[b])) {
+            nearest[k].push(o.name.clone());
+        }
+    }
+    let cal = &climate.calendar;
+    let steps = cal.n_steps;
+    let mut checks = Vec::new();
+    for (i, ind) in climate.config.indicators.iter().enumerate() {
+        let base = base_variables(ind.variable);
+        let vars: Vec<&VariableMap> =
+            base.iter().filter_map(|b| variables.iter().find(|v| v.name == *b)).collect();
+        if vars.len() != base.len() {
+            continue;
+        }
+        for (k, near) in nearest.iter().enumerate() {
+            let Some(observed) = climate.study[i].get(k).and_then(|w| w.value) else { continue };
+            let others: Vec<usize> = (0..n).filter(|&j| j != k).collect();
+            let sub = sensors.subset(&others);
+            let target = sensors.subset(&[k]);
+            let mut mapped: Vec<LocationMap> = Vec::new();
+            for v in &vars {
+                let m = match v.name {
+                    "temperature" => &climate.grid.temperature,
+                    "humidity" => &climate.grid.humidity,
+                    _ => &climate.grid.light,
+                };
+                let series = matrix_of(m);
+                let sub_series =
+                    DMatrix::from_fn(series.nrows(), others.len(), |t, c| series[(t, others[c])]);
+                let mut out = (vec![f64::NAN; steps], None);
+                let done =
+                    map_series(&sub, &sub_series, &target, &leave_out(&v.spec, &others, k), 1, |_, p, se| {
+                        out = (p.to_vec(), se.map(|s| s.to_vec()));
+                    });
+                if done.is_err() {
+                    break;
+                }
+                mapped.push((v.name, out.0, out.1));
+            }
+            if mapped.len() != vars.len() {
+                continue;
+            }
+            let nan = vec![f64::NAN; steps];
+            let col =
+                |name: &str| mapped.iter().find(|m| m.0 == name).map_or(nan.as_slice(), |m| m.1.as_slice());
+            let t_se = mapped.iter().find(|m| m.0 == "temperature").and_then(|m| m.2.as_deref());
+            let series = LocationSeries {
+                temperature: col("temperature"),
+                humidity: col("humidity"),
+                light: col("light"),
+            };
+            let daily: Vec<Option<f64>> = daily_values_expected(ind, cal, &series, t_se, min_cov)
+                .into_iter()
+                .map(|d| d.value)
+                .collect();
+            let Some(predicted) = combine_window(&daily, 0..cal.days.len(), ind.statistic.combine()).value
+            else {
+                continue;
+            };
+            let v0 = vars[0];
+            let se = if v0.spec.method.is_kriging() {
+                let ok: Vec<usize> =
+                    others.iter().copied().filter(|&j| climate.study[i][j].value.is_some()).collect();
+                let vals: Vec<f64> =
+                    ok.iter().map(|&j| climate.study[i][j].value.unwrap_or(f64::NAN)).collect();
+                if ok.len() >= 2 {
+                    map_summary(&sensors.subset(&ok), &vals, &target, &leave_out(&v0.spec, &ok, k))
+                        .ok()
+                        .and_then(|p| p.se)
+                        .map(|s| s[0])
+                } else {
+                    None
+                }
+            } else {
+                None
+            };
+            checks.push(super::selfcheck::SensorCheck {
+                indicator: ind.name.clone(),
+                sensor: climate.grid.sensors[k].clone(),
+                observed,
+                predicted,
+                se,
+                nearest_to: near.clone(),
+            });
+        }
+    }
+    checks
 }
 
 fn cal_start(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
@@ -478,8 +603,8 @@ fn cal_end(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
     crate::climate::calendar::local_time(cal.timezone, cal.start_ms + cal.step_ms * cal.n_steps as i64)
 }
 
-/// Write `pot_covariates.csv`, `variograms.csv`, `variogram_fits.csv` and
-/// `mapping_cv.csv` into the study's output folder (atomically).
+/// Write `pot_covariates.csv`, `variograms.csv`, `variogram_fits.csv`,
+/// `mapping_cv.csv`, `variogram_ml_fits.csv` and `mapping_check.csv` into the study's output folder (atomically).
 pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapError> {
     let mut w = StageWriter::new(&study.output_dir(), "map")?;
     w.write("pot_covariates.csv", &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
@@ -504,6 +629,7 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
         run.variables.iter().map(|v| (v.name, v.cv.as_slice(), v.choice.clone())).collect();
     w.write("mapping_cv.csv", &mapping_cv_csv(&cv)?)?;
     w.write("variogram_ml_fits.csv", variogram_ml_fits_csv(run).as_bytes())?;
+    w.write("mapping_check.csv", &super::selfcheck::mapping_check_csv(&run.checks)?)?;
     Ok(w.commit()?)
 }
 
