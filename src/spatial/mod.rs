@@ -18,3 +18,4 @@ pub mod outputs;
 pub mod selfcheck;
 pub mod stage;
 pub mod variogram;
+pub mod window_se;
