@@ -18,4 +18,3 @@ pub mod outputs;
 pub mod selfcheck;
 pub mod stage;
 pub mod variogram;
-pub mod window_se;

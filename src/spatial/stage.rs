@@ -406,74 +406,46 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
             value[j] = w.value.unwrap_or(f64::NAN);
             valid[j] = w.valid_days;
         }
-        // Threshold indicators of temperature: SE from the per-step kriging
-        // errors (`super::window_se`); others: from the indicator's
-        // study-period sensor values.
+        // Standard errors from the indicator's study-period sensor values.
         let base = base_variables(ind.variable)[0];
-        let temp_se = get("temperature").and_then(|v| v.mapped_se.as_ref().map(|se| (v, se)));
-        let se = match (get(base), temp_se) {
-            (_, Some((v, tse))) if super::window_se::applies(ind) => {
-                let q = super::window_se::normal_quantiles(super::window_se::QUANTILES);
-                fn col(m: &DMatrix<f64>, j: usize, n: usize) -> &[f64] {
-                    &m.as_slice()[j * n..(j + 1) * n]
-                }
-                Some(
-                    (0..pots.len())
-                        .map(|j| {
-                            super::window_se::shifted_se(
-                                ind,
-                                cal,
-                                col(&v.mapped, j, n_steps),
-                                col(tse, j, n_steps),
-                                windows[j].clone(),
-                                min_cov,
-                                &q,
-                            )
-                            .unwrap_or(f64::NAN)
-                        })
-                        .collect(),
-                )
-            }
-            (v, _) => match v {
-                Some(v) if v.spec.method.is_kriging() => {
-                    let sensor_vals: Vec<f64> =
-                        climate.study[i].iter().map(|w| w.value.unwrap_or(f64::NAN)).collect();
-                    let sensor_days: Vec<usize> = climate.study[i].iter().map(|w| w.valid_days).collect();
-                    let ok: Vec<usize> =
-                        (0..sensor_vals.len()).filter(|&k| sensor_vals[k].is_finite()).collect();
-                    if ok.len() >= 2 {
-                        let sub = sensors.subset(&ok);
-                        let vals: Vec<f64> = ok.iter().map(|&k| sensor_vals[k]).collect();
-                        // The same method as the map, an external drift included
-                        // (its values at the sensors that have the summary).
-                        let spec = Spec {
-                            drift: v.spec.drift.as_ref().map(|d| Drift {
-                                name: d.name.clone(),
-                                at_sensors: ok.iter().map(|&k| d.at_sensors[k]).collect(),
-                                at_targets: d.at_targets.clone(),
-                            }),
-                            ..v.spec.clone()
-                        };
-                        match map_summary(&sub, &vals, &pots, &spec) {
-                            Ok(p) => p.se.map(|se| {
-                                let mean_days =
-                                    ok.iter().map(|&k| sensor_days[k] as f64).sum::<f64>() / ok.len() as f64;
-                                se.iter()
-                                    .enumerate()
-                                    .map(|(j, s)| match how {
-                                        Combine::Sum if mean_days > 0.0 => s * valid[j] as f64 / mean_days,
-                                        _ => *s,
-                                    })
-                                    .collect()
-                            }),
-                            Err(_) => None,
-                        }
-                    } else {
-                        None
+        let se = match get(base) {
+            Some(v) if v.spec.method.is_kriging() => {
+                let sensor_vals: Vec<f64> =
+                    climate.study[i].iter().map(|w| w.value.unwrap_or(f64::NAN)).collect();
+                let sensor_days: Vec<usize> = climate.study[i].iter().map(|w| w.valid_days).collect();
+                let ok: Vec<usize> = (0..sensor_vals.len()).filter(|&k| sensor_vals[k].is_finite()).collect();
+                if ok.len() >= 2 {
+                    let sub = sensors.subset(&ok);
+                    let vals: Vec<f64> = ok.iter().map(|&k| sensor_vals[k]).collect();
+                    // The same method as the map, an external drift included
+                    // (its values at the sensors that have the summary).
+                    let spec = Spec {
+                        drift: v.spec.drift.as_ref().map(|d| Drift {
+                            name: d.name.clone(),
+                            at_sensors: ok.iter().map(|&k| d.at_sensors[k]).collect(),
+                            at_targets: d.at_targets.clone(),
+                        }),
+                        ..v.spec.clone()
+                    };
+                    match map_summary(&sub, &vals, &pots, &spec) {
+                        Ok(p) => p.se.map(|se| {
+                            let mean_days =
+                                ok.iter().map(|&k| sensor_days[k] as f64).sum::<f64>() / ok.len() as f64;
+                            se.iter()
+                                .enumerate()
+                                .map(|(j, s)| match how {
+                                    Combine::Sum if mean_days > 0.0 => s * valid[j] as f64 / mean_days,
+                                    _ => *s,
+                                })
+                                .collect()
+                        }),
+                        Err(_) => None,
                     }
+                } else {
+                    None
                 }
-                _ => None,
-            },
+            }
+            _ => None,
         };
         columns.push(MappedColumn { name: ind.name.clone(), value, se });
     }
