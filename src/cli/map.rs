@@ -19,7 +19,7 @@ series onto every pot with the chosen method. Each pot's indicators are then com
 mapped series over its own growth window ([pots].start/end).
 
 Reads <output>/readings.parquet (run `potclim ingest STUDY` first). Writes pot_covariates.csv, \
-variograms.csv, variogram_fits.csv, variogram_ml_fits.csv and mapping_cv.csv into the output folder.";
+variograms.csv, variogram_fits.csv, variogram_ml_fits.csv, mapping_cv.csv and mapping_check.csv into the output folder.";
 
 /// Arguments of `potclim map`.
 #[derive(Debug, Args)]
@@ -61,6 +61,20 @@ pub fn summary(run: &MapRun) -> String {
         for w in &v.warnings {
             s.push_str(&format!("             warning: {w}\n"));
         }
+    }
+    for c in run.checks.iter().filter(|c| !c.nearest_to.is_empty()) {
+        s.push_str(&format!(
+            "check        {} at logger {} (nearest to {}): {:.4} without it, {:.4} measured{}\n",
+            c.indicator,
+            c.sensor,
+            c.nearest_to.join(", "),
+            c.predicted,
+            c.observed,
+            c.se.map(|se| format!(", SE {se:.4}")).unwrap_or_default()
+        ));
+    }
+    for w in run.checks.iter().filter_map(|c| c.warning()) {
+        s.push_str(&format!("             warning: {w}\n"));
     }
     for c in &run.indicators {
         let vals: Vec<f64> = c.value.iter().copied().filter(|v| v.is_finite()).collect();

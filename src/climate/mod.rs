@@ -14,6 +14,8 @@
 //!   ([`indicator::daily_values`]) and their combination over a window
 //!   ([`indicator::combine_window`]); plain slices, no polars, so they are
 //!   cheap to call on every pot's mapped series.
+//! * [`exceedance`]: threshold indicators as expectations over a kriged
+//!   value's Gaussian predictive distribution.
 //! * [`psychro`]: FAO-56 psychrometrics.
 //! * [`stage`]: the `climate` stage end to end and its output files.
 //!
@@ -24,6 +26,7 @@
 pub mod calendar;
 pub mod config;
 pub mod error;
+pub mod exceedance;
 pub mod indicator;
 pub mod psychro;
 pub mod regular;
@@ -32,6 +35,8 @@ pub mod stage;
 pub use calendar::Calendar;
 pub use config::{ClimateConfig, Indicator};
 pub use error::{ClimateError, Result};
-pub use indicator::{Combine, DayValue, LocationSeries, WindowValue, combine_window, daily_values};
+pub use indicator::{
+    Combine, DayValue, LocationSeries, WindowValue, combine_window, daily_values, daily_values_expected,
+};
 pub use regular::{SensorGrid, StepMatrix};
 pub use stage::{ClimateRun, compute, run};

@@ -177,6 +177,20 @@ pub struct CvScore {
     pub msse: Option<f64>,
     /// Fallback warnings met on the way.
     pub warnings: Vec<String>,
+    /// For kriging with an opening as external drift: the opening and the
+    /// decay length `L` (metres) of the drift `exp(-d / L)`.
+    pub drift: Option<(String, f64)>,
+}
+
+impl CvScore {
+    /// The method's name, with the opening and decay length of an external
+    /// drift: `external_drift (door, decay length 2.91 m)`.
+    pub fn label(&self) -> String {
+        match &self.drift {
+            Some((o, l)) => format!("{} ({o}, decay length {l:.2} m)", self.method.name()),
+            None => self.method.name().to_string(),
+        }
+    }
 }
 
 /// Leave-one-sensor-out cross-validation of `spec` on a series (or on one
@@ -261,6 +275,7 @@ pub fn loso(sensors: &Points, series: &DMatrix<f64>, spec: &Spec) -> Result<Opti
         mean_error: sum / cnt as f64,
         msse: (spec.method.is_kriging() && zc > 0).then(|| z2 / zc as f64),
         warnings,
+        drift: None,
     }))
 }
 
@@ -281,16 +296,16 @@ pub fn choose(scores: &[CvScore]) -> Option<(usize, String)> {
     let s = &scores[pick];
     let mut why = format!(
         "{} has the smallest leave-one-sensor-out RMSE among the kriging methods ({:.4}",
-        s.method.name(),
+        s.label(),
         s.rmse
     );
     if pick != best {
         why = format!(
             "{} is within 1 % of the smallest leave-one-sensor-out RMSE ({:.4} vs {:.4} for {}) with a mean squared standardised error closer to 1",
-            s.method.name(),
+            s.label(),
             s.rmse,
             scores[best].rmse,
-            scores[best].method.name()
+            scores[best].label()
         );
         why.push_str(&format!(" ({:.3})", s.msse.unwrap_or(f64::NAN)));
     } else {

@@ -13,6 +13,7 @@
 
 pub mod config;
 pub mod correlation;
+pub mod drift;
 pub mod covariance;
 pub mod error;
 pub mod factor;
@@ -22,5 +23,6 @@ pub mod likelihood;
 pub mod mapping;
 pub mod optimise;
 pub mod outputs;
+pub mod selfcheck;
 pub mod stage;
 pub mod variogram;

@@ -200,9 +200,22 @@ pub fn variogram_fits_csv(rows: &[FitsRow]) -> Result<Vec<u8>> {
 /// `mapping_cv.csv`: one row per variable and method: `variable`, `method`,
 /// `n` (predictions compared), `rmse`, `mean_error`, `msse` (empty for IDW
 /// and nearest sensor), `chosen`, `reason` (why `auto` chose it, on the
-/// chosen row).
+/// chosen row), `drift` (the opening whose decaying distance is the external
+/// drift, else empty) and `decay_length` (its decay length `L` in metres,
+/// estimated by cross-validation, else empty).
 pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
-    let mut w = CsvTable::new(["variable", "method", "n", "rmse", "mean_error", "msse", "chosen", "reason"]);
+    let mut w = CsvTable::new([
+        "variable",
+        "method",
+        "n",
+        "rmse",
+        "mean_error",
+        "msse",
+        "chosen",
+        "reason",
+        "drift",
+        "decay_length",
+    ]);
     for (var, scores, choice) in rows {
         for (i, s) in scores.iter().enumerate() {
             let chosen = choice.as_ref().is_some_and(|(k, _)| *k == i);
@@ -215,6 +228,8 @@ pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
                 opt_number(s.msse),
                 chosen.to_string(),
                 if chosen { choice.as_ref().map(|c| c.1.clone()).unwrap_or_default() } else { String::new() },
+                s.drift.as_ref().map(|d| d.0.clone()).unwrap_or_default(),
+                opt_number(s.drift.as_ref().map(|d| d.1)),
             ]);
         }
     }
@@ -280,6 +295,7 @@ mod tests {
                 mean_error: 0.1,
                 msse: Some(1.1),
                 warnings: vec![],
+                drift: None,
             },
             CvScore {
                 method: Method::Nearest,
@@ -288,10 +304,21 @@ mod tests {
                 mean_error: 0.2,
                 msse: None,
                 warnings: vec![],
+                drift: None,
+            },
+            CvScore {
+                method: Method::ExternalDrift,
+                n: 5,
+                rmse: 0.5,
+                mean_error: 0.0,
+                msse: Some(0.9),
+                warnings: vec![],
+                drift: Some(("door".into(), 2.5)),
             },
         ];
         let rows = parse(&mapping_cv_csv(&[("z", scores.as_slice(), Some((0, "because".into())))]).unwrap());
-        assert_eq!(rows[1], ["z", "ordinary", "5", "1", "0.1", "1.1", "true", "because"]);
+        assert_eq!(rows[1], ["z", "ordinary", "5", "1", "0.1", "1.1", "true", "because", "", ""]);
         assert_eq!(rows[2][5], "");
+        assert_eq!(rows[3][8..], ["door", "2.5"]);
     }
 }

@@ -29,14 +29,16 @@ use super::config::{MappingConfig, MethodChoice};
 use super::error::SpatialError;
 use super::geometry::{Points, opening_distances, pot_points, sensor_points};
 use super::kriging::{Drift, Method, Spec};
-use super::mapping::{CvScore, choose, choose_model, loso, map_series, map_summary};
+use super::mapping::{CvScore, ModelChoice, choose, choose_model, loso, map_series, map_summary};
 use super::outputs::{
     MAPPING_CV_FILE, MappedColumn, POT_COVARIATES_FILE, VARIOGRAM_FITS_FILE, VARIOGRAM_ML_FITS_FILE,
     VARIOGRAMS_FILE, mapping_cv_csv, pot_covariates_csv, variogram_fits_csv, variograms_csv,
 };
 use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
-use crate::climate::{ClimateError, ClimateRun, Combine, LocationSeries, combine_window, daily_values};
+use crate::climate::{
+    ClimateError, ClimateRun, Combine, LocationSeries, combine_window, daily_values_expected,
+};
 use crate::io::layout::{Pots, Sensors, load_pots, load_sensors};
 use crate::io::output::{CsvTable, StageWriter, number};
 use crate::io::study::Study;
@@ -104,6 +106,9 @@ pub struct VariableMap {
     pub warnings: Vec<String>,
     /// Mapped series, steps x pots (NaN = no sensor reported).
     pub mapped: DMatrix<f64>,
+    /// Kriging standard error of every mapped step, steps x pots (`None` for
+    /// IDW and nearest sensor); the nugget is included.
+    pub mapped_se: Option<DMatrix<f64>>,
 }
 
 /// Everything `potclim map` computed.
@@ -126,6 +131,8 @@ pub struct MapRun {
     pub ml_fits: Vec<(String, crate::spatial::correlation::Family, Option<super::variogram::MlFit>)>,
     /// Whether the ML fits estimated a nugget share (`[mapping].nugget`).
     pub ml_nugget: bool,
+    /// Leave-one-sensor-out check of every indicator at every logger.
+    pub checks: Vec<super::selfcheck::SensorCheck>,
 }
 
 fn base_variables(v: Variable) -> &'static [&'static str] {
@@ -159,13 +166,30 @@ fn grid_sensor_points(study: &Study, sensors: &Sensors, grid_ids: &[String]) -> 
     Ok(all.subset(&idx))
 }
 
+/// An opening as a candidate external drift: its name and the distances of
+/// the sensors and the pots to it, metres.
+struct OpeningDrift {
+    name: String,
+    at_sensors: Vec<f64>,
+    at_pots: Vec<f64>,
+}
+
+/// The range bounds of the variogram fits: from 2 % of the largest lag to
+/// the largest sensor-pair distance (a longer range than the layout's extent
+/// cannot be told apart from a trend, so it is not identifiable).
+fn range_bounds(sensors: &Points, bins: &super::variogram::Bins) -> Option<(f64, f64)> {
+    let hi = sensors.max_distance();
+    let lo = 0.02 * bins.max_lag();
+    (hi.is_finite() && hi > lo && lo > 0.0).then_some((lo, hi))
+}
+
 fn map_variable(
     name: &'static str,
     series: DMatrix<f64>,
     sensors: &Points,
     pots: &Points,
     cfg: &MappingConfig,
-    drift: Option<&(Vec<f64>, Vec<f64>)>,
+    openings: &[OpeningDrift],
 ) -> Result<VariableMap, MapError> {
     let bins = cfg.bins_for(sensors)?;
     let empirical = pooled(sensors, &series, &bins, cfg.estimator, None, &Detrend::Mean)?;
@@ -184,49 +208,108 @@ fn map_variable(
         }
     }
     let variance = if cnt > 0 { s2 / cnt as f64 } else { f64::NAN };
-    let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: None };
+    let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, &bins) };
     let choice_model = choose_model(&empirical, &cfg.families, &opts, sensors, variance)?;
     let mut warnings: Vec<String> = choice_model.warning.iter().cloned().collect();
-    let drift_spec = |m: Method| -> Option<Drift> {
-        match (m, drift) {
-            (Method::ExternalDrift, Some((s, t))) => Some(Drift {
-                name: cfg.drift.clone().unwrap_or_default(),
-                at_sensors: s.clone(),
-                at_targets: t.clone(),
-            }),
-            _ => None,
-        }
-    };
-    let spec_for = |m: Method| Spec {
-        method: m,
-        model: choice_model.model,
-        neighbours: cfg.neighbours,
-        drift: drift_spec(m),
-    };
-    let mut cv = Vec::new();
-    let mut methods = Vec::new();
+    let spec_for =
+        |m: Method| Spec { method: m, model: choice_model.model, neighbours: cfg.neighbours, drift: None };
+    // Every candidate: its score, the spec that maps with it, and its variogram.
+    let mut cv: Vec<CvScore> = Vec::new();
+    let mut specs: Vec<Spec> = Vec::new();
+    let mut variograms: Vec<(Empirical, ModelChoice)> = Vec::new();
     for m in cfg.candidates() {
+        if m == Method::ExternalDrift {
+            continue;
+        }
         match loso(sensors, &series, &spec_for(m)) {
             Ok(Some(score)) => {
                 cv.push(score);
-                methods.push(m);
+                specs.push(spec_for(m));
+                variograms.push((empirical.clone(), choice_model.clone()));
             }
             Ok(None) => {}
             Err(e) => warnings.push(format!("{name}: {} skipped in cross-validation: {e}", m.name())),
         }
     }
+    // Openings as external drift `exp(-d / L)`, L chosen by cross-validation
+    // (`super::drift`): every declared opening for `auto`, the named one for
+    // `external_drift`.
+    let drift_openings: Vec<&OpeningDrift> = match cfg.method {
+        MethodChoice::Auto => openings.iter().collect(),
+        MethodChoice::Fixed(Method::ExternalDrift) => {
+            openings.iter().filter(|o| cfg.drift.as_deref() == Some(o.name.as_str())).collect()
+        }
+        MethodChoice::Fixed(_) => Vec::new(),
+    };
+    for o in drift_openings {
+        let grid = super::drift::length_grid(&o.at_sensors, sensors.max_distance(), 12);
+        let search = super::drift::search_length(&grid, 8, |l| {
+            let v = super::drift::decay(&o.at_sensors, l);
+            let emp = pooled(sensors, &series, &bins, cfg.estimator, None, &Detrend::Drift(v.clone()))?;
+            let Ok(mc) = choose_model(&emp, &cfg.families, &opts, sensors, variance) else {
+                return Ok(None);
+            };
+            let spec = Spec {
+                method: Method::ExternalDrift,
+                model: mc.model,
+                neighbours: cfg.neighbours,
+                drift: Some(Drift {
+                    name: o.name.clone(),
+                    at_sensors: v,
+                    at_targets: super::drift::decay(&o.at_pots, l),
+                }),
+            };
+            Ok(match loso(sensors, &series, &spec) {
+                Ok(Some(mut score)) => {
+                    score.drift = Some((o.name.clone(), l));
+                    Some((score.rmse, (score, spec, emp, mc)))
+                }
+                _ => None,
+            })
+        });
+        match search {
+            Ok(Some(found)) => {
+                let (_, (score, spec, emp, mc)) = found.best;
+                cv.push(score);
+                specs.push(spec);
+                variograms.push((emp, mc));
+            }
+            Ok(None) => warnings.push(format!(
+                "{name}: the opening `{}` as external drift could not be cross-validated at any decay length",
+                o.name
+            )),
+            Err(e) => {
+                warnings.push(format!("{name}: the opening `{}` as external drift skipped: {e}", o.name))
+            }
+        }
+    }
     let choice = choose(&cv);
-    let method = match cfg.method {
-        MethodChoice::Fixed(m) => m,
-        MethodChoice::Auto => match &choice {
-            Some((i, _)) => methods[*i],
-            None => Method::Ordinary,
+    let pick = match cfg.method {
+        MethodChoice::Fixed(m) => (0..cv.len()).find(|&i| cv[i].method == m),
+        MethodChoice::Auto => choice.as_ref().map(|c| c.0),
+    };
+    let (spec, (empirical, choice_model)) = match pick {
+        Some(i) => (specs[i].clone(), variograms[i].clone()),
+        None => match cfg.method {
+            MethodChoice::Fixed(Method::ExternalDrift) => {
+                return Err(MapError::Missing(format!(
+                    "{name}: external drift on `{}` could not be fitted at any decay length",
+                    cfg.drift.clone().unwrap_or_default()
+                )));
+            }
+            MethodChoice::Fixed(m) => (spec_for(m), (empirical, choice_model)),
+            MethodChoice::Auto => (spec_for(Method::Ordinary), (empirical, choice_model)),
         },
     };
-    let spec = spec_for(method);
-    let mut mapped = DMatrix::<f64>::from_element(series.nrows(), pots.len(), f64::NAN);
-    let summary = map_series(sensors, &series, pots, &spec, 256, |j, pred, _se| {
+    let steps = series.nrows();
+    let mut mapped = DMatrix::<f64>::from_element(steps, pots.len(), f64::NAN);
+    let mut mapped_se =
+        spec.method.is_kriging().then(|| DMatrix::<f64>::from_element(steps, pots.len(), f64::NAN));
+    let summary = map_series(sensors, &series, pots, &spec, 256, |j, pred, se| {
         mapped.column_mut(j).copy_from_slice(pred);
+        if let (Some(m), Some(se)) = (mapped_se.as_mut(), se) {
+            m.column_mut(j).copy_from_slice(se);
+        }
     })?;
     for w in summary.warnings {
         if !warnings.contains(&w) {
@@ -251,6 +334,7 @@ fn map_variable(
         choice,
         warnings,
         mapped,
+        mapped_se,
     })
 }
 
@@ -265,20 +349,16 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
     let pots = pot_points(&pots_table, study.spec.compartment)?;
     let sensors = grid_sensor_points(study, &sensors_table, &climate.grid.sensors)?;
     let distances = opening_distances(&study.spec.openings, &pots);
-    let drift = match &cfg.drift {
-        Some(name) => {
-            let o = study.spec.openings.iter().find(|o| &o.name == name).ok_or_else(|| {
-                MapError::Missing(format!(
-                    "[mapping].drift names opening `{name}`, which [[openings]] does not declare"
-                ))
-            })?;
-            let at_s = super::geometry::distances_to_opening(&sensors, o.from, o.to);
-            let at_p = super::geometry::distances_to_opening(&pots, o.from, o.to);
-            Some((at_s, at_p))
-        }
-        None => None,
-    };
-
+    let openings: Vec<OpeningDrift> = study
+        .spec
+        .openings
+        .iter()
+        .map(|o| OpeningDrift {
+            name: o.name.clone(),
+            at_sensors: super::geometry::distances_to_opening(&sensors, o.from, o.to),
+            at_pots: super::geometry::distances_to_opening(&pots, o.from, o.to),
+        })
+        .collect();
     let indicators = &climate.config.indicators;
     let mut needed: Vec<&'static str> = Vec::new();
     for ind in indicators {
@@ -299,7 +379,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
             _ => &climate.grid.light,
         };
         let series = matrix_of(m);
-        variables.push(map_variable(name, series, &sensors, &pots, &cfg, drift.as_ref())?);
+        variables.push(map_variable(name, series, &sensors, &pots, &cfg, &openings)?);
     }
     let get = |name: &str| variables.iter().find(|v| v.name == name);
     let n_steps = climate.calendar.n_steps;
@@ -330,8 +410,15 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
             };
             let (t, h, l) = (col("temperature"), col("humidity"), col("light"));
             let series = LocationSeries { temperature: t, humidity: h, light: l };
-            let daily: Vec<Option<f64>> =
-                daily_values(ind, cal, &series, min_cov).into_iter().map(|d| d.value).collect();
+            // Threshold statistics of temperature as expectations over each
+            // step's kriged distribution (`crate::climate::exceedance`).
+            let t_se = get("temperature")
+                .and_then(|v| v.mapped_se.as_ref())
+                .map(|m| &m.as_slice()[j * n_steps..(j + 1) * n_steps]);
+            let daily: Vec<Option<f64>> = daily_values_expected(ind, cal, &series, t_se, min_cov)
+                .into_iter()
+                .map(|d| d.value)
+                .collect();
             let w = combine_window(&daily, windows[j].clone(), how);
             value[j] = w.value.unwrap_or(f64::NAN);
             valid[j] = w.valid_days;
@@ -347,13 +434,14 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
                 if ok.len() >= 2 {
                     let sub = sensors.subset(&ok);
                     let vals: Vec<f64> = ok.iter().map(|&k| sensor_vals[k]).collect();
+                    // The same method as the map, an external drift included
+                    // (its values at the sensors that have the summary).
                     let spec = Spec {
-                        method: if v.spec.method == Method::ExternalDrift {
-                            Method::Ordinary
-                        } else {
-                            v.spec.method
-                        },
-                        drift: None,
+                        drift: v.spec.drift.as_ref().map(|d| Drift {
+                            name: d.name.clone(),
+                            at_sensors: ok.iter().map(|&k| d.at_sensors[k]).collect(),
+                            at_targets: d.at_targets.clone(),
+                        }),
                         ..v.spec.clone()
                     };
                     match map_summary(&sub, &vals, &pots, &spec) {
@@ -378,6 +466,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         };
         columns.push(MappedColumn { name: ind.name.clone(), value, se });
     }
+    let checks = self_check(climate, &sensors, &openings, &variables, min_cov);
     let mut ml_fits = Vec::new();
     for (i, ind) in indicators.iter().enumerate() {
         let vals: Vec<f64> = climate.study[i].iter().map(|w| w.value.unwrap_or(f64::NAN)).collect();
@@ -398,7 +487,129 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         variables,
         indicators: columns,
         distances,
+        checks,
     })
+}
+
+/// A variable mapped at one location: its name, series and per-step SE.
+type LocationMap = (&'static str, Vec<f64>, Option<Vec<f64>>);
+
+/// The spec of `spec` with sensor `k` left out: the drift at the other
+/// sensors, and at sensor `k` as the target.
+fn leave_out(spec: &Spec, others: &[usize], k: usize) -> Spec {
+    Spec {
+        drift: spec.drift.as_ref().map(|d| Drift {
+            name: d.name.clone(),
+            at_sensors: others.iter().map(|&j| d.at_sensors[j]).collect(),
+            at_targets: vec![d.at_sensors[k]],
+        }),
+        ..spec.clone()
+    }
+}
+
+/// Leave-one-sensor-out check of every indicator at every logger
+/// ([`super::selfcheck`]): the logger's series are mapped at its position from
+/// the other loggers with the variable's own spec, the indicator computed
+/// over the study period as at a pot (expectation form included), and its SE
+/// from the other loggers' study-period values kriged as for the pots. A
+/// check that cannot be computed (too few other loggers) is left out.
+fn self_check(
+    climate: &ClimateRun,
+    sensors: &Points,
+    openings: &[OpeningDrift],
+    variables: &[VariableMap],
+    min_cov: f64,
+) -> Vec<super::selfcheck::SensorCheck> {
+    let n = sensors.len();
+    let mut nearest: Vec<Vec<String>> = vec![Vec::new(); n];
+    for o in openings {
+        if let Some(k) = (0..n).min_by(|&a, &b| o.at_sensors[a].total_cmp(&o.at_sensors[b])) {
+            nearest[k].push(o.name.clone());
+        }
+    }
+    let cal = &climate.calendar;
+    let steps = cal.n_steps;
+    let mut checks = Vec::new();
+    for (i, ind) in climate.config.indicators.iter().enumerate() {
+        let base = base_variables(ind.variable);
+        let vars: Vec<&VariableMap> =
+            base.iter().filter_map(|b| variables.iter().find(|v| v.name == *b)).collect();
+        if vars.len() != base.len() {
+            continue;
+        }
+        for (k, near) in nearest.iter().enumerate() {
+            let Some(observed) = climate.study[i].get(k).and_then(|w| w.value) else { continue };
+            let others: Vec<usize> = (0..n).filter(|&j| j != k).collect();
+            let sub = sensors.subset(&others);
+            let target = sensors.subset(&[k]);
+            let mut mapped: Vec<LocationMap> = Vec::new();
+            for v in &vars {
+                let m = match v.name {
+                    "temperature" => &climate.grid.temperature,
+                    "humidity" => &climate.grid.humidity,
+                    _ => &climate.grid.light,
+                };
+                let series = matrix_of(m);
+                let sub_series =
+                    DMatrix::from_fn(series.nrows(), others.len(), |t, c| series[(t, others[c])]);
+                let mut out = (vec![f64::NAN; steps], None);
+                let done =
+                    map_series(&sub, &sub_series, &target, &leave_out(&v.spec, &others, k), 1, |_, p, se| {
+                        out = (p.to_vec(), se.map(|s| s.to_vec()));
+                    });
+                if done.is_err() {
+                    break;
+                }
+                mapped.push((v.name, out.0, out.1));
+            }
+            if mapped.len() != vars.len() {
+                continue;
+            }
+            let nan = vec![f64::NAN; steps];
+            let col =
+                |name: &str| mapped.iter().find(|m| m.0 == name).map_or(nan.as_slice(), |m| m.1.as_slice());
+            let t_se = mapped.iter().find(|m| m.0 == "temperature").and_then(|m| m.2.as_deref());
+            let series = LocationSeries {
+                temperature: col("temperature"),
+                humidity: col("humidity"),
+                light: col("light"),
+            };
+            let daily: Vec<Option<f64>> = daily_values_expected(ind, cal, &series, t_se, min_cov)
+                .into_iter()
+                .map(|d| d.value)
+                .collect();
+            let Some(predicted) = combine_window(&daily, 0..cal.days.len(), ind.statistic.combine()).value
+            else {
+                continue;
+            };
+            let v0 = vars[0];
+            let se = if v0.spec.method.is_kriging() {
+                let ok: Vec<usize> =
+                    others.iter().copied().filter(|&j| climate.study[i][j].value.is_some()).collect();
+                let vals: Vec<f64> =
+                    ok.iter().map(|&j| climate.study[i][j].value.unwrap_or(f64::NAN)).collect();
+                if ok.len() >= 2 {
+                    map_summary(&sensors.subset(&ok), &vals, &target, &leave_out(&v0.spec, &ok, k))
+                        .ok()
+                        .and_then(|p| p.se)
+                        .map(|s| s[0])
+                } else {
+                    None
+                }
+            } else {
+                None
+            };
+            checks.push(super::selfcheck::SensorCheck {
+                indicator: ind.name.clone(),
+                sensor: climate.grid.sensors[k].clone(),
+                observed,
+                predicted,
+                se,
+                nearest_to: near.clone(),
+            });
+        }
+    }
+    checks
 }
 
 fn cal_start(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
@@ -409,8 +620,8 @@ fn cal_end(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
     crate::climate::calendar::local_time(cal.timezone, cal.start_ms + cal.step_ms * cal.n_steps as i64)
 }
 
-/// Write `pot_covariates.csv`, `variograms.csv`, `variogram_fits.csv` and
-/// `mapping_cv.csv` into the study's output folder (atomically).
+/// Write `pot_covariates.csv`, `variograms.csv`, `variogram_fits.csv`,
+/// `mapping_cv.csv`, `variogram_ml_fits.csv` and `mapping_check.csv` into the study's output folder (atomically).
 pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapError> {
     let mut w = StageWriter::new(&study.output_dir(), "map")?;
     w.write(POT_COVARIATES_FILE, &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
@@ -435,6 +646,7 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
         run.variables.iter().map(|v| (v.name, v.cv.as_slice(), v.choice.clone())).collect();
     w.write(MAPPING_CV_FILE, &mapping_cv_csv(&cv)?)?;
     w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(run))?;
+    w.write("mapping_check.csv", &super::selfcheck::mapping_check_csv(&run.checks)?)?;
     Ok(w.commit()?)
 }
 
