@@ -13,8 +13,8 @@
 
 pub mod config;
 pub mod correlation;
-pub mod drift;
 pub mod covariance;
+pub mod drift;
 pub mod error;
 pub mod factor;
 pub mod geometry;
