@@ -24,14 +24,14 @@ fn write(dir: &Path, name: &str, text: &[u8]) -> PathBuf {
 
 /// A study with two pots, the sensors `ids` and one `[[logs]]` block.
 fn study(dir: &Path, ids: &[&str], zone: &str, block: &str) -> PathBuf {
-    write(dir, "pots.csv", b"pot,x,y,genotype\np1,0,0,A\np2,1,0,B\n");
+    write(dir, "pots.csv", b"pot,x,y,genotype,height\np1,0,0,A,10.5\np2,1,0,B,11.0\n");
     let mut sensors = String::from("id,x,y\n");
     for (i, id) in ids.iter().enumerate() {
         sensors.push_str(&format!("{id},{i},0\n"));
     }
     write(dir, "sensors.csv", sensors.as_bytes());
     let text = format!(
-        "[study]\ntitle = \"t\"\ntimezone = \"{zone}\"\noutput = \"out\"\n\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\n\n[sensors]\nfile = \"sensors.csv\"\nid = \"id\"\nx = \"x\"\ny = \"y\"\n\n{block}"
+        "[study]\ntitle = \"t\"\ntimezone = \"{zone}\"\noutput = \"out\"\n\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\n\n[sensors]\nfile = \"sensors.csv\"\nid = \"id\"\nx = \"x\"\ny = \"y\"\n\n[[indicator]]\nname = \"mean_t\"\nvariable = \"temperature\"\nstatistic = \"mean\"\n\n[model]\ntrait = \"height\"\n\n{block}"
     );
     write(dir, "study.toml", text.as_bytes())
 }

@@ -286,3 +286,47 @@ fn lrt_rules_follow_docs() {
     let m = |name: &str| r.models.iter().find(|m| m.name == name).unwrap().loglik;
     assert_abs_diff_eq!(fixed.statistic, 2.0 * (m("base+cold") - m("base")).max(0.0), epsilon = 1e-12);
 }
+
+/// Records what a counted task reports.
+#[derive(Default)]
+struct Recorder(std::sync::Mutex<Vec<(String, usize, usize)>>);
+
+impl crate::model::progress::FitProgress for Recorder {
+    fn begin(&self, what: &str, total: usize) {
+        self.0.lock().unwrap().push((what.to_string(), total, 0));
+    }
+    fn step(&self) {
+        if let Some(t) = self.0.lock().unwrap().last_mut() {
+            t.2 += 1;
+        }
+    }
+}
+
+/// The grid reports one step per ML fit, out of a total equal to the grid's
+/// size (`n_fits` counts the two REML refits besides), and the imputations one
+/// step per draw; the result is the same as without progress.
+#[test]
+fn progress_counts_every_grid_fit_and_imputation() {
+    let d = simulate(Truth::DriverOnly, 21);
+    let rec = Recorder::default();
+    let opts = VerdictOptions { draws: 5, ..VerdictOptions::default() };
+    let r = analyse_with(&d, &spec(&["cold"]), &opts, &rec).unwrap();
+    let tasks = rec.0.lock().unwrap().clone();
+    assert_eq!(tasks.len(), 1, "{tasks:?}");
+    assert_eq!(tasks[0].0, "comparison grid (ML fits)");
+    assert_eq!((tasks[0].1, tasks[0].2), (r.models.len(), r.models.len()));
+    assert_eq!(r.n_fits, r.models.len() + 2);
+    assert_eq!(r.verdict, analyse(&d, &spec(&["cold"]), &opts).unwrap().verdict);
+    let sx: Vec<f64> = (0..12).map(|k| 0.25 + (k % 4) as f64 * 1.4).collect();
+    let sy: Vec<f64> = (0..12).map(|k| 0.25 + (k / 4) as f64 * 1.5).collect();
+    let sv = SensorValues {
+        name: "cold".into(),
+        points: Points { ids: (0..12).map(|k| format!("s{k}")).collect(), x: sx.clone(), y: sy.clone() },
+        values: (0..12).map(|k| 2.0 + 3.0 * (-sx[k] / 0.8).exp() + 0.5 * (1.2 * sy[k]).cos()).collect(),
+    };
+    let rec = Recorder::default();
+    let shape = (vec!["cold".to_string()], Errors::Independent);
+    mapping_uncertainty_with(&d, &spec(&["cold"]), &shape, &sv, &opts, &rec).unwrap();
+    let tasks = rec.0.lock().unwrap().clone();
+    assert_eq!(tasks, [("imputations of `cold` (REML refits)".to_string(), 5, 5)]);
+}
