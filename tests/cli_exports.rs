@@ -367,3 +367,22 @@ fn a_file_that_fits_no_layout_shows_the_lines_read() {
         "{err}"
     );
 }
+
+/// Two files of one block with different headers: the message names both.
+#[test]
+fn two_files_of_one_block_with_different_headers_are_both_named() {
+    let d = tempfile::tempdir().unwrap();
+    let st = study(d.path(), &["a", "b"], "UTC", USB_BLOCK);
+    let good = "No.,Time,Temperature(°C),Humidity(%RH)\n1,2026-04-01 00:00:00,20.5,50\n";
+    write(d.path(), "logs/a.csv", good.as_bytes());
+    write(d.path(), "logs/b.csv", good.replace("Temperature(°C)", "Temperature(°F)").as_bytes());
+    let (code, _, err) = run(&["ingest", st.to_str().unwrap()]);
+    assert_eq!(code, 1);
+    assert!(
+        err.contains("logs/b.csv")
+            && err.contains("logs/a.csv")
+            && err.contains("no column `Temperature(°C)`")
+            && err.contains("different headers"),
+        "{err}"
+    );
+}

@@ -202,9 +202,25 @@ fn par_map_with<J: Send, R: Send, S>(
 /// one byte buffer); results in file order.
 fn read_all(jobs: &[(&LogFormat, PathBuf)]) -> Result<Vec<FileRead>> {
     let idx: Vec<usize> = (0..jobs.len()).collect();
-    par_map_with(idx, Vec::new, |buf, i| read_file_with(jobs[i].0, &jobs[i].1, i as u32, buf))
-        .into_iter()
-        .collect()
+    let results = par_map_with(idx, Vec::new, |buf, i| read_file_with(jobs[i].0, &jobs[i].1, i as u32, buf));
+    // A column missing from one file of a block that another file of the
+    // same block has: the two files disagree, and both are named.
+    if let Some(i) = results.iter().position(|r| matches!(r, Err(IoError::MissingColumn { .. })))
+        && let Some(j) =
+            (0..jobs.len()).find(|&j| j != i && jobs[j].0.block == jobs[i].0.block && results[j].is_ok())
+        && let Err(IoError::MissingColumn { line, column, available, .. }) = &results[i]
+    {
+        return Err(IoError::Table {
+            path: jobs[i].1.clone(),
+            message: format!(
+                "line {line}: no column `{column}`, which {} (matched by the same block logs[{}]) has: the two files have different headers (this one has: {}); give them separate [[logs]] blocks",
+                jobs[j].1.display(),
+                jobs[i].0.block,
+                available.join(", ")
+            ),
+        });
+    }
+    results.into_iter().collect()
 }
 
 /// A run of consecutive rows of one sensor in a buffer of rows.
