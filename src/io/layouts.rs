@@ -320,6 +320,112 @@ mod tests {
         assert_eq!(serial_in("Temp, °C"), None);
     }
 
+    /// Seeded mutations of an export of each layout (truncated lines, stray
+    /// quotes, byte-order marks, mixed line ends, emptied cells, non-UTF-8
+    /// bytes): never a panic; either a located error or every data row
+    /// accounted for, as a reading or as a flagged line.
+    #[test]
+    fn mutated_layout_exports_never_panic_and_account_for_every_row() {
+        use rand::{RngExt, SeedableRng};
+        let bases: [(Layout, String); 3] = [
+            (Layout::FourLineHeader, {
+                let mut t = String::from(
+                    "\"F\",\"st1\",\"x\"\n\"TIMESTAMP\",\"RECORD\",\"AirT_Avg\",\"RH\"\n\"TS\",\"RN\",\"Deg C\",\"%\"\n\"\",\"\",\"Avg\",\"Smp\"\n",
+                );
+                for i in 0..30 {
+                    t.push_str(&format!(
+                        "\"2026-05-01 {:02}:{:02}:00\",{i},{}.5,{}\n",
+                        i / 6,
+                        i % 6 * 10,
+                        15 + i % 4,
+                        60 + i
+                    ));
+                }
+                t
+            }),
+            (Layout::TitledExport, {
+                let mut t = String::from("\"Title\"\n\"#\",\"Date Time, GMT+02:00\",\"Temp, °C (S/N: 9)\"\n");
+                for i in 0..30 {
+                    t.push_str(&format!(
+                        "{},06/14/26 0{}:{:02}:00 AM,{}.5\n",
+                        i + 1,
+                        1 + i / 4,
+                        i % 4 * 15,
+                        20 + i % 5
+                    ));
+                }
+                t
+            }),
+            (Layout::NameInFirstCell, {
+                let mut t = String::from("s1,Time,Celsius(°C),Humidity(%rh),Serial Number\n");
+                for i in 0..30 {
+                    t.push_str(&format!(
+                        "{},2026-07-02 {:02}:{:02}:00,{}.0,{}.5{}\n",
+                        i + 1,
+                        i / 4,
+                        i % 4 * 15,
+                        24 + i % 3,
+                        40 + i % 7,
+                        if i == 0 { ",SN1" } else { "" }
+                    ));
+                }
+                t
+            }),
+        ];
+        let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(17);
+        let (mut ok, mut err) = (0, 0);
+        for case in 0..3000 {
+            let (layout, base) = &bases[case % 3];
+            let m = layout.implied();
+            let fmt = LogFormat {
+                block: 1,
+                delimiter: m.delimiter,
+                decimal_comma: false,
+                time_column: m.time.to_string(),
+                clock_column: None,
+                time_format: super::super::clock::TimeFormat::compile(m.time_format).unwrap(),
+                zone: super::super::study::LogZone::Iana(chrono_tz::UTC),
+                zone_given: false,
+                sensor: SensorSource::Layout,
+                skip_lines: m.skip_lines,
+                after_header: m.after_header,
+                layout: Some(*layout),
+                channels: [None, None, None],
+                files: vec![],
+            };
+            let mut b = base.clone().into_bytes();
+            for _ in 0..rng.random_range(1..6) {
+                let at = rng.random_range(0..=b.len());
+                match rng.random_range(0..7) {
+                    0 => b.truncate(at),
+                    1 => b.insert(at, b'"'),
+                    2 => b.splice(0..0, *b"\xEF\xBB\xBF").for_each(drop),
+                    3 => b.insert(at, b'\r'),
+                    4 => b.insert(at, 0xB0),
+                    5 => {
+                        let end = (at + rng.random_range(0..8)).min(b.len());
+                        b.drain(at..end);
+                    }
+                    _ => b.splice(at..at, *b"\r\n,,\n").for_each(drop),
+                }
+            }
+            match super::super::logs::read_bytes(&fmt, Path::new("x.csv"), 0, &b) {
+                Ok(r) => {
+                    ok += 1;
+                    // Every data row is a reading, or dropped with exactly
+                    // one flag that has no instant (time, row or sensor).
+                    let dropped = r.flags.iter().filter(|f| f.time.is_none()).count();
+                    assert_eq!(r.rows_read, r.rows.len() + dropped, "case {case}: {:?}", r.flags);
+                }
+                Err(e) => {
+                    err += 1;
+                    assert!(e.to_string().contains("x.csv"), "case {case}: {e}");
+                }
+            }
+        }
+        assert!(ok > 1000 && err > 10, "{ok} read, {err} errors");
+    }
+
     #[test]
     fn names_round_trip() {
         for l in Layout::ALL {
