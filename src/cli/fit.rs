@@ -200,18 +200,16 @@ mod potclim_model_print {
             out!(" {:>8}", format!("{d} m"));
         }
         outln!();
-        for f in r
-            .fits
-            .iter()
-            .filter(|f| f.covariance.is_some() && f.method == crate::spatial::likelihood::Method::Reml)
-        {
+        for f in r.fits.iter().filter(|f| {
+            f.covariance.is_some() && f.method == crate::spatial::likelihood::LikelihoodKind::Reml
+        }) {
             out!("{:<24}", model_name(f));
             for d in REFERENCE_DISTANCES {
                 out!(" {:>8}", fmt(f.correlation_at(d)));
             }
             outln!();
         }
-        for f in r.fits.iter().filter(|f| f.method == crate::spatial::likelihood::Method::Reml) {
+        for f in r.fits.iter().filter(|f| f.method == crate::spatial::likelihood::LikelihoodKind::Reml) {
             outln!();
             outln!("{} (REML): coefficients and marginal Wald tests", model_name(f));
             for j in 0..f.beta.len() {

@@ -88,10 +88,6 @@ impl LikelihoodKind {
     }
 }
 
-/// The former name of [`LikelihoodKind`], kept only for `src/cli/fit.rs`
-/// until it names the new one.
-pub type Method = LikelihoodKind;
-
 /// Distances between `n` observations: computed from planar coordinates on
 /// the fly, or given as a full symmetric matrix.
 #[derive(Clone, Debug)]
