@@ -37,9 +37,8 @@ pub use self::result::{
     ResidualBin, ResidualCheck, VerdictResult,
 };
 pub use self::uncertainty::{
-    MIN_SENSORS_FOR_VARIOGRAM, MappingDraws, SENSOR_FILE, SensorValues, impute_and_pool,
-    impute_and_pool_with, load_sensor_values, mapping_uncertainty, mapping_uncertainty_with,
-    sensor_variogram,
+    MIN_SENSORS_FOR_VARIOGRAM, MappingDraws, SENSOR_FILE, SensorValues, impute_and_pool, load_sensor_values,
+    mapping_uncertainty, mapping_uncertainty_with, sensor_variogram,
 };
 pub use self::write::{adjusted_means_csv, comparison_csv, drivers_csv, write_outputs};
 pub use crate::spatial::geometry::DISTANCE_PREFIX;

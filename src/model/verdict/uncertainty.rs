@@ -166,29 +166,15 @@ pub fn mapping_uncertainty_with(
     progress: &dyn crate::model::progress::FitProgress,
 ) -> Result<MappingDraws> {
     let (model, how) = sensor_variogram(sv);
-    impute_and_pool_with(data, spec, shape, sv, (model, how), Conditioning::LoggersAndTrait, opts, progress)
+    impute_and_pool(data, spec, shape, sv, (model, how), Conditioning::LoggersAndTrait, opts, progress)
 }
 
 /// [`mapping_uncertainty`] with a given variogram `(model, how in words)` and a
 /// choice of what the draws condition on ([`Conditioning::LoggersOnly`] only
-/// for measuring its attenuation).
-pub fn impute_and_pool(
-    data: &ModelData,
-    spec: &ModelSpec,
-    shape: &(Vec<String>, Errors),
-    sv: &SensorValues,
-    (model, how): (VariogramModel, &str),
-    conditioning: Conditioning,
-    opts: &VerdictOptions,
-) -> Result<MappingDraws> {
-    let silent = crate::model::progress::Silent;
-    impute_and_pool_with(data, spec, shape, sv, (model, how), conditioning, opts, &silent)
-}
-
-/// [`impute_and_pool`], reporting each REML refit on an imputation as a step
-/// of `progress`.
+/// for measuring its attenuation), reporting each REML refit on an imputation
+/// as a step of `progress`.
 #[allow(clippy::too_many_arguments)]
-pub fn impute_and_pool_with(
+pub fn impute_and_pool(
     data: &ModelData,
     spec: &ModelSpec,
     shape: &(Vec<String>, Errors),
