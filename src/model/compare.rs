@@ -68,7 +68,7 @@ pub struct Criteria {
 
 /// [`Criteria`] of `(loglik, k, n)`.
 pub fn information_criteria(loglik: f64, k: usize, n: usize) -> Criteria {
-    let aic = -2.0 * loglik + 2.0 * k as f64;
+    let aic = crate::spatial::likelihood::aic(loglik, k);
     let bic = -2.0 * loglik + k as f64 * (n as f64).ln();
     let aicc = if n > k + 1 { Some(aic + 2.0 * (k * (k + 1)) as f64 / (n - k - 1) as f64) } else { None };
     Criteria { aic, bic, aicc }

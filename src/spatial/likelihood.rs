@@ -88,6 +88,15 @@ impl LikelihoodKind {
     }
 }
 
+/// Akaike's information criterion of a maximised log-likelihood with `k`
+/// estimated parameters: `AIC = -2 l + 2 k` (Akaike 1974, *IEEE Transactions
+/// on Automatic Control* 19: 716-723). The one definition in the crate: the
+/// model comparison ([`crate::model::compare::information_criteria`]) and the
+/// variogram ML fits of the mapping stage both call it.
+pub fn aic(loglik: f64, k: usize) -> f64 {
+    -2.0 * loglik + 2.0 * k as f64
+}
+
 /// Distances between `n` observations: computed from planar coordinates on
 /// the fly, or given as a full symmetric matrix.
 #[derive(Clone, Debug)]

@@ -676,7 +676,7 @@ pub fn variogram_ml_fits_csv(run: &MapRun) -> Vec<u8> {
             Some(f) => {
                 let m = &f.model;
                 // Parameters: mean, sigma², range, and the nugget share when it was estimated.
-                let k = if run.ml_nugget { 4.0 } else { 3.0 };
+                let k = if run.ml_nugget { 4 } else { 3 };
                 r.extend([
                     number(m.nugget),
                     number(m.partial_sill),
@@ -684,7 +684,7 @@ pub fn variogram_ml_fits_csv(run: &MapRun) -> Vec<u8> {
                     number(m.range),
                     number(m.practical_range()),
                     number(f.loglik),
-                    number(-2.0 * f.loglik + 2.0 * k),
+                    number(crate::spatial::likelihood::aic(f.loglik, k)),
                     f.evaluations.to_string(),
                     f.at_bounds.join("+"),
                 ]);
