@@ -379,6 +379,22 @@ impl Ctx<'_> {
 }
 
 impl ClimateConfig {
+    /// A run needs at least one indicator: the one message for this, given
+    /// by `check` (through the plan) and by the climate stage alike.
+    pub fn require_indicator(&self, study: &Study) -> std::result::Result<(), crate::io::error::IoError> {
+        if self.indicators.is_empty() {
+            return Err(study.invalid(
+                "indicator",
+                "no [[indicator]] is declared, so a run has nothing to compute from the loggers",
+                Some(
+                    "add an [[indicator]] block with name, variable and statistic (see docs/climate.md)"
+                        .into(),
+                ),
+            ));
+        }
+        Ok(())
+    }
+
     /// Parse and validate `[climate]` and `[[indicator]]` of a study. An
     /// absent `[climate]` takes every default; no indicator is an error only
     /// when the stage runs (see [`super::stage::run`]).

@@ -115,18 +115,7 @@ pub fn compute(
     readings_path: &Path,
 ) -> Result<ClimateRun> {
     let tz = study.timezone;
-    if config.indicators.is_empty() {
-        return Err(study
-            .invalid(
-                "indicator",
-                "no indicator is declared",
-                Some(
-                    "add an [[indicator]] block with name, variable and statistic (see docs/climate.md)"
-                        .into(),
-                ),
-            )
-            .into());
-    }
+    config.require_indicator(study)?;
     let range = time_range_ms(readings, readings_path)?;
     let start_ms = match config.spec.start {
         Some(s) => local_to_utc_ms(tz, s).ok_or_else(|| {

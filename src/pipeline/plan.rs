@@ -59,18 +59,7 @@ impl Plan {
             )
         })?;
         let climate = ClimateConfig::from_study(study)?;
-        if climate.indicators.is_empty() {
-            return Err(study
-                .invalid(
-                    "indicator",
-                    "no [[indicator]] is declared, so a run has nothing to compute from the loggers",
-                    Some(
-                        "add an [[indicator]] block with name, variable and statistic (see docs/climate.md)"
-                            .into(),
-                    ),
-                )
-                .into());
-        }
+        climate.require_indicator(study)?;
         if study.spec.logs.is_empty() {
             return Err(study
                 .invalid(
