@@ -373,17 +373,17 @@ impl Tracker {
         }
         let es_t: Vec<f64> = self.e_tc[s * m..(s + 1) * m].to_vec();
         let es_c: Vec<f64> = self.e_cc[s * q..(s + 1) * q].to_vec();
-        for t in 0..m {
-            self.var_t[t] = (self.var_t[t] - es_t[t] * es_t[t] / v).max(0.0);
+        for (var, e) in self.var_t.iter_mut().zip(&es_t) {
+            *var = (*var - e * e / v).max(0.0);
         }
-        for c in 0..q {
-            let f = es_c[c] / v;
+        for (c, &ec) in es_c.iter().enumerate() {
+            let f = ec / v;
             if f != 0.0 {
-                for t in 0..m {
-                    self.e_tc[c * m + t] -= es_t[t] * f;
+                for (x, e) in self.e_tc[c * m..(c + 1) * m].iter_mut().zip(&es_t) {
+                    *x -= e * f;
                 }
-                for d in 0..q {
-                    self.e_cc[c * q + d] -= es_c[d] * f;
+                for (x, e) in self.e_cc[c * q..(c + 1) * q].iter_mut().zip(&es_c) {
+                    *x -= e * f;
                 }
             }
         }

@@ -73,8 +73,8 @@ fn updates_equal_fresh_kriging_solves() {
         let mut tr = Tracker::new(&setting, &loggers, &pots, &cands).unwrap();
         let dpair = |l: &Points| (method == Method::ExternalDrift).then(|| (drift_of(l), drift_of(&pots)));
         let v0 = fresh_var(method, &loggers, &pots, dpair(&loggers));
-        for t in 0..pots.len() {
-            assert_relative_eq!(tr.variances()[t], v0[t], max_relative = 1e-9, epsilon = 1e-12);
+        for (a, b) in tr.variances().iter().zip(&v0) {
+            assert_relative_eq!(*a, *b, max_relative = 1e-9, epsilon = 1e-12);
         }
         let chosen = [3usize, 17, 8];
         for (k, &c) in chosen.iter().enumerate() {
@@ -82,8 +82,8 @@ fn updates_equal_fresh_kriging_solves() {
             tr.add(c);
             let all = join(&loggers, &cands, &chosen[..=k]);
             let v = fresh_var(method, &all, &pots, dpair(&all));
-            for t in 0..pots.len() {
-                assert_relative_eq!(tr.variances()[t], v[t], max_relative = 1e-9, epsilon = 1e-12);
+            for (a, b) in tr.variances().iter().zip(&v) {
+                assert_relative_eq!(*a, *b, max_relative = 1e-9, epsilon = 1e-12);
             }
             assert_relative_eq!(predicted, Objective::MeanSe.of_variances(&v), max_relative = 1e-9);
         }
