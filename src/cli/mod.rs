@@ -40,6 +40,7 @@ mod ingest;
 mod init;
 mod map;
 mod place;
+mod power;
 mod report;
 mod run;
 mod verdict;
@@ -85,6 +86,9 @@ pub enum Command {
     /// Propose where new loggers should stand, and which logger could be moved at least cost.
     #[command(long_about = place::HELP)]
     Place(place::PlaceArgs),
+    /// Would a layout find a driver? Power and false-alarm rate by simulating whole studies.
+    #[command(long_about = power::HELP)]
+    Power(power::PowerArgs),
 }
 
 /// Run the command line and return the process exit code.
@@ -133,5 +137,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Report(args) => report::run(args),
         Command::Climate(args) => climate::run(args),
         Command::Place(args) => place::run(args),
+        Command::Power(args) => power::run(args),
     }
 }

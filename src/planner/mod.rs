@@ -16,6 +16,7 @@
 //! (the simulation study).
 
 pub mod placement;
+pub mod power;
 
 use crate::io::IoError;
 use crate::io::study::toml_error;
@@ -75,6 +76,7 @@ impl From<crate::pipeline::PipelineError> for PlanError {
 #[serde(deny_unknown_fields)]
 struct PlanDoc {
     placement: Option<placement::PlacementSection>,
+    power: Option<power::PowerSection>,
 }
 
 /// A parsed plan file.
@@ -86,6 +88,8 @@ pub struct PlanFile {
     pub dir: PathBuf,
     /// `[placement]`, when present.
     pub placement: Option<placement::PlacementSection>,
+    /// `[power]`, when present.
+    pub power: Option<power::PowerSection>,
 }
 
 impl PlanFile {
@@ -100,7 +104,7 @@ impl PlanFile {
             .map(|p| if p.as_os_str().is_empty() { Path::new(".") } else { p })
             .unwrap_or(Path::new("."))
             .to_path_buf();
-        Ok(PlanFile { path: path.to_path_buf(), dir, placement: doc.placement })
+        Ok(PlanFile { path: path.to_path_buf(), dir, placement: doc.placement, power: doc.power })
     }
 
     /// Resolve a path written in the plan file.

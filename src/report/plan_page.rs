@@ -264,3 +264,254 @@ pub fn render_placement(p: &PlacementPage) -> String {
     foot(&mut out, "<code>plan.csv</code> and <code>plan_pots.csv</code>");
     out
 }
+
+/// One point of a power curve.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct PowerPoint {
+    /// Loggers in the layout.
+    pub loggers: usize,
+    /// True effect of the driver (trait units per driver unit).
+    pub effect: f64,
+    /// Studies simulated.
+    pub studies: usize,
+    /// Studies that could not be analysed (left out of the shares).
+    pub failed: usize,
+    /// Studies whose chosen model holds the driver.
+    pub found: usize,
+    /// `found / (studies - failed)`: power, or the false-alarm rate at effect 0.
+    pub share_found: Option<f64>,
+    /// Its 95 % Monte Carlo interval (Wilson).
+    pub share_interval: Option<(f64, f64)>,
+    /// Studies with a CI of the driver's effect.
+    pub with_ci: usize,
+    /// Of those, CIs that cover the true effect.
+    pub covered: usize,
+    /// `covered / with_ci`.
+    pub coverage: Option<f64>,
+    /// Its 95 % Monte Carlo interval (Wilson).
+    pub coverage_interval: Option<(f64, f64)>,
+    /// Verdicts: covariate, both, correlation, none.
+    pub verdicts: [usize; 4],
+    /// Mean wall-clock seconds per study.
+    pub mean_seconds: f64,
+}
+
+/// What `power.html` shows.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct PowerPage {
+    /// Scenario title.
+    pub title: String,
+    /// Scenario file.
+    pub scenario: String,
+    /// The driver.
+    pub driver: String,
+    /// The trait.
+    pub trait_name: String,
+    /// Its unit.
+    pub trait_unit: Option<String>,
+    /// Pots per study.
+    pub pots: usize,
+    /// The draught: opening, night drop (°C), decay (m).
+    pub draught: Option<(String, f64, f64)>,
+    /// Studies per point.
+    pub studies_per_point: usize,
+    /// Seed of the first study.
+    pub first_seed: u64,
+    /// Worker threads.
+    pub threads: usize,
+    /// Every point, by logger count then effect.
+    pub points: Vec<PowerPoint>,
+    /// Wall-clock seconds of the whole study.
+    pub seconds: f64,
+}
+
+fn share(v: Option<f64>, i: Option<(f64, f64)>) -> String {
+    match (v, i) {
+        (Some(v), Some((lo, hi))) => format!("{} ({}–{})", sig(v, 2), sig(lo, 2), sig(hi, 2)),
+        _ => "–".into(),
+    }
+}
+
+/// One line of a power chart: its label and `(x, share, low, high)` points.
+type CurveGroup = (String, Vec<(f64, f64, f64, f64)>);
+
+/// A line chart of the share found against `x`, one line per group, with
+/// the Monte Carlo intervals as bars.
+fn share_chart(id: &str, title: &str, x_label: &str, groups: &[CurveGroup]) -> String {
+    use plotters::prelude::*;
+    let xs = groups.iter().flat_map(|g| g.1.iter().map(|p| p.0));
+    let (x0, x1) = super::colour::finite_extent(xs).unwrap_or((0.0, 1.0));
+    let pad = if x1 > x0 { 0.05 * (x1 - x0) } else { 0.5 };
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (620, 380)).into_drawing_area();
+        let drawn = (|| -> Result<(), Box<dyn std::error::Error>> {
+            root.fill(&WHITE)?;
+            let mut chart = ChartBuilder::on(&root)
+                .caption(title, ("sans-serif", 16))
+                .margin(12)
+                .x_label_area_size(40)
+                .y_label_area_size(52)
+                .build_cartesian_2d((x0 - pad)..(x1 + pad), 0f64..1.02f64)?;
+            chart
+                .configure_mesh()
+                .x_desc(x_label)
+                .y_desc("share of studies that find the driver")
+                .label_style(("sans-serif", 12))
+                .draw()?;
+            for (k, (name, pts)) in groups.iter().enumerate() {
+                let c = super::colour::CATEGORICAL[k % super::colour::CATEGORICAL.len()];
+                let colour = RGBColor(c.0, c.1, c.2);
+                chart
+                    .draw_series(LineSeries::new(pts.iter().map(|p| (p.0, p.1)), colour.stroke_width(2)))?
+                    .label(name.clone())
+                    .legend(move |(x, y)| PathElement::new([(x, y), (x + 16, y)], colour.stroke_width(2)));
+                chart.draw_series(pts.iter().map(|p| Circle::new((p.0, p.1), 3, colour.filled())))?;
+                for p in pts {
+                    chart.draw_series(LineSeries::new([(p.0, p.2), (p.0, p.3)], colour.stroke_width(1)))?;
+                }
+            }
+            chart
+                .configure_series_labels()
+                .background_style(WHITE.mix(0.9))
+                .border_style(BLACK.mix(0.3))
+                .label_font(("sans-serif", 12))
+                .draw()?;
+            root.present()?;
+            Ok(())
+        })();
+        if let Err(e) = drawn {
+            return format!(
+                "<p class=\"missing\">figure `{}` could not be drawn: {}</p>\n",
+                escape(id),
+                escape(&e.to_string())
+            );
+        }
+    }
+    format!(
+        "<figure id=\"fig-{}\">\n{}\n<figcaption>{}: dots are shares, bars their 95 % Monte Carlo intervals (Wilson).</figcaption>\n</figure>\n",
+        escape(id),
+        svg.trim(),
+        escape(title)
+    )
+}
+
+/// Render `power.html`.
+pub fn render_power(p: &PowerPage) -> String {
+    let mut out = String::with_capacity(64 * 1024);
+    let title = if p.title.trim().is_empty() { "Untitled scenario" } else { p.title.as_str() };
+    head(&mut out, title, "power");
+    let _ = writeln!(
+        out,
+        "<p class=\"lead\">Would this layout find the effect of <code>{}</code> on <code>{}</code>?</p>\n</header>\n<main>",
+        escape(&p.driver),
+        escape(&p.trait_name)
+    );
+    let unit =
+        p.trait_unit.as_deref().map(|u| format!(" {} per unit of the driver", escape(u))).unwrap_or_default();
+    out.push_str("<section id=\"answer\">\n<h2>1. Answer</h2>\n<div class=\"answer\"><div>\n");
+    for q in &p.points {
+        let what = if q.effect == 0.0 { "false-alarm rate (no effect)" } else { "power" };
+        let _ = writeln!(
+            out,
+            "<p>{} loggers, true effect {}{unit}: {what} {} of {} studies = {}; the CI covered the true effect in {} of {}.</p>",
+            q.loggers,
+            sig(q.effect, 3),
+            q.found,
+            q.studies - q.failed,
+            share(q.share_found, q.share_interval),
+            q.covered,
+            q.with_ci
+        );
+    }
+    out.push_str("<p>The verdict's rule is designed for a false-alarm rate of about 1.4 % per candidate driver (a richer model wins on noise when its likelihood-ratio statistic exceeds the tie margin + 2; docs/verdict.md).</p>\n</div></div>\n</section>\n");
+
+    out.push_str("<section id=\"curves\">\n<h2>2. Curves</h2>\n<div class=\"figs\">\n");
+    let mut counts: Vec<usize> = p.points.iter().map(|q| q.loggers).collect();
+    counts.dedup();
+    let mut effects: Vec<f64> = Vec::new();
+    for q in &p.points {
+        if !effects.contains(&q.effect) {
+            effects.push(q.effect);
+        }
+    }
+    let point = |q: &PowerPoint, x: f64| {
+        q.share_found
+            .map(|s| (x, s, q.share_interval.map_or(s, |i| i.0), q.share_interval.map_or(s, |i| i.1)))
+    };
+    if effects.len() > 1 {
+        let groups: Vec<CurveGroup> = counts
+            .iter()
+            .map(|&k| {
+                (
+                    format!("{k} loggers"),
+                    p.points.iter().filter(|q| q.loggers == k).filter_map(|q| point(q, q.effect)).collect(),
+                )
+            })
+            .collect();
+        out.push_str(&share_chart(
+            "power-effect",
+            "Power against the true effect",
+            "true effect of the driver on the trait",
+            &groups,
+        ));
+    }
+    if counts.len() > 1 {
+        let groups: Vec<CurveGroup> = effects
+            .iter()
+            .map(|&e| {
+                (
+                    format!("effect {}", sig(e, 3)),
+                    p.points
+                        .iter()
+                        .filter(|q| q.effect == e)
+                        .filter_map(|q| point(q, q.loggers as f64))
+                        .collect(),
+                )
+            })
+            .collect();
+        out.push_str(&share_chart(
+            "power-loggers",
+            "Power against the number of loggers",
+            "loggers (the first k of the scenario)",
+            &groups,
+        ));
+    }
+    out.push_str("</div>\n</section>\n");
+
+    out.push_str("<section id=\"table\">\n<h2>3. Every point</h2>\n<div class=\"scroll\"><table>\n<tr><th class=\"n\">loggers</th><th class=\"n\">effect</th><th class=\"n\">studies</th><th class=\"n\">failed</th><th class=\"n\">found (95 % MC interval)</th><th class=\"n\">CI coverage (95 % MC interval)</th><th class=\"n\">covariate</th><th class=\"n\">both</th><th class=\"n\">correlation</th><th class=\"n\">none</th><th class=\"n\">s per study</th></tr>\n");
+    for q in &p.points {
+        let _ = writeln!(
+            out,
+            "<tr><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td></tr>",
+            q.loggers,
+            sig(q.effect, 3),
+            q.studies,
+            q.failed,
+            share(q.share_found, q.share_interval),
+            share(q.coverage, q.coverage_interval),
+            q.verdicts[0],
+            q.verdicts[1],
+            q.verdicts[2],
+            q.verdicts[3],
+            sig(q.mean_seconds, 3)
+        );
+    }
+    out.push_str("</table></div>\n</section>\n");
+    let draught = p.draught.as_ref().map_or("none".into(), |(o, d, l)| {
+        format!("from `{}`: {} °C at night, decay {} m", escape(o), sig(*d, 3), sig(*l, 3))
+    });
+    let _ = writeln!(
+        out,
+        "<section id=\"how\">\n<h2>4. How this was worked out</h2>\n<table>\n<tr><th>scenario</th><td>{}</td></tr>\n<tr><th>pots per study</th><td>{}</td></tr>\n<tr><th>draught</th><td>{draught}</td></tr>\n<tr><th>studies per point</th><td>{} (seeds {} to {}, the same at every point)</td></tr>\n<tr><th>threads</th><td>{}</td></tr>\n<tr><th>time</th><td>{} s</td></tr>\n</table>\n<p>Each study is simulated from the scenario with the driver's true effect set as shown, then analysed as <code>potclim run</code> does (ingest, climate, map, comparison grid and verdict). A study finds the driver when the verdict's chosen model holds it. The CI is the driver's 95 % CI with the mapped driver's uncertainty where the verdict computed it, else the plug-in CI.</p>\n</section>",
+        escape(&p.scenario),
+        p.pots,
+        p.studies_per_point,
+        p.first_seed,
+        p.first_seed.wrapping_add(p.studies_per_point as u64).wrapping_sub(1),
+        p.threads,
+        sig(p.seconds, 3)
+    );
+    foot(&mut out, "<code>power.csv</code> and <code>power_studies.csv</code>");
+    out
+}
