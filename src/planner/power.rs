@@ -70,6 +70,10 @@ pub struct PowerSection {
     /// Conditional simulations of the mapped driver per study (default: the
     /// verdict's own default).
     pub draws: Option<usize>,
+    /// The correlation families of each simulated study's comparison grid
+    /// (default: the scenario's `[analysis] correlations`); fewer families,
+    /// fewer fits per study.
+    pub correlations: Option<Vec<String>>,
     /// Worker threads (default: every core).
     pub threads: Option<usize>,
     /// Output folder (default `power-output`).
@@ -143,14 +147,17 @@ pub fn wilson(k: usize, n: usize) -> Option<(f64, f64)> {
 /// The scenario with `k` loggers (the first k; exports and faults of the
 /// others dropped), the driver's effect set to `effect` and the draught
 /// overridden.
-fn variant(
-    base: &Scenario,
-    driver: &str,
-    k: usize,
-    effect: f64,
-    draught: Option<DraughtOverride>,
-) -> Scenario {
+fn variant(base: &Scenario, sec: &PowerSection, k: usize, effect: f64) -> Scenario {
+    let (driver, draught) = (sec.driver.as_str(), sec.draught);
     let mut s = base.clone();
+    if let Some(c) = &sec.correlations {
+        let a = s.spec.analysis.get_or_insert(crate::simulate::scenario::AnalysisSpec {
+            output: None,
+            correlations: None,
+            nugget: None,
+        });
+        a.correlations = Some(c.clone());
+    }
     s.spec.logger.truncate(k);
     s.logger_export.truncate(k);
     let mut used: Vec<usize> = s.logger_export.clone();
@@ -293,6 +300,11 @@ pub fn run(
             ));
         }
     }
+    for c in sec.correlations.iter().flatten() {
+        crate::spatial::correlation::Family::parse(c).map_err(|e| {
+            plan.invalid("power.correlations", e, Some("exponential, spherical, gaussian or matern_<nu>"))
+        })?;
+    }
     if sec.draws.is_some_and(|d| d < 2) {
         return Err(plan.invalid(
             "power.draws",
@@ -314,7 +326,7 @@ pub fn run(
     let mut jobs = Vec::new();
     for &k in &counts {
         for &e in &sec.effects {
-            let sc = variant(&base, &sec.driver, k, e, sec.draught);
+            let sc = variant(&base, sec, k, e);
             for r in 0..n_studies {
                 jobs.push((k, e, seed0.wrapping_add(r as u64), sc.clone()));
             }
