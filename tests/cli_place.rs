@@ -94,6 +94,26 @@ fn places_loggers_in_a_simulated_study() {
     let html = std::fs::read_to_string(out.join("plan.html")).unwrap();
     potclim::report::xml::check_well_formed(&html).unwrap();
     assert!(html.contains("fig-se-now") && html.contains("fig-se-after"));
+
+    // The SE now is the map's own SE of the indicator: `potclim map` krigs the
+    // loggers' values (its own code path) and scales a summed indicator by
+    // each pot's share of the study's days, the same share for every pot here
+    // (one sowing date), so the ratio is one constant.
+    for cmd in ["ingest", "climate", "map"] {
+        ok(potclim(&[cmd, "study/study.toml"], d));
+    }
+    let cov = rows(&d.join("study/output/pot_covariates.csv"));
+    let c = cov[0].iter().position(|h| h == "night_cool_hours_se").unwrap();
+    let ratios: Vec<f64> = (1..cov.len())
+        .map(|k| {
+            assert_eq!(cov[k][0], pots[k][0]);
+            num(&pots[k][3]) / num(&cov[k][c])
+        })
+        .collect();
+    for r in &ratios {
+        assert!((r / ratios[0] - 1.0).abs() < 1e-9, "{ratios:?}");
+    }
+    assert!(ratios[0] >= 1.0 && ratios[0] < 1.5, "{}", ratios[0]);
 }
 
 /// A layout on paper: the scenario's pots and loggers with a stated
