@@ -508,8 +508,44 @@ pub fn studies_csv(studies: &[StudyOutcome]) -> Vec<u8> {
 
 #[cfg(test)]
 mod tests {
-    use super::wilson;
+    use super::{PowerSection, variant, wilson};
+    use crate::simulate::Scenario;
     use approx::assert_abs_diff_eq;
+
+    /// The demo scenario cut to its first 4 and 7 loggers: only their exports
+    /// and faults remain, the driver's effect and the draught are set, and the
+    /// result still generates a study whose study file names only the kept
+    /// exports.
+    #[test]
+    fn variants_keep_their_loggers_exports_and_faults() {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data/scenario.toml");
+        let base = Scenario::load(std::path::Path::new(path)).unwrap();
+        let sec: PowerSection = toml::from_str(
+            "scenario = \"x\"\ndriver = \"night_cold_hours\"\neffects = [0.0]\ndraught = { night_drop = 1.5 }\ncorrelations = [\"exponential\"]",
+        )
+        .unwrap();
+        for (k, exports) in [(4, vec!["climate_computer"]), (7, vec!["climate_computer", "standalone"])] {
+            let v = variant(&base, &sec, k, -0.05);
+            assert_eq!(v.spec.logger.len(), k);
+            let names: Vec<&str> = v.spec.export.iter().map(|e| e.name.as_str()).collect();
+            assert_eq!(names, exports);
+            for (l, &e) in v.spec.logger.iter().zip(&v.logger_export) {
+                assert_eq!(l.export, v.spec.export[e].name);
+            }
+            let kept: Vec<&str> = v.spec.logger.iter().map(|l| l.id.as_str()).collect();
+            assert!(v.spec.fault.iter().all(|f| kept.contains(&f.logger.as_str())));
+            assert!(!v.spec.fault.is_empty());
+            let ind = v.spec.trait_.indicator.iter().find(|i| i.name == "night_cold_hours").unwrap();
+            assert_eq!(ind.effect, -0.05);
+            assert_eq!(v.spec.climate.draught[0].night_drop, 1.5);
+            assert_eq!(v.spec.climate.draught[0].decay, base.spec.climate.draught[0].decay);
+            let files = crate::simulate::generate(&v, 3).unwrap();
+            let study = &files.iter().find(|(n, _)| n == "study.toml").unwrap().1;
+            let study = String::from_utf8_lossy(study);
+            assert_eq!(study.matches("[[logs]]").count(), exports.len(), "{study}");
+            assert!(study.contains("correlations = [\"exponential\"]"), "{study}");
+        }
+    }
 
     /// Wilson intervals against Newcombe (1998, *Statistics in Medicine*
     /// 17:857-872, Table I, method 3; values from memory, four decimals):
