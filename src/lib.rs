@@ -5,7 +5,7 @@
 //! The crate is split by stage, and dependencies flow one way:
 //!
 //! ```text
-//! io -> climate -> spatial -> model -> report -> pipeline -> cli
+//! io -> climate -> spatial -> model -> report -> pipeline -> planner -> cli
 //!                     \-> simulate (uses io formats and spatial covariances)
 //! ```
 //!
@@ -22,6 +22,8 @@
 //! * [`pipeline`] runs the whole analysis as one call ([`run`]): every section
 //!   of the study file validated first ([`Plan`], the same code as `potclim
 //!   check`), then each stage's result passed to the next in memory.
+//! * [`planner`] plans the next experiment: where to put loggers, and the
+//!   power of a layout to find a driver, by simulating whole studies.
 //! * [`cli`] is the only module that knows about the command line.
 #![warn(missing_docs)]
 
@@ -30,6 +32,7 @@ pub mod climate;
 pub mod io;
 pub mod model;
 pub mod pipeline;
+pub mod planner;
 pub mod report;
 pub mod simulate;
 pub mod spatial;

@@ -74,7 +74,7 @@ fn regenerating_the_demo_gives_the_committed_bytes() {
     let o = simulate(&demo().join("scenario.toml"), d.path(), 20261005);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let fresh = tree(d.path(), &[]);
-    let committed = tree(&demo(), &["scenario.toml", "README.md", "output"]);
+    let committed = tree(&demo(), &["scenario.toml", "README.md", "output", "plan.toml"]);
     assert_eq!(
         fresh.keys().collect::<Vec<_>>(),
         committed.keys().collect::<Vec<_>>(),

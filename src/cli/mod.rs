@@ -39,6 +39,8 @@ mod fit;
 mod ingest;
 mod init;
 mod map;
+mod place;
+mod power;
 mod report;
 mod run;
 mod verdict;
@@ -81,6 +83,12 @@ pub enum Command {
     Report(report::ReportArgs),
     /// Climate indicators per sensor and local day (reads <output>/readings.parquet).
     Climate(climate::ClimateArgs),
+    /// Propose where new loggers should stand, and which logger could be moved at least cost.
+    #[command(long_about = place::HELP)]
+    Place(place::PlaceArgs),
+    /// Would a layout find a driver? Power and false-alarm rate by simulating whole studies.
+    #[command(long_about = power::HELP)]
+    Power(power::PowerArgs),
 }
 
 /// Run the command line and return the process exit code.
@@ -128,5 +136,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Verdict(args) => verdict::run(args),
         Command::Report(args) => report::run(args),
         Command::Climate(args) => climate::run(args),
+        Command::Place(args) => place::run(args),
+        Command::Power(args) => power::run(args),
     }
 }

@@ -265,7 +265,8 @@ fn in_stage<T>(
 
 /// The verdict stage on the results in memory: the model data from the pot
 /// table and the mapping result, the sensor values of the climate result.
-fn verdict_in_memory(
+/// Writes nothing (also used by the power study, [`crate::planner::power`]).
+pub fn verdict_in_memory(
     study: &Study,
     plan: &Plan,
     climate: &ClimateRun,

@@ -21,6 +21,7 @@ pub mod data;
 pub mod figures;
 pub mod from_verdict;
 pub mod html;
+pub mod plan_page;
 pub mod png;
 pub mod sample;
 pub mod xml;

@@ -23,6 +23,7 @@ pub mod likelihood;
 pub mod mapping;
 pub mod optimise;
 pub mod outputs;
+pub mod placement;
 pub mod selfcheck;
 pub mod stage;
 pub mod variogram;
