@@ -28,7 +28,7 @@
 use super::config::{MappingConfig, MethodChoice};
 use super::error::SpatialError;
 use super::geometry::{Points, opening_distances, pot_points, sensor_points};
-use super::kriging::{Drift, Method, Spec};
+use super::kriging::{Drift, Interpolator, Spec};
 use super::mapping::{CvScore, ModelChoice, choose, choose_model, loso, map_series, map_summary};
 use super::outputs::{
     MAPPING_CV_FILE, MappedColumn, POT_COVARIATES_FILE, VARIOGRAM_FITS_FILE, VARIOGRAM_ML_FITS_FILE,
@@ -211,14 +211,18 @@ fn map_variable(
     let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, &bins) };
     let choice_model = choose_model(&empirical, &cfg.families, &opts, sensors, variance)?;
     let mut warnings: Vec<String> = choice_model.warning.iter().cloned().collect();
-    let spec_for =
-        |m: Method| Spec { method: m, model: choice_model.model, neighbours: cfg.neighbours, drift: None };
+    let spec_for = |m: Interpolator| Spec {
+        method: m,
+        model: choice_model.model,
+        neighbours: cfg.neighbours,
+        drift: None,
+    };
     // Every candidate: its score, the spec that maps with it, and its variogram.
     let mut cv: Vec<CvScore> = Vec::new();
     let mut specs: Vec<Spec> = Vec::new();
     let mut variograms: Vec<(Empirical, ModelChoice)> = Vec::new();
     for m in cfg.candidates() {
-        if m == Method::ExternalDrift {
+        if m == Interpolator::ExternalDrift {
             continue;
         }
         match loso(sensors, &series, &spec_for(m)) {
@@ -236,7 +240,7 @@ fn map_variable(
     // `external_drift`.
     let drift_openings: Vec<&OpeningDrift> = match cfg.method {
         MethodChoice::Auto => openings.iter().collect(),
-        MethodChoice::Fixed(Method::ExternalDrift) => {
+        MethodChoice::Fixed(Interpolator::ExternalDrift) => {
             openings.iter().filter(|o| cfg.drift.as_deref() == Some(o.name.as_str())).collect()
         }
         MethodChoice::Fixed(_) => Vec::new(),
@@ -250,7 +254,7 @@ fn map_variable(
                 return Ok(None);
             };
             let spec = Spec {
-                method: Method::ExternalDrift,
+                method: Interpolator::ExternalDrift,
                 model: mc.model,
                 neighbours: cfg.neighbours,
                 drift: Some(Drift {
@@ -291,14 +295,14 @@ fn map_variable(
     let (spec, (empirical, choice_model)) = match pick {
         Some(i) => (specs[i].clone(), variograms[i].clone()),
         None => match cfg.method {
-            MethodChoice::Fixed(Method::ExternalDrift) => {
+            MethodChoice::Fixed(Interpolator::ExternalDrift) => {
                 return Err(MapError::Missing(format!(
                     "{name}: external drift on `{}` could not be fitted at any decay length",
                     cfg.drift.clone().unwrap_or_default()
                 )));
             }
             MethodChoice::Fixed(m) => (spec_for(m), (empirical, choice_model)),
-            MethodChoice::Auto => (spec_for(Method::Ordinary), (empirical, choice_model)),
+            MethodChoice::Auto => (spec_for(Interpolator::Ordinary), (empirical, choice_model)),
         },
     };
     let steps = series.nrows();
