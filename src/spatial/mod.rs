@@ -26,3 +26,4 @@ pub mod outputs;
 pub mod selfcheck;
 pub mod stage;
 pub mod variogram;
+pub mod window_se;
