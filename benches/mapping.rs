@@ -11,7 +11,7 @@
 use nalgebra::DMatrix;
 use potclim::spatial::correlation::Family;
 use potclim::spatial::geometry::{Origin, Points};
-use potclim::spatial::kriging::{Method, Spec, System, krige};
+use potclim::spatial::kriging::{Interpolator, Spec, System, krige};
 use potclim::spatial::mapping::map_series;
 use potclim::spatial::variogram::{VariogramModel, pairs_within};
 use rand::{RngExt, SeedableRng};
@@ -38,7 +38,7 @@ fn main() {
     let sensors = points("s", ns, &mut rng);
     let pots = points("p", np, &mut rng);
     let model = VariogramModel { family: Family::Exponential, nugget: 0.05, partial_sill: 1.0, range: 4.0 };
-    let spec = Spec { method: Method::Ordinary, model, neighbours: None, drift: None };
+    let spec = Spec { method: Interpolator::Ordinary, model, neighbours: None, drift: None };
     let series = DMatrix::from_fn(steps, ns, |t, j| {
         if (j == 3 && (2000..2600).contains(&t)) || (j == 17 && t >= 11000) {
             f64::NAN

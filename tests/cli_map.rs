@@ -72,11 +72,12 @@ fn mapped_indicators_follow_the_true_field() {
     assert_eq!(cov.len(), 480);
     let truth: HashMap<String, HashMap<String, String>> =
         table(&d.path().join("truth/pots.csv")).into_iter().map(|r| (r["pot"].clone(), r)).collect();
-    let (mut est, mut tru) = (Vec::new(), Vec::new());
+    let (mut est, mut tru, mut ses) = (Vec::new(), Vec::new(), Vec::new());
     for r in &cov {
         let v: f64 = r["night_cold_hours"].parse().unwrap();
         let se: f64 = r["night_cold_hours_se"].parse().unwrap();
         assert!(v.is_finite() && se > 0.0, "{r:?}");
+        ses.push(se);
         let dist: f64 = r["distance_door"].parse().unwrap();
         let t = &truth[&r["pot"]];
         // The simulator's distance to the door segment is printed with 4 decimals.
@@ -106,6 +107,15 @@ fn mapped_indicators_follow_the_true_field() {
     assert!(rmse <= 20.0, "RMSE {rmse} h against the truth (target: half of the former 40 h)");
     assert!(rel <= 0.15, "door pots off by {:.1} % on average (target 15 %)", 100.0 * rel);
     assert!(door(top) < 3.0, "the coldest mapped pot is {:.2} m from the door", door(top));
+    // Calibrated standard errors (issue target: mean squared standardised
+    // error against the truth within 0.5-2; 0.13 with the kriged study-period
+    // summary, 0.76 with the per-step errors' calibrated persistence).
+    let msse = (0..est.len()).map(|k| ((est[k] - tru[k]) / ses[k]).powi(2)).sum::<f64>() / n;
+    eprintln!("night cold hours: MSSE against the truth {msse:.3}");
+    assert!((0.5..=2.0).contains(&msse), "MSSE {msse}");
+    let se_file = table(&dir.join("mapping_se.csv"));
+    let nch = se_file.iter().find(|r| r["indicator"] == "night_cold_hours").unwrap();
+    assert_eq!(nch["se_from"], "per_step_errors", "{nch:?}");
     // ML fits on the sensors' study-period values: AIC = -2 l + 2 k with k = 4
     // (mean, sigma², range, nugget share; [mapping].nugget defaults to true).
     let ml = table(&dir.join("variogram_ml_fits.csv"));

@@ -19,7 +19,7 @@ series onto every pot with the chosen method. Each pot's indicators are then com
 mapped series over its own growth window ([pots].start/end).
 
 Reads <output>/readings.parquet (run `potclim ingest STUDY` first). Writes pot_covariates.csv, \
-variograms.csv, variogram_fits.csv, variogram_ml_fits.csv, mapping_cv.csv and mapping_check.csv into the output folder.";
+variograms.csv, variogram_fits.csv, variogram_ml_fits.csv, mapping_cv.csv, mapping_check.csv and mapping_se.csv into the output folder.";
 
 /// Arguments of `potclim map`.
 #[derive(Debug, Args)]

@@ -4,7 +4,7 @@
 //! `docs/spatial.md`; unknown keys are rejected with line and column.
 
 use super::correlation::Family;
-use super::kriging::Method;
+use super::kriging::Interpolator;
 use super::variogram::{Bins, Direction, Estimator};
 use crate::io::error::IoError;
 use crate::io::study::Study;
@@ -58,7 +58,7 @@ pub enum MethodChoice {
     /// Pick by leave-one-sensor-out cross-validation.
     Auto,
     /// This method.
-    Fixed(Method),
+    Fixed(Interpolator),
 }
 
 /// The validated `[mapping]` settings with defaults filled in.
@@ -125,11 +125,11 @@ impl MappingConfig {
         let name = s.method.as_deref().unwrap_or("auto").trim().to_ascii_lowercase();
         let method = match name.as_str() {
             "auto" => MethodChoice::Auto,
-            "ordinary" => MethodChoice::Fixed(Method::Ordinary),
-            "universal" => MethodChoice::Fixed(Method::Universal),
-            "external_drift" => MethodChoice::Fixed(Method::ExternalDrift),
-            "idw" => MethodChoice::Fixed(Method::Idw { power: idw_power }),
-            "nearest" => MethodChoice::Fixed(Method::Nearest),
+            "ordinary" => MethodChoice::Fixed(Interpolator::Ordinary),
+            "universal" => MethodChoice::Fixed(Interpolator::Universal),
+            "external_drift" => MethodChoice::Fixed(Interpolator::ExternalDrift),
+            "idw" => MethodChoice::Fixed(Interpolator::Idw { power: idw_power }),
+            "nearest" => MethodChoice::Fixed(Interpolator::Nearest),
             other => {
                 let hint = crate::io::error::closest(other, METHODS.iter().copied())
                     .map(|c| format!("did you mean `{c}`?"));
@@ -194,7 +194,7 @@ impl MappingConfig {
                 Some("leave it out to use every sensor".into()),
             ));
         }
-        if method == MethodChoice::Fixed(Method::ExternalDrift) && s.drift.is_none() {
+        if method == MethodChoice::Fixed(Interpolator::ExternalDrift) && s.drift.is_none() {
             return Err(study.invalid(
                 "mapping.drift",
                 "method = \"external_drift\" needs a drift",
@@ -260,16 +260,16 @@ impl MappingConfig {
     /// The candidate methods that `auto` compares (and the baselines shown
     /// beside them): ordinary, universal, external drift (if a drift is
     /// set), IDW and nearest sensor.
-    pub fn candidates(&self) -> Vec<Method> {
+    pub fn candidates(&self) -> Vec<Interpolator> {
         match self.method {
             MethodChoice::Fixed(m) => vec![m],
             MethodChoice::Auto => {
-                let mut v = vec![Method::Ordinary, Method::Universal];
+                let mut v = vec![Interpolator::Ordinary, Interpolator::Universal];
                 if self.drift.is_some() {
-                    v.push(Method::ExternalDrift);
+                    v.push(Interpolator::ExternalDrift);
                 }
-                v.push(Method::Idw { power: self.idw_power });
-                v.push(Method::Nearest);
+                v.push(Interpolator::Idw { power: self.idw_power });
+                v.push(Interpolator::Nearest);
                 v
             }
         }
@@ -323,7 +323,7 @@ to = [0.0, 2.0]
             "[mapping]\nmethod = \"external_drift\"\nfamilies = [\"spherical\", \"matern_0.8\"]\nnugget = false\nestimator = \"cressie_hawkins\"\nbin_edges = [0, 1, 2.5]\nneighbours = 6\ndrift = \"door\"\nidw_power = 1.5\ndirections = [30]\nangle_tolerance = 15\n",
         )
         .unwrap();
-        assert_eq!(c.method, MethodChoice::Fixed(Method::ExternalDrift));
+        assert_eq!(c.method, MethodChoice::Fixed(Interpolator::ExternalDrift));
         assert_eq!(c.families, vec![Family::Spherical, Family::Matern { nu: 0.8 }]);
         assert!(!c.fit_nugget);
         assert_eq!(c.bin_edges.unwrap().edges, vec![0.0, 1.0, 2.5]);

@@ -160,7 +160,7 @@ mod tests {
         use crate::spatial::correlation::Family;
         use crate::spatial::geometry::distances_to_opening;
         use crate::spatial::kriging::testdata::{nums, pts};
-        use crate::spatial::kriging::{Drift, Method, Spec, krige};
+        use crate::spatial::kriging::{Drift, Interpolator, Spec, krige};
         use crate::spatial::mapping::loso;
         use crate::spatial::variogram::VariogramModel;
         let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/fixtures/drift.json");
@@ -181,14 +181,14 @@ mod tests {
             range: m["range"].as_f64().unwrap(),
         };
         let spec = |l: f64| Spec {
-            method: Method::ExternalDrift,
+            method: Interpolator::ExternalDrift,
             model,
             neighbours: None,
             drift: Some(Drift { name: "door".into(), at_sensors: decay(&ds, l), at_targets: decay(&dt, l) }),
         };
         let k = &f["ked"];
         let p = krige(&s, &z, &t, &spec(k["length"].as_f64().unwrap())).unwrap();
-        assert_eq!(p.method, Method::ExternalDrift);
+        assert_eq!(p.method, Interpolator::ExternalDrift);
         let se = p.se.unwrap();
         for (i, (pv, vv)) in nums(&k["pred"]).iter().zip(nums(&k["var"])).enumerate() {
             assert_relative_eq!(p.value[i], *pv, max_relative = 1e-10);

@@ -12,7 +12,8 @@
 
 use super::error::{Result, SpatialError};
 use super::geometry::Points;
-use super::kriging::{Method, Spec, System, krige};
+use super::kriging::{Interpolator, Spec, System, krige};
+use faer::Mat;
 use nalgebra::DMatrix;
 use std::collections::BTreeMap;
 
@@ -90,7 +91,7 @@ where
             }
         }
         systems.push(sys);
-        data.push(DMatrix::from_fn(ts.len(), set.len(), |r, c| series[(ts[r], set[c])]));
+        data.push(Mat::from_fn(ts.len(), set.len(), |r, c| series[(ts[r], set[c])]));
     }
     let block = block.max(1);
     let kriging = spec.method.is_kriging();
@@ -98,8 +99,8 @@ where
     while start < targets.len() {
         let end = (start + block).min(targets.len());
         let m = end - start;
-        let mut pred = DMatrix::<f64>::from_element(steps, m, f64::NAN);
-        let mut se = kriging.then(|| DMatrix::<f64>::from_element(steps, m, f64::NAN));
+        let mut pred = Mat::<f64>::full(steps, m, f64::NAN);
+        let mut se = kriging.then(|| Mat::<f64>::full(steps, m, f64::NAN));
         for (k, sys) in systems.iter().enumerate() {
             let w = sys.weights(targets, start..end, spec)?;
             let prod = &data[k] * &w.lambda;
@@ -117,9 +118,7 @@ where
             }
         }
         for c in 0..m {
-            let col = pred.column(c);
-            let se_col = se.as_ref().map(|s| s.column(c));
-            each(start + c, col.as_slice(), se_col.as_ref().map(|s| s.as_slice()));
+            each(start + c, pred.col_as_slice(c), se.as_ref().map(|s| s.col_as_slice(c)));
         }
         start = end;
     }
@@ -153,7 +152,7 @@ pub fn map_summary(
     targets: &Points,
     spec: &Spec,
 ) -> Result<super::kriging::Prediction> {
-    if !spec.method.is_kriging() || matches!(spec.method, Method::Simple { .. }) {
+    if !spec.method.is_kriging() || matches!(spec.method, Interpolator::Simple { .. }) {
         return krige(sensors, values, targets, spec);
     }
     let drift = spec.drift.as_ref().map(|d| d.at_sensors.as_slice());
@@ -165,7 +164,7 @@ pub fn map_summary(
 #[derive(Clone, Debug, PartialEq)]
 pub struct CvScore {
     /// The method.
-    pub method: Method,
+    pub method: Interpolator,
     /// Number of predictions compared (sensor x step).
     pub n: usize,
     /// Root mean squared error.
@@ -408,7 +407,7 @@ mod tests {
     use rand_chacha::ChaCha8Rng;
     use rand_distr::StandardNormal;
 
-    fn spec(method: Method, model: VariogramModel) -> Spec {
+    fn spec(method: Interpolator, model: VariogramModel) -> Spec {
         Spec { method, model, neighbours: None, drift: None }
     }
 
@@ -435,7 +434,7 @@ mod tests {
         let series = DMatrix::from_fn(60, 9, |_, _| {
             if rng.random::<f64>() < 0.15 { f64::NAN } else { rng.sample::<f64, _>(StandardNormal) }
         });
-        for method in [Method::Ordinary, Method::Universal, Method::Idw { power: 2.0 }] {
+        for method in [Interpolator::Ordinary, Interpolator::Universal, Interpolator::Idw { power: 2.0 }] {
             let sp = spec(method, m);
             let mut got = vec![vec![]; t.len()];
             let mut got_se = vec![vec![]; t.len()];
@@ -460,7 +459,7 @@ mod tests {
         let mut s2 = series.clone();
         s2.row_mut(3).fill(f64::NAN);
         let mut seen = 0;
-        let summary = map_series(&s, &s2, &t, &spec(Method::Ordinary, m), 64, |_, v, _| {
+        let summary = map_series(&s, &s2, &t, &spec(Interpolator::Ordinary, m), 64, |_, v, _| {
             assert!(v[3].is_nan());
             seen += 1;
         })
@@ -481,25 +480,26 @@ mod tests {
         let all: Vec<(f64, f64)> =
             (0..s.len()).map(|i| (s.x[i], s.y[i])).chain((0..t.len()).map(|i| (t.x[i], t.y[i]))).collect();
         let n = all.len();
-        let c = DMatrix::from_fn(n, n, |i, j| {
+        let c = Mat::from_fn(n, n, |i, j| {
             if i == j { m.sill() } else { m.covariance((all[i].0 - all[j].0).hypot(all[i].1 - all[j].1)) }
         });
-        let l = c.cholesky().unwrap().l();
+        let chol = crate::spatial::factor::Cholesky::new(c, 0.0).unwrap();
         let mut rng = ChaCha8Rng::seed_from_u64(12);
         let reps = 60;
         let mut fields = DMatrix::<f64>::zeros(reps, n);
         for r in 0..reps {
-            let e = nalgebra::DVector::from_fn(n, |_, _| rng.sample::<f64, _>(StandardNormal));
-            let f = &l * e;
+            let e = Mat::from_fn(n, 1, |_, _| rng.sample::<f64, _>(StandardNormal));
+            let f = chol.l() * &e;
             for j in 0..n {
-                fields[(r, j)] = 10.0 + f[j];
+                fields[(r, j)] = 10.0 + f[(j, 0)];
             }
         }
         let sensors_series = fields.columns(0, s.len()).into_owned();
         let mut sse = [0.0; 3];
         let (mut z2, mut cnt) = (0.0, 0usize);
-        for (k, method) in
-            [Method::Ordinary, Method::Idw { power: 2.0 }, Method::Nearest].into_iter().enumerate()
+        for (k, method) in [Interpolator::Ordinary, Interpolator::Idw { power: 2.0 }, Interpolator::Nearest]
+            .into_iter()
+            .enumerate()
         {
             map_series(&s, &sensors_series, &t, &spec(method, m), 40, |pot, v, se| {
                 for r in 0..reps {
@@ -516,11 +516,15 @@ mod tests {
         assert!(sse[0] < 0.95 * sse[1] && sse[0] < 0.8 * sse[2], "{sse:?}");
         let msse = z2 / cnt as f64;
         assert!((msse - 1.0).abs() < 0.15, "msse {msse}");
-        let scores: Vec<CvScore> =
-            [Method::Ordinary, Method::Universal, Method::Idw { power: 2.0 }, Method::Nearest]
-                .into_iter()
-                .map(|meth| loso(&s, &sensors_series, &spec(meth, m)).unwrap().unwrap())
-                .collect();
+        let scores: Vec<CvScore> = [
+            Interpolator::Ordinary,
+            Interpolator::Universal,
+            Interpolator::Idw { power: 2.0 },
+            Interpolator::Nearest,
+        ]
+        .into_iter()
+        .map(|meth| loso(&s, &sensors_series, &spec(meth, m)).unwrap().unwrap())
+        .collect();
         let cv_msse = scores[0].msse.unwrap();
         assert!((cv_msse - 1.0).abs() < 0.3, "cv msse {cv_msse}");
         assert!(scores[0].rmse < scores[3].rmse);
@@ -537,13 +541,14 @@ mod tests {
         let s = layout(21, 8);
         let z: Vec<f64> = (0..8).map(|i| (s.x[i] * 0.7).sin() + 0.1 * s.y[i]).collect();
         let m = VariogramModel { family: Family::Gaussian, nugget: 0.01, partial_sill: 0.5, range: 3.0 };
-        let sc = loso(&s, &DMatrix::from_row_slice(1, 8, &z), &spec(Method::Ordinary, m)).unwrap().unwrap();
+        let sc =
+            loso(&s, &DMatrix::from_row_slice(1, 8, &z), &spec(Interpolator::Ordinary, m)).unwrap().unwrap();
         let (mut se2, mut me, mut z2) = (0.0, 0.0, 0.0);
         for i in 0..8 {
             let o: Vec<usize> = (0..8).filter(|&j| j != i).collect();
             let sub = s.subset(&o);
             let vals: Vec<f64> = o.iter().map(|&j| z[j]).collect();
-            let p = krige(&sub, &vals, &s.subset(&[i]), &spec(Method::Ordinary, m)).unwrap();
+            let p = krige(&sub, &vals, &s.subset(&[i]), &spec(Interpolator::Ordinary, m)).unwrap();
             let e = p.value[0] - z[i];
             se2 += e * e;
             me += e;
@@ -573,7 +578,7 @@ mod tests {
         assert!(err.to_string().contains("nearest"));
         // The nearest-sensor method maps a single sensor.
         let t = pts(&[[5.0, 5.0], [0.0, 1.0]]);
-        let p = krige(&one, &[7.0], &t, &spec(Method::Nearest, c.model)).unwrap();
+        let p = krige(&one, &[7.0], &t, &spec(Interpolator::Nearest, c.model)).unwrap();
         assert_eq!(p.value, vec![7.0, 7.0]);
     }
 
@@ -586,7 +591,7 @@ mod tests {
         let t = layout(32, 5);
         let z: Vec<f64> = (0..12).map(|i| (s.x[i] * 0.4).cos() + 0.05 * s.y[i] * s.y[i]).collect();
         let m = VariogramModel { family: Family::Exponential, nugget: 0.1, partial_sill: 0.9, range: 2.5 };
-        let sp = spec(Method::Ordinary, m);
+        let sp = spec(Interpolator::Ordinary, m);
         let a = map_summary(&s, &z, &t, &sp).unwrap();
         let z7: Vec<f64> = z.iter().map(|v| 7.0 * v).collect();
         let b = map_summary(&s, &z7, &t, &sp).unwrap();

@@ -27,3 +27,4 @@ pub mod placement;
 pub mod selfcheck;
 pub mod stage;
 pub mod variogram;
+pub mod window_se;

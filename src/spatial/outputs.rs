@@ -239,7 +239,7 @@ pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::spatial::kriging::Method;
+    use crate::spatial::kriging::Interpolator;
     use crate::spatial::variogram::{Bins, Estimator, FitOptions, experimental, fit_families};
 
     fn parse(bytes: &[u8]) -> Vec<Vec<String>> {
@@ -289,7 +289,7 @@ mod tests {
         assert_eq!(rows[2][10], "true");
         let scores = vec![
             CvScore {
-                method: Method::Ordinary,
+                method: Interpolator::Ordinary,
                 n: 5,
                 rmse: 1.0,
                 mean_error: 0.1,
@@ -298,7 +298,7 @@ mod tests {
                 drift: None,
             },
             CvScore {
-                method: Method::Nearest,
+                method: Interpolator::Nearest,
                 n: 5,
                 rmse: 2.0,
                 mean_error: 0.2,
@@ -307,7 +307,7 @@ mod tests {
                 drift: None,
             },
             CvScore {
-                method: Method::ExternalDrift,
+                method: Interpolator::ExternalDrift,
                 n: 5,
                 rmse: 0.5,
                 mean_error: 0.0,

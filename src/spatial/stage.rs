@@ -28,7 +28,7 @@
 use super::config::{MappingConfig, MethodChoice};
 use super::error::SpatialError;
 use super::geometry::{Points, opening_distances, pot_points, sensor_points};
-use super::kriging::{Drift, Method, Spec};
+use super::kriging::{Drift, Interpolator, Spec};
 use super::mapping::{CvScore, ModelChoice, choose, choose_model, loso, map_series, map_summary};
 use super::outputs::{
     MAPPING_CV_FILE, MappedColumn, POT_COVARIATES_FILE, VARIOGRAM_FITS_FILE, VARIOGRAM_ML_FITS_FILE,
@@ -133,6 +133,11 @@ pub struct MapRun {
     pub ml_nugget: bool,
     /// Leave-one-sensor-out check of every indicator at every logger.
     pub checks: Vec<super::selfcheck::SensorCheck>,
+    /// Per indicator (parallel to `indicators`): the calibrated persistence
+    /// of the per-step kriging errors behind its SEs
+    /// ([`super::window_se`]); `None` where the SEs come from the
+    /// indicator's kriged study-period values.
+    pub window_se: Vec<Option<super::window_se::Calibration>>,
 }
 
 fn base_variables(v: Variable) -> &'static [&'static str] {
@@ -211,14 +216,18 @@ fn map_variable(
     let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, &bins) };
     let choice_model = choose_model(&empirical, &cfg.families, &opts, sensors, variance)?;
     let mut warnings: Vec<String> = choice_model.warning.iter().cloned().collect();
-    let spec_for =
-        |m: Method| Spec { method: m, model: choice_model.model, neighbours: cfg.neighbours, drift: None };
+    let spec_for = |m: Interpolator| Spec {
+        method: m,
+        model: choice_model.model,
+        neighbours: cfg.neighbours,
+        drift: None,
+    };
     // Every candidate: its score, the spec that maps with it, and its variogram.
     let mut cv: Vec<CvScore> = Vec::new();
     let mut specs: Vec<Spec> = Vec::new();
     let mut variograms: Vec<(Empirical, ModelChoice)> = Vec::new();
     for m in cfg.candidates() {
-        if m == Method::ExternalDrift {
+        if m == Interpolator::ExternalDrift {
             continue;
         }
         match loso(sensors, &series, &spec_for(m)) {
@@ -236,7 +245,7 @@ fn map_variable(
     // `external_drift`.
     let drift_openings: Vec<&OpeningDrift> = match cfg.method {
         MethodChoice::Auto => openings.iter().collect(),
-        MethodChoice::Fixed(Method::ExternalDrift) => {
+        MethodChoice::Fixed(Interpolator::ExternalDrift) => {
             openings.iter().filter(|o| cfg.drift.as_deref() == Some(o.name.as_str())).collect()
         }
         MethodChoice::Fixed(_) => Vec::new(),
@@ -250,7 +259,7 @@ fn map_variable(
                 return Ok(None);
             };
             let spec = Spec {
-                method: Method::ExternalDrift,
+                method: Interpolator::ExternalDrift,
                 model: mc.model,
                 neighbours: cfg.neighbours,
                 drift: Some(Drift {
@@ -291,14 +300,14 @@ fn map_variable(
     let (spec, (empirical, choice_model)) = match pick {
         Some(i) => (specs[i].clone(), variograms[i].clone()),
         None => match cfg.method {
-            MethodChoice::Fixed(Method::ExternalDrift) => {
+            MethodChoice::Fixed(Interpolator::ExternalDrift) => {
                 return Err(MapError::Missing(format!(
                     "{name}: external drift on `{}` could not be fitted at any decay length",
                     cfg.drift.clone().unwrap_or_default()
                 )));
             }
             MethodChoice::Fixed(m) => (spec_for(m), (empirical, choice_model)),
-            MethodChoice::Auto => (spec_for(Method::Ordinary), (empirical, choice_model)),
+            MethodChoice::Auto => (spec_for(Interpolator::Ordinary), (empirical, choice_model)),
         },
     };
     let steps = series.nrows();
@@ -395,6 +404,8 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         })
         .collect();
     let min_cov = climate.config.spec.min_coverage;
+    let checked = self_check(climate, &sensors, &openings, &variables, min_cov);
+    let nodes = super::window_se::normal_nodes(super::window_se::NODES);
     let mut columns = Vec::new();
     for (i, ind) in indicators.iter().enumerate() {
         let how = ind.statistic.combine();
@@ -423,9 +434,28 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
             value[j] = w.value.unwrap_or(f64::NAN);
             valid[j] = w.valid_days;
         }
-        // Standard errors from the indicator's study-period sensor values.
+        // Standard errors: from the per-step kriging errors with their
+        // calibrated persistence (`super::window_se`), else from the
+        // indicator's study-period sensor values kriged.
         let base = base_variables(ind.variable)[0];
+        let calibrated = checked.calibration[i].zip(single_kriged(ind, &variables));
         let se = match get(base) {
+            _ if calibrated.is_some() => {
+                let (c, v) = calibrated.expect("checked");
+                let se_m = v.mapped_se.as_ref().expect("single_kriged has SEs");
+                let ses: Option<Vec<f64>> = (0..pots.len())
+                    .map(|j| {
+                        let at = KrigedAt {
+                            variable: v.name,
+                            mu: &v.mapped.as_slice()[j * n_steps..(j + 1) * n_steps],
+                            se: &se_m.as_slice()[j * n_steps..(j + 1) * n_steps],
+                        };
+                        indicator_moments(ind, cal, &at, c.share, &nodes, min_cov, windows[j].clone())
+                            .map(|(_, var)| (c.inflation * var).sqrt())
+                    })
+                    .collect();
+                ses
+            }
             Some(v) if v.spec.method.is_kriging() => {
                 let sensor_vals: Vec<f64> =
                     climate.study[i].iter().map(|w| w.value.unwrap_or(f64::NAN)).collect();
@@ -466,7 +496,8 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         };
         columns.push(MappedColumn { name: ind.name.clone(), value, se });
     }
-    let checks = self_check(climate, &sensors, &openings, &variables, min_cov);
+    let checks = checked.checks;
+    let window_se = checked.calibration;
     let mut ml_fits = Vec::new();
     for (i, ind) in indicators.iter().enumerate() {
         let vals: Vec<f64> = climate.study[i].iter().map(|w| w.value.unwrap_or(f64::NAN)).collect();
@@ -488,6 +519,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         indicators: columns,
         distances,
         checks,
+        window_se,
     })
 }
 
@@ -507,19 +539,92 @@ fn leave_out(spec: &Spec, others: &[usize], k: usize) -> Spec {
     }
 }
 
+/// The indicator of `ind` at one location over the days `window`, from
+/// its mapped series (expectation form of threshold statistics with the
+/// temperature SEs `t_se`).
+fn location_value(
+    ind: &crate::climate::Indicator,
+    cal: &crate::climate::Calendar,
+    series: &LocationSeries,
+    t_se: Option<&[f64]>,
+    min_cov: f64,
+    window: std::ops::Range<usize>,
+) -> Option<f64> {
+    let daily: Vec<Option<f64>> =
+        daily_values_expected(ind, cal, series, t_se, min_cov).into_iter().map(|d| d.value).collect();
+    combine_window(&daily, window, ind.statistic.combine()).value
+}
+
+/// One kriged variable at one location: its name, mapped series and per-step SEs.
+struct KrigedAt<'a> {
+    variable: &'a str,
+    mu: &'a [f64],
+    se: &'a [f64],
+}
+
+/// The persistent-error moments ([`super::window_se::persistent_moments`])
+/// of an indicator of one kriged variable at one location.
+fn indicator_moments(
+    ind: &crate::climate::Indicator,
+    cal: &crate::climate::Calendar,
+    at: &KrigedAt,
+    rho: f64,
+    nodes: &[(f64, f64)],
+    min_cov: f64,
+    window: std::ops::Range<usize>,
+) -> Option<(f64, f64)> {
+    let nan = vec![f64::NAN; at.mu.len()];
+    super::window_se::persistent_moments(at.mu, at.se, rho, nodes, |shifted, sd| {
+        let pick = |name: &str| if at.variable == name { shifted } else { nan.as_slice() };
+        let s = LocationSeries {
+            temperature: pick("temperature"),
+            humidity: pick("humidity"),
+            light: pick("light"),
+        };
+        let t_se = (at.variable == "temperature").then_some(sd);
+        location_value(ind, cal, &s, t_se, min_cov, window.clone())
+    })
+}
+
+/// The single kriged variable an indicator is computed from, when it has
+/// per-step SEs (temperature, humidity or light indicators mapped by a
+/// kriging method; not VPD or dew point, which combine two variables).
+fn single_kriged<'a>(
+    ind: &crate::climate::Indicator,
+    variables: &'a [VariableMap],
+) -> Option<&'a VariableMap> {
+    let base = base_variables(ind.variable);
+    if base.len() != 1 {
+        return None;
+    }
+    variables.iter().find(|v| v.name == base[0] && v.mapped_se.is_some())
+}
+
+/// What the leave-one-sensor-out check found: the checks, and per indicator
+/// the calibrated persistence of its per-step errors (`None`: the indicator's
+/// SE comes from its kriged study-period values instead).
+struct SelfCheck {
+    checks: Vec<super::selfcheck::SensorCheck>,
+    calibration: Vec<Option<super::window_se::Calibration>>,
+}
+
 /// Leave-one-sensor-out check of every indicator at every logger
 /// ([`super::selfcheck`]): the logger's series are mapped at its position from
-/// the other loggers with the variable's own spec, the indicator computed
-/// over the study period as at a pot (expectation form included), and its SE
-/// from the other loggers' study-period values kriged as for the pots. A
-/// check that cannot be computed (too few other loggers) is left out.
+/// the other loggers with the variable's own spec, and the indicator computed
+/// over the study period as at a pot (expectation form included). For an
+/// indicator of one kriged variable, the left-out errors calibrate the
+/// persistent share of the per-step kriging errors
+/// ([`super::window_se::calibrate`]) and the check's SE is the calibrated
+/// one; otherwise the SE is that of the other loggers' study-period values
+/// kriged as for the pots. A check that cannot be computed (too few other
+/// loggers) is left out.
 fn self_check(
     climate: &ClimateRun,
     sensors: &Points,
     openings: &[OpeningDrift],
     variables: &[VariableMap],
     min_cov: f64,
-) -> Vec<super::selfcheck::SensorCheck> {
+) -> SelfCheck {
     let n = sensors.len();
     let mut nearest: Vec<Vec<String>> = vec![Vec::new(); n];
     for o in openings {
@@ -529,43 +634,58 @@ fn self_check(
     }
     let cal = &climate.calendar;
     let steps = cal.n_steps;
+    let all_days = 0..cal.days.len();
+    // Every variable mapped at every logger's position without it, once.
+    let left_out: Vec<Vec<Option<LocationMap>>> = variables
+        .iter()
+        .map(|v| {
+            let m = match v.name {
+                "temperature" => &climate.grid.temperature,
+                "humidity" => &climate.grid.humidity,
+                _ => &climate.grid.light,
+            };
+            let series = matrix_of(m);
+            (0..n)
+                .map(|k| {
+                    let others: Vec<usize> = (0..n).filter(|&j| j != k).collect();
+                    let sub_series =
+                        DMatrix::from_fn(series.nrows(), others.len(), |t, c| series[(t, others[c])]);
+                    let mut out = (vec![f64::NAN; steps], None);
+                    map_series(
+                        &sensors.subset(&others),
+                        &sub_series,
+                        &sensors.subset(&[k]),
+                        &leave_out(&v.spec, &others, k),
+                        1,
+                        |_, p, se| out = (p.to_vec(), se.map(|s| s.to_vec())),
+                    )
+                    .ok()
+                    .map(|_| (v.name, out.0, out.1))
+                })
+                .collect()
+        })
+        .collect();
+    let nodes = super::window_se::normal_nodes(super::window_se::NODES);
+    let nan = vec![f64::NAN; steps];
     let mut checks = Vec::new();
+    let mut calibration = Vec::new();
     for (i, ind) in climate.config.indicators.iter().enumerate() {
         let base = base_variables(ind.variable);
-        let vars: Vec<&VariableMap> =
-            base.iter().filter_map(|b| variables.iter().find(|v| v.name == *b)).collect();
+        let vars: Vec<usize> =
+            base.iter().filter_map(|b| variables.iter().position(|v| v.name == *b)).collect();
         if vars.len() != base.len() {
+            calibration.push(None);
             continue;
         }
-        for (k, near) in nearest.iter().enumerate() {
+        // (logger, observed, predicted, the left-out maps of its variables)
+        let mut rows: Vec<(usize, f64, f64, Vec<&LocationMap>)> = Vec::new();
+        #[allow(clippy::needless_range_loop)] // k indexes loggers in three tables
+        for k in 0..n {
             let Some(observed) = climate.study[i].get(k).and_then(|w| w.value) else { continue };
-            let others: Vec<usize> = (0..n).filter(|&j| j != k).collect();
-            let sub = sensors.subset(&others);
-            let target = sensors.subset(&[k]);
-            let mut mapped: Vec<LocationMap> = Vec::new();
-            for v in &vars {
-                let m = match v.name {
-                    "temperature" => &climate.grid.temperature,
-                    "humidity" => &climate.grid.humidity,
-                    _ => &climate.grid.light,
-                };
-                let series = matrix_of(m);
-                let sub_series =
-                    DMatrix::from_fn(series.nrows(), others.len(), |t, c| series[(t, others[c])]);
-                let mut out = (vec![f64::NAN; steps], None);
-                let done =
-                    map_series(&sub, &sub_series, &target, &leave_out(&v.spec, &others, k), 1, |_, p, se| {
-                        out = (p.to_vec(), se.map(|s| s.to_vec()));
-                    });
-                if done.is_err() {
-                    break;
-                }
-                mapped.push((v.name, out.0, out.1));
-            }
-            if mapped.len() != vars.len() {
+            let Some(mapped) = vars.iter().map(|&v| left_out[v][k].as_ref()).collect::<Option<Vec<_>>>()
+            else {
                 continue;
-            }
-            let nan = vec![f64::NAN; steps];
+            };
             let col =
                 |name: &str| mapped.iter().find(|m| m.0 == name).map_or(nan.as_slice(), |m| m.1.as_slice());
             let t_se = mapped.iter().find(|m| m.0 == "temperature").and_then(|m| m.2.as_deref());
@@ -574,42 +694,54 @@ fn self_check(
                 humidity: col("humidity"),
                 light: col("light"),
             };
-            let daily: Vec<Option<f64>> = daily_values_expected(ind, cal, &series, t_se, min_cov)
-                .into_iter()
-                .map(|d| d.value)
-                .collect();
-            let Some(predicted) = combine_window(&daily, 0..cal.days.len(), ind.statistic.combine()).value
-            else {
+            let Some(predicted) = location_value(ind, cal, &series, t_se, min_cov, all_days.clone()) else {
                 continue;
             };
-            let v0 = vars[0];
-            let se = if v0.spec.method.is_kriging() {
-                let ok: Vec<usize> =
-                    others.iter().copied().filter(|&j| climate.study[i][j].value.is_some()).collect();
-                let vals: Vec<f64> =
-                    ok.iter().map(|&j| climate.study[i][j].value.unwrap_or(f64::NAN)).collect();
-                if ok.len() >= 2 {
-                    map_summary(&sensors.subset(&ok), &vals, &target, &leave_out(&v0.spec, &ok, k))
-                        .ok()
-                        .and_then(|p| p.se)
-                        .map(|s| s[0])
-                } else {
-                    None
+            rows.push((k, observed, predicted, mapped));
+        }
+        // The calibrated persistence, for an indicator of one kriged variable.
+        let variance_at = |rho: f64, m: &LocationMap| -> Option<f64> {
+            let at = KrigedAt { variable: m.0, mu: &m.1, se: m.2.as_deref()? };
+            indicator_moments(ind, cal, &at, rho, &nodes, min_cov, all_days.clone()).map(|(_, v)| v)
+        };
+        let calib = single_kriged(ind, variables).and_then(|_| {
+            let errors: Vec<f64> = rows.iter().map(|r| r.2 - r.1).collect();
+            super::window_se::calibrate(&errors, |rho| {
+                rows.iter().map(|r| variance_at(rho, r.3[0])).collect()
+            })
+        });
+        for (k, observed, predicted, mapped) in &rows {
+            let se = match calib {
+                Some(c) => variance_at(c.share, mapped[0]).map(|v| (c.inflation * v).sqrt()),
+                None => {
+                    let v0 = &variables[vars[0]];
+                    let ok: Vec<usize> =
+                        (0..n).filter(|&j| j != *k && climate.study[i][j].value.is_some()).collect();
+                    if v0.spec.method.is_kriging() && ok.len() >= 2 {
+                        let vals: Vec<f64> =
+                            ok.iter().map(|&j| climate.study[i][j].value.unwrap_or(f64::NAN)).collect();
+                        let target = sensors.subset(&[*k]);
+                        map_summary(&sensors.subset(&ok), &vals, &target, &leave_out(&v0.spec, &ok, *k))
+                            .ok()
+                            .and_then(|p| p.se)
+                            .map(|s| s[0])
+                    } else {
+                        None
+                    }
                 }
-            } else {
-                None
             };
             checks.push(super::selfcheck::SensorCheck {
                 indicator: ind.name.clone(),
-                sensor: climate.grid.sensors[k].clone(),
-                observed,
-                predicted,
+                sensor: climate.grid.sensors[*k].clone(),
+                observed: *observed,
+                predicted: *predicted,
                 se,
-                nearest_to: near.clone(),
+                nearest_to: nearest[*k].clone(),
             });
         }
+        calibration.push(calib);
     }
-    checks
+    SelfCheck { checks, calibration }
 }
 
 fn cal_start(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
@@ -647,7 +779,43 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
     w.write(MAPPING_CV_FILE, &mapping_cv_csv(&cv)?)?;
     w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(run))?;
     w.write("mapping_check.csv", &super::selfcheck::mapping_check_csv(&run.checks)?)?;
+    w.write(MAPPING_SE_FILE, &mapping_se_csv(run))?;
     Ok(w.commit()?)
+}
+
+/// The file that says how each indicator's standard errors were made.
+pub const MAPPING_SE_FILE: &str = "mapping_se.csv";
+
+/// `mapping_se.csv`: one row per indicator: `indicator`, `se_from`
+/// (`per_step_errors`: the per-step kriging errors with a persistent share
+/// calibrated on the left-out loggers, [`super::window_se`];
+/// `kriged_window_values`: the loggers' study-period values kriged),
+/// `persistent_share`, `inflation`, `loggers` (left-out loggers used),
+/// `median_z2` (their median squared standardised error after calibration).
+pub fn mapping_se_csv(run: &MapRun) -> Vec<u8> {
+    let mut t =
+        CsvTable::new(["indicator", "se_from", "persistent_share", "inflation", "loggers", "median_z2"]);
+    for (col, c) in run.indicators.iter().zip(&run.window_se) {
+        let mut r = vec![col.name.clone()];
+        match c {
+            Some(c) => r.extend([
+                "per_step_errors".to_string(),
+                number(c.share),
+                number(c.inflation),
+                c.loggers.to_string(),
+                number(c.median_z2),
+            ]),
+            None => r.extend([
+                "kriged_window_values".to_string(),
+                String::new(),
+                String::new(),
+                String::new(),
+                String::new(),
+            ]),
+        }
+        t.row(r);
+    }
+    t.into_bytes()
 }
 
 /// `variogram_ml_fits.csv`: one row per indicator and family, the variogram

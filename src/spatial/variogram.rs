@@ -9,6 +9,7 @@
 
 use super::correlation::Family;
 use super::error::{Result, SpatialError};
+use super::factor::{aliased_columns, least_squares};
 use super::geometry::{PointTree, Points};
 use super::optimise::{Budget, Simplex, Stop, nelder_mead_restarted};
 use nalgebra::DMatrix;
@@ -400,15 +401,28 @@ fn anomalies(points: &Points, z: &[f64], detrend: &Detrend, out: &mut [f64]) -> 
             Detrend::Drift(v) => vec![1.0, v[j]],
         }
     };
-    let fm = DMatrix::from_fn(idx.len(), p, |r, c| f(idx[r])[c]);
-    let zv = nalgebra::DVector::from_iterator(idx.len(), idx.iter().map(|&j| z[j]));
-    let beta = match fm.clone().svd(true, true).solve(&zv, 1e-12) {
-        Ok(b) => b,
-        Err(_) => return false,
+    let mut cols: Vec<Vec<f64>> = (0..p).map(|c| idx.iter().map(|&j| f(j)[c]).collect()).collect();
+    let zv: Vec<f64> = idx.iter().map(|&j| z[j]).collect();
+    // The residuals are `z` minus its projection on the span of the columns,
+    // so a column aliased with the ones before it (a drift constant over the
+    // reporting sensors) is dropped without changing them.
+    let fit = match least_squares(&cols, &zv) {
+        Ok(fit) => fit,
+        Err(_) => {
+            let aliased = aliased_columns(&cols);
+            let mut k = 0;
+            cols.retain(|_| {
+                k += 1;
+                !aliased.contains(&(k - 1))
+            });
+            match least_squares(&cols, &zv) {
+                Ok(fit) => fit,
+                Err(_) => return false,
+            }
+        }
     };
-    let fit = &fm * beta;
     for (r, &j) in idx.iter().enumerate() {
-        out[j] = z[j] - fit[r];
+        out[j] = z[j] - cols.iter().zip(&fit.beta).map(|(c, b)| c[r] * b).sum::<f64>();
     }
     true
 }
