@@ -25,7 +25,7 @@ use crate::report::data::OpeningSegment;
 use crate::report::plan_page::{PlacementPage, PlacementStep};
 use crate::spatial::correlation::Family;
 use crate::spatial::geometry::{Origin, Points, distances_to_opening};
-use crate::spatial::kriging::Method;
+use crate::spatial::kriging::Interpolator;
 use crate::spatial::placement::{DriftValues, Objective, Setting, candidate_grid, place};
 use crate::spatial::variogram::VariogramModel;
 use serde::Deserialize;
@@ -135,9 +135,9 @@ fn stated_setting(plan: &PlanFile, v: &StatedVariogram) -> Result<Setting, PlanE
         ));
     }
     let method = match v.method.as_deref().unwrap_or("ordinary") {
-        "ordinary" => Method::Ordinary,
-        "universal" => Method::Universal,
-        "simple" => Method::Simple { mean: 0.0 },
+        "ordinary" => Interpolator::Ordinary,
+        "universal" => Interpolator::Universal,
+        "simple" => Interpolator::Simple { mean: 0.0 },
         other => {
             return Err(plan.invalid(
                 "placement.variogram.method",
@@ -246,9 +246,10 @@ fn from_study(plan: &PlanFile, sec: &PlacementSection, rel: &str) -> Result<Inpu
             });
         }
     }
-    let method = if vm.spec.drift.is_some() && drift.is_none() { Method::Ordinary } else { vm.spec.method };
+    let method =
+        if vm.spec.drift.is_some() && drift.is_none() { Interpolator::Ordinary } else { vm.spec.method };
     let model = match method {
-        Method::Simple { .. } => vm.spec.model,
+        Interpolator::Simple { .. } => vm.spec.model,
         _ => crate::spatial::kriging::rescale_to(
             &vm.spec.model,
             &loggers,

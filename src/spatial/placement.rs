@@ -53,7 +53,7 @@ use super::covariance::Kernel;
 use super::error::{Result, SpatialError};
 use super::factor::Bordered;
 use super::geometry::Points;
-use super::kriging::Method;
+use super::kriging::Interpolator;
 use super::variogram::VariogramModel;
 use faer::Mat;
 
@@ -99,11 +99,11 @@ impl Objective {
 #[derive(Clone, Debug)]
 pub struct Setting {
     /// Simple, ordinary, universal or external-drift kriging.
-    pub method: Method,
+    pub method: Interpolator,
     /// The variogram of the indicator (its own sill).
     pub model: VariogramModel,
     /// The external drift's value at the loggers, pots and candidates
-    /// (required by [`Method::ExternalDrift`], ignored otherwise).
+    /// (required by [`Interpolator::ExternalDrift`], ignored otherwise).
     pub drift: Option<DriftValues>,
 }
 
@@ -170,11 +170,11 @@ pub struct Tracker {
 }
 
 /// Trend basis of `method` at `(x, y)` with drift value `v`.
-fn trend_row(method: Method, x: f64, y: f64, v: f64) -> Vec<f64> {
+fn trend_row(method: Interpolator, x: f64, y: f64, v: f64) -> Vec<f64> {
     match method {
-        Method::Ordinary => vec![1.0],
-        Method::Universal => vec![1.0, x, y],
-        Method::ExternalDrift => vec![1.0, v],
+        Interpolator::Ordinary => vec![1.0],
+        Interpolator::Universal => vec![1.0, x, y],
+        Interpolator::ExternalDrift => vec![1.0, v],
         _ => Vec::new(),
     }
 }
@@ -196,7 +196,7 @@ fn check_setting(s: &Setting, loggers: &Points, pots: &Points, candidates: &Poin
             ),
         });
     }
-    if s.method == Method::ExternalDrift {
+    if s.method == Interpolator::ExternalDrift {
         let Some(d) = &s.drift else {
             return Err(SpatialError::BadInput {
                 what: "external drift".into(),
@@ -309,7 +309,7 @@ impl Tracker {
     pub fn new(setting: &Setting, loggers: &Points, pots: &Points, candidates: &Points) -> Result<Tracker> {
         check_setting(setting, loggers, pots, candidates)?;
         let sys = factor_loggers(setting, loggers)?;
-        let dv = setting.drift.as_ref().filter(|_| setting.method == Method::ExternalDrift);
+        let dv = setting.drift.as_ref().filter(|_| setting.method == Interpolator::ExternalDrift);
         let st = solve_points(setting, sys.as_ref(), loggers, pots, dv.map(|d| d.pots.as_slice()));
         let sc =
             solve_points(setting, sys.as_ref(), loggers, candidates, dv.map(|d| d.candidates.as_slice()));
@@ -445,7 +445,7 @@ pub fn removal_costs(setting: &Setting, loggers: &Points, pots: &Points) -> Resu
     };
     check_setting(&s, loggers, pots, &empty)?;
     let Some(sys) = factor_loggers(&s, loggers)? else { return Ok(Vec::new()) };
-    let dv = s.drift.as_ref().filter(|_| s.method == Method::ExternalDrift);
+    let dv = s.drift.as_ref().filter(|_| s.method == Interpolator::ExternalDrift);
     let st = solve_points(&s, Some(&sys), loggers, pots, dv.map(|d| d.pots.as_slice()));
     let sill = s.model.sill();
     let var: Vec<f64> = (0..pots.len()).map(|t| (sill - quad(&st, t, &st, t)).max(0.0)).collect();

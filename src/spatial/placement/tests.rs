@@ -33,7 +33,7 @@ fn join(a: &Points, b: &Points, idx: &[usize]) -> Points {
 
 /// Kriging variance at `pots` from `loggers` by a fresh solve of the kriging stage's own system.
 fn fresh_var(
-    method: Method,
+    method: Interpolator,
     loggers: &Points,
     pots: &Points,
     drift: Option<(Vec<f64>, Vec<f64>)>,
@@ -60,18 +60,24 @@ fn drift_of(p: &Points) -> Vec<f64> {
 #[test]
 fn updates_equal_fresh_kriging_solves() {
     let mut r = ChaCha8Rng::seed_from_u64(11);
-    for method in [Method::Simple { mean: 0.0 }, Method::Ordinary, Method::Universal, Method::ExternalDrift] {
+    for method in [
+        Interpolator::Simple { mean: 0.0 },
+        Interpolator::Ordinary,
+        Interpolator::Universal,
+        Interpolator::ExternalDrift,
+    ] {
         let loggers = random_points(&mut r, 6, 10.0, 6.0);
         let pots = random_points(&mut r, 35, 10.0, 6.0);
         let cands = random_points(&mut r, 25, 10.0, 6.0);
-        let drift = (method == Method::ExternalDrift).then(|| DriftValues {
+        let drift = (method == Interpolator::ExternalDrift).then(|| DriftValues {
             loggers: drift_of(&loggers),
             pots: drift_of(&pots),
             candidates: drift_of(&cands),
         });
         let setting = Setting { method, model: model(), drift };
         let mut tr = Tracker::new(&setting, &loggers, &pots, &cands).unwrap();
-        let dpair = |l: &Points| (method == Method::ExternalDrift).then(|| (drift_of(l), drift_of(&pots)));
+        let dpair =
+            |l: &Points| (method == Interpolator::ExternalDrift).then(|| (drift_of(l), drift_of(&pots)));
         let v0 = fresh_var(method, &loggers, &pots, dpair(&loggers));
         for (a, b) in tr.variances().iter().zip(&v0) {
             assert_relative_eq!(*a, *b, max_relative = 1e-9, epsilon = 1e-12);
@@ -113,14 +119,14 @@ fn greedy_against_exhaustive_search() {
     let pots = random_points(&mut r, 30, 8.0, 5.0);
     let cands = random_points(&mut r, 12, 8.0, 5.0);
     for objective in [Objective::MeanSe, Objective::MaxSe] {
-        let setting = Setting { method: Method::Ordinary, model: model(), drift: None };
+        let setting = Setting { method: Interpolator::Ordinary, model: model(), drift: None };
         let res = place(&setting, &loggers, &pots, &cands, 3, objective).unwrap();
         for k in 1..=3usize {
             let mut best = f64::INFINITY;
             let mut best_set = vec![];
             let mut set: Vec<usize> = (0..k).collect();
             loop {
-                let v = fresh_var(Method::Ordinary, &join(&loggers, &cands, &set), &pots, None);
+                let v = fresh_var(Interpolator::Ordinary, &join(&loggers, &cands, &set), &pots, None);
                 let o = objective.of_variances(&v);
                 if o < best {
                     best = o;
@@ -178,8 +184,8 @@ fn agrees_with_numpy_reference() {
     let nums = crate::spatial::kriging::testdata::nums;
     for case in fx["cases"].as_array().unwrap() {
         let method = match case["method"].as_str().unwrap() {
-            "ordinary" => Method::Ordinary,
-            _ => Method::Universal,
+            "ordinary" => Interpolator::Ordinary,
+            _ => Interpolator::Universal,
         };
         let objective = Objective::parse(case["objective"].as_str().unwrap()).unwrap();
         let setting = Setting { method, model: model(), drift: None };
@@ -216,12 +222,12 @@ fn agrees_with_numpy_reference() {
 fn a_logger_the_trend_needs_is_not_removable() {
     let loggers = pts(&[[1.0, 1.0], [9.0, 1.0], [1.0, 5.0], [9.0, 5.0], [4.0, 3.5]]);
     let pots = pts(&[[5.0, 3.0], [2.0, 2.0]]);
-    let setting = Setting { method: Method::Universal, model: model(), drift: None };
+    let setting = Setting { method: Interpolator::Universal, model: model(), drift: None };
     let rem = removal_costs(&setting, &loggers, &pots).unwrap();
     assert_eq!(rem.len(), 5);
     for (i, r) in rem.iter().enumerate() {
         let keep: Vec<usize> = (0..5).filter(|&j| j != i).collect();
-        let v = fresh_var(Method::Universal, &loggers.subset(&keep), &pots, None);
+        let v = fresh_var(Interpolator::Universal, &loggers.subset(&keep), &pots, None);
         assert_relative_eq!(r.se.unwrap().0, Objective::MeanSe.of_variances(&v), max_relative = 1e-9);
     }
     let three = loggers.subset(&[0, 1, 2]);
@@ -235,10 +241,10 @@ fn a_logger_the_trend_needs_is_not_removable() {
 fn bad_settings_are_refused() {
     let pots = pts(&[[5.0, 3.0]]);
     let one = pts(&[[1.0, 1.0]]);
-    let s = Setting { method: Method::Universal, model: model(), drift: None };
+    let s = Setting { method: Interpolator::Universal, model: model(), drift: None };
     let e = Tracker::new(&s, &one, &pots, &pots).unwrap_err().to_string();
     assert!(e.contains("universal"), "{e}");
-    let s = Setting { method: Method::Nearest, model: model(), drift: None };
+    let s = Setting { method: Interpolator::Nearest, model: model(), drift: None };
     assert!(Tracker::new(&s, &one, &pots, &pots).is_err());
     assert!(candidate_grid(10.0, 5.0, 0.0).is_err());
     let g = candidate_grid(10.0, 5.0, 1.0).unwrap();
@@ -253,7 +259,7 @@ fn bad_settings_are_refused() {
 fn a_new_compartment_without_loggers() {
     let none = Points { ids: vec![], x: vec![], y: vec![] };
     let pots = pts(&[[2.0, 2.0], [6.0, 2.0]]);
-    let s = Setting { method: Method::Simple { mean: 0.0 }, model: model(), drift: None };
+    let s = Setting { method: Interpolator::Simple { mean: 0.0 }, model: model(), drift: None };
     let res = place(&s, &none, &pots, &pots, 1, Objective::MaxSe).unwrap();
     assert_relative_eq!(res.before[0], model().sill().sqrt(), max_relative = 1e-12);
     assert_eq!(res.added.len(), 1);
