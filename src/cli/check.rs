@@ -17,6 +17,9 @@ pub struct CheckArgs {
     /// The study file (TOML).
     #[arg(value_name = "STUDY")]
     pub study: PathBuf,
+    /// Instead of checking, read the exports matched by the [[logs]] globs and print a [[logs]] block for each format found (see `potclim init --logs`).
+    #[arg(long)]
+    pub suggest: bool,
 }
 
 /// Small formatting helpers shared by `check` and `ingest`.
@@ -36,6 +39,9 @@ pub(crate) mod timefmt {
 /// Run `potclim check`.
 pub fn run(a: CheckArgs) -> anyhow::Result<()> {
     let study = crate::io::study::Study::load(&a.study)?;
+    if a.suggest {
+        return suggest(&study);
+    }
     let plan = crate::pipeline::Plan::from_study(&study)
         .with_context(|| format!("while checking {}", a.study.display()))?;
     let inv = crate::io::inventory::inventory(&study)
@@ -138,6 +144,46 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
         );
     } else {
         outln!("ok: every input is readable and every section is ready for `potclim run`");
+    }
+    Ok(())
+}
+
+/// `check --suggest`: detected blocks for the files of the study's
+/// `[[logs]]` globs, printed (the study file is not changed).
+fn suggest(study: &crate::io::study::Study) -> anyhow::Result<()> {
+    let base = study.path.parent().map(std::path::Path::to_path_buf).unwrap_or_default();
+    let mut files = Vec::new();
+    for (i, log) in study.spec.logs.iter().enumerate() {
+        for pat in &log.files {
+            let full = study.resolve(pat).to_string_lossy().into_owned();
+            let found: Vec<PathBuf> = glob::glob(&full)
+                .with_context(|| format!("logs[{}].files: `{pat}` is not a valid glob pattern", i + 1))?
+                .filter_map(|p| p.ok())
+                .filter(|p| p.is_file())
+                .collect();
+            if found.is_empty() {
+                outln!("note: logs[{}].files: `{pat}` matches no file", i + 1);
+            }
+            files.extend(found);
+        }
+    }
+    files.sort();
+    files.dedup();
+    if files.is_empty() {
+        anyhow::bail!(
+            "no export matched by the [[logs]] globs of {}; nothing to suggest",
+            study.path.display()
+        );
+    }
+    let (blocks, groups, errors) = crate::io::detect::suggest(&files, &base);
+    if !groups.is_empty() {
+        outln!("# Suggested [[logs]] blocks for {} (paths relative to its folder):", study.path.display());
+        outln!("{}", blocks.trim_end());
+        outln!();
+    }
+    super::init::print_detection(&groups, &errors)?;
+    if !errors.is_empty() {
+        anyhow::bail!("{} file(s) not recognised (named above)", errors.len());
     }
     Ok(())
 }

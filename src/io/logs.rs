@@ -265,7 +265,7 @@ fn compile_block(
         zone_given,
         sensor,
         skip_lines: log.skip_lines.or(implied.map(|m| m.skip_lines)).unwrap_or(0),
-        after_header: implied.map_or(0, |m| m.after_header),
+        after_header: log.lines_after_header.or(implied.map(|m| m.after_header)).unwrap_or(0),
         layout,
         channels,
         files,

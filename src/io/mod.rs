@@ -11,6 +11,7 @@
 #![allow(clippy::result_large_err)]
 
 pub mod clock;
+pub mod detect;
 pub mod error;
 pub mod ingest;
 pub mod inventory;

@@ -198,6 +198,11 @@ pub struct LogSection {
     /// Preamble lines before the header. Default 0.
     #[serde(default)]
     pub skip_lines: Option<usize>,
+    /// Non-data lines between the header and the first data row (a units
+    /// line, a line of processing codes). Default 0, or what the layout
+    /// implies.
+    #[serde(default)]
+    pub lines_after_header: Option<usize>,
     /// Which columns hold which channel, in which unit (with a layout, the
     /// channels not named are found by their header words).
     #[serde(default)]
