@@ -35,3 +35,72 @@ fn init_writes_a_template_that_parses_and_never_overwrites() {
     assert_eq!(code, 1);
     assert!(err.contains("pots.csv"), "{err}");
 }
+
+/// The example files the template describes (and README.md's first study
+/// shows): 24 pots of two accessions under two regimes on a 4 m x 2 m bench,
+/// four loggers in two exports of seven days at 10 minutes, with a little
+/// seeded noise so that no reading looks stuck.
+fn write_template_example(dir: &std::path::Path) {
+    let mut state: u64 = 12345;
+    let mut rnd = move || {
+        state = (state * 1_103_515_245 + 12_345) % (1 << 31);
+        state as f64 / (1u64 << 31) as f64
+    };
+    let mut pots = String::from("pot,x,y,accession,regime,height_cm\n");
+    for k in 0..24 {
+        let (x, y) = (0.25 + 0.5 * (k % 8) as f64, 0.4 + 0.6 * (k / 8) as f64);
+        let acc = ["A1", "A2"][k % 2];
+        let reg = ["wet", "dry"][(k / 2) % 2];
+        pots.push_str(&format!("P{:02},{x},{y},{acc},{reg},{:.1}\n", k + 1, 30.0 + x - 0.5 * y + rnd()));
+    }
+    std::fs::write(dir.join("pots.csv"), pots).unwrap();
+    std::fs::write(dir.join("sensors.csv"), "sensor,x,y\nL1,0.2,0.2\nL2,3.8,0.2\nL3,0.2,1.8\nL4,3.8,1.8\n")
+        .unwrap();
+    std::fs::create_dir_all(dir.join("logs")).unwrap();
+    for (file, loggers) in [("house4_east.csv", ["L1", "L2"]), ("house4_west.csv", ["L3", "L4"])] {
+        let mut t = String::from("Timestamp,Logger,Temp,RH,PAR\n");
+        for (j, l) in loggers.iter().enumerate() {
+            for s in 0..(7 * 144) {
+                let h = (s % 144) as f64 / 6.0;
+                let temp = 15.0 + 6.0 * ((h - 9.0) / 24.0 * std::f64::consts::TAU).sin() + 0.8 * j as f64 + rnd();
+                let rh = 60.0 + 10.0 * rnd();
+                let par = if (6.0..20.0).contains(&h) {
+                    400.0 * ((h - 6.0) / 14.0 * std::f64::consts::PI).sin() + 20.0 * rnd()
+                } else {
+                    0.0
+                };
+                t.push_str(&format!(
+                    "2026-03-{:02} {:02}:{:02}:00,{l},{temp:.1},{rh:.0},{par:.0}\n",
+                    1 + s / 144,
+                    (s % 144) / 6,
+                    (s % 6) * 10
+                ));
+            }
+        }
+        std::fs::write(dir.join("logs").join(file), t).unwrap();
+    }
+}
+
+#[test]
+fn init_then_check_passes_on_the_templates_own_example_files() {
+    let d = tempfile::tempdir().unwrap();
+    let (code, out, err) = run(&["init", d.path().to_str().unwrap()]);
+    assert_eq!(code, 0, "{out}{err}");
+    assert!(out.contains("potclim run"), "the closing advice names run: {out}");
+    let text = std::fs::read_to_string(d.path().join("study.toml")).unwrap();
+    assert!(text.contains("\n[[indicator]]\n") && text.contains("\n# [[logs]]\n"), "{text}");
+    assert!(text.contains("potclim run study.toml"), "{text}");
+    write_template_example(d.path());
+    let study = d.path().join("study.toml");
+    let (code, out, err) = run(&["check", study.to_str().unwrap()]);
+    assert_eq!(code, 0, "{out}{err}");
+    assert!(out.contains("ok: every input is readable"), "{out}");
+    assert!(out.contains("pots: 24") && out.contains("4 with readings"), "{out}");
+    assert!(out.contains("drivers: night_cold_hours (indicator)"), "{out}");
+    assert!(out.contains("reference levels") && out.contains("accession = A1"), "{out}");
+    // ... and `run` then goes through to the report (a second or so).
+    let (code, out, err) = run(&["run", study.to_str().unwrap()]);
+    assert_eq!(code, 0, "{out}{err}");
+    assert!(out.contains("\nverdict: ") && out.contains("chosen model: "), "{out}");
+    assert!(d.path().join("results").join("report.html").is_file(), "{out}");
+}
