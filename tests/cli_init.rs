@@ -62,7 +62,8 @@ fn write_template_example(dir: &std::path::Path) {
         for (j, l) in loggers.iter().enumerate() {
             for s in 0..(7 * 144) {
                 let h = (s % 144) as f64 / 6.0;
-                let temp = 15.0 + 6.0 * ((h - 9.0) / 24.0 * std::f64::consts::TAU).sin() + 0.8 * j as f64 + rnd();
+                let temp =
+                    15.0 + 6.0 * ((h - 9.0) / 24.0 * std::f64::consts::TAU).sin() + 0.8 * j as f64 + rnd();
                 let rh = 60.0 + 10.0 * rnd();
                 let par = if (6.0..20.0).contains(&h) {
                     400.0 * ((h - 6.0) / 14.0 * std::f64::consts::PI).sin() + 20.0 * rnd()
@@ -103,4 +104,66 @@ fn init_then_check_passes_on_the_templates_own_example_files() {
     assert_eq!(code, 0, "{out}{err}");
     assert!(out.contains("\nverdict: ") && out.contains("chosen model: "), "{out}");
     assert!(d.path().join("results").join("report.html").is_file(), "{out}");
+    first_screen_agrees_with_summary(&d.path().join("results"));
+}
+
+/// The report's first screen on the four-logger example: the plain lines
+/// carry summary.json's numbers, the answer box warns (four loggers cannot
+/// map the cold hours well enough), no backtick reaches the page as text,
+/// and "what next" names the pot with the largest kriging SE.
+fn first_screen_agrees_with_summary(results: &std::path::Path) {
+    use potclim::report::html::sig;
+    let html = std::fs::read_to_string(results.join("report.html")).unwrap();
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(results.join("summary.json")).unwrap()).unwrap();
+    let h = &summary["headline"];
+    let e = &h["effect"];
+    let num = |v: &serde_json::Value| v.as_f64().unwrap();
+    let answer =
+        &html[html.find("<div class=\"answer\">").unwrap()..html.find("<dl class=\"words\">").unwrap()];
+    let plain = |v: f64| sig(v, 4).trim_start_matches('-').to_string();
+    for v in [num(&e["high"]) - num(&e["low"]), num(&e["low"]), num(&e["high"]), num(&e["effect"]).abs()] {
+        assert!(answer.contains(&plain(v)), "{} not in {answer}", plain(v));
+    }
+    let quote = format!(
+        "a change of {} cm (95 % interval {} to {} cm), which includes the uncertainty",
+        sig(num(&e["effect"]), 4),
+        sig(num(&e["ci_low"]), 4),
+        sig(num(&e["ci_high"]), 4)
+    );
+    assert!(answer.contains(&quote), "{quote} not in {answer}");
+    let c = &h["certainty"];
+    assert!(
+        answer.contains(&format!("carry {:.0} % of the Akaike weight", 100.0 * num(&c["kind_weight"]))),
+        "{answer}"
+    );
+    // Akaike weights from comparison.csv: the kind's weights sum as stated.
+    let csv = std::fs::read_to_string(results.join("comparison.csv")).unwrap();
+    let w: f64 = csv
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .filter(|f| f[1] == "night_cold_hours" && f[2] == "none")
+        .map(|f| f[9].parse::<f64>().unwrap())
+        .sum();
+    assert!((w - num(&c["kind_weight"])).abs() < 1e-12, "{w} {c}");
+    assert!((num(&c["evidence_ratio"]) - (num(&c["other_delta"]) / 2.0).exp()).abs() < 1e-9, "{c}");
+    // Four loggers: the map's SE is about as large as the driver's spread.
+    assert!(num(&e["map_se"]) >= potclim::model::verdict::WEAK_MAP_RATIO * num(&e["driver_sd"]), "{e}");
+    assert!(answer.contains("Less sure than it looks") && answer.contains("is uncertain"), "{answer}");
+    assert!(!answer.contains('`'), "backticks printed as text: {answer}");
+    let pot = h["next_logger"]["pot"].as_str().unwrap();
+    // ... the pot with the largest kriging SE in the mapping stage's own table.
+    let cov = std::fs::read_to_string(results.join("pot_covariates.csv")).unwrap();
+    let head: Vec<&str> = cov.lines().next().unwrap().split(',').collect();
+    let j = head.iter().position(|c| *c == "night_cold_hours_se").unwrap();
+    let largest = cov
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .max_by(|a, b| a[j].parse::<f64>().unwrap().total_cmp(&b[j].parse::<f64>().unwrap()))
+        .unwrap();
+    assert_eq!(largest[0], pot);
+    assert!(html.contains(&format!("An extra logger would cut the map's error most at pot {pot}")), "{html}");
+    assert!(!html.contains(">-0.0<") && !html.contains(" -0.00 "), "negative zero on the page");
 }

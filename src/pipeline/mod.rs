@@ -277,7 +277,10 @@ fn verdict_in_memory(
     let mut data = assemble(&plan.pots, &spec, Some(&cov), &cov.path)?;
     let added = add_opening_drivers(study, &mut spec, &mut data);
     let sensor_values = sensor_values(plan, climate);
-    Ok(crate::model::verdict::verdict_on(&data, &spec, &added, &sensor_values, &plan.verdict, progress)?)
+    let mut r =
+        crate::model::verdict::verdict_on(&data, &spec, &added, &sensor_values, &plan.verdict, progress)?;
+    r.headline = Some(crate::model::verdict::headline(&r, &data, Some(&cov)));
+    Ok(r)
 }
 
 /// Each indicator's value per sensor over the study period, with the
@@ -341,6 +344,8 @@ fn report_data(
     let (vsection, models, means, residual_variograms) =
         crate::report::from_verdict::to_report(verdict, &units);
     data.adjusted_means_unit = units.trait_unit.clone();
+    let mut vsection = vsection;
+    vsection.map_warnings = crate::report::assemble::fallback_warnings(map);
     data.verdict = Some(vsection);
     data.models = Some(models);
     data.adjusted_means = means;

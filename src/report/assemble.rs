@@ -242,3 +242,20 @@ pub fn provenance(study: &Study, ing: Option<&Ingested>, started: &str, seconds:
         seconds,
     }
 }
+
+/// The mapping stage's warnings that weaken the answer: every variable whose
+/// variogram could not be fitted and was mapped with the documented default
+/// model ([`crate::spatial::mapping::choose_model`]), as the stage worded them.
+pub fn fallback_warnings(map: &MapRun) -> Vec<String> {
+    map.variables
+        .iter()
+        .filter(|v| v.chosen_family.is_none())
+        .map(|v| {
+            let why = v.warnings.first().map(|w| format!(" ({w})")).unwrap_or_default();
+            format!(
+                "The variogram of {} could not be fitted and fell back to a default model{why}: its maps, their standard errors and every effect of a driver computed from them rest on that assumption.",
+                v.name
+            )
+        })
+        .collect()
+}

@@ -81,6 +81,14 @@ pub struct VerdictSection {
     /// What the data can and cannot show, one sentence each.
     #[serde(default)]
     pub cautions: Vec<String>,
+    /// The answer in plain numbers, as the verdict stage computed it
+    /// (typical effect, certainty of the model choice, warnings, what next).
+    #[serde(default)]
+    pub headline: Option<crate::model::verdict::Headline>,
+    /// Warnings of the mapping stage that weaken the answer (a variogram that
+    /// fell back to its default model), one sentence each.
+    #[serde(default)]
+    pub map_warnings: Vec<String>,
 }
 
 /// One driver of the chosen (or full driver) model.
