@@ -96,7 +96,7 @@ fn init_then_check_passes_on_the_templates_own_example_files() {
     let (code, out, err) = run(&["check", study.to_str().unwrap()]);
     assert_eq!(code, 0, "{out}{err}");
     assert!(out.contains("ok: every input is readable"), "{out}");
-    assert!(out.contains("pots: 24") && out.contains("4 with readings"), "{out}");
+    assert!(out.contains("pots: 24") && out.contains("4 in the sensor table, 4 with readings"), "{out}");
     assert!(out.contains("drivers: night_cold_hours (indicator)"), "{out}");
     assert!(out.contains("reference levels") && out.contains("accession = A1"), "{out}");
     // ... and `run` then goes through to the report (a second or so).
@@ -105,6 +105,19 @@ fn init_then_check_passes_on_the_templates_own_example_files() {
     assert!(out.contains("\nverdict: ") && out.contains("chosen model: "), "{out}");
     assert!(d.path().join("results").join("report.html").is_file(), "{out}");
     first_screen_agrees_with_summary(&d.path().join("results"));
+    // A fifth logger that never logged and a door: the maps grey the one and
+    // draw the other, and each logger carries its own value.
+    std::fs::write(
+        d.path().join("sensors.csv"),
+        "sensor,x,y\nL1,0.2,0.2\nL2,3.8,0.2\nL3,0.2,1.8\nL4,3.8,1.8\nL5,2.0,1.0\n",
+    )
+    .unwrap();
+    let mut text = std::fs::read_to_string(&study).unwrap();
+    text.push_str("\n[[openings]]\nname = \"door\"\nfrom = [0.0, 0.5]\nto = [0.0, 1.5]\n");
+    std::fs::write(&study, text).unwrap();
+    let (code, out, err) = run(&["run", study.to_str().unwrap()]);
+    assert_eq!(code, 0, "{out}{err}");
+    maps_draw_openings_and_loggers(&d.path().join("results"));
 }
 
 /// The report's first screen on the four-logger example: the plain lines
@@ -166,4 +179,29 @@ fn first_screen_agrees_with_summary(results: &std::path::Path) {
     assert_eq!(largest[0], pot);
     assert!(html.contains(&format!("An extra logger would cut the map's error most at pot {pot}")), "{html}");
     assert!(!html.contains(">-0.0<") && !html.contains(" -0.00 "), "negative zero on the page");
+}
+
+/// Every indicator map draws the door and each logger with its own value
+/// (sensor_indicators.csv); the silent logger is greyed out and named.
+fn maps_draw_openings_and_loggers(results: &std::path::Path) {
+    use potclim::report::html::sig;
+    let html = std::fs::read_to_string(results.join("report.html")).unwrap();
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(results.join("summary.json")).unwrap()).unwrap();
+    assert!(summary["headline"]["blocking"].as_str().unwrap().contains("distance to the door"), "{summary}");
+    let figure = |id: &str| {
+        let i = html.find(&format!("id=\"{id}\"")).unwrap_or_else(|| panic!("no figure {id}"));
+        html[i..i + html[i..].find("</svg>").unwrap()].to_string()
+    };
+    let svg = figure("fig-indicator-night-cold-hours");
+    for s in [&svg, &figure("fig-indicator-night-cold-hours-se")] {
+        assert!(s.contains("\ndoor\n"), "no door on the map");
+        assert!(s.contains("\nL5 (no readings)\n"), "silent logger not named on the map");
+    }
+    let ind = std::fs::read_to_string(results.join("sensor_indicators.csv")).unwrap();
+    for l in ind.lines().skip(1) {
+        let f: Vec<&str> = l.split(',').collect();
+        let label = format!("\n{} {}\n", f[0], sig(f[1].parse::<f64>().unwrap(), 3));
+        assert!(svg.contains(&label), "{label} not on the map");
+    }
 }

@@ -341,6 +341,9 @@ fn report_data(
         variograms: crate::report::assemble::variograms(map),
         ..Default::default()
     };
+    if let Some(l) = data.layout.as_mut() {
+        crate::report::assemble::mark_silent(l, climate);
+    }
     let (vsection, models, means, residual_variograms) =
         crate::report::from_verdict::to_report(verdict, &units);
     data.adjusted_means_unit = units.trait_unit.clone();

@@ -297,14 +297,26 @@ fn plain_lines(out: &mut String, v: &VerdictSection, h: &Headline, unit: &str) {
         100.0 * c.kind_weight,
         100.0 * c.chosen_weight
     );
-    if let (Some(m), Some(d), Some(r)) = (&c.other_model, c.other_delta, c.evidence_ratio) {
-        let _ = write!(
-            out,
-            "; the best of them is {} as likely as the best model of another kind, <code>{}</code> ({} AIC units behind)",
-            times(r),
-            escape(m),
-            fixed(d, 1)
-        );
+    match (&c.other_model, c.other_delta, c.evidence_ratio) {
+        (Some(m), Some(d), Some(r)) if d >= 0.0 => {
+            let _ = write!(
+                out,
+                "; the best of them is {} as likely as the best model of another kind, <code>{}</code> ({} AIC units behind)",
+                times(r),
+                escape(m),
+                fixed(d, 1)
+            );
+        }
+        (Some(m), Some(d), Some(r)) => {
+            let _ = write!(
+                out,
+                "; the best model of another kind, <code>{}</code>, is {} as likely ({} AIC units better, within the tie margin, so the simpler model was chosen): the choice is not sure",
+                escape(m),
+                times(1.0 / r),
+                fixed(-d, 1)
+            );
+        }
+        _ => {}
     }
     out.push_str(".</li></ul>");
 }
@@ -350,6 +362,7 @@ fn layout_figure(d: &ReportData, l: &LayoutSection) -> Result<Figure, FigureErro
         legend: format!("{} ({})", l.trait_name, l.trait_unit),
         sensors: &l.sensors,
         openings: &l.openings,
+        sensor_values: Vec::new(),
         wide: true,
     })
 }
@@ -438,11 +451,19 @@ fn section_climate(d: &ReportData, out: &mut String) {
             let _ = writeln!(out, "<p class=\"lead\">{}</p>", escape(desc));
         }
         out.push_str("<div class=\"figs\">\n");
-        match figures::indicator_maps(&s.name, &s.unit, &s.points, extent(d), sensors(d)) {
+        match figures::indicator_maps(
+            &s.name,
+            &s.unit,
+            &s.points,
+            extent(d),
+            sensors(d),
+            openings(d),
+            &s.loggers,
+        ) {
             Ok((v, se)) => {
                 out.push_str(&figure_html(
                     Ok(v),
-                    "The indicator at each pot, interpolated from the loggers (triangles) by kriging.",
+                    "The indicator at each pot, interpolated from the loggers (triangles, each filled with and labelled by its own value over the study period; grey: no readings) by kriging; thick lines: openings. Where a pot beside a logger has a very different colour, the map does not honour that logger.",
                 ));
                 out.push_str(&figure_html(
                     Ok(se),
@@ -799,7 +820,15 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
     }
     if let Some(c) = &d.climate {
         for s in &c.surfaces {
-            match figures::indicator_maps(&s.name, &s.unit, &s.points, extent(d), sensors(d)) {
+            match figures::indicator_maps(
+                &s.name,
+                &s.unit,
+                &s.points,
+                extent(d),
+                sensors(d),
+                openings(d),
+                &s.loggers,
+            ) {
                 Ok((a, b)) => out.extend([Ok(a), Ok(b)]),
                 Err(e) => out.push(Err(e)),
             }

@@ -31,10 +31,10 @@ pub fn sample_report() -> ReportData {
     let cultivars = ["Genovese", "Thai", "Lemon", "Purple Ruffles", "Greek dwarf", "Cinnamon"];
     let feeds = ["low feed", "high feed"];
     let sensors = vec![
-        SensorPoint { id: "L1 pad end".into(), x: 0.8, y: 2.5 },
-        SensorPoint { id: "L2".into(), x: 4.5, y: 1.0 },
-        SensorPoint { id: "L3".into(), x: 7.5, y: 4.0 },
-        SensorPoint { id: "L4 fan end".into(), x: 11.2, y: 2.5 },
+        SensorPoint { id: "L1 pad end".into(), x: 0.8, y: 2.5, silent: false },
+        SensorPoint { id: "L2".into(), x: 4.5, y: 1.0, silent: false },
+        SensorPoint { id: "L3".into(), x: 7.5, y: 4.0, silent: false },
+        SensorPoint { id: "L4 fan end".into(), x: 11.2, y: 2.5, silent: false },
     ];
     let openings = vec![
         OpeningSegment { name: "cooling_pad".into(), from: [0.0, 0.5], to: [0.0, 4.5] },
@@ -303,6 +303,12 @@ pub fn sample_report() -> ReportData {
                 unit: "h".into(),
                 description: Some("Hours below 12 °C between dusk and dawn over each pot's growth window.".into()),
                 points: mapped,
+                loggers: vec![
+                    LoggerValue { id: "L1 pad end".into(), value: Some(112.0) },
+                    LoggerValue { id: "L2".into(), value: Some(71.0) },
+                    LoggerValue { id: "L3".into(), value: Some(52.0) },
+                    LoggerValue { id: "L4 fan end".into(), value: Some(38.0) },
+                ],
             }],
             series: vec![temperature, dli],
             qc: vec![
