@@ -9,7 +9,7 @@ pub const TEMPLATE: &str = include_str!("study_template.toml");
 /// The long help of `potclim init`.
 pub const HELP: &str = "Write study.toml, a commented template of the study file, into DIR (default: the current folder; created if missing).
 
-Edit it to name your pot table, sensor table and logger exports, then run `potclim check study.toml` to validate the inputs and `potclim ingest study.toml` to clean the logs. Every key is documented in docs/study-file.md.
+The template describes a small example study (pots.csv, sensors.csv, logs/house4_*.csv, one indicator and a trait model) and passes `potclim check` as soon as such files exist. Edit it to name your pot table, sensor table, logger exports, indicators and trait, then run `potclim check study.toml` until it says ok, and `potclim run study.toml` for every table and the report. Every key is documented in docs/study-file.md; README.md walks through a first study.
 
 An existing study.toml is never overwritten unless --force is given.
 
@@ -42,7 +42,10 @@ pub fn run(a: InitArgs) -> anyhow::Result<()> {
     let text = if a.logs.is_empty() { TEMPLATE.to_string() } else { with_detected_logs(&a.logs, &a.dir)? };
     std::fs::write(&path, text).with_context(|| format!("cannot write {}", path.display()))?;
     outln!("wrote {}", path.display());
-    outln!("next: edit it to name your files, then run `potclim check {}`", path.display());
+    outln!(
+        "next: edit it to name your files, columns, indicators and trait; then `potclim check {0}` until it says ok, and `potclim run {0}` for the report",
+        path.display()
+    );
     Ok(())
 }
 
@@ -135,7 +138,7 @@ mod tests {
         let st =
             crate::io::study::Study::from_source(std::path::Path::new("x/study.toml"), TEMPLATE.to_string());
         let st = st.unwrap();
-        assert_eq!(st.spec.logs.len(), 2);
+        assert_eq!(st.spec.logs.len(), 1);
         assert_eq!(st.spec.qc, crate::io::qc::QcSettings::default());
     }
 

@@ -278,7 +278,10 @@ pub fn verdict_in_memory(
     let mut data = assemble(&plan.pots, &spec, Some(&cov), &cov.path)?;
     let added = add_opening_drivers(study, &mut spec, &mut data);
     let sensor_values = sensor_values(plan, climate);
-    Ok(crate::model::verdict::verdict_on(&data, &spec, &added, &sensor_values, &plan.verdict, progress)?)
+    let mut r =
+        crate::model::verdict::verdict_on(&data, &spec, &added, &sensor_values, &plan.verdict, progress)?;
+    r.headline = Some(crate::model::verdict::headline(&r, &data, Some(&cov)));
+    Ok(r)
 }
 
 /// Each indicator's value per sensor over the study period, with the
@@ -339,9 +342,14 @@ fn report_data(
         variograms: crate::report::assemble::variograms(map),
         ..Default::default()
     };
+    if let Some(l) = data.layout.as_mut() {
+        crate::report::assemble::mark_silent(l, climate);
+    }
     let (vsection, models, means, residual_variograms) =
         crate::report::from_verdict::to_report(verdict, &units);
     data.adjusted_means_unit = units.trait_unit.clone();
+    let mut vsection = vsection;
+    vsection.map_warnings = crate::report::assemble::fallback_warnings(map);
     data.verdict = Some(vsection);
     data.models = Some(models);
     data.adjusted_means = means;

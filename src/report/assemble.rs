@@ -38,7 +38,9 @@ pub fn layout(
         .collect();
     let sensors = sensors
         .map(|s| {
-            (0..s.ids.len()).map(|i| SensorPoint { id: s.ids[i].clone(), x: s.x[i], y: s.y[i] }).collect()
+            (0..s.ids.len())
+                .map(|i| SensorPoint { id: s.ids[i].clone(), x: s.x[i], y: s.y[i], silent: false })
+                .collect()
         })
         .unwrap_or_default();
     let openings = study
@@ -117,6 +119,16 @@ pub fn climate(ing: &Ingested, climate: &ClimateRun, map: &MapRun) -> ClimateSec
                 "mapped without a standard error (the SE map shows 0)".into()
             }),
             points,
+            loggers: climate
+                .grid
+                .sensors
+                .iter()
+                .enumerate()
+                .map(|(j, id)| LoggerValue {
+                    id: id.clone(),
+                    value: climate.study.get(k).and_then(|s| s.get(j)).and_then(|w| w.value),
+                })
+                .collect(),
         });
     }
     let days: Vec<String> = climate.calendar.days.iter().map(|d| d.to_string()).collect();
@@ -240,5 +252,30 @@ pub fn provenance(study: &Study, ing: Option<&Ingested>, started: &str, seconds:
         seed: study.seed(),
         started: started.to_string(),
         seconds,
+    }
+}
+
+/// The mapping stage's warnings that weaken the answer: every variable whose
+/// variogram could not be fitted and was mapped with the documented default
+/// model ([`crate::spatial::mapping::choose_model`]), as the stage worded them.
+pub fn fallback_warnings(map: &MapRun) -> Vec<String> {
+    map.variables
+        .iter()
+        .filter(|v| v.chosen_family.is_none())
+        .map(|v| {
+            let why = v.warnings.first().map(|w| format!(" ({w})")).unwrap_or_default();
+            format!(
+                "The variogram of {} could not be fitted and fell back to a default model{why}: its maps, their standard errors and every effect of a driver computed from them rest on that assumption.",
+                v.name
+            )
+        })
+        .collect()
+}
+
+/// Mark the layout's sensors that have no series in the climate grid (no
+/// reading in any export) as silent, so that maps grey them out.
+pub fn mark_silent(layout: &mut LayoutSection, climate: &ClimateRun) {
+    for s in &mut layout.sensors {
+        s.silent = !climate.grid.sensors.contains(&s.id);
     }
 }

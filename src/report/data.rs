@@ -81,6 +81,14 @@ pub struct VerdictSection {
     /// What the data can and cannot show, one sentence each.
     #[serde(default)]
     pub cautions: Vec<String>,
+    /// The answer in plain numbers, as the verdict stage computed it
+    /// (typical effect, certainty of the model choice, warnings, what next).
+    #[serde(default)]
+    pub headline: Option<crate::model::verdict::Headline>,
+    /// Warnings of the mapping stage that weaken the answer (a variogram that
+    /// fell back to its default model), one sentence each.
+    #[serde(default)]
+    pub map_warnings: Vec<String>,
 }
 
 /// One driver of the chosen (or full driver) model.
@@ -176,6 +184,20 @@ pub struct SensorPoint {
     pub x: f64,
     /// y, metres.
     pub y: f64,
+    /// Set when the sensor table lists it but no export holds a reading of
+    /// it: maps draw it greyed out.
+    #[serde(default)]
+    pub silent: bool,
+}
+
+/// A logger's own value of a mapped indicator (over the study period).
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+pub struct LoggerValue {
+    /// Sensor identifier.
+    pub id: String,
+    /// The indicator at the logger over the study period, indicator unit;
+    /// `None` when it has none (too few valid days).
+    pub value: Option<f64>,
 }
 
 /// A door, vent, window or pad as a segment on the floor plan.
@@ -233,6 +255,9 @@ pub struct IndicatorSurface {
     pub description: Option<String>,
     /// Value and SE at each pot.
     pub points: Vec<MappedValue>,
+    /// Each logger's own value of the indicator, drawn on the map.
+    #[serde(default)]
+    pub loggers: Vec<LoggerValue>,
 }
 
 /// A mapped value at one position.

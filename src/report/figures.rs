@@ -13,7 +13,8 @@
 
 use super::colour::{CATEGORICAL, Rgb, Scale, finite_extent};
 use super::data::{
-    ComparisonRow, DailySeries, MappedValue, OpeningSegment, ResidualMap, SensorPoint, VariogramPanel,
+    ComparisonRow, DailySeries, LoggerValue, MappedValue, OpeningSegment, ResidualMap, SensorPoint,
+    VariogramPanel,
 };
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -160,6 +161,10 @@ pub struct MapSpec<'a> {
     pub sensors: &'a [SensorPoint],
     /// Openings to mark (thick segments with their names).
     pub openings: &'a [OpeningSegment],
+    /// Each sensor's own value (parallel to `sensors`), drawn as the fill of
+    /// its triangle on the points' scale and written beside its id; empty:
+    /// no values shown. Silent sensors are greyed out either way.
+    pub sensor_values: Vec<Option<f64>>,
     /// A full-width map (760 px plot) rather than a half-width one (460 px)
     /// meant to stand beside another.
     pub wide: bool,
@@ -220,11 +225,22 @@ pub fn value_map(spec: &MapSpec<'_>) -> Result<Figure, FigureError> {
                 EmptyElement::at(mid) + Text::new(o.name.clone(), (6, 6), (FONT, 12).into_font()),
             ))?;
         }
-        chart.draw_series(spec.sensors.iter().map(|s| {
+        let grey = RGBColor(160, 160, 160);
+        chart.draw_series(spec.sensors.iter().enumerate().map(|(k, s)| {
+            let value = spec.sensor_values.get(k).copied().flatten().filter(|v| v.is_finite());
+            let (fill, edge, label) = if s.silent {
+                (WHITE, grey, format!("{} (no readings)", s.id))
+            } else if let Some(v) = value {
+                (rgb(spec.scale.colour(v)), BLACK, format!("{} {}", s.id, short_number(v)))
+            } else {
+                (WHITE, BLACK, s.id.clone())
+            };
+            let style =
+                if s.silent { (FONT, 11).into_font().color(&grey) } else { (FONT, 11).into_font().into() };
             EmptyElement::at((s.x, s.y))
-                + TriangleMarker::new((0, 0), 8, WHITE.filled())
-                + TriangleMarker::new((0, 0), 8, BLACK.stroke_width(2))
-                + Text::new(s.id.clone(), (9, -14), (FONT, 11).into_font())
+                + TriangleMarker::new((0, 0), 8, fill.filled())
+                + TriangleMarker::new((0, 0), 8, edge.stroke_width(2))
+                + Text::new(label, (9, -14), style)
         }))?;
         colour_bar(&legend, spec.scale, &spec.legend)
     })
@@ -238,8 +254,12 @@ pub fn indicator_maps(
     points: &[MappedValue],
     extent: Option<(f64, f64)>,
     sensors: &[SensorPoint],
+    openings: &[OpeningSegment],
+    loggers: &[LoggerValue],
 ) -> Result<(Figure, Figure), FigureError> {
     let base = slug(name);
+    let sensor_values: Vec<Option<f64>> =
+        sensors.iter().map(|s| loggers.iter().find(|l| l.id == s.id).and_then(|l| l.value)).collect();
     let value = MapSpec {
         id: format!("indicator-{base}"),
         title: format!("{name}: kriged value at each pot"),
@@ -248,7 +268,8 @@ pub fn indicator_maps(
         scale: Scale::sequential(points.iter().map(|p| p.value)),
         legend: format!("{name} ({unit})"),
         sensors,
-        openings: &[],
+        openings,
+        sensor_values,
         wide: false,
     };
     let se = MapSpec {
@@ -257,6 +278,7 @@ pub fn indicator_maps(
         points: points.iter().map(|p| (p.x, p.y, Some(p.se))).collect(),
         scale: Scale::sequential(points.iter().map(|p| p.se)),
         legend: format!("standard error ({unit})"),
+        sensor_values: Vec::new(),
         ..value.clone()
     };
     Ok((value_map(&value)?, value_map(&se)?))
@@ -533,11 +555,27 @@ pub fn residual_maps(
             legend: format!("residual ({unit})"),
             sensors,
             openings,
+            sensor_values: Vec::new(),
             wide: false,
         };
         out.push(value_map(&spec));
     }
     out
+}
+
+/// A logger's value beside its id: three significant digits, never `-0`.
+fn short_number(v: f64) -> String {
+    let s = if v == 0.0 {
+        "0".to_string()
+    } else {
+        let d = (2 - v.abs().log10().floor() as i32).max(0) as usize;
+        format!("{v:.d$}")
+    };
+    if s.trim_start_matches('-').chars().all(|c| c == '0' || c == '.') {
+        s.trim_start_matches('-').into()
+    } else {
+        s
+    }
 }
 
 #[cfg(test)]
@@ -607,7 +645,8 @@ mod tests {
 
     #[test]
     fn names_with_markup_are_text_in_svg() {
-        let sensors = vec![SensorPoint { id: "<script>alert(1)</script>".into(), x: 1.0, y: 1.0 }];
+        let sensors =
+            vec![SensorPoint { id: "<script>alert(1)</script>".into(), x: 1.0, y: 1.0, silent: false }];
         let spec = MapSpec {
             id: "m".into(),
             title: "T & <b>".into(),
@@ -617,6 +656,7 @@ mod tests {
             legend: "height (cm)".into(),
             sensors: &sensors,
             openings: &[],
+            sensor_values: vec![Some(1.5)],
             wide: true,
         };
         let f = value_map(&spec).unwrap();

@@ -111,6 +111,8 @@ pub fn to_report(
             })
             .collect(),
         cautions,
+        headline: r.headline.clone(),
+        map_warnings: Vec::new(),
     };
     let models = ModelsSection {
         comparison: r
@@ -208,6 +210,7 @@ mod tests {
             drivers: vec![],
             openings: None,
             adjusted_means: vec![],
+            headline: None,
             notes: vec![],
             n_fits: 1,
             seconds: 0.0,

@@ -13,6 +13,7 @@
 
 use super::data::*;
 use super::figures::{self, Figure, FigureError};
+use crate::model::verdict::Headline;
 use std::fmt::Write as _;
 
 const CSS: &str = include_str!("report.css");
@@ -137,17 +138,38 @@ fn section_verdict(d: &ReportData, out: &mut String) {
     };
     let _ = write!(
         out,
-        "<div class=\"answer\"><div class=\"word\">{}</div><div><p><strong>{}.</strong></p><p>{}</p>\
-         <p>The verdict rests on the model <code>{}</code>.",
+        "<div class=\"answer\"><div class=\"word\">{}</div><div><p><strong>{}.</strong></p>",
         escape(&v.word),
         escape(&capitalise(word_meaning(&v.word))),
-        escape(&v.reason),
+    );
+    let unit = v.trait_unit.as_deref().unwrap_or("trait units");
+    if let Some(h) = &v.headline {
+        plain_lines(out, v, h, unit);
+    }
+    let _ = write!(
+        out,
+        "<p class=\"why\">{} The verdict rests on the model <code>{}</code>.",
+        rich(&v.reason),
         escape(&v.chosen_model)
     );
     if let Some(b) = v.best_by_aic.as_deref().filter(|b| *b != v.chosen_model) {
         let _ = write!(out, " The lowest AIC belongs to <code>{}</code>.", escape(b));
     }
-    out.push_str("</p></div></div>\n<dl class=\"words\">\n");
+    out.push_str("</p>");
+    let warnings: Vec<&String> =
+        v.headline.iter().flat_map(|h| h.warnings.iter()).chain(v.map_warnings.iter()).collect();
+    if !warnings.is_empty() {
+        out.push_str("<ul class=\"warn\">");
+        for w in warnings {
+            let _ = write!(out, "<li><strong>Less sure than it looks:</strong> {}</li>", rich(w));
+        }
+        out.push_str("</ul>");
+    }
+    out.push_str("</div></div>\n");
+    if let Some(h) = &v.headline {
+        what_next(out, h, v);
+    }
+    out.push_str("<dl class=\"words\">\n");
     for w in ["covariate", "correlation", "both", "none"] {
         let _ = writeln!(out, "<dt>{w}</dt><dd>{}</dd>", word_meaning(w));
     }
@@ -194,12 +216,135 @@ fn section_verdict(d: &ReportData, out: &mut String) {
     }
     out.push_str("<h3>What the data can and cannot show</h3>\n<ul class=\"cautions\">\n");
     for c in &v.cautions {
-        let _ = writeln!(out, "<li>{}</li>", escape(c));
+        let _ = writeln!(out, "<li>{}</li>", rich(c));
     }
     out.push_str(
         "<li>An association between a driver and the trait across the floor is not proof that the driver causes it: anything else that varies the same way over the floor would look the same.</li>\n\
          <li>A driver is known only where loggers stand; between them it is interpolated, and with few loggers the standard errors of the maps (section 3) are wide.</li>\n</ul>\n</section>\n",
     );
+}
+
+/// Escape `s` and show each `name` in backticks as code.
+fn rich(s: &str) -> String {
+    let mut out = String::new();
+    for (i, part) in escape(s).split('`').enumerate() {
+        if i % 2 == 1 {
+            let _ = write!(out, "<code>{part}</code>");
+        } else {
+            out.push_str(part);
+        }
+    }
+    out
+}
+
+/// A number for running text: four significant digits, never `-0`.
+fn plain(v: f64) -> String {
+    let s = sig(v, 4);
+    if s.trim_start_matches('-').chars().all(|c| c == '0' || c == '.') {
+        s.trim_start_matches('-').to_string()
+    } else {
+        s
+    }
+}
+
+/// How many times more likely, in words.
+fn times(ratio: f64) -> String {
+    if ratio >= 1000.0 {
+        "more than 1000 times".into()
+    } else if ratio >= 10.0 {
+        format!("about {:.0} times", ratio)
+    } else {
+        format!("{:.1} times", ratio)
+    }
+}
+
+/// The three plain lines under the verdict: how big, which interval, how sure.
+fn plain_lines(out: &mut String, v: &VerdictSection, h: &Headline, unit: &str) {
+    out.push_str("<ul class=\"plain\">");
+    if let Some(e) = &h.effect {
+        let du = v.drivers.iter().find(|d| d.name == e.driver).and_then(|d| d.unit.clone());
+        let du = du.map(|u| format!(" {}", escape(&u))).unwrap_or_default();
+        let (more_less, size) = if e.effect < 0.0 { ("less", -e.effect) } else { ("more", e.effect) };
+        let _ = write!(
+            out,
+            "<li><strong>How big:</strong> across the floor, pots with {}{du} more <code>{}</code> (from {}{du}, the 10th percentile of the pots, to {}{du}, the 90th) have {} {} {more_less} of the trait.</li>",
+            plain(e.high - e.low),
+            escape(&e.driver),
+            plain(e.low),
+            plain(e.high),
+            plain(size),
+            escape(unit),
+        );
+        let _ = write!(
+            out,
+            "<li><strong>Quote:</strong> a change of {} {} (95 % interval {} to {} {}){}.</li>",
+            plain(e.effect),
+            escape(unit),
+            plain(e.ci_low),
+            plain(e.ci_high),
+            escape(unit),
+            if e.includes_mapping {
+                ", which includes the uncertainty of the driver's map"
+            } else {
+                ", treating the driver's values as exact"
+            }
+        );
+    }
+    let c = &h.certainty;
+    let _ = write!(
+        out,
+        "<li><strong>How sure:</strong> models of this kind carry {:.0} % of the Akaike weight of all models compared (the chosen model alone {:.0} %)",
+        100.0 * c.kind_weight,
+        100.0 * c.chosen_weight
+    );
+    match (&c.other_model, c.other_delta, c.evidence_ratio) {
+        (Some(m), Some(d), Some(r)) if d >= 0.0 => {
+            let _ = write!(
+                out,
+                "; the best of them is {} as likely as the best model of another kind, <code>{}</code> ({} AIC units behind)",
+                times(r),
+                escape(m),
+                fixed(d, 1)
+            );
+        }
+        (Some(m), Some(d), Some(r)) => {
+            let _ = write!(
+                out,
+                "; the best model of another kind, <code>{}</code>, is {} as likely ({} AIC units better, within the tie margin, so the simpler model was chosen): the choice is not sure",
+                escape(m),
+                times(1.0 / r),
+                fixed(-d, 1)
+            );
+        }
+        _ => {}
+    }
+    out.push_str(".</li></ul>");
+}
+
+/// What the data suggest doing next.
+fn what_next(out: &mut String, h: &Headline, v: &VerdictSection) {
+    if h.next_logger.is_none() && h.blocking.is_none() {
+        return;
+    }
+    out.push_str("<h3>What next</h3>\n<ul class=\"next\">\n");
+    if let Some(n) = &h.next_logger {
+        let du =
+            v.drivers.iter().find(|d| d.name == n.driver).and_then(|d| d.unit.clone()).unwrap_or_default();
+        let _ = writeln!(
+            out,
+            "<li>An extra logger would cut the map's error most at pot {} (x {} m, y {} m), where the kriging standard error of <code>{}</code> is largest ({} {}).</li>",
+            escape(&n.pot),
+            fixed(n.x, 2),
+            fixed(n.y, 2),
+            escape(&n.driver),
+            plain(n.se),
+            escape(&du)
+        );
+    }
+    if let Some(b) = &h.blocking {
+        let _ = writeln!(out, "<li>{}</li>", rich(b));
+    }
+    out.push_str("</ul>\n");
 }
 
 fn capitalise(s: &str) -> String {
@@ -217,6 +362,7 @@ fn layout_figure(d: &ReportData, l: &LayoutSection) -> Result<Figure, FigureErro
         legend: format!("{} ({})", l.trait_name, l.trait_unit),
         sensors: &l.sensors,
         openings: &l.openings,
+        sensor_values: Vec::new(),
         wide: true,
     })
 }
@@ -305,11 +451,19 @@ fn section_climate(d: &ReportData, out: &mut String) {
             let _ = writeln!(out, "<p class=\"lead\">{}</p>", escape(desc));
         }
         out.push_str("<div class=\"figs\">\n");
-        match figures::indicator_maps(&s.name, &s.unit, &s.points, extent(d), sensors(d)) {
+        match figures::indicator_maps(
+            &s.name,
+            &s.unit,
+            &s.points,
+            extent(d),
+            sensors(d),
+            openings(d),
+            &s.loggers,
+        ) {
             Ok((v, se)) => {
                 out.push_str(&figure_html(
                     Ok(v),
-                    "The indicator at each pot, interpolated from the loggers (triangles) by kriging.",
+                    "The indicator at each pot, interpolated from the loggers (triangles, each filled with and labelled by its own value over the study period; grey: no readings) by kriging; thick lines: openings. Where a pot beside a logger has a very different colour, the map does not honour that logger.",
                 ));
                 out.push_str(&figure_html(
                     Ok(se),
@@ -666,7 +820,15 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
     }
     if let Some(c) = &d.climate {
         for s in &c.surfaces {
-            match figures::indicator_maps(&s.name, &s.unit, &s.points, extent(d), sensors(d)) {
+            match figures::indicator_maps(
+                &s.name,
+                &s.unit,
+                &s.points,
+                extent(d),
+                sensors(d),
+                openings(d),
+                &s.loggers,
+            ) {
                 Ok((a, b)) => out.extend([Ok(a), Ok(b)]),
                 Err(e) => out.push(Err(e)),
             }
@@ -864,6 +1026,7 @@ mod tests {
                     confounded: true,
                 }],
                 cautions: vec!["Two loggers only.".into()],
+                ..Default::default()
             }),
             models: Some(ModelsSection {
                 comparison: vec![

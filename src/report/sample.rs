@@ -31,10 +31,10 @@ pub fn sample_report() -> ReportData {
     let cultivars = ["Genovese", "Thai", "Lemon", "Purple Ruffles", "Greek dwarf", "Cinnamon"];
     let feeds = ["low feed", "high feed"];
     let sensors = vec![
-        SensorPoint { id: "L1 pad end".into(), x: 0.8, y: 2.5 },
-        SensorPoint { id: "L2".into(), x: 4.5, y: 1.0 },
-        SensorPoint { id: "L3".into(), x: 7.5, y: 4.0 },
-        SensorPoint { id: "L4 fan end".into(), x: 11.2, y: 2.5 },
+        SensorPoint { id: "L1 pad end".into(), x: 0.8, y: 2.5, silent: false },
+        SensorPoint { id: "L2".into(), x: 4.5, y: 1.0, silent: false },
+        SensorPoint { id: "L3".into(), x: 7.5, y: 4.0, silent: false },
+        SensorPoint { id: "L4 fan end".into(), x: 11.2, y: 2.5, silent: false },
     ];
     let openings = vec![
         OpeningSegment { name: "cooling_pad".into(), from: [0.0, 0.5], to: [0.0, 4.5] },
@@ -252,6 +252,36 @@ pub fn sample_report() -> ReportData {
                 "Four loggers stood in a room of 60 m²; the mapped cold hours are uncertain far from them (see the standard-error map).".into(),
                 "The cooling-pad distance explains almost as much as the measured cold; the two cannot be fully separated in this layout.".into(),
             ],
+            headline: Some(crate::model::verdict::Headline {
+                effect: Some(crate::model::verdict::TypicalEffect {
+                    driver: "night_cold_hours".into(),
+                    low: 40.0,
+                    high: 110.0,
+                    effect: -30.79,
+                    ci_low: -41.83,
+                    ci_high: -19.74,
+                    includes_mapping: true,
+                    map_se: Some(9.5),
+                    driver_sd: 24.0,
+                }),
+                certainty: crate::model::verdict::Certainty {
+                    chosen_weight: 0.41,
+                    kind_weight: 0.83,
+                    other_model: Some("base | exponential".into()),
+                    other_delta: Some(6.2),
+                    evidence_ratio: Some(22.2),
+                },
+                warnings: vec![],
+                next_logger: Some(crate::model::verdict::NextLogger {
+                    driver: "night_cold_hours".into(),
+                    pot: "B3-07".into(),
+                    x: 9.1,
+                    y: 5.4,
+                    se: 17.2,
+                }),
+                blocking: Some("Block the next trial by distance to the cooling_pad: the distance alone improves the model by 31.0 AIC units (more than the tie margin of 4), so bands of equal distance to it make fairer blocks than rows or benches.".into()),
+            }),
+            map_warnings: vec![],
         }),
         layout: Some(LayoutSection {
             trait_name: "fresh mass".into(),
@@ -273,6 +303,12 @@ pub fn sample_report() -> ReportData {
                 unit: "h".into(),
                 description: Some("Hours below 12 °C between dusk and dawn over each pot's growth window.".into()),
                 points: mapped,
+                loggers: vec![
+                    LoggerValue { id: "L1 pad end".into(), value: Some(112.0) },
+                    LoggerValue { id: "L2".into(), value: Some(71.0) },
+                    LoggerValue { id: "L3".into(), value: Some(52.0) },
+                    LoggerValue { id: "L4 fan end".into(), value: Some(38.0) },
+                ],
             }],
             series: vec![temperature, dli],
             qc: vec![

@@ -21,10 +21,13 @@
 //!   the driver ranking, the openings question and the adjusted means;
 //! - `uncertainty`: the mapped drivers' uncertainty, propagated by multiple
 //!   imputation and Rubin's rules;
+//! - `headline`: the answer in plain numbers (typical effect, certainty,
+//!   warnings, what next);
 //! - `write`: `summary.json`, `comparison.csv`, `drivers.csv` and
 //!   `adjusted_means.csv`.
 
 mod grid;
+mod headline;
 mod result;
 mod rule;
 mod summaries;
@@ -32,6 +35,9 @@ mod uncertainty;
 mod write;
 
 pub use self::grid::model_name;
+pub use self::headline::{
+    Certainty, Headline, NextLogger, TYPICAL_SPAN, TypicalEffect, WEAK_MAP_RATIO, headline, percentile,
+};
 pub use self::result::{
     AdjustedMeanRow, CoefRow, DriverSummary, LeftOutPot, LrtRow, ModelRow, MoranSummary, OpeningsSummary,
     ResidualBin, ResidualCheck, VerdictResult,
@@ -148,7 +154,12 @@ pub fn run_verdict(study: &Study, opts: &VerdictOptions) -> Result<VerdictResult
     let climate: Vec<String> =
         spec.drivers.iter().filter(|d| !d.starts_with(DISTANCE_PREFIX)).cloned().collect();
     let sensor_values = load_sensor_values(study, &climate)?;
-    verdict_on(&data, &spec, &added, &sensor_values, opts, &crate::model::progress::Silent)
+    let mut r = verdict_on(&data, &spec, &added, &sensor_values, opts, &crate::model::progress::Silent)?;
+    let cov_path = study.output_dir().join(crate::model::data::COVARIATES_FILE);
+    let covariates =
+        if cov_path.exists() { Some(crate::model::data::PotCovariates::read(&cov_path)?) } else { None };
+    r.headline = Some(headline(&r, &data, covariates.as_ref()));
+    Ok(r)
 }
 
 /// The verdict on loaded data: [`analyse`], then the uncertainty of each
@@ -294,6 +305,7 @@ pub fn analyse_with(
         drivers,
         openings,
         adjusted_means,
+        headline: None,
         notes,
         n_fits: grid.len() + 2,
         seconds: start.elapsed().as_secs_f64(),

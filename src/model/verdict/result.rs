@@ -233,6 +233,10 @@ pub struct VerdictResult {
     pub openings: Option<OpeningsSummary>,
     /// Adjusted means.
     pub adjusted_means: Vec<AdjustedMeanRow>,
+    /// The answer in plain numbers (typical effect, certainty, warnings,
+    /// what next); set by [`super::headline::headline`] once the mapping
+    /// uncertainty is known.
+    pub headline: Option<super::headline::Headline>,
     /// Notes (skipped fits, mapping uncertainty not computed, ...).
     pub notes: Vec<String>,
     /// Fits made.
