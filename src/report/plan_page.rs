@@ -156,10 +156,18 @@ pub fn render_placement(p: &PlacementPage) -> String {
         Some(u) => format!("kriging SE ({u})"),
         None => "kriging SE".into(),
     };
-    let now: Vec<SensorPoint> =
-        p.loggers.iter().map(|(id, x, y)| SensorPoint { id: id.clone(), x: *x, y: *y }).collect();
+    let now: Vec<SensorPoint> = p
+        .loggers
+        .iter()
+        .map(|(id, x, y)| SensorPoint { id: id.clone(), x: *x, y: *y, silent: false })
+        .collect();
     let mut after = now.clone();
-    after.extend(p.added.iter().map(|s| SensorPoint { id: format!("+{}", s.id), x: s.x, y: s.y }));
+    after.extend(p.added.iter().map(|s| SensorPoint {
+        id: format!("+{}", s.id),
+        x: s.x,
+        y: s.y,
+        silent: false,
+    }));
     for (id, title, se, sensors, cap) in [
         (
             "se-now",
@@ -184,6 +192,7 @@ pub fn render_placement(p: &PlacementPage) -> String {
             scale,
             legend: legend.clone(),
             sensors,
+            sensor_values: Vec::new(),
             openings: &p.openings,
             wide: false,
         };
