@@ -224,6 +224,7 @@ pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, Likeli
         )));
     }
     let v = Kernel::correlation(params).fill_lower(n, |i, j| dist.get(i, j));
+    super::factor::count_factorisation();
     let c = Cholesky::new(v, CORRELATION_MIN_DIAGONAL).map_err(|location| {
         LikelihoodError::NotPositiveDefinite {
             family: params.family.name(),
@@ -265,7 +266,7 @@ pub struct Profiled {
 }
 
 /// GLS quantities from an already whitened `[Xw | yw]` (`n x (p+1)`) and `ln|V|`.
-fn profile_whitened(
+pub(super) fn profile_whitened(
     w: &Mat<f64>,
     logdet_v: f64,
     method: LikelihoodKind,
@@ -330,12 +331,12 @@ fn profile_whitened(
 }
 
 /// Copy `X` (`n x p`, given by columns) and `y` into one `n x (p+1)` matrix.
-fn stack_xy(x: &[Vec<f64>], y: &[f64]) -> Mat<f64> {
+pub(super) fn stack_xy(x: &[Vec<f64>], y: &[f64]) -> Mat<f64> {
     let n = y.len();
     Mat::from_fn(n, x.len() + 1, |i, j| if j < x.len() { x[j][i] } else { y[i] })
 }
 
-fn check_sizes(dist: &Distances, x: &[Vec<f64>], y: &[f64]) -> Result<(), LikelihoodError> {
+pub(super) fn check_sizes(dist: &Distances, x: &[Vec<f64>], y: &[f64]) -> Result<(), LikelihoodError> {
     let n = dist.len();
     if y.len() != n || x.iter().any(|c| c.len() != n) {
         return Err(LikelihoodError::Invalid(format!("X, y and the distances disagree on n = {n}")));
@@ -447,8 +448,14 @@ pub struct Maximum {
     pub converged: bool,
     /// The estimate lies on a bound: any of `"range_lower"`, `"range_upper"`, `"nugget_zero"`, `"nugget_upper"`.
     pub at_bounds: Vec<&'static str>,
-    /// Likelihood evaluations in all (grid and simplex).
+    /// Likelihood evaluations in all (grid and search).
     pub evaluations: usize,
+    /// Dense factorisations of `V` made by this search on its own (a grid
+    /// shared with other fixed parts is counted apart, see
+    /// [`crate::spatial::ascent::maximise_shared`]).
+    pub factorisations: usize,
+    /// Wall-clock seconds of this search's own work.
+    pub seconds: f64,
     /// The range bounds used.
     pub range_bounds: (f64, f64),
     /// Spread between the best log-likelihood and the best of the other
@@ -474,6 +481,8 @@ pub fn maximise(
     opts: &SearchOptions,
 ) -> Result<Maximum, LikelihoodError> {
     check_sizes(dist, x, y)?;
+    let f0 = super::factor::factorisations_on_this_thread();
+    let t0 = std::time::Instant::now();
     let sample = dist.positive_sample();
     if sample.is_empty() {
         return Err(LikelihoodError::Invalid("all observations are at the same position".into()));
@@ -596,7 +605,17 @@ pub fn maximise(
     if dim == 2 && eta_max - best.params.eta < 1e-6 {
         at_bounds.push("nugget_upper");
     }
-    Ok(Maximum { best, converged, at_bounds, evaluations, range_bounds: (lo, hi), other_optimum })
+    let factorisations = (super::factor::factorisations_on_this_thread() - f0) as usize;
+    Ok(Maximum {
+        best,
+        converged,
+        at_bounds,
+        evaluations,
+        factorisations,
+        seconds: t0.elapsed().as_secs_f64(),
+        range_bounds: (lo, hi),
+        other_optimum,
+    })
 }
 
 #[cfg(test)]
