@@ -420,6 +420,32 @@ pub fn fit_correlated_shared(
     Ok((fits, (shared, grid_seconds)))
 }
 
+/// [`fit_correlated`] started from known correlation parameters instead of
+/// the start grid ([`crate::spatial::ascent::maximise_from`]): for refits on
+/// slightly changed data, such as the imputations of a mapped driver.
+#[allow(clippy::too_many_arguments)]
+pub fn fit_correlated_from(
+    model: &str,
+    design: &Design,
+    y: &[f64],
+    dist: &Distances,
+    start: CovParams,
+    nugget: bool,
+    method: LikelihoodKind,
+) -> Result<Fit> {
+    let opts = SearchOptions { nugget, ..SearchOptions::default() };
+    let t = std::time::Instant::now();
+    let max = crate::spatial::ascent::maximise_from(dist, start, &design.x, y, method, &opts)
+        .map_err(|source| ModelError::Likelihood { model: model.to_string(), source, hint: None })?;
+    let f0 = crate::spatial::factor::factorisations_on_this_thread();
+    let mut fit = finish_correlated(model, design, y, dist, start.family, nugget, method, max)?;
+    if let Some(s) = fit.search.as_mut() {
+        s.factorisations += (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize;
+        s.seconds = t.elapsed().as_secs_f64();
+    }
+    Ok(fit)
+}
+
 /// The GLS estimates, tests and residuals of a correlated fit at the
 /// maximum `max` of its search.
 #[allow(clippy::too_many_arguments)]
@@ -553,7 +579,14 @@ mod tests {
     /// high as scipy's (the committed reference) within 1e-4.
     #[test]
     fn fast_search_is_as_high_as_the_simplex_on_every_fixture() {
-        let sim = model_data("sim_gls.csv", "height", &["accession", "regime"], &["moisture"], Some(("x", "y")), &[]);
+        let sim = model_data(
+            "sim_gls.csv",
+            "height",
+            &["accession", "regime"],
+            &["moisture"],
+            Some(("x", "y")),
+            &[],
+        );
         let topo = model_data("topo.csv", "z", &[], &["x", "y"], Some(("x", "y")), &[]);
         for want in fixture("model_fits.json")["fits"].as_array().unwrap() {
             let (data, spec) = if want["dataset"] == "sim_gls" {
@@ -587,7 +620,11 @@ mod tests {
             );
             let new = new.pop().unwrap().unwrap();
             let (lo, ln) = (old.best.loglik, new.best.loglik);
-            assert!(ln >= lo - 1e-4, "{} {family} {method:?} nugget {nugget}: new {ln} < simplex {lo}", want["dataset"]);
+            assert!(
+                ln >= lo - 1e-4,
+                "{} {family} {method:?} nugget {nugget}: new {ln} < simplex {lo}",
+                want["dataset"]
+            );
             let reference = want["loglik"].as_f64().unwrap();
             assert!(ln >= reference - 1e-4, "{family} {method:?}: new {ln} < scipy {reference}");
             eprintln!(

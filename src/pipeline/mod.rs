@@ -235,7 +235,8 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
     let verdict = in_stage(Stage::Verdict, progress, || {
         let t = Instant::now();
         let mut verdict = verdict_in_memory(study, &plan, &climate, &map, progress)?;
-        stage_times.push(StageTime { stage: Stage::Verdict.name().to_string(), seconds: t.elapsed().as_secs_f64() });
+        stage_times
+            .push(StageTime { stage: Stage::Verdict.name().to_string(), seconds: t.elapsed().as_secs_f64() });
         verdict.timings.stages = std::mem::take(&mut stage_times);
         files.extend(crate::model::verdict::write_outputs(study, &verdict)?);
         let summary = format!("verdict: {} ({} fits): {}", verdict.verdict, verdict.n_fits, verdict.reason);

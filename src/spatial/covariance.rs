@@ -336,7 +336,8 @@ mod tests {
             for d in [0.05, 0.4, 1.1, 1.9, 2.6, 4.0] {
                 let a: f64 = 2.0;
                 let e: f64 = 1e-5;
-                let num = (family.correlation(d, a * e.exp()) - family.correlation(d, a * (-e).exp())) / (2.0 * e);
+                let num =
+                    (family.correlation(d, a * e.exp()) - family.correlation(d, a * (-e).exp())) / (2.0 * e);
                 let got = dcorrelation_dlog_range(family, d, a, family.correlation(d, a));
                 assert!((got - num).abs() < 1e-7, "{family} d {d}: {got} vs {num}");
             }

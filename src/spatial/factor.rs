@@ -206,8 +206,9 @@ impl Cholesky {
         let n = self.dim();
         let mut out = Mat::<f64>::zeros(n, n);
         let par = par();
-        let mut mem =
-            faer::dyn_stack::MemBuffer::new(faer::linalg::cholesky::llt::inverse::inverse_scratch::<f64>(n, par));
+        let mut mem = faer::dyn_stack::MemBuffer::new(
+            faer::linalg::cholesky::llt::inverse::inverse_scratch::<f64>(n, par),
+        );
         let stack = faer::dyn_stack::MemStack::new(&mut mem);
         faer::linalg::cholesky::llt::inverse::inverse(out.as_mut(), self.l.as_ref(), par, stack);
         for j in 0..n {

@@ -48,7 +48,8 @@ impl Spectral {
             return Err(LikelihoodError::Invalid(format!("range {range} must be positive")));
         }
         let n = y.len();
-        let r = Mat::from_fn(n, n, |i, j| if i == j { 1.0 } else { family.correlation(dist.get(i, j), range) });
+        let r =
+            Mat::from_fn(n, n, |i, j| if i == j { 1.0 } else { family.correlation(dist.get(i, j), range) });
         let eig = r
             .self_adjoint_eigen(Side::Lower)
             .map_err(|e| LikelihoodError::Invalid(format!("eigendecomposition failed: {e:?}")))?;
@@ -105,7 +106,8 @@ mod tests {
         let x: Vec<f64> = (0..n).map(|_| rng.random_range(0.0..6.0)).collect();
         let yy: Vec<f64> = (0..n).map(|_| rng.random_range(0.0..4.0)).collect();
         let g: Vec<f64> = (0..n).map(|i| f64::from(u8::from(i % 2 == 0))).collect();
-        let z: Vec<f64> = (0..n).map(|i| (x[i] * 0.7).sin() + 0.5 * g[i] + rng.random_range(-0.5..0.5)).collect();
+        let z: Vec<f64> =
+            (0..n).map(|i| (x[i] * 0.7).sin() + 0.5 * g[i] + rng.random_range(-0.5..0.5)).collect();
         let dist = Distances::from_coords(&x, &yy).unwrap();
         let cols = vec![vec![1.0; n], g, yy.clone()];
         for family in [Family::Exponential, Family::Gaussian, Family::Spherical, Family::Matern { nu: 1.5 }] {
@@ -117,7 +119,12 @@ mod tests {
                     let a = s.profiled(eta, method).unwrap();
                     let b = profiled(&dist, &CovParams { family, range, eta }, &cols, &z, method).unwrap();
                     let rel = |u: f64, v: f64| (u - v).abs() / v.abs().max(1e-300);
-                    assert!(rel(a.loglik, b.loglik) < 1e-8, "{family} {range} {eta}: {} vs {}", a.loglik, b.loglik);
+                    assert!(
+                        rel(a.loglik, b.loglik) < 1e-8,
+                        "{family} {range} {eta}: {} vs {}",
+                        a.loglik,
+                        b.loglik
+                    );
                     assert!(rel(a.sigma2, b.sigma2) < 1e-8);
                     for (u, v) in a.beta.iter().zip(&b.beta) {
                         assert!((u - v).abs() < 1e-8 * (1.0 + v.abs()));

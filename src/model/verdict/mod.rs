@@ -44,7 +44,6 @@ pub use self::write::{adjusted_means_csv, comparison_csv, drivers_csv, write_out
 pub use crate::spatial::geometry::DISTANCE_PREFIX;
 
 use self::grid::{GridFit, design_for, fit, fit_grid, lerr};
-use crate::model::timings::{FitTime, ImputationTime, Timings};
 use self::rule::{lrt_rows, model_rows, rank_and_decide};
 use self::summaries::{adjusted_means, driver_summaries, openings_summary, residual_check};
 use super::compare;
@@ -53,6 +52,7 @@ use super::diagnostics::{MORAN_NEIGHBOURS, knn, moran_residuals};
 use super::error::Result;
 use super::gls::{Fit, fit_independent};
 use crate::io::study::Study;
+use crate::model::timings::{FitTime, ImputationTime, Timings};
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
 use serde::{Deserialize, Serialize};
 use statrs::distribution::{ContinuousCDF, StudentsT};
@@ -210,7 +210,8 @@ pub fn verdict_on(
         r.timings.imputations.push(ImputationTime {
             driver: d.clone(),
             refits: m.fits.len(),
-            factorisations: (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize,
+            factorisations: (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize
+                + m.refit_factorisations,
             seconds: t.elapsed().as_secs_f64(),
         });
         if let Some(row) = r.drivers.iter_mut().find(|x| &x.name == d) {
@@ -331,7 +332,13 @@ pub fn analyse_with(
 fn fit_time(model: &str, f: &Fit) -> FitTime {
     let (evaluations, factorisations, seconds) =
         f.search.as_ref().map(|s| (s.evaluations, s.factorisations, s.seconds)).unwrap_or((0, 0, 0.0));
-    FitTime { model: model.to_string(), method: f.method.label().to_string(), evaluations, factorisations, seconds }
+    FitTime {
+        model: model.to_string(),
+        method: f.method.label().to_string(),
+        evaluations,
+        factorisations,
+        seconds,
+    }
 }
 
 #[cfg(test)]
