@@ -359,6 +359,9 @@ pub fn fit_correlated(
     fits.pop().expect("one design, one fit")
 }
 
+/// Fits of several fixed parts and their shared grid's `(factorisations, seconds)`.
+pub type SharedFits = (Vec<Result<Fit>>, (usize, f64));
+
 /// [`fit_correlated`] for several fixed parts with the same response,
 /// positions and error model: the start grid of the search is factorised
 /// once for all of them (see [`crate::spatial::ascent::maximise_shared`]);
@@ -374,7 +377,7 @@ pub fn fit_correlated_shared(
     family: Family,
     nugget: bool,
     method: LikelihoodKind,
-) -> Result<(Vec<Result<Fit>>, (usize, f64))> {
+) -> Result<SharedFits> {
     let lerr = |model: &str, source, hint: Option<String>| ModelError::Likelihood {
         model: model.to_string(),
         source,

@@ -197,9 +197,9 @@ pub fn scored(
             cols.iter().map(|c| sym_offdiag_mul(&rho, c).into_iter().map(|v| -v).collect()).collect();
         for (k, vk_w) in [vl_w, ve_w].iter().enumerate() {
             let mut t = 0.0;
-            for i in 0..p {
-                for j in 0..p {
-                    t += prof.xtvx_inv[i * p + j] * dot(cols[i], &vk_w[j]);
+            for (i, ci) in cols.iter().enumerate() {
+                for (j, wj) in vk_w.iter().enumerate() {
+                    t += prof.xtvx_inv[i * p + j] * dot(ci, wj);
                 }
             }
             grad[k] += 0.5 * t;
@@ -254,8 +254,8 @@ struct Bounds {
 
 impl Bounds {
     fn project(&self, t: &mut [f64; 2]) {
-        for k in 0..self.dim {
-            t[k] = t[k].clamp(self.lo[k], self.hi[k]);
+        for (k, v) in t.iter_mut().enumerate().take(self.dim) {
+            *v = v.clamp(self.lo[k], self.hi[k]);
         }
     }
 }
@@ -539,8 +539,8 @@ fn refine(
     let top = best0.loglik;
     // local maxima of the grid (8-neighbourhood), best first
     let mut starts: Vec<([f64; 2], f64)> = Vec::new();
-    for ri in 0..nr {
-        for ei in 0..ne {
+    for (ri, &lr) in ranges.iter().enumerate() {
+        for (ei, &e) in etas.iter().enumerate() {
             let v = val(ri, ei);
             if !v.is_finite() || v < top - opts.start_gap {
                 continue;
@@ -555,7 +555,7 @@ fn refine(
                 }
             }
             if local {
-                starts.push(([ranges[ri], etas[ei]], v));
+                starts.push(([lr, e], v));
             }
         }
     }
