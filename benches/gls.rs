@@ -49,8 +49,8 @@ fn median(mut v: Vec<f64>) -> f64 {
     v[v.len() / 2]
 }
 
-/// Time numpy.linalg.cholesky on the same matrix (written to a temp file);
-/// returns the median of `reps` runs in seconds.
+/// Time numpy.linalg.cholesky on the same matrix (written to a temp file),
+/// single-threaded; returns the median of `reps` runs in seconds.
 fn numpy_cholesky(python: &str, dist: &Distances, p: &CovParams, reps: usize) -> Option<f64> {
     let n = dist.len();
     let dir = tempfile::tempdir().ok()?;
@@ -67,7 +67,18 @@ fn numpy_cholesky(python: &str, dist: &Distances, p: &CovParams, reps: usize) ->
     let script = format!(
         "import numpy as np, time, sys\nV = np.fromfile(sys.argv[1], dtype='<f8').reshape({n}, {n})\nnp.linalg.cholesky(V)\nts = []\nfor _ in range({reps}):\n    t = time.perf_counter(); np.linalg.cholesky(V); ts.append(time.perf_counter() - t)\nprint(sorted(ts)[len(ts)//2])\n"
     );
-    let out = Command::new(python).arg("-c").arg(script).arg(&path).output().ok()?;
+    // One BLAS thread: on a loaded 2-core machine a threaded reference spins
+    // and its median swings by two orders of magnitude (measured: 0.36 s
+    // against 1.8 ms single-threaded at n = 480).
+    let out = Command::new(python)
+        .arg("-c")
+        .arg(script)
+        .arg(&path)
+        .env("OPENBLAS_NUM_THREADS", "1")
+        .env("OMP_NUM_THREADS", "1")
+        .env("MKL_NUM_THREADS", "1")
+        .output()
+        .ok()?;
     if !out.status.success() {
         return None;
     }
