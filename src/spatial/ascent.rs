@@ -60,8 +60,8 @@ use super::correlation::Family;
 use super::covariance::{dcorrelation_dlog_range, fill_lower_columns};
 use super::factor::{CORRELATION_MIN_DIAGONAL, Cholesky, factorisations_on_this_thread};
 use super::likelihood::{
-    CovParams, Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchOptions, check_sizes,
-    profile_whitened, stack_xy,
+    CovParams, Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchBox, SearchOptions,
+    check_sizes, profile_whitened, stack_xy,
 };
 use super::optimise::{Budget, Simplex, Stop, nelder_mead};
 use faer::Mat;
@@ -408,17 +408,13 @@ pub fn maximise_shared(
             0,
         );
     }
-    let sample = dist.positive_sample();
-    if sample.is_empty() {
-        return fail(LikelihoodError::Invalid("all observations are at the same position".into()));
-    }
-    let (lo, hi) = opts.range_bounds.unwrap_or((sample[0] / 10.0, sample[sample.len() - 1] * 10.0));
-    if !(lo > 0.0 && hi > lo) {
-        return fail(LikelihoodError::Invalid(format!("range bounds [{lo}, {hi}] are not valid")));
-    }
-    let eta_max = if opts.nugget { opts.eta_max.clamp(0.0, 0.999) } else { 0.0 };
-    let dim = if opts.nugget { 2 } else { 1 };
-    let bounds = Bounds { lo: [lo.ln(), 0.0], hi: [hi.ln(), eta_max], dim };
+    let sb = match SearchBox::new(dist, opts) {
+        Ok(b) => b,
+        Err(e) => return fail(e),
+    };
+    let (sample, dim) = (&sb.sample, sb.dim);
+    let ((lo, hi), eta_max) = (sb.range, sb.hi[1]);
+    let bounds = Bounds { lo: sb.lo, hi: sb.hi, dim };
     let unit = family.practical_range(1.0);
     let quantiles = [0.02, 0.05, 0.10, 0.20, 0.35, 0.50, 0.75];
     let etas: Vec<f64> = if dim == 2 {
@@ -500,14 +496,9 @@ pub fn maximise_from(
     opts: &SearchOptions,
 ) -> Result<Maximum, LikelihoodError> {
     check_sizes(dist, x, y)?;
-    let sample = dist.positive_sample();
-    if sample.is_empty() {
-        return Err(LikelihoodError::Invalid("all observations are at the same position".into()));
-    }
-    let (lo, hi) = opts.range_bounds.unwrap_or((sample[0] / 10.0, sample[sample.len() - 1] * 10.0));
-    let eta_max = if opts.nugget { opts.eta_max.clamp(0.0, 0.999) } else { 0.0 };
-    let dim = if opts.nugget { 2 } else { 1 };
-    let bounds = Bounds { lo: [lo.ln(), 0.0], hi: [hi.ln(), eta_max], dim };
+    let sb = SearchBox::new(dist, opts)?;
+    let dim = sb.dim;
+    let bounds = Bounds { lo: sb.lo, hi: sb.hi, dim };
     let mut t = [start.range.ln(), if dim == 2 { start.eta } else { 0.0 }];
     bounds.project(&mut t);
     let p0 = params_of(start.family, &t, dim);
@@ -613,31 +604,10 @@ fn refine(
         }
         ends.push(end);
     }
-    ends.sort_by(|a, b| b.1.total_cmp(&a.1));
-    let other_optimum = ends
-        .iter()
-        .skip(1)
-        .find(|(t, v)| {
-            (best.loglik - v) > 1e-4
-                && ((t[0] - best.params.range.ln()).abs() > 0.05
-                    || (dim == 2 && (t[1] - best.params.eta).abs() > 0.02))
-        })
-        .map(|(t, v)| (params_of(family, t, dim), *v));
-    let mut at_bounds = Vec::new();
-    let lr = best.params.range.ln();
-    let tol = 1e-4;
-    if lr - bounds.lo[0] < tol {
-        at_bounds.push("range_lower");
-    }
-    if bounds.hi[0] - lr < tol {
-        at_bounds.push("range_upper");
-    }
-    if dim == 2 && best.params.eta < 1e-6 {
-        at_bounds.push("nugget_zero");
-    }
-    if dim == 2 && bounds.hi[1] - best.params.eta < 1e-6 {
-        at_bounds.push("nugget_upper");
-    }
+    let ends: Vec<(&[f64], f64)> = ends.iter().map(|(t, v)| (&t[..dim], *v)).collect();
+    let (other_optimum, at_bounds) =
+        SearchBox { sample: Vec::new(), lo: bounds.lo, hi: bounds.hi, dim, range: (0.0, 0.0) }
+            .outcome(&best, ends, family);
     Ok(Maximum {
         best,
         converged,

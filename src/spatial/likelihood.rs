@@ -439,6 +439,77 @@ impl Default for SearchOptions {
     }
 }
 
+/// The box of a search over `(ln range, eta)` and the distances it came from.
+pub(super) struct SearchBox {
+    /// Sorted positive pairwise distances (see [`Distances::positive_sample`]).
+    pub(super) sample: Vec<f64>,
+    /// Lower bounds of `(ln range, eta)`.
+    pub(super) lo: [f64; 2],
+    /// Upper bounds of `(ln range, eta)`.
+    pub(super) hi: [f64; 2],
+    /// 2 with a nugget, else 1.
+    pub(super) dim: usize,
+    /// The range bounds in metres (`lo`, `hi` before the logarithm).
+    pub(super) range: (f64, f64),
+}
+
+impl SearchBox {
+    /// Range in `[min positive distance / 10, 10 x max distance]` (or the
+    /// bounds given), eta in `[0, eta_max]` with a nugget.
+    pub(super) fn new(dist: &Distances, opts: &SearchOptions) -> Result<SearchBox, LikelihoodError> {
+        let sample = dist.positive_sample();
+        if sample.is_empty() {
+            return Err(LikelihoodError::Invalid("all observations are at the same position".into()));
+        }
+        let (lo, hi) = opts.range_bounds.unwrap_or((sample[0] / 10.0, sample[sample.len() - 1] * 10.0));
+        if !(lo > 0.0 && hi > lo) {
+            return Err(LikelihoodError::Invalid(format!("range bounds [{lo}, {hi}] are not valid")));
+        }
+        let eta_max = if opts.nugget { opts.eta_max.clamp(0.0, 0.999) } else { 0.0 };
+        let dim = if opts.nugget { 2 } else { 1 };
+        Ok(SearchBox { sample, lo: [lo.ln(), 0.0], hi: [hi.ln(), eta_max], dim, range: (lo, hi) })
+    }
+
+    /// Another optimum among the runs' end points `ends` (a different place,
+    /// more than 1e-4 lower), and the bounds `best` lies on.
+    pub(super) fn outcome(
+        &self,
+        best: &Profiled,
+        mut ends: Vec<(&[f64], f64)>,
+        family: Family,
+    ) -> (Option<(CovParams, f64)>, Vec<&'static str>) {
+        let dim = self.dim;
+        ends.sort_by(|a, b| b.1.total_cmp(&a.1));
+        let other_optimum = ends
+            .iter()
+            .skip(1)
+            .find(|(t, v)| {
+                (best.loglik - v) > 1e-4
+                    && ((t[0] - best.params.range.ln()).abs() > 0.05
+                        || (dim == 2 && (t[1] - best.params.eta).abs() > 0.02))
+            })
+            .map(|(t, v)| {
+                (CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } }, *v)
+            });
+        let mut at_bounds = Vec::new();
+        let lr = best.params.range.ln();
+        let tol = 1e-4;
+        if lr - self.lo[0] < tol {
+            at_bounds.push("range_lower");
+        }
+        if self.hi[0] - lr < tol {
+            at_bounds.push("range_upper");
+        }
+        if dim == 2 && best.params.eta < 1e-6 {
+            at_bounds.push("nugget_zero");
+        }
+        if dim == 2 && self.hi[1] - best.params.eta < 1e-6 {
+            at_bounds.push("nugget_upper");
+        }
+        (other_optimum, at_bounds)
+    }
+}
+
 /// Result of [`maximise`].
 #[derive(Clone, Debug)]
 pub struct Maximum {
@@ -483,18 +554,8 @@ pub fn maximise(
     check_sizes(dist, x, y)?;
     let f0 = super::factor::factorisations_on_this_thread();
     let t0 = std::time::Instant::now();
-    let sample = dist.positive_sample();
-    if sample.is_empty() {
-        return Err(LikelihoodError::Invalid("all observations are at the same position".into()));
-    }
-    let (lo, hi) = opts.range_bounds.unwrap_or((sample[0] / 10.0, sample[sample.len() - 1] * 10.0));
-    if !(lo > 0.0 && hi > lo) {
-        return Err(LikelihoodError::Invalid(format!("range bounds [{lo}, {hi}] are not valid")));
-    }
-    let eta_max = if opts.nugget { opts.eta_max.clamp(0.0, 0.999) } else { 0.0 };
-    let dim = if opts.nugget { 2 } else { 1 };
-    let box_lo = [lo.ln(), 0.0];
-    let box_hi = [hi.ln(), eta_max];
+    let SearchBox { sample, lo: box_lo, hi: box_hi, dim, range: (lo, hi) } = SearchBox::new(dist, opts)?;
+    let eta_max = box_hi[1];
     struct State {
         evaluations: usize,
         best: Option<Profiled>,
@@ -582,29 +643,10 @@ pub fn maximise(
     }
     let State { evaluations, best, .. } = state.into_inner();
     let best = best.expect("a finite grid point exists");
-    ends.sort_by(|a, b| b.1.total_cmp(&a.1));
-    let other_optimum = ends.iter().skip(1).find(|(t, v)| {
-        (best.loglik - v) > 1e-4
-            && ((t[0] - best.params.range.ln()).abs() > 0.05
-                || (dim == 2 && (t[1] - best.params.eta).abs() > 0.02))
-    });
-    let other_optimum = other_optimum
-        .map(|(t, v)| (CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } }, *v));
-    let mut at_bounds = Vec::new();
-    let lr = best.params.range.ln();
-    let tol = 1e-4;
-    if lr - box_lo[0] < tol {
-        at_bounds.push("range_lower");
-    }
-    if box_hi[0] - lr < tol {
-        at_bounds.push("range_upper");
-    }
-    if dim == 2 && best.params.eta < 1e-6 {
-        at_bounds.push("nugget_zero");
-    }
-    if dim == 2 && eta_max - best.params.eta < 1e-6 {
-        at_bounds.push("nugget_upper");
-    }
+    let ends: Vec<(&[f64], f64)> = ends.iter().map(|(t, v)| (t.as_slice(), *v)).collect();
+    let (other_optimum, at_bounds) =
+        SearchBox { sample: Vec::new(), lo: box_lo, hi: box_hi, dim, range: (lo, hi) }
+            .outcome(&best, ends, family);
     let factorisations = (super::factor::factorisations_on_this_thread() - f0) as usize;
     Ok(Maximum {
         best,
