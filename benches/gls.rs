@@ -1,18 +1,23 @@
 //! Benchmark of the dense likelihood path: one profiled REML evaluation
 //! (fill of V, blocked Cholesky, whitening of [X | y], GLS solve) at
 //! n = 500, 1000, 2000, 4000 pots, next to a LAPACK Cholesky of the same
-//! matrix through numpy, measured in the same run; and the number of
-//! likelihood evaluations of a whole fit of one family at n = 1000.
+//! matrix through numpy, measured in the same run; and whole correlated fits
+//! (exponential with and without nugget, ML and REML, a three-level factor)
+//! at n = 480 and 1,680 in units of that Cholesky (target: at most 40), the
+//! previous simplex search at n = 480 beside them, and the cost of the
+//! spectral device's eigendecomposition.
 //!
 //! The reference interpreter is taken from `POTCLIM_BENCH_PYTHON` (default
 //! `python3`); without numpy the reference is reported as unavailable.
 //!
 //! Run: `cargo bench --bench gls`.
 
+use potclim::spatial::ascent::maximise_shared;
 use potclim::spatial::correlation::Family;
 use potclim::spatial::likelihood::{
-    CovParams, Distances, LikelihoodKind, SearchOptions, cholesky, maximise, profiled,
+    CovParams, Distances, LikelihoodKind, SearchOptions, cholesky, maximise, profiled, profiled_with_factor,
 };
+use potclim::spatial::spectral::Spectral;
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::io::Write;
@@ -44,8 +49,8 @@ fn median(mut v: Vec<f64>) -> f64 {
     v[v.len() / 2]
 }
 
-/// Time numpy.linalg.cholesky on the same matrix (written to a temp file);
-/// returns the median of `reps` runs in seconds.
+/// Time numpy.linalg.cholesky on the same matrix (written to a temp file),
+/// single-threaded; returns the median of `reps` runs in seconds.
 fn numpy_cholesky(python: &str, dist: &Distances, p: &CovParams, reps: usize) -> Option<f64> {
     let n = dist.len();
     let dir = tempfile::tempdir().ok()?;
@@ -62,7 +67,18 @@ fn numpy_cholesky(python: &str, dist: &Distances, p: &CovParams, reps: usize) ->
     let script = format!(
         "import numpy as np, time, sys\nV = np.fromfile(sys.argv[1], dtype='<f8').reshape({n}, {n})\nnp.linalg.cholesky(V)\nts = []\nfor _ in range({reps}):\n    t = time.perf_counter(); np.linalg.cholesky(V); ts.append(time.perf_counter() - t)\nprint(sorted(ts)[len(ts)//2])\n"
     );
-    let out = Command::new(python).arg("-c").arg(script).arg(&path).output().ok()?;
+    // One BLAS thread: on a loaded 2-core machine a threaded reference spins
+    // and its median swings by two orders of magnitude (measured: 0.36 s
+    // against 1.8 ms single-threaded at n = 480).
+    let out = Command::new(python)
+        .arg("-c")
+        .arg(script)
+        .arg(&path)
+        .env("OPENBLAS_NUM_THREADS", "1")
+        .env("OMP_NUM_THREADS", "1")
+        .env("MKL_NUM_THREADS", "1")
+        .output()
+        .ok()?;
     if !out.status.success() {
         return None;
     }
@@ -77,7 +93,7 @@ fn main() {
         "{:>6} {:>14} {:>14} {:>14} {:>16} {:>8}",
         "n", "fill+chol (s)", "chol only (s)", "eval (s)", "numpy chol (s)", "ratio"
     );
-    for n in [500usize, 1000, 2000, 4000] {
+    for n in [480usize, 1680, 4000] {
         let (x, y, z, cols) = layout(n, 7);
         let dist = Distances::from_coords(&x, &y).unwrap();
         let p = CovParams { family: Family::Exponential, range: 1.2, eta: 0.2 };
@@ -134,31 +150,80 @@ fn main() {
         );
     }
     println!("ratio = one whole profiled evaluation / numpy Cholesky of the same matrix");
-    let n = 1000;
-    let (x, y, z, cols) = layout(n, 11);
-    let dist = Distances::from_coords(&x, &y).unwrap();
-    for (family, nugget) in
-        [(Family::Exponential, true), (Family::Exponential, false), (Family::Spherical, true)]
-    {
-        let t = Instant::now();
-        let m = maximise(
-            &dist,
-            family,
-            &cols,
-            &z,
-            LikelihoodKind::Reml,
-            &SearchOptions { nugget, ..Default::default() },
-        )
-        .unwrap();
-        println!(
-            "whole REML fit, {family}{} at n = {n}: {} likelihood evaluations, {:.2} s, converged {}, range {:.4}, nugget share {:.4}, loglik {:.4}",
-            if nugget { "+nugget" } else { "" },
-            m.evaluations,
-            t.elapsed().as_secs_f64(),
-            m.converged,
-            m.best.params.range,
-            m.best.params.eta,
-            m.best.loglik
-        );
+    println!();
+    println!(
+        "whole correlated fits (start grid, Newton steps, final estimates) in units of one numpy Cholesky"
+    );
+    println!(
+        "{:>6} {:<22} {:>5} {:>10} {:>11} {:>14} {:>9} {:>8}",
+        "n", "errors", "lik", "loglik", "evaluations", "factorisations", "fit (s)", "ratio"
+    );
+    for n in [480usize, 1680] {
+        let (x, y, z, cols) = layout(n, 11);
+        let dist = Distances::from_coords(&x, &y).unwrap();
+        let p = CovParams { family: Family::Exponential, range: 1.2, eta: 0.2 };
+        let reference = numpy_cholesky(&python, &dist, &p, 5);
+        for nugget in [true, false] {
+            for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
+                let opts = SearchOptions { nugget, ..Default::default() };
+                let t = Instant::now();
+                let (mut r, shared) =
+                    maximise_shared(&dist, Family::Exponential, &[cols.as_slice()], &z, method, &opts);
+                let m = r.pop().unwrap().unwrap();
+                let l = cholesky(&dist, &m.best.params).unwrap();
+                let fin = profiled_with_factor(l.as_ref(), &m.best.params, &cols, &z, method).unwrap();
+                let secs = t.elapsed().as_secs_f64();
+                std::hint::black_box(fin.loglik);
+                let ratio = reference.map(|r| format!("{:.1}", secs / r)).unwrap_or_else(|| "-".into());
+                println!(
+                    "{n:>6} {:<22} {:>5} {:>10.3} {:>11} {:>14} {:>9.3} {:>8}",
+                    if nugget { "exponential+nugget" } else { "exponential" },
+                    method.label(),
+                    m.best.loglik,
+                    m.evaluations,
+                    m.factorisations + shared + 1,
+                    secs,
+                    ratio
+                );
+            }
+        }
+        if n == 480 {
+            // the previous derivative-free search, for comparison
+            let t = Instant::now();
+            let m = maximise(
+                &dist,
+                Family::Exponential,
+                &cols,
+                &z,
+                LikelihoodKind::Reml,
+                &SearchOptions { nugget: true, ..Default::default() },
+            )
+            .unwrap();
+            let secs = t.elapsed().as_secs_f64();
+            let ratio = reference.map(|r| format!("{:.1}", secs / r)).unwrap_or_else(|| "-".into());
+            println!(
+                "{n:>6} {:<22} {:>5} {:>10.3} {:>11} {:>14} {:>9.3} {:>8}   (simplex search)",
+                "exponential+nugget", "REML", m.best.loglik, m.evaluations, m.factorisations, secs, ratio
+            );
+            // the spectral device: one eigendecomposition against one Cholesky
+            let t = Instant::now();
+            let sp = Spectral::new(&dist, Family::Exponential, 1.2, &cols, &z).unwrap();
+            let eig = t.elapsed().as_secs_f64();
+            let t = Instant::now();
+            for k in 0..100 {
+                std::hint::black_box(
+                    sp.profiled(0.005 + 0.009 * k as f64, LikelihoodKind::Reml).unwrap().loglik,
+                );
+            }
+            let per_eta = t.elapsed().as_secs_f64() / 100.0;
+            if let Some(r) = reference {
+                println!(
+                    "spectral device at n = {n}: eigendecomposition {:.1} Choleskys, then {:.4} Choleskys per nugget share: pays from about {:.0} nugget shares at one range",
+                    eig / r,
+                    per_eta / r,
+                    (eig / r).ceil()
+                );
+            }
+        }
     }
 }

@@ -45,6 +45,11 @@ pub struct RunArgs {
     /// Do not draw progress on the terminal.
     #[arg(long)]
     pub quiet: bool,
+    /// Print where the time went: seconds per stage, and per error model the
+    /// fits, likelihood evaluations and covariance factorisations (also in
+    /// summary.json, `timings`).
+    #[arg(long)]
+    pub timings: bool,
 }
 
 /// Progress on standard error: a spinner per stage, a bar per counted task.
@@ -140,7 +145,16 @@ pub fn run(args: RunArgs) -> anyhow::Result<()> {
     for line in terminal.summaries.lock().expect("progress lock").iter() {
         outln!("{line}");
     }
-    print_outcome(&result?)
+    let r = result?;
+    print_outcome(&r)?;
+    if args.timings {
+        outln!();
+        for line in r.verdict.timings.table().lines() {
+            outln!("{line}");
+        }
+        outln!("whole run: {:.3} s", r.seconds);
+    }
+    Ok(())
 }
 
 /// The outcome on standard output, after the stage lines.

@@ -24,6 +24,7 @@ use crate::io::study::Study;
 use crate::model::ModelError;
 use crate::model::data::{COVARIATES_FILE, PotCovariates, add_opening_drivers, assemble};
 use crate::model::progress::FitProgress;
+use crate::model::timings::StageTime;
 use crate::model::verdict::{SensorValues, VerdictResult};
 use crate::report::data::{CompartmentSize, ReportData};
 use crate::spatial::geometry::Points;
@@ -190,7 +191,12 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
     let t0 = Instant::now();
     let plan = Plan::from_study(study).map_err(PipelineError::Plan)?;
     let mut files = Vec::new();
+    let mut stage_times: Vec<StageTime> = Vec::new();
+    let mut timed = |stage: Stage, t: Instant| {
+        stage_times.push(StageTime { stage: stage.name().to_string(), seconds: t.elapsed().as_secs_f64() })
+    };
 
+    let t = Instant::now();
     let ing = in_stage(Stage::Ingest, progress, || {
         let ing = crate::io::ingest::ingest(study)?;
         files.extend(crate::io::ingest::write_outputs(study, &ing)?);
@@ -200,6 +206,8 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
         Ok((ing, summary))
     })?;
 
+    timed(Stage::Ingest, t);
+    let t = Instant::now();
     let climate = in_stage(Stage::Climate, progress, || {
         let readings_path = study.output_dir().join(crate::io::ingest::READINGS_FILE);
         let climate =
@@ -214,6 +222,8 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
         Ok((climate, summary))
     })?;
 
+    timed(Stage::Climate, t);
+    let t = Instant::now();
     let map = in_stage(Stage::Map, progress, || {
         let map = crate::spatial::stage::compute(study, &climate)?;
         files.extend(crate::spatial::stage::write_outputs(study, &map)?);
@@ -221,8 +231,13 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
         Ok((map, summary))
     })?;
 
+    timed(Stage::Map, t);
     let verdict = in_stage(Stage::Verdict, progress, || {
-        let verdict = verdict_in_memory(study, &plan, &climate, &map, progress)?;
+        let t = Instant::now();
+        let mut verdict = verdict_in_memory(study, &plan, &climate, &map, progress)?;
+        stage_times
+            .push(StageTime { stage: Stage::Verdict.name().to_string(), seconds: t.elapsed().as_secs_f64() });
+        verdict.timings.stages = std::mem::take(&mut stage_times);
         files.extend(crate::model::verdict::write_outputs(study, &verdict)?);
         let summary = format!("verdict: {} ({} fits): {}", verdict.verdict, verdict.n_fits, verdict.reason);
         Ok((verdict, summary))

@@ -214,6 +214,7 @@ mod tests {
             notes: vec![],
             n_fits: 1,
             seconds: 0.0,
+            timings: Default::default(),
             positions: vec![("a".into(), 0.0, 0.0), ("b".into(), 1.0, 0.0)],
             plain_residuals: vec![0.5, -0.5],
             chosen_residuals: vec![0.1, -0.1],

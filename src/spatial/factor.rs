@@ -26,6 +26,51 @@
 use faer::linalg::cholesky::llt::factor::{LltRegularization, cholesky_in_place, cholesky_in_place_scratch};
 use faer::linalg::triangular_solve::{solve_lower_triangular_in_place, solve_upper_triangular_in_place};
 use faer::{Mat, MatRef, Par};
+use std::cell::Cell;
+
+thread_local! {
+    /// Factorisations of an observations' covariance on this thread (for the run's
+    /// timing table: a fit runs on one thread, so the difference of two
+    /// readings around it is its count whatever other threads do).
+    static FACTORISATIONS: Cell<u64> = const { Cell::new(0) };
+    /// Whether factorisations on this thread stay single-threaded (set by
+    /// callers that already run one fit per thread).
+    static SEQUENTIAL: Cell<bool> = const { Cell::new(false) };
+}
+
+/// Factorisations of an observations' covariance (the likelihood's `V`)
+/// counted on the calling thread so far (see [`count_factorisation`]).
+pub fn factorisations_on_this_thread() -> u64 {
+    FACTORISATIONS.with(Cell::get)
+}
+
+/// Count one factorisation of an observations' covariance on the calling
+/// thread (called by the likelihood paths, not by the small `p x p` systems).
+pub fn count_factorisation() {
+    FACTORISATIONS.with(|c| c.set(c.get() + 1));
+}
+
+/// Run `f` with every factorisation and whitening of the calling thread kept
+/// single-threaded: for callers that spread independent fits over threads
+/// (threads across fits pay; threads inside a factorisation of a few hundred
+/// rows mostly wait on each other).
+pub fn sequential<T>(f: impl FnOnce() -> T) -> T {
+    let before = SEQUENTIAL.with(|s| s.replace(true));
+    let out = f();
+    SEQUENTIAL.with(|s| s.set(before));
+    out
+}
+
+/// Whether the calling thread runs inside [`sequential`].
+pub fn is_sequential() -> bool {
+    SEQUENTIAL.with(Cell::get)
+}
+
+/// The parallelism of a dense kernel on the calling thread: faer's thread
+/// pool unless [`sequential`] asked for one thread.
+fn par() -> Par {
+    if SEQUENTIAL.with(Cell::get) { Par::Seq } else { Par::rayon(0) }
+}
 
 /// Smallest accepted diagonal entry `l_jj` of the factor of a correlation
 /// matrix (unit diagonal): `l_jj <= 1e-7` (a pivot below `1e-14`, a hundred
@@ -91,7 +136,7 @@ impl Cholesky {
         if n == 0 {
             return Ok(Cholesky { l: a });
         }
-        let par = Par::rayon(0);
+        let par = par();
         let mut mem =
             faer::dyn_stack::MemBuffer::new(cholesky_in_place_scratch::<f64>(n, par, Default::default()));
         let stack = faer::dyn_stack::MemStack::new(&mut mem);
@@ -142,7 +187,7 @@ impl Cholesky {
 
     /// Solve `A X = B` in place (`L^-1` then `L^-T`). Cost `2 n^2 k` flops.
     pub fn solve(&self, b: &mut Mat<f64>) {
-        let par = if self.dim() >= 64 { Par::rayon(0) } else { Par::Seq };
+        let par = if self.dim() >= 64 { par() } else { Par::Seq };
         solve_lower_triangular_in_place(self.l.as_ref(), b.as_mut(), par);
         solve_upper_triangular_in_place(self.l.transpose(), b.as_mut(), par);
     }
@@ -151,6 +196,27 @@ impl Cholesky {
     /// normal `z`). Cost `n^2 k` flops.
     pub fn solve_transposed(&self, b: &mut Mat<f64>) {
         solve_upper_triangular_in_place(self.l.transpose(), b.as_mut(), Par::Seq);
+    }
+
+    /// The lower triangle of `A^-1 = L^-T L^-1` (the strict upper triangle
+    /// is left zero): the triangular inverse then a triangular product,
+    /// about `2 n^3 / 3` flops (twice a factorisation), multi-threaded
+    /// unless [`sequential`].
+    pub fn inverse_lower(&self) -> Mat<f64> {
+        let n = self.dim();
+        let mut out = Mat::<f64>::zeros(n, n);
+        let par = par();
+        let mut mem = faer::dyn_stack::MemBuffer::new(
+            faer::linalg::cholesky::llt::inverse::inverse_scratch::<f64>(n, par),
+        );
+        let stack = faer::dyn_stack::MemStack::new(&mut mem);
+        faer::linalg::cholesky::llt::inverse::inverse(out.as_mut(), self.l.as_ref(), par, stack);
+        for j in 0..n {
+            for i in 0..j {
+                out[(i, j)] = 0.0;
+            }
+        }
+        out
     }
 
     /// `A^-1`, `n x n`. Cost `n^3` flops (for small systems).
@@ -163,7 +229,7 @@ impl Cholesky {
 
 /// Solve `L Z = B` in place (`B` is `n x k`), `L` lower triangular.
 pub fn whiten(l: MatRef<'_, f64>, b: &mut Mat<f64>) {
-    solve_lower_triangular_in_place(l, b.as_mut(), Par::rayon(0));
+    solve_lower_triangular_in_place(l, b.as_mut(), par());
 }
 
 /// Inverse and log-determinant of a small dense symmetric positive definite

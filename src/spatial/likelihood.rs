@@ -224,6 +224,7 @@ pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, Likeli
         )));
     }
     let v = Kernel::correlation(params).fill_lower(n, |i, j| dist.get(i, j));
+    super::factor::count_factorisation();
     let c = Cholesky::new(v, CORRELATION_MIN_DIAGONAL).map_err(|location| {
         LikelihoodError::NotPositiveDefinite {
             family: params.family.name(),
@@ -265,7 +266,7 @@ pub struct Profiled {
 }
 
 /// GLS quantities from an already whitened `[Xw | yw]` (`n x (p+1)`) and `ln|V|`.
-fn profile_whitened(
+pub(super) fn profile_whitened(
     w: &Mat<f64>,
     logdet_v: f64,
     method: LikelihoodKind,
@@ -330,12 +331,12 @@ fn profile_whitened(
 }
 
 /// Copy `X` (`n x p`, given by columns) and `y` into one `n x (p+1)` matrix.
-fn stack_xy(x: &[Vec<f64>], y: &[f64]) -> Mat<f64> {
+pub(super) fn stack_xy(x: &[Vec<f64>], y: &[f64]) -> Mat<f64> {
     let n = y.len();
     Mat::from_fn(n, x.len() + 1, |i, j| if j < x.len() { x[j][i] } else { y[i] })
 }
 
-fn check_sizes(dist: &Distances, x: &[Vec<f64>], y: &[f64]) -> Result<(), LikelihoodError> {
+pub(super) fn check_sizes(dist: &Distances, x: &[Vec<f64>], y: &[f64]) -> Result<(), LikelihoodError> {
     let n = dist.len();
     if y.len() != n || x.iter().any(|c| c.len() != n) {
         return Err(LikelihoodError::Invalid(format!("X, y and the distances disagree on n = {n}")));
@@ -438,6 +439,77 @@ impl Default for SearchOptions {
     }
 }
 
+/// The box of a search over `(ln range, eta)` and the distances it came from.
+pub(super) struct SearchBox {
+    /// Sorted positive pairwise distances (see [`Distances::positive_sample`]).
+    pub(super) sample: Vec<f64>,
+    /// Lower bounds of `(ln range, eta)`.
+    pub(super) lo: [f64; 2],
+    /// Upper bounds of `(ln range, eta)`.
+    pub(super) hi: [f64; 2],
+    /// 2 with a nugget, else 1.
+    pub(super) dim: usize,
+    /// The range bounds in metres (`lo`, `hi` before the logarithm).
+    pub(super) range: (f64, f64),
+}
+
+impl SearchBox {
+    /// Range in `[min positive distance / 10, 10 x max distance]` (or the
+    /// bounds given), eta in `[0, eta_max]` with a nugget.
+    pub(super) fn new(dist: &Distances, opts: &SearchOptions) -> Result<SearchBox, LikelihoodError> {
+        let sample = dist.positive_sample();
+        if sample.is_empty() {
+            return Err(LikelihoodError::Invalid("all observations are at the same position".into()));
+        }
+        let (lo, hi) = opts.range_bounds.unwrap_or((sample[0] / 10.0, sample[sample.len() - 1] * 10.0));
+        if !(lo > 0.0 && hi > lo) {
+            return Err(LikelihoodError::Invalid(format!("range bounds [{lo}, {hi}] are not valid")));
+        }
+        let eta_max = if opts.nugget { opts.eta_max.clamp(0.0, 0.999) } else { 0.0 };
+        let dim = if opts.nugget { 2 } else { 1 };
+        Ok(SearchBox { sample, lo: [lo.ln(), 0.0], hi: [hi.ln(), eta_max], dim, range: (lo, hi) })
+    }
+
+    /// Another optimum among the runs' end points `ends` (a different place,
+    /// more than 1e-4 lower), and the bounds `best` lies on.
+    pub(super) fn outcome(
+        &self,
+        best: &Profiled,
+        mut ends: Vec<(&[f64], f64)>,
+        family: Family,
+    ) -> (Option<(CovParams, f64)>, Vec<&'static str>) {
+        let dim = self.dim;
+        ends.sort_by(|a, b| b.1.total_cmp(&a.1));
+        let other_optimum = ends
+            .iter()
+            .skip(1)
+            .find(|(t, v)| {
+                (best.loglik - v) > 1e-4
+                    && ((t[0] - best.params.range.ln()).abs() > 0.05
+                        || (dim == 2 && (t[1] - best.params.eta).abs() > 0.02))
+            })
+            .map(|(t, v)| {
+                (CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } }, *v)
+            });
+        let mut at_bounds = Vec::new();
+        let lr = best.params.range.ln();
+        let tol = 1e-4;
+        if lr - self.lo[0] < tol {
+            at_bounds.push("range_lower");
+        }
+        if self.hi[0] - lr < tol {
+            at_bounds.push("range_upper");
+        }
+        if dim == 2 && best.params.eta < 1e-6 {
+            at_bounds.push("nugget_zero");
+        }
+        if dim == 2 && self.hi[1] - best.params.eta < 1e-6 {
+            at_bounds.push("nugget_upper");
+        }
+        (other_optimum, at_bounds)
+    }
+}
+
 /// Result of [`maximise`].
 #[derive(Clone, Debug)]
 pub struct Maximum {
@@ -447,8 +519,14 @@ pub struct Maximum {
     pub converged: bool,
     /// The estimate lies on a bound: any of `"range_lower"`, `"range_upper"`, `"nugget_zero"`, `"nugget_upper"`.
     pub at_bounds: Vec<&'static str>,
-    /// Likelihood evaluations in all (grid and simplex).
+    /// Likelihood evaluations in all (grid and search).
     pub evaluations: usize,
+    /// Dense factorisations of `V` made by this search on its own (a grid
+    /// shared with other fixed parts is counted apart, see
+    /// [`crate::spatial::ascent::maximise_shared`]).
+    pub factorisations: usize,
+    /// Wall-clock seconds of this search's own work.
+    pub seconds: f64,
     /// The range bounds used.
     pub range_bounds: (f64, f64),
     /// Spread between the best log-likelihood and the best of the other
@@ -474,18 +552,10 @@ pub fn maximise(
     opts: &SearchOptions,
 ) -> Result<Maximum, LikelihoodError> {
     check_sizes(dist, x, y)?;
-    let sample = dist.positive_sample();
-    if sample.is_empty() {
-        return Err(LikelihoodError::Invalid("all observations are at the same position".into()));
-    }
-    let (lo, hi) = opts.range_bounds.unwrap_or((sample[0] / 10.0, sample[sample.len() - 1] * 10.0));
-    if !(lo > 0.0 && hi > lo) {
-        return Err(LikelihoodError::Invalid(format!("range bounds [{lo}, {hi}] are not valid")));
-    }
-    let eta_max = if opts.nugget { opts.eta_max.clamp(0.0, 0.999) } else { 0.0 };
-    let dim = if opts.nugget { 2 } else { 1 };
-    let box_lo = [lo.ln(), 0.0];
-    let box_hi = [hi.ln(), eta_max];
+    let f0 = super::factor::factorisations_on_this_thread();
+    let t0 = std::time::Instant::now();
+    let SearchBox { sample, lo: box_lo, hi: box_hi, dim, range: (lo, hi) } = SearchBox::new(dist, opts)?;
+    let eta_max = box_hi[1];
     struct State {
         evaluations: usize,
         best: Option<Profiled>,
@@ -573,30 +643,21 @@ pub fn maximise(
     }
     let State { evaluations, best, .. } = state.into_inner();
     let best = best.expect("a finite grid point exists");
-    ends.sort_by(|a, b| b.1.total_cmp(&a.1));
-    let other_optimum = ends.iter().skip(1).find(|(t, v)| {
-        (best.loglik - v) > 1e-4
-            && ((t[0] - best.params.range.ln()).abs() > 0.05
-                || (dim == 2 && (t[1] - best.params.eta).abs() > 0.02))
-    });
-    let other_optimum = other_optimum
-        .map(|(t, v)| (CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } }, *v));
-    let mut at_bounds = Vec::new();
-    let lr = best.params.range.ln();
-    let tol = 1e-4;
-    if lr - box_lo[0] < tol {
-        at_bounds.push("range_lower");
-    }
-    if box_hi[0] - lr < tol {
-        at_bounds.push("range_upper");
-    }
-    if dim == 2 && best.params.eta < 1e-6 {
-        at_bounds.push("nugget_zero");
-    }
-    if dim == 2 && eta_max - best.params.eta < 1e-6 {
-        at_bounds.push("nugget_upper");
-    }
-    Ok(Maximum { best, converged, at_bounds, evaluations, range_bounds: (lo, hi), other_optimum })
+    let ends: Vec<(&[f64], f64)> = ends.iter().map(|(t, v)| (t.as_slice(), *v)).collect();
+    let (other_optimum, at_bounds) =
+        SearchBox { sample: Vec::new(), lo: box_lo, hi: box_hi, dim, range: (lo, hi) }
+            .outcome(&best, ends, family);
+    let factorisations = (super::factor::factorisations_on_this_thread() - f0) as usize;
+    Ok(Maximum {
+        best,
+        converged,
+        at_bounds,
+        evaluations,
+        factorisations,
+        seconds: t0.elapsed().as_secs_f64(),
+        range_bounds: (lo, hi),
+        other_optimum,
+    })
 }
 
 #[cfg(test)]

@@ -7,7 +7,8 @@ use super::DISTANCE_PREFIX;
 use crate::model::data::{ModelData, ModelSpec};
 use crate::model::design::{Design, DesignSpec};
 use crate::model::error::{ModelError, Result};
-use crate::model::gls::{Errors, Fit, fit_correlated, fit_independent};
+use crate::model::gls::{Errors, Fit, fit_correlated, fit_correlated_shared, fit_independent};
+pub use crate::model::timings::SharedGrid;
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
 
 pub(super) fn lerr(model: &str, e: crate::spatial::likelihood::LikelihoodError) -> ModelError {
@@ -62,6 +63,12 @@ pub(super) fn fit(
     }
 }
 
+/// Threads the grid's fits are spread over: the hardware threads (at most
+/// 8), one below 64 pots where a fit takes well under a millisecond.
+pub fn fit_threads(n: usize) -> usize {
+    if n < 64 { 1 } else { std::thread::available_parallelism().map(|t| t.get()).unwrap_or(1).min(8) }
+}
+
 /// One ML fit of the grid with its shape.
 pub(super) struct GridFit {
     pub(super) drivers: Vec<String>,
@@ -72,13 +79,16 @@ pub(super) struct GridFit {
 /// Fit every model of the grid by ML, in a fixed order (driver sets outer,
 /// error models inner). `full` is the design with every driver (built first
 /// so that collinear drivers are refused with their names). Error models left
-/// out are said in `notes`. Each finished fit is a step of `progress`.
+/// out are said in `notes`; the start grids shared by the fixed parts of one
+/// error model are listed in `shared`. Each finished fit is a step of
+/// `progress`.
 pub(super) fn fit_grid(
     data: &ModelData,
     spec: &ModelSpec,
     full: &Design,
     dist: &Distances,
     notes: &mut Vec<String>,
+    shared: &mut Vec<SharedGrid>,
     progress: &dyn crate::model::progress::FitProgress,
 ) -> Result<Vec<GridFit>> {
     // Every driver alone; the measured climate drivers together. A distance
@@ -110,22 +120,101 @@ pub(super) fn fit_grid(
             error_models.push(Errors::Correlated { family, nugget: true });
         }
     }
+    let total = driver_sets.len() * error_models.len();
+    let counter = crate::model::progress::Counter::begin(progress, "comparison grid (ML fits)", total);
+    let designs: Vec<Design> = driver_sets
+        .iter()
+        .map(|drivers| {
+            if drivers.len() == spec.drivers.len() && !drivers.is_empty() {
+                Ok(full.clone())
+            } else {
+                design_for(data, spec, drivers)
+            }
+        })
+        .collect::<Result<_>>()?;
+    // One task per error model: its fits of every driver set share the
+    // start grid's factorisations. Tasks run on up to `fit_threads` threads,
+    // each fit single-threaded inside (threads across fits, not inside
+    // factorisations of a few hundred rows); results keep the fixed order.
+    let fit_threads = fit_threads(data.response.len()).min(error_models.len()).max(1);
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    type Task = (Vec<Result<Fit>>, Option<SharedGrid>);
+    let run_task = |k: usize| -> Result<Task> {
+        let errors = error_models[k];
+        match errors {
+            Errors::Independent => Ok((
+                designs
+                    .iter()
+                    .map(|d| {
+                        let f = fit(d, data, dist, errors, LikelihoodKind::Ml);
+                        counter.step();
+                        f
+                    })
+                    .collect(),
+                None,
+            )),
+            Errors::Correlated { family, nugget } => {
+                let names: Vec<String> = designs.iter().map(|d| model_name(&d.drivers, &errors)).collect();
+                let refs: Vec<&Design> = designs.iter().collect();
+                let (fits, (factorisations, seconds)) = fit_correlated_shared(
+                    &names,
+                    &refs,
+                    &data.response,
+                    dist,
+                    &data.pots,
+                    family,
+                    nugget,
+                    LikelihoodKind::Ml,
+                )?;
+                for _ in &fits {
+                    counter.step();
+                }
+                let grid = SharedGrid { errors: errors.label(), fits: fits.len(), factorisations, seconds };
+                Ok((fits, Some(grid)))
+            }
+        }
+    };
+    let mut done: Vec<Option<Result<Task>>> = (0..error_models.len()).map(|_| None).collect();
+    let worker = || {
+        let mut mine = Vec::new();
+        crate::spatial::factor::sequential(|| {
+            loop {
+                let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                if k >= error_models.len() {
+                    break;
+                }
+                mine.push((k, run_task(k)));
+            }
+        });
+        mine
+    };
+    if fit_threads <= 1 {
+        for (k, r) in worker() {
+            done[k] = Some(r);
+        }
+    } else {
+        std::thread::scope(|s| {
+            let handles: Vec<_> = (0..fit_threads).map(|_| s.spawn(worker)).collect();
+            for h in handles {
+                for (k, r) in h.join().expect("a fit thread panicked") {
+                    done[k] = Some(r);
+                }
+            }
+        });
+    }
+    let mut per_model: Vec<std::vec::IntoIter<Result<Fit>>> = Vec::new();
+    for r in done {
+        let (fits, g) = r.expect("every error model was fitted")?;
+        if let Some(g) = g {
+            shared.push(g);
+        }
+        per_model.push(fits.into_iter());
+    }
     let mut grid: Vec<GridFit> = Vec::new();
-    let counter = crate::model::progress::Counter::begin(
-        progress,
-        "comparison grid (ML fits)",
-        driver_sets.len() * error_models.len(),
-    );
     for drivers in &driver_sets {
-        let design = if drivers.len() == spec.drivers.len() && !drivers.is_empty() {
-            full.clone()
-        } else {
-            design_for(data, spec, drivers)?
-        };
-        for &errors in &error_models {
-            let f = fit(&design, data, dist, errors, LikelihoodKind::Ml)?;
+        for (k, &errors) in error_models.iter().enumerate() {
+            let f = per_model[k].next().expect("one fit per driver set")?;
             grid.push(GridFit { drivers: drivers.clone(), errors, fit: f });
-            counter.step();
         }
     }
     Ok(grid)

@@ -58,6 +58,7 @@ use super::diagnostics::{MORAN_NEIGHBOURS, knn, moran_residuals};
 use super::error::Result;
 use super::gls::{Fit, fit_independent};
 use crate::io::study::Study;
+use crate::model::timings::{FitTime, ImputationTime, Timings};
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
 use serde::{Deserialize, Serialize};
 use statrs::distribution::{ContinuousCDF, StudentsT};
@@ -215,7 +216,15 @@ pub fn verdict_on(
             ));
             continue;
         };
+        let (t, f0) = (Instant::now(), crate::spatial::factor::factorisations_on_this_thread());
         let m = mapping_uncertainty_with(data, spec, &r.chosen_shape, sv, opts, progress)?;
+        r.timings.imputations.push(ImputationTime {
+            driver: d.clone(),
+            refits: m.fits.len(),
+            factorisations: (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize
+                + m.refit_factorisations,
+            seconds: t.elapsed().as_secs_f64(),
+        });
         if let Some(row) = r.drivers.iter_mut().find(|x| &x.name == d) {
             row.estimate_with_mapping_uncertainty = Some(m.pooled.estimate);
             row.se_with_mapping_uncertainty = Some(m.pooled.se);
@@ -248,7 +257,8 @@ pub fn analyse_with(
     let full = design_for(data, spec, &spec.drivers)?;
     let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| lerr("positions", e))?;
     let mut notes = Vec::new();
-    let grid = fit_grid(data, spec, &full, &dist, &mut notes, progress)?;
+    let mut shared = Vec::new();
+    let grid = fit_grid(data, spec, &full, &dist, &mut notes, &mut shared, progress)?;
     let (ranked, verdict) = rank_and_decide(&grid, n, opts.tie_delta)?;
     let by_name = |name: &str| -> &GridFit {
         grid.iter()
@@ -289,6 +299,17 @@ pub fn analyse_with(
     let openings = openings_summary(&drivers);
     let adjusted_means = adjusted_means(data, spec, &chosen_design, &chosen, &base_design, &plain);
     let positions = (0..n).map(|i| (data.pots[i].clone(), data.x[i], data.y[i])).collect();
+    let mut fit_times: Vec<FitTime> =
+        grid.iter().map(|g| fit_time(&model_name(&g.drivers, &g.errors), &g.fit)).collect();
+    fit_times.push(fit_time(&verdict.chosen, &chosen));
+    let timings = Timings {
+        threads: std::thread::available_parallelism().map(|t| t.get()).unwrap_or(1),
+        fit_threads: self::grid::fit_threads(n),
+        stages: Vec::new(),
+        fits: fit_times,
+        shared_grids: shared,
+        imputations: Vec::new(),
+    };
     Ok(VerdictResult {
         verdict: verdict.verdict.word().into(),
         reason: verdict.reason.clone(),
@@ -309,12 +330,27 @@ pub fn analyse_with(
         notes,
         n_fits: grid.len() + 2,
         seconds: start.elapsed().as_secs_f64(),
+        timings,
         positions,
         plain_residuals: plain.residuals.clone(),
         chosen_residuals: chosen.residuals.clone(),
         plain_moran: moran_of(&plain),
         chosen_shape: (chosen_ml.drivers.clone(), chosen_ml.errors),
     })
+}
+
+/// The timing row of one fit (an independent fit is closed form: no
+/// evaluations counted, no factorisation of a covariance).
+fn fit_time(model: &str, f: &Fit) -> FitTime {
+    let (evaluations, factorisations, seconds) =
+        f.search.as_ref().map(|s| (s.evaluations, s.factorisations, s.seconds)).unwrap_or((0, 0, 0.0));
+    FitTime {
+        model: model.to_string(),
+        method: f.method.label().to_string(),
+        evaluations,
+        factorisations,
+        seconds,
+    }
 }
 
 #[cfg(test)]

@@ -243,6 +243,8 @@ pub struct VerdictResult {
     pub n_fits: usize,
     /// Wall-clock time of the grid and refits, seconds.
     pub seconds: f64,
+    /// Where the time went (docs/outputs.md, `timings`).
+    pub timings: crate::model::timings::Timings,
     /// Pot ids, x, y (for the report's residual maps).
     #[serde(skip)]
     pub positions: Vec<(String, f64, f64)>,

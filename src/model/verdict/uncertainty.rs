@@ -9,7 +9,7 @@ use crate::io::study::Study;
 use crate::model::compare;
 use crate::model::data::{ModelData, ModelSpec};
 use crate::model::error::{ModelError, Result};
-use crate::model::gls::Errors;
+use crate::model::gls::{Errors, fit_correlated_from};
 use crate::model::imputation::{BURN_IN, Conditioning, Imputer, THIN, TraitParams};
 use crate::spatial::geometry::Points;
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
@@ -88,6 +88,9 @@ pub struct MappingDraws {
     pub variogram: VariogramModel,
     /// What the notes say, in one sentence.
     pub note: String,
+    /// Factorisations of the pots' covariance made by the refits (on
+    /// whichever threads ran them).
+    pub refit_factorisations: usize,
 }
 
 /// Fewest sensors for fitting a variogram to one indicator (common practice;
@@ -240,17 +243,66 @@ pub fn impute_and_pool(
         rand_chacha::ChaCha20Rng::seed_from_u64(opts.seed ^ (0x9e37_79b9_u64.wrapping_mul(j as u64 + 1)));
     let imp = imputer.impute(&start, opts.draws, conditioning, &mut rng)?;
 
-    let mut fits = Vec::with_capacity(imp.draws.len());
-    let mut d = data.clone();
+    // The refits: each starts from the plug-in fit's correlation parameters
+    // (the draws perturb one driver column), spread over threads with every
+    // fit single-threaded inside; the results keep the order of the draws.
     let what = format!("imputations of `{name}` (REML refits)");
     let counter = crate::model::progress::Counter::begin(progress, &what, imp.draws.len());
-    for x in imp.draws {
-        d.drivers[j].1 = x;
+    let start_params = plug.covariance.map(|cov| cov.params);
+    let refit_factorisations = std::sync::atomic::AtomicUsize::new(0);
+    let refit = |x: &Vec<f64>| -> Result<(f64, f64)> {
+        let f0 = crate::spatial::factor::factorisations_on_this_thread();
+        let mut d = data.clone();
+        d.drivers[j].1 = x.clone();
         let design = design_for(&d, spec, &shape.0)?;
-        let f = fit(&design, &d, &dist, shape.1, LikelihoodKind::Reml)?;
-        fits.push((f.beta[c], f.se[c]));
+        let f = match (shape.1, start_params) {
+            (Errors::Correlated { nugget, .. }, Some(p)) => fit_correlated_from(
+                &model_name(&shape.0, &shape.1),
+                &design,
+                &d.response,
+                &dist,
+                p,
+                nugget,
+                LikelihoodKind::Reml,
+            )?,
+            _ => fit(&design, &d, &dist, shape.1, LikelihoodKind::Reml)?,
+        };
         counter.step();
+        refit_factorisations.fetch_add(
+            (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize,
+            std::sync::atomic::Ordering::Relaxed,
+        );
+        Ok((f.beta[c], f.se[c]))
+    };
+    let threads = super::grid::fit_threads(n).min(imp.draws.len()).max(1);
+    let mut slots: Vec<Option<Result<(f64, f64)>>> = (0..imp.draws.len()).map(|_| None).collect();
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let worker = || {
+        let mut mine = Vec::new();
+        crate::spatial::factor::sequential(|| {
+            loop {
+                let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                if k >= imp.draws.len() {
+                    break;
+                }
+                mine.push((k, refit(&imp.draws[k])));
+            }
+        });
+        mine
+    };
+    let done: Vec<(usize, Result<(f64, f64)>)> = if threads <= 1 {
+        worker()
+    } else {
+        std::thread::scope(|s| {
+            let handles: Vec<_> = (0..threads).map(|_| s.spawn(worker)).collect();
+            handles.into_iter().flat_map(|h| h.join().expect("a refit thread panicked")).collect()
+        })
+    };
+    for (k, r) in done {
+        slots[k] = Some(r);
     }
+    let fits: Vec<(f64, f64)> =
+        slots.into_iter().map(|r| r.expect("every draw was refitted")).collect::<Result<_>>()?;
     drop(counter);
     let pooled = compare::rubin(&fits).ok_or_else(|| bad("Rubin's rules undefined".into(), None))?;
     let tq = if pooled.df.is_finite() { t_quantile(pooled.df) } else { 1.959964 };
@@ -289,5 +341,6 @@ pub fn impute_and_pool(
         lag_autocorrelation: imp.lag_autocorrelation,
         variogram: model,
         note,
+        refit_factorisations: refit_factorisations.into_inner(),
     })
 }
