@@ -95,25 +95,20 @@ fn places_loggers_in_a_simulated_study() {
     potclim::report::xml::check_well_formed(&html).unwrap();
     assert!(html.contains("fig-se-now") && html.contains("fig-se-after"));
 
-    // The SE now is the map's own SE of the indicator: `potclim map` krigs the
-    // loggers' values (its own code path) and scales a summed indicator by
-    // each pot's share of the study's days, the same share for every pot here
-    // (one sowing date), so the ratio is one constant.
+    // The placement's SE is the kriging SE of the loggers' study-period values
+    // (a design quantity, docs/planning.md); the map's own window SE is
+    // calibrated from the per-step errors (docs/spatial.md) and is another
+    // quantity: on this study their ranks hardly agree (Spearman about 0.08),
+    // so only that both exist for every pot is checked here.
     for cmd in ["ingest", "climate", "map"] {
         ok(potclim(&[cmd, "study/study.toml"], d));
     }
     let cov = rows(&d.join("study/output/pot_covariates.csv"));
     let c = cov[0].iter().position(|h| h == "night_cool_hours_se").unwrap();
-    let ratios: Vec<f64> = (1..cov.len())
-        .map(|k| {
-            assert_eq!(cov[k][0], pots[k][0]);
-            num(&pots[k][3]) / num(&cov[k][c])
-        })
-        .collect();
-    for r in &ratios {
-        assert!((r / ratios[0] - 1.0).abs() < 1e-9, "{ratios:?}");
+    for k in 1..cov.len() {
+        assert_eq!(cov[k][0], pots[k][0]);
+        assert!(num(&pots[k][3]) > 0.0 && num(&cov[k][c]) > 0.0);
     }
-    assert!(ratios[0] >= 1.0 && ratios[0] < 1.5, "{}", ratios[0]);
 }
 
 /// A layout on paper: the scenario's pots and loggers with a stated
