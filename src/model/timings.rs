@@ -60,6 +60,10 @@ pub struct ImputationTime {
     pub seconds: f64,
 }
 
+/// One row of the printed table: label, fits, evaluations (blank where not
+/// counted), factorisations, seconds (blank for the total).
+type TableRow = (String, usize, Option<usize>, usize, Option<f64>);
+
 /// Timings of a run (see the module docs).
 #[derive(Clone, Debug, Default, Serialize, PartialEq)]
 pub struct Timings {
@@ -95,62 +99,99 @@ impl Timings {
     /// The table printed by `potclim run --timings`: stages, then the fits
     /// summed by error model, the shared grids and the imputations.
     pub fn table(&self) -> String {
-        let mut out = String::new();
-        out.push_str(&format!(
-            "timings ({} hardware threads, fits spread over {})\n",
-            self.threads, self.fit_threads
-        ));
-        out.push_str(&format!("{:<34} {:>9}\n", "stage", "seconds"));
+        let mut out =
+            format!("timings ({} hardware threads, fits spread over {})\n", self.threads, self.fit_threads);
+        let w = self.stages.iter().map(|s| s.stage.len()).max().unwrap_or(0).max("stage".len());
+        out.push_str(&format!("{:<w$} {:>9}\n", "stage", "seconds"));
         for s in &self.stages {
-            out.push_str(&format!("{:<34} {:>9.3}\n", s.stage, s.seconds));
+            out.push_str(&format!("{:<w$} {:>9.3}\n", s.stage, s.seconds));
         }
-        out.push_str(&format!(
-            "\n{:<34} {:>5} {:>11} {:>14} {:>9}\n",
-            "fits by error model", "fits", "evaluations", "factorisations", "seconds"
-        ));
-        let mut groups: Vec<(String, usize, usize, usize, f64)> = Vec::new();
+        // Rows: label, fits, evaluations (blank where not counted), factorisations, seconds.
+        let mut rows: Vec<TableRow> = Vec::new();
         for f in &self.fits {
             let key = format!("{} {}", f.method, f.model.split(" | ").nth(1).unwrap_or("independent"));
-            match groups.iter_mut().find(|g| g.0 == key) {
+            match rows.iter_mut().find(|g| g.0 == key) {
                 Some(g) => {
                     g.1 += 1;
-                    g.2 += f.evaluations;
+                    g.2 = g.2.map(|e| e + f.evaluations);
                     g.3 += f.factorisations;
-                    g.4 += f.seconds;
+                    g.4 = g.4.map(|t| t + f.seconds);
                 }
-                None => groups.push((key, 1, f.evaluations, f.factorisations, f.seconds)),
+                None => rows.push((key, 1, Some(f.evaluations), f.factorisations, Some(f.seconds))),
             }
         }
-        for (k, n, e, fa, s) in &groups {
-            out.push_str(&format!("{k:<34} {n:>5} {e:>11} {fa:>14} {s:>9.3}\n"));
-        }
         for g in &self.shared_grids {
-            out.push_str(&format!(
-                "{:<34} {:>5} {:>11} {:>14} {:>9.3}\n",
+            rows.push((
                 format!("start grid shared: {}", g.errors),
                 g.fits,
-                "",
+                None,
                 g.factorisations,
-                g.seconds
+                Some(g.seconds),
             ));
         }
         for i in &self.imputations {
-            out.push_str(&format!(
-                "{:<34} {:>5} {:>11} {:>14} {:>9.3}\n",
+            rows.push((
                 format!("imputations: {}", i.driver),
                 i.refits,
-                "",
+                None,
                 i.factorisations,
-                i.seconds
+                Some(i.seconds),
             ));
         }
+        rows.push(("total".into(), self.fits.len(), Some(self.evaluations()), self.factorisations(), None));
+        let w = rows.iter().map(|r| r.0.len()).max().unwrap_or(0).max("fits by error model".len());
         out.push_str(&format!(
-            "{:<34} {:>5} {:>11} {:>14}\n",
-            "total",
-            self.fits.len(),
-            self.evaluations(),
-            self.factorisations()
+            "\n{:<w$} {:>5} {:>11} {:>14} {:>9}\n",
+            "fits by error model", "fits", "evaluations", "factorisations", "seconds"
         ));
+        for (k, n, e, fa, s) in &rows {
+            let e = e.map(|e| e.to_string()).unwrap_or_default();
+            let s = s.map(|s| format!("{s:.3}")).unwrap_or_default();
+            out.push_str(format!("{k:<w$} {n:>5} {e:>11} {fa:>14} {s:>9}").trim_end());
+            out.push('\n');
+        }
         out
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The table sums fits by error model, and its columns line up however
+    /// long a label is (a shared grid of a nugget family is the longest).
+    #[test]
+    fn table_sums_by_error_model_and_aligns() {
+        let fit = |model: &str, e, f| FitTime {
+            model: model.into(),
+            method: "ML".into(),
+            evaluations: e,
+            factorisations: f,
+            seconds: 0.5,
+        };
+        let t = Timings {
+            threads: 2,
+            fit_threads: 2,
+            stages: vec![StageTime { stage: "verdict".into(), seconds: 1.0 }],
+            fits: vec![fit("base | exponential+nugget", 10, 4), fit("base+d | exponential+nugget", 5, 3)],
+            shared_grids: vec![SharedGrid {
+                errors: "exponential+nugget".into(),
+                fits: 2,
+                factorisations: 39,
+                seconds: 0.25,
+            }],
+            imputations: vec![],
+        };
+        let table = t.table();
+        let rows: Vec<&str> = table.lines().skip_while(|l| !l.starts_with("fits by error model")).collect();
+        assert_eq!(rows.len(), 4, "{table}");
+        let sums: Vec<&str> = rows[1].split_whitespace().collect();
+        assert_eq!(sums, ["ML", "exponential+nugget", "2", "15", "7", "1.000"]);
+        // every number column ends where the header's does
+        let end = rows[0].find("factorisations").unwrap() + "factorisations".len();
+        for r in &rows[1..] {
+            assert!(r[..end].ends_with(|c: char| c.is_ascii_digit()), "{table}");
+        }
+        assert!(rows[3].starts_with("total") && rows[3].split_whitespace().eq(["total", "2", "15", "46"]));
     }
 }
