@@ -11,7 +11,8 @@ use super::correlation::Family;
 use super::error::{Result, SpatialError};
 use super::geometry::DISTANCE_PREFIX;
 use super::mapping::CvScore;
-use super::variogram::{Empirical, VariogramFit};
+use super::variogram::{Empirical, MlFit, VariogramFit};
+use super::window_se::Calibration;
 use crate::io::output::{CsvTable, number, opt_number};
 
 /// File name of the mapped drivers per pot.
@@ -24,6 +25,14 @@ pub const VARIOGRAM_FITS_FILE: &str = "variogram_fits.csv";
 pub const MAPPING_CV_FILE: &str = "mapping_cv.csv";
 /// File name of the maximum-likelihood variogram fits.
 pub const VARIOGRAM_ML_FITS_FILE: &str = "variogram_ml_fits.csv";
+/// File name of the map's self-check at every logger.
+pub const MAPPING_CHECK_FILE: &str = "mapping_check.csv";
+/// File name of the table that says how each indicator's standard errors were made.
+pub const MAPPING_SE_FILE: &str = "mapping_se.csv";
+
+/// One indicator and family with its maximum-likelihood variogram fit
+/// (`None` where the fit failed), as carried by the mapping run.
+pub type MlFitRow = (String, Family, Option<MlFit>);
 
 /// One mapped indicator: a value and (optionally) a standard error per pot.
 #[derive(Clone, Debug, PartialEq)]
@@ -234,6 +243,84 @@ pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
         }
     }
     Ok(w.into_bytes())
+}
+
+/// `mapping_se.csv`: one row per indicator: `indicator`, `se_from`
+/// (`per_step_errors`: the per-step kriging errors with a persistent share
+/// calibrated on the left-out loggers, [`super::window_se`];
+/// `kriged_window_values`: the loggers' study-period values kriged),
+/// `persistent_share`, `inflation`, `loggers` (left-out loggers used),
+/// `median_z2` (their median squared standardised error after calibration).
+pub fn mapping_se_csv(indicators: &[MappedColumn], window_se: &[Option<Calibration>]) -> Vec<u8> {
+    let mut t =
+        CsvTable::new(["indicator", "se_from", "persistent_share", "inflation", "loggers", "median_z2"]);
+    for (col, c) in indicators.iter().zip(window_se) {
+        let mut r = vec![col.name.clone()];
+        match c {
+            Some(c) => r.extend([
+                "per_step_errors".to_string(),
+                number(c.share),
+                number(c.inflation),
+                c.loggers.to_string(),
+                number(c.median_z2),
+            ]),
+            None => r.extend([
+                "kriged_window_values".to_string(),
+                String::new(),
+                String::new(),
+                String::new(),
+                String::new(),
+            ]),
+        }
+        t.row(r);
+    }
+    t.into_bytes()
+}
+
+/// `variogram_ml_fits.csv`: one row per indicator and family, the variogram
+/// fitted by maximum likelihood to the indicator's study-period values at the
+/// sensors: `variable,family,nugget,partial_sill,sill,range,practical_range,
+/// loglik,aic,evaluations,at_bounds` (AIC counts mean, sigma², range and, when
+/// fitted, the nugget share). Empty cells where the fit failed (fewer than three
+/// sensors with a value).
+pub fn variogram_ml_fits_csv(fits: &[MlFitRow], nugget: bool) -> Vec<u8> {
+    let mut t = CsvTable::new([
+        "variable",
+        "family",
+        "nugget",
+        "partial_sill",
+        "sill",
+        "range",
+        "practical_range",
+        "loglik",
+        "aic",
+        "evaluations",
+        "at_bounds",
+    ]);
+    for (name, fam, f) in fits {
+        let mut r = vec![name.clone(), fam.name()];
+        match f {
+            Some(f) => {
+                let m = &f.model;
+                // Parameters: mean, sigma², range, and the nugget share when it was estimated.
+                let k = if nugget { 4 } else { 3 };
+                r.extend([
+                    number(m.nugget),
+                    number(m.partial_sill),
+                    number(m.sill()),
+                    number(m.range),
+                    number(m.practical_range()),
+                    number(f.loglik),
+                    number(super::likelihood::aic(f.loglik, k)),
+                    f.evaluations.to_string(),
+                    f.at_bounds.join("+"),
+                ]);
+            }
+            None => r.extend(std::iter::repeat_n(String::new(), 9)),
+        }
+        t.row(r);
+    }
+    t.into_bytes()
 }
 
 #[cfg(test)]

@@ -81,8 +81,10 @@ fn num(v: Option<f64>) -> String {
 /// `nearest_to_opening` (openings this logger is nearest to, `;`-separated),
 /// `flagged` (`|z| > 2`).
 pub fn mapping_check_csv(checks: &[SensorCheck]) -> Result<Vec<u8>> {
-    let err =
-        |e: csv::Error| SpatialError::BadInput { what: "mapping_check.csv".into(), message: e.to_string() };
+    let err = |e: csv::Error| SpatialError::BadInput {
+        what: super::outputs::MAPPING_CHECK_FILE.into(),
+        message: e.to_string(),
+    };
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record([
         "indicator",
@@ -110,8 +112,10 @@ pub fn mapping_check_csv(checks: &[SensorCheck]) -> Result<Vec<u8>> {
         ])
         .map_err(err)?;
     }
-    w.into_inner()
-        .map_err(|e| SpatialError::BadInput { what: "mapping_check.csv".into(), message: e.to_string() })
+    w.into_inner().map_err(|e| SpatialError::BadInput {
+        what: super::outputs::MAPPING_CHECK_FILE.into(),
+        message: e.to_string(),
+    })
 }
 
 #[cfg(test)]

@@ -31,8 +31,9 @@ use super::geometry::{Points, opening_distances, pot_points, sensor_points};
 use super::kriging::{Drift, Interpolator, Spec};
 use super::mapping::{CvScore, ModelChoice, choose, choose_model, loso, map_series, map_summary};
 use super::outputs::{
-    MAPPING_CV_FILE, MappedColumn, POT_COVARIATES_FILE, VARIOGRAM_FITS_FILE, VARIOGRAM_ML_FITS_FILE,
-    VARIOGRAMS_FILE, mapping_cv_csv, pot_covariates_csv, variogram_fits_csv, variograms_csv,
+    MAPPING_CHECK_FILE, MAPPING_CV_FILE, MAPPING_SE_FILE, MappedColumn, POT_COVARIATES_FILE,
+    VARIOGRAM_FITS_FILE, VARIOGRAM_ML_FITS_FILE, VARIOGRAMS_FILE, mapping_cv_csv, mapping_se_csv,
+    pot_covariates_csv, variogram_fits_csv, variogram_ml_fits_csv, variograms_csv,
 };
 use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
@@ -40,7 +41,7 @@ use crate::climate::{
     ClimateError, ClimateRun, Combine, LocationSeries, combine_window, daily_values_expected,
 };
 use crate::io::layout::{Pots, Sensors, load_pots, load_sensors};
-use crate::io::output::{CsvTable, StageWriter, number};
+use crate::io::output::StageWriter;
 use crate::io::study::Study;
 use crate::io::{IoError, ingest};
 use nalgebra::DMatrix;
@@ -128,7 +129,7 @@ pub struct MapRun {
     pub distances: Vec<(String, Vec<f64>)>,
     /// Per indicator and family: the variogram fitted by maximum likelihood
     /// to the indicator's study-period values at the sensors (constant mean).
-    pub ml_fits: Vec<(String, crate::spatial::correlation::Family, Option<super::variogram::MlFit>)>,
+    pub ml_fits: Vec<super::outputs::MlFitRow>,
     /// Whether the ML fits estimated a nugget share (`[mapping].nugget`).
     pub ml_nugget: bool,
     /// Leave-one-sensor-out check of every indicator at every logger.
@@ -777,91 +778,10 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
     let cv: Vec<super::outputs::CvRow> =
         run.variables.iter().map(|v| (v.name, v.cv.as_slice(), v.choice.clone())).collect();
     w.write(MAPPING_CV_FILE, &mapping_cv_csv(&cv)?)?;
-    w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(run))?;
-    w.write("mapping_check.csv", &super::selfcheck::mapping_check_csv(&run.checks)?)?;
-    w.write(MAPPING_SE_FILE, &mapping_se_csv(run))?;
+    w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(&run.ml_fits, run.ml_nugget))?;
+    w.write(MAPPING_CHECK_FILE, &super::selfcheck::mapping_check_csv(&run.checks)?)?;
+    w.write(MAPPING_SE_FILE, &mapping_se_csv(&run.indicators, &run.window_se))?;
     Ok(w.commit()?)
-}
-
-/// The file that says how each indicator's standard errors were made.
-pub const MAPPING_SE_FILE: &str = "mapping_se.csv";
-
-/// `mapping_se.csv`: one row per indicator: `indicator`, `se_from`
-/// (`per_step_errors`: the per-step kriging errors with a persistent share
-/// calibrated on the left-out loggers, [`super::window_se`];
-/// `kriged_window_values`: the loggers' study-period values kriged),
-/// `persistent_share`, `inflation`, `loggers` (left-out loggers used),
-/// `median_z2` (their median squared standardised error after calibration).
-pub fn mapping_se_csv(run: &MapRun) -> Vec<u8> {
-    let mut t =
-        CsvTable::new(["indicator", "se_from", "persistent_share", "inflation", "loggers", "median_z2"]);
-    for (col, c) in run.indicators.iter().zip(&run.window_se) {
-        let mut r = vec![col.name.clone()];
-        match c {
-            Some(c) => r.extend([
-                "per_step_errors".to_string(),
-                number(c.share),
-                number(c.inflation),
-                c.loggers.to_string(),
-                number(c.median_z2),
-            ]),
-            None => r.extend([
-                "kriged_window_values".to_string(),
-                String::new(),
-                String::new(),
-                String::new(),
-                String::new(),
-            ]),
-        }
-        t.row(r);
-    }
-    t.into_bytes()
-}
-
-/// `variogram_ml_fits.csv`: one row per indicator and family, the variogram
-/// fitted by maximum likelihood to the indicator's study-period values at the
-/// sensors: `variable,family,nugget,partial_sill,sill,range,practical_range,
-/// loglik,aic,evaluations,at_bounds` (AIC counts mean, sigma², range and, when
-/// fitted, the nugget share). Empty cells where the fit failed (fewer than three
-/// sensors with a value).
-pub fn variogram_ml_fits_csv(run: &MapRun) -> Vec<u8> {
-    let mut t = CsvTable::new([
-        "variable",
-        "family",
-        "nugget",
-        "partial_sill",
-        "sill",
-        "range",
-        "practical_range",
-        "loglik",
-        "aic",
-        "evaluations",
-        "at_bounds",
-    ]);
-    for (name, fam, f) in &run.ml_fits {
-        let mut r = vec![name.clone(), fam.name()];
-        match f {
-            Some(f) => {
-                let m = &f.model;
-                // Parameters: mean, sigma², range, and the nugget share when it was estimated.
-                let k = if run.ml_nugget { 4 } else { 3 };
-                r.extend([
-                    number(m.nugget),
-                    number(m.partial_sill),
-                    number(m.sill()),
-                    number(m.range),
-                    number(m.practical_range()),
-                    number(f.loglik),
-                    number(crate::spatial::likelihood::aic(f.loglik, k)),
-                    f.evaluations.to_string(),
-                    f.at_bounds.join("+"),
-                ]);
-            }
-            None => r.extend(std::iter::repeat_n(String::new(), 9)),
-        }
-        t.row(r);
-    }
-    t.into_bytes()
 }
 
 /// The whole stage from the output folder's `readings.parquet`: climate
