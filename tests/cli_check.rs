@@ -203,3 +203,63 @@ fn typo_in_verdict_section_is_refused_at_its_line() {
         std::fs::read_to_string(&p).unwrap().lines().position(|l| l.contains("tie_detla")).unwrap() + 1;
     refused_by_check_and_run(d.path(), &p, &[&format!("study.toml:{line}:1:"), "tie_detla"]);
 }
+
+/// An indicator that no sensor has on any valid day (every day below
+/// `min_coverage`: the loggers recorded only from 06:00 to 18:00) passes the
+/// sampled rows, so `check` computes the indicators in memory and refuses it
+/// at its line; `run` refuses it at the climate stage, before any map or
+/// verdict file is written.
+#[test]
+fn indicator_without_a_value_at_any_sensor_is_refused() {
+    let d = tempfile::tempdir().unwrap();
+    let mut log = String::from("id,time,temp\n");
+    for day in 1..=3 {
+        for i in 12..36 {
+            for (s, base) in [("A", 10), ("B", 11)] {
+                log.push_str(&format!(
+                    "{s},2026-03-0{day} {:02}:{:02},{}\n",
+                    i / 2,
+                    (i % 2) * 30,
+                    base + i % 5
+                ));
+            }
+        }
+    }
+    setup(d.path(), &log);
+    let p = d.path().join("study.toml");
+    let text = std::fs::read_to_string(&p).unwrap().replace(
+        "\n[[indicator]]",
+        "\n[climate]\nstart = \"2026-03-01 00:00\"\nend = \"2026-03-04 00:00\"\n\n[[indicator]]",
+    );
+    std::fs::write(&p, &text).unwrap();
+    let line = text.lines().position(|l| l.contains("variable = \"temperature\"")).unwrap() + 1;
+    let (code, out, err) = run(&["check", p.to_str().unwrap()]);
+    assert_eq!(code, 1, "check accepted it: {out}");
+    for e in [
+        &format!("study.toml:{line}:") as &str,
+        "`cold` cannot be mapped",
+        "below [climate].min_coverage = 90 %",
+    ] {
+        assert!(err.contains(e), "check: `{e}` not in: {err}");
+    }
+    assert!(!out.contains("ok: every input"), "{out}");
+    assert!(!d.path().join("out").exists(), "check wrote output");
+    let (code, _, run_err) = run(&["run", "--quiet", p.to_str().unwrap()]);
+    assert_eq!(code, 1);
+    assert!(
+        run_err.contains("in the climate stage") && run_err.contains("`cold` cannot be mapped"),
+        "{run_err}"
+    );
+    assert!(!d.path().join("out/pot_covariates.csv").exists(), "run mapped before refusing");
+    assert!(!d.path().join("out/sensor_indicators.csv").exists(), "run published the climate stage");
+}
+
+/// The standard study prints how many sensors have a value of each indicator.
+#[test]
+fn check_counts_sensors_with_a_value_of_each_indicator() {
+    let d = tempfile::tempdir().unwrap();
+    let p = edited(d.path(), |t| t.replace("tie_delta = 2", "tie_delta = 3"));
+    let (code, out, err) = run(&["check", p.to_str().unwrap()]);
+    assert_eq!(code, 0, "{out}{err}");
+    assert!(out.contains("indicator cold: a value at 2 of 2 sensor(s) with readings"), "{out}");
+}

@@ -211,7 +211,7 @@ pub fn compute(
             .iter()
             .map(|s| daily_values(ind, &calendar, &s.view(), config.spec.min_coverage))
             .collect();
-        let windows = per_sensor
+        let windows: Vec<WindowValue> = per_sensor
             .iter()
             .map(|d| {
                 let v: Vec<Option<f64>> = d.iter().map(|x| x.value).collect();
@@ -221,8 +221,57 @@ pub fn compute(
         daily.push(per_sensor);
         study_values.push(windows);
     }
+    for i in 0..config.indicators.len() {
+        if study_values[i].iter().all(|w| w.value.is_none()) {
+            return Err(no_value_anywhere(study, &config, i, &daily[i]));
+        }
+    }
     let daily_means = daily_means(&grid, &calendar);
     Ok(ClimateRun { config, calendar, grid, report, daily, study: study_values, daily_means })
+}
+
+/// The refusal of an indicator that no sensor has on any day of the study
+/// period (every day below `min_coverage`, or without a step of its period):
+/// nothing could be mapped from it, so the run stops here rather than at the
+/// verdict. Names the indicator at its line, the best daily coverage seen and
+/// the threshold.
+fn no_value_anywhere(
+    study: &Study,
+    config: &ClimateConfig,
+    i: usize,
+    daily: &[Vec<DayValue>],
+) -> ClimateError {
+    let ind = &config.indicators[i];
+    let best = daily.iter().flatten().map(|d| d.coverage).fold(0.0f64, f64::max);
+    let min = config.spec.min_coverage;
+    let why = if best < min {
+        format!(
+            "no sensor has a single valid day in the study period: the best covered day has data at {:.0} % of its steps, below [climate].min_coverage = {:.0} %",
+            100.0 * best,
+            100.0 * min
+        )
+    } else {
+        format!(
+            "no sensor has a value on any day of the study period, although some days reach {:.0} % coverage: the indicator's period ({}) has no step on those days",
+            100.0 * best,
+            match ind.period {
+                Period::All => "all day",
+                Period::Day => "day",
+                Period::Night => "night",
+            }
+        )
+    };
+    declaration(
+        &study.path,
+        ind.variable_at,
+        &format!("indicator[{}]", i + 1),
+        &format!("{:?}", ind.name),
+        format!("`{}` cannot be mapped: {why}", ind.name),
+        Some(
+            "check [climate] start and end against the logger files (potclim check prints their time spans), or lower [climate].min_coverage"
+                .into(),
+        ),
+    )
 }
 
 fn midnight(tz: chrono_tz::Tz, d: chrono::NaiveDate) -> i64 {
