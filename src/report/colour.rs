@@ -57,6 +57,35 @@ const DIVERGING: [(f64, Rgb); 7] = [
 pub const CATEGORICAL: [Rgb; 7] =
     [(0, 114, 178), (213, 94, 0), (0, 158, 115), (204, 121, 167), (86, 180, 233), (230, 159, 0), (0, 0, 0)];
 
+/// One colour per logger line, twelve apart: the nine colours of Paul Tol's
+/// "muted" qualitative scheme (Tol 2021, "Colour schemes", SRON technical
+/// note SRON/EPS/TN/09-002, issue 3.2: distinct under the common colour-vision
+/// deficiencies; rose, indigo, sand, green, cyan, wine, teal, olive, purple),
+/// then three hues that scheme lacks, Okabe & Ito's (2008) blue, vermillion
+/// and orange (values as in [`CATEGORICAL`]). Past twelve loggers colours
+/// repeat and [`logger_line`] dashes the repeats, so no two lines look alike.
+pub const LOGGER_LINES: [Rgb; 12] = [
+    (0xCC, 0x66, 0x77),
+    (0x33, 0x22, 0x88),
+    (0xDD, 0xCC, 0x77),
+    (0x11, 0x77, 0x33),
+    (0x88, 0xCC, 0xEE),
+    (0x88, 0x22, 0x55),
+    (0x44, 0xAA, 0x99),
+    (0x99, 0x99, 0x33),
+    (0xAA, 0x44, 0x99),
+    (0, 114, 178),
+    (213, 94, 0),
+    (230, 159, 0),
+];
+
+/// The line of the `k`-th logger (0-based, in one order shared by every
+/// figure of a report, so a logger keeps its colour across figures): its
+/// colour and whether it is dashed (from the thirteenth logger on).
+pub fn logger_line(k: usize) -> (Rgb, bool) {
+    (LOGGER_LINES[k % LOGGER_LINES.len()], k >= LOGGER_LINES.len())
+}
+
 /// Viridis at `t` in 0..1 (clamped; NaN maps to 0).
 pub fn viridis(t: f64) -> Rgb {
     let t = if t.is_nan() { 0.0 } else { t.clamp(0.0, 1.0) };
@@ -181,6 +210,24 @@ mod tests {
         // Symmetric magnitudes get colours of equal distance from white.
         let (a, b) = (s.colour(-1.0), s.colour(1.0));
         assert!(a.2 > a.0 && b.0 > b.2, "{a:?} {b:?}");
+    }
+
+    /// The logger palette holds twelve different colours, each far from the
+    /// others (Euclidean sRGB distance at least 55 of 441) and from white.
+    #[test]
+    fn logger_lines_are_distinct() {
+        let d = |a: Rgb, b: Rgb| {
+            let f = |x: u8, y: u8| (x as f64 - y as f64).powi(2);
+            (f(a.0, b.0) + f(a.1, b.1) + f(a.2, b.2)).sqrt()
+        };
+        for (i, &a) in LOGGER_LINES.iter().enumerate() {
+            assert!(d(a, (255, 255, 255)) > 60.0, "{i} too pale");
+            for (j, &b) in LOGGER_LINES.iter().enumerate().take(i) {
+                assert!(d(a, b) >= 55.0, "{i} and {j} look alike");
+            }
+        }
+        assert_eq!(logger_line(0), (LOGGER_LINES[0], false));
+        assert_eq!(logger_line(12), (LOGGER_LINES[0], true));
     }
 
     #[test]

@@ -78,9 +78,13 @@ pub struct VerdictSection {
     /// One row per declared driver.
     #[serde(default)]
     pub drivers: Vec<DriverRow>,
-    /// What the data can and cannot show, one sentence each.
+    /// What the data can and cannot show, one sentence each, in plain words.
     #[serde(default)]
     pub cautions: Vec<String>,
+    /// Technical notes on how the answer was computed (imputation settings,
+    /// the sensor-level variogram), shown apart from the cautions.
+    #[serde(default)]
+    pub technical_notes: Vec<String>,
     /// The answer in plain numbers, as the verdict stage computed it
     /// (typical effect, certainty of the model choice, warnings, what next).
     #[serde(default)]

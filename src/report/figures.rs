@@ -11,7 +11,7 @@
 //! Maps keep the compartment's aspect ratio (one metre is as long along x as
 //! along y) within a height clamp, so a long, narrow house is not stretched.
 
-use super::colour::{CATEGORICAL, Rgb, Scale, finite_extent};
+use super::colour::{CATEGORICAL, Rgb, Scale, finite_extent, logger_line};
 use super::data::{
     ComparisonRow, DailySeries, LoggerValue, MappedValue, OpeningSegment, ResidualMap, SensorPoint,
     VariogramPanel,
@@ -284,8 +284,40 @@ pub fn indicator_maps(
     Ok((value_map(&value)?, value_map(&se)?))
 }
 
+/// Width of the key column beside a line chart, pixels: the key sits outside
+/// the plot area so it never covers a line.
+const KEY_W: u32 = 132;
+
+/// One entry of a key: a line swatch (dashed or not) and its label.
+struct KeyEntry {
+    label: String,
+    colour: RGBColor,
+    dashed: bool,
+}
+
+/// Draw a key in its own column: one swatch and label per entry, top down.
+fn draw_key(area: &DrawingArea<SVGBackend<'_>, Shift>, title: &str, entries: &[KeyEntry]) -> DrawResult {
+    area.draw(&Text::new(title.to_string(), (4, 34), (FONT, 11).into_font().style(FontStyle::Bold)))?;
+    for (k, e) in entries.iter().enumerate() {
+        let y = 52 + 16 * k as i32;
+        let style = e.colour.stroke_width(2);
+        if e.dashed {
+            area.draw(&PathElement::new(vec![(4, y), (9, y)], style))?;
+            area.draw(&PathElement::new(vec![(13, y), (18, y)], style))?;
+            area.draw(&PathElement::new(vec![(22, y), (26, y)], style))?;
+        } else {
+            area.draw(&PathElement::new(vec![(4, y), (26, y)], style))?;
+        }
+        area.draw(&Text::new(shorten(&e.label, 16), (32, y - 6), (FONT, 11).into_font()))?;
+    }
+    Ok(())
+}
+
 /// One small multiple: the daily values of every sensor for one variable.
-pub fn daily_series(s: &DailySeries) -> Result<Figure, FigureError> {
+/// `order` lists every logger of the report once: a logger's colour is its
+/// place there ([`super::colour::logger_line`]), the same in every figure,
+/// and no two loggers share a line style. The key stands beside the plot.
+pub fn daily_series(s: &DailySeries, order: &[String]) -> Result<Figure, FigureError> {
     let id = format!("series-{}", slug(&s.variable));
     if s.days.is_empty() || s.sensors.is_empty() {
         return Err(FigureError::Empty { id, message: "no days or no sensors".into() });
@@ -298,7 +330,20 @@ pub fn daily_series(s: &DailySeries) -> Result<Figure, FigureError> {
     let pad = if hi > lo { (hi - lo) * 0.08 } else { 0.05 * hi.abs().max(1.0) };
     let n = s.days.len();
     let x1 = (n.max(2) - 1) as f64;
-    render(&id, &title, (&xl, &yl), (560, 300), |root| {
+    let lines: Vec<(RGBColor, bool)> = s
+        .sensors
+        .iter()
+        .enumerate()
+        .map(|(k, t)| {
+            let at = order.iter().position(|o| *o == t.sensor).unwrap_or(order.len() + k);
+            let (c, dashed) = logger_line(at);
+            (rgb(c), dashed)
+        })
+        .collect();
+    let height = 300u32.max(70 + 16 * s.sensors.len() as u32);
+    let width = 560 + KEY_W;
+    render(&id, &title, (&xl, &yl), (width, height), |root| {
+        let (main, key) = root.split_horizontally(width - KEY_W);
         let fmt = |v: &f64| {
             let k = v.round();
             if (v - k).abs() < 1e-6 && k >= 0.0 && (k as usize) < n {
@@ -307,7 +352,7 @@ pub fn daily_series(s: &DailySeries) -> Result<Figure, FigureError> {
                 String::new()
             }
         };
-        let mut chart = ChartBuilder::on(root)
+        let mut chart = ChartBuilder::on(&main)
             .caption(&title, (FONT, 15))
             .margin(10)
             .x_label_area_size(38)
@@ -324,8 +369,7 @@ pub fn daily_series(s: &DailySeries) -> Result<Figure, FigureError> {
             .label_style((FONT, 11))
             .axis_desc_style((FONT, 12))
             .draw()?;
-        for (k, t) in s.sensors.iter().enumerate() {
-            let col = rgb(CATEGORICAL[k % CATEGORICAL.len()]);
+        for (t, &(col, dashed)) in s.sensors.iter().zip(&lines) {
             // Break the line at days without data rather than bridging them.
             let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
             for (d, v) in t.values.iter().enumerate().take(n) {
@@ -334,38 +378,43 @@ pub fn daily_series(s: &DailySeries) -> Result<Figure, FigureError> {
                     _ => runs.push(Vec::new()),
                 }
             }
-            let mut first = true;
             for run in runs.into_iter().filter(|r| !r.is_empty()) {
                 let pts = run.clone();
-                let series = chart.draw_series(LineSeries::new(run, col.stroke_width(2)))?;
-                if first {
-                    series.label(t.sensor.clone()).legend(move |(x, y)| {
-                        PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2))
-                    });
-                    first = false;
+                if dashed {
+                    chart.draw_series(DashedLineSeries::new(run, 6, 4, col.stroke_width(2)))?;
+                } else {
+                    chart.draw_series(LineSeries::new(run, col.stroke_width(2)))?;
                 }
                 chart.draw_series(pts.into_iter().map(|p| Circle::new(p, 2, col.filled())))?;
             }
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK.mix(0.3))
-            .label_font((FONT, 11))
-            .draw()?;
-        Ok(())
+        let entries: Vec<KeyEntry> = s
+            .sensors
+            .iter()
+            .zip(&lines)
+            .map(|(t, &(colour, dashed))| KeyEntry { label: t.sensor.clone(), colour, dashed })
+            .collect();
+        draw_key(&key, "logger", &entries)
     })
 }
 
+/// The subject of a variogram panel without its parenthetical qualifier
+/// (`temperature (pooled over ...)` -> `temperature`), for a title that fits.
+pub fn short_subject(subject: &str) -> &str {
+    subject.split(" (").next().unwrap_or(subject)
+}
+
 /// An experimental variogram (bins as circles, area by pair count) with
-/// every fitted curve; the first fit's nugget, sill and range are marked.
+/// every fitted curve and a key beside the plot; the first fit's nugget and
+/// sill are marked, and its practical range when it lies within the lags
+/// shown (the caption says so when it does not, see
+/// [`super::html`]). Every label stays inside the plot area.
 pub fn variogram(p: &VariogramPanel) -> Result<Figure, FigureError> {
     let id = format!("variogram-{}", slug(&p.subject));
     if p.bins.is_empty() {
         return Err(FigureError::Empty { id, message: "no lag bins".into() });
     }
-    let title = format!("Variogram of {}", p.subject);
+    let title = format!("Variogram of {}", short_subject(&p.subject));
     let xl = "lag distance (m)".to_string();
     let yl = format!("semivariance ({})", p.unit);
     let curve_lag = p.fits.iter().flat_map(|f| f.curve.iter().map(|c| c[0]));
@@ -381,8 +430,11 @@ pub fn variogram(p: &VariogramPanel) -> Result<Figure, FigureError> {
     .max(1e-12)
         * 1.15;
     let maxpairs = p.bins.iter().map(|b| b.pairs).max().unwrap_or(1).max(1) as f64;
-    render(&id, &title, (&xl, &yl), (560, 340), |root| {
-        let mut chart = ChartBuilder::on(root)
+    let key_w = if p.fits.is_empty() { 0 } else { KEY_W };
+    let width = 560 + key_w;
+    render(&id, &title, (&xl, &yl), (width, 340), |root| {
+        let (main, key) = root.split_horizontally(width - key_w);
+        let mut chart = ChartBuilder::on(&main)
             .caption(&title, (FONT, 15))
             .margin(10)
             .x_label_area_size(38)
@@ -400,9 +452,17 @@ pub fn variogram(p: &VariogramPanel) -> Result<Figure, FigureError> {
         if let Some(f) = p.fits.first() {
             let grey = RGBColor(110, 110, 110);
             let style = ShapeStyle { color: grey.to_rgba(), filled: false, stroke_width: 1 };
-            // The sill label sits above its line and the nugget label below
-            // its own, so the two stay apart when nugget and sill are close.
-            for (yv, name, dy) in [(f.nugget, "nugget", 3), (f.sill, "sill", -13)] {
+            // Labels sit just right of the y axis: the sill's above its line
+            // (the top of the plot is 15 % above the highest value), the
+            // nugget's below its own unless that would cross the x axis or
+            // meet the sill's label.
+            let room = |v: f64| v / ymax;
+            let nugget_dy = if room(f.nugget) < 0.1 || room(f.sill) - room(f.nugget) < 0.1 { -13 } else { 3 };
+            let mut marks = vec![(f.sill, "sill", -13)];
+            if room(f.sill) - room(f.nugget) >= 0.06 {
+                marks.push((f.nugget, "nugget", nugget_dy));
+            }
+            for (yv, name, dy) in marks {
                 chart.draw_series(DashedLineSeries::new([(0.0, yv), (xmax, yv)], 5, 4, style))?;
                 chart.draw_series(std::iter::once(
                     EmptyElement::at((0.0, yv))
@@ -410,31 +470,28 @@ pub fn variogram(p: &VariogramPanel) -> Result<Figure, FigureError> {
                 ))?;
             }
             let r = f.practical_range.unwrap_or(f.range);
-            let label = if f.practical_range.is_some() { "practical range" } else { "range" };
-            chart.draw_series(DashedLineSeries::new([(r, 0.0), (r, ymax)], 5, 4, style))?;
-            chart.draw_series(std::iter::once(
-                EmptyElement::at((r, ymax)) + Text::new(label, (4, 4), (FONT, 10).into_font()),
-            ))?;
+            if r.is_finite() && r > 0.0 && r < xmax {
+                let label = if f.practical_range.is_some() { "practical range" } else { "range" };
+                chart.draw_series(DashedLineSeries::new([(r, 0.0), (r, ymax)], 5, 4, style))?;
+                // Right of the line, or left of it near the right edge.
+                let dx = if r > 0.75 * xmax { -86 } else { 4 };
+                chart.draw_series(std::iter::once(
+                    EmptyElement::at((r, ymax)) + Text::new(label, (dx, 4), (FONT, 10).into_font()),
+                ))?;
+            }
         }
+        let mut entries = Vec::new();
         for (k, f) in p.fits.iter().enumerate() {
             let col = rgb(CATEGORICAL[k % CATEGORICAL.len()]);
-            chart
-                .draw_series(LineSeries::new(f.curve.iter().map(|c| (c[0], c[1])), col.stroke_width(2)))?
-                .label(f.family.clone())
-                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], col.stroke_width(2)));
+            chart.draw_series(LineSeries::new(f.curve.iter().map(|c| (c[0], c[1])), col.stroke_width(2)))?;
+            entries.push(KeyEntry { label: f.family.clone(), colour: col, dashed: false });
         }
         chart.draw_series(p.bins.iter().map(|b| {
             let r = (2.0 + 5.0 * (b.pairs as f64 / maxpairs).sqrt()) as i32;
             Circle::new((b.lag, b.semivariance), r, BLACK.stroke_width(1))
         }))?;
-        if !p.fits.is_empty() {
-            chart
-                .configure_series_labels()
-                .position(SeriesLabelPosition::LowerRight)
-                .background_style(WHITE.mix(0.85))
-                .border_style(BLACK.mix(0.3))
-                .label_font((FONT, 11))
-                .draw()?;
+        if !entries.is_empty() {
+            draw_key(&key, "fitted family", &entries)?;
         }
         Ok(())
     })
@@ -451,8 +508,39 @@ fn shorten(s: &str, max: usize) -> String {
     format!("{head}…{tail}")
 }
 
-/// Horizontal bars of delta-AIC per model, best on top, the chosen model in
-/// the accent colour and the tie margin as a dashed line.
+/// The kind of explanation a model stands for: with or without drivers, with
+/// independent or spatially correlated errors (the four verdict words).
+fn kind(r: &ComparisonRow) -> (bool, bool) {
+    (!r.drivers.is_empty(), r.correlation.is_some())
+}
+
+/// The models a reader needs on the ΔAIC chart, sorted by ΔAIC: the best
+/// model of each kind ([`kind`]), every model within the tie margin of the
+/// best, and the chosen model. The table beside it lists every model.
+pub fn models_that_matter<'a>(
+    rows: &'a [ComparisonRow],
+    chosen: Option<&str>,
+    tie_margin: Option<f64>,
+) -> Vec<&'a ComparisonRow> {
+    let mut sorted: Vec<&ComparisonRow> = rows.iter().collect();
+    sorted.sort_by(|a, b| a.delta_aic.total_cmp(&b.delta_aic).then_with(|| a.name.cmp(&b.name)));
+    let mut seen_kinds = Vec::new();
+    sorted
+        .into_iter()
+        .filter(|r| {
+            let first_of_kind = !seen_kinds.contains(&kind(r));
+            if first_of_kind {
+                seen_kinds.push(kind(r));
+            }
+            first_of_kind || tie_margin.is_some_and(|m| r.delta_aic <= m) || Some(r.name.as_str()) == chosen
+        })
+        .collect()
+}
+
+/// Horizontal bars of ΔAIC for the models that matter
+/// ([`models_that_matter`]), best on top, the chosen model in the accent
+/// colour and the tie margin as a dashed line. Model names are written in
+/// full.
 pub fn delta_aic_bars(
     rows: &[ComparisonRow],
     chosen: Option<&str>,
@@ -462,18 +550,18 @@ pub fn delta_aic_bars(
     if rows.is_empty() {
         return Err(FigureError::Empty { id, message: "no models".into() });
     }
-    let mut sorted: Vec<&ComparisonRow> = rows.iter().collect();
-    sorted.sort_by(|a, b| a.delta_aic.total_cmp(&b.delta_aic).then_with(|| a.name.cmp(&b.name)));
-    let names: Vec<String> = sorted.iter().map(|r| shorten(&r.name, 44)).collect();
+    let sorted = models_that_matter(rows, chosen, tie_margin);
+    let names: Vec<String> = sorted.iter().map(|r| shorten(&r.name, 64)).collect();
     let n = sorted.len();
     let title = "How far each model is behind the best (ΔAIC)".to_string();
     let xl = "ΔAIC (AIC units, 0 = best)".to_string();
     let yl = "model (sorted by AIC)".to_string();
     let xmax = sorted.iter().map(|r| r.delta_aic).fold(2.5f64, f64::max) * 1.08;
-    let label_w =
-        (names.iter().map(|s| s.chars().count()).max().unwrap_or(10) as u32 * 7 + 20).clamp(120, 340);
-    let height = 110 + 20 * n as u32;
-    let width = 460 + label_w;
+    // About 6.5 px per character at 11 px sans-serif (common practice).
+    let label_w = (names.iter().map(|s| s.chars().count()).max().unwrap_or(10) as f64 * 6.5 + 24.0)
+        .clamp(120.0, 440.0) as u32;
+    let height = 110 + 24 * n as u32;
+    let width = 380 + label_w;
     render(&id, &title, (&xl, &yl), (width, height), |root| {
         let fmt = |v: &SegmentValue<usize>| match v {
             SegmentValue::CenterOf(i) if *i < n => names[n - 1 - *i].clone(),
@@ -593,6 +681,92 @@ mod tests {
         assert!(f.x_label.contains('(') && f.y_label.contains('('), "{}: labels need units", f.id);
     }
 
+    /// Every text of the SVG lies inside the figure (extent estimated by
+    /// [`super::super::xml::svg_texts`]).
+    pub(crate) fn assert_inside(f: &Figure) {
+        for t in super::super::xml::svg_texts(&f.svg) {
+            assert!(
+                t.left >= -1.0 && t.y >= 0.0 && t.y <= f.height as f64 && t.right <= f.width as f64 + 1.0,
+                "{}: text {:?} ({} to {}, y {}) leaves the {}x{} figure",
+                f.id,
+                t.text,
+                t.left,
+                t.right,
+                t.y,
+                f.width,
+                f.height
+            );
+        }
+    }
+
+    /// Twelve loggers, each line in its own colour, and the key outside the
+    /// plot: right of the plot area's right edge.
+    #[test]
+    fn series_lines_have_distinct_colours_and_a_key_beside_the_plot() {
+        let ids: Vec<String> = (1..=12).map(|k| format!("S{k:02}")).collect();
+        let s = DailySeries {
+            variable: "daily mean temperature".into(),
+            unit: "°C".into(),
+            days: vec!["2026-10-05".into(), "2026-10-06".into(), "2026-10-07".into()],
+            sensors: ids
+                .iter()
+                .enumerate()
+                .map(|(k, id)| super::super::data::SensorSeries {
+                    sensor: id.clone(),
+                    values: vec![Some(15.0 + k as f64 * 0.1), None, Some(16.0)],
+                })
+                .collect(),
+        };
+        let f = daily_series(&s, &ids).unwrap();
+        assert_figure(&f);
+        assert_inside(&f);
+        let colours: Vec<String> = (0..12)
+            .map(|k| {
+                let c = super::super::colour::LOGGER_LINES[k];
+                format!("#{:02X}{:02X}{:02X}", c.0, c.1, c.2)
+            })
+            .collect();
+        for c in &colours {
+            assert!(f.svg.contains(&format!("stroke=\"{c}\"")), "colour {c} not drawn");
+        }
+        let key_x = (f.width - KEY_W) as f64;
+        for t in super::super::xml::svg_texts(&f.svg) {
+            if ids.contains(&t.text) {
+                assert!(t.left >= key_x, "{} at x {} is inside the plot", t.text, t.left);
+            }
+        }
+    }
+
+    #[test]
+    fn the_delta_aic_chart_keeps_the_models_that_matter() {
+        let row = |name: &str, d: f64, drivers: bool, corr: bool| ComparisonRow {
+            name: name.into(),
+            delta_aic: d,
+            drivers: if drivers { vec!["cold".into()] } else { vec![] },
+            correlation: corr.then(|| "exponential".into()),
+            ..ComparisonRow::default()
+        };
+        let mut rows = vec![
+            row("best", 0.0, true, true),
+            row("tie", 1.5, true, true),
+            row("chosen", 3.0, true, true),
+            row("far", 9.0, true, true),
+            row("plain", 40.0, false, false),
+            row("worse plain", 41.0, false, false),
+            row("drivers only", 20.0, true, false),
+            row("space only", 12.0, false, true),
+        ];
+        for k in 0..40 {
+            rows.push(row(&format!("also-ran {k}"), 50.0 + k as f64, true, true));
+        }
+        let names: Vec<&str> =
+            models_that_matter(&rows, Some("chosen"), Some(2.0)).iter().map(|r| r.name.as_str()).collect();
+        assert_eq!(names, ["best", "tie", "chosen", "space only", "drivers only", "plain"]);
+        let f = delta_aic_bars(&rows, Some("chosen"), Some(2.0)).unwrap();
+        assert!(!f.svg.contains("also-ran"));
+        assert_inside(&f);
+    }
+
     #[test]
     fn slugs_are_file_names() {
         assert_eq!(slug("Night cold hours (<12 °C)"), "night-cold-hours-12-c");
@@ -613,15 +787,23 @@ mod tests {
                 nugget: 0.4,
                 sill: 2.2,
                 range: 1.0,
-                practical_range: Some(3.0),
+                practical_range: Some(1.8),
                 curve: vec![[0.0, 0.4], [1.0, 1.5], [2.0, 2.0]],
             }],
         };
         let f = variogram(&p).unwrap();
         assert_figure(&f);
-        for s in ["nugget (exponential)", "sill (exponential)", "practical range"] {
+        for s in ["nugget (exponential)", "sill (exponential)", "practical range", "fitted family"] {
             assert!(f.svg.contains(s), "{s}");
         }
+        assert_inside(&f);
+        // A practical range beyond the lags shown is not drawn (the caption
+        // says so instead), so no label leaves the plot.
+        let mut far = p.clone();
+        far.fits[0].practical_range = Some(30.0);
+        let f = variogram(&far).unwrap();
+        assert!(!f.svg.contains("practical range"));
+        assert_inside(&f);
         let empty = VariogramPanel { bins: vec![], ..p };
         assert!(matches!(variogram(&empty), Err(FigureError::Empty { .. })));
     }

@@ -3,10 +3,29 @@
 //! the adjusted means. Only copies and relabels; computes nothing new.
 
 use super::data::{
-    AdjustedMean, ComparisonRow, DriverRow, ModelsSection, MoranI, ResidualMap, ResidualPoint, VariogramBin,
-    VariogramPanel, VerdictSection,
+    AdjustedMean, AnovaRow, AnovaTable, ComparisonRow, DriverRow, ModelsSection, MoranI, ResidualMap,
+    ResidualPoint, VariogramBin, VariogramPanel, VerdictSection,
 };
 use crate::model::verdict::{MoranSummary, VerdictResult};
+
+fn anova(t: &crate::model::ols::AnovaTable) -> AnovaTable {
+    AnovaTable {
+        model: "base (the plain factorial model, independent errors, least squares)".into(),
+        kind: Some(format!("type {} sums of squares: {}", t.kind.label(), t.kind.describe())),
+        rows: t
+            .rows
+            .iter()
+            .map(|r| AnovaRow {
+                term: r.term.clone(),
+                df: r.df as f64,
+                sum_sq: Some(r.sum_sq),
+                mean_sq: Some(r.mean_sq),
+                f: r.f,
+                p_value: r.p,
+            })
+            .collect(),
+    }
+}
 
 fn moran(m: &MoranSummary) -> MoranI {
     MoranI {
@@ -69,10 +88,9 @@ pub fn to_report(
     r: &VerdictResult,
     units: &Units,
 ) -> (VerdictSection, ModelsSection, Vec<AdjustedMean>, Vec<VariogramPanel>) {
-    let mut cautions = vec![
-        "Correlation is not causation: the winning explanation is the best of those offered, not proof of a mechanism.".to_string(),
-        r.residual_check.statement.clone(),
-    ];
+    // The page adds the general cautions (association is not cause, drivers
+    // known only at the loggers) itself; these are the study's own.
+    let mut cautions = vec![r.residual_check.statement.clone()];
     if let Some(o) = &r.openings {
         cautions.push(o.statement.clone());
     }
@@ -82,7 +100,15 @@ pub fn to_report(
             d.name
         ));
     }
-    cautions.extend(r.notes.iter().cloned());
+    // The technical notes on the imputations (chain settings, the sensor-level
+    // variogram) are shown apart; the cautions say in words what they mean.
+    cautions.extend(r.notes.iter().filter(|n| !r.mapping_notes.contains(n)).cloned());
+    for d in r.drivers.iter().filter(|d| d.se_with_mapping_uncertainty.is_some()) {
+        cautions.push(format!(
+            "The effect of `{}` and its interval include the uncertainty of its map: the model was refitted on maps drawn to agree with the loggers and the trait (how: section 5, technical notes).",
+            d.name
+        ));
+    }
     let verdict = VerdictSection {
         word: r.verdict.clone(),
         reason: r.reason.clone(),
@@ -111,6 +137,7 @@ pub fn to_report(
             })
             .collect(),
         cautions,
+        technical_notes: r.mapping_notes.clone(),
         headline: r.headline.clone(),
         map_warnings: Vec::new(),
     };
@@ -131,7 +158,7 @@ pub fn to_report(
                 akaike_weight: m.akaike_weight,
             })
             .collect(),
-        anova: Vec::new(),
+        anova: r.plain_anova.iter().map(anova).collect(),
         residual_unit: units.trait_unit.clone(),
         residuals_before: residual_map(r, "base", &r.plain_residuals, r.plain_moran.as_ref()),
         residuals_after: residual_map(r, &r.best_model, &r.chosen_residuals, r.residual_check.moran.as_ref()),
@@ -211,7 +238,7 @@ mod tests {
             openings: None,
             adjusted_means: vec![],
             headline: None,
-            notes: vec![],
+            notes: vec!["chain details".into(), "a pot left out".into()],
             n_fits: 1,
             seconds: 0.0,
             timings: Default::default(),
@@ -220,6 +247,18 @@ mod tests {
             chosen_residuals: vec![0.1, -0.1],
             plain_moran: None,
             chosen_shape: (vec![], crate::model::gls::Errors::Independent),
+            plain_anova: Some(crate::model::ols::AnovaTable {
+                kind: crate::model::ols::SsType::Hierarchical,
+                rows: vec![crate::model::ols::AnovaRow {
+                    term: "remainder".into(),
+                    df: 1,
+                    sum_sq: 0.5,
+                    mean_sq: 0.5,
+                    f: None,
+                    p: None,
+                }],
+            }),
+            mapping_notes: vec!["chain details".into()],
         };
         let units = Units { trait_unit: Some("g".into()), drivers: vec![("cold".into(), "h".into())] };
         let (v, m, means, panels) = to_report(&r, &units);
@@ -233,5 +272,9 @@ mod tests {
         assert_eq!(m.tie_margin, Some(r.options.tie_delta));
         assert_eq!(m.residuals_after.unwrap().points[1].residual, -0.1);
         assert!(means.is_empty() && panels.is_empty());
+        assert_eq!(v.cautions, vec!["none left".to_string(), "a pot left out".to_string()]);
+        assert_eq!(v.technical_notes, vec!["chain details".to_string()]);
+        assert_eq!(m.anova[0].rows[0].sum_sq, Some(0.5));
+        assert!(m.anova[0].kind.as_deref().unwrap().starts_with("type II"));
     }
 }

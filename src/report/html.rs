@@ -53,15 +53,37 @@ pub fn sig(v: f64, digits: usize) -> String {
     let mag = v.abs().log10().floor() as i32;
     if (-3..6).contains(&mag) {
         let decimals = (digits as i32 - 1 - mag).max(0) as usize;
-        format!("{v:.decimals$}")
+        no_negative_zero(format!("{v:.decimals$}"))
     } else {
         format!("{v:.prec$e}", prec = digits.saturating_sub(1))
     }
 }
 
-/// `v` with `decimals` decimals; `–` for a non-finite value.
+/// `v` with `decimals` decimals; `–` for a non-finite value. A value that
+/// rounds to zero is written without a sign (`0.00`, never `-0.00`).
 pub fn fixed(v: f64, decimals: usize) -> String {
-    if v.is_finite() { format!("{v:.decimals$}") } else { "–".into() }
+    if v.is_finite() { no_negative_zero(format!("{v:.decimals$}")) } else { "–".into() }
+}
+
+/// Drop the minus sign of a formatted number that shows only zeros.
+fn no_negative_zero(s: String) -> String {
+    match s.strip_prefix('-') {
+        Some(rest) if rest.chars().all(|c| c == '0' || c == '.') => rest.to_string(),
+        _ => s,
+    }
+}
+
+/// The decimals that give the smallest non-zero magnitude among `values`
+/// `digits` significant digits (0 to 6), so that one table writes all its
+/// numbers of one unit with the same number of decimals.
+pub fn decimals_for(values: impl IntoIterator<Item = f64>, digits: usize) -> usize {
+    let smallest =
+        values.into_iter().filter(|v| v.is_finite() && *v != 0.0).map(f64::abs).fold(f64::INFINITY, f64::min);
+    if !smallest.is_finite() {
+        return 2;
+    }
+    let mag = smallest.log10().floor() as i32;
+    (digits as i32 - 1 - mag).clamp(0, 6) as usize
 }
 
 /// A p-value with three decimals, `< 0.001` below that; `–` when absent.
@@ -187,6 +209,13 @@ fn section_verdict(d: &ReportData, out: &mut String) {
              <th class=\"n\">ΔAIC with correlation</th><th class=\"n\">VIF</th><th>note</th></tr>\n",
             escape(unit)
         );
+        // One number of decimals for every effect column (trait units per
+        // driver unit): two significant digits of the smallest SE.
+        let dec = decimals_for(
+            v.drivers.iter().flat_map(|r| std::iter::once(r.se).chain(r.se_with_mapping_uncertainty)),
+            2,
+        );
+        let e = |x: f64| fixed(x, dec);
         for r in &v.drivers {
             let _ = writeln!(
                 out,
@@ -195,28 +224,32 @@ fn section_verdict(d: &ReportData, out: &mut String) {
                  <td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>\
                  <td class=\"n\">{}</td><td>{}</td></tr>",
                 with_unit(&r.name, r.unit.as_deref()),
-                sig(r.estimate, 4),
-                sig(r.se, 3),
-                sig(r.ci_low, 4),
-                sig(r.ci_high, 4),
-                opt(r.estimate_with_mapping_uncertainty, |s| sig(s, 4)),
-                opt(r.se_with_mapping_uncertainty, |s| sig(s, 3)),
+                e(r.estimate),
+                e(r.se),
+                e(r.ci_low),
+                e(r.ci_high),
+                opt(r.estimate_with_mapping_uncertainty, e),
+                opt(r.se_with_mapping_uncertainty, e),
                 match (r.ci_low_with_mapping_uncertainty, r.ci_high_with_mapping_uncertainty) {
-                    (Some(a), Some(b)) => format!("{} to {}", sig(a, 4), sig(b, 4)),
+                    (Some(a), Some(b)) => format!("{} to {}", e(a), e(b)),
                     _ => "–".into(),
                 },
                 p_value(r.p_value),
-                opt(r.delta_aic, |x| fixed(x, 2)),
-                opt(r.delta_aic_with_correlation, |x| fixed(x, 2)),
-                opt(r.vif, |x| fixed(x, 2)),
+                opt(r.delta_aic, |x| fixed(x, 1)),
+                opt(r.delta_aic_with_correlation, |x| fixed(x, 1)),
+                opt(r.vif, |x| fixed(x, 1)),
                 if r.confounded { "<span class=\"flag\">spatially confounded</span>" } else { "" }
             );
         }
         out.push_str("</table></div>\n<p class=\"lead\">Effect: change of the trait per unit of the driver. Incl. mapping: the effect, its standard error and interval once the uncertainty of the kriged driver map is included: the model is refitted on imputations of the driver drawn given the loggers and the trait, and the fits are combined by Rubin's rules; the plug-in columns treat the map as exact. ΔAIC: AIC of the model without the driver minus AIC with it, alone with independent errors and with the best correlation model; positive values mean the driver improves the model. VIF: variance inflation against the other drivers; above about 5 the drivers are hard to tell apart (common practice). Spatially confounded: the effect vanishes once spatial correlation is modelled.</p>\n");
     }
     out.push_str("<h3>What the data can and cannot show</h3>\n<ul class=\"cautions\">\n");
+    let mut shown: Vec<&str> = Vec::new();
     for c in &v.cautions {
-        let _ = writeln!(out, "<li>{}</li>", rich(c));
+        if !shown.contains(&c.as_str()) {
+            shown.push(c);
+            let _ = writeln!(out, "<li>{}</li>", rich(c));
+        }
     }
     out.push_str(
         "<li>An association between a driver and the trait across the floor is not proof that the driver causes it: anything else that varies the same way over the floor would look the same.</li>\n\
@@ -332,7 +365,7 @@ fn what_next(out: &mut String, h: &Headline, v: &VerdictSection) {
             v.drivers.iter().find(|d| d.name == n.driver).and_then(|d| d.unit.clone()).unwrap_or_default();
         let _ = writeln!(
             out,
-            "<li>An extra logger would cut the map's error most at pot {} (x {} m, y {} m), where the kriging standard error of <code>{}</code> is largest ({} {}).</li>",
+            "<li>An extra logger would cut the map's error most at pot {} (x {} m, y {} m), where the map's standard error of <code>{}</code> (section 3) is largest ({} {}).</li>",
             escape(&n.pot),
             fixed(n.x, 2),
             fixed(n.y, 2),
@@ -479,10 +512,11 @@ fn section_climate(d: &ReportData, out: &mut String) {
         out.push_str(&missing("daily series", RUN));
     } else {
         out.push_str("<div class=\"figs\">\n");
+        let order = logger_order(c);
         for s in &c.series {
             out.push_str(&figure_html(
-                figures::daily_series(s),
-                "One line per logger; gaps are days without data.",
+                figures::daily_series(s, &order),
+                "One line per logger, each logger in its own colour in every chart (key on the right); gaps are days without data.",
             ));
         }
         out.push_str("</div>\n");
@@ -491,29 +525,22 @@ fn section_climate(d: &ReportData, out: &mut String) {
     if c.qc.is_empty() {
         out.push_str(&missing("the quality-control summary", RUN));
     } else {
-        let mut reasons: Vec<&String> = c.qc.iter().flat_map(|r| r.reasons.keys()).collect();
-        reasons.sort();
-        reasons.dedup();
-        out.push_str("<div class=\"scroll\"><table>\n<tr><th>file</th><th class=\"n\">rows read</th><th class=\"n\">kept</th><th class=\"n\">flagged</th>");
-        for r in &reasons {
-            let _ = write!(out, "<th class=\"n\">{}</th>", escape(r));
-        }
-        out.push_str("</tr>\n");
+        // Four columns whatever the number of reasons, so the table fits an
+        // A4 page: the reasons share one column, as "reason count" pairs.
+        out.push_str("<table class=\"qc\">\n<tr><th>file</th><th class=\"n\">rows read</th><th class=\"n\">kept</th><th class=\"n\">flagged</th><th>flagged readings by reason</th></tr>\n");
         for q in &c.qc {
-            let _ = write!(
+            let reasons: Vec<String> = q.reasons.iter().map(|(r, n)| format!("{} {n}", escape(r))).collect();
+            let _ = writeln!(
                 out,
-                "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>",
+                "<tr><td class=\"file\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td>{}</td></tr>",
                 escape(&q.file),
                 q.rows_read,
                 q.rows_kept,
-                q.rows_flagged
+                q.rows_flagged,
+                if reasons.is_empty() { "–".to_string() } else { reasons.join(", ") }
             );
-            for r in &reasons {
-                let _ = write!(out, "<td class=\"n\">{}</td>", q.reasons.get(*r).copied().unwrap_or(0));
-            }
-            out.push_str("</tr>\n");
         }
-        out.push_str("</table></div>\n<p class=\"lead\">Flag columns count readings per reason; a row can carry more than one flag.</p>\n");
+        out.push_str("</table>\n<p class=\"lead\">Rows flagged: rows with at least one flagged reading. By reason: flagged readings per reason; a row can carry more than one flag.</p>\n");
     }
     out.push_str("<h3>Gaps in the records</h3>\n");
     if c.gaps.is_empty() {
@@ -546,6 +573,18 @@ fn section_climate(d: &ReportData, out: &mut String) {
     out.push_str("</section>\n");
 }
 
+/// Every logger of the daily series once, in order of first appearance: the
+/// shared order that gives each logger one colour in every chart.
+fn logger_order(c: &ClimateSection) -> Vec<String> {
+    let mut order: Vec<String> = Vec::new();
+    for t in c.series.iter().flat_map(|s| s.sensors.iter()) {
+        if !order.contains(&t.sensor) {
+            order.push(t.sensor.clone());
+        }
+    }
+    order
+}
+
 fn section_spatial(d: &ReportData, out: &mut String) {
     out.push_str("<section id=\"spatial\">\n<h2>4. Spatial structure</h2>\n");
     if d.variograms.is_empty() {
@@ -555,29 +594,67 @@ fn section_spatial(d: &ReportData, out: &mut String) {
     }
     out.push_str("<p class=\"lead\">A variogram shows how different two values are, on average, as a function of the distance between them. A curve that rises and levels off means nearby pots (or loggers) are more alike than distant ones; the level is the sill, the height at zero distance the nugget, and the distance where it levels off the range. A flat cloud means no spatial structure.</p>\n<div class=\"figs\">\n");
     for p in &d.variograms {
-        let mut cap = String::from(
-            "Circles: experimental semivariance per lag bin (larger = more pairs). Lines: fitted families.",
-        );
-        if !p.fits.is_empty() {
-            cap.push_str(
-                "<table><tr><th>family</th><th class=\"n\">nugget</th><th class=\"n\">sill</th><th class=\"n\">range (m)</th><th class=\"n\">practical range (m)</th></tr>",
-            );
-            for f in &p.fits {
-                let _ = write!(
-                    cap,
-                    "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td></tr>",
-                    escape(&f.family),
-                    sig(f.nugget, 3),
-                    sig(f.sill, 3),
-                    sig(f.range, 3),
-                    opt(f.practical_range, |r| sig(r, 3))
-                );
-            }
-            let _ = write!(cap, "</table>Nugget and sill in {}.", escape(&p.unit));
-        }
-        out.push_str(&figure_html(figures::variogram(p), &cap));
+        out.push_str(&figure_html(figures::variogram(p), &variogram_caption(d, p)));
     }
     out.push_str("</div>\n</section>\n");
+}
+
+/// The caption of one variogram: what the marks are (lines only when the
+/// panel has fitted curves), the subject's qualifier that the title leaves
+/// out, the fits' table, and a sentence for every fit whose practical range
+/// lies beyond the largest lag shown or the room's diagonal.
+fn variogram_caption(d: &ReportData, p: &VariogramPanel) -> String {
+    let mut cap = String::new();
+    let short = figures::short_subject(&p.subject);
+    if short != p.subject {
+        let _ = write!(
+            cap,
+            "{}: {}. ",
+            escape(short),
+            escape(p.subject[short.len()..].trim().trim_matches(|c| c == '(' || c == ')'))
+        );
+    }
+    cap.push_str("Circles: experimental semivariance per lag bin (larger = more pairs).");
+    if p.fits.is_empty() {
+        cap.push_str(" No model is fitted to this variogram: it is a check, and about 1 at every lag means no spatial structure is left.");
+        return cap;
+    }
+    cap.push_str(" Lines: the fitted families (key on the right); dashed: nugget, sill and practical range of the first.");
+    let nd = decimals_for(p.fits.iter().flat_map(|f| [f.nugget, f.sill]), 3);
+    cap.push_str(
+        "<table><tr><th>family</th><th class=\"n\">nugget</th><th class=\"n\">sill</th><th class=\"n\">range (m)</th><th class=\"n\">practical range (m)</th></tr>",
+    );
+    for f in &p.fits {
+        let _ = write!(
+            cap,
+            "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td></tr>",
+            escape(&f.family),
+            fixed(f.nugget, nd),
+            fixed(f.sill, nd),
+            fixed(f.range, 2),
+            opt(f.practical_range, |r| fixed(r, 2))
+        );
+    }
+    let _ = write!(cap, "</table>Nugget and sill in {}.", escape(&p.unit));
+    let max_lag = p.bins.iter().map(|b| b.lag).fold(0.0f64, f64::max);
+    let diagonal = d.compartment.map(|c| c.length.hypot(c.width));
+    for f in &p.fits {
+        let Some(r) = f.practical_range.filter(|r| r.is_finite()) else { continue };
+        let room = match diagonal {
+            Some(diag) if r > diag => Some(format!("the room's diagonal ({} m)", fixed(diag, 1))),
+            _ if r > max_lag => Some(format!("the largest lag measured ({} m)", fixed(max_lag, 1))),
+            _ => None,
+        };
+        if let Some(room) = room {
+            let _ = write!(
+                cap,
+                " The {} fit's practical range, {} m, is beyond {room}: within this room its curve never levels off, so its sill is an extrapolation and only its rise over the lags shown is supported by the data.",
+                escape(&f.family),
+                fixed(r, 1)
+            );
+        }
+    }
+    cap
 }
 
 fn section_models(d: &ReportData, out: &mut String) {
@@ -618,13 +695,23 @@ fn section_models(d: &ReportData, out: &mut String) {
         );
     }
     out.push_str("</table></div>\n");
-    out.push_str(&figure_html(
-        figures::delta_aic_bars(&m.comparison, chosen, m.tie_margin),
-        "Bars: AIC distance to the best model. Models left of the dashed line are within the tie margin of the verdict rule and count as equally supported; the chosen model (accent colour) is the simplest of them.",
-    ));
+    let shown = figures::models_that_matter(&m.comparison, chosen, m.tie_margin).len();
+    let _ = write!(
+        out,
+        "{}",
+        figure_html(
+            figures::delta_aic_bars(&m.comparison, chosen, m.tie_margin),
+            &format!(
+                "Bars: AIC distance to the best model, for {shown} of the {} models: the best of each kind (with or without drivers, independent or spatially correlated errors) and every model within the tie margin; the table above lists all. Models left of the dashed line are within the tie margin of the verdict rule and count as equally supported; the chosen model (accent colour) is the simplest of them.",
+                m.comparison.len()
+            ),
+        )
+    );
     out.push_str("<h3>Analysis of variance</h3>\n");
     if m.anova.is_empty() {
         out.push_str(&missing("ANOVA tables", RUN));
+    } else {
+        out.push_str("<p class=\"lead\">How much of the trait's variation the experimental design explains before any position or driver is considered. The same tables, of every type, are written by <code>potclim fit</code> (<code>anova.csv</code>).</p>\n");
     }
     for t in &m.anova {
         let _ = write!(out, "<p><strong>{}</strong>", escape(&t.model));
@@ -632,14 +719,15 @@ fn section_models(d: &ReportData, out: &mut String) {
             let _ = write!(out, " — {}", escape(k));
         }
         out.push_str("</p>\n<table>\n<tr><th>term</th><th class=\"n\">df</th><th class=\"n\">sum of squares</th><th class=\"n\">mean square</th><th class=\"n\">F</th><th class=\"n\">p</th></tr>\n");
+        let dec = decimals_for(t.rows.iter().flat_map(|r| r.sum_sq.into_iter().chain(r.mean_sq)), 3).min(2);
         for r in &t.rows {
             let _ = writeln!(
                 out,
                 "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td></tr>",
                 escape(&r.term),
                 df(r.df),
-                opt(r.sum_sq, |x| sig(x, 4)),
-                opt(r.mean_sq, |x| sig(x, 4)),
+                opt(r.sum_sq, |x| fixed(x, dec)),
+                opt(r.mean_sq, |x| fixed(x, dec)),
                 opt(r.f, |x| fixed(x, 2)),
                 p_value(r.p_value)
             );
@@ -684,12 +772,20 @@ fn section_models(d: &ReportData, out: &mut String) {
                 escape(&r.model),
                 fixed(mi.i, 4),
                 fixed(mi.expectation, 4),
-                sig(mi.variance, 3),
+                fixed(mi.variance, 4),
                 p_value(Some(mi.p_value)),
                 escape(mi.note.as_deref().unwrap_or(""))
             );
         }
         out.push_str("</table>\n<p class=\"lead\">I near its expectation (and a large p) means neighbouring residuals are no more alike than distant ones.</p>\n");
+    }
+    let notes = d.verdict.as_ref().map_or(&[][..], |v| v.technical_notes.as_slice());
+    if !notes.is_empty() {
+        out.push_str("<h3>Technical notes</h3>\n<p class=\"lead\">How the uncertainty of each mapped driver was carried into its effect, for a reader who wants to check the method. The standard errors named here are of the study-period values kriged from the loggers' own study-period values, another quantity than the map's standard error of section 3.</p>\n<ul class=\"technical\">\n");
+        for n in notes {
+            let _ = writeln!(out, "<li>{}</li>", rich(n));
+        }
+        out.push_str("</ul>\n");
     }
     out.push_str("</section>\n");
 }
@@ -704,7 +800,7 @@ fn section_means(d: &ReportData, out: &mut String) {
     let unit = escape(d.adjusted_means_unit.as_deref().unwrap_or("trait unit"));
     let _ = writeln!(
         out,
-        "<p class=\"lead\">Adjusted mean: the mean under the chosen model, at the average of the drivers. Change: adjusted minus plain factorial mean; positive means the level was held back by where its pots stood. Within each factor, levels are sorted by the size of the change and the three that moved most are shaded. All values in {unit}.</p>"
+        "<p class=\"lead\">Adjusted mean: the mean of each level under the chosen model, at the average of the drivers, with its standard error (SE). Levels are listed from the highest adjusted mean down. Change: adjusted minus plain mean (the plain factorial model, position ignored); positive means the level was held back by where its pots stood. Shaded: a change larger than the level's SE. All values in {unit}.</p>"
     );
     let mut factors: Vec<&str> = Vec::new();
     for m in &d.adjusted_means {
@@ -714,32 +810,69 @@ fn section_means(d: &ReportData, out: &mut String) {
     }
     for f in factors {
         let mut rows: Vec<&AdjustedMean> = d.adjusted_means.iter().filter(|m| m.factor == f).collect();
-        rows.sort_by(|a, b| b.change.abs().total_cmp(&a.change.abs()).then_with(|| a.level.cmp(&b.level)));
+        rows.sort_by(|a, b| b.mean.total_cmp(&a.mean).then_with(|| a.level.cmp(&b.level)));
+        // One number of decimals for the whole table: two significant
+        // digits of the smallest SE.
+        let dec = decimals_for(rows.iter().map(|m| m.se), 2);
         let _ = writeln!(
             out,
-            "<h3>{}</h3>\n<table>\n<tr><th>level</th><th class=\"n\">adjusted mean</th><th class=\"n\">SE</th><th class=\"n\">plain mean</th><th class=\"n\">change</th></tr>",
+            "<h3>{}</h3>\n<table>\n<tr><th>level</th><th class=\"n\">adjusted mean</th><th class=\"n\">SE</th><th class=\"n\">change from position</th><th class=\"n\">plain mean</th></tr>",
             escape(f)
         );
-        for (k, m) in rows.iter().enumerate() {
-            let class = if k < 3 && rows.len() > 3 { " class=\"moved\"" } else { "" };
+        for m in &rows {
+            let class = if m.change.abs() > m.se { " class=\"moved\"" } else { "" };
             let _ = writeln!(
                 out,
                 "<tr{class}><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td></tr>",
                 escape(&m.level),
-                sig(m.mean, 4),
-                sig(m.se, 3),
-                sig(m.plain_mean, 4),
-                signed(m.change)
+                fixed(m.mean, dec),
+                fixed(m.se, dec),
+                signed(m.change, dec),
+                fixed(m.plain_mean, dec),
             );
         }
         out.push_str("</table>\n");
+        let moved: Vec<&str> =
+            rows.iter().filter(|m| m.change.abs() > m.se).map(|m| m.level.as_str()).collect();
+        let reordered = {
+            let mut plain: Vec<&AdjustedMean> = rows.clone();
+            plain.sort_by(|a, b| b.plain_mean.total_cmp(&a.plain_mean).then_with(|| a.level.cmp(&b.level)));
+            plain.iter().zip(&rows).any(|(a, b)| a.level != b.level)
+        };
+        if moved.is_empty() {
+            let _ = writeln!(
+                out,
+                "<p>Position changes no mean of <code>{}</code> by more than its standard error{}: for this factor the plain means tell the same story.</p>",
+                escape(f),
+                if reordered {
+                    " (the order of some close levels changes, within their SEs)"
+                } else {
+                    ", and the order of the levels stays the same"
+                }
+            );
+        } else {
+            let _ = writeln!(
+                out,
+                "<p>Position moves {} of the {} levels of <code>{}</code> by more than their standard error ({}){}.</p>",
+                moved.len(),
+                rows.len(),
+                escape(f),
+                moved.iter().map(|l| escape(l)).collect::<Vec<_>>().join(", "),
+                if reordered {
+                    "; the order of the levels changes"
+                } else {
+                    "; the order of the levels stays the same"
+                }
+            );
+        }
     }
     out.push_str("</section>\n");
 }
 
-fn signed(v: f64) -> String {
-    let s = sig(v, 3);
-    if v > 0.0 { format!("+{s}") } else { s }
+/// `v` with `decimals` decimals and an explicit sign; zero unsigned.
+fn signed(v: f64, decimals: usize) -> String {
+    let s = fixed(v, decimals);
+    if v > 0.0 && s.chars().any(|c| c.is_ascii_digit() && c != '0') { format!("+{s}") } else { s }
 }
 
 /// Degrees of freedom: whole numbers as integers, others with two decimals
@@ -833,7 +966,8 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
                 Err(e) => out.push(Err(e)),
             }
         }
-        out.extend(c.series.iter().map(figures::daily_series));
+        let order = logger_order(c);
+        out.extend(c.series.iter().map(|s| figures::daily_series(s, &order)));
     }
     out.extend(d.variograms.iter().map(figures::variogram));
     if let Some(m) = &d.models {

@@ -252,6 +252,9 @@ pub fn sample_report() -> ReportData {
                 "Four loggers stood in a room of 60 m²; the mapped cold hours are uncertain far from them (see the standard-error map).".into(),
                 "The cooling-pad distance explains almost as much as the measured cold; the two cannot be fully separated in this layout.".into(),
             ],
+            technical_notes: vec![
+                "`night_cold_hours`: refitted on 20 imputations of the mapped driver; Rubin's rules combine them.".into(),
+            ],
             headline: Some(crate::model::verdict::Headline {
                 effect: Some(crate::model::verdict::TypicalEffect {
                     driver: "night_cold_hours".into(),

@@ -156,6 +156,65 @@ fn check_text(s: &str) -> Result<(), String> {
     Ok(())
 }
 
+/// One `<text>` of an SVG drawn by the report, with its estimated extent.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SvgText {
+    /// Left end, pixels (from `x` and `text-anchor`).
+    pub left: f64,
+    /// Right end, pixels: the text is taken as 0.55 em per character
+    /// (a common estimate for sans-serif type); a rotated text's extent is
+    /// along y, so its left and right are both `x`.
+    pub right: f64,
+    /// Baseline `y`, pixels.
+    pub y: f64,
+    /// The text, entities decoded.
+    pub text: String,
+}
+
+/// Every `<text>` element of `svg` (as plotters writes them: attributes
+/// `x`, `y`, `font-size`, `text-anchor`, optional `transform`), for the
+/// tests that keep labels inside their figure.
+pub fn svg_texts(svg: &str) -> Vec<SvgText> {
+    let mut out = Vec::new();
+    let mut rest = svg;
+    while let Some(a) = rest.find("<text ") {
+        let head_end = match rest[a..].find('>') {
+            Some(e) => a + e,
+            None => break,
+        };
+        let head = &rest[a..head_end];
+        let close = rest[head_end..].find("</text>").map_or(rest.len(), |e| head_end + e);
+        let body = rest[head_end + 1..close].trim();
+        let attr = |k: &str| {
+            head.split(&format!(" {k}=\"")).nth(1).and_then(|v| v.split('"').next()).map(str::to_string)
+        };
+        let num = |k: &str| attr(k).and_then(|v| v.parse::<f64>().ok()).unwrap_or(0.0);
+        let text = body
+            .replace("&lt;", "<")
+            .replace("&gt;", ">")
+            .replace("&quot;", "\"")
+            .replace("&#39;", "'")
+            .replace("&amp;", "&");
+        let (x, size) = (num("x"), num("font-size"));
+        let w = 0.55 * size * text.chars().count() as f64;
+        let (left, right) = if attr("transform").is_some() {
+            (x, x)
+        } else {
+            match attr("text-anchor").as_deref() {
+                Some("middle") => (x - w / 2.0, x + w / 2.0),
+                Some("end") => (x - w, x),
+                _ => (x, x + w),
+            }
+        };
+        out.push(SvgText { left, right, y: num("y"), text });
+        rest = &rest[close.min(rest.len())..];
+        if rest.len() == svg.len() {
+            break;
+        }
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

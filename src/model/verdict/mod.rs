@@ -231,6 +231,7 @@ pub fn verdict_on(
             row.ci_low_with_mapping_uncertainty = Some(m.ci.0);
             row.ci_high_with_mapping_uncertainty = Some(m.ci.1);
         }
+        r.mapping_notes.push(m.note.clone());
         r.notes.push(m.note);
     }
     r.seconds += start.elapsed().as_secs_f64();
@@ -336,6 +337,10 @@ pub fn analyse_with(
         chosen_residuals: chosen.residuals.clone(),
         plain_moran: moran_of(&plain),
         chosen_shape: (chosen_ml.drivers.clone(), chosen_ml.errors),
+        // Type II: each term after every term that does not contain it, so a
+        // factor's line does not depend on the order of the declaration.
+        plain_anova: super::ols::anova(&base_design, &data.response, super::ols::SsType::Hierarchical).ok(),
+        mapping_notes: Vec::new(),
     })
 }
 

@@ -260,4 +260,13 @@ pub struct VerdictResult {
     /// Drivers and errors of the chosen model.
     #[serde(skip)]
     pub chosen_shape: (Vec<String>, Errors),
+    /// ANOVA (type II sums of squares, OLS) of the plain factorial model, for
+    /// the report; `None` when it could not be computed.
+    #[serde(skip)]
+    pub plain_anova: Option<crate::model::ols::AnovaTable>,
+    /// The technical notes on how each mapped driver's uncertainty was
+    /// propagated (also in `notes`), which the report shows apart from the
+    /// cautions.
+    #[serde(skip)]
+    pub mapping_notes: Vec<String>,
 }

@@ -317,7 +317,7 @@ pub fn impute_and_pool(
         Conditioning::LoggersOnly => "drawn from the driver given the loggers alone".into(),
     };
     let note = format!(
-        "`{name}`: the chosen model was refitted on {} imputations of the mapped driver {drawn}; {how}: {} nugget {:.3}, partial sill {:.3}, range {:.2} m, {ns} sensors; mean kriging SE of the driver at the pots {:.3}, RMS gap between the map and the sensor-level kriging {:.3}. Rubin's rules: estimate {:.4}, SE {:.4} (within {:.4}, between {:.4}, df {:.0}) against the plug-in {:.4}, SE {:.4}. Approximations: the per-pot summary is simulated, not the climate series; the variogram and the correlation parameters inside the chain are held at their estimates",
+        "`{name}`: the chosen model was refitted on {} imputations of the mapped driver {drawn}; {how}: {} nugget {:.3}, partial sill {:.3}, range {:.2} m, {ns} sensors; mean SE of the sensor-level kriging of the study-period value at the pots {:.3} (not the map's window SE), RMS gap between the map and the sensor-level kriging {:.3}. Rubin's rules: estimate {:.4}, SE {:.4} (within {:.4}, between {:.4}, df {:.0}) against the plug-in {:.4}, SE {:.4}. Approximations: the per-pot summary is simulated, not the climate series; the variogram and the correlation parameters inside the chain are held at their estimates",
         opts.draws,
         model.family.name(),
         model.nugget,
