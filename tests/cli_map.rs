@@ -5,6 +5,9 @@ use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+#[path = "common/report_checks.rs"]
+mod report_checks;
+
 fn copy_dir(from: &Path, to: &Path) {
     std::fs::create_dir_all(to).unwrap();
     for e in std::fs::read_dir(from).unwrap() {
@@ -220,6 +223,7 @@ fn run_writes_every_stage_and_the_report() {
         }
     }
     assert!(!html.contains("()"), "an empty unit label");
+    report_checks::demo_report(&html, &data);
     // No staging folder is left behind.
     for e in std::fs::read_dir(&dir).unwrap() {
         assert!(!e.unwrap().file_name().to_string_lossy().contains("partial"));
