@@ -142,3 +142,51 @@ fn report_command_exports_every_figure_as_png() {
         assert!(bytes > 5_000, "{} looks empty ({bytes} B)", f.id);
     }
 }
+
+/// One screenshot per section: the sample page with every other section
+/// hidden, drawn by headless Chromium at 1280 x 1400. Each must have the
+/// window's size, hold far more than a blank page of the same size (text,
+/// tables, figures compress to much more than white), and differ from every
+/// other section's. No pixel is compared.
+#[test]
+fn each_section_draws_in_a_screenshot() {
+    let Some(browser) = chromium() else { return };
+    let work = tempfile::tempdir().unwrap();
+    let page = std::fs::read_to_string(sample_page(work.path())).unwrap();
+    let blank_page = work.path().join("blank.html");
+    std::fs::write(&blank_page, "<!DOCTYPE html><html><body></body></html>").unwrap();
+    let blank = work.path().join("blank.png");
+    let size = "--window-size=1280,1400".to_string();
+    let (ok, err) = browse(
+        &browser,
+        work.path(),
+        &[format!("--screenshot={}", blank.display()), size.clone()],
+        &format!("file://{}", blank_page.display()),
+    );
+    assert!(ok, "blank screenshot failed: {err}");
+    let (_, _, blank_bytes) = png_size(&blank);
+    let mut seen: Vec<Vec<u8>> = Vec::new();
+    for id in SECTIONS {
+        let only = page.replacen(
+            "</head>",
+            &format!("<style>header, footer, section {{ display: none; }} section#{id} {{ display: block; }}</style></head>"),
+            1,
+        );
+        let file = work.path().join(format!("{id}.html"));
+        std::fs::write(&file, only).unwrap();
+        let shot = work.path().join(format!("{id}.png"));
+        let (ok, err) = browse(
+            &browser,
+            work.path(),
+            &[format!("--screenshot={}", shot.display()), size.clone()],
+            &format!("file://{}", file.display()),
+        );
+        assert!(ok, "{id}: screenshot failed: {err}");
+        let (w, h, bytes) = png_size(&shot);
+        assert_eq!((w, h), (1280, 1400), "{id}");
+        assert!(bytes > 5 * blank_bytes, "{id}: screenshot looks blank: {bytes} B vs blank {blank_bytes} B");
+        let content = std::fs::read(&shot).unwrap();
+        assert!(!seen.contains(&content), "{id}: same picture as another section");
+        seen.push(content);
+    }
+}
