@@ -67,6 +67,50 @@ pub fn expected_capped_excess(mu: f64, sigma: f64, base: f64, cap: Option<f64>) 
     }
 }
 
+/// The variance of one step's hours-below (or above) indicator `1{T < b}`
+/// with `P(T < b) = p`: the Bernoulli variance `p (1 - p)`.
+pub fn indicator_variance(p: f64) -> f64 {
+    (p * (1.0 - p)).max(0.0)
+}
+
+/// The second partial moment `E[((T - b)+)^2]` for `T ~ N(mu, sigma^2)`:
+/// `((mu - b)^2 + sigma^2) Phi(z) + (mu - b) sigma phi(z)`, `z = (mu - b) /
+/// sigma` (the partial moments of the normal distribution, Winkler, Roodman &
+/// Britney 1972, *Management Science* 19: 290–296, eq. 6 with `n = 2`);
+/// `max(mu - b, 0)^2` when `sigma = 0`.
+pub fn second_partial_moment(mu: f64, sigma: f64, b: f64) -> f64 {
+    if sigma > 0.0 && sigma.is_finite() {
+        let (d, z) = (mu - b, (mu - b) / sigma);
+        ((d * d + sigma * sigma) * normal_cdf(z) + d * sigma * normal_pdf(z)).max(0.0)
+    } else {
+        (mu - b).max(0.0).powi(2)
+    }
+}
+
+/// The variance of one step's capped excess `g = (min(T, cap) - base)+`
+/// for `T ~ N(mu, sigma^2)`: `E[g^2] - E[g]^2` with, for `cap > base`,
+/// `g = (T - base)+ - (T - cap)+` and so
+/// `E[g^2] = M2(base) - M2(cap) - 2 (cap - base) M1(cap)` (expanding the
+/// square; `M1`, `M2` the first and second partial moments,
+/// [`expected_excess`] and [`second_partial_moment`]); without a cap
+/// `E[g^2] = M2(base)`. 0 for `cap <= base` or `sigma = 0`.
+pub fn capped_excess_variance(mu: f64, sigma: f64, base: f64, cap: Option<f64>) -> f64 {
+    if !(sigma > 0.0 && sigma.is_finite()) {
+        return 0.0;
+    }
+    let m1 = expected_capped_excess(mu, sigma, base, cap);
+    let m2 = match cap {
+        Some(c) if c <= base => return 0.0,
+        Some(c) => {
+            second_partial_moment(mu, sigma, base)
+                - second_partial_moment(mu, sigma, c)
+                - 2.0 * (c - base) * expected_excess(mu, sigma, c)
+        }
+        None => second_partial_moment(mu, sigma, base),
+    };
+    (m2 - m1 * m1).max(0.0)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -115,6 +159,19 @@ mod tests {
             check(&above, prob_above(mu, sigma, b), "above");
             check(&ex, expected_excess(mu, sigma, b), "excess");
             check(&cx, expected_capped_excess(mu, sigma, b, cap), "capped excess");
+            // The variances against the sample variances: tolerance four
+            // Monte Carlo SEs of a sample variance, sqrt((m4 - v^2) / n).
+            let check_var = |xs: &[f64], want: f64, what: &str| {
+                let n = xs.len() as f64;
+                let m = xs.iter().sum::<f64>() / n;
+                let v = xs.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0);
+                let m4 = xs.iter().map(|x| (x - m).powi(4)).sum::<f64>() / n;
+                let tol = 4.0 * ((m4 - v * v).max(0.0) / n).sqrt() + 2.0 / n;
+                assert!((v - want).abs() <= tol, "{what}: MC variance {v} vs {want} (tol {tol})");
+            };
+            check_var(&below, indicator_variance(prob_below(mu, sigma, b)), "below");
+            check_var(&ex, capped_excess_variance(mu, sigma, b, None), "excess");
+            check_var(&cx, capped_excess_variance(mu, sigma, b, cap), "capped excess");
         }
     }
 
@@ -126,5 +183,9 @@ mod tests {
         assert_eq!(prob_above(12.0, 0.0, 12.0), 0.0);
         assert_eq!(expected_capped_excess(35.0, 0.0, 10.0, Some(30.0)), 20.0);
         assert_eq!(expected_capped_excess(35.0, 1.0, 10.0, Some(5.0)), 0.0);
+        assert_eq!(capped_excess_variance(35.0, 0.0, 10.0, Some(30.0)), 0.0);
+        assert_eq!(second_partial_moment(13.0, 0.0, 10.0), 9.0);
+        // At mu = b the second partial moment is half the variance (symmetry).
+        assert_relative_eq!(second_partial_moment(10.0, 2.0, 10.0), 2.0, epsilon = 1e-14);
     }
 }

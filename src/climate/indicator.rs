@@ -20,7 +20,9 @@
 
 use super::calendar::Calendar;
 use super::config::{DegreeDayMethod, Indicator, Period, Statistic, Variable};
-use super::exceedance::{expected_capped_excess, prob_above, prob_below};
+use super::exceedance::{
+    capped_excess_variance, expected_capped_excess, indicator_variance, prob_above, prob_below,
+};
 use super::psychro::{dew_point, vapour_pressure_deficit};
 use std::borrow::Cow;
 use std::ops::Range;
@@ -69,6 +71,12 @@ pub struct DayValue {
     pub value: Option<f64>,
     /// Valid steps / steps of the whole local day, in [0, 1].
     pub coverage: f64,
+    /// The variance of the value when each step's temperature is an
+    /// independent `N(mu_t, se_t^2)` ([`daily_values_expected`]): the sum of
+    /// the steps' own variances times the square of the day's scale; 0
+    /// without standard errors, and for the statistics that are not sums or
+    /// means of steps (min, max, range, min/max degree days).
+    pub own_variance: f64,
 }
 
 /// How daily values combine over a window.
@@ -148,6 +156,13 @@ pub fn daily_values(
 /// * integrated degree days = `sum_V E[(min(T, cap) - base)+] · Δt[d] · N/n`
 ///   with `E[(T - b)+] = se phi(z) + (mu - b) Phi(z)`, `z = (mu - b) / se`.
 ///
+/// The day's `own_variance` treats the steps' errors as independent: the
+/// Bernoulli variance `p_t (1 - p_t)` of each step's threshold indicator
+/// ([`super::exceedance::indicator_variance`]), the capped excess's variance
+/// ([`super::exceedance::capped_excess_variance`]), or `se_t^2` for a mean,
+/// summed with the squared weights of the day's value (`(Δt · N/n)^2`, or
+/// `1/count^2` for a mean).
+///
 /// Every other statistic, and every indicator of another variable (whose
 /// standard error is not given), is computed from `mu` as by
 /// [`daily_values`]; a step with `se_t = 0` or not finite counts as by
@@ -185,7 +200,7 @@ fn day_value(
 ) -> DayValue {
     let mut n_valid = 0usize;
     let (mut sum, mut count, mut lo, mut hi) = (0.0f64, 0usize, f64::INFINITY, f64::NEG_INFINITY);
-    let mut acc = 0.0f64;
+    let (mut acc, mut acc_var, mut sum_se2) = (0.0f64, 0.0f64, 0.0f64);
     for k in range {
         let v = values[k];
         if !v.is_finite() {
@@ -206,19 +221,29 @@ fn day_value(
         lo = lo.min(v);
         hi = hi.max(v);
         let s = se.map_or(0.0, |s| s[k]);
-        acc += match ind.statistic {
-            Statistic::HoursBelow { threshold } => prob_below(v, s, threshold),
-            Statistic::HoursAbove { threshold } => prob_above(v, s, threshold),
-            Statistic::DegreeDays { base, cap, method: DegreeDayMethod::Integrated } => {
-                expected_capped_excess(v, s, base, cap)
+        let s = if s.is_finite() { s } else { 0.0 };
+        let (e, var) = match ind.statistic {
+            Statistic::HoursBelow { threshold } => {
+                let p = prob_below(v, s, threshold);
+                (p, indicator_variance(p))
             }
-            Statistic::DailyIntegral => v,
-            _ => 0.0,
+            Statistic::HoursAbove { threshold } => {
+                let p = prob_above(v, s, threshold);
+                (p, indicator_variance(p))
+            }
+            Statistic::DegreeDays { base, cap, method: DegreeDayMethod::Integrated } => {
+                (expected_capped_excess(v, s, base, cap), capped_excess_variance(v, s, base, cap))
+            }
+            Statistic::DailyIntegral => (v, 0.0),
+            _ => (0.0, 0.0),
         };
+        acc += e;
+        acc_var += var;
+        sum_se2 += s * s;
     }
     let coverage = if expected == 0 { 0.0 } else { n_valid as f64 / f64::from(expected) };
     if n_valid == 0 || coverage < min_coverage {
-        return DayValue { value: None, coverage };
+        return DayValue { value: None, coverage, own_variance: 0.0 };
     }
     let scale = f64::from(expected) / n_valid as f64;
     let value = match ind.statistic {
@@ -234,7 +259,15 @@ fn day_value(
         Statistic::MeanDailyRange => Some(hi - lo),
         Statistic::DegreeDays { base, cap, method } => Some(min_max_degree_days(hi, lo, base, cap, method)),
     };
-    DayValue { value, coverage }
+    let own_variance = match ind.statistic {
+        Statistic::HoursBelow { .. } | Statistic::HoursAbove { .. } => acc_var * (step_h * scale).powi(2),
+        Statistic::DegreeDays { method: DegreeDayMethod::Integrated, .. } => {
+            acc_var * (step_h / 24.0 * scale).powi(2)
+        }
+        Statistic::Mean if count > 0 => sum_se2 / (count * count) as f64,
+        _ => 0.0,
+    };
+    DayValue { value, coverage, own_variance: if value.is_some() { own_variance } else { 0.0 } }
 }
 
 /// Degree days of one day from Tmax and Tmin, McMaster & Wilhelm (1997),
@@ -284,6 +317,26 @@ pub fn combine_window(daily: &[Option<f64>], window: Range<usize>, how: Combine)
         })
     };
     WindowValue { value, valid_days: valid.len(), missing_days }
+}
+
+/// The variance of [`combine_window`]'s value from the days' own variances
+/// ([`DayValue::own_variance`], days independent given the shared part of
+/// the error, see `spatial::window_se`): their sum over the window's valid
+/// days for a sum, the sum over `count^2` for a mean, 0 for a minimum or
+/// maximum (not a linear combination of days). Cost O(days).
+pub fn combine_own_variance(daily: &[DayValue], window: Range<usize>, how: Combine) -> f64 {
+    let (mut sum, mut n) = (0.0f64, 0usize);
+    for d in window {
+        if let Some(day) = daily.get(d).filter(|day| day.value.is_some()) {
+            sum += day.own_variance;
+            n += 1;
+        }
+    }
+    match how {
+        Combine::Sum => sum,
+        Combine::Mean if n > 0 => sum / (n * n) as f64,
+        _ => 0.0,
+    }
 }
 
 /// [`daily_values`] then [`combine_window`] over `window`, for one location.
@@ -507,6 +560,9 @@ mod tests {
         for i in [&hb, &dd] {
             let want: Vec<f64> =
                 daily_values_expected(i, &c, &s, Some(&se), 0.9).iter().map(|d| d.value.unwrap()).collect();
+            let own: Vec<f64> =
+                daily_values_expected(i, &c, &s, Some(&se), 0.9).iter().map(|d| d.own_variance).collect();
+            assert!(own.iter().all(|v| *v > 0.0), "{own:?}");
             let reps = 4000;
             let mut got: Vec<Vec<f64>> = vec![Vec::new(); 2];
             for _ in 0..reps {
@@ -521,7 +577,18 @@ mod tests {
                 let sd = (got[d].iter().map(|x| (x - m).powi(2)).sum::<f64>() / (reps - 1) as f64).sqrt();
                 let tol = 4.0 * sd / (reps as f64).sqrt();
                 assert!((m - want[d]).abs() <= tol, "day {d}: MC {m} vs {} (tol {tol})", want[d]);
+                // The day's own variance (independent steps) against the
+                // draws' variance, within four Monte Carlo SEs of a sample
+                // variance, sqrt((m4 - v^2) / reps).
+                let v = sd * sd;
+                let m4 = got[d].iter().map(|x| (x - m).powi(4)).sum::<f64>() / reps as f64;
+                let tol = 4.0 * ((m4 - v * v) / reps as f64).sqrt();
+                assert!((v - own[d]).abs() <= tol, "day {d}: MC variance {v} vs {} (tol {tol})", own[d]);
             }
+            // Over the two days: a sum adds the variances, a mean divides by 4.
+            let days = daily_values_expected(i, &c, &s, Some(&se), 0.9);
+            assert_abs_diff_eq!(combine_own_variance(&days, 0..2, Combine::Sum), own[0] + own[1]);
+            assert_abs_diff_eq!(combine_own_variance(&days, 0..2, Combine::Mean), (own[0] + own[1]) / 4.0);
             // Without standard errors: the counting rule.
             assert_eq!(daily_values_expected(i, &c, &s, None, 0.9), daily_values(i, &c, &s, 0.9));
         }

@@ -36,7 +36,8 @@ pub use calendar::Calendar;
 pub use config::{ClimateConfig, Indicator};
 pub use error::{ClimateError, Result};
 pub use indicator::{
-    Combine, DayValue, LocationSeries, WindowValue, combine_window, daily_values, daily_values_expected,
+    Combine, DayValue, LocationSeries, WindowValue, combine_own_variance, combine_window, daily_values,
+    daily_values_expected,
 };
 pub use regular::{SensorGrid, StepMatrix};
 pub use stage::{ClimateRun, compute, run};

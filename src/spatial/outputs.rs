@@ -252,13 +252,21 @@ pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
 /// `persistent_share`, `inflation`, `loggers` (left-out loggers used),
 /// `median_z2` (their median squared standardised error after calibration).
 pub fn mapping_se_csv(indicators: &[MappedColumn], window_se: &[Option<Calibration>]) -> Vec<u8> {
-    let mut t =
-        CsvTable::new(["indicator", "se_from", "persistent_share", "inflation", "loggers", "median_z2"]);
+    let mut t = CsvTable::new([
+        "indicator",
+        "se_from",
+        "step_se_scale",
+        "persistent_share",
+        "inflation",
+        "loggers",
+        "median_z2",
+    ]);
     for (col, c) in indicators.iter().zip(window_se) {
         let mut r = vec![col.name.clone()];
         match c {
             Some(c) => r.extend([
                 "per_step_errors".to_string(),
+                number(c.step_scale),
                 number(c.share),
                 number(c.inflation),
                 c.loggers.to_string(),
@@ -266,6 +274,7 @@ pub fn mapping_se_csv(indicators: &[MappedColumn], window_se: &[Option<Calibrati
             ]),
             None => r.extend([
                 "kriged_window_values".to_string(),
+                String::new(),
                 String::new(),
                 String::new(),
                 String::new(),

@@ -38,7 +38,8 @@ use super::outputs::{
 use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
 use crate::climate::{
-    ClimateError, ClimateRun, Combine, LocationSeries, combine_window, daily_values_expected,
+    ClimateError, ClimateRun, Combine, LocationSeries, combine_own_variance, combine_window,
+    daily_values_expected,
 };
 use crate::io::layout::{Pots, Sensors, load_pots, load_sensors};
 use crate::io::output::StageWriter;
@@ -450,9 +451,10 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
                             variable: v.name,
                             mu: &v.mapped.as_slice()[j * n_steps..(j + 1) * n_steps],
                             se: &se_m.as_slice()[j * n_steps..(j + 1) * n_steps],
+                            scale: c.step_scale,
                         };
                         indicator_moments(ind, cal, &at, c.share, &nodes, min_cov, windows[j].clone())
-                            .map(|(_, var)| (c.inflation * var).sqrt())
+                            .map(|m| (c.inflation * m.variance()).sqrt())
                     })
                     .collect();
                 ses
@@ -542,7 +544,8 @@ fn leave_out(spec: &Spec, others: &[usize], k: usize) -> Spec {
 
 /// The indicator of `ind` at one location over the days `window`, from
 /// its mapped series (expectation form of threshold statistics with the
-/// temperature SEs `t_se`).
+/// temperature SEs `t_se`), and its variance when the steps' errors are
+/// independent ([`crate::climate::combine_own_variance`]).
 fn location_value(
     ind: &crate::climate::Indicator,
     cal: &crate::climate::Calendar,
@@ -550,10 +553,12 @@ fn location_value(
     t_se: Option<&[f64]>,
     min_cov: f64,
     window: std::ops::Range<usize>,
-) -> Option<f64> {
-    let daily: Vec<Option<f64>> =
-        daily_values_expected(ind, cal, series, t_se, min_cov).into_iter().map(|d| d.value).collect();
-    combine_window(&daily, window, ind.statistic.combine()).value
+) -> Option<(f64, f64)> {
+    let days = daily_values_expected(ind, cal, series, t_se, min_cov);
+    let daily: Vec<Option<f64>> = days.iter().map(|d| d.value).collect();
+    let how = ind.statistic.combine();
+    let value = combine_window(&daily, window.clone(), how).value?;
+    Some((value, combine_own_variance(&days, window, how)))
 }
 
 /// One kriged variable at one location: its name, mapped series and per-step SEs.
@@ -561,10 +566,13 @@ struct KrigedAt<'a> {
     variable: &'a str,
     mu: &'a [f64],
     se: &'a [f64],
+    /// The factor on `se` from the per-step calibration
+    /// ([`super::window_se::step_scale`]).
+    scale: f64,
 }
 
-/// The persistent-error moments ([`super::window_se::persistent_moments`])
-/// of an indicator of one kriged variable at one location.
+/// The error moments ([`super::window_se::window_moments`]) of an
+/// indicator of one kriged variable at one location.
 fn indicator_moments(
     ind: &crate::climate::Indicator,
     cal: &crate::climate::Calendar,
@@ -573,9 +581,10 @@ fn indicator_moments(
     nodes: &[(f64, f64)],
     min_cov: f64,
     window: std::ops::Range<usize>,
-) -> Option<(f64, f64)> {
+) -> Option<super::window_se::WindowMoments> {
     let nan = vec![f64::NAN; at.mu.len()];
-    super::window_se::persistent_moments(at.mu, at.se, rho, nodes, |shifted, sd| {
+    let se: Vec<f64> = at.se.iter().map(|s| s * at.scale).collect();
+    super::window_se::window_moments(at.mu, &se, rho, nodes, |shifted, sd| {
         let pick = |name: &str| if at.variable == name { shifted } else { nan.as_slice() };
         let s = LocationSeries {
             temperature: pick("temperature"),
@@ -695,21 +704,67 @@ fn self_check(
                 humidity: col("humidity"),
                 light: col("light"),
             };
-            let Some(predicted) = location_value(ind, cal, &series, t_se, min_cov, all_days.clone()) else {
+            let Some((predicted, _)) = location_value(ind, cal, &series, t_se, min_cov, all_days.clone())
+            else {
                 continue;
             };
             rows.push((k, observed, predicted, mapped));
         }
+        // The per-step SEs' scale from the left-out loggers' per-step
+        // errors in the indicator's period (`super::window_se::step_scale`).
+        let scale = single_kriged(ind, variables).and_then(|v| {
+            let vi = variables.iter().position(|w| w.name == v.name)?;
+            let obs = matrix_of(match v.name {
+                "temperature" => &climate.grid.temperature,
+                "humidity" => &climate.grid.humidity,
+                _ => &climate.grid.light,
+            });
+            let mut z2 = Vec::new();
+            let mut groups: Vec<Vec<f64>> = Vec::new();
+            for (k, m) in left_out[vi].iter().enumerate() {
+                let Some((_, mu, Some(se))) = m else { continue };
+                groups.push(Vec::new());
+                for t in 0..steps {
+                    let in_period = match (ind.period, cal.is_day[t]) {
+                        (crate::climate::config::Period::All, _) => true,
+                        (_, None) => false,
+                        (crate::climate::config::Period::Day, Some(d)) => d,
+                        (crate::climate::config::Period::Night, Some(d)) => !d,
+                    };
+                    let e = mu[t] - obs[(t, k)];
+                    if in_period && e.is_finite() && se[t] > 0.0 {
+                        z2.push(e * e / (se[t] * se[t]));
+                        groups.last_mut().expect("pushed").push(e / se[t]);
+                    }
+                }
+            }
+            Some((super::window_se::step_scale(z2)?, super::window_se::intraclass(&groups)))
+        });
+        let (scale, icc) = match scale {
+            Some((s, i)) => (s, i),
+            None => (1.0, None),
+        };
         // The calibrated persistence, for an indicator of one kriged variable.
         let variance_at = |rho: f64, m: &LocationMap| -> Option<f64> {
-            let at = KrigedAt { variable: m.0, mu: &m.1, se: m.2.as_deref()? };
-            indicator_moments(ind, cal, &at, rho, &nodes, min_cov, all_days.clone()).map(|(_, v)| v)
+            let at = KrigedAt { variable: m.0, mu: &m.1, se: m.2.as_deref()?, scale };
+            indicator_moments(ind, cal, &at, rho, &nodes, min_cov, all_days.clone()).map(|m| m.variance())
         };
-        let calib = single_kriged(ind, variables).and_then(|_| {
-            let errors: Vec<f64> = rows.iter().map(|r| r.2 - r.1).collect();
-            super::window_se::calibrate(&errors, |rho| {
-                rows.iter().map(|r| variance_at(rho, r.3[0])).collect()
-            })
+        // The persistent share from the per-step errors; the window
+        // indicator's left-out errors are the check.
+        let calib = icc.map(|share| {
+            let z2: Vec<f64> = rows
+                .iter()
+                .filter_map(|r| {
+                    variance_at(share, r.3[0]).filter(|v| *v > 0.0).map(|v| (r.2 - r.1).powi(2) / v)
+                })
+                .collect();
+            super::window_se::Calibration {
+                share,
+                inflation: 1.0,
+                step_scale: scale,
+                loggers: z2.len(),
+                median_z2: super::window_se::median(z2).unwrap_or(f64::NAN),
+            }
         });
         for (k, observed, predicted, mapped) in &rows {
             let se = match calib {

@@ -1,0 +1,136 @@
+//! The mapping study (slow, ignored): for seeds 1..=N of two scenarios,
+//! `potclim simulate` writes a study with known truth, `potclim ingest` and
+//! `potclim map` map the night cold hours onto the pots, and the map is
+//! compared with the simulator's true per-pot values (`truth/pots.csv`):
+//! RMSE, the error of the 20 pots nearest the door, and the mean squared
+//! standardised error (MSSE) of the mapped values with their SEs.
+//!
+//! ```sh
+//! cargo test --test map_study -- --ignored --nocapture                            # seeds 1..=10
+//! POTCLIM_MAP_SEEDS=40 cargo test --test map_study -- --ignored --nocapture       # seeds 1..=40
+//! ```
+//!
+//! Scenarios: `tests/scenarios/truth_covariate.toml` (the truth study's
+//! climate and loggers; the mapped driver is the same under all four truths)
+//! and `tests/scenarios/sharp_draught.toml` (a narrow draught seen by one
+//! logger). One run takes about 1-2 s in the dev build. The results are in
+//! docs/spatial.md.
+
+use std::collections::HashMap;
+use std::path::Path;
+use std::process::Command;
+
+fn potclim(args: &[&str]) {
+    let out = Command::new(env!("CARGO_BIN_EXE_potclim")).args(args).output().unwrap();
+    assert!(
+        out.status.success(),
+        "potclim {} failed:\n{}",
+        args.join(" "),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+/// Columns `cols` of a CSV file with a `pot` column, by pot id.
+fn columns(path: &Path, cols: &[&str]) -> HashMap<String, Vec<f64>> {
+    let mut r = csv::Reader::from_path(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let h = r.headers().unwrap().clone();
+    let at = |c: &str| h.iter().position(|x| x == c).unwrap_or_else(|| panic!("{}: no {c}", path.display()));
+    let pot = at("pot");
+    let idx: Vec<usize> = cols.iter().map(|c| at(c)).collect();
+    r.records()
+        .map(|rec| {
+            let rec = rec.unwrap();
+            (rec[pot].to_string(), idx.iter().map(|&i| rec[i].parse::<f64>().unwrap()).collect())
+        })
+        .collect()
+}
+
+/// One seed's map against the truth.
+struct MapOutcome {
+    seed: u64,
+    rmse: f64,
+    /// Sum of absolute errors over the sum of true values, 20 pots nearest the door.
+    door20: f64,
+    msse: f64,
+    true_sd: f64,
+}
+
+fn run_one(scenario: &str, seed: u64) -> MapOutcome {
+    let dir = tempfile::tempdir().unwrap();
+    let study = dir.path().join("study");
+    let sc = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/scenarios").join(scenario);
+    potclim(&[
+        "simulate",
+        sc.to_str().unwrap(),
+        "--out",
+        study.to_str().unwrap(),
+        "--seed",
+        &seed.to_string(),
+    ]);
+    let toml = study.join("study.toml");
+    potclim(&["ingest", toml.to_str().unwrap()]);
+    potclim(&["map", toml.to_str().unwrap()]);
+    let truth = columns(&study.join("truth/pots.csv"), &["night_cold_hours", "distance_door"]);
+    let map = columns(&study.join("output/pot_covariates.csv"), &["night_cold_hours", "night_cold_hours_se"]);
+    assert_eq!(truth.len(), map.len(), "every pot is mapped");
+    let n = truth.len() as f64;
+    let (mut sse, mut z2) = (0.0, 0.0);
+    for (p, t) in &truth {
+        let e = map[p][0] - t[0];
+        sse += e * e;
+        let se = map[p][1];
+        z2 += if e == 0.0 { 0.0 } else { (e / se).powi(2) };
+    }
+    let mut pots: Vec<&String> = truth.keys().collect();
+    pots.sort_by(|a, b| truth[*a][1].total_cmp(&truth[*b][1]).then(a.cmp(b)));
+    let near = &pots[..20];
+    let door20 = near.iter().map(|p| (map[*p][0] - truth[*p][0]).abs()).sum::<f64>()
+        / near.iter().map(|p| truth[*p][0]).sum::<f64>();
+    let mean = truth.values().map(|t| t[0]).sum::<f64>() / n;
+    let true_sd = (truth.values().map(|t| (t[0] - mean).powi(2)).sum::<f64>() / n).sqrt();
+    MapOutcome { seed, rmse: (sse / n).sqrt(), door20, msse: z2 / n, true_sd }
+}
+
+/// Seeds 1..=N of both scenarios; prints one line per run and a summary per
+/// scenario. Asserts the levels recorded in docs/spatial.md as a guard
+/// against regressions (the issue's target, MSSE within 0.5-2 in 36 of 40
+/// seeds, is not met yet): on `truth_covariate.toml` at least 70 % of the
+/// seeds within 0.5-2 and none above 3; every map finite.
+#[test]
+#[ignore]
+fn map_study() {
+    let n: u64 = std::env::var("POTCLIM_MAP_SEEDS").ok().and_then(|s| s.parse().ok()).unwrap_or(10);
+    for scenario in ["truth_covariate.toml", "sharp_draught.toml"] {
+        let runs: Vec<MapOutcome> = (1..=n).map(|s| run_one(scenario, s)).collect();
+        for o in &runs {
+            println!(
+                "{scenario} seed {:>3}: RMSE {:.2} h (true SD {:.1} h), door-20 error {:.1} %, MSSE {:.3}",
+                o.seed,
+                o.rmse,
+                o.true_sd,
+                100.0 * o.door20,
+                o.msse
+            );
+        }
+        let mut m: Vec<f64> = runs.iter().map(|o| o.msse).collect();
+        m.sort_by(f64::total_cmp);
+        let within = m.iter().filter(|v| (0.5..=2.0).contains(*v)).count();
+        let p = within as f64 / n as f64;
+        println!(
+            "{scenario}: MSSE within 0.5-2 in {within}/{n} (binomial SE {:.1}), below {}, above {}; median {:.3}, range {:.3}-{:.3}; mean RMSE {:.2} h; mean door-20 error {:.1} %",
+            (n as f64 * p * (1.0 - p)).sqrt(),
+            m.iter().filter(|v| **v < 0.5).count(),
+            m.iter().filter(|v| **v > 2.0).count(),
+            m[m.len() / 2],
+            m[0],
+            m[m.len() - 1],
+            runs.iter().map(|o| o.rmse).sum::<f64>() / n as f64,
+            100.0 * runs.iter().map(|o| o.door20).sum::<f64>() / n as f64
+        );
+        assert!(m.iter().all(|v| v.is_finite()), "{scenario}: {m:?}");
+        if scenario == "truth_covariate.toml" {
+            assert!(10 * within >= 7 * n as usize, "{scenario}: {within}/{n} within 0.5-2");
+            assert!(m[m.len() - 1] <= 3.0, "{scenario}: largest MSSE {}", m[m.len() - 1]);
+        }
+    }
+}
