@@ -7,7 +7,9 @@
 //! the likelihood engine of [`crate::spatial::likelihood`]; [`compare`] turns a
 //! grid of ML fits into the verdict.
 
+pub mod bootstrap;
 pub mod compare;
+pub mod confounding;
 pub mod data;
 pub mod design;
 pub mod diagnostics;
@@ -16,6 +18,7 @@ pub mod gls;
 pub mod imputation;
 pub mod ols;
 pub mod progress;
+pub mod small_sample;
 pub mod stage;
 pub mod timings;
 pub mod verdict;

@@ -208,6 +208,8 @@ mod tests {
             best_by_aic: "base+cold | exponential".into(),
             // A tie margin other than the default, so that the check below sees it passed through.
             options: VerdictOptions { tie_delta: 3.0, ..VerdictOptions::default() },
+            calibration: Default::default(),
+            smooth_shares: vec![],
             trait_name: "h".into(),
             n_pots: 2,
             left_out: vec![],

@@ -26,6 +26,7 @@
 //! - `write`: `summary.json`, `comparison.csv`, `drivers.csv` and
 //!   `adjusted_means.csv`.
 
+mod calibrate;
 mod grid;
 mod headline;
 mod result;
@@ -34,6 +35,7 @@ mod summaries;
 mod uncertainty;
 mod write;
 
+pub use self::calibrate::{BOOTSTRAP_SKIP_P, Calibration, CalibrationStep, DriverTest};
 pub use self::grid::model_name;
 pub use self::headline::{
     Certainty, Headline, NextLogger, TYPICAL_SPAN, TypicalEffect, WEAK_MAP_RATIO, headline, percentile,
@@ -78,6 +80,7 @@ struct Doc {
 struct VerdictSection {
     tie_delta: Option<f64>,
     draws: Option<usize>,
+    bootstrap: Option<usize>,
 }
 
 /// Options of the verdict stage (`[verdict]` of the study file).
@@ -87,13 +90,27 @@ pub struct VerdictOptions {
     pub tie_delta: f64,
     /// Conditional simulations per mapped driver (`draws`, default 20, at least 2).
     pub draws: usize,
+    /// Replicates of the parametric bootstrap of the decisive
+    /// likelihood-ratio test (`bootstrap`, default 99; 0 turns it off).
+    pub bootstrap: usize,
     /// Seed of every random step (`[study] seed`).
     pub seed: u64,
 }
 
+/// Default replicates of the bootstrap of the decisive likelihood-ratio test:
+/// 99, so that `(1 + k) / (B + 1)` is a multiple of 0.01 and its Monte Carlo
+/// SE at p = 0.05 is 0.022 (common practice: Davison & Hinkley 1997, §4.2.5,
+/// recommend 99 as a minimum for a test at 5 %; from memory).
+pub const DEFAULT_BOOTSTRAP: usize = 99;
+
 impl Default for VerdictOptions {
     fn default() -> Self {
-        VerdictOptions { tie_delta: compare::DEFAULT_TIE_DELTA, draws: 20, seed: 1 }
+        VerdictOptions {
+            tie_delta: compare::DEFAULT_TIE_DELTA,
+            draws: 20,
+            bootstrap: DEFAULT_BOOTSTRAP,
+            seed: 1,
+        }
     }
 }
 
@@ -127,6 +144,9 @@ impl VerdictOptions {
                         .into());
                 }
                 o.draws = d;
+            }
+            if let Some(b) = v.bootstrap {
+                o.bootstrap = b;
             }
         }
         Ok(o)
@@ -260,7 +280,17 @@ pub fn analyse_with(
     let mut notes = Vec::new();
     let mut shared = Vec::new();
     let grid = fit_grid(data, spec, &full, &dist, &mut notes, &mut shared, progress)?;
-    let (ranked, verdict) = rank_and_decide(&grid, n, opts.tie_delta)?;
+    let all: Vec<&GridFit> = grid.iter().collect();
+    let (ranked, _) = rank_and_decide(&all, n, opts.tie_delta)?;
+    let (verdict, calibration, chosen_reml) = self::calibrate::calibrated_verdict(
+        data,
+        spec,
+        &grid,
+        &dist,
+        opts.tie_delta,
+        opts.bootstrap,
+        opts.seed,
+    )?;
     let by_name = |name: &str| -> &GridFit {
         grid.iter()
             .find(|g| model_name(&g.drivers, &g.errors) == name)
@@ -272,7 +302,10 @@ pub fn analyse_with(
     // The chosen model, refitted by REML.
     let chosen_ml = by_name(&verdict.chosen);
     let chosen_design = design_for(data, spec, &chosen_ml.drivers)?;
-    let chosen = fit(&chosen_design, data, &dist, chosen_ml.errors, LikelihoodKind::Reml)?;
+    let chosen = match chosen_reml {
+        Some(f) => f,
+        None => fit(&chosen_design, data, &dist, chosen_ml.errors, LikelihoodKind::Reml)?,
+    };
     let base_design = design_for(data, spec, &[])?;
     let plain = fit_independent(&base_design, &data.response, LikelihoodKind::Reml)?;
     let chosen_coefficients = (0..chosen.beta.len())
@@ -296,7 +329,33 @@ pub fn analyse_with(
     };
     let residual_check = residual_check(data, &chosen, moran_of(&chosen), &verdict.chosen);
 
-    let drivers = driver_summaries(data, &grid, &chosen, chosen_ml.errors, &verdict.chosen);
+    let mut drivers = driver_summaries(data, &grid, &chosen, chosen_ml.errors, &verdict.chosen);
+    for d in drivers.iter_mut() {
+        if let Some(t) = calibration.final_test(&d.name) {
+            d.se_small_sample = Some(t.se);
+            d.df_small_sample = Some(t.df);
+            d.p_small_sample = Some(t.p_value);
+            d.ci_low_small_sample = Some(t.ci.0);
+            d.ci_high_small_sample = Some(t.ci.1);
+        }
+    }
+    let smooth_shares = smooth_shares_of(data, spec, &grid, &chosen, &verdict.chosen, &dist)?;
+    for sh in &smooth_shares {
+        if let Some(d) = drivers.iter_mut().find(|d| d.name == sh.driver) {
+            d.smooth_share = Some(sh.share);
+        }
+        if sh.indistinguishable {
+            notes.push(format!(
+                "`{}` and the residual field cannot be told apart with this layout: {:.0} % of the driver's variation (beyond the design) lies along the {} smoothest patterns of the fitted residual correlation (`{}`), where a driver without spatial pattern would have {:.0} %; an effect of `{}` and a smooth unmeasured effect are the same thing to these data",
+                sh.driver,
+                100.0 * sh.share,
+                sh.eigenvectors,
+                sh.correlation_model,
+                100.0 * sh.expected_without_pattern,
+                sh.driver
+            ));
+        }
+    }
     let openings = openings_summary(&drivers);
     let adjusted_means = adjusted_means(data, spec, &chosen_design, &chosen, &base_design, &plain);
     let positions = (0..n).map(|i| (data.pots[i].clone(), data.x[i], data.y[i])).collect();
@@ -328,6 +387,8 @@ pub fn analyse_with(
         openings,
         adjusted_means,
         headline: None,
+        calibration,
+        smooth_shares,
         notes,
         n_fits: grid.len() + 2,
         seconds: start.elapsed().as_secs_f64(),
@@ -342,6 +403,32 @@ pub fn analyse_with(
         plain_anova: super::ols::anova(&base_design, &data.response, super::ols::SsType::Hierarchical).ok(),
         mapping_notes: Vec::new(),
     })
+}
+
+/// The smooth share of every driver ([`crate::model::confounding`]) against
+/// the chosen model's correlation (REML) when it has one, else the best
+/// correlated base model of the grid (ML); empty when no correlation was fitted.
+fn smooth_shares_of(
+    data: &ModelData,
+    spec: &ModelSpec,
+    grid: &[GridFit],
+    chosen: &Fit,
+    chosen_name: &str,
+    dist: &Distances,
+) -> Result<Vec<crate::model::confounding::SmoothShare>> {
+    let (params, model) = match chosen.covariance {
+        Some(c) => (c.params, chosen_name.to_string()),
+        None => match grid
+            .iter()
+            .filter(|g| g.drivers.is_empty() && g.fit.covariance.is_some())
+            .min_by(|a, b| a.fit.aic.total_cmp(&b.fit.aic))
+        {
+            Some(g) => (g.fit.covariance.expect("filtered").params, model_name(&g.drivers, &g.errors)),
+            None => return Ok(Vec::new()),
+        },
+    };
+    let base = design_for(data, spec, &[])?;
+    Ok(crate::model::confounding::smooth_shares(dist, &params, &model, &base.x, &data.drivers))
 }
 
 /// The timing row of one fit (an independent fit is closed form: no

@@ -154,6 +154,20 @@ pub struct DriverSummary {
     pub vif: Option<f64>,
     /// Effect vanishes once correlation is modelled (rule in docs/verdict.md).
     pub confounded: bool,
+    /// Small-sample corrected SE (Kenward–Roger with correlated errors) in the
+    /// chosen model; `None` when the driver is not in it.
+    pub se_small_sample: Option<f64>,
+    /// Its denominator degrees of freedom.
+    pub df_small_sample: Option<f64>,
+    /// Its p-value.
+    pub p_small_sample: Option<f64>,
+    /// Share of the driver's variation (beyond the design) along the smoothest
+    /// patterns of the fitted residual correlation; `None` without one.
+    pub smooth_share: Option<f64>,
+    /// 95 % CI lower end from the corrected SE and df.
+    pub ci_low_small_sample: Option<f64>,
+    /// 95 % CI upper end.
+    pub ci_high_small_sample: Option<f64>,
 }
 
 /// Measured climate against plain distance to the openings.
@@ -237,6 +251,12 @@ pub struct VerdictResult {
     /// what next); set by [`super::headline::headline`] once the mapping
     /// uncertainty is known.
     pub headline: Option<super::headline::Headline>,
+    /// How the chosen model's drivers were calibrated (small-sample tests,
+    /// bootstrap of the decisive likelihood-ratio test, drivers set aside).
+    pub calibration: super::calibrate::Calibration,
+    /// Each driver's share of variation along the smoothest patterns of the
+    /// fitted residual correlation ([`crate::model::confounding`]).
+    pub smooth_shares: Vec<crate::model::confounding::SmoothShare>,
     /// Notes (skipped fits, mapping uncertainty not computed, ...).
     pub notes: Vec<String>,
     /// Fits made.

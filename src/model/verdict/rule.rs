@@ -11,7 +11,7 @@ use crate::spatial::likelihood::LikelihoodKind;
 
 /// Rank the grid's ML fits of `n` pots by AIC and decide the verdict with the
 /// tie margin `tie_delta` (AIC units).
-pub(super) fn rank_and_decide(grid: &[GridFit], n: usize, tie_delta: f64) -> Result<(Vec<Ranked>, Verdict)> {
+pub(super) fn rank_and_decide(grid: &[&GridFit], n: usize, tie_delta: f64) -> Result<(Vec<Ranked>, Verdict)> {
     let cands: Vec<Candidate> = grid
         .iter()
         .map(|g| {

@@ -125,6 +125,12 @@ pub(super) fn driver_summaries(
             p_with_correlation: p_corr,
             vif,
             confounded,
+            se_small_sample: None,
+            df_small_sample: None,
+            p_small_sample: None,
+            smooth_share: None,
+            ci_low_small_sample: None,
+            ci_high_small_sample: None,
         });
     }
     drivers

@@ -80,6 +80,12 @@ pub fn drivers_csv(r: &VerdictResult) -> String {
         "se_with_mapping_uncertainty",
         "ci_low_with_mapping_uncertainty",
         "ci_high_with_mapping_uncertainty",
+        "se_small_sample",
+        "df_small_sample",
+        "p_small_sample",
+        "ci_low_small_sample",
+        "ci_high_small_sample",
+        "smooth_share",
     ]);
     for d in &r.drivers {
         t.row([
@@ -103,6 +109,12 @@ pub fn drivers_csv(r: &VerdictResult) -> String {
             opt(d.se_with_mapping_uncertainty),
             opt(d.ci_low_with_mapping_uncertainty),
             opt(d.ci_high_with_mapping_uncertainty),
+            opt(d.se_small_sample),
+            opt(d.df_small_sample),
+            opt(d.p_small_sample),
+            opt(d.ci_low_small_sample),
+            opt(d.ci_high_small_sample),
+            opt(d.smooth_share),
         ]);
     }
     t.into_string()
