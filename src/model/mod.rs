@@ -17,6 +17,7 @@ pub mod imputation;
 pub mod ols;
 pub mod progress;
 pub mod stage;
+pub mod structures;
 pub mod timings;
 pub mod verdict;
 
