@@ -451,7 +451,7 @@ pub fn describe(p: &RowColParams, nugget: bool) -> String {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use approx::assert_relative_eq;
 
@@ -569,6 +569,59 @@ mod tests {
         assert!(e.contains("not equally spaced") && e.contains("x (columns)"), "{e}");
         let e = Lattice::from_coords(&[0.0, 0.0], &[0.0, 0.0]).unwrap_err();
         assert!(e.contains("share row 1 and column 1"), "{e}");
+    }
+
+    /// A separable AR(1) x AR(1) field on a complete `nr x nc` lattice in
+    /// row-major order, drawn by the recursions
+    /// `z_t = phi z_(t-1) + sqrt(1 - phi^2) e_t` along the columns and then
+    /// along the rows (`(L_r ⊗ L_c) e`), unit variance.
+    pub(crate) fn simulate_field(nr: usize, nc: usize, pr: f64, pc: f64, seed: u64) -> Vec<f64> {
+        use rand::SeedableRng;
+        use rand_distr::{Distribution, StandardNormal};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+        let mut z: Vec<f64> = (0..nr * nc).map(|_| StandardNormal.sample(&mut rng)).collect();
+        let (sr, sc) = ((1.0 - pr * pr).sqrt(), (1.0 - pc * pc).sqrt());
+        for r in 0..nr {
+            for c in 1..nc {
+                z[r * nc + c] = pc * z[r * nc + c - 1] + sc * z[r * nc + c];
+            }
+        }
+        for c in 0..nc {
+            for r in 1..nr {
+                z[r * nc + c] = pr * z[(r - 1) * nc + c] + sr * z[r * nc + c];
+            }
+        }
+        z
+    }
+
+    /// Parameter recovery: 24 seeded 12 x 10 lattices with row correlation
+    /// 0.7 and column correlation 0.3 (plus a mean of 5); the ML estimates
+    /// fall within 0.15 of the truth for most seeds (counts printed). The
+    /// threshold is common practice for n = 120, not a published value.
+    #[test]
+    fn recovery_over_seeds() {
+        let (nr, nc) = (12usize, 10usize);
+        let n = nr * nc;
+        let lat = Lattice::from_indices((0..n).map(|k| k / nc).collect(), (0..n).map(|k| k % nc).collect())
+            .unwrap();
+        let x = vec![vec![1.0; n]];
+        let (mut row_ok, mut col_ok, mut sum_r, mut sum_c) = (0, 0, 0.0, 0.0);
+        let seeds = 24u64;
+        for seed in 0..seeds {
+            let y: Vec<f64> = simulate_field(nr, nc, 0.7, 0.3, 1000 + seed).iter().map(|v| 5.0 + v).collect();
+            let m = maximise(&lat, &x, &y, LikelihoodKind::Reml, false, 0.99).unwrap();
+            assert!(m.kronecker);
+            row_ok += usize::from((m.params.phi_row - 0.7).abs() < 0.15);
+            col_ok += usize::from((m.params.phi_col - 0.3).abs() < 0.15);
+            sum_r += m.params.phi_row;
+            sum_c += m.params.phi_col;
+        }
+        eprintln!(
+            "rows x columns recovery over {seeds} seeds: row within 0.15 in {row_ok}, column in {col_ok}; mean estimates {:.3}, {:.3}",
+            sum_r / seeds as f64,
+            sum_c / seeds as f64
+        );
+        assert!(row_ok >= 18 && col_ok >= 18, "row {row_ok}, column {col_ok} of {seeds}");
     }
 
     /// The search reaches the numpy optimum of the fixture (scipy.optimize
