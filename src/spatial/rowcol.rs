@@ -462,7 +462,10 @@ pub(crate) mod tests {
 
     /// The committed data set of tests/reference/rowcol.py: row, column, one
     /// covariate and the response, per pot (rows with `keep = 0` are the gaps).
-    fn data() -> (Vec<usize>, Vec<usize>, Vec<f64>, Vec<f64>, Vec<bool>) {
+    /// Row, column, covariate, response and the keep flag of each pot.
+    type Columns = (Vec<usize>, Vec<usize>, Vec<f64>, Vec<f64>, Vec<bool>);
+
+    fn data() -> Columns {
         let p = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/data/rowcol.csv");
         let mut r = csv::Reader::from_path(p).unwrap();
         let (mut row, mut col, mut x, mut y, mut keep) = (vec![], vec![], vec![], vec![], vec![]);
