@@ -43,6 +43,8 @@ struct ModelSection {
     correlations: Option<Vec<String>>,
     nugget: Option<bool>,
     trait_unit: Option<String>,
+    rows_columns: Option<bool>,
+    directional: Option<Vec<String>>,
 }
 
 /// The validated `[model]` section.
@@ -64,6 +66,10 @@ pub struct ModelSpec {
     pub nugget: bool,
     /// Unit of the trait (`"g"`, `"cm"`), for labels only; `None` when not given.
     pub trait_unit: Option<String>,
+    /// Also fit rows x columns errors on the pots' grid (default false).
+    pub rows_columns: bool,
+    /// Families also fitted with a direction-dependent range (default none).
+    pub directional: Vec<Family>,
 }
 
 impl ModelSpec {
@@ -96,6 +102,21 @@ impl ModelSpec {
                 })
                 .collect::<Result<Vec<_>>>()?,
         };
+        let directional = m
+            .directional
+            .iter()
+            .flatten()
+            .enumerate()
+            .map(|(i, s)| {
+                Family::parse(s).map_err(|e| {
+                    ModelError::from(study.invalid(
+                        &format!("model.directional[{i}]"),
+                        e,
+                        Some("name a distance family to fit with a direction-dependent range, e.g. directional = [\"exponential\"]".into()),
+                    ))
+                })
+            })
+            .collect::<Result<Vec<_>>>()?;
         let mut seen = std::collections::HashSet::new();
         for name in blocks.iter().chain(&m.factors).chain(&m.drivers).chain(std::iter::once(&m.trait_column))
         {
@@ -140,6 +161,8 @@ impl ModelSpec {
             correlations,
             nugget: m.nugget.unwrap_or(true),
             trait_unit: m.trait_unit.map(|u| u.trim().to_string()).filter(|u| !u.is_empty()),
+            rows_columns: m.rows_columns.unwrap_or(false),
+            directional,
         })
     }
 }

@@ -22,9 +22,11 @@ use super::compare::{Criteria, information_criteria};
 use super::design::Design;
 use super::error::{ModelError, Result};
 use super::ols::{f_p, fit_least_squares, t_p};
+use crate::spatial::anisotropy::{self, Direction};
 use crate::spatial::correlation::Family;
 use crate::spatial::factor::{LeastSquares, small_spd};
 use crate::spatial::likelihood::{self, CovParams, Distances, LikelihoodKind, Profiled, SearchOptions};
+use crate::spatial::rowcol::{self, Lattice, RowColParams};
 
 /// The residual covariance of a fit.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -38,6 +40,20 @@ pub enum Errors {
         /// Whether the nugget share was estimated (else fixed at 0).
         nugget: bool,
     },
+    /// `sigma2 [(1 - eta) phi_r^|dr| phi_c^|dc| + eta I]` on the rows and
+    /// columns of the pots' lattice ([`crate::spatial::rowcol`]).
+    RowsColumns {
+        /// Whether the nugget share was estimated (else fixed at 0).
+        nugget: bool,
+    },
+    /// A distance family with a direction-dependent range
+    /// ([`crate::spatial::anisotropy`]).
+    Directional {
+        /// Family.
+        family: Family,
+        /// Whether the nugget share was estimated (else fixed at 0).
+        nugget: bool,
+    },
 }
 
 impl Errors {
@@ -46,33 +62,91 @@ impl Errors {
         match self {
             Errors::Independent => "none".into(),
             Errors::Correlated { family, .. } => family.name(),
+            Errors::RowsColumns { .. } => ROWS_COLUMNS.into(),
+            Errors::Directional { family, .. } => format!("{}{DIRECTIONAL_SUFFIX}", family.name()),
+        }
+    }
+
+    /// The structure in plain words, without its estimates: `exponential`,
+    /// `rows x columns`, `direction-dependent exponential`.
+    pub fn plain_name(&self) -> String {
+        match self {
+            Errors::Independent => "independent".into(),
+            Errors::Correlated { family, .. } => family.name(),
+            Errors::RowsColumns { .. } => "rows x columns".into(),
+            Errors::Directional { family, .. } => format!("direction-dependent {}", family.name()),
         }
     }
 
     /// Whether a nugget share is estimated.
     pub fn has_nugget(&self) -> bool {
-        matches!(self, Errors::Correlated { nugget: true, .. })
+        matches!(
+            self,
+            Errors::Correlated { nugget: true, .. }
+                | Errors::RowsColumns { nugget: true }
+                | Errors::Directional { nugget: true, .. }
+        )
     }
 
-    /// Number of covariance parameters besides sigma² (range, nugget share).
+    /// Number of covariance parameters besides sigma²: range (distance
+    /// families), row and column correlations (rows x columns), range, angle
+    /// and ratio of ranges (direction-dependent), plus the nugget share when
+    /// fitted.
     pub fn n_cov_params(&self) -> usize {
         match self {
             Errors::Independent => 0,
             Errors::Correlated { nugget, .. } => 1 + usize::from(*nugget),
+            Errors::RowsColumns { nugget } => 2 + usize::from(*nugget),
+            Errors::Directional { nugget, .. } => 3 + usize::from(*nugget),
         }
     }
 
-    /// A short label: `independent`, `exponential`, `exponential+nugget`.
+    /// A short label: `independent`, `exponential`, `exponential+nugget`,
+    /// `rows_x_columns`, `exponential_directional+nugget`.
     pub fn label(&self) -> String {
+        let with = |name: String, nugget: bool| if nugget { format!("{name}+nugget") } else { name };
         match self {
             Errors::Independent => "independent".into(),
-            Errors::Correlated { family, nugget } => {
-                if *nugget {
-                    format!("{}+nugget", family.name())
-                } else {
-                    family.name()
-                }
+            Errors::Correlated { family, nugget } => with(family.name(), *nugget),
+            Errors::RowsColumns { nugget } => with(ROWS_COLUMNS.into(), *nugget),
+            Errors::Directional { family, nugget } => {
+                with(format!("{}{DIRECTIONAL_SUFFIX}", family.name()), *nugget)
             }
+        }
+    }
+}
+
+/// The name of the rows x columns structure in labels and outputs.
+pub const ROWS_COLUMNS: &str = "rows_x_columns";
+
+/// Appended to a family's name for its direction-dependent form.
+pub const DIRECTIONAL_SUFFIX: &str = "_directional";
+
+/// The estimates of a rows x columns or direction-dependent fit.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Structure {
+    /// Rows x columns: the parameters and the lattice they apply to.
+    RowsColumns {
+        /// Row and column correlations, nugget share.
+        params: RowColParams,
+        /// The pots' rows and columns.
+        lattice: Lattice,
+    },
+    /// Direction-dependent: family, range along the direction, nugget share, and the direction.
+    Directional {
+        /// Family, range parameter along the direction of greatest continuity, nugget share.
+        params: CovParams,
+        /// Angle and ratio of ranges.
+        direction: Direction,
+    },
+}
+
+impl Structure {
+    /// The estimates in plain words (see [`rowcol::describe`], [`anisotropy::describe`]).
+    pub fn describe(&self) -> String {
+        match self {
+            Structure::RowsColumns { params, .. } => rowcol::describe(params, params.eta > 0.0),
+            Structure::Directional { params, direction } => anisotropy::describe(params, direction),
         }
     }
 }
@@ -165,6 +239,8 @@ pub struct Fit {
     pub aicc: Option<f64>,
     /// Search report (`None` for independent errors: closed form).
     pub search: Option<Search>,
+    /// Estimates of a rows x columns or direction-dependent fit (`None` otherwise).
+    pub structure: Option<Structure>,
     /// Fitted values `X beta`.
     pub fitted: Vec<f64>,
     /// Raw residuals `y - X beta`.
@@ -259,6 +335,7 @@ fn assemble(
             nugget_variance: prof.params.eta * prof.sigma2,
             practical_range: family.practical_range(prof.params.range),
         }),
+        Errors::RowsColumns { .. } | Errors::Directional { .. } => None,
     };
     Fit {
         method,
@@ -279,6 +356,7 @@ fn assemble(
         bic,
         aicc,
         search,
+        structure: None,
         fitted,
         residuals,
         normalised,
@@ -493,6 +571,164 @@ pub fn finish_correlated(
         whitened_x,
         Some(search),
     ))
+}
+
+/// The positions of `dist` or an error naming `model` (the new structures
+/// need planar coordinates, not only distances).
+fn positions<'a>(model: &str, dist: &'a Distances) -> Result<(&'a [f64], &'a [f64])> {
+    dist.coords().ok_or_else(|| ModelError::Likelihood {
+        model: model.to_string(),
+        source: likelihood::LikelihoodError::Invalid(
+            "this residual structure needs the pots' x and y positions".into(),
+        ),
+        hint: None,
+    })
+}
+
+/// The whitened solves of a fit at a given lower Cholesky factor `l`.
+#[allow(clippy::too_many_arguments)]
+fn finish_with_factor(
+    model: &str,
+    design: &Design,
+    y: &[f64],
+    l: &faer::Mat<f64>,
+    params: CovParams,
+    errors: Errors,
+    method: LikelihoodKind,
+    search: Search,
+    structure: Structure,
+) -> Result<Fit> {
+    let lerr = |source| ModelError::Likelihood { model: model.to_string(), source, hint: None };
+    let prof = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x, y, method).map_err(lerr)?;
+    let prof_sum =
+        likelihood::profiled_with_factor(l.as_ref(), &params, &design.x_sum, y, method).map_err(lerr)?;
+    let n = y.len();
+    let mut wx = faer::Mat::from_fn(n, design.p(), |i, j| design.x[j][i]);
+    likelihood::whiten(l.as_ref(), &mut wx);
+    let whitened_x = (0..design.p()).map(|j| wx.col_as_slice(j).to_vec()).collect();
+    let mut fit = assemble(
+        design,
+        y,
+        method,
+        errors,
+        &prof,
+        (prof_sum.beta.as_slice(), prof_sum.xtvx_inv.as_slice()),
+        whitened_x,
+        Some(search),
+    );
+    fit.structure = Some(structure);
+    Ok(fit)
+}
+
+/// Fit with rows x columns errors ([`crate::spatial::rowcol`]) on the
+/// lattice of the pots' positions (refused, with the reason, when they do not
+/// form an exact grid): the search uses the Kronecker path on a complete
+/// lattice without nugget, the final estimates one dense factorisation.
+pub fn fit_rows_columns(
+    model: &str,
+    design: &Design,
+    y: &[f64],
+    dist: &Distances,
+    nugget: bool,
+    method: LikelihoodKind,
+) -> Result<Fit> {
+    let lerr =
+        |source, hint: Option<String>| ModelError::Likelihood { model: model.to_string(), source, hint };
+    let (px, py) = positions(model, dist)?;
+    let lattice = Lattice::from_coords(px, py).map_err(|e| {
+        lerr(
+            likelihood::LikelihoodError::Invalid(format!("the pots do not stand on a grid: {e}")),
+            Some("rows x columns needs pots on equally spaced rows and columns".into()),
+        )
+    })?;
+    let t = std::time::Instant::now();
+    let f0 = crate::spatial::factor::factorisations_on_this_thread();
+    let max = rowcol::maximise(&lattice, &design.x, y, method, nugget, SearchOptions::default().eta_max)
+        .map_err(|e| lerr(e, None))?;
+    let l = rowcol::cholesky(&lattice, &max.params).map_err(|e| lerr(e, None))?;
+    let search = Search {
+        converged: max.converged,
+        evaluations: max.evaluations,
+        factorisations: (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize,
+        seconds: t.elapsed().as_secs_f64(),
+        at_bounds: max.at_bounds.clone(),
+        range_bounds: (f64::NAN, f64::NAN),
+        other_optimum: None,
+    };
+    let params = CovParams { family: Family::Exponential, range: 1.0, eta: max.params.eta };
+    finish_with_factor(
+        model,
+        design,
+        y,
+        &l,
+        params,
+        Errors::RowsColumns { nugget },
+        method,
+        search,
+        Structure::RowsColumns { params: max.params, lattice },
+    )
+}
+
+/// Fit with direction-dependent errors ([`crate::spatial::anisotropy`]):
+/// the isotropic search, then the simplex over range, nugget share, angle
+/// and ratio of ranges.
+#[allow(clippy::too_many_arguments)]
+pub fn fit_directional(
+    model: &str,
+    design: &Design,
+    y: &[f64],
+    dist: &Distances,
+    family: Family,
+    nugget: bool,
+    method: LikelihoodKind,
+) -> Result<Fit> {
+    let lerr = |source| ModelError::Likelihood { model: model.to_string(), source, hint: None };
+    let (px, py) = positions(model, dist)?;
+    let t = std::time::Instant::now();
+    let f0 = crate::spatial::factor::factorisations_on_this_thread();
+    let opts = SearchOptions { nugget, ..SearchOptions::default() };
+    let max = anisotropy::maximise((px, py), family, &design.x, y, method, &opts).map_err(lerr)?;
+    let d = anisotropy::distances(px, py, &max.direction).map_err(lerr)?;
+    let l = likelihood::cholesky(&d, &max.params).map_err(lerr)?;
+    let search = Search {
+        converged: max.converged,
+        evaluations: max.evaluations,
+        factorisations: (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize,
+        seconds: t.elapsed().as_secs_f64(),
+        at_bounds: max.at_bounds.clone(),
+        range_bounds: max.range_bounds,
+        other_optimum: None,
+    };
+    finish_with_factor(
+        model,
+        design,
+        y,
+        &l,
+        max.params,
+        Errors::Directional { family, nugget },
+        method,
+        search,
+        Structure::Directional { params: max.params, direction: max.direction },
+    )
+}
+
+/// The lower Cholesky factor of the fitted residual correlation matrix `V`
+/// of `fit` over the pots of `dist` (`None` for independent errors).
+pub fn residual_cholesky(
+    fit: &Fit,
+    dist: &Distances,
+) -> std::result::Result<Option<faer::Mat<f64>>, likelihood::LikelihoodError> {
+    match (&fit.structure, &fit.covariance) {
+        (Some(Structure::RowsColumns { params, lattice }), _) => rowcol::cholesky(lattice, params).map(Some),
+        (Some(Structure::Directional { params, direction }), _) => {
+            let (x, y) = dist.coords().ok_or_else(|| {
+                likelihood::LikelihoodError::Invalid("direction-dependent errors need positions".into())
+            })?;
+            likelihood::cholesky(&anisotropy::distances(x, y, direction)?, params).map(Some)
+        }
+        (None, Some(c)) => likelihood::cholesky(dist, &c.params).map(Some),
+        (None, None) => Ok(None),
+    }
 }
 
 #[cfg(test)]

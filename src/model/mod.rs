@@ -20,6 +20,7 @@ pub mod ols;
 pub mod progress;
 pub mod small_sample;
 pub mod stage;
+pub mod structures;
 pub mod timings;
 pub mod verdict;
 

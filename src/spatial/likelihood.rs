@@ -152,6 +152,14 @@ impl Distances {
         Ok(Distances::Matrix { n, d })
     }
 
+    /// The planar coordinates, when the distances were made from them.
+    pub fn coords(&self) -> Option<(&[f64], &[f64])> {
+        match self {
+            Distances::Coords { x, y } => Some((x, y)),
+            Distances::Matrix { .. } => None,
+        }
+    }
+
     /// Number of observations.
     pub fn len(&self) -> usize {
         match self {
@@ -337,7 +345,11 @@ pub(super) fn stack_xy(x: &[Vec<f64>], y: &[f64]) -> Mat<f64> {
 }
 
 pub(super) fn check_sizes(dist: &Distances, x: &[Vec<f64>], y: &[f64]) -> Result<(), LikelihoodError> {
-    let n = dist.len();
+    check_sizes_n(dist.len(), x, y)
+}
+
+/// [`check_sizes`] for `n` observations whatever their positions.
+pub(super) fn check_sizes_n(n: usize, x: &[Vec<f64>], y: &[f64]) -> Result<(), LikelihoodError> {
     if y.len() != n || x.iter().any(|c| c.len() != n) {
         return Err(LikelihoodError::Invalid(format!("X, y and the distances disagree on n = {n}")));
     }

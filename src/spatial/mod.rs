@@ -11,6 +11,7 @@
 //! sensor series and indicator definitions of [`crate::climate`] and is used by
 //! [`crate::model`] (which shares [`correlation`]) and [`crate::simulate`].
 
+pub mod anisotropy;
 pub mod ascent;
 pub mod config;
 pub mod correlation;
@@ -25,6 +26,7 @@ pub mod mapping;
 pub mod optimise;
 pub mod outputs;
 pub mod placement;
+pub mod rowcol;
 pub mod selfcheck;
 pub mod spectral;
 pub mod stage;

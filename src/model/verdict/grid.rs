@@ -7,7 +7,9 @@ use super::DISTANCE_PREFIX;
 use crate::model::data::{ModelData, ModelSpec};
 use crate::model::design::{Design, DesignSpec};
 use crate::model::error::{ModelError, Result};
-use crate::model::gls::{Errors, Fit, fit_correlated, fit_correlated_shared, fit_independent};
+use crate::model::gls::{
+    Errors, Fit, fit_correlated, fit_correlated_shared, fit_directional, fit_independent, fit_rows_columns,
+};
 pub use crate::model::timings::SharedGrid;
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
 
@@ -56,6 +58,23 @@ pub(super) fn fit(
             &data.response,
             dist,
             &data.pots,
+            family,
+            nugget,
+            method,
+        ),
+        Errors::RowsColumns { nugget } => fit_rows_columns(
+            &model_name(&design.drivers, &errors),
+            design,
+            &data.response,
+            dist,
+            nugget,
+            method,
+        ),
+        Errors::Directional { family, nugget } => fit_directional(
+            &model_name(&design.drivers, &errors),
+            design,
+            &data.response,
+            dist,
             family,
             nugget,
             method,
@@ -120,6 +139,7 @@ pub(super) fn fit_grid(
             error_models.push(Errors::Correlated { family, nugget: true });
         }
     }
+    crate::model::structures::add_to_grid(spec, data, coincident, &mut error_models, notes);
     let total = driver_sets.len() * error_models.len();
     let counter = crate::model::progress::Counter::begin(progress, "comparison grid (ML fits)", total);
     let designs: Vec<Design> = driver_sets
@@ -142,7 +162,7 @@ pub(super) fn fit_grid(
     let run_task = |k: usize| -> Result<Task> {
         let errors = error_models[k];
         match errors {
-            Errors::Independent => Ok((
+            Errors::Independent | Errors::RowsColumns { .. } | Errors::Directional { .. } => Ok((
                 designs
                     .iter()
                     .map(|d| {

@@ -372,7 +372,7 @@ pub fn analyse_with(
     };
     Ok(VerdictResult {
         verdict: verdict.verdict.word().into(),
-        reason: verdict.reason.clone(),
+        reason: crate::model::structures::with_structure(&verdict.reason, &chosen_ml.fit),
         best_model: verdict.chosen.clone(),
         best_by_aic: verdict.best_by_aic.clone(),
         options: opts.clone(),

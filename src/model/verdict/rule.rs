@@ -23,6 +23,9 @@ pub(super) fn rank_and_decide(grid: &[&GridFit], n: usize, tie_delta: f64) -> Re
                     correlation: match g.errors {
                         Errors::Independent => None,
                         Errors::Correlated { family, .. } => Some(family.name()),
+                        Errors::RowsColumns { .. } | Errors::Directional { .. } => {
+                            Some(g.errors.plain_name())
+                        }
                     },
                     nugget: g.errors.has_nugget(),
                 },

@@ -34,6 +34,8 @@ fn spec(drivers: &[&str]) -> ModelSpec {
         correlations: vec![Family::Exponential],
         nugget: true,
         trait_unit: None,
+        rows_columns: false,
+        directional: vec![],
     }
 }
 

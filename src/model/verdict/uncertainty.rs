@@ -188,7 +188,6 @@ pub fn impute_and_pool(
     progress: &dyn crate::model::progress::FitProgress,
 ) -> Result<MappingDraws> {
     use crate::spatial::kriging::signal_kriging;
-    use crate::spatial::likelihood::cholesky;
     use rand::SeedableRng;
     let name = sv.name.as_str();
     let bad =
@@ -226,12 +225,8 @@ pub fn impute_and_pool(
         .iter()
         .position(|c| c == name)
         .ok_or_else(|| bad("not in the chosen model".into(), None))?;
-    let chol_r = match &plug.covariance {
-        Some(cov) => {
-            Some(cholesky(&dist, &cov.params).map_err(|e| lerr(&model_name(&shape.0, &shape.1), e))?)
-        }
-        None => None,
-    };
+    let chol_r = crate::model::gls::residual_cholesky(&plug, &dist)
+        .map_err(|e| lerr(&model_name(&shape.0, &shape.1), e))?;
     let other: Vec<Vec<f64>> = (0..design.p()).filter(|&k| k != c).map(|k| design.x[k].clone()).collect();
     let imputer = Imputer::new(name, mu, &s, chol_r.as_ref(), &other, &data.response)?;
     let start = TraitParams {
