@@ -14,10 +14,12 @@ pub mod diagnostics;
 pub mod error;
 pub mod gls;
 pub mod imputation;
+pub mod intervals;
 pub mod ols;
 pub mod progress;
 pub mod stage;
 pub mod timings;
+pub mod two_stage;
 pub mod verdict;
 
 pub use error::ModelError;
