@@ -255,8 +255,15 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
                     &climate,
                     &map,
                 );
-                files.extend(crate::model::intervals::write_outputs(study, &s)?);
-                summary.push_str(&format!("; {} interval fit(s) of repeated scorings", s.intervals.len()));
+                // A single scoring time has no interval: nothing is written,
+                // so the outputs are exactly those of a study without [scores].
+                if s.intervals.is_empty() {
+                    summary.push_str(&format!("; repeated scorings: {}", s.notes.join("; ")));
+                } else {
+                    files.extend(crate::model::intervals::write_outputs(study, &s)?);
+                    summary
+                        .push_str(&format!("; {} interval fit(s) of repeated scorings", s.intervals.len()));
+                }
                 Some(s)
             }
             None => None,
