@@ -112,6 +112,27 @@ pub fn run(a: CheckArgs) -> anyhow::Result<()> {
             ids.join(", ")
         );
     }
+    if let Some(sc) = &plan.scores {
+        let missing: usize = sc.missing.iter().map(|m| m.lines.len()).sum();
+        let intervals = sc.intervals(&plan.pots.ids).intervals.len();
+        outln!(
+            "scores: {} row(s) of {} at {} time(s), traits {}, {intervals} interval(s) ({}), {missing} missing value(s)",
+            sc.rows.len(),
+            sc.path.display(),
+            sc.n_times(),
+            sc.traits.join(", "),
+            sc.rule.name()
+        );
+        for m in sc.missing.iter().filter(|m| !m.lines.is_empty()) {
+            let shown: Vec<String> = m.lines.iter().take(10).map(|l| l.to_string()).collect();
+            outln!(
+                "  `{}` missing on line(s) {}{}",
+                m.trait_name,
+                shown.join(", "),
+                if m.lines.len() > 10 { ", ..." } else { "" }
+            );
+        }
+    }
     print_model(&plan)?;
     if warnings == 0 && inv.unknown_sensors.is_empty() {
         indicators_in_memory(&study, &plan)

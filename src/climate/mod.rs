@@ -28,6 +28,7 @@ pub mod config;
 pub mod error;
 pub mod exceedance;
 pub mod indicator;
+pub mod intervals;
 pub mod psychro;
 pub mod regular;
 pub mod stage;

@@ -21,6 +21,7 @@ pub mod logs;
 pub mod output;
 pub mod provenance;
 pub mod qc;
+pub mod scores;
 pub mod study;
 pub mod table;
 pub mod units;

@@ -2,7 +2,8 @@
 //! analysis. Paths inside it are relative to the folder of the study file.
 //!
 //! This module parses the sections the input stage owns (`[study]`,
-//! `[compartment]`, `[pots]`, `[sensors]`, `[[logs]]`, `[[openings]]`, `[qc]`)
+//! `[compartment]`, `[pots]`, `[sensors]`, `[[logs]]`, `[[openings]]`, `[qc]`,
+//! `[scores]`)
 //! with unknown keys rejected. Sections owned by later stages (`[climate]`,
 //! `[[indicator]]`, `[mapping]`, `[model]`, `[verdict]`, `[report]`) are
 //! accepted here as opaque tables and parsed by their stage through
@@ -36,6 +37,9 @@ pub struct StudySpec {
     /// `[[openings]]`: doors, vents, windows, pads, as segments.
     #[serde(default)]
     pub openings: Vec<Opening>,
+    /// `[scores]`: repeated scorings of traits (see `io::scores`).
+    #[serde(default)]
+    pub scores: Option<super::scores::ScoresSection>,
     /// `[qc]`: thresholds of the quality-control rules (see `io::qc`).
     #[serde(default)]
     pub qc: super::qc::QcSettings,

@@ -16,12 +16,14 @@ pub mod diagnostics;
 pub mod error;
 pub mod gls;
 pub mod imputation;
+pub mod intervals;
 pub mod ols;
 pub mod progress;
 pub mod small_sample;
 pub mod stage;
 pub mod structures;
 pub mod timings;
+pub mod two_stage;
 pub mod verdict;
 
 pub use error::ModelError;

@@ -175,6 +175,8 @@ pub struct RunResults {
     pub map: MapRun,
     /// The verdict stage's result.
     pub verdict: VerdictResult,
+    /// The repeated-scorings analysis (`None` without `[scores]`).
+    pub scores: Option<crate::model::intervals::ScoresRun>,
     /// What the report shows.
     pub report: ReportData,
     /// `report.html`.
@@ -239,9 +241,36 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
             .push(StageTime { stage: Stage::Verdict.name().to_string(), seconds: t.elapsed().as_secs_f64() });
         verdict.timings.stages = std::mem::take(&mut stage_times);
         files.extend(crate::model::verdict::write_outputs(study, &verdict)?);
-        let summary = format!("verdict: {} ({} fits): {}", verdict.verdict, verdict.n_fits, verdict.reason);
-        Ok((verdict, summary))
+        let mut summary =
+            format!("verdict: {} ({} fits): {}", verdict.verdict, verdict.n_fits, verdict.reason);
+        // Repeated scorings: the grid per interval, then across intervals.
+        let scores = match &plan.scores {
+            Some(sc) => {
+                let s = crate::model::intervals::analyse_scores(
+                    study,
+                    sc,
+                    &plan.pots,
+                    &plan.model,
+                    &plan.verdict,
+                    &climate,
+                    &map,
+                );
+                // A single scoring time has no interval: nothing is written,
+                // so the outputs are exactly those of a study without [scores].
+                if s.intervals.is_empty() {
+                    summary.push_str(&format!("; repeated scorings: {}", s.notes.join("; ")));
+                } else {
+                    files.extend(crate::model::intervals::write_outputs(study, &s)?);
+                    summary
+                        .push_str(&format!("; {} interval fit(s) of repeated scorings", s.intervals.len()));
+                }
+                Some(s)
+            }
+            None => None,
+        };
+        Ok(((verdict, scores), summary))
     })?;
+    let (verdict, scores) = verdict;
 
     let (report, report_files) = in_stage(Stage::Report, progress, || {
         let data = report_data(study, &plan, &ing, &climate, &map, &verdict, &started, t0);
@@ -258,6 +287,7 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
         climate,
         map,
         verdict,
+        scores,
         report,
         report_path,
         files,

@@ -42,6 +42,9 @@ pub struct Plan {
     pub pot_data: ModelData,
     /// The per-pot columns the mapping stage will produce ([`mapped_names`]).
     pub mapped: Vec<(String, &'static str)>,
+    /// `[scores]`: the repeated scorings, validated against the pot table
+    /// (`None` without the section).
+    pub scores: Option<crate::io::scores::Scores>,
 }
 
 impl Plan {
@@ -51,6 +54,7 @@ impl Plan {
     pub fn from_study(study: &Study) -> Result<Plan, StageError> {
         // The tables first: a file that cannot be read is the first thing to fix.
         let pots = load_pots(study)?;
+        let scores = crate::io::scores::Scores::load(study, &pots)?;
         let sensors = load_sensors(study)?.ok_or_else(|| {
             study.invalid(
                 "sensors",
@@ -79,7 +83,7 @@ impl Plan {
         let mapped = mapped_names(study, &climate);
         let names: Vec<String> = mapped.iter().map(|(n, _)| n.clone()).collect();
         let pot_data = model.check(study, &pots, &names)?;
-        Ok(Plan { climate, mapping, model, verdict, pots, sensors, pot_data, mapped })
+        Ok(Plan { climate, mapping, model, verdict, pots, sensors, pot_data, mapped, scores })
     }
 }
 

@@ -30,6 +30,7 @@ pub mod climate;
 pub mod error;
 pub mod exports;
 pub mod field;
+pub mod growth;
 pub mod scenario;
 
 pub use error::{Result, SimError};
