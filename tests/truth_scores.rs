@@ -73,6 +73,8 @@ fn one_seed(seed: u64) -> Outcome {
         correlations: vec![Family::Exponential],
         nugget: true,
         trait_unit: Some("cm".into()),
+        rows_columns: false,
+        directional: vec![],
     };
     let opts = VerdictOptions { seed, ..VerdictOptions::default() };
     let mut out =
