@@ -24,5 +24,6 @@ pub mod qc;
 pub mod study;
 pub mod table;
 pub mod units;
+pub mod workbook;
 
 pub use error::{IoError, Result};
