@@ -554,10 +554,76 @@ fn unrecognised(path: &Path, lines: &[String], what: String) -> IoError {
     }
 }
 
-/// Detect the format of one export.
+/// Detect the format of one export (a workbook through its sheets: see
+/// [`detect_workbook`]).
 pub fn detect_file(path: &Path) -> Result<FileGuess> {
+    if super::workbook::is_workbook(path) {
+        return detect_workbook(path);
+    }
     let (head, tail) = sample(path)?;
     detect_lines(path, &head, &tail)
+}
+
+/// Lines of a sheet's text kept for detection: the head and the tail, like
+/// the byte sample of a text file.
+const SHEET_HEAD_LINES: usize = 2000;
+const SHEET_TAIL_LINES: usize = 500;
+
+/// Detect a workbook: each sheet is rendered as text (`io::workbook`, ISO
+/// stamps, decimal point) and detected like a text export; the first sheet
+/// that reads is taken, and named in a `sheet` key when there are several.
+/// The guessed tab delimiter is dropped (a workbook has cells, not a
+/// delimiter), and so is a decimal mark.
+pub fn detect_workbook(path: &Path) -> Result<FileGuess> {
+    let names = super::workbook::sheet_names(path)?;
+    let style = super::workbook::CellStyle::iso();
+    let mut first_error = None;
+    for name in &names {
+        let sheet = super::workbook::render(path, Some(name), &style)?;
+        let lines = lines_of(&decode(&sheet.text));
+        let (head, tail) = if lines.len() > SHEET_HEAD_LINES + SHEET_TAIL_LINES {
+            let tail: Vec<String> = lines[lines.len() - SHEET_TAIL_LINES..]
+                .iter()
+                .filter(|l| !l.trim().is_empty())
+                .cloned()
+                .collect();
+            (lines[..SHEET_HEAD_LINES].to_vec(), tail)
+        } else {
+            (lines, Vec::new())
+        };
+        match detect_lines(&sheet.shown, &head, &tail) {
+            Ok(mut g) => {
+                g.path = path.to_path_buf();
+                g.keys.retain(|e| e.key != "delimiter" && e.key != "decimal");
+                if names.len() > 1 {
+                    let others: Vec<&str> = names.iter().filter(|n| *n != name).map(String::as_str).collect();
+                    g.keys.insert(
+                        0,
+                        Entry::decided(
+                            "sheet",
+                            q(name),
+                            format!(
+                                "the first of {} sheets with a readable table (others: {})",
+                                names.len(),
+                                others.join(", ")
+                            ),
+                        ),
+                    );
+                }
+                g.notes.push(
+                    "a workbook: its cells are read as they are (no delimiter or decimal mark to set)".into(),
+                );
+                return Ok(g);
+            }
+            Err(e) => {
+                first_error.get_or_insert(e);
+            }
+        }
+    }
+    Err(first_error.unwrap_or_else(|| IoError::Empty {
+        path: path.to_path_buf(),
+        hint: Some("the workbook has no sheet".into()),
+    }))
 }
 
 /// [`detect_file`] on lines already read (`head` from the start of the

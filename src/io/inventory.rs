@@ -236,9 +236,24 @@ pub fn inventory(study: &Study) -> Result<Inventory> {
 }
 
 /// Parse the header and the first and last [`SAMPLE_ROWS`] rows of an export.
+/// A workbook is sampled through its sheet's text (`io::workbook`).
 fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result<FileInventory> {
+    if super::workbook::is_workbook(path) {
+        let (wfmt, sheet) = super::workbook::for_block(fmt, path)?;
+        let mut inv = sample_bytes(&wfmt, &sheet.shown, &sheet.text)?;
+        inv.name = format!("{} [sheet {}]", display_name(study, path), sheet.sheet);
+        return Ok(inv);
+    }
     let bytes = std::fs::read(path)
         .map_err(|source| super::error::IoError::Read { path: path.to_path_buf(), source })?;
+    let mut inv = sample_bytes(fmt, path, &bytes)?;
+    inv.name = display_name(study, path);
+    Ok(inv)
+}
+
+/// [`sample_file`] on the bytes of a text export (`path` for messages; the
+/// returned `name` is left for the caller).
+fn sample_bytes(fmt: &LogFormat, path: &std::path::Path, bytes: &[u8]) -> Result<FileInventory> {
     // Split into physical lines, keeping offsets.
     let mut starts = vec![0usize];
     starts.extend(bytes.iter().enumerate().filter(|(_, c)| **c == b'\n').map(|(i, _)| i + 1));
@@ -254,7 +269,7 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
     let header = (skip..starts.len()).find(|&i| !line_text(i).trim_ascii().is_empty());
     let Some(header) = header else {
         // Let the reader produce its usual "empty" error.
-        read_bytes(fmt, path, 0, &bytes)?;
+        read_bytes(fmt, path, 0, bytes)?;
         unreachable!("an empty file is an error");
     };
     // Lines after the header that are not data (a layout's units line).
@@ -302,7 +317,7 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
     let main_cause =
         causes.into_iter().max_by_key(|(r, (n, _))| (*n, std::cmp::Reverse(*r))).map(|(r, (n, f))| (r, n, f));
     Ok(FileInventory {
-        name: display_name(study, path),
+        name: String::new(),
         lines: data.len(),
         span,
         sensors: seen,

@@ -390,6 +390,7 @@ mod tests {
                 skip_lines: m.skip_lines,
                 after_header: m.after_header,
                 layout: Some(*layout),
+                sheet: None,
                 channels: [None, None, None],
                 files: vec![],
             };

@@ -97,6 +97,8 @@ pub struct LogFormat {
     pub after_header: usize,
     /// The block's layout, resolved per file before reading.
     pub layout: Option<super::layouts::Layout>,
+    /// The sheet of a workbook file (`None`: the only sheet).
+    pub sheet: Option<String>,
     /// Per channel (order of `Channel::ALL`): column name and conversion.
     pub channels: [Option<(String, Conversion)>; 3],
     /// The files matched by the globs, sorted, deduplicated.
@@ -267,6 +269,7 @@ fn compile_block(
         skip_lines: log.skip_lines.or(implied.map(|m| m.skip_lines)).unwrap_or(0),
         after_header: log.lines_after_header.or(implied.map(|m| m.after_header)).unwrap_or(0),
         layout,
+        sheet: log.sheet.clone(),
         channels,
         files,
     })
@@ -453,9 +456,14 @@ pub fn read_file(fmt: &LogFormat, path: &Path, file: u32) -> Result<FileRead> {
 
 /// [`read_file`] with a byte buffer to read the file into (its contents are
 /// replaced). Reusing one buffer for several files saves allocating and
-/// zeroing fresh memory for each.
+/// zeroing fresh memory for each. A workbook (see [`super::workbook`]) is
+/// read through its sheet's text; messages name it `book.xlsx [sheet S]`.
 pub fn read_file_with(fmt: &LogFormat, path: &Path, file: u32, buf: &mut Vec<u8>) -> Result<FileRead> {
     use std::io::Read;
+    if super::workbook::is_workbook(path) {
+        let (wfmt, sheet) = super::workbook::for_block(fmt, path)?;
+        return read_bytes(&wfmt, &sheet.shown, file, &sheet.text);
+    }
     let err = |source| IoError::Read { path: path.to_path_buf(), source };
     let mut f = std::fs::File::open(path).map_err(err)?;
     buf.clear();
@@ -1164,6 +1172,7 @@ mod tests {
             skip_lines: skip,
             after_header: 0,
             layout: None,
+            sheet: None,
             channels: [
                 Some(("temp".into(), Conversion::of(Channel::Temperature, "degF").unwrap())),
                 Some(("rh".into(), Conversion::of(Channel::Humidity, "percent").unwrap())),

@@ -25,5 +25,6 @@ pub mod scores;
 pub mod study;
 pub mod table;
 pub mod units;
+pub mod workbook;
 
 pub use error::{IoError, Result};

@@ -207,6 +207,10 @@ pub struct LogSection {
     /// implies.
     #[serde(default)]
     pub lines_after_header: Option<usize>,
+    /// The sheet of a workbook (`.xlsx`, `.ods`...) to read; default the
+    /// only sheet. Ignored for text files.
+    #[serde(default)]
+    pub sheet: Option<String>,
     /// Which columns hold which channel, in which unit (with a layout, the
     /// channels not named are found by their header words).
     #[serde(default)]
