@@ -190,9 +190,7 @@ pub fn render(path: &Path, sheet: Option<&str>, style: &CellStyle) -> Result<She
         };
         let mut cell = String::new();
         for row in range.rows() {
-            for _ in 0..col0 {
-                text.push(b'\t');
-            }
+            text.extend(std::iter::repeat_n(b'\t', col0 as usize));
             for (j, c) in row.iter().enumerate() {
                 if j > 0 {
                     text.push(b'\t');
