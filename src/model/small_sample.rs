@@ -19,29 +19,42 @@
 //!   `I_ij = tr(P S_i P S_j) / 2`, `P = Sigma^-1 - Sigma^-1 X Phi X' Sigma^-1`,
 //!   `S_i = d Sigma / d theta_i` (Harville 1977, *JASA* 72: 320-338);
 //! * `P_i = X' (d Sigma^-1 / d theta_i) X = -X' Sigma^-1 S_i Sigma^-1 X`,
-//!   `Q_ij = X' Sigma^-1 S_i Sigma^-1 S_j Sigma^-1 X`,
-//!   `R_ij = X' Sigma^-1 S_ij Sigma^-1 X` (`S_ij` the second derivative;
-//!   not zero here, the structure is not linear in `ln a`);
-//! * `Lambda = Phi [sum_ij W_ij (Q_ij - P_i Phi P_j - R_ij / 4)] Phi`, the
-//!   adjusted covariance `Phi_A = Phi + 2 Lambda`;
+//!   `Q_ij = X' Sigma^-1 S_i Sigma^-1 S_j Sigma^-1 X`;
+//! * `Lambda = Phi [sum_ij W_ij (Q_ij - P_i Phi P_j)] Phi`, the adjusted
+//!   covariance `Phi_A = Phi + 2 Lambda`;
 //! * for one coefficient `c` (`L = e_c`, `l = 1`), with
 //!   `Theta = L (L' Phi_A L)^-1 L'`: `A1 = sum W_ij tr(Theta Phi P_i Phi)
 //!   tr(Theta Phi P_j Phi)`, `A2 = sum W_ij tr(Theta Phi P_i Phi Theta Phi
 //!   P_j Phi)`, then `B, g, c1, c2, c3, E*, V*, rho`, the denominator df
 //!   `m = 4 + (l + 2) / (l rho - 1)` and the scale
 //!   `lambda = m / (E* (m - 2))`; `F = lambda beta_c^2 / (Phi_A)_cc` on
-//!   `(1, m)` df. For `l = 1`, `A1 = A2` and `lambda = 1` exactly, and `m`
-//!   reduces to `2 (Phi_A)_cc^2 / var(Phi_cc)`.
+//!   `(1, m)` df. For `l = 1`, `A1 = A2 = A`, and the formulas reduce
+//!   exactly to `rho = (1 - A/2) / (1 - 2A)`, `m = 2 / A =
+//!   2 (Phi_A)_cc^2 / var(Phi_cc)` and `lambda = 1`; the code uses this
+//!   closed form.
+//!
+//! **First order.** The paper's `Lambda` also holds `-R_ij / 4`,
+//! `R_ij = X' Sigma^-1 S_ij Sigma^-1 X` with `S_ij` the second derivative
+//! of `Sigma`, which is not zero when the structure is not linear in its
+//! parameters (here `ln a`). potclim leaves it out (the "first-order"
+//! adjustment). With it the adjustment depends on the parametrisation and
+//! can make the adjusted variance indefinite, the caveat for non-linear
+//! structures that Kenward & Roger (2009, *Computational Statistics & Data
+//! Analysis* 53: 2583-2595) revisit; and when the range is barely
+//! identified it inflates the variance without bound (seen on
+//! a simulated 60-pot bench whose REML range ran to its bound: adjusted SE
+//! 0.68 with the term against 0.094 without and 0.070 plug-in). Without
+//! it, the adjustment is invariant to a change of parameters (every term is
+//! bilinear in first derivatives, and `W` transforms with them) and, for
+//! one coefficient, is the estimator of Prasad & Rao (1990, *JASA* 85:
+//! 163-171) and Harville & Jeske (1992, *JASA* 87: 724-731); page numbers
+//! of these three from memory.
 //!
 //! `Theta` is built with the adjusted `Phi_A` (our reading of the paper's
 //! "Phi replaced by its adjusted estimate"); with the plug-in `Phi` instead,
 //! `m` would equal the Satterthwaite df reported beside it,
 //! `2 Phi_cc^2 / (g' W g)`, `g_i = d Phi_cc / d theta_i = -(Phi P_i Phi)_cc`
-//! (Giesbrecht & Burns 1985, *Biometrics* 41: 477-486). The correction
-//! depends on the parametrisation through `R_ij`; potclim's is
-//! `(s2, ln range, eta)`, the one its search uses. The derivative
-//! `d^2 rho / d (ln a)^2` is a central difference of the analytic first
-//! derivative (step 1e-4 in `ln a`, error about 1e-8 relative).
+//! (Giesbrecht & Burns 1985, *Biometrics* 41: 477-486).
 //!
 //! Checked against `tests/reference/small_sample.py` (numpy, written from
 //! the paper's formulas with `P_i` by differences of numpy's inverse).
@@ -126,26 +139,18 @@ pub fn kenward_roger(
         return Err(err("inconsistent sizes or a non-positive variance"));
     }
     let (family, a, eta) = (params.family, params.range, if nugget { params.eta } else { 0.0 });
-    // R, D = dR/d ln a, D2 = d2R/d(ln a)^2 (zero diagonals for D, D2).
-    let h: f64 = 1e-4;
+    // R and D = dR/d ln a (zero diagonal for D).
     let mut r = Mat::<f64>::identity(n, n);
     let mut d1 = Mat::<f64>::zeros(n, n);
-    let mut d2 = Mat::<f64>::zeros(n, n);
     for j in 0..n {
         for i in 0..j {
             let dij = dist.get(i, j);
             let rho = family.correlation(dij, a);
             let dr = dcorrelation_dlog_range(family, dij, a, rho);
-            let (ap, am) = (a * h.exp(), a * (-h).exp());
-            let dp = dcorrelation_dlog_range(family, dij, ap, family.correlation(dij, ap));
-            let dm = dcorrelation_dlog_range(family, dij, am, family.correlation(dij, am));
-            let dd = (dp - dm) / (2.0 * h);
             r[(i, j)] = rho;
             r[(j, i)] = rho;
             d1[(i, j)] = dr;
             d1[(j, i)] = dr;
-            d2[(i, j)] = dd;
-            d2[(j, i)] = dd;
         }
     }
     // Sigma and its inverse.
@@ -185,17 +190,6 @@ pub fn kenward_roger(
         s.push(Mat::from_fn(n, n, |i, j| sigma2 * (f64::from(u8::from(i == j)) - r[(i, j)])));
     }
     let k = s.len();
-    // Second derivatives S_ij (only the nonzero ones are filled).
-    let second = |i: usize, j: usize| -> Option<Mat<f64>> {
-        let (i, j) = (i.min(j), i.max(j));
-        match (i, j) {
-            (0, 1) => Some(Mat::from_fn(n, n, |u, v| (1.0 - eta) * d1[(u, v)])),
-            (1, 1) => Some(Mat::from_fn(n, n, |u, v| sigma2 * (1.0 - eta) * d2[(u, v)])),
-            (0, 2) => Some(Mat::from_fn(n, n, |u, v| f64::from(u8::from(u == v)) - r[(u, v)])),
-            (1, 2) => Some(Mat::from_fn(n, n, |u, v| -sigma2 * d1[(u, v)])),
-            _ => None,
-        }
-    };
     // Expected REML information and W.
     let ps: Vec<Mat<f64>> = s.iter().map(|si_| &pm * si_).collect();
     let mut info = vec![0.0; k * k];
@@ -214,7 +208,7 @@ pub fn kenward_roger(
     let (w, _) = small_spd(&info, k).ok_or_else(|| {
         err("the information of the covariance parameters is singular (a parameter is not identified)")
     })?;
-    // P_i, Q_ij, R_ij.
+    // P_i and Q_ij (first order: no R_ij, see the module docs).
     let swx: Vec<Mat<f64>> = s.iter().map(|si_| si_ * &wx).collect();
     let pi: Vec<Vec<f64>> = swx.iter().map(|m| cross(&wx, m).iter().map(|v| -v).collect()).collect();
     let si_swx: Vec<Mat<f64>> = swx.iter().map(|m| &si * m).collect();
@@ -224,9 +218,8 @@ pub fn kenward_roger(
             let wij = w[i * k + j];
             let q = cross(&swx[i], &si_swx[j]);
             let ppp = mul(&mul(&pi[i], &phi, p), &pi[j], p);
-            let rij = second(i, j).map(|m| cross(&wx, &(&m * &wx))).unwrap_or_else(|| vec![0.0; p * p]);
             for e in 0..p * p {
-                inner[e] += wij * (q[e] - ppp[e] - 0.25 * rij[e]);
+                inner[e] += wij * (q[e] - ppp[e]);
             }
         }
     }
@@ -241,21 +234,17 @@ pub fn kenward_roger(
     let ai: Vec<f64> = pi.iter().map(|m| mul(&mul(&phi, m, p), &phi, p)[c * p + c]).collect();
     let var_phi: f64 =
         (0..k).flat_map(|i| (0..k).map(move |j| (i, j))).map(|(i, j)| w[i * k + j] * ai[i] * ai[j]).sum();
-    // Theta = e_c e_c' / (Phi_A)_cc: tr(Theta Phi P_i Phi) = a_i / (Phi_A)_cc.
-    let l = 1.0;
+    // Theta = e_c e_c' / (Phi_A)_cc: tr(Theta Phi P_i Phi) = a_i / (Phi_A)_cc,
+    // so A1 = A2 = var(Phi_cc) / (Phi_A)_cc^2. For one coefficient (l = 1)
+    // the paper's B, g, c1..c3, E*, V* and rho reduce exactly to
+    // rho = (1 - A/2) / (1 - 2A), m = 2 / A and lambda = 1 (module docs);
+    // the closed form avoids the removable singularities of the general
+    // formulas at A = 1/2 and A = 1, which a barely identified range reaches.
     let a1 = var_phi / (phi_a_cc * phi_a_cc);
-    let a2 = a1;
-    let b = (a1 + 6.0 * a2) / (2.0 * l);
-    let g = ((l + 1.0) * a1 - (l + 4.0) * a2) / ((l + 2.0) * a2);
-    let den = 3.0 * l + 2.0 * (1.0 - g);
-    let (c1, c2, c3) = (g / den, (l - g) / den, (l + 2.0 - g) / den);
-    let e_star = 1.0 / (1.0 - a2 / l);
-    let v_star = (2.0 / l) * (1.0 + c1 * b) / ((1.0 - c2 * b).powi(2) * (1.0 - c3 * b));
-    let rho = v_star / (2.0 * e_star * e_star);
-    let m = 4.0 + (l + 2.0) / (l * rho - 1.0);
-    let scale = m / (e_star * (m - 2.0));
-    if !(m.is_finite() && m > 0.0 && scale.is_finite() && scale > 0.0) {
-        return Err(err(format!("the degrees of freedom are not defined (m = {m}, lambda = {scale})")));
+    let m = 2.0 / a1;
+    let scale = 1.0;
+    if !(m.is_finite() && m > 0.0) {
+        return Err(err(format!("the degrees of freedom are not defined (m = {m})")));
     }
     let f = scale * beta[c] * beta[c] / phi_a_cc;
     let p_value = f_p(f, 1.0, m);

@@ -13,7 +13,9 @@ covariance parameters theta = (s2, ln a[, eta]). Steps (KR 1997, sections 2-4):
   Q_ij = X' Sigma^-1 S_i Sigma^-1 S_j Sigma^-1 X,
   R_ij = X' Sigma^-1 S_ij Sigma^-1 X (S_ij the analytic second derivative);
 * Lambda = Phi [sum_ij W_ij (Q_ij - P_i Phi P_j - R_ij / 4)] Phi,
-  Phi_A = Phi + 2 Lambda;
+  Phi_A = Phi + 2 Lambda; potclim uses the first-order adjustment, without
+  the R_ij term (src/model/small_sample.rs says why): the fixture holds it,
+  and the second-order SE beside it for comparison (se_adjusted_second_order);
 * for one coefficient (L = e_c, l = 1): A1, A2, B, g, c1..c3, E*, V*,
   rho, the denominator df m and the scale lambda; F = lambda beta_c^2 /
   (Phi_A)_cc on (1, m) df.
@@ -130,7 +132,7 @@ def fit_reml(family, d, X, y, nugget):
     return theta, -best.fun
 
 
-def kenward_roger(theta, family, d, X, y, nugget, c):
+def kenward_roger(theta, family, d, X, y, nugget, c, first_order=True):
     n, p = X.shape
     S = sigma(theta, family, d, nugget)
     Si = np.linalg.inv(S)
@@ -152,7 +154,9 @@ def kenward_roger(theta, family, d, X, y, nugget, c):
         Pi.append(X.T @ dSi @ X)
     Q = [[X.T @ Si @ first[i] @ Si @ first[j] @ Si @ X for j in range(k)] for i in range(k)]
     R = [[X.T @ Si @ second[i][j] @ Si @ X for j in range(k)] for i in range(k)]
-    inner = sum(W[i, j] * (Q[i][j] - Pi[i] @ Phi @ Pi[j] - 0.25 * R[i][j]) for i in range(k) for j in range(k))
+    with_r = 0.0 if first_order else 1.0
+    inner = sum(W[i, j] * (Q[i][j] - Pi[i] @ Phi @ Pi[j] - with_r * 0.25 * R[i][j])
+                for i in range(k) for j in range(k))
     Lam = Phi @ inner @ Phi
     PhiA = Phi + 2 * Lam
     # one coefficient: L = e_c, l = 1
@@ -235,6 +239,7 @@ def main():
     for family, nugget in [("exponential", True), ("exponential", False), ("gaussian", True)]:
         theta, ll = fit_reml(family, d, X, yv, nugget)
         kr = kenward_roger(theta, family, d, X, yv, nugget, 3)
+        kr["se_adjusted_second_order"] = kenward_roger(theta, family, d, X, yv, nugget, 3, first_order=False)["se_adjusted"]
         case = {
             "family": family,
             "nugget": nugget,
@@ -259,7 +264,7 @@ def main():
         return float(np.sum((U[:, :K].T @ r) ** 2) / (r @ r))
     checker = np.array([1.0 if (i % 7 + i // 7) % 2 == 0 else -1.0 for i in range(n)])
     smooth = {"range": 0.6, "k": K, "draught": share(data["draught"].astype(float)), "checker": share(checker)}
-    out = {"method": "Kenward & Roger (1997) for one coefficient, theta = (sigma2, ln range[, nugget share]), "
+    out = {"method": "Kenward & Roger (1997), first-order adjustment (no R_ij term), for one coefficient, theta = (sigma2, ln range[, nugget share]), "
                      "expected REML information; Satterthwaite df of the plug-in variance for comparison",
            "columns": ["(intercept)", "line L2", "line L3", "draught"],
            "cases": cases,

@@ -54,7 +54,7 @@ pub struct DriverTest {
     pub p_value: f64,
     /// 95 % CI from the corrected SE and df.
     pub ci: (f64, f64),
-    /// `kenward-roger` or `exact t (independent errors)`.
+    /// `kenward-roger (first order)` or `exact t (independent errors)`.
     pub method: String,
 }
 
@@ -145,7 +145,7 @@ pub(super) fn calibrated_verdict(
                         df: kr.df,
                         p_value: kr.p_value,
                         ci: kr.ci,
-                        method: "kenward-roger".into(),
+                        method: "kenward-roger (first order)".into(),
                     }
                 }
                 _ => {
