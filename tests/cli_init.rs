@@ -205,3 +205,56 @@ fn maps_draw_openings_and_loggers(results: &std::path::Path) {
         assert!(svg.contains(&label), "{label} not on the map");
     }
 }
+
+/// A lamp-lit growth room, as a new user meets it: the lamps hold 400 µmol
+/// m⁻² s⁻¹ from 06:00 to 18:00 and the exports are read by `init --logs`.
+/// The constant light is a lamp period, not a stuck sensor, so `check` says
+/// ok and `run` reaches a verdict; with `[qc] stuck_skip_lamps = false` the
+/// light is flagged, and `check` names the cause of the night indicator's
+/// refusal (day and night unknown) with the clock rule as the hint, instead
+/// of a coverage threshold.
+#[test]
+fn lamp_lit_room_from_exports_to_verdict() {
+    let d = tempfile::tempdir().unwrap();
+    let dir = d.path();
+    write_template_example(dir);
+    for (file, loggers) in [("house4_east.csv", ["L1", "L2"]), ("house4_west.csv", ["L3", "L4"])] {
+        let mut t = String::from("Timestamp,Logger,Temp,RH,PAR\n");
+        for s in 0..(7 * 144) {
+            for (j, l) in loggers.iter().enumerate() {
+                let h = (s % 144) as f64 / 6.0;
+                let lamps = (6.0..18.0).contains(&h);
+                let wobble = ((s * 7 + j * 3) % 11) as f64 / 20.0;
+                let temp = if lamps { 21.0 } else { 13.0 - 2.0 * j as f64 } + wobble;
+                let par = if lamps { 400 } else { 0 };
+                t.push_str(&format!(
+                    "2026-03-{:02} {:02}:{:02}:00,{l},{temp:.1},{:.0},{par}\n",
+                    1 + s / 144,
+                    (s % 144) / 6,
+                    (s % 6) * 10,
+                    60.0 + 10.0 * wobble
+                ));
+            }
+        }
+        std::fs::write(dir.join("logs").join(file), t).unwrap();
+    }
+    let glob = format!("{}/logs/*.csv", dir.display());
+    let (code, out, err) = run(&["init", dir.to_str().unwrap(), "--logs", &glob]);
+    assert_eq!(code, 0, "{out}{err}");
+    let study = dir.join("study.toml");
+    let (code, out, err) = run(&["check", study.to_str().unwrap()]);
+    assert_eq!(code, 0, "{out}{err}");
+    assert!(out.contains("ok: every input is readable"), "{out}");
+    let (code, out, err) = run(&["run", study.to_str().unwrap()]);
+    assert_eq!(code, 0, "{out}{err}");
+    assert!(out.contains("\nverdict: "), "{out}");
+    let summary = std::fs::read_to_string(dir.join("results/qc_summary.csv")).unwrap();
+    assert!(summary.lines().skip(1).all(|l| l.split(',').nth(3) == Some("0")), "nothing flagged: {summary}");
+    // The same files with the lamp rule off.
+    let text = std::fs::read_to_string(&study).unwrap();
+    std::fs::write(&study, format!("{text}\n[qc]\nstuck_skip_lamps = false\n")).unwrap();
+    let (code, out, err) = run(&["check", study.to_str().unwrap()]);
+    assert_eq!(code, 1, "{out}{err}");
+    assert!(err.contains("day and night are unknown at 50 %") && err.contains("day_rule = \"clock\""), "{err}");
+    assert!(!out.contains("ok: every input"), "{out}");
+}

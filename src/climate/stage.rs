@@ -223,7 +223,7 @@ pub fn compute(
     }
     for i in 0..config.indicators.len() {
         if study_values[i].iter().all(|w| w.value.is_none()) {
-            return Err(no_value_anywhere(study, &config, i, &daily[i]));
+            return Err(no_value_anywhere(study, &config, i, &daily[i], &calendar.is_day));
         }
     }
     let daily_means = daily_means(&grid, &calendar);
@@ -240,10 +240,32 @@ fn no_value_anywhere(
     config: &ClimateConfig,
     i: usize,
     daily: &[Vec<DayValue>],
+    is_day: &[Option<bool>],
 ) -> ClimateError {
     let ind = &config.indicators[i];
     let best = daily.iter().flatten().map(|d| d.coverage).fold(0.0f64, f64::max);
     let min = config.spec.min_coverage;
+    // A day or night indicator under the light rule also needs the
+    // compartment's day/night flag, unknown where no sensor has light.
+    let unknown = is_day.iter().filter(|f| f.is_none()).count() as f64 / is_day.len().max(1) as f64;
+    if ind.period != Period::All && unknown > 1.0 - min {
+        return declaration(
+            &study.path,
+            ind.variable_at,
+            &format!("indicator[{}]", i + 1),
+            &format!("{:?}", ind.name),
+            format!(
+                "`{}` cannot be mapped: its period is {} but day and night are unknown at {:.0} % of the steps, where no sensor has a light reading (light readings missing or flagged: see qc_flags.csv)",
+                ind.name,
+                if ind.period == Period::Day { "day" } else { "night" },
+                100.0 * unknown
+            ),
+            Some(
+                "set [climate] day_rule = \"clock\" with day_start and day_end (the photoperiod), or look at the light rows of qc_flags.csv (a lamp-lit room's constant light is kept unless [qc] stuck_skip_lamps = false)"
+                    .into(),
+            ),
+        );
+    }
     let why = if best < min {
         format!(
             "no sensor has a single valid day in the study period: the best covered day has data at {:.0} % of its steps, below [climate].min_coverage = {:.0} %",

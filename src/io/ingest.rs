@@ -592,7 +592,8 @@ fn value_rules(seg: &mut [Row], cols: &mut Columns, q: &QcSettings, flags: &mut 
             }
             !any_data
         };
-        stuck_idx[k] = qc::stuck(cols.times, values[k], min_ms, skip, moving);
+        let plateaus = k == 2 && q.stuck_skip_lamps;
+        stuck_idx[k] = qc::stuck_runs(cols.times, values[k], min_ms, skip, plateaus, moving);
     }
     for (k, idx) in stuck_idx.iter().enumerate() {
         for &i in idx {

@@ -131,6 +131,11 @@ pub struct QcSettings {
     pub stuck_hours: f64,
     /// Runs of zero light (darkness) are never stuck. Default true.
     pub stuck_skip_dark: bool,
+    /// Runs of constant light that are a plateau of the light series (a
+    /// rise before, a fall after: a lamp period) are never stuck. Default
+    /// true; set false in a sunlit house, where a frozen light sensor may
+    /// sit at its day's highest reading.
+    pub stuck_skip_lamps: bool,
     /// A gap is an interval without readings longer than this many logging
     /// steps (the median interval of the sensor). Default 2.
     pub gap_factor: f64,
@@ -155,6 +160,7 @@ impl Default for QcSettings {
             spike_min_jump_ppfd: 1500.0,
             stuck_hours: 3.0,
             stuck_skip_dark: true,
+            stuck_skip_lamps: true,
             gap_factor: 2.0,
             drop_unknown_sensors: false,
         }
@@ -269,6 +275,23 @@ pub fn stuck(
     values: &[f64],
     min_ms: i64,
     skip: Option<f64>,
+    moving: impl FnMut(usize, usize) -> bool,
+) -> Vec<usize> {
+    stuck_runs(times, values, min_ms, skip, false, moving)
+}
+
+/// [`stuck`], and with `plateaus` a run is never stuck when it is a plateau
+/// of the series: the reading before it and the reading after it (those
+/// that exist, at least one) are both lower. Electric lamps hold one PPFD
+/// for the whole photoperiod, entered by a rise and left by a fall, while a
+/// frozen sensor freezes at whatever it read (common practice for lamp-lit
+/// rooms; our rule).
+pub fn stuck_runs(
+    times: &[i64],
+    values: &[f64],
+    min_ms: i64,
+    skip: Option<f64>,
+    plateaus: bool,
     mut moving: impl FnMut(usize, usize) -> bool,
 ) -> Vec<usize> {
     let mut out = Vec::new();
@@ -284,7 +307,13 @@ pub fn stuck(
         }
         let v = values[idx.at(a)];
         let (first, last) = (idx.at(a), idx.at(b));
-        if times[last] - times[first] > min_ms && skip != Some(v) && moving(first, last) {
+        let before = (a > 0).then(|| values[idx.at(a - 1)]);
+        let after = (b + 1 < idx.len()).then(|| values[idx.at(b + 1)]);
+        let plateau = plateaus
+            && (before.is_some() || after.is_some())
+            && before.is_none_or(|x| x < v)
+            && after.is_none_or(|x| x < v);
+        if times[last] - times[first] > min_ms && skip != Some(v) && !plateau && moving(first, last) {
             out.extend((a..=b).map(|q| idx.at(q)));
         }
         a = b + 1;
@@ -392,6 +421,20 @@ mod tests {
         // Darkness is skipped.
         let dark = vec![0.0; 100];
         assert!(stuck(&times, &dark, 3_600_000, Some(0.0), |_, _| true).is_empty());
+        // A lamp period: dark, 12 h at 400, dark again, against a frozen
+        // reading mid-morning (a rise before it, a further rise after it).
+        let t10: Vec<i64> = (0..200).map(|i| i * 600_000).collect();
+        let lamp: Vec<f64> = (0..200).map(|i| if (36..108).contains(&i) { 400.0 } else { 0.0 }).collect();
+        assert!(stuck_runs(&t10, &lamp, 3 * 3_600_000, Some(0.0), true, |_, _| true).is_empty());
+        assert_eq!(stuck_runs(&t10, &lamp, 3 * 3_600_000, Some(0.0), false, |_, _| true).len(), 72);
+        let frozen: Vec<f64> = (0..200)
+            .map(|i| match i {
+                0..40 => 5.0 * i as f64,
+                40..80 => 200.0,
+                _ => 200.0 + 3.0 * (i - 79) as f64,
+            })
+            .collect();
+        assert_eq!(stuck_runs(&t10, &frozen, 3 * 3_600_000, Some(0.0), true, |_, _| true).len(), 40);
     }
 
     #[test]

@@ -758,12 +758,14 @@ fn self_check(
                     variance_at(share, r.3[0]).filter(|v| *v > 0.0).map(|v| (r.2 - r.1).powi(2) / v)
                 })
                 .collect();
+            let loggers = z2.len();
+            let median_z2 = super::window_se::median(z2).unwrap_or(f64::NAN);
             super::window_se::Calibration {
                 share,
-                inflation: 1.0,
+                inflation: super::window_se::window_inflation(median_z2, loggers),
                 step_scale: scale,
-                loggers: z2.len(),
-                median_z2: super::window_se::median(z2).unwrap_or(f64::NAN),
+                loggers,
+                median_z2,
             }
         });
         for (k, observed, predicted, mapped) in &rows {
