@@ -125,7 +125,6 @@ fn init_then_check_passes_on_the_templates_own_example_files() {
 /// map the cold hours well enough), no backtick reaches the page as text,
 /// and "what next" names the pot with the largest kriging SE.
 fn first_screen_agrees_with_summary(results: &std::path::Path) {
-    use potclim::report::html::sig;
     let html = std::fs::read_to_string(results.join("report.html")).unwrap();
     let summary: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(results.join("summary.json")).unwrap()).unwrap();
@@ -134,15 +133,20 @@ fn first_screen_agrees_with_summary(results: &std::path::Path) {
     let num = |v: &serde_json::Value| v.as_f64().unwrap();
     let answer =
         &html[html.find("<div class=\"answer\">").unwrap()..html.find("<dl class=\"words\">").unwrap()];
-    let plain = |v: f64| sig(v, 4).trim_start_matches('-').to_string();
-    for v in [num(&e["high"]) - num(&e["low"]), num(&e["low"]), num(&e["high"]), num(&e["effect"]).abs()] {
-        assert!(answer.contains(&plain(v)), "{} not in {answer}", plain(v));
+    // One format per quantity: three significant digits of the driver's
+    // spread for its values, of the interval's width for the effect.
+    let decimals = |r: f64| (2 - r.abs().log10().floor() as i32).clamp(0, 6) as usize;
+    let (spread, width) = (num(&e["high"]) - num(&e["low"]), num(&e["ci_high"]) - num(&e["ci_low"]));
+    let (dx, dy) = (decimals(spread), decimals(width));
+    for (v, d) in [(spread, dx), (num(&e["low"]), dx), (num(&e["high"]), dx), (num(&e["effect"]).abs(), dy)] {
+        let s = format!("{v:.d$}");
+        assert!(answer.contains(&s), "{s} not in {answer}");
     }
     let quote = format!(
-        "a change of {} cm (95 % interval {} to {} cm), which includes the uncertainty",
-        sig(num(&e["effect"]), 4),
-        sig(num(&e["ci_low"]), 4),
-        sig(num(&e["ci_high"]), 4)
+        "a change of {:.dy$} cm (95 % interval {:.dy$} to {:.dy$} cm), which includes the uncertainty",
+        num(&e["effect"]),
+        num(&e["ci_low"]),
+        num(&e["ci_high"])
     );
     assert!(answer.contains(&quote), "{quote} not in {answer}");
     let c = &h["certainty"];
@@ -255,6 +259,9 @@ fn lamp_lit_room_from_exports_to_verdict() {
     std::fs::write(&study, format!("{text}\n[qc]\nstuck_skip_lamps = false\n")).unwrap();
     let (code, out, err) = run(&["check", study.to_str().unwrap()]);
     assert_eq!(code, 1, "{out}{err}");
-    assert!(err.contains("day and night are unknown at 50 %") && err.contains("day_rule = \"clock\""), "{err}");
+    assert!(
+        err.contains("day and night are unknown at 50 %") && err.contains("day_rule = \"clock\""),
+        "{err}"
+    );
     assert!(!out.contains("ok: every input"), "{out}");
 }

@@ -246,6 +246,14 @@ pub fn value_map(spec: &MapSpec<'_>) -> Result<Figure, FigureError> {
     })
 }
 
+/// The colour scale of an indicator's map: it spans the pots' values and the
+/// loggers' own values, so that a logger reading beyond every pot (a door
+/// logger colder than any mapped pot) is drawn in its own colour rather than
+/// clamped to the scale's end.
+fn value_scale(points: &[MappedValue], sensor_values: &[Option<f64>]) -> Scale {
+    Scale::sequential(points.iter().map(|p| p.value).chain(sensor_values.iter().flatten().copied()))
+}
+
 /// The map of a mapped indicator and the map of its standard error, each
 /// with its own viridis scale in the indicator's unit.
 pub fn indicator_maps(
@@ -265,7 +273,7 @@ pub fn indicator_maps(
         title: format!("{name}: kriged value at each pot"),
         extent,
         points: points.iter().map(|p| (p.x, p.y, Some(p.value))).collect(),
-        scale: Scale::sequential(points.iter().map(|p| p.value)),
+        scale: value_scale(points, &sensor_values),
         legend: format!("{name} ({unit})"),
         sensors,
         openings,
@@ -556,7 +564,11 @@ pub fn delta_aic_bars(
     let title = "How far each model is behind the best (ΔAIC)".to_string();
     let xl = "ΔAIC (AIC units, 0 = best)".to_string();
     let yl = "model (sorted by AIC)".to_string();
-    let xmax = sorted.iter().map(|r| r.delta_aic).fold(2.5f64, f64::max) * 1.08;
+    let deltas: Vec<f64> = sorted.iter().map(|r| r.delta_aic).collect();
+    let (xmax, cut) = match delta_aic_cut(&deltas, tie_margin) {
+        Some(end) => (end, true),
+        None => (deltas.iter().copied().fold(2.5f64, f64::max) * 1.08, false),
+    };
     // About 6.5 px per character at 11 px sans-serif (common practice).
     let label_w = (names.iter().map(|s| s.chars().count()).max().unwrap_or(10) as f64 * 6.5 + 24.0)
         .clamp(120.0, 440.0) as u32;
@@ -593,8 +605,9 @@ pub fn delta_aic_bars(
         chart.draw_series(sorted.iter().enumerate().map(|(k, r)| {
             let i = n - 1 - k;
             let col = if Some(r.name.as_str()) == chosen { accent } else { plain };
-            // A best model has ΔAIC 0: give it a sliver so it stays visible.
-            let w = r.delta_aic.max(xmax * 0.004);
+            // A best model has ΔAIC 0: give it a sliver so it stays visible;
+            // a bar beyond the axis stops at its end.
+            let w = r.delta_aic.max(xmax * 0.004).min(xmax);
             let mut bar = Rectangle::new(
                 [(0.0, SegmentValue::Exact(i)), (w, SegmentValue::Exact(i + 1))],
                 col.filled(),
@@ -603,8 +616,15 @@ pub fn delta_aic_bars(
             bar
         }))?;
         chart.draw_series(sorted.iter().enumerate().map(|(k, r)| {
-            let at = (r.delta_aic.max(xmax * 0.004), SegmentValue::CenterOf(n - 1 - k));
-            EmptyElement::at(at) + Text::new(format!("{:.1}", r.delta_aic), (4, -5), (FONT, 10).into_font())
+            let beyond = cut && r.delta_aic > xmax;
+            let at = (r.delta_aic.max(xmax * 0.004).min(xmax), SegmentValue::CenterOf(n - 1 - k));
+            // A cut bar carries its value inside its end, in white.
+            let (label, offset, style) = if beyond {
+                (format!("{:.1} (bar cut)", r.delta_aic), (-78, -5), (FONT, 10).into_font().color(&WHITE))
+            } else {
+                (format!("{:.1}", r.delta_aic), (4, -5), (FONT, 10).into_font().into())
+            };
+            EmptyElement::at(at) + Text::new(label, offset, style)
         }))?;
         if let Some(m) = tie_margin {
             let style = ShapeStyle { color: BLACK.to_rgba(), filled: false, stroke_width: 1 };
@@ -617,6 +637,19 @@ pub fn delta_aic_bars(
         }
         Ok(())
     })
+}
+
+/// Where the ΔAIC chart's axis ends when one bar would squeeze the others:
+/// when the largest ΔAIC is more than twice the next, the axis ends at 1.25
+/// times the next (at least 2.5 tie margins, so the margin line stands
+/// clear), and the longest bar is cut there with its value written in it.
+/// `None`: the axis holds every bar.
+pub fn delta_aic_cut(deltas: &[f64], tie_margin: Option<f64>) -> Option<f64> {
+    let mut d: Vec<f64> = deltas.iter().copied().filter(|v| v.is_finite()).collect();
+    d.sort_by(|a, b| b.total_cmp(a));
+    let (first, second) = (*d.first()?, *d.get(1)?);
+    let end = (1.25 * second).max(2.5 * tie_margin.unwrap_or(2.0)).max(2.5);
+    (first > 2.0 * second && first > end).then_some(end)
 }
 
 /// Residual maps of the plain and the chosen model on one diverging scale
@@ -679,6 +712,19 @@ mod tests {
             assert!(f.svg.contains(&esc), "{}: {s:?} not drawn", f.id);
         }
         assert!(f.x_label.contains('(') && f.y_label.contains('('), "{}: labels need units", f.id);
+    }
+
+    /// A logger reading beyond every pot widens the map's scale to it (the
+    /// door logger of the demo reads 375 h where the pots reach about 330 h);
+    /// without logger values the scale is the pots' own.
+    #[test]
+    fn map_scale_spans_the_loggers_values() {
+        let pots: Vec<MappedValue> = (0..5)
+            .map(|i| MappedValue { x: i as f64, y: 0.0, value: 100.0 + 50.0 * i as f64, se: 1.0 })
+            .collect();
+        assert_eq!(value_scale(&pots, &[Some(375.0), None, Some(120.0)]).bounds(), (100.0, 375.0));
+        assert_eq!(value_scale(&pots, &[Some(-5.0)]).bounds(), (-5.0, 300.0));
+        assert_eq!(value_scale(&pots, &[]).bounds(), (100.0, 300.0));
     }
 
     /// Every text of the SVG lies inside the figure (extent estimated by
@@ -806,6 +852,32 @@ mod tests {
         assert_inside(&f);
         let empty = VariogramPanel { bins: vec![], ..p };
         assert!(matches!(variogram(&empty), Err(FigureError::Empty { .. })));
+    }
+
+    #[test]
+    fn delta_aic_axis_is_cut_only_for_one_outlying_bar() {
+        // The demo's bars: eight within 2 units, then 30.3, 57.0 and 337.0.
+        let demo = [0.0, 0.3, 0.4, 0.7, 0.9, 1.3, 1.6, 2.0, 30.3, 57.0, 337.0];
+        assert_eq!(delta_aic_cut(&demo, Some(4.0)), Some(71.25));
+        assert_eq!(delta_aic_cut(&[0.0, 30.0, 57.0], Some(4.0)), None);
+        assert_eq!(delta_aic_cut(&[0.0, 1.0, 9.0], Some(4.0)), None, "9 is within 2.5 margins");
+        assert_eq!(delta_aic_cut(&[0.0], Some(4.0)), None);
+        let rows: Vec<ComparisonRow> = demo
+            .iter()
+            .enumerate()
+            .map(|(i, d)| ComparisonRow {
+                name: format!("m{i}"),
+                delta_aic: *d,
+                // Kinds as on the demo: the eight closest with drivers and
+                // correlation, then one of each other kind.
+                drivers: if i < 8 || i == 9 { vec!["x".into()] } else { vec![] },
+                correlation: (i <= 8).then(|| "exponential".to_string()),
+                ..ComparisonRow::default()
+            })
+            .collect();
+        let f = delta_aic_bars(&rows, Some("m1"), Some(4.0)).unwrap();
+        assert!(f.svg.contains("337.0 (bar cut)"), "the cut bar is labelled");
+        assert_inside(&f);
     }
 
     #[test]

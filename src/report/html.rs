@@ -298,23 +298,28 @@ fn plain_lines(out: &mut String, v: &VerdictSection, h: &Headline, unit: &str) {
         let du = v.drivers.iter().find(|d| d.name == e.driver).and_then(|d| d.unit.clone());
         let du = du.map(|u| format!(" {}", escape(&u))).unwrap_or_default();
         let (more_less, size) = if e.effect < 0.0 { ("less", -e.effect) } else { ("more", e.effect) };
+        // One format per quantity: three significant digits of the
+        // driver's spread for its values, of the interval's width for the
+        // effect.
+        let dx = decimals_for([e.high - e.low], 3);
+        let dy = decimals_for([e.ci_high - e.ci_low], 3);
         let _ = write!(
             out,
             "<li><strong>How big:</strong> across the floor, pots with {}{du} more <code>{}</code> (from {}{du}, the 10th percentile of the pots, to {}{du}, the 90th) have {} {} {more_less} of the trait.</li>",
-            plain(e.high - e.low),
+            fixed(e.high - e.low, dx),
             escape(&e.driver),
-            plain(e.low),
-            plain(e.high),
-            plain(size),
+            fixed(e.low, dx),
+            fixed(e.high, dx),
+            fixed(size, dy),
             escape(unit),
         );
         let _ = write!(
             out,
             "<li><strong>Quote:</strong> a change of {} {} (95 % interval {} to {} {}){}.</li>",
-            plain(e.effect),
+            fixed(e.effect, dy),
             escape(unit),
-            plain(e.ci_low),
-            plain(e.ci_high),
+            fixed(e.ci_low, dy),
+            fixed(e.ci_high, dy),
             escape(unit),
             if e.includes_mapping {
                 ", which includes the uncertainty of the driver's map"
@@ -695,14 +700,22 @@ fn section_models(d: &ReportData, out: &mut String) {
         );
     }
     out.push_str("</table></div>\n");
-    let shown = figures::models_that_matter(&m.comparison, chosen, m.tie_margin).len();
+    let shown_rows = figures::models_that_matter(&m.comparison, chosen, m.tie_margin);
+    let shown = shown_rows.len();
+    let deltas: Vec<f64> = shown_rows.iter().map(|r| r.delta_aic).collect();
+    let cut_note = match figures::delta_aic_cut(&deltas, m.tie_margin) {
+        Some(end) => format!(
+            " The axis ends at {end:.1} units so that the short bars can be read; the longest bar is cut there and carries its value."
+        ),
+        None => String::new(),
+    };
     let _ = write!(
         out,
         "{}",
         figure_html(
             figures::delta_aic_bars(&m.comparison, chosen, m.tie_margin),
             &format!(
-                "Bars: AIC distance to the best model, for {shown} of the {} models: the best of each kind (with or without drivers, independent or spatially correlated errors) and every model within the tie margin; the table above lists all. Models left of the dashed line are within the tie margin of the verdict rule and count as equally supported; the chosen model (accent colour) is the simplest of them.",
+                "Bars: AIC distance to the best model, for {shown} of the {} models: the best of each kind (with or without drivers, independent or spatially correlated errors) and every model within the tie margin; the table above lists all. Models left of the dashed line are within the tie margin of the verdict rule and count as equally supported; the chosen model (accent colour) is the simplest of them.{cut_note}",
                 m.comparison.len()
             ),
         )
