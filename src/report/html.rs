@@ -924,10 +924,11 @@ pub fn render_html(d: &ReportData) -> String {
          <nav><ol><li><a href=\"#verdict\">1. Answer</a></li><li><a href=\"#layout\">2. Layout</a></li>\
          <li><a href=\"#climate\">3. Climate</a></li><li><a href=\"#spatial\">4. Spatial structure</a></li>\
          <li><a href=\"#models\">5. Models</a></li><li><a href=\"#means\">6. Adjusted means</a></li>\
-         <li><a href=\"#provenance\">7. Provenance</a></li></ol></nav>\n</header>\n<main>\n",
+         {}<li><a href=\"#provenance\">7. Provenance</a></li></ol></nav>\n</header>\n<main>\n",
         escape(title),
         CSS,
-        escape(title)
+        escape(title),
+        if d.over_time.is_some() { "<li><a href=\"#over-time\">Over time</a></li>" } else { "" }
     );
     section_verdict(d, &mut out);
     section_layout(d, &mut out);
@@ -935,6 +936,9 @@ pub fn render_html(d: &ReportData) -> String {
     section_spatial(d, &mut out);
     section_models(d, &mut out);
     section_means(d, &mut out);
+    if let Some(s) = &d.over_time {
+        super::over_time::section(s, extent(d), &mut out);
+    }
     section_provenance(d, &mut out);
     let version = d.provenance.as_ref().map_or(String::new(), |p| format!(" {}", escape(&p.tool_version)));
     let _ = write!(
@@ -981,6 +985,9 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
             sensors(d),
             openings(d),
         ));
+    }
+    if let Some(s) = &d.over_time {
+        out.extend(super::over_time::figures(s, extent(d)).into_iter().map(|(f, _)| f));
     }
     // Ids become file names: two subjects with the same slug must not
     // overwrite each other's file.

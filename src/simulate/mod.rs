@@ -32,6 +32,7 @@ pub mod exports;
 pub mod field;
 pub mod growth;
 pub mod scenario;
+pub mod scorings;
 
 pub use error::{Result, SimError};
 pub use scenario::Scenario;
@@ -368,8 +369,16 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
         s.push('\n');
     }
     files.push(("sensors.csv".into(), s.into_bytes()));
-    files.push(("study.toml".into(), study_toml(sc, seed).into_bytes()));
+    let mut toml = study_toml(sc, seed);
+    let mut scorings = Vec::new();
+    if let Some(sg) = &sc.scorings {
+        let (f, section) = scorings::generate(sc, sg, &pots, &pot_c, &reference, seed)?;
+        toml.push_str(&section);
+        scorings = f;
+    }
+    files.push(("study.toml".into(), toml.into_bytes()));
     files.extend(ex.files.iter().cloned());
+    files.extend(scorings);
 
     // truth/pots.csv
     let mut s = String::from("pot,x,y,gradient_c,field_c");
