@@ -184,7 +184,7 @@ fn check_report(
             );
         }
     }
-    let (a, b) = (t["combined"][0]["estimate"].as_f64().unwrap(), num(&combined[0], "estimate"));
+    let (a, b) = (t["combined"][0]["combined"]["estimate"].as_f64().unwrap(), num(&combined[0], "estimate"));
     assert!((a - b).abs() <= 4.0 * f64::EPSILON * b.abs(), "combined {a} vs {b}");
     let maps = t["maps"].as_array().unwrap();
     assert_eq!(maps.len(), intervals.len());

@@ -29,7 +29,7 @@ use crate::io::scores::{Interval, Intervals, Scores};
 use crate::io::study::Study;
 use crate::spatial::stage::MapRun;
 use chrono::NaiveDateTime;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::ops::Range;
 use std::path::Path;
 
@@ -64,7 +64,7 @@ pub struct GrowthRow {
 }
 
 /// The verdict of one interval and trait.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct IntervalRow {
     /// Trait column.
     pub trait_name: String,
@@ -93,7 +93,7 @@ pub struct IntervalRow {
 }
 
 /// One driver's effect in one interval (the verdict's driver ranking).
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct EffectRow {
     /// Trait column.
     pub trait_name: String,
@@ -120,7 +120,7 @@ pub struct EffectRow {
 }
 
 /// The second stage for one trait and driver.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct CombinedRow {
     /// Trait column.
     pub trait_name: String,

@@ -95,7 +95,7 @@ pub fn p_value(p: Option<f64>) -> String {
     }
 }
 
-fn opt(v: Option<f64>, f: impl Fn(f64) -> String) -> String {
+pub(super) fn opt(v: Option<f64>, f: impl Fn(f64) -> String) -> String {
     v.map_or_else(|| "–".into(), f)
 }
 
@@ -110,7 +110,7 @@ fn with_unit(name: &str, unit: Option<&str>) -> String {
     }
 }
 
-fn figure_html(f: Result<Figure, FigureError>, caption: &str) -> String {
+pub(super) fn figure_html(f: Result<Figure, FigureError>, caption: &str) -> String {
     match f {
         Ok(f) => format!(
             "<figure id=\"fig-{}\">\n{}\n<figcaption>{}</figcaption>\n</figure>\n",
@@ -258,7 +258,7 @@ fn section_verdict(d: &ReportData, out: &mut String) {
 }
 
 /// Escape `s` and show each `name` in backticks as code.
-fn rich(s: &str) -> String {
+pub(super) fn rich(s: &str) -> String {
     let mut out = String::new();
     for (i, part) in escape(s).split('`').enumerate() {
         if i % 2 == 1 {

@@ -12,8 +12,8 @@
 //! small multiples ([`super::over_time_figures`]).
 
 use super::figures::{Figure, FigureError};
-use super::html::{escape, fixed, p_value, sig};
-use crate::model::intervals::ScoresRun;
+use super::html::{escape, figure_html, fixed, opt, p_value, rich, sig};
+use crate::model::intervals::{CombinedRow, EffectRow, IntervalRow, ScoresRun};
 use serde::{Deserialize, Serialize};
 use std::fmt::Write as _;
 
@@ -29,6 +29,10 @@ pub struct OverTimeSection {
     /// The compartment's daily climate per indicator.
     #[serde(default)]
     pub daily_climate: Vec<DailyDriver>,
+    /// Unit of each driver with one (`(name, unit)`): indicators, and metres
+    /// for a distance to an opening.
+    #[serde(default)]
+    pub driver_units: Vec<(String, String)>,
     /// Notes of the analysis (missing cells, superseded scorings).
     #[serde(default)]
     pub notes: Vec<String>,
@@ -47,7 +51,8 @@ pub struct DailyDriver {
     pub values: Vec<Option<f64>>,
 }
 
-/// Everything shown for one trait.
+/// Everything shown for one trait: the model stage's rows, as written to
+/// `scores_intervals.csv`, `scores_effects.csv` and `scores_combined.csv`.
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct TraitOverTime {
     /// Trait column.
@@ -55,90 +60,27 @@ pub struct TraitOverTime {
     /// Unit of growth (`None`: trait units; `log_ratio`: dimensionless).
     #[serde(default)]
     pub growth_unit: Option<String>,
-    /// One row per interval, as `scores_intervals.csv`.
-    pub intervals: Vec<IntervalVerdict>,
-    /// One row per interval and driver, as `scores_effects.csv`.
-    pub effects: Vec<IntervalEffect>,
-    /// One row per driver, as `scores_combined.csv`.
-    pub combined: Vec<CombinedEffect>,
+    /// One row per interval.
+    pub intervals: Vec<IntervalRow>,
+    /// One row per interval and driver.
+    pub effects: Vec<EffectRow>,
+    /// One row per driver.
+    pub combined: Vec<CombinedRow>,
     /// Growth of each pot per interval, for the maps.
     pub maps: Vec<GrowthMap>,
 }
 
-/// The verdict of one interval.
-#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
-pub struct IntervalVerdict {
-    /// Interval number (1-based).
-    pub interval: usize,
-    /// Earliest scoring opening it, local `YYYY-MM-DD HH:MM`.
-    pub from: String,
-    /// Latest scoring closing it.
-    pub to: String,
-    /// Pots analysed.
-    pub pots: usize,
-    /// Pots not analysed.
-    pub left_out: usize,
-    /// Verdict word (`None`: not analysed).
-    pub verdict: Option<String>,
-    /// Chosen model.
-    pub best_model: Option<String>,
-    /// Range of the chosen model's correlation, metres.
-    pub range_m: Option<f64>,
-    /// Its nugget share.
-    pub nugget_share: Option<f64>,
-    /// Climate drivers constant over the interval's pots.
-    pub constant_drivers: Vec<String>,
-    /// The verdict's reason, or why the interval was not analysed.
-    pub reason: String,
-}
-
-/// One driver's effect in one interval.
-#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
-pub struct IntervalEffect {
-    /// Interval number.
-    pub interval: usize,
-    /// Driver.
-    pub driver: String,
-    /// Unit of the driver.
-    #[serde(default)]
-    pub driver_unit: Option<String>,
-    /// Effect per unit of the driver, growth units.
-    pub estimate: f64,
-    /// Plug-in SE.
-    pub se: f64,
-    /// 95 % interval.
-    pub ci_low: f64,
-    /// Upper end.
-    pub ci_high: f64,
-    /// Two-sided p.
-    pub p_value: f64,
-    /// The model the estimate comes from.
-    pub source_model: String,
-}
-
-/// The second stage for one driver.
-#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
-pub struct CombinedEffect {
-    /// Driver.
-    pub driver: String,
-    /// Intervals combined.
-    pub intervals: usize,
-    /// Inverse-variance weighted mean.
-    pub estimate: f64,
-    /// Its SE.
-    pub se: f64,
-    /// Normal 95 % interval.
-    pub ci_low: f64,
-    /// Upper end.
-    pub ci_high: f64,
-    /// Cochran's Q.
-    pub q: f64,
-    /// Its degrees of freedom.
-    pub df: usize,
-    /// P of a changing effect.
-    pub p_changing: f64,
-    /// I².
-    pub i_squared: f64,
+impl TraitOverTime {
+    /// The drivers with an effect in some interval, in order of first appearance.
+    pub fn drivers(&self) -> Vec<&str> {
+        let mut drivers: Vec<&str> = Vec::new();
+        for e in &self.effects {
+            if !drivers.contains(&e.driver.as_str()) {
+                drivers.push(&e.driver);
+            }
+        }
+        drivers
+    }
 }
 
 /// Growth of every pot scored over one interval.
@@ -150,7 +92,8 @@ pub struct GrowthMap {
     pub points: Vec<(f64, f64, Option<f64>)>,
 }
 
-fn stamp(t: &chrono::NaiveDateTime) -> String {
+/// A local time as the CSV files write it.
+pub fn stamp(t: &chrono::NaiveDateTime) -> String {
     t.format("%Y-%m-%d %H:%M").to_string()
 }
 
@@ -167,59 +110,8 @@ pub fn from_scores(run: &ScoresRun, units: &[(String, String)]) -> Option<OverTi
         .traits
         .iter()
         .map(|t| {
-            let intervals: Vec<IntervalVerdict> = run
-                .intervals
-                .iter()
-                .filter(|r| &r.trait_name == t)
-                .map(|r| IntervalVerdict {
-                    interval: r.interval,
-                    from: stamp(&r.from),
-                    to: stamp(&r.to),
-                    pots: r.pots,
-                    left_out: r.left_out,
-                    verdict: r.verdict.clone(),
-                    best_model: r.best_model.clone(),
-                    range_m: r.range,
-                    nugget_share: r.nugget_share,
-                    constant_drivers: r.constant_drivers.clone(),
-                    reason: r.reason.clone(),
-                })
-                .collect();
-            let effects = run
-                .effects
-                .iter()
-                .filter(|e| &e.trait_name == t)
-                .map(|e| IntervalEffect {
-                    interval: e.interval,
-                    driver: e.driver.clone(),
-                    driver_unit: unit_of(&e.driver).or_else(|| {
-                        e.driver.starts_with(crate::spatial::geometry::DISTANCE_PREFIX).then(|| "m".into())
-                    }),
-                    estimate: e.estimate,
-                    se: e.se,
-                    ci_low: e.ci_low,
-                    ci_high: e.ci_high,
-                    p_value: e.p_value,
-                    source_model: e.source_model.clone(),
-                })
-                .collect();
-            let combined = run
-                .combined
-                .iter()
-                .filter(|c| &c.trait_name == t)
-                .map(|c| CombinedEffect {
-                    driver: c.driver.clone(),
-                    intervals: c.combined.intervals,
-                    estimate: c.combined.estimate,
-                    se: c.combined.se,
-                    ci_low: c.combined.ci_low,
-                    ci_high: c.combined.ci_high,
-                    q: c.combined.q,
-                    df: c.combined.df,
-                    p_changing: c.combined.p_changing,
-                    i_squared: c.combined.i_squared,
-                })
-                .collect();
+            let intervals: Vec<IntervalRow> =
+                run.intervals.iter().filter(|r| &r.trait_name == t).cloned().collect();
             let maps = intervals
                 .iter()
                 .map(|iv| GrowthMap {
@@ -236,12 +128,20 @@ pub fn from_scores(run: &ScoresRun, units: &[(String, String)]) -> Option<OverTi
                 trait_name: t.clone(),
                 growth_unit: (run.growth == "log_ratio").then(|| "ln ratio".to_string()),
                 intervals,
-                effects,
-                combined,
+                effects: run.effects.iter().filter(|e| &e.trait_name == t).cloned().collect(),
+                combined: run.combined.iter().filter(|c| &c.trait_name == t).cloned().collect(),
                 maps,
             }
         })
         .collect();
+    let mut driver_units: Vec<(String, String)> = Vec::new();
+    for e in &run.effects {
+        let unit = unit_of(&e.driver)
+            .or_else(|| e.driver.starts_with(crate::spatial::geometry::DISTANCE_PREFIX).then(|| "m".into()));
+        if let Some(u) = unit.filter(|_| !driver_units.iter().any(|(n, _)| n == &e.driver)) {
+            driver_units.push((e.driver.clone(), u));
+        }
+    }
     let daily_climate = run
         .daily_climate
         .iter()
@@ -257,33 +157,20 @@ pub fn from_scores(run: &ScoresRun, units: &[(String, String)]) -> Option<OverTi
         interval_rule: run.interval_rule.clone(),
         traits,
         daily_climate,
+        driver_units,
         notes: run.notes.clone(),
     })
 }
 
-/// The section's id, and its entry in the page's table of contents.
-pub const SECTION_ID: &str = "over-time";
-
-fn figure(f: Result<Figure, FigureError>, caption: &str, out: &mut String) {
-    match f {
-        Ok(f) => {
-            let _ = write!(
-                out,
-                "<figure id=\"fig-{}\">\n{}\n<figcaption>{}</figcaption>\n</figure>\n",
-                escape(&f.id),
-                f.svg.trim(),
-                caption
-            );
-        }
-        Err(e) => {
-            let _ = writeln!(out, "<p class=\"missing\">{}</p>", escape(&e.to_string()));
-        }
+impl OverTimeSection {
+    /// The unit of a driver, when known.
+    pub fn driver_unit(&self, driver: &str) -> Option<&str> {
+        self.driver_units.iter().find(|(n, _)| n == driver).map(|(_, u)| u.as_str())
     }
 }
 
-fn opt(v: Option<f64>, f: impl Fn(f64) -> String) -> String {
-    v.map_or_else(|| "–".into(), f)
-}
+/// The section's id, and its entry in the page's table of contents.
+pub const SECTION_ID: &str = "over-time";
 
 /// Every figure of the section, in page order, with its caption.
 pub fn figures(
@@ -300,13 +187,7 @@ pub fn figures(
                 escape(&t.trait_name)
             ),
         ));
-        let mut drivers: Vec<&str> = Vec::new();
-        for e in &t.effects {
-            if !drivers.contains(&e.driver.as_str()) {
-                drivers.push(&e.driver);
-            }
-        }
-        for d in drivers {
+        for d in t.drivers() {
             let daily = s.daily_climate.iter().find(|c| c.name == d);
             let caption = format!(
                 "Effect of {d} on the growth of {tr} per interval (bar: estimate; shaded: 95 % interval; the dashed line and band: the effect combined over intervals with its 95 % interval), above {below}.",
@@ -318,7 +199,7 @@ pub fn figures(
                     "no daily climate (a distance to an opening has none)".to_string()
                 }
             );
-            out.push((f::effect_over_time(t, d, daily), caption));
+            out.push((f::effect_over_time(t, d, s.driver_unit(d), daily), caption));
         }
         out.push((
             f::growth_maps(t, extent),
@@ -342,7 +223,7 @@ pub fn section(s: &OverTimeSection, extent: Option<(f64, f64)>, out: &mut String
     if !s.notes.is_empty() {
         out.push_str("<ul class=\"notes\">");
         for n in &s.notes {
-            let _ = write!(out, "<li>{}</li>", escape(n));
+            let _ = write!(out, "<li>{}</li>", rich(n));
         }
         out.push_str("</ul>\n");
     }
@@ -351,7 +232,7 @@ pub fn section(s: &OverTimeSection, extent: Option<(f64, f64)>, out: &mut String
         let unit = t.growth_unit.as_deref().unwrap_or("trait units");
         let _ = writeln!(out, "<h3>{}: growth per interval</h3>", escape(&t.trait_name));
         if let Some((f, c)) = figs.next() {
-            figure(f, &c, out);
+            out.push_str(&figure_html(f, &c));
         }
         out.push_str("<div class=\"scroll\"><table class=\"intervals\">\n<tr><th class=\"n\">interval</th><th>from</th><th>to</th><th class=\"n\">pots</th><th class=\"n\">left out</th><th>verdict</th><th>chosen model</th><th class=\"n\">range (m)</th><th class=\"n\">nugget share</th><th>constant drivers</th><th>why</th></tr>\n");
         for r in &t.intervals {
@@ -359,28 +240,22 @@ pub fn section(s: &OverTimeSection, extent: Option<(f64, f64)>, out: &mut String
                 out,
                 "<tr><td class=\"n\">{}</td><td>{}</td><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td>{}</td><td><code>{}</code></td><td class=\"n\">{}</td><td class=\"n\">{}</td><td>{}</td><td>{}</td></tr>",
                 r.interval,
-                escape(&r.from),
-                escape(&r.to),
+                stamp(&r.from),
+                stamp(&r.to),
                 r.pots,
                 r.left_out,
                 escape(r.verdict.as_deref().unwrap_or("not analysed")),
                 escape(r.best_model.as_deref().unwrap_or("–")),
-                opt(r.range_m, |v| sig(v, 3)),
+                opt(r.range, |v| sig(v, 3)),
                 opt(r.nugget_share, |v| fixed(v, 2)),
                 escape(&r.constant_drivers.join(", ")),
-                escape(&r.reason)
+                rich(&r.reason)
             );
         }
         out.push_str("</table></div>\n");
-        let mut drivers: Vec<&str> = Vec::new();
-        for e in &t.effects {
-            if !drivers.contains(&e.driver.as_str()) {
-                drivers.push(&e.driver);
-            }
-        }
-        for _ in &drivers {
+        for _ in t.drivers() {
             if let Some((f, c)) = figs.next() {
-                figure(f, &c, out);
+                out.push_str(&figure_html(f, &c));
             }
         }
         let _ = writeln!(
@@ -394,7 +269,7 @@ pub fn section(s: &OverTimeSection, extent: Option<(f64, f64)>, out: &mut String
                 out,
                 "<tr><td class=\"n\">{}</td><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{} to {}</td><td class=\"n\">{}</td><td><code>{}</code></td></tr>",
                 e.interval,
-                escape(&match &e.driver_unit {
+                escape(&match s.driver_unit(&e.driver) {
                     Some(u) => format!("{} ({u})", e.driver),
                     None => e.driver.clone(),
                 }),
@@ -420,21 +295,21 @@ pub fn section(s: &OverTimeSection, extent: Option<(f64, f64)>, out: &mut String
                     out,
                     "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{} to {}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td></tr>",
                     escape(&c.driver),
-                    c.intervals,
-                    sig(c.estimate, 3),
-                    sig(c.se, 3),
-                    sig(c.ci_low, 3),
-                    sig(c.ci_high, 3),
-                    sig(c.q, 3),
-                    c.df,
-                    p_value(Some(c.p_changing)),
-                    fixed(c.i_squared, 2)
+                    c.combined.intervals,
+                    sig(c.combined.estimate, 3),
+                    sig(c.combined.se, 3),
+                    sig(c.combined.ci_low, 3),
+                    sig(c.combined.ci_high, 3),
+                    sig(c.combined.q, 3),
+                    c.combined.df,
+                    p_value(Some(c.combined.p_changing)),
+                    fixed(c.combined.i_squared, 2)
                 );
             }
             out.push_str("</table></div>\n");
         }
         if let Some((f, c)) = figs.next() {
-            figure(f, &c, out);
+            out.push_str(&figure_html(f, &c));
         }
     }
     out.push_str("</section>\n");

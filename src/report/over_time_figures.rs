@@ -15,21 +15,15 @@ use plotters::prelude::*;
 /// Width of the colour-bar column of the growth maps, pixels.
 const LEGEND_W: u32 = 134;
 
-fn parse(s: &str) -> Option<NaiveDateTime> {
-    NaiveDateTime::parse_from_str(s, "%Y-%m-%d %H:%M").ok()
-}
-
 /// Interval number, start and end in days after the time axis's origin.
 type Span = (usize, f64, f64);
 
 /// The time axis of a trait: its first interval's start, and every
 /// interval's span in days after it.
 fn time_axis(t: &TraitOverTime) -> Option<(NaiveDateTime, Vec<Span>)> {
-    let starts: Vec<NaiveDateTime> = t.intervals.iter().filter_map(|i| parse(&i.from)).collect();
-    let t0 = starts.into_iter().min()?;
-    let days = |s: &str| parse(s).map(|x| (x - t0).num_seconds() as f64 / 86_400.0);
-    let spans = t.intervals.iter().filter_map(|i| Some((i.interval, days(&i.from)?, days(&i.to)?))).collect();
-    Some((t0, spans))
+    let t0 = t.intervals.iter().map(|i| i.from).min()?;
+    let days = |x: NaiveDateTime| (x - t0).num_seconds() as f64 / 86_400.0;
+    Some((t0, t.intervals.iter().map(|i| (i.interval, days(i.from), days(i.to))).collect()))
 }
 
 /// Tick label of day offset `v` after `t0`: the local date `MM-DD` at whole days.
@@ -129,6 +123,7 @@ pub fn verdict_strip(t: &TraitOverTime) -> Result<Figure, FigureError> {
 pub fn effect_over_time(
     t: &TraitOverTime,
     driver: &str,
+    driver_unit: Option<&str>,
     daily: Option<&DailyDriver>,
 ) -> Result<Figure, FigureError> {
     let id = format!("effect-over-time-{}-{}", slug(&t.trait_name), slug(driver));
@@ -141,13 +136,13 @@ pub fn effect_over_time(
     let (lo, hi) = finite_extent(
         rows.iter()
             .flat_map(|e| [e.ci_low, e.ci_high])
-            .chain(combined.iter().flat_map(|c| [c.ci_low, c.ci_high]))
+            .chain(combined.iter().flat_map(|c| [c.combined.ci_low, c.combined.ci_high]))
             .chain([0.0]),
     )
     .unwrap_or((-1.0, 1.0));
     let pad = if hi > lo { 0.08 * (hi - lo) } else { 1.0 };
     let growth = t.growth_unit.clone().unwrap_or_else(|| "trait units".into());
-    let dunit = rows.iter().find_map(|e| e.driver_unit.clone()).unwrap_or_else(|| "unit".into());
+    let dunit = driver_unit.unwrap_or("unit");
     let title = format!("Effect of {driver} on growth of {} per interval", t.trait_name);
     let xl = "date (local, month-day)".to_string();
     let yl = format!("effect ({growth} per {dunit})");
@@ -190,7 +185,7 @@ pub fn effect_over_time(
         let grey = ShapeStyle { color: RGBColor(90, 90, 90).to_rgba(), filled: false, stroke_width: 1 };
         chart.draw_series(DashedLineSeries::new([(0.0, 0.0), (x1, 0.0)], 4, 4, grey))?;
         let accent = rgb(CATEGORICAL[1]);
-        if let Some(c) = combined {
+        if let Some(c) = combined.map(|c| &c.combined) {
             chart.draw_series(std::iter::once(Rectangle::new(
                 [(0.0, c.ci_low), (x1, c.ci_high)],
                 accent.mix(0.12).filled(),
@@ -286,9 +281,7 @@ pub fn growth_maps(t: &TraitOverTime, extent: Option<(f64, f64)>) -> Result<Figu
         for (m, area) in t.maps.iter().zip(panels.iter()) {
             let iv = t.intervals.iter().find(|i| i.interval == m.interval);
             let dates = iv
-                .map(|i| {
-                    format!(" ({} to {})", i.from.get(5..10).unwrap_or(""), i.to.get(5..10).unwrap_or(""))
-                })
+                .map(|i| format!(" ({} to {})", i.from.format("%m-%d"), i.to.format("%m-%d")))
                 .unwrap_or_default();
             let mut chart = ChartBuilder::on(area)
                 .caption(format!("interval {}{dates}", m.interval), (FONT, 12))
@@ -319,30 +312,33 @@ pub fn growth_maps(t: &TraitOverTime, extent: Option<(f64, f64)>) -> Result<Figu
 #[cfg(test)]
 mod tests {
     use super::super::figures::tests::assert_inside;
-    use super::super::over_time::{CombinedEffect, GrowthMap, IntervalEffect, IntervalVerdict};
+    use super::super::over_time::GrowthMap;
     use super::super::xml::check_well_formed;
     use super::*;
+    use crate::model::intervals::{CombinedRow, EffectRow, IntervalRow};
 
     fn sample() -> TraitOverTime {
-        let iv = |k: usize, from: &str, to: &str, word: Option<&str>| IntervalVerdict {
+        let at = |d: &str| NaiveDateTime::parse_from_str(&format!("{d} 00:00"), "%Y-%m-%d %H:%M").unwrap();
+        let iv = |k: usize, from: &str, to: &str, word: Option<&str>| IntervalRow {
             interval: k,
-            from: format!("{from} 00:00"),
-            to: format!("{to} 00:00"),
+            from: at(from),
+            to: at(to),
             pots: 10,
             verdict: word.map(str::to_string),
-            ..IntervalVerdict::default()
+            ..IntervalRow::default()
         };
-        let eff = |k: usize, est: f64| IntervalEffect {
+        let eff = |k: usize, est: f64| EffectRow {
             interval: k,
             driver: "night_cold_hours".into(),
-            driver_unit: Some("h".into()),
             estimate: est,
             se: 0.01,
             ci_low: est - 0.02,
             ci_high: est + 0.02,
             p_value: 0.01,
             source_model: "m".into(),
+            ..EffectRow::default()
         };
+        let combined = crate::model::two_stage::combine(&[(-0.05, 0.01), (-0.04, 0.01)]).unwrap();
         TraitOverTime {
             trait_name: "height_cm".into(),
             growth_unit: None,
@@ -353,17 +349,10 @@ mod tests {
                 iv(4, "2026-02-23", "2026-03-02", None),
             ],
             effects: vec![eff(2, -0.05), eff(3, -0.04)],
-            combined: vec![CombinedEffect {
+            combined: vec![CombinedRow {
+                trait_name: "height_cm".into(),
                 driver: "night_cold_hours".into(),
-                intervals: 2,
-                estimate: -0.046,
-                se: 0.007,
-                ci_low: -0.06,
-                ci_high: -0.032,
-                q: 0.5,
-                df: 1,
-                p_changing: 0.48,
-                i_squared: 0.0,
+                combined,
             }],
             maps: (1..=4)
                 .map(|k| GrowthMap {
@@ -387,8 +376,8 @@ mod tests {
         };
         let figs = [
             verdict_strip(&t).unwrap(),
-            effect_over_time(&t, "night_cold_hours", Some(&daily)).unwrap(),
-            effect_over_time(&t, "night_cold_hours", None).unwrap(),
+            effect_over_time(&t, "night_cold_hours", Some("h"), Some(&daily)).unwrap(),
+            effect_over_time(&t, "night_cold_hours", Some("h"), None).unwrap(),
             growth_maps(&t, Some((10.0, 2.0))).unwrap(),
         ];
         for f in &figs {
@@ -404,6 +393,6 @@ mod tests {
         for k in 1..=4 {
             assert!(figs[3].svg.contains(&format!("interval {k} (")), "panel {k}");
         }
-        assert!(effect_over_time(&t, "other", None).is_err());
+        assert!(effect_over_time(&t, "other", None, None).is_err());
     }
 }

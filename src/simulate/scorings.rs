@@ -244,32 +244,13 @@ fn daily_driver(
         }
     }
     let stat = super::statistic(ind);
-    let ea = sc.spec.climate.vapour_pressure;
     pot_c
         .iter()
         .map(|c| {
             by_day
                 .iter()
                 .map(|idx| {
-                    let temp: Vec<f64> =
-                        idx.iter().map(|&i| climate::temperature(sc, reference, c, i)).collect();
-                    let values: Vec<f64> = match ind.variable.as_str() {
-                        "temperature" => temp,
-                        "humidity" => temp.iter().map(|&t| climate::relative_humidity(t, ea)).collect(),
-                        "vpd" => temp
-                            .iter()
-                            .map(|&t| (climate::saturation_vapour_pressure(t) - ea).max(0.0))
-                            .collect(),
-                        _ => idx.iter().map(|&i| reference.ppfd[i] * c.light).collect(),
-                    };
-                    let keep: Vec<bool> = idx
-                        .iter()
-                        .map(|&i| match ind.period.as_deref().unwrap_or("all") {
-                            "night" => reference.night[i],
-                            "day" => !reference.night[i],
-                            _ => true,
-                        })
-                        .collect();
+                    let (values, keep) = super::indicator_series(sc, reference, c, ind, idx);
                     climate::evaluate(stat, &values, &keep, sc.step_minutes, 1.0).unwrap_or(0.0)
                 })
                 .collect()
