@@ -493,9 +493,9 @@ fn one_interval(
     }
     if !row.constant_drivers.is_empty() {
         let list = row.constant_drivers.iter().map(|d| format!("`{d}`")).collect::<Vec<_>>().join(", ");
-        let sep = if row.reason.is_empty() { "" } else { "; " };
-        row.reason =
-            format!("{}{sep}{list} constant over the interval's pots: no effect estimable", row.reason);
+        let reason = row.reason.trim_end_matches('.');
+        let sep = if reason.is_empty() { "" } else { "; " };
+        row.reason = format!("{reason}{sep}{list} constant over the interval's pots: no effect estimable");
     }
     (row, effects)
 }
