@@ -29,7 +29,7 @@ use crate::io::scores::{Interval, Intervals, Scores};
 use crate::io::study::Study;
 use crate::spatial::stage::MapRun;
 use chrono::NaiveDateTime;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::ops::Range;
 use std::path::Path;
 
@@ -64,7 +64,7 @@ pub struct GrowthRow {
 }
 
 /// The verdict of one interval and trait.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct IntervalRow {
     /// Trait column.
     pub trait_name: String,
@@ -93,7 +93,7 @@ pub struct IntervalRow {
 }
 
 /// One driver's effect in one interval (the verdict's driver ranking).
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct EffectRow {
     /// Trait column.
     pub trait_name: String,
@@ -120,7 +120,7 @@ pub struct EffectRow {
 }
 
 /// The second stage for one trait and driver.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct CombinedRow {
     /// Trait column.
     pub trait_name: String,
@@ -269,6 +269,14 @@ pub fn daily_climate(climate: &ClimateRun) -> Vec<DailyClimate> {
         .collect()
 }
 
+/// Largest minus smallest finite value (0 when there are none).
+fn spread(values: impl Iterator<Item = f64>) -> f64 {
+    let (lo, hi) = values
+        .filter(|v| v.is_finite())
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| (a.min(x), b.max(x)));
+    if hi >= lo { hi - lo } else { 0.0 }
+}
+
 /// A column name not among `headers`: `base`, else `base_2`, ...
 fn free_name(base: &str, headers: &[String]) -> String {
     let mut name = base.to_string();
@@ -322,6 +330,17 @@ pub fn analyse_scores(
     }
     let (ind_values, days) = interval_indicators(climate, map, pots, &intervals);
     let ind_names: Vec<String> = climate.config.indicators.iter().map(|i| i.name.clone()).collect();
+    // Each indicator's largest spread over the pots of one interval: the
+    // scale against which an interval's spread counts as numerically nil.
+    let spreads: Vec<(String, f64)> = ind_names
+        .iter()
+        .enumerate()
+        .map(|(i, n)| {
+            let widest =
+                ind_values[i].iter().map(|k| spread(k.iter().flatten().copied())).fold(0.0, f64::max);
+            (n.clone(), widest)
+        })
+        .collect();
     let mut growth_rows = Vec::new();
     let mut rows = Vec::new();
     let mut effects = Vec::new();
@@ -344,7 +363,7 @@ pub fn analyse_scores(
             }
             let cols: Vec<(String, Vec<Option<f64>>)> =
                 (0..ind_names.len()).map(|i| (ind_names[i].clone(), ind_values[i][k].clone())).collect();
-            let (row, eff) = one_interval(study, pots, spec, opts, trait_name, iv, &growth, cols);
+            let (row, eff) = one_interval(study, pots, spec, opts, trait_name, iv, &growth, cols, &spreads);
             rows.push(row);
             effects.extend(eff);
         }
@@ -391,6 +410,7 @@ fn one_interval(
     iv: &Interval,
     growth: &[Option<f64>],
     cols: Vec<(String, Vec<Option<f64>>)>,
+    spreads: &[(String, f64)],
 ) -> (IntervalRow, Vec<EffectRow>) {
     let analysed: Vec<usize> = (0..growth.len()).filter(|&p| growth[p].is_some()).collect();
     let mut row = IntervalRow {
@@ -420,8 +440,14 @@ fn one_interval(
     ispec.drivers.retain(|d| {
         let Some((_, v)) = cols.iter().find(|(n, _)| n == d) else { return true };
         let vals: Vec<f64> = analysed.iter().filter_map(|&p| v[p]).collect();
+        // Constant: equal to 1e-12 (relative), or a spread below one
+        // millionth of the driver's widest spread over the intervals
+        // (mapped cold hours of 1e-9 h in a warm week: numerically nil,
+        // and a singular design if kept).
+        let widest = spreads.iter().find(|(n, _)| n == d).map_or(0.0, |s| s.1);
         let constant = vals.len() == analysed.len()
-            && vals.iter().all(|x| (x - vals[0]).abs() <= 1e-12 * vals[0].abs().max(1.0));
+            && (vals.iter().all(|x| (x - vals[0]).abs() <= 1e-12 * vals[0].abs().max(1.0))
+                || spread(vals.iter().copied()) <= 1e-6 * widest);
         if constant {
             row.constant_drivers.push(d.clone());
         }
@@ -467,9 +493,9 @@ fn one_interval(
     }
     if !row.constant_drivers.is_empty() {
         let list = row.constant_drivers.iter().map(|d| format!("`{d}`")).collect::<Vec<_>>().join(", ");
-        let sep = if row.reason.is_empty() { "" } else { "; " };
-        row.reason =
-            format!("{}{sep}{list} constant over the interval's pots: no effect estimable", row.reason);
+        let reason = row.reason.trim_end_matches('.');
+        let sep = if reason.is_empty() { "" } else { "; " };
+        row.reason = format!("{reason}{sep}{list} constant over the interval's pots: no effect estimable");
     }
     (row, effects)
 }

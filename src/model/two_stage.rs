@@ -32,12 +32,12 @@
 //! hours, degree days, light integral: growth per unit of the sum) but not
 //! for means over intervals of unequal length.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
 /// The second stage for one driver: the constant effect and the test of a
 /// changing effect.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub struct Combined {
     /// Intervals combined.
     pub intervals: usize,

@@ -273,7 +273,10 @@ pub fn run(study: &Study, progress: &dyn Progress) -> Result<RunResults, Pipelin
     let (verdict, scores) = verdict;
 
     let (report, report_files) = in_stage(Stage::Report, progress, || {
-        let data = report_data(study, &plan, &ing, &climate, &map, &verdict, &started, t0);
+        let mut data = report_data(study, &plan, &ing, &climate, &map, &verdict, &started, t0);
+        data.over_time = scores
+            .as_ref()
+            .and_then(|s| crate::report::over_time::from_scores(s, &indicator_units(&climate)));
         let written = write_report(study, &data)?;
         let summary =
             format!("report: {}", written.first().map(|p| p.display().to_string()).unwrap_or_default());
@@ -354,6 +357,11 @@ pub fn sensor_values(plan: &Plan, climate: &ClimateRun) -> Vec<SensorValues> {
             SensorValues { name: ind.name.clone(), points, values }
         })
         .collect()
+}
+
+/// Each indicator's name and unit, as the report labels them.
+fn indicator_units(climate: &ClimateRun) -> Vec<(String, String)> {
+    climate.config.indicators.iter().map(|i| (i.name.clone(), i.unit().to_string())).collect()
 }
 
 /// The report's data from the stages' results.

@@ -49,6 +49,10 @@ pub struct ReportData {
     /// Section 7: inputs, study file, version, seed, run time.
     #[serde(default)]
     pub provenance: Option<Provenance>,
+    /// Repeated scorings: when the climate acted (only with `[scores]` and
+    /// two or more scoring times; absent from `report_data.json` otherwise).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub over_time: Option<super::over_time::OverTimeSection>,
 }
 
 /// The compartment rectangle.

@@ -60,12 +60,12 @@ pub enum FigureError {
     },
 }
 
-type DrawResult = Result<(), Box<dyn std::error::Error>>;
+pub(super) type DrawResult = Result<(), Box<dyn std::error::Error>>;
 
-const FONT: &str = "sans-serif";
+pub(super) const FONT: &str = "sans-serif";
 const LEGEND_W: u32 = 134;
 
-fn rgb(c: Rgb) -> RGBColor {
+pub(super) fn rgb(c: Rgb) -> RGBColor {
     RGBColor(c.0, c.1, c.2)
 }
 
@@ -84,7 +84,7 @@ pub fn slug(s: &str) -> String {
     if t.is_empty() { "x".into() } else { t.to_string() }
 }
 
-fn render(
+pub(super) fn render(
     id: &str,
     title: &str,
     labels: (&str, &str),
@@ -116,7 +116,7 @@ fn render(
 
 /// A vertical colour bar with tick labels and a label naming the quantity
 /// and unit.
-fn colour_bar(area: &DrawingArea<SVGBackend<'_>, Shift>, scale: Scale, label: &str) -> DrawResult {
+pub(super) fn colour_bar(area: &DrawingArea<SVGBackend<'_>, Shift>, scale: Scale, label: &str) -> DrawResult {
     let (lo, hi) = scale.bounds();
     let mut chart = ChartBuilder::on(area)
         .margin_top(40)
@@ -685,7 +685,7 @@ pub fn residual_maps(
 }
 
 /// A logger's value beside its id: three significant digits, never `-0`.
-fn short_number(v: f64) -> String {
+pub(super) fn short_number(v: f64) -> String {
     let s = if v == 0.0 {
         "0".to_string()
     } else {
@@ -700,7 +700,7 @@ fn short_number(v: f64) -> String {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::super::data::{VariogramBin, VariogramFit};
     use super::super::xml::check_well_formed;
     use super::*;

@@ -95,7 +95,7 @@ pub fn p_value(p: Option<f64>) -> String {
     }
 }
 
-fn opt(v: Option<f64>, f: impl Fn(f64) -> String) -> String {
+pub(super) fn opt(v: Option<f64>, f: impl Fn(f64) -> String) -> String {
     v.map_or_else(|| "–".into(), f)
 }
 
@@ -110,7 +110,7 @@ fn with_unit(name: &str, unit: Option<&str>) -> String {
     }
 }
 
-fn figure_html(f: Result<Figure, FigureError>, caption: &str) -> String {
+pub(super) fn figure_html(f: Result<Figure, FigureError>, caption: &str) -> String {
     match f {
         Ok(f) => format!(
             "<figure id=\"fig-{}\">\n{}\n<figcaption>{}</figcaption>\n</figure>\n",
@@ -258,7 +258,7 @@ fn section_verdict(d: &ReportData, out: &mut String) {
 }
 
 /// Escape `s` and show each `name` in backticks as code.
-fn rich(s: &str) -> String {
+pub(super) fn rich(s: &str) -> String {
     let mut out = String::new();
     for (i, part) in escape(s).split('`').enumerate() {
         if i % 2 == 1 {
@@ -937,10 +937,11 @@ pub fn render_html(d: &ReportData) -> String {
          <nav><ol><li><a href=\"#verdict\">1. Answer</a></li><li><a href=\"#layout\">2. Layout</a></li>\
          <li><a href=\"#climate\">3. Climate</a></li><li><a href=\"#spatial\">4. Spatial structure</a></li>\
          <li><a href=\"#models\">5. Models</a></li><li><a href=\"#means\">6. Adjusted means</a></li>\
-         <li><a href=\"#provenance\">7. Provenance</a></li></ol></nav>\n</header>\n<main>\n",
+         {}<li><a href=\"#provenance\">7. Provenance</a></li></ol></nav>\n</header>\n<main>\n",
         escape(title),
         CSS,
-        escape(title)
+        escape(title),
+        if d.over_time.is_some() { "<li><a href=\"#over-time\">Over time</a></li>" } else { "" }
     );
     section_verdict(d, &mut out);
     section_layout(d, &mut out);
@@ -948,6 +949,9 @@ pub fn render_html(d: &ReportData) -> String {
     section_spatial(d, &mut out);
     section_models(d, &mut out);
     section_means(d, &mut out);
+    if let Some(s) = &d.over_time {
+        super::over_time::section(s, extent(d), &mut out);
+    }
     section_provenance(d, &mut out);
     let version = d.provenance.as_ref().map_or(String::new(), |p| format!(" {}", escape(&p.tool_version)));
     let _ = write!(
@@ -994,6 +998,9 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
             sensors(d),
             openings(d),
         ));
+    }
+    if let Some(s) = &d.over_time {
+        out.extend(super::over_time::figures(s, extent(d)).into_iter().map(|(f, _)| f));
     }
     // Ids become file names: two subjects with the same slug must not
     // overwrite each other's file.

@@ -21,6 +21,8 @@ pub mod data;
 pub mod figures;
 pub mod from_verdict;
 pub mod html;
+pub mod over_time;
+pub mod over_time_figures;
 pub mod plan_page;
 pub mod png;
 pub mod sample;

@@ -428,5 +428,6 @@ pub fn sample_report() -> ReportData {
             started: "2026-03-20T09:14:03Z".into(),
             seconds: Some(6.4),
         }),
+        over_time: None,
     }
 }

@@ -136,7 +136,7 @@ pub fn reference<R: Rng + ?Sized>(sc: &Scenario, lead: Duration, rng: &mut R) ->
         } else {
             weather[day] * (1.0 + u) - weather[day - 1] * u
         };
-        let temp = cl.night_temperature
+        let temp = cl.night_temperature - super::scorings::spell_drop(&sc.spells, local.date()) * (1.0 - s)
             + (cl.day_temperature - cl.night_temperature) * s
             + cl.solar_gain * ppfd / 1000.0
             + w;

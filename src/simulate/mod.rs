@@ -32,6 +32,7 @@ pub mod exports;
 pub mod field;
 pub mod growth;
 pub mod scenario;
+pub mod scorings;
 
 pub use error::{Result, SimError};
 pub use scenario::Scenario;
@@ -175,6 +176,34 @@ fn statistic(ind: &scenario::IndicatorSpec) -> Statistic {
     }
 }
 
+/// The true values of `ind`'s variable at the reference instants `idx` at
+/// a point with components `c`, and which of them its period keeps.
+fn indicator_series(
+    sc: &Scenario,
+    reference: &climate::Reference,
+    c: &Components,
+    ind: &scenario::IndicatorSpec,
+    idx: &[usize],
+) -> (Vec<f64>, Vec<bool>) {
+    let ea = sc.spec.climate.vapour_pressure;
+    let temp = || idx.iter().map(|&i| climate::temperature(sc, reference, c, i));
+    let values: Vec<f64> = match ind.variable.as_str() {
+        "temperature" => temp().collect(),
+        "humidity" => temp().map(|t| climate::relative_humidity(t, ea)).collect(),
+        "vpd" => temp().map(|t| (climate::saturation_vapour_pressure(t) - ea).max(0.0)).collect(),
+        _ => idx.iter().map(|&i| reference.ppfd[i] * c.light).collect(),
+    };
+    let keep = idx
+        .iter()
+        .map(|&i| match ind.period.as_deref().unwrap_or("all") {
+            "night" => reference.night[i],
+            "day" => !reference.night[i],
+            _ => true,
+        })
+        .collect();
+    (values, keep)
+}
+
 fn q(s: &str) -> String {
     serde_json::to_string(s).expect("a string serialises")
 }
@@ -250,26 +279,9 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
         let idx: Vec<usize> = (0..reference.times.len())
             .filter(|&i| reference.times[i] >= w0 && reference.times[i] < w1)
             .collect();
-        let temp: Vec<f64> =
-            idx.iter().map(|&i| climate::temperature(sc, &reference, &pot_c[pi], i)).collect();
         let n_days = (p.scored - p.sown).num_days() as f64;
         for (k, ind) in inds.iter().enumerate() {
-            let values: Vec<f64> = match ind.variable.as_str() {
-                "temperature" => temp.clone(),
-                "humidity" => temp.iter().map(|&t| climate::relative_humidity(t, ea)).collect(),
-                "vpd" => {
-                    temp.iter().map(|&t| (climate::saturation_vapour_pressure(t) - ea).max(0.0)).collect()
-                }
-                _ => idx.iter().map(|&i| reference.ppfd[i] * pot_c[pi].light).collect(),
-            };
-            let keep: Vec<bool> = idx
-                .iter()
-                .map(|&i| match ind.period.as_deref().unwrap_or("all") {
-                    "night" => reference.night[i],
-                    "day" => !reference.night[i],
-                    _ => true,
-                })
-                .collect();
+            let (values, keep) = indicator_series(sc, &reference, &pot_c[pi], ind, &idx);
             ind_vals[pi][k] = climate::evaluate(statistic(ind), &values, &keep, sc.step_minutes, n_days)
                 .ok_or_else(|| {
                     sc.bad(
@@ -368,8 +380,16 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
         s.push('\n');
     }
     files.push(("sensors.csv".into(), s.into_bytes()));
-    files.push(("study.toml".into(), study_toml(sc, seed).into_bytes()));
+    let mut toml = study_toml(sc, seed);
+    let mut scorings = Vec::new();
+    if let Some(sg) = &sc.scorings {
+        let (f, section) = scorings::generate(sc, sg, &pots, &pot_c, &reference, seed)?;
+        toml.push_str(&section);
+        scorings = f;
+    }
+    files.push(("study.toml".into(), toml.into_bytes()));
     files.extend(ex.files.iter().cloned());
+    files.extend(scorings);
 
     // truth/pots.csv
     let mut s = String::from("pot,x,y,gradient_c,field_c");

@@ -192,6 +192,9 @@ pub struct ClimateSpec {
     /// `[climate.noise]`.
     #[serde(default)]
     pub noise: NoiseSpec,
+    /// `[[climate.spell]]`: runs of cold nights.
+    #[serde(default)]
+    pub spell: Vec<super::scorings::SpellSpec>,
 }
 
 fn one() -> f64 {
@@ -395,6 +398,9 @@ pub struct TraitSpec {
     /// `[trait.residual_field]`.
     #[serde(default)]
     pub residual_field: Option<FieldSpec>,
+    /// `[trait.scorings]`: repeated scorings from a daily growth model.
+    #[serde(default)]
+    pub scorings: Option<super::scorings::ScoringsSpec>,
 }
 
 /// `[[trait.effect]]`: a main effect against the first level.
@@ -487,6 +493,10 @@ pub struct Scenario {
     pub residual_field: Option<(Family, f64, f64)>,
     /// Export index of every logger.
     pub logger_export: Vec<usize>,
+    /// Runs of cold nights, checked.
+    pub spells: Vec<super::scorings::Spell>,
+    /// Repeated scorings, checked.
+    pub scorings: Option<super::scorings::Scorings>,
 }
 
 /// A place a pot can stand.
@@ -565,6 +575,16 @@ pub fn local_to_utc(tz: chrono_tz::Tz, t: NaiveDateTime) -> chrono::DateTime<Utc
 
 fn bad(path: &Path, key: &str, message: impl Into<String>, hint: Option<String>) -> SimError {
     SimError::Scenario { path: path.to_path_buf(), key: key.to_string(), message: message.into(), hint }
+}
+
+/// [`bad`] for the sibling modules.
+pub(super) fn bad_key(path: &Path, key: &str, message: impl Into<String>, hint: Option<String>) -> SimError {
+    bad(path, key, message, hint)
+}
+
+/// [`date`] for the sibling modules.
+pub(super) fn parse_date(p: &Path, key: &str, v: &str) -> Result<NaiveDate> {
+    date(p, key, v)
 }
 
 fn did_you_mean<'a>(name: &str, candidates: impl IntoIterator<Item = &'a str> + Clone) -> Option<String> {
@@ -678,6 +698,14 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
     check_faults(p, &spec, &lids, &logger_export)?;
     let residual_field = check_trait(p, &spec.trait_, &spec.design, &names)?;
     check_analysis(p, spec.analysis.as_ref())?;
+    let spells = super::scorings::check_spells(p, &spec.climate.spell, period.start_d, period.end_d)?;
+    let scorings = super::scorings::check_scorings(
+        p,
+        spec.trait_.scorings.as_ref(),
+        &spec.trait_.indicator,
+        &sowing,
+        spec.design.growth_days,
+    )?;
     let Period { tz, start, end, step_minutes, .. } = period;
     Ok(Scenario {
         path: p.to_path_buf(),
@@ -692,6 +720,8 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
         climate_field,
         residual_field,
         logger_export,
+        spells,
+        scorings,
         spec,
     })
 }
