@@ -3,12 +3,14 @@
 //! ranges ([`crate::spatial::anisotropy`]), declared in `[model]` by
 //! `rows_columns = true` and `directional = [families]` (docs/model.md).
 //! This file decides which of them enter the grid and says why one is left
-//! out; the fits are in [`crate::model::gls`], their names and words in
-//! [`crate::model::gls::Errors`] and [`crate::model::gls::Structure`].
+//! out, and names the fitted structures in plain words for the verdict and
+//! the report ([`summarise`], with the residuals' directional variograms as
+//! evidence for a direction); the fits are in [`crate::model::gls`], their
+//! names in [`crate::model::gls::Errors`].
 
 use crate::model::data::{ModelData, ModelSpec};
-use crate::model::gls::{Errors, Fit};
-use crate::spatial::rowcol::Lattice;
+use crate::model::gls::{Errors, Fit, Structure};
+use serde::{Deserialize, Serialize};
 
 /// Append the declared structures to the grid's `error_models` (each
 /// without and, when `[model] nugget` allows, with a nugget, like the
@@ -23,8 +25,10 @@ pub fn add_to_grid(
     notes: &mut Vec<String>,
 ) {
     if spec.rows_columns {
-        match Lattice::from_coords(&data.x, &data.y) {
-            Err(e) => notes.push(format!("rows x columns: not fitted, the pots do not stand on a grid ({e})")),
+        match data.lattice() {
+            Err(e) => notes.push(format!(
+                "rows x columns: not fitted, the pots do not stand on a grid ({e}); name their lattice cells with `[pots] lattice_row` and `lattice_column`"
+            )),
             Ok(l) if l.n_rows < 2 || l.n_cols < 2 => notes.push(format!(
                 "rows x columns: not fitted, the pots stand in {} row(s) and {} column(s) (two of each are needed)",
                 l.n_rows, l.n_cols
@@ -32,10 +36,11 @@ pub fn add_to_grid(
             Ok(l) => {
                 if !l.is_complete() {
                     notes.push(format!(
-                        "rows x columns: the pots fill {} of the {} x {} cells of their grid (rows along y, columns along x); the gaps are handled exactly, by the general dense path",
+                        "rows x columns: the pots fill {} of the {} x {} cells of their grid ({}); the gaps are handled exactly, by the general dense path",
                         l.len(),
                         l.n_rows,
-                        l.n_cols
+                        l.n_cols,
+                        if data.cells.is_some() { "declared in [pots]" } else { "rows along y, columns along x" }
                     ));
                 }
                 error_models.push(Errors::RowsColumns { nugget: false });
@@ -60,13 +65,203 @@ pub fn add_to_grid(
     }
 }
 
+/// Half-width (degrees) of the angular windows of the evidence variograms
+/// (common practice: four windows cover the half-plane).
+pub const EVIDENCE_TOLERANCE_DEG: f64 = 22.5;
+
+/// One bin of an evidence variogram.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct EvidenceBin {
+    /// Mean separation of the bin's pairs, metres.
+    pub lag: f64,
+    /// Matheron semivariance of the residuals, trait units squared.
+    pub semivariance: f64,
+    /// Pairs in the bin.
+    pub pairs: usize,
+}
+
+/// A directional experimental variogram of a fit's raw residuals.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct EvidenceVariogram {
+    /// `along` (the fitted direction of greatest continuity) or `across`.
+    pub label: String,
+    /// Central angle, degrees counter-clockwise from the x axis, `[0, 180)`.
+    pub angle_deg: f64,
+    /// Half-width of the angular window, degrees.
+    pub tolerance_deg: f64,
+    /// The bins holding pairs, by lag.
+    pub bins: Vec<EvidenceBin>,
+}
+
+/// A rows x columns or direction-dependent model of the grid in plain
+/// words: the chosen model, or one within the tie margin of the lowest AIC.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct StructureSummary {
+    /// Grid model name.
+    pub model: String,
+    /// The verdict rests on this model.
+    pub chosen: bool,
+    /// Its AIC minus the smallest AIC of the grid.
+    pub delta_aic: f64,
+    /// The estimates in one sentence, e.g. "rows x columns: neighbouring
+    /// pots along a row correlate 0.62, along a column 0.31".
+    pub sentence: String,
+    /// Rows x columns: correlation of neighbours one column apart (along a
+    /// row), nugget share included: `(1 - eta) phi_c`.
+    pub along_row: Option<f64>,
+    /// Rows x columns: correlation of neighbours one row apart (along a
+    /// column), nugget share included: `(1 - eta) phi_r`.
+    pub along_column: Option<f64>,
+    /// Direction-dependent: direction of greatest continuity, degrees from the x axis.
+    pub direction_degrees: Option<f64>,
+    /// Direction-dependent: practical range along that direction, metres.
+    pub practical_range_along: Option<f64>,
+    /// Direction-dependent: practical range across it, metres.
+    pub practical_range_across: Option<f64>,
+    /// Direction-dependent: across over along, `(0, 1]`.
+    pub range_ratio: Option<f64>,
+    /// Nugget share.
+    pub nugget_share: f64,
+    /// Direction-dependent: the experimental variograms of the model's raw
+    /// residuals along and across the fitted direction (Matheron's
+    /// estimator, the default bins of the layout, windows of
+    /// ±[`EVIDENCE_TOLERANCE_DEG`]); empty for rows x columns.
+    pub evidence: Vec<EvidenceVariogram>,
+}
+
+/// The plain-words sentence of a structure; `declared` says whether the
+/// lattice comes from `[pots]` columns (else rows run along x).
+pub fn sentence(structure: &Structure, declared: bool) -> String {
+    match structure {
+        Structure::RowsColumns { params, .. } => {
+            let shared = 1.0 - params.eta;
+            let axes = if declared {
+                "rows and columns as numbered in the pot table"
+            } else {
+                "rows run along x, columns along y"
+            };
+            let nugget = if params.eta > 0.0 {
+                format!("; a share {:.2} of the variance is the pot's own (nugget)", params.eta)
+            } else {
+                String::new()
+            };
+            format!(
+                "rows x columns: neighbouring pots along a row correlate {:.2}, along a column {:.2} ({axes}){nugget}",
+                shared * params.phi_col,
+                shared * params.phi_row
+            )
+        }
+        Structure::Directional { params, direction } => {
+            let along = params.family.practical_range(params.range);
+            let nugget = if params.eta > 0.0 {
+                format!("; a share {:.2} of the variance is the pot's own (nugget)", params.eta)
+            } else {
+                String::new()
+            };
+            format!(
+                "direction-dependent {}: longest practical range {:.2} m along {:.0} degrees from the x axis, {:.2} times as long across ({:.2} m){nugget}",
+                params.family.name(),
+                along,
+                direction.degrees(),
+                direction.ratio,
+                along * direction.ratio
+            )
+        }
+    }
+}
+
+/// The directional variograms of `residuals` at the pots along `angle_deg`
+/// and across it (the evidence beside a direction-dependent fit). Empty when
+/// the layout gives no lag bins. Cost O(n log n + pairs) per direction.
+pub fn evidence(data: &ModelData, residuals: &[f64], angle_deg: f64) -> Vec<EvidenceVariogram> {
+    use crate::spatial::geometry::{Origin, Points};
+    use crate::spatial::variogram::{Bins, Direction, Estimator, experimental};
+    let Ok(points) =
+        Points::new("pot", data.pots.clone(), data.x.clone(), data.y.clone(), None, &Origin::default())
+    else {
+        return Vec::new();
+    };
+    let Ok(bins) = Bins::default_for(&points) else {
+        return Vec::new();
+    };
+    [("along", angle_deg), ("across", (angle_deg + 90.0).rem_euclid(180.0))]
+        .into_iter()
+        .filter_map(|(label, a)| {
+            let dir = Direction { angle_deg: a, tolerance_deg: EVIDENCE_TOLERANCE_DEG };
+            let e = experimental(&points, residuals, &bins, Estimator::Matheron, Some(dir)).ok()?;
+            Some(EvidenceVariogram {
+                label: label.into(),
+                angle_deg: a,
+                tolerance_deg: EVIDENCE_TOLERANCE_DEG,
+                bins: e
+                    .bins
+                    .iter()
+                    .filter_map(|b| {
+                        b.semivariance.map(|g| EvidenceBin { lag: b.lag, semivariance: g, pairs: b.pairs })
+                    })
+                    .collect(),
+            })
+        })
+        .collect()
+}
+
+/// The summaries of the grid's rows x columns and direction-dependent
+/// models that are chosen or within `tie_delta` AIC units of the lowest AIC
+/// (`fits`: model name, ML fit, AIC minus the lowest), chosen first, then by AIC.
+pub fn summarise(
+    data: &ModelData,
+    fits: &[(String, &Fit, f64)],
+    chosen: &str,
+    tie_delta: f64,
+) -> Vec<StructureSummary> {
+    let mut out: Vec<StructureSummary> = fits
+        .iter()
+        .filter(|(name, _, d)| name == chosen || *d <= tie_delta)
+        .filter_map(|(name, f, d)| {
+            let s = f.structure.as_ref()?;
+            let mut sum = StructureSummary {
+                model: name.clone(),
+                chosen: name == chosen,
+                delta_aic: *d,
+                sentence: sentence(s, data.cells.is_some()),
+                along_row: None,
+                along_column: None,
+                direction_degrees: None,
+                practical_range_along: None,
+                practical_range_across: None,
+                range_ratio: None,
+                nugget_share: 0.0,
+                evidence: Vec::new(),
+            };
+            match s {
+                Structure::RowsColumns { params, .. } => {
+                    sum.along_row = Some((1.0 - params.eta) * params.phi_col);
+                    sum.along_column = Some((1.0 - params.eta) * params.phi_row);
+                    sum.nugget_share = params.eta;
+                }
+                Structure::Directional { params, direction } => {
+                    let along = params.family.practical_range(params.range);
+                    sum.direction_degrees = Some(direction.degrees());
+                    sum.practical_range_along = Some(along);
+                    sum.practical_range_across = Some(along * direction.ratio);
+                    sum.range_ratio = Some(direction.ratio);
+                    sum.nugget_share = params.eta;
+                    sum.evidence = evidence(data, &f.residuals, direction.degrees());
+                }
+            }
+            Some(sum)
+        })
+        .collect();
+    out.sort_by(|a, b| b.chosen.cmp(&a.chosen).then(a.delta_aic.total_cmp(&b.delta_aic)));
+    out
+}
+
 /// `reason` followed by the chosen model's residual structure in plain
-/// words when it is rows x columns or direction-dependent (e.g. `rows x
-/// columns: row correlation 0.62, column correlation 0.31`); `reason`
-/// unchanged otherwise.
-pub fn with_structure(reason: &str, chosen: &Fit) -> String {
+/// words ([`sentence`]) when it is rows x columns or direction-dependent;
+/// `reason` unchanged otherwise.
+pub fn with_structure(reason: &str, chosen: &Fit, declared: bool) -> String {
     match &chosen.structure {
-        Some(s) => format!("{reason} Residual structure of the chosen model: {}.", s.describe()),
+        Some(s) => format!("{reason} Residual structure of the chosen model: {}.", sentence(s, declared)),
         None => reason.to_string(),
     }
 }

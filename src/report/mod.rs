@@ -23,6 +23,7 @@ pub mod from_verdict;
 pub mod html;
 pub mod plan_page;
 pub mod png;
+pub mod residual_structure;
 pub mod sample;
 pub mod xml;
 
