@@ -322,4 +322,180 @@ mod tests {
         );
         assert!(wins[2] + wins[3] >= 10, "{wins:?}");
     }
+
+    use crate::model::data::{ModelData, ModelSpec};
+    use crate::model::gls::Errors;
+    use crate::model::verdict::{VerdictOptions, analyse};
+
+    /// 3 benches x 3 rows x 10 slots: slots 0.4 m apart along x, rows 0.5 m
+    /// apart within a bench and benches 1.7 m apart along y (so the positions
+    /// are not an equally spaced grid); residuals correlated 0.8 along the
+    /// rows and 0.3 from row to row on the 9 x 10 lattice of rows and slots,
+    /// a driver `cold` falling along x with a true effect of 1.5, and a
+    /// little independent noise. Pots are listed in a shuffled order, so the
+    /// declared cells must travel with their pots. With `declared`, the
+    /// lattice cells are given as `[pots]` columns would give them.
+    fn benches(declared: bool, seed: u64) -> ModelData {
+        let (nr, nc) = (9usize, 10usize);
+        let n = nr * nc;
+        let field = rowcol::tests::simulate_field(nr, nc, 0.3, 0.8, seed);
+        let noise = rowcol::tests::simulate_field(nr, nc, 0.0, 0.0, seed + 77);
+        // a fixed shuffle of the cells: k -> (37 k + 11) mod n (37 is prime to 90)
+        let order: Vec<usize> = (0..n).map(|k| (37 * k + 11) % n).collect();
+        let (mut x, mut y, mut resp, mut cold, mut rows, mut cols) =
+            (vec![], vec![], vec![], vec![], vec![], vec![]);
+        for &cell in &order {
+            let (r, c) = (cell / nc, cell % nc);
+            let (bench, row) = (r / 3, r % 3);
+            x.push(c as f64 * 0.4);
+            y.push(bench as f64 * 1.7 + row as f64 * 0.5);
+            let d = 3.0 - 0.25 * c as f64 + 0.1 * (r as f64).sin();
+            cold.push(d);
+            resp.push(10.0 + 1.5 * d + 2.0 * field[cell] + 0.3 * noise[cell]);
+            rows.push(r + 1);
+            cols.push(c + 1);
+        }
+        ModelData {
+            source: "benches.csv".into(),
+            trait_name: "height".into(),
+            pots: (0..n).map(|i| format!("p{i}")).collect(),
+            lines: (0..n).map(|i| i + 2).collect(),
+            x,
+            y,
+            response: resp,
+            blocks: vec![],
+            factors: vec![],
+            drivers: vec![("cold".into(), cold)],
+            excluded: vec![],
+            cells: declared.then_some((rows, cols)),
+        }
+    }
+
+    fn bench_spec(directional: bool) -> ModelSpec {
+        ModelSpec {
+            trait_column: "height".into(),
+            factors: vec![],
+            interactions: vec![],
+            drivers: vec!["cold".into()],
+            blocks: vec![],
+            correlations: vec![Family::Exponential],
+            nugget: false,
+            trait_unit: None,
+            rows_columns: true,
+            directional: if directional { vec![Family::Exponential] } else { vec![] },
+        }
+    }
+
+    /// Declared lattice columns let rows x columns into the grid where the
+    /// positions are not an equally spaced grid (without them the note says
+    /// why it is left out and names the keys); the parameters reach
+    /// `comparison.csv` in the appended columns, the verdict's reason names
+    /// the structure in plain words, the calibration names the plug-in t it
+    /// uses for it, and the summary carries the neighbours' correlations.
+    #[test]
+    fn declared_lattice_enters_the_grid_and_is_named() {
+        let opts = VerdictOptions { bootstrap: 0, ..VerdictOptions::default() };
+        let r = analyse(&benches(false, 3), &bench_spec(false), &opts).unwrap();
+        assert!(r.models.iter().all(|m| m.row_correlation.is_none()));
+        assert!(
+            r.notes.iter().any(|n| n.contains("rows x columns: not fitted") && n.contains("lattice_row")),
+            "{:?}",
+            r.notes
+        );
+        let csv = crate::model::verdict::comparison_csv(&r);
+        assert!(csv.lines().next().unwrap().ends_with(",converged,chosen"), "{csv}");
+
+        let r = analyse(&benches(true, 3), &bench_spec(false), &opts).unwrap();
+        let rc: Vec<_> = r.models.iter().filter(|m| m.correlation == "rows_x_columns").collect();
+        assert_eq!(rc.len(), 2, "{:?}", r.models.iter().map(|m| &m.name).collect::<Vec<_>>());
+        for m in &rc {
+            let (pr, pc) = (m.row_correlation.unwrap(), m.column_correlation.unwrap());
+            assert!(pc > 0.5 && pr < pc, "row {pr} column {pc}");
+            assert_eq!(m.nugget_share, Some(0.0));
+            assert_eq!(m.n_params, 1 + usize::from(!m.drivers.is_empty()) + 1 + 2);
+        }
+        let csv = crate::model::verdict::comparison_csv(&r);
+        let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+        assert_eq!(&header[header.len() - 2..], ["row_correlation", "column_correlation"]);
+        let line = csv.lines().find(|l| l.starts_with("base+cold | rows_x_columns,")).unwrap();
+        let cells: Vec<&str> = line.split(',').collect();
+        let want = rc.iter().find(|m| !m.drivers.is_empty()).unwrap();
+        assert_eq!(cells[cells.len() - 2].parse::<f64>().unwrap(), want.row_correlation.unwrap());
+        assert_eq!(r.best_model, "base+cold | rows_x_columns", "{csv}");
+        assert!(
+            r.reason.contains("rows x columns: neighbouring pots along a row correlate")
+                && r.reason.contains("rows and columns as numbered in the pot table"),
+            "{}",
+            r.reason
+        );
+        let s = &r.structures[0];
+        assert!(s.chosen && s.model == r.best_model);
+        assert_eq!(s.along_row, want.column_correlation);
+        assert!(s.evidence.is_empty());
+        let t = &r.calibration.steps[0].tests[0];
+        assert_eq!(t.method, "plug-in t (no small-sample correction for rows x columns errors)");
+        assert_eq!(t.se, t.se_plugin);
+        assert!((1.0..2.0).contains(&t.estimate), "{}", t.estimate);
+    }
+
+    /// Declared cells equal to the cells the positions give yield the same
+    /// fit, bit for bit, though the pots are listed out of order: the cells
+    /// travel with their pots.
+    #[test]
+    fn declared_cells_match_the_grid_of_the_positions() {
+        let mut a = benches(true, 5);
+        a.y = a.cells.as_ref().unwrap().0.iter().map(|&r| r as f64 * 0.5).collect();
+        let mut b = a.clone();
+        b.cells = None;
+        let (la, lb) = (a.lattice().unwrap(), b.lattice().unwrap());
+        assert_eq!(la, lb);
+        let dspec = crate::model::design::DesignSpec { drivers: vec!["cold".into()], ..Default::default() };
+        let design = crate::model::design::Design::build(&a, &dspec).unwrap();
+        let fa =
+            crate::model::gls::fit_rows_columns("a", &design, &a.response, &la, false, LikelihoodKind::Ml)
+                .unwrap();
+        assert!(fa.correlation_at(1.0).is_none(), "no correlation by distance alone for rows x columns");
+        assert!(fa.isotropic_or_refuse("the parametric bootstrap").unwrap_err().contains("rows x columns"));
+        assert_eq!(fa.errors, Errors::RowsColumns { nugget: false });
+        let fb =
+            crate::model::gls::fit_rows_columns("b", &design, &b.response, &lb, false, LikelihoodKind::Ml)
+                .unwrap();
+        assert_eq!(fa.loglik, fb.loglik);
+        // the bootstrap refuses to simulate from it rather than treat it as independent
+        let dist = Distances::from_coords(&a.x, &a.y).unwrap();
+        let e =
+            crate::model::bootstrap::bootstrap_lrt(("a", "b"), &design, &design, &fa, &dist, 1.0, 0.3, 9, 1)
+                .unwrap_err();
+        assert!(format!("{e}").contains("not available for rows x columns"), "{e}");
+    }
+
+    /// A direction-dependent model in the grid: its angle and ratio reach
+    /// `comparison.csv`, and its summary (chosen or within the tie margin)
+    /// carries the sentence and the residual variograms along and across.
+    #[test]
+    fn directional_model_is_described_with_evidence() {
+        let opts = VerdictOptions { bootstrap: 0, tie_delta: 1e9, ..VerdictOptions::default() };
+        let r = analyse(&benches(true, 4), &bench_spec(true), &opts).unwrap();
+        let csv = crate::model::verdict::comparison_csv(&r);
+        let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+        assert_eq!(
+            &header[header.len() - 4..],
+            ["row_correlation", "column_correlation", "direction_degrees", "range_ratio"]
+        );
+        let m = r.models.iter().find(|m| m.correlation == "exponential_directional").unwrap();
+        let (deg, ratio) = (m.direction_degrees.unwrap(), m.range_ratio.unwrap());
+        assert!((0.0..180.0).contains(&deg) && ratio > 0.0 && ratio <= 1.0);
+        assert!(m.range.is_some() && m.row_correlation.is_none());
+        let s = r.structures.iter().find(|s| s.model == m.name).expect("within the (wide) tie margin");
+        assert!(
+            s.sentence.starts_with("direction-dependent exponential: longest practical range"),
+            "{}",
+            s.sentence
+        );
+        assert_eq!(s.direction_degrees, Some(deg));
+        assert_eq!(s.evidence.len(), 2);
+        assert_eq!(s.evidence[0].label, "along");
+        assert!((s.evidence[1].angle_deg - (deg + 90.0).rem_euclid(180.0)).abs() < 1e-12);
+        assert!(s.evidence.iter().all(|e| !e.bins.is_empty()));
+    }
 }

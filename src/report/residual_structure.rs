@@ -77,7 +77,7 @@ mod tests {
         StructureSummary {
             model: "base | exponential_directional".into(),
             chosen,
-            delta_aic: if chosen { 0.0 } else { 1.25 },
+            delta_aic: if chosen { 0.0 } else { 1.5 },
             sentence: "direction-dependent exponential: longest practical range 3.10 m along 25 degrees from the x axis, 0.40 times as long across (1.24 m)".into(),
             along_row: None,
             along_column: None,
@@ -110,7 +110,7 @@ mod tests {
             out.contains("The verdict rests on this model: <code>base | exponential_directional</code>"),
             "{out}"
         );
-        assert!(out.contains("Within the tie margin (1.3 AIC units above the lowest)"), "{out}");
+        assert!(out.contains("Within the tie margin (1.5 AIC units above the lowest)"), "{out}");
         assert!(
             out.contains("Direction-dependent exponential: longest practical range 3.10 m along 25 degrees"),
             "{out}"
