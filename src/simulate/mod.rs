@@ -770,6 +770,54 @@ mod tests {
         }
     }
 
+    fn residual_column(files: &[(String, Vec<u8>)]) -> Vec<String> {
+        let (_, b) = files.iter().find(|(n, _)| n == "truth/pots.csv").unwrap();
+        let text = String::from_utf8(b.clone()).unwrap();
+        let mut lines = text.lines();
+        let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+        let j = header.iter().position(|h| *h == "residual_field").unwrap();
+        lines.map(|l| l.split(',').nth(j).unwrap().to_string()).collect()
+    }
+
+    fn with_trait_keys(extra: &str) -> Result<Scenario> {
+        Scenario::from_source(Path::new("scenario.toml"), &format!("{}\n{extra}", scenario::tests::small()))
+    }
+
+    /// `[trait.residual_direction]` with angle 0 and ratio 1 leaves the
+    /// residual field exactly as without it (the stretched distance is the
+    /// distance); a real direction changes it; its keys and
+    /// `[trait.residual_lattice]` are checked with the key named. The bench
+    /// layout of the small scenario (benches 2 m apart, rows 0.5 m) is not
+    /// an equally spaced grid, so the lattice field is refused with the reason.
+    #[test]
+    fn residual_direction_and_lattice_keys() {
+        let plain = residual_column(&generate(&small(), 5).unwrap());
+        let same = with_trait_keys("[trait.residual_direction]\nangle = 0.0\nratio = 1.0\n").unwrap();
+        assert_eq!(residual_column(&generate(&same, 5).unwrap()), plain);
+        let turned = with_trait_keys("[trait.residual_direction]\nangle = 30.0\nratio = 0.3\n").unwrap();
+        assert_ne!(residual_column(&generate(&turned, 5).unwrap()), plain);
+        for (extra, key) in [
+            ("[trait.residual_direction]\nangle = 30.0\nratio = 1.5\n", "trait.residual_direction.ratio"),
+            (
+                "[trait.residual_lattice]\nrow_correlation = 1.0\ncolumn_correlation = 0.5\nsill = 1.0\n",
+                "trait.residual_lattice.row_correlation",
+            ),
+        ] {
+            let e = with_trait_keys(extra).unwrap_err();
+            assert!(format!("{e}").contains(key), "{e}");
+        }
+        let lattice = with_trait_keys(
+            "[trait.residual_lattice]\nrow_correlation = 0.2\ncolumn_correlation = 0.8\nsill = 1.0\n",
+        )
+        .unwrap();
+        let e = generate(&lattice, 5).unwrap_err();
+        assert!(
+            format!("{e}").contains("trait.residual_lattice")
+                && format!("{e}").contains("not equally spaced"),
+            "{e}"
+        );
+    }
+
     #[test]
     fn written_study_loads_and_files_exist() {
         let sc = small();
