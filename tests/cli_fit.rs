@@ -85,7 +85,7 @@ fn fit_writes_every_table() {
     let mut lines = models.lines();
     assert_eq!(
         lines.next().unwrap(),
-        "model,trait,drivers,correlation,nugget,method,loglik,aic,bic,n_params,range,partial_sill,nugget_variance,converged"
+        "model,trait,drivers,correlation,nugget,method,loglik,aic,bic,n_params,range,partial_sill,nugget_variance,converged,row_correlation,column_correlation,direction_degrees,range_ratio"
     );
     let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect()).collect();
     // independent + 2 families x (with, without nugget), each by ML and REML

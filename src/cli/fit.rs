@@ -28,6 +28,7 @@ pub fn run(args: FitArgs) -> anyhow::Result<()> {
 }
 
 mod potclim_model_print {
+    use crate::model::gls::Structure;
     use crate::model::stage::{FitReport, REFERENCE_DISTANCES, model_name};
 
     fn fmt(v: f64) -> String {
@@ -159,9 +160,15 @@ mod potclim_model_print {
             "conv."
         );
         for (f, m) in r.fits.iter().zip(&r.moran) {
-            let (range, pr, eta) = match &f.covariance {
-                Some(c) => (fmt(c.params.range), fmt(c.practical_range), fmt(c.params.eta)),
-                None => ("-".into(), "-".into(), "-".into()),
+            let (range, pr, eta) = match (&f.covariance, &f.structure) {
+                (Some(c), _) => (fmt(c.params.range), fmt(c.practical_range), fmt(c.params.eta)),
+                (None, Some(Structure::Directional { params, .. })) => {
+                    (fmt(params.range), fmt(params.family.practical_range(params.range)), fmt(params.eta))
+                }
+                (None, Some(Structure::RowsColumns { params, .. })) => {
+                    ("-".into(), "-".into(), fmt(params.eta))
+                }
+                (None, None) => ("-".into(), "-".into(), "-".into()),
             };
             outln!(
                 "{:<24} {:>6} {:>12} {:>10} {:>10} {:>3} {:>9} {:>10} {:>10} {:>8} {:>9} {:>6}",
@@ -178,6 +185,9 @@ mod potclim_model_print {
                 m.as_ref().map(|m| fmt(m.p)).unwrap_or("-".into()),
                 if f.converged() { "yes" } else { "NO" }
             );
+            if let Some(st) = &f.structure {
+                outln!("{:<24} {}", "", st.describe());
+            }
             if let Some(s) = &f.search {
                 if !s.at_bounds.is_empty() {
                     outln!("{:<24} estimate on a bound: {}", "", s.at_bounds.join(", "));
@@ -194,7 +204,9 @@ mod potclim_model_print {
             }
         }
         outln!();
-        outln!("correlation at reference distances (REML fits; nugget share included)");
+        outln!(
+            "correlation at reference distances (REML fits of distance families; nugget share included; rows x columns and direction-dependent fits are described above)"
+        );
         out!("{:<24}", "model");
         for d in REFERENCE_DISTANCES {
             out!(" {:>8}", format!("{d} m"));
@@ -205,7 +217,7 @@ mod potclim_model_print {
         }) {
             out!("{:<24}", model_name(f));
             for d in REFERENCE_DISTANCES {
-                out!(" {:>8}", fmt(f.correlation_at(d)));
+                out!(" {:>8}", f.correlation_at(d).map(fmt).unwrap_or_else(|| "-".into()));
             }
             outln!();
         }

@@ -20,8 +20,70 @@ pub struct Pots {
     pub start: Option<Vec<NaiveDateTime>>,
     /// End of each pot's growth window (local time of the study), if given.
     pub end: Option<Vec<NaiveDateTime>>,
+    /// Lattice cells `(row, column)` of each pot from the declared
+    /// `[pots] lattice_row` and `lattice_column` columns, 0-based (the
+    /// smallest number in each column is index 0); `None` when not declared.
+    pub cells: Option<(Vec<usize>, Vec<usize>)>,
     /// The whole table, for trait, factor and covariate columns.
     pub table: Table,
+}
+
+/// The cells of the declared lattice columns: each a whole number (any
+/// sign; 0-based after subtracting the column's smallest value), no cell
+/// empty, no two pots in one (row, column) cell. Errors name the file, line,
+/// column and value. Cost O(n) with a hash set.
+fn lattice_cells(table: &Table, row: &str, col: &str) -> Result<(Vec<usize>, Vec<usize>)> {
+    let whole = |name: &str| -> Result<Vec<i64>> {
+        let j = table.column(name)?;
+        table
+            .rows
+            .iter()
+            .zip(&table.lines)
+            .map(|(r, &line)| {
+                let v = r[j].trim();
+                if is_missing(v) {
+                    return Err(table.bad(
+                        line,
+                        name,
+                        v,
+                        "the lattice index is missing",
+                        Some("every pot needs its row and column on the lattice (whole numbers)".into()),
+                    ));
+                }
+                match v.parse::<f64>() {
+                    Ok(x) if x.is_finite() && x.fract() == 0.0 && x.abs() < 1e9 => Ok(x as i64),
+                    _ => Err(table.bad(
+                        line,
+                        name,
+                        v,
+                        "a lattice index must be a whole number",
+                        Some("number the rows and the columns of the lattice 1, 2, 3, ...".into()),
+                    )),
+                }
+            })
+            .collect()
+    };
+    let (r, c) = (whole(row)?, whole(col)?);
+    let base = |v: &[i64]| v.iter().copied().min().unwrap_or(0);
+    let (r0, c0) = (base(&r), base(&c));
+    let rows: Vec<usize> = r.iter().map(|v| (v - r0) as usize).collect();
+    let cols: Vec<usize> = c.iter().map(|v| (v - c0) as usize).collect();
+    let mut seen: HashMap<(usize, usize), usize> = HashMap::new();
+    for i in 0..rows.len() {
+        if let Some(first) = seen.insert((rows[i], cols[i]), table.lines[i]) {
+            return Err(table.bad(
+                table.lines[i],
+                row,
+                &r[i].to_string(),
+                &format!(
+                    "two pots in one lattice cell: {row} = {}, {col} = {} is also the cell of line {first}",
+                    r[i], c[i]
+                ),
+                Some("each (row, column) cell of the lattice holds one pot; check the two lines".into()),
+            ));
+        }
+    }
+    Ok((rows, cols))
 }
 
 /// The sensor table.
@@ -157,7 +219,11 @@ pub fn load_pots(study: &Study) -> Result<Pots> {
             }
         }
     }
-    Ok(Pots { ids, x, y, start, end, table })
+    let cells = match (&spec.lattice_row, &spec.lattice_column) {
+        (Some(r), Some(c)) => Some(lattice_cells(&table, r, c)?),
+        _ => None,
+    };
+    Ok(Pots { ids, x, y, start, end, cells, table })
 }
 
 /// Read the sensor table named by `[sensors]`; `None` when there is none.
@@ -211,6 +277,41 @@ mod tests {
         let pots = load_pots(&st).unwrap();
         assert_eq!(pots.x, vec![1.0, 1.5]);
         assert_eq!(pots.y, vec![0.5, 0.5 + 2.0 + 0.5]);
+    }
+
+    /// Declared lattice columns: read as 0-based cells (from the smallest
+    /// number); a missing, fractional or text cell and two pots in one cell
+    /// are errors naming the file, line, column and value.
+    #[test]
+    fn declared_lattice_cells_are_read_and_checked() {
+        let d = tempfile::tempdir().unwrap();
+        let keys = "x = \"x\"\ny = \"y\"\nlattice_row = \"lane\"\nlattice_column = \"place\"\n";
+        let st = study_in(d.path(), keys, "pot,x,y,lane,place\na,0,0,2,1\nb,1,0,2,2\nc,0,1,3,1\nd,1,1,3,2\n");
+        let pots = load_pots(&st).unwrap();
+        assert_eq!(pots.cells, Some((vec![0, 0, 1, 1], vec![0, 1, 0, 1])));
+        for (csv, line, column, value, words) in [
+            ("pot,x,y,lane,place\na,0,0,1,1\nb,1,0,,2\n", 3, "lane", "", "missing"),
+            ("pot,x,y,lane,place\na,0,0,1,1\nb,1,0,1,2.5\n", 3, "place", "2.5", "whole number"),
+            ("pot,x,y,lane,place\na,0,0,1,1\nb,1,0,one,2\n", 3, "lane", "one", "whole number"),
+            ("pot,x,y,lane,place\na,0,0,1,1\nb,1,0,2,1\nc,2,0,1,1\n", 4, "lane", "1", "line 2"),
+        ] {
+            let st = study_in(d.path(), keys, csv);
+            let e = load_pots(&st).unwrap_err();
+            let msg = format!("{e:#}");
+            match &e {
+                IoError::BadValue { line: l, column: c, value: v, .. } => {
+                    assert_eq!((*l, c.as_str(), v.as_str()), (line, column, value), "{msg}")
+                }
+                other => panic!("unexpected error {other:?}"),
+            }
+            assert!(msg.contains("pots.csv") && msg.contains(words), "{msg}");
+        }
+        // one key without the other is refused when the study is loaded
+        std::fs::write(d.path().join("pots.csv"), "pot,x,y,lane\na,0,0,1\n").unwrap();
+        let src = "[study]\ntitle = \"t\"\ntimezone = \"UTC\"\noutput = \"out\"\n\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\nlattice_row = \"lane\"\n";
+        std::fs::write(d.path().join("study.toml"), src).unwrap();
+        let e = Study::load(&d.path().join("study.toml")).unwrap_err();
+        assert!(format!("{e:#}").contains("lattice_column"), "{e:#}");
     }
 
     #[test]

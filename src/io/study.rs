@@ -116,6 +116,15 @@ pub struct PotsSection {
     /// Grid layout: derive x and y from bench, row and slot numbers.
     #[serde(default)]
     pub grid: Option<GridLayout>,
+    /// Column with each pot's row on the lattice of the rows x columns
+    /// residual model (whole numbers; give it with `lattice_column`). Without
+    /// the pair, rows and columns are derived from the positions when they
+    /// form an exact grid.
+    #[serde(default)]
+    pub lattice_row: Option<String>,
+    /// Column with each pot's column on that lattice (whole numbers).
+    #[serde(default)]
+    pub lattice_column: Option<String>,
 }
 
 /// `[pots.grid]`: pots on benches in rows of slots. With 1-based integers
@@ -425,6 +434,13 @@ impl Study {
                     Some("set `x` and `y` (column names, metres) or add a `[pots.grid]` table".into()),
                 ));
             }
+        }
+        if p.lattice_row.is_some() != p.lattice_column.is_some() {
+            return Err(self.invalid(
+                if p.lattice_row.is_some() { "pots.lattice_column" } else { "pots.lattice_row" },
+                "is missing: the lattice of the rows x columns model needs both a row and a column",
+                Some("name both columns, e.g. lattice_row = \"row\" and lattice_column = \"slot\", or neither (then rows and columns come from the positions)".into()),
+            ));
         }
         if let Some(g) = &p.grid {
             for (k, v) in

@@ -73,6 +73,7 @@ pub fn bootstrap_lrt(
     if null_fit.method != LikelihoodKind::Ml {
         return Err(ModelError::Comparison("the bootstrap simulates from an ML fit of the null".into()));
     }
+    null_fit.isotropic_or_refuse("the parametric bootstrap").map_err(ModelError::Comparison)?;
     let lerr = |e| ModelError::Likelihood { model: names.0.to_string(), source: e, hint: None };
     let chol = match null_fit.covariance {
         Some(c) => Some(cholesky(dist, &c.params).map_err(lerr)?),

@@ -317,6 +317,30 @@ pub struct ModelData {
     pub drivers: Vec<(String, Vec<f64>)>,
     /// Pots left out because their trait value is missing (id, line).
     pub excluded: Vec<(String, usize)>,
+    /// Declared lattice cells `(row, column)` of the analysed pots
+    /// (`[pots] lattice_row`, `lattice_column`; 0-based), `None` when not declared.
+    pub cells: Option<(Vec<usize>, Vec<usize>)>,
+}
+
+impl ModelData {
+    /// The lattice of the rows x columns residual model: the declared cells
+    /// (renumbered from 0 over the analysed pots) when `[pots]` names them,
+    /// else the exact grid of the positions
+    /// ([`crate::spatial::rowcol::Lattice::from_coords`]). The error says why
+    /// there is none.
+    pub fn lattice(&self) -> std::result::Result<crate::spatial::rowcol::Lattice, String> {
+        match &self.cells {
+            Some((r, c)) => {
+                let (r0, c0) = (r.iter().min().copied().unwrap_or(0), c.iter().min().copied().unwrap_or(0));
+                crate::spatial::rowcol::Lattice::from_indices(
+                    r.iter().map(|v| v - r0).collect(),
+                    c.iter().map(|v| v - c0).collect(),
+                )
+                .map_err(|e| format!("the declared lattice columns of [pots]: {e}"))
+            }
+            None => crate::spatial::rowcol::Lattice::from_coords(&self.x, &self.y),
+        }
+    }
 }
 
 /// Per-pot values of the mapped drivers: the mapping stage's result, either
@@ -524,6 +548,10 @@ pub fn assemble(
         factors,
         drivers,
         excluded,
+        cells: pots
+            .cells
+            .as_ref()
+            .map(|(r, c)| (keep.iter().map(|&i| r[i]).collect(), keep.iter().map(|&i| c[i]).collect())),
     })
 }
 

@@ -261,9 +261,15 @@ impl Fit {
     }
 
     /// Correlation at distance `d` metres (1 at 0 for independent errors, 0 elsewhere);
-    /// includes the nugget: `(1 - eta) rho(d)` for `d > 0`.
-    pub fn correlation_at(&self, d: f64) -> f64 {
-        match &self.covariance {
+    /// includes the nugget: `(1 - eta) rho(d)` for `d > 0`. `None` for rows x
+    /// columns and direction-dependent errors, whose correlation depends on
+    /// the row and column offsets or on the direction, not on the distance
+    /// alone (their estimates in words: [`Structure::describe`]).
+    pub fn correlation_at(&self, d: f64) -> Option<f64> {
+        if self.structure.is_some() {
+            return None;
+        }
+        Some(match &self.covariance {
             None => f64::from(u8::from(d == 0.0)),
             Some(c) => {
                 if d == 0.0 {
@@ -272,6 +278,19 @@ impl Fit {
                     (1.0 - c.params.eta) * c.params.family.correlation(d, c.params.range)
                 }
             }
+        })
+    }
+
+    /// Refuse a computation that assumes an isotropic distance family (or
+    /// independent errors) when the fit is rows x columns or
+    /// direction-dependent: `Err` names the structure and `what` was refused.
+    pub fn isotropic_or_refuse(&self, what: &str) -> std::result::Result<(), String> {
+        match &self.structure {
+            None => Ok(()),
+            Some(_) => Err(format!(
+                "{what} is not available for {} residuals (it assumes a correlation that depends on distance alone)",
+                self.errors.plain_name()
+            )),
         }
     }
 }
@@ -621,26 +640,20 @@ fn finish_with_factor(
 }
 
 /// Fit with rows x columns errors ([`crate::spatial::rowcol`]) on the
-/// lattice of the pots' positions (refused, with the reason, when they do not
-/// form an exact grid): the search uses the Kronecker path on a complete
-/// lattice without nugget, the final estimates one dense factorisation.
+/// pots' `lattice` ([`crate::model::data::ModelData::lattice`]): the search
+/// uses the Kronecker path on a complete lattice without nugget, the final
+/// estimates one dense factorisation.
 pub fn fit_rows_columns(
     model: &str,
     design: &Design,
     y: &[f64],
-    dist: &Distances,
+    lattice: &Lattice,
     nugget: bool,
     method: LikelihoodKind,
 ) -> Result<Fit> {
     let lerr =
         |source, hint: Option<String>| ModelError::Likelihood { model: model.to_string(), source, hint };
-    let (px, py) = positions(model, dist)?;
-    let lattice = Lattice::from_coords(px, py).map_err(|e| {
-        lerr(
-            likelihood::LikelihoodError::Invalid(format!("the pots do not stand on a grid: {e}")),
-            Some("rows x columns needs pots on equally spaced rows and columns".into()),
-        )
-    })?;
+    let lattice = lattice.clone();
     let t = std::time::Instant::now();
     let f0 = crate::spatial::factor::factorisations_on_this_thread();
     let max = rowcol::maximise(&lattice, &design.x, y, method, nugget, SearchOptions::default().eta_max)

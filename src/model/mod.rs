@@ -107,6 +107,7 @@ pub(crate) mod testdata {
                 .collect(),
             drivers: drivers.iter().map(|d| (d.to_string(), nums(d))).collect(),
             excluded: vec![],
+            cells: None,
         }
     }
 }

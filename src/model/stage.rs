@@ -7,7 +7,9 @@ use super::data::{ModelData, ModelSpec, load_model_data};
 use super::design::{CountTable, Design, DesignSpec, count_tables};
 use super::diagnostics::{MORAN_NEIGHBOURS, MoranTest, knn, moran_residuals};
 use super::error::Result;
-use super::gls::{Errors, Fit, fit_correlated, fit_independent};
+use super::gls::{
+    Errors, Fit, Structure, fit_correlated, fit_directional, fit_independent, fit_rows_columns,
+};
 use super::ols::{AnovaTable, OlsFit, SsType, anova, ols};
 use crate::io::output::StageWriter;
 use crate::io::study::Study;
@@ -97,6 +99,7 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
             }
         }
     }
+    fit_structures(&spec, &data, &design, &dist, &mut fits, &mut notes)?;
     let nb = knn(&data.x, &data.y, MORAN_NEIGHBOURS);
     let moran = fits
         .iter()
@@ -115,6 +118,76 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
         residual_variograms,
         notes,
     })
+}
+
+/// The rows x columns and direction-dependent fits that `[model]` declares
+/// (`rows_columns`, `directional`), each without and (with `[model] nugget`)
+/// with a nugget share, by ML then REML, appended to `fits`; a structure that
+/// cannot be fitted to this layout is said in `notes`, as in the verdict's
+/// grid ([`crate::model::structures::add_to_grid`]).
+fn fit_structures(
+    spec: &ModelSpec,
+    data: &ModelData,
+    design: &Design,
+    dist: &Distances,
+    fits: &mut Vec<Fit>,
+    notes: &mut Vec<String>,
+) -> Result<()> {
+    let mut errors = Vec::new();
+    let coincident = !dist.coincident().is_empty();
+    crate::model::structures::add_to_grid(spec, data, coincident, &mut errors, notes);
+    let y = &data.response;
+    for e in errors {
+        let label = e.label();
+        for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
+            fits.push(match e {
+                Errors::RowsColumns { nugget } => {
+                    let lattice = data.lattice().map_err(|m| super::error::ModelError::Design {
+                        path: data.source.clone(),
+                        message: format!("rows x columns: {m}"),
+                        hint: None,
+                    })?;
+                    fit_rows_columns(&label, design, y, &lattice, nugget, method)?
+                }
+                Errors::Directional { family, nugget } => {
+                    fit_directional(&label, design, y, dist, family, nugget, method)?
+                }
+                Errors::Independent | Errors::Correlated { .. } => {
+                    unreachable!("add_to_grid adds structures only")
+                }
+            });
+        }
+    }
+    Ok(())
+}
+
+/// The parameters of a rows x columns or direction-dependent fit in the
+/// columns `row_correlation`, `column_correlation`, `direction_degrees`,
+/// `range_ratio` (empty cells for the others).
+fn structure_cells(f: &Fit) -> [String; 4] {
+    match &f.structure {
+        Some(Structure::RowsColumns { params, .. }) => {
+            [num(params.phi_row), num(params.phi_col), String::new(), String::new()]
+        }
+        Some(Structure::Directional { direction, .. }) => {
+            [String::new(), String::new(), num(direction.degrees()), num(direction.ratio)]
+        }
+        None => Default::default(),
+    }
+}
+
+/// Range parameter, nugget share and practical range of a fit (the range
+/// along the direction of greatest continuity for direction-dependent
+/// fits; no range for rows x columns); `None` for independent errors.
+fn range_eta_practical(f: &Fit) -> (Option<f64>, Option<f64>, Option<f64>) {
+    match (&f.covariance, &f.structure) {
+        (Some(c), _) => (Some(c.params.range), Some(c.params.eta), Some(c.practical_range)),
+        (None, Some(Structure::Directional { params, .. })) => {
+            (Some(params.range), Some(params.eta), Some(params.family.practical_range(params.range)))
+        }
+        (None, Some(Structure::RowsColumns { params, .. })) => (None, Some(params.eta), None),
+        (None, None) => (None, None, None),
+    }
 }
 
 /// The experimental variogram of every fit's normalised residuals at the pot
@@ -176,16 +249,18 @@ pub fn model_name(f: &Fit) -> String {
 /// Render `models.csv`.
 pub fn models_csv(r: &FitReport) -> String {
     let mut s = String::from(
-        "model,trait,drivers,correlation,nugget,method,loglik,aic,bic,n_params,range,partial_sill,nugget_variance,converged\n",
+        "model,trait,drivers,correlation,nugget,method,loglik,aic,bic,n_params,range,partial_sill,nugget_variance,converged,row_correlation,column_correlation,direction_degrees,range_ratio\n",
     );
     for f in &r.fits {
-        let (range, ps, nv) = match &f.covariance {
-            Some(c) => (num(c.params.range), num(c.partial_sill), num(c.nugget_variance)),
-            None => (String::new(), String::new(), String::new()),
+        let (range, eta, _) = range_eta_practical(f);
+        let (ps, nv) = match eta {
+            Some(eta) => (num((1.0 - eta) * f.sigma2), num(eta * f.sigma2)),
+            None => (String::new(), String::new()),
         };
+        let range = range.map(num).unwrap_or_default();
         let _ = writeln!(
             s,
-            "{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+            "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
             csv_field(&model_name(f)),
             csv_field(&r.data.trait_name),
             csv_field(&f.drivers.join("+")),
@@ -199,7 +274,8 @@ pub fn models_csv(r: &FitReport) -> String {
             range,
             ps,
             nv,
-            f.converged()
+            f.converged(),
+            structure_cells(f).join(",")
         );
     }
     s
@@ -312,10 +388,8 @@ pub fn diagnostics_csv(r: &FitReport) -> String {
     }
     s.push('\n');
     for (f, m) in r.fits.iter().zip(&r.moran) {
-        let (eta, pr) = match &f.covariance {
-            Some(c) => (num(c.params.eta), num(c.practical_range)),
-            None => (String::new(), String::new()),
-        };
+        let (_, eta, pr) = range_eta_practical(f);
+        let (eta, pr) = (eta.map(num).unwrap_or_default(), pr.map(num).unwrap_or_default());
         let (ev, ab) = match &f.search {
             Some(s) => (s.evaluations.to_string(), s.at_bounds.join("+")),
             None => (String::new(), String::new()),
@@ -346,7 +420,7 @@ pub fn diagnostics_csv(r: &FitReport) -> String {
             moran
         );
         for d in REFERENCE_DISTANCES {
-            let _ = write!(s, ",{}", num(f.correlation_at(d)));
+            let _ = write!(s, ",{}", f.correlation_at(d).map(num).unwrap_or_default());
         }
         s.push('\n');
     }

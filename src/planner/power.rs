@@ -155,6 +155,8 @@ fn variant(base: &Scenario, sec: &PowerSection, k: usize, effect: f64) -> Scenar
             output: None,
             correlations: None,
             nugget: None,
+            rows_columns: None,
+            directional: None,
         });
         a.correlations = Some(c.clone());
     }

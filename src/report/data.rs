@@ -97,6 +97,11 @@ pub struct VerdictSection {
     /// fell back to its default model), one sentence each.
     #[serde(default)]
     pub map_warnings: Vec<String>,
+    /// The rows x columns and direction-dependent residual models that the
+    /// verdict chose or kept within its tie margin, in words with their
+    /// evidence, as the verdict stage computed them.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub structures: Vec<crate::model::structures::StructureSummary>,
 }
 
 /// One driver of the chosen (or full driver) model.

@@ -140,6 +140,7 @@ pub fn to_report(
         technical_notes: r.mapping_notes.clone(),
         headline: r.headline.clone(),
         map_warnings: Vec::new(),
+        structures: r.structures.clone(),
     };
     let models = ModelsSection {
         comparison: r
@@ -204,6 +205,7 @@ mod tests {
         let r = VerdictResult {
             verdict: "covariate".into(),
             reason: "why".into(),
+            structures: vec![],
             best_model: "base+cold".into(),
             best_by_aic: "base+cold | exponential".into(),
             // A tie margin other than the default, so that the check below sees it passed through.
@@ -227,6 +229,10 @@ mod tests {
                 range: None,
                 nugget_share: None,
                 converged: true,
+                row_correlation: None,
+                column_correlation: None,
+                direction_degrees: None,
+                range_ratio: None,
             }],
             lrts: vec![],
             chosen_coefficients: vec![],

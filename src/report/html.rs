@@ -191,6 +191,7 @@ fn section_verdict(d: &ReportData, out: &mut String) {
     if let Some(h) = &v.headline {
         what_next(out, h, v);
     }
+    super::residual_structure::render(out, &v.structures);
     out.push_str("<dl class=\"words\">\n");
     for w in ["covariate", "correlation", "both", "none"] {
         let _ = writeln!(out, "<dt>{w}</dt><dd>{}</dd>", word_meaning(w));

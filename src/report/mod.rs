@@ -25,6 +25,7 @@ pub mod over_time;
 pub mod over_time_figures;
 pub mod plan_page;
 pub mod png;
+pub mod residual_structure;
 pub mod sample;
 pub mod xml;
 

@@ -285,6 +285,7 @@ pub fn sample_report() -> ReportData {
                 blocking: Some("Block the next trial by distance to the cooling_pad: the distance alone improves the model by 31.0 AIC units (more than the tie margin of 4), so bands of equal distance to it make fairer blocks than rows or benches.".into()),
             }),
             map_warnings: vec![],
+            structures: vec![],
         }),
         layout: Some(LayoutSection {
             trait_name: "fresh mass".into(),

@@ -55,6 +55,7 @@ mod stream {
     pub const SENSOR_NOISE: u64 = 4;
     pub const RESIDUAL_FIELD: u64 = 5;
     pub const TRAIT_NOISE: u64 = 6;
+    pub const RESIDUAL_LATTICE: u64 = 7;
 }
 
 fn rng(seed: u64, stream: u64) -> ChaCha20Rng {
@@ -295,13 +296,29 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
 
     // Trait.
     let t = &spec.trait_;
-    let (resid, resid_jitter) = match sc.residual_field {
+    let (mut resid, resid_jitter) = match sc.residual_field {
         Some((fam, range, sill)) => {
-            let f = FieldSampler::new(&pot_xy, fam, range, sill, "trait.residual_field")?;
+            // a direction-dependent range: the field of the stretched
+            // distance is the isotropic field at the transformed positions
+            let xy = match &sc.residual_direction {
+                None => pot_xy.clone(),
+                Some(dir) => {
+                    let (xs, ys): (Vec<f64>, Vec<f64>) = pot_xy.iter().map(|p| (p[0], p[1])).unzip();
+                    let (u, v) = crate::spatial::anisotropy::transform(&xs, &ys, dir);
+                    u.iter().zip(&v).map(|(a, b)| [*a, *b]).collect()
+                }
+            };
+            let f = FieldSampler::new(&xy, fam, range, sill, "trait.residual_field")?;
             (f.draw(&mut rng(seed, stream::RESIDUAL_FIELD)), f.jitter())
         }
         None => (vec![0.0; n_p], 0.0),
     };
+    if let Some(params) = &sc.residual_lattice {
+        let lattice_field = lattice_field(&sc.path, &pot_xy, params, sc.residual_lattice_sill, seed)?;
+        for (r, l) in resid.iter_mut().zip(&lattice_field) {
+            *r += l;
+        }
+    }
     let mut tn = rng(seed, stream::TRAIT_NOISE);
     let factors = &spec.design.factor;
     let level_name = |p: &Pot, f: usize| factors[f].levels[p.levels[f]].as_str();
@@ -529,6 +546,37 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
     Ok(files)
 }
 
+/// A rows x columns residual field at the pots: `sqrt(sill) L u` with `L`
+/// the Cholesky factor of the AR(1) x AR(1) correlation on the rows and
+/// columns of the pots' grid ([`crate::spatial::rowcol`]) and `u` standard
+/// normal draws of its own stream. Cost `n^3/3` once.
+fn lattice_field(
+    path: &Path,
+    pot_xy: &[[f64; 2]],
+    params: &crate::spatial::rowcol::RowColParams,
+    sill: f64,
+    seed: u64,
+) -> Result<Vec<f64>> {
+    let n = pot_xy.len();
+    let (xs, ys): (Vec<f64>, Vec<f64>) = pot_xy.iter().map(|p| (p[0], p[1])).unzip();
+    let bad = |message: String| SimError::Scenario {
+        path: path.to_path_buf(),
+        key: "trait.residual_lattice".into(),
+        message,
+        hint: Some(
+            "the pots of a bench layout stand on a grid when bench_pitch is a whole number of row_pitch"
+                .into(),
+        ),
+    };
+    let lattice = crate::spatial::rowcol::Lattice::from_coords(&xs, &ys)
+        .map_err(|e| bad(format!("the pots do not stand on a grid of rows and columns: {e}")))?;
+    let l = crate::spatial::rowcol::cholesky(&lattice, params).map_err(|e| bad(e.to_string()))?;
+    let mut r = rng(seed, stream::RESIDUAL_LATTICE);
+    let u: Vec<f64> = (0..n).map(|_| StandardNormal.sample(&mut r)).collect();
+    let sd = sill.sqrt();
+    Ok((0..n).map(|i| sd * (0..=i).map(|k| l[(i, k)] * u[k]).sum::<f64>()).collect())
+}
+
 /// The study file of the generated study.
 fn study_toml(sc: &Scenario, seed: u64) -> String {
     let spec = &sc.spec;
@@ -648,9 +696,18 @@ fn study_toml(sc: &Scenario, seed: u64) -> String {
         .map(|c| q(c))
         .collect();
     let nugget = spec.analysis.as_ref().and_then(|a| a.nugget).unwrap_or(true);
+    // bench structures only when asked, so that other studies keep their bytes
+    let mut structures = String::new();
+    if spec.analysis.as_ref().and_then(|a| a.rows_columns) == Some(true) {
+        structures.push_str("\nrows_columns = true");
+    }
+    if let Some(d) = spec.analysis.as_ref().and_then(|a| a.directional.as_ref()) {
+        let names: Vec<String> = d.iter().map(|c| q(c)).collect();
+        let _ = write!(structures, "\ndirectional = [{}]", names.join(", "));
+    }
     writeln!(
         s,
-        "\n[model]\ntrait = {}\nfactors = [{}]\ninteractions = [{}]\ndrivers = [{}]\ncorrelations = [{}]\nnugget = {nugget}",
+        "\n[model]\ntrait = {}\nfactors = [{}]\ninteractions = [{}]\ndrivers = [{}]\ncorrelations = [{}]\nnugget = {nugget}{structures}",
         q(&spec.trait_.name),
         factors.join(", "),
         pairs.join(", "),
@@ -731,6 +788,54 @@ mod tests {
             combos.dedup();
             assert_eq!(combos.len(), 6);
         }
+    }
+
+    fn residual_column(files: &[(String, Vec<u8>)]) -> Vec<String> {
+        let (_, b) = files.iter().find(|(n, _)| n == "truth/pots.csv").unwrap();
+        let text = String::from_utf8(b.clone()).unwrap();
+        let mut lines = text.lines();
+        let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+        let j = header.iter().position(|h| *h == "residual_field").unwrap();
+        lines.map(|l| l.split(',').nth(j).unwrap().to_string()).collect()
+    }
+
+    fn with_trait_keys(extra: &str) -> Result<Scenario> {
+        Scenario::from_source(Path::new("scenario.toml"), &format!("{}\n{extra}", scenario::tests::small()))
+    }
+
+    /// `[trait.residual_direction]` with angle 0 and ratio 1 leaves the
+    /// residual field exactly as without it (the stretched distance is the
+    /// distance); a real direction changes it; its keys and
+    /// `[trait.residual_lattice]` are checked with the key named. The bench
+    /// layout of the small scenario (benches 2 m apart, rows 0.5 m) is not
+    /// an equally spaced grid, so the lattice field is refused with the reason.
+    #[test]
+    fn residual_direction_and_lattice_keys() {
+        let plain = residual_column(&generate(&small(), 5).unwrap());
+        let same = with_trait_keys("[trait.residual_direction]\nangle = 0.0\nratio = 1.0\n").unwrap();
+        assert_eq!(residual_column(&generate(&same, 5).unwrap()), plain);
+        let turned = with_trait_keys("[trait.residual_direction]\nangle = 30.0\nratio = 0.3\n").unwrap();
+        assert_ne!(residual_column(&generate(&turned, 5).unwrap()), plain);
+        for (extra, key) in [
+            ("[trait.residual_direction]\nangle = 30.0\nratio = 1.5\n", "trait.residual_direction.ratio"),
+            (
+                "[trait.residual_lattice]\nrow_correlation = 1.0\ncolumn_correlation = 0.5\nsill = 1.0\n",
+                "trait.residual_lattice.row_correlation",
+            ),
+        ] {
+            let e = with_trait_keys(extra).unwrap_err();
+            assert!(format!("{e}").contains(key), "{e}");
+        }
+        let lattice = with_trait_keys(
+            "[trait.residual_lattice]\nrow_correlation = 0.2\ncolumn_correlation = 0.8\nsill = 1.0\n",
+        )
+        .unwrap();
+        let e = generate(&lattice, 5).unwrap_err();
+        assert!(
+            format!("{e}").contains("trait.residual_lattice")
+                && format!("{e}").contains("not equally spaced"),
+            "{e}"
+        );
     }
 
     #[test]

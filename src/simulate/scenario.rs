@@ -401,6 +401,39 @@ pub struct TraitSpec {
     /// `[trait.scorings]`: repeated scorings from a daily growth model.
     #[serde(default)]
     pub scorings: Option<super::scorings::ScoringsSpec>,
+    /// `[trait.residual_direction]`: makes the residual field's range
+    /// direction-dependent.
+    #[serde(default)]
+    pub residual_direction: Option<DirectionSpec>,
+    /// `[trait.residual_lattice]`: a rows x columns residual field.
+    #[serde(default)]
+    pub residual_lattice: Option<LatticeFieldSpec>,
+}
+
+/// `[trait.residual_direction]`: geometric anisotropy of the residual field
+/// (`crate::spatial::anisotropy`): its `range` applies along `angle`, and
+/// `ratio` times it across.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DirectionSpec {
+    /// Direction of greatest continuity, degrees counter-clockwise from the x axis.
+    pub angle: f64,
+    /// Range across over range along, `(0, 1]`.
+    pub ratio: f64,
+}
+
+/// `[trait.residual_lattice]`: a separable AR(1) x AR(1) field on the rows
+/// (distinct y) and columns (distinct x) of the pots' grid
+/// (`crate::spatial::rowcol`).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LatticeFieldSpec {
+    /// Correlation of pots one row apart, `(-1, 1)`.
+    pub row_correlation: f64,
+    /// Correlation of pots one column apart, `(-1, 1)`.
+    pub column_correlation: f64,
+    /// Variance, trait units².
+    pub sill: f64,
 }
 
 /// `[[trait.effect]]`: a main effect against the first level.
@@ -462,6 +495,12 @@ pub struct AnalysisSpec {
     /// `[model].nugget`. Default true.
     #[serde(default)]
     pub nugget: Option<bool>,
+    /// `[model].rows_columns`. Default false (not written).
+    #[serde(default)]
+    pub rows_columns: Option<bool>,
+    /// `[model].directional`. Default none (not written).
+    #[serde(default)]
+    pub directional: Option<Vec<String>>,
 }
 
 /// A checked, resolved scenario.
@@ -491,6 +530,12 @@ pub struct Scenario {
     pub climate_field: Option<(Family, f64, f64)>,
     /// Residual trait field family, if any.
     pub residual_field: Option<(Family, f64, f64)>,
+    /// Direction of the residual field's range, if direction-dependent.
+    pub residual_direction: Option<crate::spatial::anisotropy::Direction>,
+    /// Rows x columns residual field: row and column correlations, variance.
+    pub residual_lattice: Option<crate::spatial::rowcol::RowColParams>,
+    /// Its variance (trait units²); 0 without one.
+    pub residual_lattice_sill: f64,
     /// Export index of every logger.
     pub logger_export: Vec<usize>,
     /// Runs of cold nights, checked.
@@ -697,6 +742,8 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
     let (lids, logger_export) = check_loggers(p, &spec, &c, &enames)?;
     check_faults(p, &spec, &lids, &logger_export)?;
     let residual_field = check_trait(p, &spec.trait_, &spec.design, &names)?;
+    let (residual_direction, residual_lattice, residual_lattice_sill) =
+        check_residual_structures(p, &spec.trait_, residual_field.is_some())?;
     check_analysis(p, spec.analysis.as_ref())?;
     let spells = super::scorings::check_spells(p, &spec.climate.spell, period.start_d, period.end_d)?;
     let scorings = super::scorings::check_scorings(
@@ -719,11 +766,90 @@ fn check(path: &Path, spec: ScenarioSpec) -> Result<Scenario> {
         sowing,
         climate_field,
         residual_field,
+        residual_direction,
+        residual_lattice,
+        residual_lattice_sill,
         logger_export,
         spells,
         scorings,
         spec,
     })
+}
+
+/// `[trait.residual_direction]` (needs `[trait.residual_field]`; angle any
+/// finite number of degrees, ratio in `(0, 1]`) and `[trait.residual_lattice]`
+/// (correlations in `(-1, 1)`, variance >= 0).
+#[allow(clippy::type_complexity)]
+fn check_residual_structures(
+    p: &Path,
+    t: &TraitSpec,
+    has_field: bool,
+) -> Result<(Option<crate::spatial::anisotropy::Direction>, Option<crate::spatial::rowcol::RowColParams>, f64)>
+{
+    let direction = match &t.residual_direction {
+        None => None,
+        Some(_) if !has_field => {
+            return Err(bad(
+                p,
+                "trait.residual_direction",
+                "needs a [trait.residual_field] whose range it makes direction-dependent",
+                Some("add [trait.residual_field] with family, range and sill".into()),
+            ));
+        }
+        Some(d) => {
+            if !d.angle.is_finite() {
+                return Err(bad(
+                    p,
+                    "trait.residual_direction.angle",
+                    format!("must be degrees, got {}", d.angle),
+                    None,
+                ));
+            }
+            if !(d.ratio > 0.0 && d.ratio <= 1.0) {
+                return Err(bad(
+                    p,
+                    "trait.residual_direction.ratio",
+                    format!("must lie in (0, 1], got {}", d.ratio),
+                    Some("the range across the direction divided by the range along it".into()),
+                ));
+            }
+            Some(crate::spatial::anisotropy::Direction { angle: d.angle.to_radians(), ratio: d.ratio })
+        }
+    };
+    let (lattice, sill) = match &t.residual_lattice {
+        None => (None, 0.0),
+        Some(l) => {
+            for (k, v) in
+                [("row_correlation", l.row_correlation), ("column_correlation", l.column_correlation)]
+            {
+                if !(v.is_finite() && v.abs() < 1.0) {
+                    return Err(bad(
+                        p,
+                        &format!("trait.residual_lattice.{k}"),
+                        format!("must lie in (-1, 1), got {v}"),
+                        None,
+                    ));
+                }
+            }
+            if !(l.sill.is_finite() && l.sill >= 0.0) {
+                return Err(bad(
+                    p,
+                    "trait.residual_lattice.sill",
+                    format!("must be a variance >= 0, got {}", l.sill),
+                    None,
+                ));
+            }
+            (
+                Some(crate::spatial::rowcol::RowColParams {
+                    phi_row: l.row_correlation,
+                    phi_col: l.column_correlation,
+                    eta: 0.0,
+                }),
+                l.sill,
+            )
+        }
+    };
+    Ok((direction, lattice, sill))
 }
 
 /// `[scenario]`: time zone, study period (local midnights that exist once)

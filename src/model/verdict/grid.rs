@@ -62,14 +62,19 @@ pub(super) fn fit(
             nugget,
             method,
         ),
-        Errors::RowsColumns { nugget } => fit_rows_columns(
-            &model_name(&design.drivers, &errors),
-            design,
-            &data.response,
-            dist,
-            nugget,
-            method,
-        ),
+        Errors::RowsColumns { nugget } => {
+            let name = model_name(&design.drivers, &errors);
+            let lattice = data.lattice().map_err(|e| ModelError::Likelihood {
+                model: name.clone(),
+                source: crate::spatial::likelihood::LikelihoodError::Invalid(format!(
+                    "the pots do not stand on a grid: {e}"
+                )),
+                hint: Some(
+                    "rows x columns needs pots on equally spaced rows and columns, or their cells named by `[pots] lattice_row` and `lattice_column`".into(),
+                ),
+            })?;
+            fit_rows_columns(&name, design, &data.response, &lattice, nugget, method)
+        }
         Errors::Directional { family, nugget } => fit_directional(
             &model_name(&design.drivers, &errors),
             design,

@@ -370,9 +370,18 @@ pub fn analyse_with(
         shared_grids: shared,
         imputations: Vec::new(),
     };
+    let structure_fits: Vec<(String, &Fit, f64)> =
+        models.iter().map(|m| (m.name.clone(), &by_name(&m.name).fit, m.delta_aic)).collect();
+    let structures =
+        crate::model::structures::summarise(data, &structure_fits, &verdict.chosen, opts.tie_delta);
     Ok(VerdictResult {
         verdict: verdict.verdict.word().into(),
-        reason: crate::model::structures::with_structure(&verdict.reason, &chosen_ml.fit),
+        reason: crate::model::structures::with_structure(
+            &verdict.reason,
+            &chosen_ml.fit,
+            data.cells.is_some(),
+        ),
+        structures,
         best_model: verdict.chosen.clone(),
         best_by_aic: verdict.best_by_aic.clone(),
         options: opts.clone(),

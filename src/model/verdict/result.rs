@@ -31,12 +31,26 @@ pub struct ModelRow {
     pub delta_aic: f64,
     /// Akaike weight.
     pub akaike_weight: f64,
-    /// Range (metres) of correlated fits.
+    /// Range (metres) of correlated fits (of direction-dependent fits: the
+    /// range parameter along the direction of greatest continuity).
     pub range: Option<f64>,
-    /// Nugget share of correlated fits.
+    /// Nugget share of correlated, rows x columns and direction-dependent fits.
     pub nugget_share: Option<f64>,
     /// The search converged (always for independent errors).
     pub converged: bool,
+    /// Rows x columns: correlation of neighbours one row apart.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub row_correlation: Option<f64>,
+    /// Rows x columns: correlation of neighbours one column apart.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub column_correlation: Option<f64>,
+    /// Direction-dependent: direction of greatest continuity, degrees
+    /// counter-clockwise from the x axis, in `[0, 180)`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub direction_degrees: Option<f64>,
+    /// Direction-dependent: range across that direction over range along it, `(0, 1]`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub range_ratio: Option<f64>,
 }
 
 /// A likelihood-ratio test of a nested pair.
@@ -220,6 +234,12 @@ pub struct VerdictResult {
     pub verdict: String,
     /// One sentence.
     pub reason: String,
+    /// The rows x columns and direction-dependent models that are chosen or
+    /// within the tie margin, in plain words with their evidence
+    /// ([`crate::model::structures::summarise`]); absent from `summary.json`
+    /// when empty.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub structures: Vec<crate::model::structures::StructureSummary>,
     /// The model the verdict rests on.
     pub best_model: String,
     /// The smallest AIC.

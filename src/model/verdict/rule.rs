@@ -6,7 +6,7 @@ use super::grid::{GridFit, model_name};
 use super::result::{LrtRow, ModelRow};
 use crate::model::compare::{self, Candidate, LrtNull, Ranked, Shape, Verdict};
 use crate::model::error::{ModelError, Result};
-use crate::model::gls::Errors;
+use crate::model::gls::{Errors, Structure};
 use crate::spatial::likelihood::LikelihoodKind;
 
 /// Rank the grid's ML fits of `n` pots by AIC and decide the verdict with the
@@ -51,6 +51,24 @@ pub(super) fn model_rows(ranked: &[Ranked], grid: &[GridFit]) -> Vec<ModelRow> {
                 .iter()
                 .find(|g| model_name(&g.drivers, &g.errors) == r.candidate.name)
                 .expect("every candidate is a grid fit");
+            let (mut range, mut nugget_share) =
+                (g.fit.covariance.map(|c| c.params.range), g.fit.covariance.map(|c| c.params.eta));
+            let (mut row_correlation, mut column_correlation, mut direction_degrees, mut range_ratio) =
+                (None, None, None, None);
+            match &g.fit.structure {
+                Some(Structure::RowsColumns { params, .. }) => {
+                    nugget_share = Some(params.eta);
+                    row_correlation = Some(params.phi_row);
+                    column_correlation = Some(params.phi_col);
+                }
+                Some(Structure::Directional { params, direction }) => {
+                    range = Some(params.range);
+                    nugget_share = Some(params.eta);
+                    direction_degrees = Some(direction.degrees());
+                    range_ratio = Some(direction.ratio);
+                }
+                None => {}
+            }
             ModelRow {
                 name: r.candidate.name.clone(),
                 drivers: r.candidate.drivers.clone(),
@@ -62,9 +80,13 @@ pub(super) fn model_rows(ranked: &[Ranked], grid: &[GridFit]) -> Vec<ModelRow> {
                 n_params: r.candidate.n_params,
                 delta_aic: r.delta_aic,
                 akaike_weight: r.akaike_weight,
-                range: g.fit.covariance.map(|c| c.params.range),
-                nugget_share: g.fit.covariance.map(|c| c.params.eta),
+                range,
+                nugget_share,
                 converged: g.fit.converged(),
+                row_correlation,
+                column_correlation,
+                direction_degrees,
+                range_ratio,
             }
         })
         .collect()

@@ -96,6 +96,7 @@ fn simulate(truth: Truth, seed: u64) -> ModelData {
         ],
         drivers: vec![("cold".into(), cold)],
         excluded: vec![],
+        cells: None,
     }
 }
 
@@ -187,6 +188,7 @@ fn balanced(unbalanced: bool) -> ModelData {
         factors: vec![FactorData::from_labels("a", &acc), FactorData::from_labels("r", &reg)],
         drivers: vec![],
         excluded: vec![],
+        cells: None,
     }
 }
 

@@ -18,9 +18,21 @@ pub const DRIVERS_FILE: &str = "drivers.csv";
 /// Adjusted and plain means per factor level.
 pub const ADJUSTED_MEANS_FILE: &str = "adjusted_means.csv";
 
-/// Render `comparison.csv` (the grid, sorted by AIC).
+/// The columns `comparison.csv` appends after `chosen` when the grid holds a
+/// rows x columns model.
+pub const ROWS_COLUMNS_COLUMNS: [&str; 2] = ["row_correlation", "column_correlation"];
+/// The columns `comparison.csv` appends (after those of rows x columns, if
+/// any) when the grid holds a direction-dependent model.
+pub const DIRECTIONAL_COLUMNS: [&str; 2] = ["direction_degrees", "range_ratio"];
+
+/// Render `comparison.csv` (the grid, sorted by AIC). The columns of the
+/// rows x columns and direction-dependent parameters are appended only when
+/// the grid holds such a model, so that a grid without them keeps its layout
+/// (docs/outputs.md).
 pub fn comparison_csv(r: &VerdictResult) -> String {
-    let mut t = CsvTable::new([
+    let rc = r.models.iter().any(|m| m.row_correlation.is_some());
+    let dir = r.models.iter().any(|m| m.direction_degrees.is_some());
+    let mut header = vec![
         "model",
         "drivers",
         "correlation",
@@ -35,9 +47,16 @@ pub fn comparison_csv(r: &VerdictResult) -> String {
         "nugget_share",
         "converged",
         "chosen",
-    ]);
+    ];
+    if rc {
+        header.extend(ROWS_COLUMNS_COLUMNS);
+    }
+    if dir {
+        header.extend(DIRECTIONAL_COLUMNS);
+    }
+    let mut t = CsvTable::new(header);
     for m in &r.models {
-        t.row([
+        let mut row = vec![
             m.name.clone(),
             m.drivers.join("+"),
             m.correlation.clone(),
@@ -52,7 +71,14 @@ pub fn comparison_csv(r: &VerdictResult) -> String {
             opt(m.nugget_share),
             m.converged.to_string(),
             (m.name == r.best_model).to_string(),
-        ]);
+        ];
+        if rc {
+            row.extend([opt(m.row_correlation), opt(m.column_correlation)]);
+        }
+        if dir {
+            row.extend([opt(m.direction_degrees), opt(m.range_ratio)]);
+        }
+        t.row(row);
     }
     t.into_string()
 }
