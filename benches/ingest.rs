@@ -10,8 +10,13 @@
 //!     QC rule, sort, gaps, the readings DataFrame),
 //! and prints rows per second of both and the ratio of the best of several
 //! alternating rounds, with each round's ratio. Target: (b) within 1.5x of
-//! (a). Run with `cargo bench --bench ingest` (ROWS=... to change the size,
-//! ROUNDS=... the number of rounds).
+//! (a). Run with `cargo bench --profile dev --bench ingest` (ROWS=... to
+//! change the size, ROUNDS=... the number of rounds): the dev profile
+//! optimises every dependency (polars included) at level 3 and potclim at
+//! level 1, so its ratio is a conservative one; plain `cargo bench` uses the
+//! release profile, which builds every dependency afresh. Reading is spread
+//! over the files (one worker per core); the last line times it on one
+//! thread, for the profile.
 
 use polars::prelude::*;
 use std::io::Write;

@@ -30,10 +30,10 @@ fn study(dir: &Path, name: &str, id: &str, files: &[&str], logs: &str) -> PathBu
         let ext = Path::new(f).extension().unwrap().to_str().unwrap();
         std::fs::copy(fixture(f), dir.join("logs").join(format!("{id}.{ext}"))).unwrap();
     }
-    std::fs::write(dir.join("pots.csv"), "pot,x,y\np1,0,0\np2,1,0\n").unwrap();
+    std::fs::write(dir.join("pots.csv"), "pot,x,y,height\np1,0,0,10.5\np2,1,0,11.0\n").unwrap();
     std::fs::write(dir.join("sensors.csv"), format!("id,x,y\n{id},0.5,0\n")).unwrap();
     let text = format!(
-        "[study]\ntitle = \"t\"\ntimezone = \"Europe/Amsterdam\"\noutput = \"out_{name}\"\n\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\n\n[sensors]\nfile = \"sensors.csv\"\nid = \"id\"\nx = \"x\"\ny = \"y\"\n\n[climate]\nstart = \"2026-10-05 00:00\"\nend = \"2026-10-07 00:00\"\nstep = \"10m\"\n\n[[indicator]]\nname = \"mean_t\"\nvariable = \"temperature\"\nstatistic = \"mean\"\n\n{logs}"
+        "[study]\ntitle = \"t\"\ntimezone = \"Europe/Amsterdam\"\noutput = \"out_{name}\"\n\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\n\n[sensors]\nfile = \"sensors.csv\"\nid = \"id\"\nx = \"x\"\ny = \"y\"\n\n[climate]\nstart = \"2026-10-05 00:00\"\nend = \"2026-10-07 00:00\"\nstep = \"10m\"\n\n[[indicator]]\nname = \"mean_t\"\nvariable = \"temperature\"\nstatistic = \"mean\"\n\n[model]\ntrait = \"height\"\n\n{logs}"
     );
     let p = dir.join(format!("{name}.toml"));
     std::fs::write(&p, text).unwrap();

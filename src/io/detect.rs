@@ -517,8 +517,8 @@ fn sample(path: &Path) -> Result<(Vec<String>, Vec<String>)> {
     let mut head = vec![0u8; len.min(HEAD_BYTES)];
     f.read_exact(&mut head).map_err(err)?;
     let mut head_lines = lines_of(&decode(&head));
-    if len > HEAD_BYTES {
-        head_lines.pop(); // cut mid-line
+    if len > HEAD_BYTES || head_lines.last().is_some_and(|l| l.is_empty()) {
+        head_lines.pop(); // cut mid-line, or the nothing after the last line end
     }
     let mut tail_lines = Vec::new();
     if len > HEAD_BYTES + TAIL_BYTES {

@@ -285,7 +285,7 @@ pub fn resolve(fmt: &LogFormat, layout: Layout, path: &Path, bytes: &[u8]) -> Re
 fn serial_in(cell: &str) -> Option<String> {
     let p = cell.find("S/N")?;
     let rest = cell[p + 3..].trim_start_matches([':', ' ']);
-    let id: String = rest.chars().take_while(|c| c.is_alphanumeric() || *c == '-').collect();
+    let id: String = rest.chars().take_while(|c| c.is_alphanumeric() || matches!(c, '-' | '_')).collect();
     (!id.is_empty()).then_some(id)
 }
 
@@ -318,6 +318,7 @@ mod tests {
         assert_eq!(serial_in("Temp, °C (S/N: 20871)").as_deref(), Some("20871"));
         assert_eq!(serial_in("RH, % (S/N:A-77)").as_deref(), Some("A-77"));
         assert_eq!(serial_in("Temp, °C"), None);
+        assert_eq!(serial_in("Temp, °C (S/N: bay_3)").as_deref(), Some("bay_3"));
     }
 
     /// Seeded mutations of an export of each layout (truncated lines, stray

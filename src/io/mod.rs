@@ -21,6 +21,8 @@ pub mod logs;
 pub mod output;
 pub mod provenance;
 pub mod qc;
+#[cfg(test)]
+mod robustness;
 pub mod scores;
 pub mod study;
 pub mod table;

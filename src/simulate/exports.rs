@@ -12,7 +12,9 @@
 use super::climate::Reference;
 use super::error::Result;
 use super::scenario::{ExportChannel, ExportSpec, Scenario};
+use crate::io::layouts::Layout;
 use crate::io::qc::Reason;
+use crate::io::study::TimeColumns;
 use crate::io::units::{Channel, Conversion};
 use chrono::{DateTime, Duration, SecondsFormat, TimeZone, Utc};
 
@@ -128,9 +130,22 @@ fn print(k: usize, c: &ExportChannel, si: f64, comma: bool) -> (String, f64) {
     (if comma { s.replace('.', ",") } else { s }, back)
 }
 
+/// The fixed offset (seconds east of UTC) that a titled export writes its
+/// times in and names in its time header: the study zone's offset at the
+/// start of the period (a logger launched then keeps that clock).
+pub fn titled_offset(sc: &Scenario) -> i32 {
+    use chrono::Offset;
+    let (t0, _) = sc.period_utc();
+    sc.tz.offset_from_utc_datetime(&t0.naive_utc()).fix().local_minus_utc()
+}
+
 fn time_text(sc: &Scenario, e: &ExportSpec, t: DateTime<Utc>) -> String {
+    if e.form_layout() == Some(Layout::TitledExport) {
+        let local = t.naive_utc() + Duration::seconds(i64::from(titled_offset(sc)));
+        return local.format(e.pattern()).to_string();
+    }
     let utc = e.clock.as_deref() == Some("utc");
-    match e.time_format.as_str() {
+    match e.pattern() {
         "unix" => t.timestamp().to_string(),
         "rfc3339" if utc => t.to_rfc3339_opts(SecondsFormat::Secs, true),
         "rfc3339" => t.with_timezone(&sc.tz).to_rfc3339_opts(SecondsFormat::Secs, false),
@@ -152,6 +167,145 @@ fn fold(sc: &Scenario, t: DateTime<Utc>) -> Option<bool> {
 /// with the export's delimiter.
 fn quote(s: &str, delim: char) -> String {
     crate::io::output::field(s, delim).into_owned()
+}
+
+/// How the lines of one file are laid out: the lines before the data (a
+/// preamble and the header, or a recurring layout's header lines), and the
+/// cells a layout adds to each row (a row number; a serial number in the
+/// first row only).
+struct Form<'a> {
+    layout: Option<Layout>,
+    delim: char,
+    sensor: &'a str,
+    split_time: bool,
+    head: Vec<String>,
+}
+
+/// `"cell"`, quoted whatever it holds (the four-line layout quotes every
+/// header cell and time stamp).
+fn quoted(s: &str) -> String {
+    format!("\"{}\"", s.replace('"', "\"\""))
+}
+
+/// The unit as a layout writes it beside a channel's name: in the units line
+/// of the four-line layout (`four = true`), or inside the channel header
+/// otherwise. Each is a word the layout reader recognises
+/// ([`crate::io::layouts::channel_of`]).
+fn unit_label(unit: &str, four: bool) -> &'static str {
+    match (unit, four) {
+        ("degC", true) => "Deg C",
+        ("degF", true) => "Deg F",
+        ("degC", false) => "°C",
+        ("degF", false) => "°F",
+        ("K", _) => "K",
+        ("percent", _) => "%",
+        ("fraction", _) => "fraction",
+        ("umol_m2_s", true) => "umol/s/m^2",
+        ("umol_m2_s", false) => "µmol/m²/s",
+        ("w_m2_shortwave", true) => "W/m^2",
+        ("w_m2_shortwave", false) => "W/m²",
+        _ => "lux",
+    }
+}
+
+/// The header of channel `c` in a file of `layout` written by logger `sensor`.
+pub fn channel_header(layout: Option<Layout>, c: &ExportChannel, sensor: &str) -> String {
+    match layout {
+        None | Some(Layout::FourLineHeader) => c.column.clone(),
+        Some(Layout::TitledExport) => format!("{}, {} (S/N: {sensor})", c.column, unit_label(&c.unit, false)),
+        Some(Layout::NameInFirstCell) => format!("{}({})", c.column, unit_label(&c.unit, false)),
+    }
+}
+
+impl<'a> Form<'a> {
+    fn new(sc: &Scenario, e: &ExportSpec, delim: char, sensor: &'a str) -> Form<'a> {
+        let layout = e.form_layout();
+        let chans: Vec<&ExportChannel> = (0..3).filter_map(|k| channel(e, k)).collect();
+        let names: Vec<String> = chans.iter().map(|c| channel_header(layout, c, sensor)).collect();
+        let join = |cells: Vec<String>| cells.join(&delim.to_string());
+        let head = match layout {
+            None => {
+                let mut head: Vec<String> =
+                    e.preamble.iter().map(|p| p.replace("{sensor}", sensor)).collect();
+                let mut header: Vec<String> = match &e.columns.time {
+                    Some(t) => t.names().into_iter().map(|n| quote(n, delim)).collect(),
+                    None => Vec::new(),
+                };
+                if let Some(s) = &e.columns.sensor {
+                    header.push(quote(s, delim));
+                }
+                header.extend(names.iter().map(|n| quote(n, delim)));
+                head.push(join(header));
+                head
+            }
+            Some(Layout::FourLineHeader) => {
+                let implied = Layout::FourLineHeader.implied();
+                let station = ["table", sensor, "greenhouse", "1"].map(quoted).to_vec();
+                let mut fields = vec![quoted(implied.time), quoted("RECORD")];
+                fields.extend(names.iter().map(|n| quoted(n)));
+                let mut units = vec![quoted("TS"), quoted("RN")];
+                units.extend(chans.iter().map(|c| quoted(unit_label(&c.unit, true))));
+                let mut codes = vec![quoted(""), quoted("")];
+                codes.extend(chans.iter().map(|_| quoted("Smp")));
+                vec![join(station), join(fields), join(units), join(codes)]
+            }
+            Some(Layout::TitledExport) => {
+                let off = titled_offset(sc);
+                let (sign, a) = if off < 0 { ('-', -off) } else { ('+', off) };
+                let time = format!("Date Time, GMT{sign}{:02}:{:02}", a / 3600, a % 3600 / 60);
+                let mut header = vec![quoted("#"), quoted(&time)];
+                header.extend(names.iter().map(|n| quoted(n)));
+                vec![quoted(&format!("Readings of logger {sensor}")), join(header)]
+            }
+            Some(Layout::NameInFirstCell) => {
+                let mut header = vec![quote(sensor, delim), "Time".to_string()];
+                header.extend(names.iter().map(|n| quote(n, delim)));
+                header.push("Serial Number".to_string());
+                vec![join(header)]
+            }
+        };
+        let split_time = matches!(e.columns.time, Some(TimeColumns::Split(_)));
+        Form { layout, delim, sensor, split_time, head }
+    }
+
+    /// Cells before the time of data row `n` (0-based): a row number.
+    fn lead_cells(&self, n: usize, cells: &mut Vec<String>) {
+        if let Some(Layout::TitledExport | Layout::NameInFirstCell) = self.layout {
+            cells.push((n + 1).to_string());
+        }
+    }
+
+    /// The time cell(s) of data row `n` (after the row number of the titled
+    /// and first-cell layouts; the four-line layout's record number follows).
+    fn time_cells(&self, n: usize, text: &str, cells: &mut Vec<String>) {
+        match self.layout {
+            Some(Layout::FourLineHeader) => {
+                cells.push(quoted(text));
+                cells.push(n.to_string());
+            }
+            _ if self.split_time => match text.split_once(' ') {
+                Some((date, clock)) => {
+                    cells.push(quote(date, self.delim));
+                    cells.push(quote(clock, self.delim));
+                }
+                // A fault's unreadable text has no space: the date cell
+                // holds it, the time cell stays empty.
+                None => {
+                    cells.push(quote(text, self.delim));
+                    cells.push(String::new());
+                }
+            },
+            _ => cells.push(quote(text, self.delim)),
+        }
+    }
+
+    /// Cells after the channels of data row `n`: the serial number of the
+    /// first-cell layout, in the first row only.
+    fn trail_cells(&self, n: usize, cells: &mut Vec<String>) {
+        if self.layout == Some(Layout::NameInFirstCell) && n == 0 {
+            cells.push(format!("SN-{}", self.sensor));
+        }
+    }
 }
 
 /// Write every export. `readings[l][i]` is the genuine SI reading of logger
@@ -367,23 +521,13 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
                 .collect()
         };
         for (file, ls) in groups {
-            let mut text = String::new();
             let sensor_name = if ls.len() == 1 { sc.spec.logger[ls[0]].id.as_str() } else { "" };
-            for p in &e.preamble {
-                text.push_str(&p.replace("{sensor}", sensor_name));
+            let form = Form::new(sc, e, delim, sensor_name);
+            let mut text = String::new();
+            for line in &form.head {
+                text.push_str(line);
                 text.push('\n');
             }
-            let mut header = vec![quote(&e.columns.time, delim)];
-            if let Some(s) = &e.columns.sensor {
-                header.push(quote(s, delim));
-            }
-            for k in 0..3 {
-                if let Some(c) = channel(e, k) {
-                    header.push(quote(&c.column, delim));
-                }
-            }
-            text.push_str(&header.join(&delim.to_string()));
-            text.push('\n');
             let mut all: Vec<(usize, usize, usize, &Row)> = Vec::new();
             for &l in &ls {
                 for w in &rows_of[l] {
@@ -392,9 +536,11 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
             }
             // Central systems write by time, then sensor; a copy follows its original.
             all.sort_by_key(|&(i, l, c, _)| (i, l, c));
-            // Physical lines: preamble, header, then data from preamble + 2.
-            for (line, (_, l, _, w)) in (e.preamble.len() + 2..).zip(all) {
-                let mut cells = vec![quote(&w.time_text, delim)];
+            // Physical lines: the head lines, then one line per row.
+            for (n, (line, (_, l, _, w))) in (form.head.len() + 1..).zip(all).enumerate() {
+                let mut cells = Vec::with_capacity(8);
+                form.lead_cells(n, &mut cells);
+                form.time_cells(n, &w.time_text, &mut cells);
                 if e.columns.sensor.is_some() {
                     cells.push(quote(&sc.spec.logger[l].id, delim));
                 }
@@ -403,6 +549,7 @@ pub fn write_exports(sc: &Scenario, r: &Reference, readings: &[Vec<[f64; 3]>]) -
                         cells.push(quote(w.cells[k].as_deref().unwrap_or(""), delim));
                     }
                 }
+                form.trail_cells(n, &mut cells);
                 text.push_str(&cells.join(&delim.to_string()));
                 text.push('\n');
                 for (var, reason) in &w.faults {

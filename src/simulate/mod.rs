@@ -615,13 +615,35 @@ fn study_toml(sc: &Scenario, seed: u64) -> String {
             format!("logs/{}/*.{ext}", e.name)
         };
         writeln!(s, "\n[[logs]]\nfiles = [{}]", q(&glob)).unwrap();
+        if let Some(form) = e.form_layout() {
+            // Three lines: the layout implies the rest and finds the
+            // channels by their header words, except light in lux (its
+            // conversion depends on the light source: named here).
+            writeln!(s, "layout = {}", q(form.name())).unwrap();
+            if e.clock.as_deref() == Some("utc") && form != crate::io::layouts::Layout::TitledExport {
+                writeln!(s, "timezone = \"UTC\"").unwrap();
+            }
+            if let Some(c) = e.columns.light.as_ref().filter(|c| c.unit.starts_with("lux")) {
+                let name = exports::channel_header(Some(form), c, "");
+                writeln!(s, "[logs.columns]\nlight = {{ column = {}, unit = {} }}", q(&name), q(&c.unit))
+                    .unwrap();
+            }
+            continue;
+        }
         if let Some(d) = &e.delimiter {
             writeln!(s, "delimiter = {}", q(d)).unwrap();
         }
         if let Some(d) = &e.decimal {
             writeln!(s, "decimal = {}", q(d)).unwrap();
         }
-        writeln!(s, "time = {}\ntime_format = {}", q(&e.columns.time), q(&e.time_format)).unwrap();
+        let time = match &e.columns.time {
+            Some(crate::io::study::TimeColumns::Split(v)) => {
+                format!("[{}]", v.iter().map(|c| q(c)).collect::<Vec<_>>().join(", "))
+            }
+            Some(crate::io::study::TimeColumns::One(c)) => q(c),
+            None => unreachable!("checked: the table form names its time column"),
+        };
+        writeln!(s, "time = {time}\ntime_format = {}", q(&e.time_format)).unwrap();
         if e.clock.as_deref() == Some("utc") && e.time_format != "rfc3339" && e.time_format != "unix" {
             writeln!(s, "timezone = \"UTC\"").unwrap();
         }

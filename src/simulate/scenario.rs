@@ -9,8 +9,9 @@
 
 use super::error::{Result, SimError};
 use crate::io::error::closest;
+use crate::io::layouts::Layout;
 use crate::io::qc::Reason;
-use crate::io::study::{delimiter_byte, parse_timezone, toml_error};
+use crate::io::study::{TimeColumns, delimiter_byte, parse_timezone, toml_error};
 use crate::io::units::Channel;
 use crate::spatial::correlation::Family;
 use chrono::{NaiveDate, NaiveDateTime, NaiveTime, TimeZone, Utc};
@@ -281,13 +282,21 @@ pub struct ExportSpec {
     /// `"one_file"` (all its loggers, rows by time then sensor) or
     /// `"file_per_logger"` (file stem = sensor id).
     pub layout: String,
+    /// How each file is laid out: `"table"` (default: optional preamble,
+    /// one header line, the keys below), or one of the recurring layouts
+    /// that `[[logs]] layout` reads ([`crate::io::layouts::Layout`]), which
+    /// fix the delimiter, the header lines, the time column and its pattern.
+    #[serde(default)]
+    pub form: Option<String>,
     /// Field delimiter (one character or `"tab"`). Default `,`.
     #[serde(default)]
     pub delimiter: Option<String>,
     /// Decimal mark `.` or `,`. Default `.`.
     #[serde(default)]
     pub decimal: Option<String>,
-    /// chrono strftime pattern, `rfc3339` or `unix`.
+    /// chrono strftime pattern, `rfc3339` or `unix` (required for the
+    /// table form; a recurring layout fixes its own, see [`Self::pattern`]).
+    #[serde(default)]
     pub time_format: String,
     /// `"local"` (study zone) or `"utc"`. Default `local`.
     #[serde(default)]
@@ -305,12 +314,32 @@ pub struct ExportSpec {
     pub columns: ExportColumns,
 }
 
+impl ExportSpec {
+    /// The recurring layout of `form`, or `None` for the table form (and
+    /// for an unknown name, which [`Scenario::load`] refuses).
+    pub fn form_layout(&self) -> Option<Layout> {
+        self.form.as_deref().and_then(Layout::parse)
+    }
+
+    /// The time pattern the files are written with: `time_format`, or the
+    /// one the recurring layout implies.
+    pub fn pattern(&self) -> &str {
+        match self.form_layout() {
+            Some(l) => l.implied().time_format,
+            None => &self.time_format,
+        }
+    }
+}
+
 /// `[export.columns]`.
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct ExportColumns {
-    /// Time column name.
-    pub time: String,
+    /// Time column name, or `[date, time]` for separate date and
+    /// time-of-day columns (the pattern's text is cut at its first space).
+    /// Required for the table form; a recurring layout names its own.
+    #[serde(default)]
+    pub time: Option<TimeColumns>,
     /// Sensor column name (one_file only).
     #[serde(default)]
     pub sensor: Option<String>,
@@ -1222,53 +1251,18 @@ fn check_exports<'a>(p: &Path, export: &'a [ExportSpec]) -> Result<Vec<&'a str>>
         }
         enames.push(e.name.as_str());
         one_of(p, &key("layout"), &e.layout, &["one_file", "file_per_logger"])?;
-        let delim = delimiter_byte(e.delimiter.as_deref().unwrap_or(","))
-            .map_err(|m| bad(p, &key("delimiter"), m, None))?;
-        let dec = e.decimal.as_deref().unwrap_or(".");
-        one_of(p, &key("decimal"), dec, &[".", ","])?;
-        if dec == "," && delim == b',' {
-            return Err(bad(
-                p,
-                &key("decimal"),
-                "a decimal comma needs a delimiter other than `,`",
-                Some("set delimiter = \";\"".into()),
-            ));
-        }
+        let mut forms = vec!["table"];
+        forms.extend(Layout::ALL.iter().map(|l| l.name()));
+        one_of(p, &key("form"), e.form.as_deref().unwrap_or("table"), &forms)?;
         one_of(p, &key("clock"), e.clock.as_deref().unwrap_or("local"), &["local", "utc"])?;
-        if e.time_format != "rfc3339" && e.time_format != "unix" {
-            let probe =
-                NaiveDate::from_ymd_opt(2026, 1, 2).and_then(|d| d.and_hms_opt(3, 4, 0)).expect("valid");
-            let mut s = String::new();
-            use std::fmt::Write;
-            let round_trips = write!(s, "{}", probe.format(&e.time_format)).is_ok()
-                && NaiveDateTime::parse_from_str(&s, &e.time_format).ok() == Some(probe);
-            if !round_trips {
-                return Err(bad(
-                    p,
-                    &key("time_format"),
-                    format!("`{}` does not print and read back a date and time to the minute", e.time_format),
-                    Some("use e.g. \"%Y-%m-%d %H:%M:%S\" or \"%d.%m.%Y %H:%M\"".into()),
-                ));
-            }
+        match e.form_layout() {
+            Some(form) => check_layout_form(p, &key, e, form)?,
+            None => check_table_form(p, &key, e)?,
         }
         if !(e.lead_hours.is_finite() && e.lead_hours >= 0.0 && e.lead_hours <= 72.0) {
             return Err(bad(p, &key("lead_hours"), "must be between 0 and 72 hours", None));
         }
         let cols = &e.columns;
-        match (e.layout.as_str(), &cols.sensor) {
-            ("one_file", None) => {
-                return Err(bad(p, &key("columns.sensor"), "a one_file export needs a sensor column", None));
-            }
-            ("file_per_logger", Some(_)) => {
-                return Err(bad(
-                    p,
-                    &key("columns.sensor"),
-                    "a file_per_logger export names the sensor by its file stem; remove this key",
-                    None,
-                ));
-            }
-            _ => {}
-        }
         if cols.temperature.is_none() && cols.humidity.is_none() && cols.light.is_none() {
             return Err(bad(p, &key("columns"), "writes no channel", None));
         }
@@ -1283,6 +1277,135 @@ fn check_exports<'a>(p: &Path, export: &'a [ExportSpec]) -> Result<Vec<&'a str>>
         }
     }
     Ok(enames)
+}
+
+/// The keys of an `[[export]]` in the table form: the time pattern (printed
+/// and read back), the time column(s), delimiter and decimal mark, and the
+/// sensor column that a one_file export needs.
+fn check_table_form(p: &Path, key: &dyn Fn(&str) -> String, e: &ExportSpec) -> Result<()> {
+    if e.time_format.is_empty() {
+        return Err(bad(
+            p,
+            &key("time_format"),
+            "is required (a chrono strftime pattern, \"rfc3339\" or \"unix\")",
+            None,
+        ));
+    }
+    match &e.columns.time {
+        None => return Err(bad(p, &key("columns.time"), "is required", None)),
+        Some(TimeColumns::Split(v)) => {
+            if v.len() != 2 || v.iter().any(|c| c.is_empty()) {
+                return Err(bad(
+                    p,
+                    &key("columns.time"),
+                    "is one column name, or two: [date column, time column]",
+                    None,
+                ));
+            }
+            let probe =
+                NaiveDate::from_ymd_opt(2026, 1, 2).and_then(|d| d.and_hms_opt(3, 4, 0)).expect("valid");
+            let mut text = String::new();
+            let no_space = matches!(e.time_format.as_str(), "rfc3339" | "unix") || {
+                use std::fmt::Write;
+                // An invalid pattern is refused below, with its own message.
+                write!(text, "{}", probe.format(&e.time_format)).is_ok() && !text.contains(' ')
+            };
+            if no_space {
+                return Err(bad(
+                    p,
+                    &key("columns.time"),
+                    format!(
+                        "separate date and time columns need a time_format with a space between date and time, not `{}`",
+                        e.time_format
+                    ),
+                    Some("e.g. time_format = \"%d/%m/%Y %H:%M\"".into()),
+                ));
+            }
+        }
+        Some(TimeColumns::One(_)) => {}
+    }
+    let delim = delimiter_byte(e.delimiter.as_deref().unwrap_or(","))
+        .map_err(|m| bad(p, &key("delimiter"), m, None))?;
+    let dec = e.decimal.as_deref().unwrap_or(".");
+    one_of(p, &key("decimal"), dec, &[".", ","])?;
+    if dec == "," && delim == b',' {
+        return Err(bad(
+            p,
+            &key("decimal"),
+            "a decimal comma needs a delimiter other than `,`",
+            Some("set delimiter = \";\"".into()),
+        ));
+    }
+    if e.time_format != "rfc3339" && e.time_format != "unix" {
+        let probe = NaiveDate::from_ymd_opt(2026, 1, 2).and_then(|d| d.and_hms_opt(3, 4, 0)).expect("valid");
+        let mut s = String::new();
+        use std::fmt::Write;
+        let round_trips = write!(s, "{}", probe.format(&e.time_format)).is_ok()
+            && NaiveDateTime::parse_from_str(&s, &e.time_format).ok() == Some(probe);
+        if !round_trips {
+            return Err(bad(
+                p,
+                &key("time_format"),
+                format!("`{}` does not print and read back a date and time to the minute", e.time_format),
+                Some("use e.g. \"%Y-%m-%d %H:%M:%S\" or \"%d.%m.%Y %H:%M\"".into()),
+            ));
+        }
+    }
+    match (e.layout.as_str(), &e.columns.sensor) {
+        ("one_file", None) => {
+            return Err(bad(p, &key("columns.sensor"), "a one_file export needs a sensor column", None));
+        }
+        ("file_per_logger", Some(_)) => {
+            return Err(bad(
+                p,
+                &key("columns.sensor"),
+                "a file_per_logger export names the sensor by its file stem; remove this key",
+                None,
+            ));
+        }
+        _ => {}
+    }
+    Ok(())
+}
+
+/// The keys of an `[[export]]` written in a recurring layout: one file per
+/// logger (the layout writes the sensor id in its header), and none of the
+/// keys the layout fixes (delimiter, decimal mark, time pattern and column,
+/// preamble, sensor column). A titled export writes a serial number into
+/// every channel header, so a lux channel (whose column a study block must
+/// name) cannot have one name across files.
+fn check_layout_form(p: &Path, key: &dyn Fn(&str) -> String, e: &ExportSpec, form: Layout) -> Result<()> {
+    let fixed = |k: &str, set: bool| -> Result<()> {
+        match set {
+            true => {
+                Err(bad(p, &key(k), format!("form \"{}\" fixes this; remove the key", form.name()), None))
+            }
+            false => Ok(()),
+        }
+    };
+    fixed("delimiter", e.delimiter.is_some())?;
+    fixed("decimal", e.decimal.is_some())?;
+    fixed("time_format", !e.time_format.is_empty())?;
+    fixed("preamble", !e.preamble.is_empty())?;
+    fixed("columns.time", e.columns.time.is_some())?;
+    fixed("columns.sensor", e.columns.sensor.is_some())?;
+    if e.layout != "file_per_logger" {
+        return Err(bad(
+            p,
+            &key("layout"),
+            format!("form \"{}\" writes one logger per file: set layout = \"file_per_logger\"", form.name()),
+            None,
+        ));
+    }
+    if form == Layout::TitledExport && e.columns.light.as_ref().is_some_and(|c| c.unit.starts_with("lux")) {
+        return Err(bad(
+            p,
+            &key("columns.light.unit"),
+            "a titled export names each channel with its logger's serial number, so a lux channel has no one column name for the study file",
+            Some("use unit = \"umol_m2_s\" or \"w_m2_shortwave\"".into()),
+        ));
+    }
+    Ok(())
 }
 
 /// `[[logger]]`: unique ids inside the compartment, each writing a known
@@ -1419,8 +1542,9 @@ fn check_faults(p: &Path, spec: &ScenarioSpec, lids: &[&str], logger_export: &[u
         if f.kind == "fallback_single_pass" {
             let e = &spec.export[logger_export[li]];
             if e.clock.as_deref().unwrap_or("local") != "local"
-                || e.time_format == "rfc3339"
-                || e.time_format == "unix"
+                || e.pattern() == "rfc3339"
+                || e.pattern() == "unix"
+                || e.form_layout() == Some(Layout::TitledExport)
             {
                 return Err(bad(
                     p,
