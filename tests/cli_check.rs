@@ -89,6 +89,13 @@ fn check_reports_bad_input_with_file_and_line() {
     let (code, _, err) = run(&["check", d.path().join("nope.toml").to_str().unwrap()]);
     assert_eq!(code, 1);
     assert!(err.contains("nope.toml") && err.contains("cannot read"), "{err}");
+    // The system's reason is said once, not once per link of the chain.
+    std::fs::remove_file(d.path().join("pots.csv")).unwrap();
+    let (code, _, err) = run(&["check", d.path().join("study.toml").to_str().unwrap()]);
+    assert_eq!(code, 1);
+    assert!(err.contains("pots.csv: cannot read"), "{err}");
+    // (Linux wording: the tests run there.)
+    assert_eq!(err.matches("No such file").count(), 1, "{err}");
 }
 
 #[test]

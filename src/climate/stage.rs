@@ -393,7 +393,7 @@ fn write_daily_parquet(run: &ClimateRun, path: &Path) -> Result<()> {
     let pe = |source| ClimateError::Polars { path: path.to_path_buf(), source };
     let mut df = daily_frame(run).map_err(pe)?;
     let file = std::fs::File::create(path)
-        .map_err(|source| crate::io::IoError::Read { path: path.to_path_buf(), source })?;
+        .map_err(|source| crate::io::IoError::Read { path: path.to_path_buf(), reason: source })?;
     ParquetWriter::new(file).finish(&mut df).map_err(pe)?;
     Ok(())
 }

@@ -511,7 +511,7 @@ fn zone_in_preamble(lines: &[String]) -> Option<(String, usize)> {
 /// Read the sample of a file: the head, and the tail when the file is longer.
 fn sample(path: &Path) -> Result<(Vec<String>, Vec<String>)> {
     use std::io::{Read, Seek, SeekFrom};
-    let err = |source| IoError::Read { path: path.to_path_buf(), source };
+    let err = |source| IoError::Read { path: path.to_path_buf(), reason: source };
     let mut f = std::fs::File::open(path).map_err(err)?;
     let len = f.metadata().map_err(err)?.len() as usize;
     let mut head = vec![0u8; len.min(HEAD_BYTES)];

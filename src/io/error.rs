@@ -9,12 +9,13 @@ use std::path::PathBuf;
 #[non_exhaustive]
 pub enum IoError {
     /// A file could not be opened or read.
-    #[error("{}: cannot read: {source}", path.display())]
+    #[error("{}: cannot read: {reason}", path.display())]
     Read {
         /// The file.
         path: PathBuf,
-        /// The operating-system error.
-        source: std::io::Error,
+        /// The operating-system error, written in the message (not a
+        /// separate cause, so that a chain of causes names it once).
+        reason: std::io::Error,
     },
     /// The study file is not valid TOML, or does not fit the schema.
     #[error("{}:{line}:{column}: {message}", path.display())]

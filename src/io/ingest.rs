@@ -701,11 +701,11 @@ pub fn write_outputs(study: &Study, ing: &Ingested) -> Result<Vec<PathBuf>> {
     let mut w = StageWriter::new(&out, "ingest")?;
     let werr = |p: &Path, e: &dyn std::fmt::Display| IoError::Read {
         path: p.to_path_buf(),
-        source: std::io::Error::other(e.to_string()),
+        reason: std::io::Error::other(e.to_string()),
     };
 
     let p = w.path(READINGS_FILE);
-    let f = std::fs::File::create(&p).map_err(|source| IoError::Read { path: p.clone(), source })?;
+    let f = std::fs::File::create(&p).map_err(|source| IoError::Read { path: p.clone(), reason: source })?;
     let mut df = ing.readings.clone();
     ParquetWriter::new(f).finish(&mut df).map_err(|e| werr(&p, &e))?;
 
@@ -754,7 +754,8 @@ pub fn write_outputs(study: &Study, ing: &Ingested) -> Result<Vec<PathBuf>> {
 
 /// Read a `readings.parquet` written by [`write_outputs`], checking its columns.
 pub fn read_readings(path: &Path) -> Result<DataFrame> {
-    let f = std::fs::File::open(path).map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
+    let f = std::fs::File::open(path)
+        .map_err(|source| IoError::Read { path: path.to_path_buf(), reason: source })?;
     let df = ParquetReader::new(f).finish().map_err(|e| IoError::Table {
         path: path.to_path_buf(),
         message: format!("not a readable parquet file: {e}"),

@@ -245,7 +245,7 @@ fn sample_file(study: &Study, fmt: &LogFormat, path: &std::path::Path) -> Result
         return Ok(inv);
     }
     let bytes = std::fs::read(path)
-        .map_err(|source| super::error::IoError::Read { path: path.to_path_buf(), source })?;
+        .map_err(|source| super::error::IoError::Read { path: path.to_path_buf(), reason: source })?;
     let mut inv = sample_bytes(fmt, path, &bytes)?;
     inv.name = display_name(study, path);
     Ok(inv)

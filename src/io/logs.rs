@@ -236,7 +236,7 @@ fn compile_block(
         for p in paths {
             let p = p.map_err(|e| IoError::Read {
                 path: e.path().to_path_buf(),
-                source: std::io::Error::other(e.to_string()),
+                reason: std::io::Error::other(e.to_string()),
             })?;
             if p.is_file() {
                 files.push(p);
@@ -464,7 +464,7 @@ pub fn read_file_with(fmt: &LogFormat, path: &Path, file: u32, buf: &mut Vec<u8>
         let (wfmt, sheet) = super::workbook::for_block(fmt, path)?;
         return read_bytes(&wfmt, &sheet.shown, file, &sheet.text);
     }
-    let err = |source| IoError::Read { path: path.to_path_buf(), source };
+    let err = |source| IoError::Read { path: path.to_path_buf(), reason: source };
     let mut f = std::fs::File::open(path).map_err(err)?;
     buf.clear();
     if let Ok(m) = f.metadata() {

@@ -166,13 +166,14 @@ impl StageWriter {
     /// Create the output folder if needed and a fresh staging folder in it,
     /// named after the stage.
     pub fn new(out: &Path, stage: &str) -> Result<StageWriter> {
-        std::fs::create_dir_all(out).map_err(|source| IoError::Read { path: out.to_path_buf(), source })?;
+        std::fs::create_dir_all(out)
+            .map_err(|source| IoError::Read { path: out.to_path_buf(), reason: source })?;
         let staging = out.join(format!(".{stage}.partial-{}", std::process::id()));
         if staging.exists() {
             let _ = std::fs::remove_dir_all(&staging);
         }
         std::fs::create_dir_all(&staging)
-            .map_err(|source| IoError::Read { path: staging.clone(), source })?;
+            .map_err(|source| IoError::Read { path: staging.clone(), reason: source })?;
         Ok(StageWriter { out: out.to_path_buf(), staging, files: Vec::new(), committed: false })
     }
 
@@ -193,7 +194,7 @@ impl StageWriter {
     /// Write a whole file from bytes.
     pub fn write(&mut self, name: &str, bytes: &[u8]) -> Result<()> {
         let p = self.path(name);
-        std::fs::write(&p, bytes).map_err(|source| IoError::Read { path: p, source })
+        std::fs::write(&p, bytes).map_err(|source| IoError::Read { path: p, reason: source })
     }
 
     /// The folder the files will be published to.
@@ -216,9 +217,10 @@ impl StageWriter {
             let to = self.out.join(name);
             if let Some(parent) = to.parent() {
                 std::fs::create_dir_all(parent)
-                    .map_err(|source| IoError::Read { path: parent.to_path_buf(), source })?;
+                    .map_err(|source| IoError::Read { path: parent.to_path_buf(), reason: source })?;
             }
-            std::fs::rename(&from, &to).map_err(|source| IoError::Read { path: to.clone(), source })?;
+            std::fs::rename(&from, &to)
+                .map_err(|source| IoError::Read { path: to.clone(), reason: source })?;
             published.push(to);
         }
         let _ = std::fs::remove_dir_all(&self.staging);

@@ -304,7 +304,7 @@ impl Study {
     /// Read and validate a study file.
     pub fn load(path: &Path) -> Result<Study> {
         let source = std::fs::read_to_string(path)
-            .map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
+            .map_err(|source| IoError::Read { path: path.to_path_buf(), reason: source })?;
         Study::from_source(path, source)
     }
 

@@ -24,8 +24,8 @@ impl Table {
     /// Read a table with a header row. Blank lines are skipped (they are not
     /// data); a row with the wrong number of fields is an error naming its line.
     pub fn read(path: &Path, delimiter: u8) -> Result<Table> {
-        let bytes =
-            std::fs::read(path).map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
+        let bytes = std::fs::read(path)
+            .map_err(|source| IoError::Read { path: path.to_path_buf(), reason: source })?;
         let mut counter = LineCounter::new(&bytes);
         let mut rdr = csv::ReaderBuilder::new()
             .delimiter(delimiter)
@@ -221,7 +221,7 @@ pub fn is_missing(v: &str) -> bool {
 fn csv_error(path: &Path, e: csv::Error) -> IoError {
     let line = e.position().map(|p| p.line());
     match e.into_kind() {
-        csv::ErrorKind::Io(source) => IoError::Read { path: path.to_path_buf(), source },
+        csv::ErrorKind::Io(source) => IoError::Read { path: path.to_path_buf(), reason: source },
         kind => IoError::Table {
             path: path.to_path_buf(),
             message: match line {

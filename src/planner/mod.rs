@@ -97,7 +97,7 @@ impl PlanFile {
     /// and column).
     pub fn load(path: &Path) -> Result<PlanFile, PlanError> {
         let source = std::fs::read_to_string(path)
-            .map_err(|source| IoError::Read { path: path.to_path_buf(), source })?;
+            .map_err(|source| IoError::Read { path: path.to_path_buf(), reason: source })?;
         let doc: PlanDoc = toml::from_str(&source).map_err(|e| toml_error(path, &source, &e))?;
         let dir = path
             .parent()

@@ -602,7 +602,7 @@ impl Scenario {
     /// Read, parse and check a scenario file.
     pub fn load(path: &Path) -> Result<Scenario> {
         let source = std::fs::read_to_string(path)
-            .map_err(|source| crate::io::IoError::Read { path: path.to_path_buf(), source })?;
+            .map_err(|source| crate::io::IoError::Read { path: path.to_path_buf(), reason: source })?;
         Scenario::from_source(path, &source)
     }
 
