@@ -19,11 +19,17 @@
 //! mapped summary), per local day, and combined over the pot's own growth
 //! window (`[pots].start`/`end`, else the study period).
 //!
-//! Standard errors of window indicators (an approximation, stated in
-//! `docs/spatial.md`): the indicator's study-period values at the sensors are
-//! kriged with the variable's variogram shape and their own profiled sill
-//! ([`super::mapping::map_summary`]); for a summed indicator the SE is scaled
-//! by the pot's share of the study period's valid days.
+//! Standard errors of window indicators ([`super::window_se`], stated in
+//! `docs/spatial.md`): each step's kriging error is split into a part shared
+//! by all steps and a part of its own; the window indicator's variance is the
+//! law of total variance over the two, with the per-step SEs scaled and the
+//! shared share estimated from the left-out loggers' per-step errors, and the
+//! window variances widened when the left-out loggers' window check rejects
+//! them. An indicator the per-step route cannot handle (not a function of
+//! one kriged variable) falls back to kriging its study-period values at the
+//! sensors with the variable's variogram shape and their own profiled sill
+//! ([`super::mapping::map_summary`]); for a summed indicator that SE is
+//! scaled by the pot's share of the study period's valid days.
 
 use super::config::{MappingConfig, MethodChoice};
 use super::error::SpatialError;
