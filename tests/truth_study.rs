@@ -359,6 +359,41 @@ fn truth_verdicts_through_the_pipeline() {
     }
 }
 
+/// The second test under correlated errors (docs/verdict.md, step 7), on the
+/// seed of the `correlation` truth where it decides: `base+night_cold_hours`
+/// with independent errors wins the AIC rule (by the tie margin: the same
+/// driver with exponential errors has the lower AIC) and its exact t passes,
+/// but under those correlated errors (refitted by REML, Kenward-Roger) the
+/// driver fails, is set aside, and the verdict is the right
+/// `correlation`. Measured before the rule: `covariate` (docs/verdict.md).
+#[test]
+fn an_independent_choice_is_tested_again_under_correlation() {
+    let dir = tempfile::tempdir().unwrap();
+    let study = dir.path().join("study");
+    potclim(&[
+        "simulate",
+        scenario("correlation").to_str().unwrap(),
+        "--out",
+        study.to_str().unwrap(),
+        "--seed",
+        "14",
+    ]);
+    potclim(&["run", study.join("study.toml").to_str().unwrap(), "--quiet"]);
+    let summary = read_json(&study.join("output/summary.json"));
+    assert_eq!(summary["verdict"], "correlation", "{}", summary["best_model"]);
+    let first = &summary["calibration"]["steps"][0];
+    assert_eq!(first["model"], "base+night_cold_hours", "{first}");
+    let exact = first["tests"][0]["p_value"].as_f64().unwrap();
+    let again = &first["tests_under_correlation"][0];
+    let p_again = again["p_value"].as_f64().unwrap();
+    assert!(exact < 0.05 && p_again >= 0.05, "exact t p {exact}, under correlation p {p_again}");
+    assert_eq!(again["method"], "kenward-roger (first order)");
+    assert!(first["correlation_check"].as_str().unwrap().starts_with("base+night_cold_hours | "), "{first}");
+    assert_eq!(first["set_aside"][0], DRIVER);
+    let statement = summary["calibration"]["statement"].as_str().unwrap();
+    assert!(statement.contains("under correlated errors, which have the lower AIC with these drivers"), "{statement}");
+}
+
 /// The four scenario files differ only in `[scenario].title` and `[trait]`,
 /// so that the truths share their climate, loggers and design: the same seed
 /// gives the same climate and the same mapped driver under every truth.
