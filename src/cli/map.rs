@@ -62,6 +62,12 @@ pub fn summary(run: &MapRun) -> String {
             s.push_str(&format!("             warning: {w}\n"));
         }
     }
+    if let Some(m) = &run.moves {
+        for line in m.lines() {
+            s.push_str(&line);
+            s.push('\n');
+        }
+    }
     for c in run.checks.iter().filter(|c| !c.nearest_to.is_empty()) {
         s.push_str(&format!(
             "check        {} at logger {} (nearest to {}): {:.4} without it, {:.4} measured{}\n",

@@ -25,6 +25,7 @@ pub mod likelihood;
 pub mod mapping;
 pub mod optimise;
 pub mod outputs;
+pub mod paths;
 pub mod placement;
 pub mod rowcol;
 pub mod selfcheck;
