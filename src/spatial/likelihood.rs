@@ -564,6 +564,19 @@ pub fn maximise(
     opts: &SearchOptions,
 ) -> Result<Maximum, LikelihoodError> {
     check_sizes(dist, x, y)?;
+    maximise_by(dist, family, opts, |params| profiled(dist, params, x, y, method))
+}
+
+/// [`maximise`] of any profiled likelihood `evaluate` of the correlation
+/// parameters (for example that of pots that move,
+/// [`super::averaged::profiled_averaged`]); `dist` sets the range bounds and
+/// the start ranges from its pairwise distances.
+pub fn maximise_by(
+    dist: &Distances,
+    family: Family,
+    opts: &SearchOptions,
+    evaluate: impl Fn(&CovParams) -> Result<Profiled, LikelihoodError>,
+) -> Result<Maximum, LikelihoodError> {
     let f0 = super::factor::factorisations_on_this_thread();
     let t0 = std::time::Instant::now();
     let SearchBox { sample, lo: box_lo, hi: box_hi, dim, range: (lo, hi) } = SearchBox::new(dist, opts)?;
@@ -576,7 +589,7 @@ pub fn maximise(
     let state = std::cell::RefCell::new(State { evaluations: 0, best: None, first_error: None });
     let eval = |t: &[f64]| -> f64 {
         let params = CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } };
-        let result = profiled(dist, &params, x, y, method);
+        let result = evaluate(&params);
         let mut st = state.borrow_mut();
         st.evaluations += 1;
         match result {
