@@ -111,6 +111,24 @@ fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
     potclim(&["run", "study.toml"], &study);
     potclim(&["run", "study.toml"], &final_dir);
 
+    // pot_paths.csv: five places per pot in its 13-day window (moves on
+    // days 3, 6, 9 and 12), three days at each of the first four and one
+    // at the last
+    let mut shares: HashMap<String, Vec<f64>> = HashMap::new();
+    let mut r = csv::Reader::from_path(study.join("output/pot_paths.csv")).unwrap();
+    assert_eq!(r.headers().unwrap().iter().collect::<Vec<_>>(), ["pot", "position", "x", "y", "time_share"]);
+    for rec in r.records() {
+        let rec = rec.unwrap();
+        shares.entry(rec[0].to_string()).or_default().push(rec[4].parse().unwrap());
+    }
+    assert_eq!(shares.len(), 150);
+    for (pot, w) in &shares {
+        assert_eq!(w.len(), 5, "{pot}: {w:?}");
+        assert!((w.iter().sum::<f64>() - 1.0).abs() < 1e-12, "{pot}: {w:?}");
+        assert!((w[0] - 3.0 / 13.0).abs() < 1e-12 && (w[4] - 1.0 / 13.0).abs() < 1e-12, "{pot}: {w:?}");
+    }
+    assert!(!final_dir.join("output/pot_paths.csv").exists());
+
     let r_path = mapped_vs_truth(&study);
     let r_final = mapped_vs_truth(&final_dir);
     let (est, lo, hi) = driver_effect(&study);

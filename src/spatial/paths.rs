@@ -69,7 +69,7 @@ impl Paths {
                     });
                 }
                 let p = *index.entry(key(m.x, m.y)).or_insert_with(|| {
-                    ids.push(m.slot.clone().unwrap_or_else(|| format!("({}, {})", m.x, m.y)));
+                    ids.push(m.slot.clone().unwrap_or_else(|| format!("x={} y={}", m.x, m.y)));
                     x.push(m.x);
                     y.push(m.y);
                     ids.len() - 1
@@ -171,6 +171,27 @@ impl MovedPots {
         out.extend(self.shared.iter().map(|w| format!("             warning: {w}")));
         out
     }
+
+    /// `pot_paths.csv`: one row per pot (pot-table order) and position it
+    /// held in its growth window (in order of first stay), with the position's
+    /// id (the pot whose own position it is, the slot, or `x=.. y=..`), its
+    /// coordinates in metres and the pot's time share there.
+    pub fn csv(&self, pots: &[String]) -> Vec<u8> {
+        let mut t = crate::io::output::CsvTable::new(["pot", "position", "x", "y", "time_share"]);
+        let pos = &self.paths.positions;
+        for (j, w) in self.shares.iter().enumerate() {
+            for &(p, share) in w {
+                t.row([
+                    pots[j].clone(),
+                    pos.ids[p].clone(),
+                    crate::io::output::number(pos.x[p]),
+                    crate::io::output::number(pos.y[p]),
+                    crate::io::output::number(share),
+                ]);
+            }
+        }
+        t.into_bytes()
+    }
 }
 
 /// The steps of the days `days` of the calendar (contiguous).
@@ -250,6 +271,15 @@ mod tests {
         assert_eq!(p.shares(1, window_steps(&c, 1..2), 48), vec![(0, 1.0)]);
         // an empty window: the place held at its start
         assert_eq!(p.shares(0, 20..20, 48), vec![(1, 1.0)]);
+        // pot_paths.csv of the whole period
+        let shares = (0..2).map(|j| p.shares(j, window_steps(&c, 0..2), 48)).collect();
+        let moved = MovedPots { paths: p, shares, shared: vec![] };
+        let csv = String::from_utf8(moved.csv(&["a".into(), "b".into()])).unwrap();
+        assert_eq!(
+            csv,
+            "pot,position,x,y,time_share\na,a,0,0,0.25\na,b,1,0,0.625\na,x=3 y=0,3,0,0.125\nb,b,1,0,0.25\nb,a,0,0,0.75\n"
+        );
+        assert!(moved.lines()[0].contains("2 of 2 pots moved, 3 positions"), "{:?}", moved.lines());
     }
 
     /// No move rows: the fixed paths, which gather nothing; a move whose time

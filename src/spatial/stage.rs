@@ -383,8 +383,12 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         .collect();
     // Pots that move: every position ever held is mapped (the targets), each
     // pot's series gathered along its path (`super::paths`).
-    let period = crate::io::ingest::study_period(study)?;
-    let moves = crate::io::moves::load_moves(study, &pots_table, &period)?;
+    let moves = match &study.spec.pots.moves {
+        Some(_) => {
+            crate::io::moves::load_moves(study, &pots_table, &crate::io::ingest::study_period(study)?)?
+        }
+        None => None,
+    };
     let paths = match &moves {
         Some(m) => Paths::new(&pots, m, cal)?,
         None => Paths::fixed(&pots),
@@ -858,7 +862,8 @@ fn cal_end(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
 }
 
 /// Write `pot_covariates.csv`, `variograms.csv`, `variogram_fits.csv`,
-/// `mapping_cv.csv`, `variogram_ml_fits.csv` and `mapping_check.csv` into the study's output folder (atomically).
+/// `mapping_cv.csv`, `variogram_ml_fits.csv` and `mapping_check.csv` (and,
+/// for pots that move, `pot_paths.csv`) into the study's output folder (atomically).
 pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapError> {
     let mut w = StageWriter::new(&study.output_dir(), "map")?;
     w.write(POT_COVARIATES_FILE, &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
@@ -885,6 +890,9 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
     w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(&run.ml_fits, run.ml_nugget))?;
     w.write(MAPPING_CHECK_FILE, &super::selfcheck::mapping_check_csv(&run.checks)?)?;
     w.write(MAPPING_SE_FILE, &mapping_se_csv(&run.indicators, &run.window_se))?;
+    if let Some(m) = &run.moves {
+        w.write(super::outputs::POT_PATHS_FILE, &m.csv(&run.pots))?;
+    }
     Ok(w.commit()?)
 }
 
