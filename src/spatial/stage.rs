@@ -13,6 +13,11 @@
 //! 3. the whole series is mapped onto every pot with weights computed once per
 //!    set of reporting sensors ([`super::mapping::map_series`]).
 //!
+//! Pots that move (`[pots] moves`, [`super::paths`]): the targets of step 3
+//! are every position ever held, and each pot's series is gathered from the
+//! position it held at each step before anything below; without moves the
+//! targets are the pots and nothing is gathered.
+//!
 //! Each pot's indicator is then computed from the pot's own mapped series by
 //! the climate stage's per-location code (so that non-linear indicators such
 //! as hours below a threshold come from the mapped series itself, not from a
