@@ -108,8 +108,10 @@ fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
     assert!(pots.starts_with("pot,x,y,"), "{pots}");
     std::fs::write(final_dir.join("pots.csv"), out).unwrap();
 
-    potclim(&["run", "study.toml"], &study);
-    potclim(&["run", "study.toml"], &final_dir);
+    let said = potclim(&["run", "study.toml"], &study);
+    assert!(said.contains("150 of 150 pots moved, 150 positions mapped; 0 time(s)"), "{said}");
+    let said = potclim(&["run", "study.toml"], &final_dir);
+    assert!(!said.contains("pots moved"), "{said}");
 
     // pot_paths.csv: five places per pot in its 13-day window (moves on
     // days 3, 6, 9 and 12), three days at each of the first four and one
@@ -149,4 +151,34 @@ fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
     // the verdict finds the driver and its CI covers the true -0.025 g per hour
     assert!(verdict == "covariate" || verdict == "both", "{verdict}: {}", summary["reason"]);
     assert!(lo <= -0.025 && -0.025 <= hi, "estimate {est} [{lo}, {hi}]");
+}
+
+/// `potclim check` reads the move table: a row naming a pot the pot table
+/// does not have is refused with the file, line, column, value and a hint.
+#[test]
+fn check_refuses_a_bad_move_table_with_its_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let scenario = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/scenarios/rotating_carts.toml");
+    potclim(&["simulate", scenario.to_str().unwrap(), "--out", "study", "--seed", "1"], dir.path());
+    let study = dir.path().join("study");
+    let moves = std::fs::read_to_string(study.join("moves.csv")).unwrap();
+    potclim(&["check", "study.toml"], &study);
+    let mut lines: Vec<String> = moves.lines().map(str::to_string).collect();
+    lines[5] = lines[5].replacen('P', "Q", 1);
+    let bad_id = lines[5].split(',').next().unwrap().to_string();
+    std::fs::write(study.join("moves.csv"), lines.join("\n") + "\n").unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_potclim"))
+        .args(["check", "study.toml"])
+        .current_dir(&study)
+        .output()
+        .unwrap();
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("moves.csv:6")
+            && err.contains("column `pot`")
+            && err.contains(&bad_id)
+            && err.contains("hint"),
+        "{err}"
+    );
 }
