@@ -22,7 +22,6 @@
 //! (`tests/reference/averaged.py`, fixture `tests/reference/fixtures/averaged.json`).
 
 use super::covariance::CovParams;
-use super::factor::{CORRELATION_MIN_DIAGONAL, Cholesky};
 use super::likelihood::{LikelihoodError, LikelihoodKind, Profiled, profiled_with_factor};
 use faer::Mat;
 
@@ -75,12 +74,7 @@ pub fn averaged_cholesky(
     py: &[f64],
     shares: &Shares,
 ) -> Result<Mat<f64>, LikelihoodError> {
-    if !(params.range.is_finite() && params.range > 0.0 && (0.0..1.0).contains(&params.eta)) {
-        return Err(LikelihoodError::Invalid(format!(
-            "range {} must be positive and nugget share {} in [0, 1)",
-            params.range, params.eta
-        )));
-    }
+    super::likelihood::check_params(params)?;
     if let Some((i, w)) = shares.iter().enumerate().find(|(_, w)| {
         let total: f64 = w.iter().map(|s| s.1).sum();
         w.iter().any(|&(p, s)| p >= px.len() || !(s.is_finite() && s >= 0.0)) || (total - 1.0).abs() > 1e-9
@@ -89,17 +83,7 @@ pub fn averaged_cholesky(
             "the time shares of pot {i} ({w:?}) must be non-negative, name known positions and sum to 1"
         )));
     }
-    let v = averaged_correlation(params, px, py, shares);
-    super::factor::count_factorisation();
-    let c = Cholesky::new(v, CORRELATION_MIN_DIAGONAL).map_err(|location| {
-        LikelihoodError::NotPositiveDefinite {
-            family: params.family.name(),
-            range: params.range,
-            eta: params.eta,
-            location,
-        }
-    })?;
-    Ok(c.into_l())
+    super::likelihood::factor_correlation(averaged_correlation(params, px, py, shares), params)
 }
 
 /// The profiled ML or REML log-likelihood of pots that move at `params`

@@ -224,14 +224,25 @@ impl Distances {
 ///
 /// Cost: `n^2/2` correlation evaluations and `n^3/3` flops.
 pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, LikelihoodError> {
-    let n = dist.len();
+    check_params(params)?;
+    let v = Kernel::correlation(params).fill_lower(dist.len(), |i, j| dist.get(i, j));
+    factor_correlation(v, params)
+}
+
+/// Refuse a range that is not positive or a nugget share outside `[0, 1)`.
+pub(super) fn check_params(params: &CovParams) -> Result<(), LikelihoodError> {
     if !(params.range.is_finite() && params.range > 0.0 && (0.0..1.0).contains(&params.eta)) {
         return Err(LikelihoodError::Invalid(format!(
             "range {} must be positive and nugget share {} in [0, 1)",
             params.range, params.eta
         )));
     }
-    let v = Kernel::correlation(params).fill_lower(n, |i, j| dist.get(i, j));
+    Ok(())
+}
+
+/// The lower Cholesky factor of the correlation matrix `v` of `params`
+/// (its lower triangle is read), counted, with the failure located.
+pub(super) fn factor_correlation(v: Mat<f64>, params: &CovParams) -> Result<Mat<f64>, LikelihoodError> {
     super::factor::count_factorisation();
     let c = Cholesky::new(v, CORRELATION_MIN_DIAGONAL).map_err(|location| {
         LikelihoodError::NotPositiveDefinite {
