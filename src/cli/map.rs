@@ -19,7 +19,9 @@ series onto every pot with the chosen method. Each pot's indicators are then com
 mapped series over its own growth window ([pots].start/end).
 
 Reads <output>/readings.parquet (run `potclim ingest STUDY` first). Writes pot_covariates.csv, \
-variograms.csv, variogram_fits.csv, variogram_ml_fits.csv, mapping_cv.csv, mapping_check.csv and mapping_se.csv into the output folder.";
+variograms.csv, variogram_fits.csv, variogram_ml_fits.csv, mapping_cv.csv, mapping_check.csv and mapping_se.csv into the output folder; with a move table ([pots] moves) every position \
+ever held is mapped, each pot's indicators come from its series along its path, and pot_paths.csv gives each \
+pot's time share of each position.";
 
 /// Arguments of `potclim map`.
 #[derive(Debug, Args)]
@@ -60,6 +62,12 @@ pub fn summary(run: &MapRun) -> String {
         }
         for w in &v.warnings {
             s.push_str(&format!("             warning: {w}\n"));
+        }
+    }
+    if let Some(m) = &run.moves {
+        for line in m.lines() {
+            s.push_str(&line);
+            s.push('\n');
         }
     }
     for c in run.checks.iter().filter(|c| !c.nearest_to.is_empty()) {

@@ -160,6 +160,11 @@ pub fn run(args: RunArgs) -> anyhow::Result<()> {
 /// The outcome on standard output, after the stage lines.
 fn print_outcome(r: &RunResults) -> anyhow::Result<()> {
     let v = &r.verdict;
+    if let Some(m) = &r.map.moves {
+        for line in m.lines() {
+            outln!("{line}");
+        }
+    }
     outln!();
     outln!("verdict: {}", v.verdict);
     outln!("reason: {}", v.reason);

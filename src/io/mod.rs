@@ -18,6 +18,7 @@ pub mod inventory;
 pub mod layout;
 pub mod layouts;
 pub mod logs;
+pub mod moves;
 pub mod output;
 pub mod provenance;
 pub mod qc;

@@ -125,6 +125,15 @@ pub struct PotsSection {
     /// Column with each pot's column on that lattice (whole numbers).
     #[serde(default)]
     pub lattice_column: Option<String>,
+    /// The move table of pots that move (CSV, relative to the study file;
+    /// see `io::moves`): columns `pot`, `since`, and `x`, `y` in metres or
+    /// `slot` with a slot table.
+    #[serde(default)]
+    pub moves: Option<String>,
+    /// The slot table of the move table (CSV with columns `slot`, `x`, `y`);
+    /// when given, the move table names slots instead of coordinates.
+    #[serde(default)]
+    pub slots: Option<String>,
 }
 
 /// `[pots.grid]`: pots on benches in rows of slots. With 1-based integers
@@ -440,6 +449,13 @@ impl Study {
                 if p.lattice_row.is_some() { "pots.lattice_column" } else { "pots.lattice_row" },
                 "is missing: the lattice of the rows x columns model needs both a row and a column",
                 Some("name both columns, e.g. lattice_row = \"row\" and lattice_column = \"slot\", or neither (then rows and columns come from the positions)".into()),
+            ));
+        }
+        if p.slots.is_some() && p.moves.is_none() {
+            return Err(self.invalid(
+                "pots.slots",
+                "a slot table without a move table: slots only name the places of moves",
+                Some("add `moves = \"moves.csv\"` to [pots], or remove `slots`".into()),
             ));
         }
         if let Some(g) = &p.grid {

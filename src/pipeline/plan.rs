@@ -54,6 +54,10 @@ impl Plan {
     pub fn from_study(study: &Study) -> Result<Plan, StageError> {
         // The tables first: a file that cannot be read is the first thing to fix.
         let pots = load_pots(study)?;
+        // The move table against the pot table and the declared period.
+        if study.spec.pots.moves.is_some() {
+            crate::io::moves::load_moves(study, &pots, &crate::io::ingest::study_period(study)?)?;
+        }
         let scores = crate::io::scores::Scores::load(study, &pots)?;
         let sensors = load_sensors(study)?.ok_or_else(|| {
             study.invalid(

@@ -17,6 +17,7 @@
 //! pots.csv             pot table: positions, factors, sowing/scoring dates, trait
 //! sensors.csv          sensor table
 //! logs/...             logger exports, one format per [[export]]
+//! moves.csv            the move table, with `[rotation]` (see `rotation`)
 //! truth/effects.json   the true effects and climate parameters
 //! truth/pots.csv       climate components and indicator values at every pot
 //! truth/sensors.csv    climate components at every sensor
@@ -31,6 +32,7 @@ pub mod error;
 pub mod exports;
 pub mod field;
 pub mod growth;
+pub mod rotation;
 pub mod scenario;
 pub mod scorings;
 
@@ -56,6 +58,7 @@ mod stream {
     pub const RESIDUAL_FIELD: u64 = 5;
     pub const TRAIT_NOISE: u64 = 6;
     pub const RESIDUAL_LATTICE: u64 = 7;
+    pub const ROTATION: u64 = 8;
 }
 
 fn rng(seed: u64, stream: u64) -> ChaCha20Rng {
@@ -271,9 +274,27 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
         .collect();
     let ex = exports::write_exports(sc, &reference, &readings)?;
 
-    // Indicators at every pot over its own window, from the true field.
+    // Pots that move (`[rotation]`): at each reference instant, the pot
+    // whose own position each pot holds.
+    let rotation = rotation::plan(sc, spec.rotation.as_ref(), n_p, seed)?;
+    let move_utc: Vec<chrono::DateTime<chrono::Utc>> = rotation
+        .as_ref()
+        .map(|r| r.times.iter().map(|t| scenario::local_to_utc(sc.tz, *t)).collect())
+        .unwrap_or_default();
+    let holder = |pi: usize, i: usize| -> usize {
+        match &rotation {
+            Some(r) => match move_utc.partition_point(|m| *m <= reference.times[i]).checked_sub(1) {
+                Some(k) => r.placement[k][pi],
+                None => pi,
+            },
+            None => pi,
+        }
+    };
+    // Indicators at every pot over its own window, from the true field
+    // along the pot's path.
     let inds = &spec.trait_.indicator;
     let mut ind_vals = vec![vec![0.0; inds.len()]; n_p];
+    let mut windows: Vec<Vec<usize>> = Vec::with_capacity(n_p);
     for (pi, p) in pots.iter().enumerate() {
         let w0 = scenario::local_to_utc(sc.tz, p.sown.and_hms_opt(0, 0, 0).expect("midnight"));
         let w1 = scenario::local_to_utc(sc.tz, p.scored.and_hms_opt(0, 0, 0).expect("midnight"));
@@ -282,7 +303,17 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
             .collect();
         let n_days = (p.scored - p.sown).num_days() as f64;
         for (k, ind) in inds.iter().enumerate() {
-            let (values, keep) = indicator_series(sc, &reference, &pot_c[pi], ind, &idx);
+            // Runs of instants at one position, in time order.
+            let (mut values, mut keep) = (Vec::with_capacity(idx.len()), Vec::with_capacity(idx.len()));
+            let mut a = 0;
+            while a < idx.len() {
+                let h = holder(pi, idx[a]);
+                let b = (a..idx.len()).find(|&b| holder(pi, idx[b]) != h).unwrap_or(idx.len());
+                let (v, kp) = indicator_series(sc, &reference, &pot_c[h], ind, &idx[a..b]);
+                values.extend(v);
+                keep.extend(kp);
+                a = b;
+            }
             ind_vals[pi][k] = climate::evaluate(statistic(ind), &values, &keep, sc.step_minutes, n_days)
                 .ok_or_else(|| {
                     sc.bad(
@@ -292,6 +323,7 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
                     )
                 })?;
         }
+        windows.push(idx);
     }
 
     // Trait.
@@ -317,6 +349,16 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
         let lattice_field = lattice_field(&sc.path, &pot_xy, params, sc.residual_lattice_sill, seed)?;
         for (r, l) in resid.iter_mut().zip(&lattice_field) {
             *r += l;
+        }
+    }
+    // A residual field fixed in space, accumulated by a moving pot as its
+    // average over the positions it held in its window (`C = W R W'`).
+    if rotation.is_some() {
+        let at_positions = resid.clone();
+        for (pi, idx) in windows.iter().enumerate() {
+            if !idx.is_empty() {
+                resid[pi] = idx.iter().map(|&i| at_positions[holder(pi, i)]).sum::<f64>() / idx.len() as f64;
+            }
         }
     }
     let mut tn = rng(seed, stream::TRAIT_NOISE);
@@ -397,6 +439,30 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
         s.push('\n');
     }
     files.push(("sensors.csv".into(), s.into_bytes()));
+    // moves.csv: a row each time a pot changes place.
+    if let Some(r) = &rotation {
+        let mut s = String::from("pot,since,x,y\n");
+        let mut before: Vec<usize> = (0..n_p).collect();
+        for (k, t) in r.times.iter().enumerate() {
+            for (pi, p) in pots.iter().enumerate() {
+                let h = r.placement[k][pi];
+                if h != before[pi] {
+                    let xy = pot_xy[h];
+                    writeln!(
+                        s,
+                        "{},{},{},{}",
+                        p.id,
+                        t.format("%Y-%m-%d %H:%M"),
+                        exports::fixed(xy[0], 3),
+                        exports::fixed(xy[1], 3)
+                    )
+                    .unwrap();
+                }
+            }
+            before.clone_from(&r.placement[k]);
+        }
+        files.push(("moves.csv".into(), s.into_bytes()));
+    }
     let mut toml = study_toml(sc, seed);
     let mut scorings = Vec::new();
     if let Some(sg) = &sc.scorings {
@@ -600,6 +666,9 @@ fn study_toml(sc: &Scenario, seed: u64) -> String {
     )
     .unwrap();
     writeln!(s, "\n[pots]\nfile = \"pots.csv\"\nid = \"pot\"\nx = \"x\"\ny = \"y\"\nstart = \"sown\"\nend = \"scored\"").unwrap();
+    if spec.rotation.is_some() {
+        writeln!(s, "moves = \"moves.csv\"").unwrap();
+    }
     let with_z = spec.logger.iter().all(|l| l.z.is_some());
     writeln!(
         s,

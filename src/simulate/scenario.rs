@@ -48,6 +48,9 @@ pub struct ScenarioSpec {
     /// `[analysis]`: what the written study file asks the later stages to do.
     #[serde(default)]
     pub analysis: Option<AnalysisSpec>,
+    /// `[rotation]`: pots that move (see `simulate::rotation`).
+    #[serde(default)]
+    pub rotation: Option<super::rotation::RotationSpec>,
 }
 
 /// `[scenario]`.

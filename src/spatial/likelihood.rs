@@ -224,14 +224,25 @@ impl Distances {
 ///
 /// Cost: `n^2/2` correlation evaluations and `n^3/3` flops.
 pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, LikelihoodError> {
-    let n = dist.len();
+    check_params(params)?;
+    let v = Kernel::correlation(params).fill_lower(dist.len(), |i, j| dist.get(i, j));
+    factor_correlation(v, params)
+}
+
+/// Refuse a range that is not positive or a nugget share outside `[0, 1)`.
+pub(super) fn check_params(params: &CovParams) -> Result<(), LikelihoodError> {
     if !(params.range.is_finite() && params.range > 0.0 && (0.0..1.0).contains(&params.eta)) {
         return Err(LikelihoodError::Invalid(format!(
             "range {} must be positive and nugget share {} in [0, 1)",
             params.range, params.eta
         )));
     }
-    let v = Kernel::correlation(params).fill_lower(n, |i, j| dist.get(i, j));
+    Ok(())
+}
+
+/// The lower Cholesky factor of the correlation matrix `v` of `params`
+/// (its lower triangle is read), counted, with the failure located.
+pub(super) fn factor_correlation(v: Mat<f64>, params: &CovParams) -> Result<Mat<f64>, LikelihoodError> {
     super::factor::count_factorisation();
     let c = Cholesky::new(v, CORRELATION_MIN_DIAGONAL).map_err(|location| {
         LikelihoodError::NotPositiveDefinite {
@@ -564,6 +575,19 @@ pub fn maximise(
     opts: &SearchOptions,
 ) -> Result<Maximum, LikelihoodError> {
     check_sizes(dist, x, y)?;
+    maximise_by(dist, family, opts, |params| profiled(dist, params, x, y, method))
+}
+
+/// [`maximise`] of any profiled likelihood `evaluate` of the correlation
+/// parameters (for example that of pots that move,
+/// [`super::averaged::profiled_averaged`]); `dist` sets the range bounds and
+/// the start ranges from its pairwise distances.
+pub fn maximise_by(
+    dist: &Distances,
+    family: Family,
+    opts: &SearchOptions,
+    evaluate: impl Fn(&CovParams) -> Result<Profiled, LikelihoodError>,
+) -> Result<Maximum, LikelihoodError> {
     let f0 = super::factor::factorisations_on_this_thread();
     let t0 = std::time::Instant::now();
     let SearchBox { sample, lo: box_lo, hi: box_hi, dim, range: (lo, hi) } = SearchBox::new(dist, opts)?;
@@ -576,7 +600,7 @@ pub fn maximise(
     let state = std::cell::RefCell::new(State { evaluations: 0, best: None, first_error: None });
     let eval = |t: &[f64]| -> f64 {
         let params = CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } };
-        let result = profiled(dist, &params, x, y, method);
+        let result = evaluate(&params);
         let mut st = state.borrow_mut();
         st.evaluations += 1;
         match result {

@@ -13,6 +13,7 @@
 
 pub mod anisotropy;
 pub mod ascent;
+pub mod averaged;
 pub mod config;
 pub mod correlation;
 pub mod covariance;
@@ -25,6 +26,7 @@ pub mod likelihood;
 pub mod mapping;
 pub mod optimise;
 pub mod outputs;
+pub mod paths;
 pub mod placement;
 pub mod rowcol;
 pub mod selfcheck;

@@ -29,6 +29,8 @@ pub const VARIOGRAM_ML_FITS_FILE: &str = "variogram_ml_fits.csv";
 pub const MAPPING_CHECK_FILE: &str = "mapping_check.csv";
 /// File name of the table that says how each indicator's standard errors were made.
 pub const MAPPING_SE_FILE: &str = "mapping_se.csv";
+/// File name of the time shares of the positions each moving pot held.
+pub const POT_PATHS_FILE: &str = "pot_paths.csv";
 
 /// One indicator and family with its maximum-likelihood variogram fit
 /// (`None` where the fit failed), as carried by the mapping run.

@@ -13,6 +13,11 @@
 //! 3. the whole series is mapped onto every pot with weights computed once per
 //!    set of reporting sensors ([`super::mapping::map_series`]).
 //!
+//! Pots that move (`[pots] moves`, [`super::paths`]): the targets of step 3
+//! are every position ever held, and each pot's series is gathered from the
+//! position it held at each step before anything below; without moves the
+//! targets are the pots and nothing is gathered.
+//!
 //! Each pot's indicator is then computed from the pot's own mapped series by
 //! the climate stage's per-location code (so that non-linear indicators such
 //! as hours below a threshold come from the mapped series itself, not from a
@@ -41,6 +46,7 @@ use super::outputs::{
     VARIOGRAM_FITS_FILE, VARIOGRAM_ML_FITS_FILE, VARIOGRAMS_FILE, mapping_cv_csv, mapping_se_csv,
     pot_covariates_csv, variogram_fits_csv, variogram_ml_fits_csv, variograms_csv,
 };
+use super::paths::Paths;
 use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
 use crate::climate::{
@@ -112,7 +118,8 @@ pub struct VariableMap {
     pub choice: Option<(usize, String)>,
     /// Warnings (fallbacks).
     pub warnings: Vec<String>,
-    /// Mapped series, steps x pots (NaN = no sensor reported).
+    /// Mapped series, steps x pots (NaN = no sensor reported); for pots
+    /// that move, each pot's series along its path.
     pub mapped: DMatrix<f64>,
     /// Kriging standard error of every mapped step, steps x pots (`None` for
     /// IDW and nearest sensor); the nugget is included.
@@ -146,6 +153,10 @@ pub struct MapRun {
     /// ([`super::window_se`]); `None` where the SEs come from the
     /// indicator's kriged study-period values.
     pub window_se: Vec<Option<super::window_se::Calibration>>,
+    /// Pots that move (`[pots] moves`): their paths and time shares; `None`
+    /// without a move table. `variables[..].mapped` then holds each pot's
+    /// series along its path.
+    pub moves: Option<super::paths::MovedPots>,
 }
 
 fn base_variables(v: Variable) -> &'static [&'static str] {
@@ -365,7 +376,42 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
     })?;
     let pots = pot_points(&pots_table, study.spec.compartment)?;
     let sensors = grid_sensor_points(study, &sensors_table, &climate.grid.sensors)?;
-    let distances = opening_distances(&study.spec.openings, &pots);
+    let cal = &climate.calendar;
+    let all_days = 0..cal.days.len();
+    let windows: Vec<std::ops::Range<usize>> = (0..pots.len())
+        .map(|j| match (&pots_table.start, &pots_table.end) {
+            (Some(s), Some(e)) => cal.window_days(s[j], e[j]),
+            (Some(s), None) => cal.window_days(s[j], cal_end(cal)),
+            (None, Some(e)) => cal.window_days(cal_start(cal), e[j]),
+            (None, None) => all_days.clone(),
+        })
+        .collect();
+    // Pots that move: every position ever held is mapped (the targets), each
+    // pot's series gathered along its path (`super::paths`).
+    let moves = match &study.spec.pots.moves {
+        Some(_) => {
+            crate::io::moves::load_moves(study, &pots_table, &crate::io::ingest::study_period(study)?)?
+        }
+        None => None,
+    };
+    let paths = match &moves {
+        Some(m) => Paths::new(&pots, m, cal)?,
+        None => Paths::fixed(&pots),
+    };
+    let fixed = paths.is_fixed();
+    let shares: Vec<Vec<(usize, f64)>> = (0..pots.len())
+        .map(|j| paths.shares(j, super::paths::window_steps(cal, windows[j].clone()), cal.n_steps))
+        .collect();
+    let targets = &paths.positions;
+    let distances = if fixed {
+        opening_distances(&study.spec.openings, &pots)
+    } else {
+        // Time-averaged over each pot's growth window.
+        opening_distances(&study.spec.openings, targets)
+            .into_iter()
+            .map(|(name, d)| (name, shares.iter().map(|w| super::paths::average(w, &d)).collect()))
+            .collect()
+    };
     let openings: Vec<OpeningDrift> = study
         .spec
         .openings
@@ -373,7 +419,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         .map(|o| OpeningDrift {
             name: o.name.clone(),
             at_sensors: super::geometry::distances_to_opening(&sensors, o.from, o.to),
-            at_pots: super::geometry::distances_to_opening(&pots, o.from, o.to),
+            at_pots: super::geometry::distances_to_opening(targets, o.from, o.to),
         })
         .collect();
     let indicators = &climate.config.indicators;
@@ -396,21 +442,16 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
             _ => &climate.grid.light,
         };
         let series = matrix_of(m);
-        variables.push(map_variable(name, series, &sensors, &pots, &cfg, &openings)?);
+        let mut v = map_variable(name, series, &sensors, targets, &cfg, &openings)?;
+        if !fixed {
+            v.mapped = paths.along(&v.mapped);
+            v.mapped_se = v.mapped_se.map(|m| paths.along(&m));
+        }
+        variables.push(v);
     }
     let get = |name: &str| variables.iter().find(|v| v.name == name);
     let n_steps = climate.calendar.n_steps;
     let nan = vec![f64::NAN; n_steps];
-    let cal = &climate.calendar;
-    let all_days = 0..cal.days.len();
-    let windows: Vec<std::ops::Range<usize>> = (0..pots.len())
-        .map(|j| match (&pots_table.start, &pots_table.end) {
-            (Some(s), Some(e)) => cal.window_days(s[j], e[j]),
-            (Some(s), None) => cal.window_days(s[j], cal_end(cal)),
-            (None, Some(e)) => cal.window_days(cal_start(cal), e[j]),
-            (None, None) => all_days.clone(),
-        })
-        .collect();
     let min_cov = climate.config.spec.min_coverage;
     let checked = self_check(climate, &sensors, &openings, &variables, min_cov);
     let nodes = super::window_se::normal_nodes(super::window_se::NODES);
@@ -483,8 +524,16 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
                         }),
                         ..v.spec.clone()
                     };
-                    match map_summary(&sub, &vals, &pots, &spec) {
+                    match map_summary(&sub, &vals, targets, &spec) {
                         Ok(p) => p.se.map(|se| {
+                            // Along a path: the time-share average of the
+                            // positions' SEs, the SE when the errors at the
+                            // positions are fully correlated (an upper bound).
+                            let se: Vec<f64> = if fixed {
+                                se
+                            } else {
+                                shares.iter().map(|w| super::paths::average(w, &se)).collect()
+                            };
                             let mean_days =
                                 ok.iter().map(|&k| sensor_days[k] as f64).sum::<f64>() / ok.len() as f64;
                             se.iter()
@@ -529,6 +578,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         distances,
         checks,
         window_se,
+        moves: moves.map(|m| super::paths::MovedPots { paths, shares, shared: m.shared }),
     })
 }
 
@@ -817,7 +867,8 @@ fn cal_end(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
 }
 
 /// Write `pot_covariates.csv`, `variograms.csv`, `variogram_fits.csv`,
-/// `mapping_cv.csv`, `variogram_ml_fits.csv` and `mapping_check.csv` into the study's output folder (atomically).
+/// `mapping_cv.csv`, `variogram_ml_fits.csv` and `mapping_check.csv` (and,
+/// for pots that move, `pot_paths.csv`) into the study's output folder (atomically).
 pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapError> {
     let mut w = StageWriter::new(&study.output_dir(), "map")?;
     w.write(POT_COVARIATES_FILE, &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
@@ -844,6 +895,9 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
     w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(&run.ml_fits, run.ml_nugget))?;
     w.write(MAPPING_CHECK_FILE, &super::selfcheck::mapping_check_csv(&run.checks)?)?;
     w.write(MAPPING_SE_FILE, &mapping_se_csv(&run.indicators, &run.window_se))?;
+    if let Some(m) = &run.moves {
+        w.write(super::outputs::POT_PATHS_FILE, &m.csv(&run.pots))?;
+    }
     Ok(w.commit()?)
 }
 
