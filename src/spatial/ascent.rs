@@ -34,7 +34,11 @@
 //!    at most `starts`), Newton steps `t <- t + AI^-1 score`, projected on
 //!    the box; a coordinate on its bound whose score points outwards is held
 //!    there (an active set); a step that lowers the likelihood is halved (up
-//!    to 12 times). Stop when the Newton decrement `score' AI^-1 score` is
+//!    to 12 times; the first cut goes to the top of the parabola through the
+//!    likelihood at the start, its slope along the step and the rejected
+//!    value, kept within [0.1, 0.5]: along a ridge between the range and the
+//!    nugget share the average information underestimates the curvature,
+//!    and plain halving then crept for 40 steps). Stop when the Newton decrement `score' AI^-1 score` is
 //!    below `1e-10`, the step below `1e-9`, or two steps in a row gain less
 //!    than `1e-9`.
 //! 3. A run that does not meet the tolerance in 40 steps is polished by the
@@ -50,6 +54,20 @@
 //! derivative-free search of [`crate::spatial::likelihood::maximise`]
 //! (starts from the grid, Nelder–Mead with a restart); every other family
 //! takes the Newton path.
+//!
+//! # The profile route (measured, not used by the fits)
+//! [`maximise_profiled`] removes the nugget share from the search: at each
+//! range one Householder tridiagonal reduction of `R`
+//! ([`crate::spatial::spectral::Tridiagonal`]) gives the likelihood at every
+//! share for `O(n p^2)`, so the share is maximised exactly (a 13-point scan
+//! and Brent's search), and the range alone is searched by Brent's method
+//! ([`crate::spatial::optimise::brent_min`]) between the neighbours of the
+//! local maxima of the 13-range grid. It needs few evaluations (19 to 43 on
+//! the fixtures, 24 to 43 on the benchmark) but one reduction costs 14 to 16
+//! Choleskys (faer's reduction is half matrix-vector products), so on the
+//! demo it took longer than the Newton path, and on the spherical family
+//! its one-dimensional search ended at lower maxima than the simplex (by
+//! 0.76 and 0.86 on two demo fits). `benches/gls.rs` prints both routes.
 //!
 //! Cost of one derivative evaluation: the fill of `R` and `D` (`n^2/2`
 //! correlations), one Cholesky factorisation (`n^3/3` flops), the inverse
@@ -348,12 +366,26 @@ fn newton(
                 break;
             }
             evaluations += 1;
-            match eval(&trial) {
+            let tried = eval(&trial);
+            // slope of the likelihood along the projected step at its start
+            let slope: f64 = (0..dim).map(|k| (trial[k] - t[k]) * g[k]).sum();
+            match tried {
                 Ok(s) if s.prof.loglik >= cur.prof.loglik - 1e-12 => {
                     cur = s;
                     t = trial;
                     accepted = true;
                     break;
+                }
+                Ok(s) if s.prof.loglik.is_finite() && slope > 0.0 => {
+                    // the step overshot: the maximum of the parabola through
+                    // l(0), l'(0) and l(1) along it (the average information
+                    // can miss the curvature of a ridge; common practice in
+                    // line searches, Nocedal & Wright 2006, *Numerical
+                    // Optimization*, §3.5), kept within [0.1, 0.5]
+                    let curv = slope - (s.prof.loglik - cur.prof.loglik);
+                    let alpha = if curv > 0.0 { (slope / (2.0 * curv)).clamp(0.1, 0.5) } else { 0.5 };
+                    step[0] *= alpha;
+                    step[1] *= alpha;
                 }
                 _ => {
                     step[0] *= 0.5;
@@ -406,10 +438,6 @@ pub fn maximise_shared(
         Ok(b) => b,
         Err(e) => return fail(e),
     };
-    if sb.dim == 2 {
-        // with a nugget: the share profiled out exactly at each range (every family)
-        return maximise_profiled_shared(dist, family, designs, y, method, opts, &sb);
-    }
     if family == Family::Spherical {
         // derivative-free: see the module docs
         return (
@@ -513,19 +541,32 @@ fn profile_at(
     (0..designs.len()).map(|d| t.best_eta(d, eta_max, method)).collect()
 }
 
-/// [`maximise_shared`] with a nugget: the nugget share is profiled out at
-/// each range (see the module docs), so the search is over `ln range` alone.
-/// The start grid of [`grid_ranges`] is reduced once per range for every
-/// fixed part (the shared factorisations returned beside the results).
-fn maximise_profiled_shared(
+/// [`maximise_shared`] for a fit with a nugget by the profile route: the
+/// nugget share is profiled out exactly at each range (see the module docs),
+/// so the search is over `ln range` alone. The start grid of the ranges is
+/// reduced once per range for every fixed part (the shared factorisations,
+/// each a tridiagonal reduction, returned beside the results). Measured
+/// against the Newton path in `benches/gls.rs`; the fits do not use it (see
+/// the module docs).
+pub fn maximise_profiled(
     dist: &Distances,
     family: Family,
     designs: &[&[Vec<f64>]],
     y: &[f64],
     method: LikelihoodKind,
     opts: &SearchOptions,
-    sb: &SearchBox,
 ) -> (Vec<Result<Maximum, LikelihoodError>>, usize) {
+    let fail = |e: LikelihoodError| (designs.iter().map(|_| Err(e.clone())).collect(), 0);
+    for x in designs {
+        if let Err(e) = check_sizes(dist, x, y) {
+            return fail(e);
+        }
+    }
+    let sb = match SearchBox::new(dist, &SearchOptions { nugget: true, ..opts.clone() }) {
+        Ok(b) => b,
+        Err(e) => return fail(e),
+    };
+    let sb = &sb;
     let ranges = grid_ranges(sb, family);
     let f0 = factorisations_on_this_thread();
     let mut grid: Vec<Vec<Option<Profiled>>> = vec![Vec::with_capacity(ranges.len()); designs.len()];
@@ -657,26 +698,6 @@ pub fn maximise_from(
 ) -> Result<Maximum, LikelihoodError> {
     check_sizes(dist, x, y)?;
     let sb = SearchBox::new(dist, opts)?;
-    if sb.dim == 2 {
-        // the nugget share profiled out; the range searched from the start's
-        // basin: the start and a factor e^0.5 either side, then Brent's search
-        let lr = start.range.ln().clamp(sb.lo[0], sb.hi[0]);
-        let ranges: Vec<f64> = [lr - 0.5, lr, lr + 0.5].iter().map(|r| r.clamp(sb.lo[0], sb.hi[0])).collect();
-        let mut ranges = ranges;
-        ranges.dedup_by(|a, b| (*a - *b).abs() < 1e-12);
-        let f0 = factorisations_on_this_thread();
-        let started = std::time::Instant::now();
-        let grid: Vec<Option<Profiled>> = ranges
-            .iter()
-            .map(|&r| {
-                profile_at(dist, start.family, r, &[x], y, method, sb.hi[1]).ok().and_then(|mut v| v.pop())
-            })
-            .collect();
-        let mut m = profile_refine(dist, start.family, x, y, method, opts, &sb, &ranges, grid)?;
-        m.factorisations = (factorisations_on_this_thread() - f0) as usize;
-        m.seconds = started.elapsed().as_secs_f64();
-        return Ok(m);
-    }
     let dim = sb.dim;
     let bounds = Bounds { lo: sb.lo, hi: sb.hi, dim };
     let mut t = [start.range.ln(), if dim == 2 { start.eta } else { 0.0 }];

@@ -1,4 +1,6 @@
-//! The one derivative-free optimiser of the crate: a Nelder–Mead simplex
+//! The derivative-free optimisers of the crate: Brent's line search
+//! ([`brent_min`], one dimension: the nugget share and the range of the
+//! profile route of [`crate::spatial::ascent::maximise_profiled`]) and a Nelder–Mead simplex
 //! (Nelder & Mead 1965, *Computer Journal* 7: 308–313; coefficients:
 //! reflection 1, expansion 2, contraction 0.5, shrink 0.5) that minimises,
 //! optionally inside a box (trial points are projected onto it), with a

@@ -12,12 +12,16 @@
 //! eigenbasis, not `L^-1 r`, so a fit's residuals still come from the
 //! Cholesky path.
 //!
-//! When it pays: the eigendecomposition costs many Cholesky factorisations
-//! (`benches/gls.rs` prints the measured ratio), so the device pays only when
-//! more nugget shares than that ratio are needed at one range (a profile of
-//! the likelihood in the nugget share, a fine grid of starts); the search of
-//! [`crate::spatial::ascent`] moves the range at every step and uses the
-//! Cholesky path.
+//! [`Tridiagonal`] is the same device without the eigenvectors: `R = H T H'`
+//! with `T` tridiagonal, and `V(eta) = H ((1 - eta) T + eta I) H'`.
+//!
+//! When it pays: the eigendecomposition costs 22 to 25 Cholesky
+//! factorisations and the tridiagonal reduction 14 to 16 (`benches/gls.rs`,
+//! n = 480 and 1,680), so either pays only when more nugget shares than that
+//! are needed at one range (a profile of the likelihood in the nugget share,
+//! a fine grid of starts); the search of [`crate::spatial::ascent`] moves
+//! the range at every step and uses the Cholesky path (its profile route,
+//! [`crate::spatial::ascent::maximise_profiled`], is measured beside it).
 
 use super::correlation::Family;
 use super::covariance::Kernel;
@@ -211,17 +215,16 @@ impl Tridiagonal {
             return Err(LikelihoodError::Invalid(format!("no fixed part {design}")));
         };
         let n = self.diag.len();
-        let mut w = rot.clone();
+        // L L' = (1 - eta) T + eta I, L lower bidiagonal: 1 / l_ii and m_i = L[i, i - 1]
+        let mut inv_l = vec![0.0; n];
+        let mut m = vec![0.0; n];
         let mut logdet = 0.0;
-        // L L' = (1 - eta) T + eta I, L lower bidiagonal: l_jj and m_j = L[j, j - 1]
-        let mut prev_l = 0.0;
         for i in 0..n {
-            let (m, pivot) = if i == 0 {
-                (0.0, (1.0 - eta) * self.diag[0] + eta)
-            } else {
-                let m = (1.0 - eta) * self.sub[i - 1] / prev_l;
-                (m, (1.0 - eta) * self.diag[i] + eta - m * m)
-            };
+            let mut pivot = (1.0 - eta) * self.diag[i] + eta;
+            if i > 0 {
+                m[i] = (1.0 - eta) * self.sub[i - 1] * inv_l[i - 1];
+                pivot -= m[i] * m[i];
+            }
             let l = pivot.sqrt();
             if pivot.is_nan() || l <= CORRELATION_MIN_DIAGONAL {
                 return Err(LikelihoodError::NotPositiveDefinite {
@@ -236,21 +239,27 @@ impl Tridiagonal {
                 });
             }
             logdet += 2.0 * l.ln();
-            for j in 0..w.ncols() {
-                let above = if i == 0 { 0.0 } else { w[(i - 1, j)] };
-                w[(i, j)] = (w[(i, j)] - m * above) / l;
+            inv_l[i] = 1.0 / l;
+        }
+        // forward substitution, column by column: z_i = (w_i - m_i z_{i-1}) / l_ii
+        let mut w = rot.clone();
+        for j in 0..w.ncols() {
+            let c = w.col_as_slice_mut(j);
+            let mut prev = 0.0;
+            for ((v, &mi), &il) in c.iter_mut().zip(&m).zip(&inv_l) {
+                prev = (*v - mi * prev) * il;
+                *v = prev;
             }
-            prev_l = l;
         }
         profile_whitened(&w, logdet, method, params)
     }
 
     /// The nugget share in `[0, eta_max]` that maximises the profiled
     /// likelihood of `design` at this range, with its evaluation: the
-    /// likelihood on 25 equally spaced shares (both ends included), then
+    /// likelihood on 13 equally spaced shares (both ends included), then
     /// Brent's search ([`crate::spatial::optimise::brent_min`], tolerance
-    /// `1e-9`) between the neighbours of each local maximum of that grid (at
-    /// most four, best first). Cost: about 25 + 15 per local maximum
+    /// `1e-8`) between the neighbours of each local maximum of that grid (at
+    /// most four, best first). Cost: about 13 + 12 per local maximum
     /// evaluations of `O(n p^2)`. Errors when no share has a finite
     /// likelihood (the first error is returned).
     pub fn best_eta(
@@ -259,7 +268,7 @@ impl Tridiagonal {
         eta_max: f64,
         method: LikelihoodKind,
     ) -> Result<Profiled, LikelihoodError> {
-        const GRID: usize = 24;
+        const GRID: usize = 12;
         let etas: Vec<f64> = (0..=GRID).map(|k| eta_max * k as f64 / GRID as f64).collect();
         let mut first_error = None;
         let mut best: Option<Profiled> = None;
@@ -295,7 +304,7 @@ impl Tridiagonal {
                 continue;
             }
             let mut neg = |e: f64| -keep(self.profiled(design, e, method), &mut best);
-            brent_min(&mut neg, (a, b), Some((etas[k], -values[k])), 1e-9, 100);
+            brent_min(&mut neg, (a, b), Some((etas[k], -values[k])), 1e-8, 100);
         }
         match best {
             Some(p) => Ok(p),
