@@ -2,22 +2,23 @@
 //! (fill of V, blocked Cholesky, whitening of [X | y], GLS solve) at
 //! n = 500, 1000, 2000, 4000 pots, next to a LAPACK Cholesky of the same
 //! matrix through numpy, measured in the same run; and whole correlated fits
-//! (exponential with and without nugget, ML and REML, a three-level factor)
-//! at n = 480 and 1,680 in units of that Cholesky (target: at most 40), the
-//! previous simplex search at n = 480 beside them, and the cost of the
-//! spectral device's eigendecomposition.
+//! (exponential and spherical, with and without nugget, ML and REML, a
+//! three-level factor) at n = 480 and 1,680 in units of that Cholesky
+//! (target: at most 40), the previous simplex search at n = 480 beside them,
+//! and the cost of the devices for many nugget shares at one range (the
+//! tridiagonal reduction that nugget fits use, the eigendecomposition).
 //!
 //! The reference interpreter is taken from `POTCLIM_BENCH_PYTHON` (default
 //! `python3`); without numpy the reference is reported as unavailable.
 //!
 //! Run: `cargo bench --bench gls`.
 
-use potclim::spatial::ascent::maximise_shared;
+use potclim::spatial::ascent::{maximise_profiled, maximise_shared};
 use potclim::spatial::correlation::Family;
 use potclim::spatial::likelihood::{
     CovParams, Distances, LikelihoodKind, SearchOptions, cholesky, maximise, profiled, profiled_with_factor,
 };
-use potclim::spatial::spectral::Spectral;
+use potclim::spatial::spectral::{Spectral, Tridiagonal};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::io::Write;
@@ -93,7 +94,11 @@ fn main() {
         "{:>6} {:>14} {:>14} {:>14} {:>16} {:>8}",
         "n", "fill+chol (s)", "chol only (s)", "eval (s)", "numpy chol (s)", "ratio"
     );
-    for n in [480usize, 1680, 4000] {
+    let sizes: Vec<usize> = match std::env::var("POTCLIM_BENCH_SIZES") {
+        Ok(v) => v.split(',').filter_map(|t| t.trim().parse().ok()).collect(),
+        Err(_) => vec![480, 1680, 4000],
+    };
+    for &n in &sizes {
         let (x, y, z, cols) = layout(n, 7);
         let dist = Distances::from_coords(&x, &y).unwrap();
         let p = CovParams { family: Family::Exponential, range: 1.2, eta: 0.2 };
@@ -163,28 +168,39 @@ fn main() {
         let dist = Distances::from_coords(&x, &y).unwrap();
         let p = CovParams { family: Family::Exponential, range: 1.2, eta: 0.2 };
         let reference = numpy_cholesky(&python, &dist, &p, 5);
-        for nugget in [true, false] {
-            for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
-                let opts = SearchOptions { nugget, ..Default::default() };
-                let t = Instant::now();
-                let (mut r, shared) =
-                    maximise_shared(&dist, Family::Exponential, &[cols.as_slice()], &z, method, &opts);
-                let m = r.pop().unwrap().unwrap();
-                let l = cholesky(&dist, &m.best.params).unwrap();
-                let fin = profiled_with_factor(l.as_ref(), &m.best.params, &cols, &z, method).unwrap();
-                let secs = t.elapsed().as_secs_f64();
-                std::hint::black_box(fin.loglik);
-                let ratio = reference.map(|r| format!("{:.1}", secs / r)).unwrap_or_else(|| "-".into());
-                println!(
-                    "{n:>6} {:<22} {:>5} {:>10.3} {:>11} {:>14} {:>9.3} {:>8}",
-                    if nugget { "exponential+nugget" } else { "exponential" },
-                    method.label(),
-                    m.best.loglik,
-                    m.evaluations,
-                    m.factorisations + shared + 1,
-                    secs,
-                    ratio
-                );
+        for family in [Family::Exponential, Family::Spherical] {
+            for nugget in [true, false] {
+                for (method, profile) in [
+                    (LikelihoodKind::Ml, false),
+                    (LikelihoodKind::Reml, false),
+                    (LikelihoodKind::Ml, true),
+                    (LikelihoodKind::Reml, true),
+                ] {
+                    if profile && !nugget {
+                        continue;
+                    }
+                    let opts = SearchOptions { nugget, ..Default::default() };
+                    let search = if profile { maximise_profiled } else { maximise_shared };
+                    let t = Instant::now();
+                    let (mut r, shared) = search(&dist, family, &[cols.as_slice()], &z, method, &opts);
+                    let m = r.pop().unwrap().unwrap();
+                    let l = cholesky(&dist, &m.best.params).unwrap();
+                    let fin = profiled_with_factor(l.as_ref(), &m.best.params, &cols, &z, method).unwrap();
+                    let secs = t.elapsed().as_secs_f64();
+                    std::hint::black_box(fin.loglik);
+                    let ratio = reference.map(|r| format!("{:.1}", secs / r)).unwrap_or_else(|| "-".into());
+                    println!(
+                        "{n:>6} {:<22} {:>5} {:>10.3} {:>11} {:>14} {:>9.3} {:>8}{}",
+                        format!("{}{}", family.name(), if nugget { "+nugget" } else { "" }),
+                        method.label(),
+                        m.best.loglik,
+                        m.evaluations,
+                        m.factorisations + shared + 1,
+                        secs,
+                        ratio,
+                        if profile { "   (profile route)" } else { "" }
+                    );
+                }
             }
         }
         if n == 480 {
@@ -205,25 +221,31 @@ fn main() {
                 "{n:>6} {:<22} {:>5} {:>10.3} {:>11} {:>14} {:>9.3} {:>8}   (simplex search)",
                 "exponential+nugget", "REML", m.best.loglik, m.evaluations, m.factorisations, secs, ratio
             );
-            // the spectral device: one eigendecomposition against one Cholesky
-            let t = Instant::now();
-            let sp = Spectral::new(&dist, Family::Exponential, 1.2, &cols, &z).unwrap();
-            let eig = t.elapsed().as_secs_f64();
-            let t = Instant::now();
-            for k in 0..100 {
-                std::hint::black_box(
-                    sp.profiled(0.005 + 0.009 * k as f64, LikelihoodKind::Reml).unwrap().loglik,
-                );
-            }
-            let per_eta = t.elapsed().as_secs_f64() / 100.0;
-            if let Some(r) = reference {
-                println!(
-                    "spectral device at n = {n}: eigendecomposition {:.1} Choleskys, then {:.4} Choleskys per nugget share: pays from about {:.0} nugget shares at one range",
-                    eig / r,
-                    per_eta / r,
-                    (eig / r).ceil()
-                );
-            }
+        }
+        // the devices for many nugget shares at one range, in Choleskys
+        let t = Instant::now();
+        let tri = Tridiagonal::new(&dist, Family::Exponential, 1.2, &[cols.as_slice()], &z).unwrap();
+        let reduction = t.elapsed().as_secs_f64();
+        let t = Instant::now();
+        let b = tri.best_eta(0, 0.99, LikelihoodKind::Reml).unwrap();
+        let profile = t.elapsed().as_secs_f64();
+        std::hint::black_box(b.loglik);
+        let t = Instant::now();
+        let sp = Spectral::new(&dist, Family::Exponential, 1.2, &cols, &z).unwrap();
+        let eig = t.elapsed().as_secs_f64();
+        let t = Instant::now();
+        for k in 0..100 {
+            std::hint::black_box(sp.profiled(0.005 + 0.009 * k as f64, LikelihoodKind::Reml).unwrap().loglik);
+        }
+        let per_eta = t.elapsed().as_secs_f64() / 100.0;
+        if let Some(r) = reference {
+            println!(
+                "at n = {n}, in Choleskys: tridiagonal reduction {:.1} (with the fill of R), best nugget share at one range {:.2}; eigendecomposition {:.1}, then {:.4} per nugget share",
+                reduction / r,
+                profile / r,
+                eig / r,
+                per_eta / r,
+            );
         }
     }
 }

@@ -828,7 +828,8 @@ mod tests {
     /// simplex search (`likelihood::maximise`, the previous fit) on every
     /// fitted fixture of model_fits.json (sim_gls and topo, every family,
     /// ML and REML, with and without nugget), within 1e-4; and at least as
-    /// high as scipy's (the committed reference) within 1e-4.
+    /// high as scipy's (the committed reference) within 1e-4. The same for
+    /// the profile route of the nugget fits (`ascent::maximise_profiled`).
     #[test]
     fn fast_search_is_as_high_as_the_simplex_on_every_fixture() {
         let sim = model_data(
@@ -879,6 +880,23 @@ mod tests {
             );
             let reference = want["loglik"].as_f64().unwrap();
             assert!(ln >= reference - 1e-4, "{family} {method:?}: new {ln} < scipy {reference}");
+            if nugget {
+                // the profile route (nugget share profiled out by the tridiagonal reduction)
+                let (mut prof, _) = crate::spatial::ascent::maximise_profiled(
+                    &dist,
+                    family,
+                    &[design.x.as_slice()],
+                    &data.response,
+                    method,
+                    &opts,
+                );
+                let lp = prof.pop().unwrap().unwrap().best.loglik;
+                assert!(lp >= lo - 1e-4, "{family} {method:?}: profile route {lp} < simplex {lo}");
+                assert!(
+                    lp >= reference - 1e-4,
+                    "{family} {method:?}: profile route {lp} < scipy {reference}"
+                );
+            }
             eprintln!(
                 "{} {} {family} {method:?} nugget {nugget}: simplex {lo:.6} ({} evals), newton {ln:.6} ({} evals, {} factorisations)",
                 want["dataset"], want["formula"], old.evaluations, new.evaluations, new.factorisations

@@ -1,4 +1,6 @@
-//! The one derivative-free optimiser of the crate: a Nelder–Mead simplex
+//! The derivative-free optimisers of the crate: Brent's line search
+//! ([`brent_min`], one dimension: the nugget share and the range of the
+//! profile route of [`crate::spatial::ascent::maximise_profiled`]) and a Nelder–Mead simplex
 //! (Nelder & Mead 1965, *Computer Journal* 7: 308–313; coefficients:
 //! reflection 1, expansion 2, contraction 0.5, shrink 0.5) that minimises,
 //! optionally inside a box (trial points are projected onto it), with a
@@ -218,6 +220,120 @@ pub fn ranked_starts(f: &mut dyn FnMut(&[f64]) -> f64, starts: Vec<Vec<f64>>) ->
     out
 }
 
+/// Result of [`brent_min`].
+#[derive(Clone, Copy, Debug)]
+pub struct LineMinimum {
+    /// Where the smallest value was found.
+    pub x: f64,
+    /// The smallest value.
+    pub value: f64,
+    /// Evaluations of `f` made (a given start not counted).
+    pub evaluations: usize,
+    /// The bracket shrank below the tolerance within the budget.
+    pub converged: bool,
+}
+
+/// Minimise `f` on `[a, b]` by Brent's method: golden-section steps and
+/// parabolic interpolation through the three best points, with the
+/// safeguards of Brent (1973, *Algorithms for Minimization without
+/// Derivatives*, ch. 5, procedure *localmin*). Stops when the best point
+/// lies within `2 tol1` of the middle of the shrinking bracket, `tol1 =
+/// sqrt(eps) |x| + tol / 3` (so `x` is known to about `tol`), or after
+/// `max_evals` evaluations. `start` is an interior point with its value when
+/// one is known (it saves an evaluation; else the golden point is used).
+/// The ends `a` and `b` themselves are never evaluated. Finds a local
+/// minimum: on a function with several, the one whose basin holds the start.
+pub fn brent_min(
+    f: &mut dyn FnMut(f64) -> f64,
+    (a, b): (f64, f64),
+    start: Option<(f64, f64)>,
+    tol: f64,
+    max_evals: usize,
+) -> LineMinimum {
+    let golden = 0.5 * (3.0 - 5f64.sqrt());
+    let eps = f64::EPSILON.sqrt();
+    let (mut a, mut b) = (a.min(b), a.max(b));
+    let mut evaluations = 0;
+    let (mut x, mut fx) = match start {
+        Some((x, fx)) if x > a && x < b => (x, fx),
+        _ => {
+            let x = a + golden * (b - a);
+            evaluations += 1;
+            (x, f(x))
+        }
+    };
+    let nan_high = |v: f64| if v.is_nan() { f64::INFINITY } else { v };
+    fx = nan_high(fx);
+    let (mut w, mut fw, mut v, mut fv) = (x, fx, x, fx);
+    let (mut d, mut e) = (0.0f64, 0.0f64);
+    let mut converged = false;
+    while evaluations < max_evals {
+        let xm = 0.5 * (a + b);
+        let tol1 = eps * x.abs() + tol / 3.0;
+        let tol2 = 2.0 * tol1;
+        if (x - xm).abs() <= tol2 - 0.5 * (b - a) {
+            converged = true;
+            break;
+        }
+        let mut golden_step = true;
+        if e.abs() > tol1 {
+            // parabola through (v, fv), (w, fw), (x, fx)
+            let r = (x - w) * (fx - fv);
+            let mut q = (x - v) * (fx - fw);
+            let mut p = (x - v) * q - (x - w) * r;
+            q = 2.0 * (q - r);
+            if q > 0.0 {
+                p = -p;
+            } else {
+                q = -q;
+            }
+            let e_prev = e;
+            e = d;
+            if p.abs() < (0.5 * q * e_prev).abs() && p > q * (a - x) && p < q * (b - x) {
+                d = p / q;
+                let u = x + d;
+                if u - a < tol2 || b - u < tol2 {
+                    d = if xm >= x { tol1 } else { -tol1 };
+                }
+                golden_step = false;
+            }
+        }
+        if golden_step {
+            e = if x >= xm { a - x } else { b - x };
+            d = golden * e;
+        }
+        let u = if d.abs() >= tol1 {
+            x + d
+        } else if d > 0.0 {
+            x + tol1
+        } else {
+            x - tol1
+        };
+        evaluations += 1;
+        let fu = nan_high(f(u));
+        if fu <= fx {
+            if u >= x {
+                a = x;
+            } else {
+                b = x;
+            }
+            (v, fv, w, fw, x, fx) = (w, fw, x, fx, u, fu);
+        } else {
+            if u < x {
+                a = u;
+            } else {
+                b = u;
+            }
+            if fu <= fw || w == x {
+                (v, fv, w, fw) = (w, fw, u, fu);
+            } else if fu <= fv || v == x || v == w {
+                (v, fv) = (u, fu);
+            }
+        }
+    }
+    LineMinimum { x, value: fx, evaluations, converged }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -264,6 +380,34 @@ mod tests {
         assert!(fx < 1e-12, "{fx}");
         assert_relative_eq!(x[0], 1.0, epsilon = 1e-5);
         assert_relative_eq!(x[1], 1.0, epsilon = 1e-5);
+    }
+
+    /// Brent's method finds the minimum of `(x - 0.3)^2 + 0.1 x^4` (at the
+    /// root of `2 (x - 0.3) + 0.4 x^3`, by bisection below), of a function
+    /// with its minimum at the bracket's end (`x` itself on `[0.5, 2]`,
+    /// ending within twice `tol1` of 0.5) and of `|x - 1.2|` (not smooth:
+    /// golden steps), each to its tolerance and within the budget.
+    #[test]
+    fn brent_finds_line_minima() {
+        let (mut lo, mut hi) = (0.0f64, 1.0f64);
+        for _ in 0..200 {
+            let m = 0.5 * (lo + hi);
+            if 2.0 * (m - 0.3) + 0.4 * m.powi(3) > 0.0 {
+                hi = m;
+            } else {
+                lo = m;
+            }
+        }
+        let root = 0.5 * (lo + hi);
+        let m = brent_min(&mut |x| (x - 0.3).powi(2) + 0.1 * x.powi(4), (-2.0, 3.0), None, 1e-10, 100);
+        assert!(m.converged);
+        assert!((m.x - root).abs() < 1e-8, "{} vs {root}", m.x);
+        assert!(m.evaluations < 20, "{}", m.evaluations);
+        let m = brent_min(&mut |x| x, (0.5, 2.0), Some((1.0, 1.0)), 1e-9, 200);
+        // within 2 tol1 of the end (tol1 = sqrt(eps) |x| + tol / 3)
+        assert!(m.converged && m.x - 0.5 <= 2.0 * (f64::EPSILON.sqrt() * 0.5 + 1e-9 / 3.0), "{}", m.x);
+        let m = brent_min(&mut |x| (x - 1.2).abs(), (0.0, 3.0), None, 1e-9, 200);
+        assert!(m.converged && (m.x - 1.2).abs() < 1e-8, "{}", m.x);
     }
 
     #[test]
