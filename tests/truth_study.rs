@@ -19,6 +19,7 @@
 //!
 //! It prints one line per run and the tables of docs/verdict.md (for seeds
 //! 1..=10, the criterion, and for all seeds when there are more).
+//! `POTCLIM_TRUTH_ONLY=covariate,both` runs only the named truths.
 //! With `POTCLIM_TRUTH_KEEP=DIR` every run is kept in `DIR/<truth>_<seed>`,
 //! for the checks of `tests/scenarios/findings.py`.
 
@@ -553,6 +554,46 @@ fn print_table(outcomes: &[Outcome], truths: &[&'static str], max_seed: u64) -> 
     out
 }
 
+/// Print, per truth, the pooled interval incl. mapping against the plug-in one
+/// over the runs that have it: coverage with its Wilson interval, the mean
+/// pooled and plug-in estimates with their Monte Carlo SEs (SD over runs /
+/// sqrt(runs)), and the median ratio of the pooled SE to the plug-in SE.
+fn print_pooled(outcomes: &[Outcome], truths: &[&'static str]) {
+    println!(
+        "\n| truth | pooled CI incl. mapping covers (95 % interval) | mean pooled estimate (MC SE) | mean plug-in estimate, same runs (MC SE) | true effect | pooled SE / plug-in SE, median (range) |"
+    );
+    println!("|---|---|---|---|---|---|");
+    let mean_mc = |v: &[f64]| -> (f64, f64) {
+        let n = v.len() as f64;
+        let m = v.iter().sum::<f64>() / n;
+        let var = v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0).max(1.0);
+        (m, (var / n).sqrt())
+    };
+    for &truth in truths {
+        let these: Vec<&Outcome> =
+            outcomes.iter().filter(|o| o.truth == truth && o.pooled.is_some()).collect();
+        if these.is_empty() {
+            continue;
+        }
+        let k = these.iter().filter(|o| o.covers_with_mapping() == Some(true)).count();
+        let pooled: Vec<f64> = these.iter().map(|o| o.pooled.expect("filtered").0).collect();
+        let plug: Vec<f64> = these.iter().map(|o| o.estimate).collect();
+        let mut ratio: Vec<f64> = these.iter().filter_map(|o| o.se_with_mapping.map(|s| s / o.se)).collect();
+        ratio.sort_by(f64::total_cmp);
+        let (pm, pe) = mean_mc(&pooled);
+        let (qm, qe) = mean_mc(&plug);
+        println!(
+            "| `{truth}` | {k}/{} ({}) | {pm:.5} ({pe:.5}) | {qm:.5} ({qe:.5}) | {} | {:.2} ({:.2}–{:.2}) |",
+            these.len(),
+            wilson(k, these.len()),
+            these[0].true_effect,
+            ratio.get(ratio.len() / 2).copied().unwrap_or(f64::NAN),
+            ratio.first().copied().unwrap_or(f64::NAN),
+            ratio.last().copied().unwrap_or(f64::NAN),
+        );
+    }
+}
+
 /// The full study (slow): `POTCLIM_TRUTH_SEEDS` seeds per truth (default
 /// 10, seeds 1..=N), at `POTCLIM_TRUTH_POTS` pots (150, the default, or 480);
 /// at 150 pots the hardest case runs too. Prints every run and the tables of
@@ -569,6 +610,14 @@ fn truth_study_full() {
     let mut truths: Vec<&'static str> = TRUTHS.to_vec();
     if pots == 150 {
         truths.push(HARDEST);
+    }
+    // POTCLIM_TRUTH_ONLY=covariate,both runs only the named truths.
+    if let Ok(only) = std::env::var("POTCLIM_TRUTH_ONLY") {
+        let named: Vec<&str> = only.split(',').map(str::trim).collect();
+        for n in &named {
+            assert!(truths.contains(n), "POTCLIM_TRUTH_ONLY: `{n}` is not one of {truths:?}");
+        }
+        truths.retain(|t| named.contains(t));
     }
     let load_before = load_average();
     let started = Instant::now();
@@ -587,6 +636,7 @@ fn truth_study_full() {
         load_average()
     );
     let mut failures = Vec::new();
+    print_pooled(&outcomes, &truths);
     for (truth, t) in print_table(&outcomes, &truths, n) {
         if truth == HARDEST {
             continue;

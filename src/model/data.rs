@@ -407,6 +407,31 @@ impl PotCovariates {
     }
 }
 
+/// The mapping stage's window SEs of the mapped drivers at the analysed pots
+/// (`<indicator>_se` of [`PotCovariates`], aligned with `data.pots`), for the
+/// verdict stage's imputations (`model::verdict::window_prior_cov`). A driver
+/// is left out when the pot table holds it itself (its values are not the
+/// map's), when its `_se` column is absent, or when any analysed pot lacks a
+/// finite, non-negative SE (IDW or nearest-sensor maps have none): the
+/// verdict stage then falls back to its own prior and says so.
+pub fn window_ses(pots: &Pots, data: &ModelData, cov: &PotCovariates) -> Vec<(String, Vec<f64>)> {
+    let index: std::collections::HashMap<&str, usize> =
+        cov.pots.iter().enumerate().map(|(k, id)| (id.as_str(), k)).collect();
+    data.drivers
+        .iter()
+        .filter(|(name, _)| !pots.table.headers.contains(name))
+        .filter_map(|(name, _)| {
+            let se = cov.column(&format!("{name}_se"))?;
+            let v = data
+                .pots
+                .iter()
+                .map(|id| se[*index.get(id.as_str())?].filter(|v| v.is_finite() && *v >= 0.0))
+                .collect::<Option<Vec<f64>>>()?;
+            Some((name.clone(), v))
+        })
+        .collect()
+}
+
 /// Load the data that `spec` names: the pot table, and `<output>/pot_covariates.csv`
 /// for drivers the pot table does not hold.
 pub fn load_model_data(study: &Study, spec: &ModelSpec) -> Result<ModelData> {

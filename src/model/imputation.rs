@@ -89,6 +89,9 @@ pub struct Imputations {
     pub draws: Vec<Vec<f64>>,
     /// `gamma` after every iteration of the chain (empty for [`Conditioning::LoggersOnly`]).
     pub gamma_trace: Vec<f64>,
+    /// `sigma2` after every iteration of the chain (empty for
+    /// [`Conditioning::LoggersOnly`]); read by [`collapse`].
+    pub sigma2_trace: Vec<f64>,
     /// Autocorrelation of `gamma` at lag [`THIN`] over the kept part of the
     /// chain (`None` when undefined).
     pub lag_autocorrelation: Option<f64>,
@@ -383,11 +386,17 @@ impl Imputer {
         self.check(start)?;
         if how == Conditioning::LoggersOnly {
             let draws = (0..m).map(|_| self.to_pots(&self.draw_rotated(None, rng))).collect();
-            return Ok(Imputations { draws, gamma_trace: Vec::new(), lag_autocorrelation: None });
+            return Ok(Imputations {
+                draws,
+                gamma_trace: Vec::new(),
+                sigma2_trace: Vec::new(),
+                lag_autocorrelation: None,
+            });
         }
         let mut theta = start.clone();
         let mut draws = Vec::with_capacity(m);
         let mut trace = Vec::with_capacity(BURN_IN + m * THIN);
+        let mut sigma2_trace = Vec::with_capacity(BURN_IN + m * THIN);
         let total = BURN_IN + m.saturating_sub(1) * THIN + 1;
         for it in 0..total {
             let xi = self.draw_rotated(Some(&theta), rng);
@@ -396,10 +405,43 @@ impl Imputer {
             }
             theta = self.draw_params(&xi, rng)?;
             trace.push(theta.gamma);
+            sigma2_trace.push(theta.sigma2);
         }
         let lag_autocorrelation = autocorrelation(&trace[BURN_IN.min(trace.len())..], THIN);
-        Ok(Imputations { draws, gamma_trace: trace, lag_autocorrelation })
+        Ok(Imputations { draws, gamma_trace: trace, sigma2_trace, lag_autocorrelation })
     }
+}
+
+/// The chain has collapsed when the median of its `sigma2` after burn-in is
+/// below this share of the plug-in fit's `sigma2` (our choice: a mapping
+/// error that carried 99 % of the trait's residual variance is not a
+/// credible answer; a healthy chain stays near the plug-in value, its
+/// `sigma2` shrinking only by the share of the residual the map's error
+/// explains).
+pub const COLLAPSE_SHARE: f64 = 0.01;
+
+/// Whether the chain collapsed towards `sigma2 = 0`, and if so the median
+/// ratio of its `sigma2` (after [`BURN_IN`]) to `sigma2_start`.
+///
+/// Why it can happen: under the prior `1/sigma2` the posterior of
+/// `sigma2` given `W, Y` is improper whenever `gamma² S` alone can carry the
+/// trait's residual: `Var(Y | W) = gamma² S + sigma2 R` stays non-singular at
+/// `sigma2 = 0`, the marginal likelihood stays positive there, and
+/// `∫₀ dsigma2 / sigma2` diverges. A Gibbs sampler on an improper posterior
+/// still runs and can drift into that corner, where the imputed driver
+/// reproduces the trait and every refit's SE is near zero (Hobert & Casella
+/// 1996, *JASA* 91: 1461–1473, on Gibbs sampling with improper posteriors;
+/// citation from memory). With a prior covariance as small as the map's
+/// window error the corner is far from the data and the chain does not reach
+/// it; the check is the guard for when it does. `None` for a healthy chain or
+/// draws from the loggers alone.
+pub fn collapse(imp: &Imputations, sigma2_start: f64) -> Option<f64> {
+    if !(sigma2_start.is_finite() && sigma2_start > 0.0) {
+        return None;
+    }
+    let kept = &imp.sigma2_trace[BURN_IN.min(imp.sigma2_trace.len())..];
+    let median = crate::spatial::window_se::median(kept.iter().map(|s| s / sigma2_start).collect())?;
+    (median < COLLAPSE_SHARE).then_some(median)
 }
 
 /// Sample autocorrelation of `v` at `lag` (divisor n for both sums; Box &
@@ -425,7 +467,7 @@ mod tests {
     use crate::model::testdata::{fixture, floats};
     use crate::spatial::correlation::Family;
     use crate::spatial::geometry::Points;
-    use crate::spatial::kriging::signal_kriging;
+    use crate::spatial::kriging::{SignalKriging, signal_kriging};
     use crate::spatial::likelihood::{CovParams, Distances, cholesky};
     use crate::spatial::variogram::VariogramModel;
     use rand::SeedableRng;
@@ -441,14 +483,11 @@ mod tests {
         v.as_array().unwrap().iter().map(floats).collect()
     }
 
-    /// The invented example of tests/reference/mapped_driver.py: the prior
-    /// (mean, S) from potclim's kriging, the imputer of one case and the
-    /// trait-model parameters.
-    fn example(case: &str) -> (Vec<f64>, Mat<f64>, Imputer, TraitParams, serde_json::Value) {
-        let f = fixture("mapped_driver.json");
+    /// potclim's signal kriging of the invented example of
+    /// tests/reference/mapped_driver.py: the pots and the kriging result.
+    fn example_kriging(f: &serde_json::Value) -> (Points, SignalKriging) {
         let sensors = points(&f["sensors"]);
         let pots = points(&f["pots"]);
-        let w = floats(&f["sensors"]["values"]);
         let v = &f["variogram"];
         assert_eq!(v["family"], "exponential");
         let model = VariogramModel {
@@ -458,9 +497,27 @@ mod tests {
             range: v["range"].as_f64().unwrap(),
         };
         let sk = signal_kriging(&sensors, &pots, &model).unwrap();
+        (pots, sk)
+    }
+
+    /// The invented example of tests/reference/mapped_driver.py: the prior
+    /// (mean, S) from potclim's kriging, the imputer of one case and the
+    /// trait-model parameters.
+    fn example(case: &str) -> (Vec<f64>, Mat<f64>, Imputer, TraitParams, serde_json::Value) {
+        example_scaled(case, 1.0)
+    }
+
+    /// [`example`] with the prior covariance multiplied by `scale`.
+    fn example_scaled(
+        case: &str,
+        scale: f64,
+    ) -> (Vec<f64>, Mat<f64>, Imputer, TraitParams, serde_json::Value) {
+        let f = fixture("mapped_driver.json");
+        let (pots, sk) = example_kriging(&f);
+        let w = floats(&f["sensors"]["values"]);
         let n = pots.len();
         let mu: Vec<f64> = (0..n).map(|t| (0..w.len()).map(|r| sk.weights[(r, t)] * w[r]).sum()).collect();
-        let s = Mat::from_fn(n, n, |i, j| sk.error_cov[(i, j)]);
+        let s = Mat::from_fn(n, n, |i, j| scale * sk.error_cov[(i, j)]);
         let c = &f["cases"][case];
         let chol = c["v_family"].as_str().map(|fam| {
             let dist = Distances::from_coords(&pots.x, &pots.y).unwrap();
@@ -502,6 +559,71 @@ mod tests {
                 }
             }
         }
+    }
+
+    /// The prior from the map's window SEs, `diag(se) C diag(se)` with `C`
+    /// the correlation of potclim's kriging error covariance, against numpy
+    /// (tests/reference/mapped_driver.py, `window_prior`): the SEs squared on
+    /// the diagonal and numpy's correlation scaled off it.
+    #[test]
+    fn window_prior_matches_numpy() {
+        let f = fixture("mapped_driver.json");
+        let (_, sk) = example_kriging(&f);
+        let se = floats(&f["window_prior"]["se"]);
+        let want = matrix(&f["window_prior"]["cov"]);
+        let got = crate::model::verdict::window_prior_cov(&sk.error_cov, &se);
+        for i in 0..se.len() {
+            assert!((got[(i, i)] - se[i] * se[i]).abs() < 1e-15, "diagonal {i}");
+            for j in 0..se.len() {
+                assert!(
+                    (got[(i, j)] - want[i][j]).abs() < 1e-12,
+                    "[{i},{j}]: {} vs {}",
+                    got[(i, j)],
+                    want[i][j]
+                );
+            }
+        }
+    }
+
+    /// The collapse check: the chain starts at the plug-in fit on the map
+    /// (GLS on `mu`, `sigma2 = RSS / (n - p)`), as the verdict stage's does.
+    /// With a prior a hundredth of the example's the chain keeps its
+    /// residual variance near the start; with a prior 10⁴ times wider,
+    /// `gamma² S` can carry the whole residual, the posterior of `sigma2` is
+    /// improper at 0 and the chain falls into that corner, which
+    /// [`collapse`] reports.
+    #[test]
+    fn a_collapsed_chain_is_detected() {
+        for case in ["independent", "correlated"] {
+            for (scale, collapses) in [(0.01, false), (1e4, true)] {
+                let (mu, _, imp, _, c) = example_scaled(case, scale);
+                let (b, rss, _) = imp.posterior_given(&mu).unwrap();
+                let df = c["posterior"]["df"].as_f64().unwrap();
+                let p = b.len();
+                let start = TraitParams { beta: b[..p - 1].to_vec(), gamma: b[p - 1], sigma2: rss / df };
+                let mut rng = ChaCha20Rng::seed_from_u64(11);
+                let run = imp.impute(&start, 10, Conditioning::LoggersAndTrait, &mut rng).unwrap();
+                let median = crate::spatial::window_se::median(run.sigma2_trace[BURN_IN..].to_vec()).unwrap();
+                let share = collapse(&run, start.sigma2);
+                println!(
+                    "{case}, prior x {scale}: median sigma2 / start {}, {share:?}",
+                    median / start.sigma2
+                );
+                assert_eq!(share.is_some(), collapses, "{case}, prior x {scale}: {share:?}");
+                if collapses {
+                    assert!(share.is_some_and(|s| s < COLLAPSE_SHARE));
+                } else {
+                    assert!((0.3..3.0).contains(&(median / start.sigma2)), "{case}: {median}");
+                }
+            }
+        }
+        let none = Imputations {
+            draws: vec![],
+            gamma_trace: vec![],
+            sigma2_trace: vec![],
+            lag_autocorrelation: None,
+        };
+        assert_eq!(collapse(&none, 1.0), None);
     }
 
     /// The conditional X | W, Y against numpy's dense joint-Gaussian

@@ -326,8 +326,16 @@ pub fn verdict_in_memory(
     let mut data = assemble(&plan.pots, &spec, Some(&cov), &cov.path)?;
     let added = add_opening_drivers(study, &mut spec, &mut data);
     let sensor_values = sensor_values(plan, climate);
-    let mut r =
-        crate::model::verdict::verdict_on(&data, &spec, &added, &sensor_values, &plan.verdict, progress)?;
+    let window_ses = crate::model::data::window_ses(&plan.pots, &data, &cov);
+    let mut r = crate::model::verdict::verdict_on(
+        &data,
+        &spec,
+        &added,
+        &sensor_values,
+        &window_ses,
+        &plan.verdict,
+        progress,
+    )?;
     r.headline = Some(crate::model::verdict::headline(&r, &data, Some(&cov)));
     Ok(r)
 }

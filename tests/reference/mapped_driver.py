@@ -1,7 +1,7 @@
 """Reference values for the imputation of a mapped driver (model::imputation).
 
 Regenerate (from the repository root):
-    python3 -m venv .venv && .venv/bin/pip install numpy
+    python3 -m venv .venv && .venv/bin/pip install numpy scipy
     .venv/bin/python tests/reference/mapped_driver.py
 
 Writes tests/reference/fixtures/mapped_driver.json. A small invented example
@@ -24,7 +24,14 @@ joint-Gaussian algebra in numpy, written independently of potclim's code:
   al. 2013, *Bayesian Data Analysis*, 3rd ed., §14.2): GLS estimate, RSS and
   the posterior moments E[sigma^2] = RSS/(n-p-2), E[1/sigma^2] = (n-p)/RSS
   and Cov(beta | sigma^2) = sigma^2 (Z'R^-1 Z)^-1;
-* the sample autocorrelation of a short series (numpy.correlate, divisor n).
+* the sample autocorrelation of a short series (numpy.correlate, divisor n);
+* the prior covariance from a map's window SEs (invented SEs at the pots):
+  S_window = diag(se) C diag(se), C the correlation matrix of the flat-prior
+  S above (numpy.corrcoef's normalisation C_ij = S_ij / sqrt(S_ii S_jj),
+  written out here), checked inside this script to have the SEs squared on
+  its diagonal and to be positive semi-definite (numpy.linalg.eigvalsh);
+* the 97.5 % point of Student's t at the very large degrees of freedom that
+  Rubin's rules give when imputations barely differ (scipy.stats.t.ppf).
 
 Conventions (docs/spatial.md, docs/verdict.md): exponential correlation
 exp(-d/a); the sensor covariance is c0 + c on the diagonal and c rho(d)
@@ -36,6 +43,7 @@ import json
 import os
 
 import numpy as np
+from scipy import stats
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 
@@ -159,6 +167,19 @@ series = np.array([0.3, 0.9, 1.4, 0.8, -0.2, -0.9, -0.4, 0.5, 1.1, 0.7, 0.1, -0.
 dev = series - series.mean()
 full = np.correlate(dev, dev, mode="full")[len(dev) - 1 :]
 out["autocorrelation"] = {"series": series.tolist(), "lags": [1, 2, 5], "acf": [float(full[k] / full[0]) for k in (1, 2, 5)]}
+
+# ---- the prior from the map's window SEs -----------------------------------------------
+window_se = np.array([0.21, 0.35, 0.18, 0.42, 0.27, 0.05, 0.31, 0.24])
+sd = np.sqrt(np.diag(S))
+C = S / np.outer(sd, sd)
+S_window = np.diag(window_se) @ C @ np.diag(window_se)
+assert np.allclose(np.diag(S_window), window_se**2)
+assert np.linalg.eigvalsh(S_window).min() > -1e-12
+out["window_prior"] = {"se": window_se.tolist(), "cov": S_window.tolist()}
+
+# ---- Student's t at very large degrees of freedom -----------------------------------------
+t_df = [1e6, 3e7, 1e9, 1e12]
+out["t_975"] = {"df": t_df, "quantile": [float(stats.t.ppf(0.975, d)) for d in t_df], "scipy": __import__("scipy").__version__}
 
 path = os.path.join(HERE, "fixtures", "mapped_driver.json")
 with open(path, "w") as f:

@@ -46,7 +46,7 @@ pub use self::result::{
 };
 pub use self::uncertainty::{
     MIN_SENSORS_FOR_VARIOGRAM, MappingDraws, SENSOR_FILE, SensorValues, impute_and_pool, load_sensor_values,
-    mapping_uncertainty, mapping_uncertainty_with, sensor_variogram,
+    mapping_uncertainty, mapping_uncertainty_with, sensor_variogram, window_prior_cov,
 };
 pub use self::write::{adjusted_means_csv, comparison_csv, drivers_csv, write_outputs};
 pub use crate::spatial::geometry::DISTANCE_PREFIX;
@@ -160,9 +160,25 @@ pub(super) fn mean_sd(v: &[f64]) -> (f64, f64) {
     (m, var.sqrt())
 }
 
+/// The 97.5 % point of Student's t on `df` degrees of freedom (at least 1).
+/// Above [`T_EXPANSION_DF`] (and for an infinite `df`) by the expansion of
+/// t about the normal quantile `z` to the `df⁻²` term, whose next term is
+/// below 1e-17 there (Abramowitz & Stegun 1964, eq. 26.7.5): statrs' inverse
+/// of the regularised incomplete beta function runs for minutes at such
+/// `df`, which Rubin's degrees of freedom reach when the imputations barely
+/// differ.
 pub(super) fn t_quantile(df: f64) -> f64 {
+    if df >= T_EXPANSION_DF {
+        let z = 1.959_963_984_540_054_f64;
+        let g1 = (z.powi(3) + z) / 4.0;
+        let g2 = (5.0 * z.powi(5) + 16.0 * z.powi(3) + 3.0 * z) / 96.0;
+        return z + g1 / df + g2 / (df * df);
+    }
     StudentsT::new(0.0, 1.0, df.max(1.0)).map(|t| t.inverse_cdf(0.975)).unwrap_or(1.959964)
 }
+
+/// Degrees of freedom from which [`t_quantile`] uses the expansion.
+const T_EXPANSION_DF: f64 = 1e6;
 
 /// Load the study's `[model]` and `[verdict]` data and run the verdict: the
 /// standalone `potclim verdict`, which reads the earlier stages' results from
@@ -175,17 +191,26 @@ pub fn run_verdict(study: &Study, opts: &VerdictOptions) -> Result<VerdictResult
     let climate: Vec<String> =
         spec.drivers.iter().filter(|d| !d.starts_with(DISTANCE_PREFIX)).cloned().collect();
     let sensor_values = load_sensor_values(study, &climate)?;
-    let mut r = verdict_on(&data, &spec, &added, &sensor_values, opts, &crate::model::progress::Silent)?;
     let cov_path = study.output_dir().join(crate::model::data::COVARIATES_FILE);
     let covariates =
         if cov_path.exists() { Some(crate::model::data::PotCovariates::read(&cov_path)?) } else { None };
+    let window_ses = match &covariates {
+        Some(cov) => crate::model::data::window_ses(&crate::io::layout::load_pots(study)?, &data, cov),
+        None => Vec::new(),
+    };
+    let mut r =
+        verdict_on(&data, &spec, &added, &sensor_values, &window_ses, opts, &crate::model::progress::Silent)?;
     r.headline = Some(headline(&r, &data, covariates.as_ref()));
     Ok(r)
 }
 
 /// The verdict on loaded data: [`analyse`], then the uncertainty of each
 /// mapped climate driver of the chosen model propagated from `sensor_values`
-/// (a driver without sensor values keeps its plug-in SE, with a note).
+/// and the map's window SEs `window_ses` (per driver, aligned with
+/// `data.pots`; [`crate::model::data::window_ses`]); a driver without sensor
+/// values keeps its plug-in SE, one without window SEs gets the fallback
+/// prior, and one whose imputations collapsed gets no pooled values, each
+/// with a note.
 /// `added` names the opening distances [`crate::model::data::add_opening_drivers`]
 /// added. The pots left out for a missing trait value are listed in
 /// [`VerdictResult::left_out`] and in a note. The grid's fits and the
@@ -195,6 +220,7 @@ pub fn verdict_on(
     spec: &ModelSpec,
     added: &[String],
     sensor_values: &[SensorValues],
+    window_ses: &[(String, Vec<f64>)],
     opts: &VerdictOptions,
     progress: &dyn crate::model::progress::FitProgress,
 ) -> Result<VerdictResult> {
@@ -237,7 +263,8 @@ pub fn verdict_on(
             continue;
         };
         let (t, f0) = (Instant::now(), crate::spatial::factor::factorisations_on_this_thread());
-        let m = mapping_uncertainty_with(data, spec, &r.chosen_shape, sv, opts, progress)?;
+        let se = window_ses.iter().find(|(n, _)| n == d).map(|(_, v)| v.as_slice());
+        let m = mapping_uncertainty_with(data, spec, &r.chosen_shape, sv, se, opts, progress)?;
         r.timings.imputations.push(ImputationTime {
             driver: d.clone(),
             refits: m.fits.len(),
@@ -245,11 +272,13 @@ pub fn verdict_on(
                 + m.refit_factorisations,
             seconds: t.elapsed().as_secs_f64(),
         });
-        if let Some(row) = r.drivers.iter_mut().find(|x| &x.name == d) {
-            row.estimate_with_mapping_uncertainty = Some(m.pooled.estimate);
-            row.se_with_mapping_uncertainty = Some(m.pooled.se);
-            row.ci_low_with_mapping_uncertainty = Some(m.ci.0);
-            row.ci_high_with_mapping_uncertainty = Some(m.ci.1);
+        if let Some(row) = r.drivers.iter_mut().find(|x| &x.name == d)
+            && let (Some(pooled), Some(ci), None) = (&m.pooled, m.ci, &m.collapsed)
+        {
+            row.estimate_with_mapping_uncertainty = Some(pooled.estimate);
+            row.se_with_mapping_uncertainty = Some(pooled.se);
+            row.ci_low_with_mapping_uncertainty = Some(ci.0);
+            row.ci_high_with_mapping_uncertainty = Some(ci.1);
         }
         r.mapping_notes.push(m.note.clone());
         r.notes.push(m.note);

@@ -226,6 +226,19 @@ fn adjusted_means_match_hand_computation() {
     }
 }
 
+/// 12 sensors on a 4 x 3 grid over the bench of [`simulate`], reading its
+/// driver `cold` exactly.
+fn cold_sensors() -> SensorValues {
+    let sx: Vec<f64> = (0..12).map(|k| 0.25 + (k % 4) as f64 * 1.4).collect();
+    let sy: Vec<f64> = (0..12).map(|k| 0.25 + (k / 4) as f64 * 1.5).collect();
+    let cold = |x: f64, y: f64| 2.0 + 3.0 * (-x / 0.8).exp() + 0.5 * (1.2 * y).cos();
+    SensorValues {
+        name: "cold".into(),
+        points: Points { ids: (0..12).map(|k| format!("s{k}")).collect(), x: sx.clone(), y: sy.clone() },
+        values: (0..12).map(|k| cold(sx[k], sy[k])).collect(),
+    }
+}
+
 /// The pooling path: 12 sensors measure `cold` (the test's driver plus
 /// nothing else), the pots carry the driver itself; the chosen model is
 /// refitted on 20 imputations. Checks: the pooled values are Rubin's
@@ -236,33 +249,90 @@ fn adjusted_means_match_hand_computation() {
 #[test]
 fn mapping_uncertainty_pools_by_rubin() {
     let d = simulate(Truth::DriverOnly, 21);
-    let sx: Vec<f64> = (0..12).map(|k| 0.25 + (k % 4) as f64 * 1.4).collect();
-    let sy: Vec<f64> = (0..12).map(|k| 0.25 + (k / 4) as f64 * 1.5).collect();
-    let cold = |x: f64, y: f64| 2.0 + 3.0 * (-x / 0.8).exp() + 0.5 * (1.2 * y).cos();
-    let sv = SensorValues {
-        name: "cold".into(),
-        points: Points { ids: (0..12).map(|k| format!("s{k}")).collect(), x: sx.clone(), y: sy.clone() },
-        values: (0..12).map(|k| cold(sx[k], sy[k])).collect(),
-    };
+    let sv = cold_sensors();
     let opts = VerdictOptions { draws: 20, ..VerdictOptions::default() };
     let shape = (vec!["cold".to_string()], Errors::Independent);
-    let p1 = mapping_uncertainty(&d, &spec(&["cold"]), &shape, &sv, &opts).unwrap();
+    let p1 = mapping_uncertainty(&d, &spec(&["cold"]), &shape, &sv, None, &opts).unwrap();
     let fits = &p1.fits;
     assert_eq!(fits.len(), 20);
     let m = fits.len() as f64;
     let qbar = fits.iter().map(|f| f.0).sum::<f64>() / m;
     let ubar = fits.iter().map(|f| f.1 * f.1).sum::<f64>() / m;
     let b = fits.iter().map(|f| (f.0 - qbar).powi(2)).sum::<f64>() / (m - 1.0);
-    assert_abs_diff_eq!(p1.pooled.estimate, qbar, epsilon = 1e-12);
-    assert_abs_diff_eq!(p1.pooled.total, ubar + (1.0 + 1.0 / m) * b, epsilon = 1e-12);
-    assert!(b > 0.0 && p1.pooled.se > ubar.sqrt(), "{}", p1.note);
-    assert!(p1.ci.0 < qbar && qbar < p1.ci.1);
+    let (pooled, ci) = (p1.pooled.as_ref().unwrap(), p1.ci.unwrap());
+    assert_abs_diff_eq!(pooled.estimate, qbar, epsilon = 1e-12);
+    assert_abs_diff_eq!(pooled.total, ubar + (1.0 + 1.0 / m) * b, epsilon = 1e-12);
+    assert!(b > 0.0 && pooled.se > ubar.sqrt(), "{}", p1.note);
+    assert!(ci.0 < qbar && qbar < ci.1);
     let design = design_for(&d, &spec(&["cold"]), &shape.0).unwrap();
     let plug = fit_independent(&design, &d.response, LikelihoodKind::Reml).unwrap();
     let c = plug.names.iter().position(|n| n == "cold").unwrap();
     assert_eq!(p1.plug_in, (plug.beta[c], plug.se[c]));
-    let p2 = mapping_uncertainty(&d, &spec(&["cold"]), &shape, &sv, &opts).unwrap();
+    let p2 = mapping_uncertainty(&d, &spec(&["cold"]), &shape, &sv, None, &opts).unwrap();
     assert_eq!(p1, p2);
+}
+
+/// The prior from the map's window SEs (`window_prior_cov`): with SEs of
+/// 1e-6 the imputations are the map itself, so Rubin's estimate is the
+/// plug-in one and the between-imputation spread vanishes, and the note says
+/// which prior was used; without SEs the fallback is named. With SEs 300
+/// times the driver's spread (about 3 units over the bench) `gamma² S`
+/// carries the whole residual, the chain collapses, and the verdict stage
+/// reports no pooled values but says why.
+#[test]
+fn window_ses_set_the_prior_and_a_collapse_is_reported() {
+    let d = simulate(Truth::DriverOnly, 21);
+    let sv = cold_sensors();
+    let opts = VerdictOptions { draws: 5, ..VerdictOptions::default() };
+    let shape = (vec!["cold".to_string()], Errors::Independent);
+    let n = d.pots.len();
+    let tiny = vec![1e-6; n];
+    let m = mapping_uncertainty(&d, &spec(&["cold"]), &shape, &sv, Some(&tiny), &opts).unwrap();
+    assert!(m.window_se_used && m.collapsed.is_none(), "{}", m.note);
+    assert!(m.note.contains("the map's window SEs (RMS 0.000)"), "{}", m.note);
+    let pooled = m.pooled.as_ref().unwrap();
+    assert_abs_diff_eq!(pooled.estimate, m.plug_in.0, epsilon = 1e-4 * m.plug_in.1);
+    assert!(pooled.between.sqrt() < 1e-3 * m.plug_in.1, "{}", m.note);
+    assert_abs_diff_eq!(pooled.within.sqrt(), m.plug_in.1, epsilon = 1e-3 * m.plug_in.1);
+    let fallback = mapping_uncertainty(&d, &spec(&["cold"]), &shape, &sv, None, &opts).unwrap();
+    assert!(!fallback.window_se_used && fallback.note.contains("the fallback"), "{}", fallback.note);
+    let short = vec![1.0; n - 1];
+    let e = mapping_uncertainty(&d, &spec(&["cold"]), &shape, &sv, Some(&short), &opts).unwrap_err();
+    assert!(e.to_string().contains(&format!("{} window SEs for {n} pots", n - 1)), "{e}");
+
+    let huge = vec![1e3; n];
+    let r = verdict_on(
+        &d,
+        &spec(&["cold"]),
+        &[],
+        &[sv],
+        &[("cold".into(), huge)],
+        &opts,
+        &crate::model::progress::Silent,
+    )
+    .unwrap();
+    assert!(r.chosen_shape.0.contains(&"cold".to_string()), "{:?}", r.chosen_shape);
+    let row = r.drivers.iter().find(|x| x.name == "cold").unwrap();
+    assert_eq!(row.estimate_with_mapping_uncertainty, None);
+    assert_eq!(row.ci_low_with_mapping_uncertainty, None);
+    let note = r.notes.iter().find(|n| n.contains("not reported")).expect("a note on the collapse");
+    assert!(note.contains("collapsed") && note.contains("the map's window SEs"), "{note}");
+}
+
+/// The t quantile at the very large degrees of freedom of Rubin's rules
+/// when the imputations barely differ (the expansion of `t_quantile`)
+/// against scipy.stats.t.ppf (tests/reference/mapped_driver.py, `t_975`),
+/// and the normal quantile at infinity.
+#[test]
+fn t_quantile_at_large_df_matches_scipy() {
+    let f = crate::model::testdata::fixture("mapped_driver.json");
+    let t = &f["t_975"];
+    let df = crate::model::testdata::floats(&t["df"]);
+    for (d, want) in df.iter().zip(crate::model::testdata::floats(&t["quantile"])) {
+        let got = t_quantile(*d);
+        assert!((got - want).abs() < 1e-12, "df {d}: {got} vs {want}");
+    }
+    assert!((t_quantile(f64::INFINITY) - 1.959_963_984_540_054).abs() < 1e-15);
 }
 
 #[test]
@@ -321,16 +391,10 @@ fn progress_counts_every_grid_fit_and_imputation() {
     assert_eq!((tasks[0].1, tasks[0].2), (r.models.len(), r.models.len()));
     assert_eq!(r.n_fits, r.models.len() + 2);
     assert_eq!(r.verdict, analyse(&d, &spec(&["cold"]), &opts).unwrap().verdict);
-    let sx: Vec<f64> = (0..12).map(|k| 0.25 + (k % 4) as f64 * 1.4).collect();
-    let sy: Vec<f64> = (0..12).map(|k| 0.25 + (k / 4) as f64 * 1.5).collect();
-    let sv = SensorValues {
-        name: "cold".into(),
-        points: Points { ids: (0..12).map(|k| format!("s{k}")).collect(), x: sx.clone(), y: sy.clone() },
-        values: (0..12).map(|k| 2.0 + 3.0 * (-sx[k] / 0.8).exp() + 0.5 * (1.2 * sy[k]).cos()).collect(),
-    };
+    let sv = cold_sensors();
     let rec = Recorder::default();
     let shape = (vec!["cold".to_string()], Errors::Independent);
-    mapping_uncertainty_with(&d, &spec(&["cold"]), &shape, &sv, &opts, &rec).unwrap();
+    mapping_uncertainty_with(&d, &spec(&["cold"]), &shape, &sv, None, &opts, &rec).unwrap();
     let tasks = rec.0.lock().unwrap().clone();
     assert_eq!(tasks, [("imputations of `cold` (REML refits)".to_string(), 5, 5)]);
 }
