@@ -392,7 +392,10 @@ fn an_independent_choice_is_tested_again_under_correlation() {
     assert!(first["correlation_check"].as_str().unwrap().starts_with("base+night_cold_hours | "), "{first}");
     assert_eq!(first["set_aside"][0], DRIVER);
     let statement = summary["calibration"]["statement"].as_str().unwrap();
-    assert!(statement.contains("under correlated errors, which have the lower AIC with these drivers"), "{statement}");
+    assert!(
+        statement.contains("under correlated errors, which have the lower AIC with these drivers"),
+        "{statement}"
+    );
 }
 
 /// The four scenario files differ only in `[scenario].title` and `[trait]`,
