@@ -3,7 +3,8 @@
 //! third day past a draughty door; night-cold effect -0.025 g per hour) with
 //! its move table, `potclim run` analyses it with each pot's exposure along
 //! its path, and a copy of the study that knows only each pot's final
-//! position (no move table) is analysed for comparison.
+//! position (no move table) is analysed for comparison; and over a residual
+//! field fixed in space, the residual correlation along the paths is fitted.
 
 use std::collections::HashMap;
 use std::path::Path;
@@ -55,6 +56,33 @@ fn driver_effect(study: &Path) -> (f64, f64, f64) {
     (get("estimate"), get("ci_low"), get("ci_high"))
 }
 
+/// A copy of the study folder `from` (one level of subfolders) whose study
+/// file has no move table: the pots stay at their pot-table positions.
+fn copy_without_moves(from: &Path, to_dir: &Path) {
+    std::fs::create_dir(to_dir).unwrap();
+    for entry in std::fs::read_dir(from).unwrap() {
+        let e = entry.unwrap();
+        let to = to_dir.join(e.file_name());
+        if e.file_type().unwrap().is_dir() {
+            std::fs::create_dir(&to).unwrap();
+            for f in std::fs::read_dir(e.path()).unwrap() {
+                let f = f.unwrap();
+                std::fs::copy(f.path(), to.join(f.file_name())).unwrap();
+            }
+        } else {
+            std::fs::copy(e.path(), &to).unwrap();
+        }
+    }
+    let toml = std::fs::read_to_string(from.join("study.toml")).unwrap();
+    assert!(toml.contains("moves = \"moves.csv\"\n"));
+    std::fs::write(to_dir.join("study.toml"), toml.replace("moves = \"moves.csv\"\n", "")).unwrap();
+}
+
+/// `comparison.csv`'s log-likelihood of `model`.
+fn loglik(output: &Path, model: &str) -> f64 {
+    column(&output.join("comparison.csv"), "loglik")[model].parse().unwrap()
+}
+
 #[test]
 fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
     let dir = tempfile::tempdir().unwrap();
@@ -77,22 +105,7 @@ fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
             .collect()
     };
     let final_dir = dir.path().join("final");
-    std::fs::create_dir(&final_dir).unwrap();
-    for entry in std::fs::read_dir(&study).unwrap() {
-        let e = entry.unwrap();
-        let name = e.file_name();
-        let to = final_dir.join(&name);
-        if e.file_type().unwrap().is_dir() {
-            std::fs::create_dir(&to).unwrap();
-            for f in std::fs::read_dir(e.path()).unwrap() {
-                let f = f.unwrap();
-                std::fs::copy(f.path(), to.join(f.file_name())).unwrap();
-            }
-        } else {
-            std::fs::copy(e.path(), &to).unwrap();
-        }
-    }
-    std::fs::write(final_dir.join("study.toml"), toml.replace("moves = \"moves.csv\"\n", "")).unwrap();
+    copy_without_moves(&study, &final_dir);
     let pots = std::fs::read_to_string(study.join("pots.csv")).unwrap();
     let mut out = String::new();
     for (k, line) in pots.lines().enumerate() {
@@ -181,4 +194,41 @@ fn check_refuses_a_bad_move_table_with_its_line() {
             && err.contains("hint"),
         "{err}"
     );
+}
+
+/// A residual field fixed in space and pots that move (seed 3 of
+/// tests/scenarios/rotating_carts_field.toml, no effect of night cold): the
+/// residual correlation along the paths (`W R W'`) fits better than the same
+/// family at the pots' first positions (a copy of the study without its
+/// move table), and the verdict says `correlation`. The standalone `potclim verdict`, which reads
+/// the paths back from pot_paths.csv, gives the run's log-likelihoods.
+#[test]
+fn residual_correlation_along_the_paths() {
+    let dir = tempfile::tempdir().unwrap();
+    let scenario = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/scenarios/rotating_carts_field.toml");
+    potclim(&["simulate", scenario.to_str().unwrap(), "--out", "study", "--seed", "3"], dir.path());
+    let study = dir.path().join("study");
+    let still = dir.path().join("still");
+    copy_without_moves(&study, &still);
+    potclim(&["run", "study.toml"], &study);
+    potclim(&["run", "study.toml"], &still);
+    let model = "base | exponential+nugget";
+    let (along, at_start) = (loglik(&study.join("output"), model), loglik(&still.join("output"), model));
+    let verdict = |d: &Path| -> String {
+        let s: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(d.join("output/summary.json")).unwrap()).unwrap();
+        s["verdict"].as_str().unwrap().to_string()
+    };
+    eprintln!(
+        "{model}: along the paths {along:.3}, at the first positions {at_start:.3}; verdicts {} and {}",
+        verdict(&study),
+        verdict(&still)
+    );
+    assert!(along > at_start + 3.0, "along the paths {along}, at the first positions {at_start}");
+    assert_eq!(verdict(&study), "correlation");
+    // the standalone verdict reads pot_paths.csv: the same fits
+    let before = std::fs::read_to_string(study.join("output/comparison.csv")).unwrap();
+    potclim(&["verdict", "study.toml"], &study);
+    let after = loglik(&study.join("output"), model);
+    assert!((after - along).abs() < 1e-9 * along.abs(), "{after} vs {along}\n{before}");
 }
