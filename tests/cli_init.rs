@@ -149,7 +149,7 @@ fn first_screen_agrees_with_summary(results: &std::path::Path) {
     let carries = if e["includes_mapping"].as_bool().unwrap() {
         "which includes the uncertainty"
     } else {
-        "treating the driver&#39;s values as exact"
+        "treating the driver's values as exact"
     };
     let quote = format!(
         "a change of {:.dy$} cm (95 % interval {:.dy$} to {:.dy$} cm), {carries}",
