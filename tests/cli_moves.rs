@@ -3,7 +3,9 @@
 //! third day past a draughty door; night-cold effect -0.025 g per hour) with
 //! its move table, `potclim run` analyses it with each pot's exposure along
 //! its path, and a copy of the study that knows only each pot's final
-//! position (no move table) is analysed for comparison.
+//! position (no move table) is analysed for comparison, and one that knows
+//! only each pot's starting position, whose drivers are those the moving
+//! run reports as "without moves".
 
 use std::collections::HashMap;
 use std::path::Path;
@@ -55,6 +57,79 @@ fn driver_effect(study: &Path) -> (f64, f64, f64) {
     (get("estimate"), get("ci_low"), get("ci_high"))
 }
 
+/// Copy a simulated study folder (files and one level of subfolders).
+fn copy_study(from: &Path, to: &Path) {
+    std::fs::create_dir(to).unwrap();
+    for entry in std::fs::read_dir(from).unwrap() {
+        let e = entry.unwrap();
+        let target = to.join(e.file_name());
+        if e.file_type().unwrap().is_dir() {
+            std::fs::create_dir(&target).unwrap();
+            for f in std::fs::read_dir(e.path()).unwrap() {
+                let f = f.unwrap();
+                std::fs::copy(f.path(), target.join(f.file_name())).unwrap();
+            }
+        } else {
+            std::fs::copy(e.path(), &target).unwrap();
+        }
+    }
+}
+
+/// Numbers of column `name`, keyed by the first column.
+fn numbers(path: &Path, name: &str) -> HashMap<String, f64> {
+    column(path, name).into_iter().map(|(k, v)| (k, v.parse().unwrap())).collect()
+}
+
+/// Sample SD (divisor n - 1), written out here apart from potclim's.
+fn sd(v: &[f64]) -> f64 {
+    let m = v.iter().sum::<f64>() / v.len() as f64;
+    (v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (v.len() - 1) as f64).sqrt()
+}
+
+/// Did the moves even the drivers out? `pot_paths_exposure.csv` holds each
+/// pot's driver along its path (as `pot_covariates.csv`) and without moves,
+/// which must be what a run of the same study without the move table (every
+/// pot at its `[pots]` position) maps; `paths_spread.csv` holds their SDs.
+/// The shift of 37 places every third day sends each pot past the door and
+/// away from it: the spread of night cold hours across pots falls to about
+/// a third (seed 3: SD 22.4 h against 75.4 h, ratio 0.297; distance to the
+/// door 0.975 m against 2.574 m, ratio 0.379).
+fn evened_against_the_unmoved_study(study: &Path, start: &Path) {
+    let exposure = study.join("output/pot_paths_exposure.csv");
+    let covariates = study.join("output/pot_covariates.csv");
+    let unmoved_covariates = start.join("output/pot_covariates.csv");
+    assert_eq!(column(&exposure, "positions").values().filter(|v| *v != "5").count(), 0);
+    assert_eq!(column(&exposure, "moves").values().filter(|v| *v != "4").count(), 0);
+    let spread = study.join("output/paths_spread.csv");
+    for driver in ["night_cold_hours", "distance_door"] {
+        let path = column(&exposure, driver);
+        assert_eq!(path, column(&covariates, driver), "{driver}: along the path as pot_covariates.csv");
+        let unmoved = numbers(&exposure, &format!("{driver}_unmoved"));
+        let alone = numbers(&unmoved_covariates, driver);
+        assert_eq!(unmoved.len(), 150);
+        for (pot, v) in &unmoved {
+            assert!(
+                (v - alone[pot]).abs() <= 1e-9 * v.abs().max(1.0),
+                "{driver} {pot}: {v} against {}",
+                alone[pot]
+            );
+        }
+        let path: Vec<f64> = path.values().map(|v| v.parse().unwrap()).collect();
+        let unmoved: Vec<f64> = unmoved.values().copied().collect();
+        let (sd_path, sd_unmoved) = (sd(&path), sd(&unmoved));
+        let row = |c: &str| numbers(&spread, c)[driver];
+        assert!((row("sd_path") - sd_path).abs() < 1e-9 * sd_path, "{driver}");
+        assert!((row("sd_unmoved") - sd_unmoved).abs() < 1e-9 * sd_unmoved, "{driver}");
+        assert!((row("sd_ratio") - sd_path / sd_unmoved).abs() < 1e-9, "{driver}");
+        eprintln!("{driver}: SD {sd_path:.4} along the paths, {sd_unmoved:.4} without moves");
+        // the rotation evens the driver out: its spread falls below half
+        assert!(
+            sd_path < 0.5 * sd_unmoved && row("range_ratio") < 0.5,
+            "{driver}: {sd_path} against {sd_unmoved}"
+        );
+    }
+}
+
 #[test]
 fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
     let dir = tempfile::tempdir().unwrap();
@@ -68,6 +143,13 @@ fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
     assert_eq!(moves.lines().count(), 1 + 4 * 150, "{moves}");
     assert!(moves.starts_with("pot,since,x,y\n"));
 
+    // A copy that knows only where each pot started (its `[pots]` position,
+    // no move table): its drivers are those each pot would have had without
+    // moves.
+    let start_dir = dir.path().join("start");
+    copy_study(&study, &start_dir);
+    std::fs::write(start_dir.join("study.toml"), toml.replace("moves = \"moves.csv\"\n", "")).unwrap();
+
     // A copy that knows only where each pot ended: its last row's position.
     let last: HashMap<String, (String, String)> = {
         let mut r = csv::Reader::from_path(study.join("moves.csv")).unwrap();
@@ -77,21 +159,7 @@ fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
             .collect()
     };
     let final_dir = dir.path().join("final");
-    std::fs::create_dir(&final_dir).unwrap();
-    for entry in std::fs::read_dir(&study).unwrap() {
-        let e = entry.unwrap();
-        let name = e.file_name();
-        let to = final_dir.join(&name);
-        if e.file_type().unwrap().is_dir() {
-            std::fs::create_dir(&to).unwrap();
-            for f in std::fs::read_dir(e.path()).unwrap() {
-                let f = f.unwrap();
-                std::fs::copy(f.path(), to.join(f.file_name())).unwrap();
-            }
-        } else {
-            std::fs::copy(e.path(), &to).unwrap();
-        }
-    }
+    copy_study(&study, &final_dir);
     std::fs::write(final_dir.join("study.toml"), toml.replace("moves = \"moves.csv\"\n", "")).unwrap();
     let pots = std::fs::read_to_string(study.join("pots.csv")).unwrap();
     let mut out = String::new();
@@ -110,8 +178,13 @@ fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
 
     let said = potclim(&["run", "study.toml"], &study);
     assert!(said.contains("150 of 150 pots moved, 150 positions mapped; 0 time(s)"), "{said}");
+    assert!(said.contains("night_cold_hours: SD across pots "), "{said}");
     let said = potclim(&["run", "study.toml"], &final_dir);
     assert!(!said.contains("pots moved"), "{said}");
+    potclim(&["run", "study.toml"], &start_dir);
+    evened_against_the_unmoved_study(&study, &start_dir);
+    assert!(!final_dir.join("output/paths_spread.csv").exists());
+    assert!(!final_dir.join("output/pot_paths_exposure.csv").exists());
 
     // pot_paths.csv: five places per pot in its 13-day window (moves on
     // days 3, 6, 9 and 12), three days at each of the first four and one
