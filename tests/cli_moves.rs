@@ -130,6 +130,37 @@ fn evened_against_the_unmoved_study(study: &Path, start: &Path) {
     }
 }
 
+/// The report's section "Where the pots stood": the time-share map, the
+/// exposure map, the sentence and table on the spread, the count of moves;
+/// redrawn from `report_data.json` by `potclim report`; absent (section,
+/// navigation and data key) without a move table.
+fn where_the_pots_stood(study: &Path, without: &Path) {
+    let html = std::fs::read_to_string(study.join("output/report.html")).unwrap();
+    let start = html.find("<section id=\"moves\">").expect("the moves section");
+    let section = &html[start..start + html[start..].find("</section>").unwrap()];
+    for want in [
+        "<h2>Where the pots stood</h2>",
+        "150 of 150 pots changed position during their growth windows, 600 moves in all, over 150 positions",
+        "id=\"fig-moves-time\"",
+        "id=\"fig-moves-exposure-night-cold-hours\"",
+        "drawn at its starting position",
+        "The moves narrowed the spread of <code>night_cold_hours</code> across pots from 75.4 to 22.4 h",
+        "<td>distance_door (m)</td>",
+    ] {
+        assert!(section.contains(want), "{want}\n{section}");
+    }
+    assert!(html.contains("href=\"#moves\""));
+    let data = std::fs::read_to_string(study.join("output/report_data.json")).unwrap();
+    assert!(data.contains("\"moves\": {"));
+    std::fs::remove_file(study.join("output/report.html")).unwrap();
+    potclim(&["report", "study.toml"], study);
+    assert_eq!(std::fs::read_to_string(study.join("output/report.html")).unwrap(), html);
+    let html = std::fs::read_to_string(without.join("output/report.html")).unwrap();
+    assert!(!html.contains("id=\"moves\"") && !html.contains("href=\"#moves\""));
+    let data = std::fs::read_to_string(without.join("output/report_data.json")).unwrap();
+    assert!(!data.contains("\"moves\""));
+}
+
 #[test]
 fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
     let dir = tempfile::tempdir().unwrap();
@@ -184,6 +215,7 @@ fn path_exposure_finds_the_draught_effect_of_pots_that_move() {
     potclim(&["run", "study.toml"], &start_dir);
     evened_against_the_unmoved_study(&study, &start_dir);
     assert!(!final_dir.join("output/paths_spread.csv").exists());
+    where_the_pots_stood(&study, &final_dir);
     assert!(!final_dir.join("output/pot_paths_exposure.csv").exists());
 
     // pot_paths.csv: five places per pot in its 13-day window (moves on
