@@ -39,6 +39,22 @@ pub struct MovesSection {
     /// Per driver (indicators, then distances to openings): the spread
     /// across the pots along the paths and without moves.
     pub spread: Vec<SpreadRow>,
+    /// The paths of at most [`PATHS_DRAWN`] pots, those that held the most
+    /// distinct positions in their growth windows.
+    #[serde(default)]
+    pub paths: Vec<TravelledPath>,
+}
+
+/// How many pots' paths the time map draws at most.
+pub const PATHS_DRAWN: usize = 12;
+
+/// The positions one pot held in its growth window, in order.
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+pub struct TravelledPath {
+    /// Pot id.
+    pub pot: String,
+    /// `[x m, y m]` of each position, in the order held.
+    pub points: Vec<[f64; 2]>,
 }
 
 /// A position some pot held.
@@ -111,6 +127,14 @@ pub fn from_map(map: &MapRun, m: &MovedPots) -> MovesSection {
             .iter()
             .map(|d| SpreadRow { driver: d.driver.clone(), unit: d.unit.clone(), spread: d.spread })
             .collect(),
+        paths: m
+            .most_travelled(PATHS_DRAWN)
+            .into_iter()
+            .map(|(j, held)| TravelledPath {
+                pot: map.pots[j].clone(),
+                points: held.into_iter().map(|p| [pos.x[p], pos.y[p]]).collect(),
+            })
+            .collect(),
     }
 }
 
@@ -140,10 +164,17 @@ pub fn figures(s: &MovesSection, floor: Floor<'_>) -> Vec<(Result<Figure, Figure
         sensor_values: Vec::new(),
         wide: true,
     };
-    let mut out = vec![(
-        figures::value_map(&base),
-        "Seen from above. Each disc is a position some pot held, coloured by the pot time spent there over the pots' growth windows (pot-days: one pot standing there for one day counts 1). Triangles are the climate loggers, thick black lines the openings.".to_string(),
-    )];
+    let caption = format!(
+        "Seen from above. Each disc is a position some pot held, coloured by the pot time spent there over the pots' growth windows (pot-days: one pot standing there for one day counts 1). Triangles are the climate loggers, thick black lines the openings.{}",
+        match s.paths.len() {
+            0 => String::new(),
+            n => format!(
+                " Coloured lines: the paths of {n} pot(s) that held the most positions, each labelled with its pot at its starting position, an arrow on each leg pointing the way it moved."
+            ),
+        }
+    );
+    let head = arrow_head(floor.extent, &s.positions);
+    let mut out = vec![(figures::value_map_with(&base, |chart| draw_paths(chart, &s.paths, head)), caption)];
     for e in &s.exposure {
         let spec = MapSpec {
             id: format!("moves-exposure-{}", figures::slug(&e.name)),
@@ -163,6 +194,60 @@ pub fn figures(s: &MovesSection, floor: Floor<'_>) -> Vec<(Result<Figure, Figure
         ));
     }
     out
+}
+
+/// The length of an arrow head, metres: 2.5 % of the floor's longer side
+/// (of the positions' extent without a compartment).
+fn arrow_head(extent: Option<(f64, f64)>, positions: &[HeldPosition]) -> f64 {
+    let side = match extent {
+        Some((l, w)) => l.max(w),
+        None => {
+            let span = |v: Vec<f64>| super::colour::finite_extent(v).map_or(1.0, |(a, b)| b - a);
+            span(positions.iter().map(|p| p.x).collect()).max(span(positions.iter().map(|p| p.y).collect()))
+        }
+    };
+    0.025 * side.max(1e-9)
+}
+
+/// Each path as a line in its own colour (the logger palette, in path
+/// order), an arrow head of length `head` (metres) at the middle of each leg
+/// pointing the way the pot moved, and the pot id at its first position.
+fn draw_paths(
+    chart: &mut figures::MapChart<'_, '_>,
+    paths: &[TravelledPath],
+    head: f64,
+) -> figures::DrawResult {
+    use plotters::prelude::*;
+    for (k, path) in paths.iter().enumerate() {
+        let (c, _) = super::colour::logger_line(k);
+        let colour = RGBColor(c.0, c.1, c.2);
+        let points: Vec<(f64, f64)> = path.points.iter().map(|p| (p[0], p[1])).collect();
+        chart.draw_series(LineSeries::new(points.clone(), colour.stroke_width(2)))?;
+        for leg in points.windows(2) {
+            let ((x0, y0), (x1, y1)) = (leg[0], leg[1]);
+            let length = (x1 - x0).hypot(y1 - y0);
+            if length == 0.0 {
+                continue;
+            }
+            let (ux, uy) = ((x1 - x0) / length, (y1 - y0) / length);
+            let tip = ((x0 + x1) / 2.0, (y0 + y1) / 2.0);
+            // two wings 25 degrees either side of the leg, pointing back
+            let (c25, s25) = (25f64.to_radians().cos(), 25f64.to_radians().sin());
+            let wing =
+                |s: f64| (tip.0 - head * (ux * c25 - s * uy * s25), tip.1 - head * (uy * c25 + s * ux * s25));
+            chart.draw_series(std::iter::once(PathElement::new(
+                vec![wing(1.0), tip, wing(-1.0)],
+                colour.stroke_width(2),
+            )))?;
+        }
+        if let Some(&first) = points.first() {
+            chart.draw_series(std::iter::once(
+                EmptyElement::at(first)
+                    + Text::new(path.pot.clone(), (4, 4), (figures::FONT, 11).into_font().color(&colour)),
+            ))?;
+        }
+    }
+    Ok(())
 }
 
 /// A change of spread within 5 % either way is called no change (a wording
@@ -294,6 +379,7 @@ mod tests {
                 unit: "h".into(),
                 points: vec![(0.5, 0.5, Some(12.0)), (1.5, 0.5, None)],
             }],
+            paths: vec![TravelledPath { pot: "a".into(), points: vec![[0.5, 0.5], [1.5, 0.5], [3.0, 1.0]] }],
             spread: vec![
                 row("night_cold_hours", "h", (Some(16.97), Some(33.94)), [14.4, 33.6, 4.8, 43.2]),
                 row("mean_temperature", "°C", (Some(3.0), Some(2.0)), [1.0, 5.0, 2.0, 4.0]),
@@ -328,6 +414,15 @@ mod tests {
         check_snapshot("moves_section.html", &strip_svgs(&html));
         let figs = figures(&small_section(), floor);
         assert_eq!(figs.len(), 2);
+        // the path of pot a is drawn in the first logger colour, three legs'
+        // worth of line and two arrow heads; without paths that colour is absent
+        let (c, _) = crate::report::colour::logger_line(0);
+        let hex = format!("#{:02X}{:02X}{:02X}", c.0, c.1, c.2);
+        let with = figs[0].0.as_ref().unwrap().svg.clone();
+        assert_eq!(with.matches(&hex).count(), 4, "{hex} in {with}");
+        let bare = MovesSection { paths: Vec::new(), ..small_section() };
+        let without = figures(&bare, floor).remove(0).0.unwrap().svg;
+        assert!(!without.contains(&hex));
         for (f, caption) in figs {
             let f = f.unwrap();
             check_well_formed(&f.svg).unwrap();

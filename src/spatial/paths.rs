@@ -128,6 +128,21 @@ impl Paths {
         s.windows(2).filter(|w| w[1].0 > window.start && w[1].0 < window.end && w[1].1 != w[0].1).count()
     }
 
+    /// The positions pot `j` held during the steps `window`, in the order
+    /// it held them (a return to an earlier position counts again; a stay
+    /// at the position just held does not). Cost O(stays of the pot).
+    pub fn sequence(&self, j: usize, window: Range<usize>) -> Vec<usize> {
+        let s = &self.stays[j];
+        let mut out: Vec<usize> = Vec::new();
+        for (k, &(from, p)) in s.iter().enumerate() {
+            let to = s.get(k + 1).map_or(usize::MAX, |n| n.0);
+            if from < window.end && to > window.start && out.last() != Some(&p) {
+                out.push(p);
+            }
+        }
+        out
+    }
+
     /// Pot `j`'s time shares of the positions over the steps `window`
     /// (each stay's steps inside the window over the window's steps), as
     /// `(position, share)` with the shares summing to 1; an empty window
@@ -170,6 +185,8 @@ pub struct MovedPots {
     /// there, summed over the pots' growth windows, in pot-days (a pot
     /// standing there for one day counts 1).
     pub pot_days: Vec<f64>,
+    /// Per pot: its growth window, grid steps.
+    pub windows: Vec<Range<usize>>,
     /// Every driver (indicators in declaration order, then
     /// `distance_<opening>`) along the paths and without moves, with its
     /// spread across pots ([`Evened`]); filled by the mapping stage.
@@ -316,7 +333,17 @@ impl MovedPots {
                 pot_days[p] += share * window.len() as f64 * step_days;
             }
         }
-        MovedPots { paths, shares, shared, moves, pot_days, drivers: Vec::new() }
+        MovedPots { paths, shares, shared, moves, pot_days, windows: windows.to_vec(), drivers: Vec::new() }
+    }
+
+    /// At most `k` pots that held the most distinct positions in their
+    /// growth windows (ties in pot order; pots that never moved left out),
+    /// each with the positions it held in order ([`Paths::sequence`]).
+    pub fn most_travelled(&self, k: usize) -> Vec<(usize, Vec<usize>)> {
+        let mut pots: Vec<usize> = (0..self.shares.len()).filter(|&j| self.shares[j].len() > 1).collect();
+        pots.sort_by_key(|&j| std::cmp::Reverse(self.shares[j].len()));
+        pots.truncate(k);
+        pots.into_iter().map(|j| (j, self.paths.sequence(j, self.windows[j].clone()))).collect()
     }
 
     /// How many pots changed position in their growth window, and how many
@@ -528,6 +555,15 @@ pub(crate) mod tests {
         assert_eq!((p.moves_in(0, 24..48), p.moves_in(1, 24..48)), (1, 0));
         let moved = MovedPots::new(p, shares, vec![], &[0..48, 0..48], 1.0 / 24.0);
         assert_eq!(moved.moved(), (2, 3));
+        // the places in the order held: a 0 -> 1 -> 2, b 1 -> 0; on the
+        // second day a 1 -> 2 only; the most travelled first
+        assert_eq!(
+            (moved.paths.sequence(0, 0..48), moved.paths.sequence(1, 0..48)),
+            (vec![0, 1, 2], vec![1, 0])
+        );
+        assert_eq!(moved.paths.sequence(0, 24..48), vec![1, 2]);
+        assert_eq!(moved.most_travelled(12), vec![(0, vec![0, 1, 2]), (1, vec![1, 0])]);
+        assert_eq!(moved.most_travelled(1), vec![(0, vec![0, 1, 2])]);
         // pot-days: at a's place 12 h of a and 36 h of b (2 d); at b's place
         // 30 h of a and 12 h of b (1.75 d); at the third place 6 h (0.25 d)
         for (got, want) in moved.pot_days.iter().zip([2.0, 1.75, 0.25]) {
