@@ -142,8 +142,17 @@ fn first_screen_agrees_with_summary(results: &std::path::Path) {
         let s = format!("{v:.d$}");
         assert!(answer.contains(&s), "{s} not in {answer}");
     }
+    // The quote says whether it carries the map's uncertainty: on four
+    // loggers the imputation chain can collapse (map SE above the driver's
+    // spread), its pooled values are then left empty and the plug-in
+    // interval is quoted as such.
+    let carries = if e["includes_mapping"].as_bool().unwrap() {
+        "which includes the uncertainty"
+    } else {
+        "treating the driver&#39;s values as exact"
+    };
     let quote = format!(
-        "a change of {:.dy$} cm (95 % interval {:.dy$} to {:.dy$} cm), which includes the uncertainty",
+        "a change of {:.dy$} cm (95 % interval {:.dy$} to {:.dy$} cm), {carries}",
         num(&e["effect"]),
         num(&e["ci_low"]),
         num(&e["ci_high"])

@@ -102,6 +102,7 @@ fn one_seed(seed: u64) -> Outcome {
             drivers: vec![("cold_hours".into(), sums)],
             excluded: vec![],
             cells: None,
+            paths: None,
         };
         let v = analyse(&data, &spec, &opts).expect("fit");
         let d = v.drivers.iter().find(|d| d.name == "cold_hours").expect("driver row");

@@ -52,9 +52,7 @@ pub struct SmoothShare {
 /// fewest holding half of its trace), as an `n x K` matrix.
 pub fn leading_eigenvectors(dist: &Distances, params: &CovParams) -> Option<Mat<f64>> {
     let n = dist.len();
-    let r = Mat::from_fn(n, n, |i, j| {
-        if i == j { 1.0 } else { params.family.correlation(dist.get(i, j), params.range) }
-    });
+    let r = dist.correlation_lower(params.family, params.range);
     let eig = r.self_adjoint_eigen(Side::Lower).ok()?;
     let lambda: Vec<f64> = eig.S().column_vector().iter().copied().collect();
     let mut order: Vec<usize> = (0..n).collect();

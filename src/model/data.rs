@@ -7,8 +7,10 @@ use crate::io::error::closest;
 use crate::io::layout::{Pots, load_pots};
 use crate::io::study::Study;
 use crate::io::table::{Table, is_missing};
+use crate::spatial::averaged::PathShares;
 use crate::spatial::correlation::Family;
 use crate::spatial::geometry::DISTANCE_PREFIX;
+use crate::spatial::likelihood::Distances;
 use serde::Deserialize;
 use std::path::{Path, PathBuf};
 
@@ -320,9 +322,22 @@ pub struct ModelData {
     /// Declared lattice cells `(row, column)` of the analysed pots
     /// (`[pots] lattice_row`, `lattice_column`; 0-based), `None` when not declared.
     pub cells: Option<(Vec<usize>, Vec<usize>)>,
+    /// Pots that move (`[pots] moves`): the positions held and each analysed
+    /// pot's time shares of them over its growth window, aligned with `pots`;
+    /// `None` for pots that stand still (their positions are `x`, `y`).
+    pub paths: Option<PathShares>,
 }
 
 impl ModelData {
+    /// What the residual correlation is computed over: the pots' positions,
+    /// or for pots that move their paths (`W R W'`, docs/spatial.md).
+    pub fn distances(&self) -> std::result::Result<Distances, crate::spatial::likelihood::LikelihoodError> {
+        match &self.paths {
+            Some(p) => Ok(Distances::Averaged(p.clone())),
+            None => Distances::from_coords(&self.x, &self.y),
+        }
+    }
+
     /// The lattice of the rows x columns residual model: the declared cells
     /// (renumbered from 0 over the analysed pots) when `[pots]` names them,
     /// else the exact grid of the positions
@@ -440,7 +455,19 @@ pub fn load_model_data(study: &Study, spec: &ModelSpec) -> Result<ModelData> {
     let needs_cov = spec.drivers.iter().any(|d| !pots.table.headers.contains(d));
     let covariates =
         if needs_cov && cov_path.exists() { Some(PotCovariates::read(&cov_path)?) } else { None };
-    assemble(&pots, spec, covariates.as_ref(), &cov_path)
+    let mut data = assemble(&pots, spec, covariates.as_ref(), &cov_path)?;
+    if study.spec.pots.moves.is_some() {
+        let path = study.output_dir().join(crate::spatial::outputs::POT_PATHS_FILE);
+        if !path.exists() {
+            return Err(ModelError::Design {
+                path,
+                message: "the pots move ([pots] moves), but their paths have not been mapped".into(),
+                hint: Some("run `potclim map` first (or `potclim run`)".into()),
+            });
+        }
+        data.paths = Some(read_paths(&path, &data.pots)?);
+    }
+    Ok(data)
 }
 
 /// Build [`ModelData`] from a loaded pot table and the mapped drivers, if
@@ -577,6 +604,64 @@ pub fn assemble(
             .cells
             .as_ref()
             .map(|(r, c)| (keep.iter().map(|&i| r[i]).collect(), keep.iter().map(|&i| c[i]).collect())),
+        paths: None,
+    })
+}
+
+/// The analysed pots' paths from the mapping stage in memory (as `potclim
+/// run` passes them): `all` names the pots of `moved` (pot-table order).
+pub fn paths_in_memory(
+    moved: &crate::spatial::paths::MovedPots,
+    all: &[String],
+    analysed: &[String],
+) -> PathShares {
+    let index: std::collections::HashMap<&str, usize> =
+        all.iter().enumerate().map(|(k, id)| (id.as_str(), k)).collect();
+    let pos = &moved.paths.positions;
+    PathShares {
+        px: pos.x.clone(),
+        py: pos.y.clone(),
+        shares: analysed.iter().map(|id| moved.shares[index[id.as_str()]].clone()).collect(),
+    }
+}
+
+/// The analysed pots' paths read back from `pot_paths.csv` (as the standalone
+/// `potclim fit` and `potclim verdict` do): positions are told apart by their
+/// coordinates, which the file holds in shortest round-trip decimals. A pot
+/// without rows, or shares that do not sum to 1, is an error naming the file.
+pub fn read_paths(path: &Path, analysed: &[String]) -> Result<PathShares> {
+    let t = Table::read(path, b',')?;
+    let pots = t.text("pot")?;
+    let (x, y, share) = (t.numbers("x")?, t.numbers("y")?, t.numbers("time_share")?);
+    let mut px: Vec<f64> = Vec::new();
+    let mut py: Vec<f64> = Vec::new();
+    let mut at: std::collections::HashMap<(u64, u64), usize> = std::collections::HashMap::new();
+    let mut of_pot: std::collections::HashMap<&str, Vec<(usize, f64)>> = std::collections::HashMap::new();
+    for k in 0..pots.len() {
+        let p = *at.entry((x[k].to_bits(), y[k].to_bits())).or_insert_with(|| {
+            px.push(x[k]);
+            py.push(y[k]);
+            px.len() - 1
+        });
+        of_pot.entry(pots[k].trim()).or_default().push((p, share[k]));
+    }
+    let mut shares = Vec::with_capacity(analysed.len());
+    for id in analysed {
+        let Some(w) = of_pot.remove(id.as_str()) else {
+            return Err(ModelError::Design {
+                path: path.to_path_buf(),
+                message: format!("pot `{id}` has no row, so its path is unknown"),
+                hint: Some(
+                    "run `potclim map` again: it writes the paths of every pot of the pot table".into(),
+                ),
+            });
+        };
+        shares.push(w);
+    }
+    PathShares::new(&px, &py, &shares).map_err(|e| ModelError::Design {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+        hint: Some("run `potclim map` again to rewrite the file".into()),
     })
 }
 
@@ -584,7 +669,8 @@ pub fn assemble(
 /// distance covariate `distance_<name>` (metres from each pot to the nearest
 /// point of the opening's segment, `spatial::geometry::distance_to_segment`)
 /// is appended to `spec.drivers` and `data.drivers` unless the study already
-/// lists it. Computed from the analysed pots' positions, so it needs no
+/// lists it. Computed from the analysed pots' positions (for pots that move,
+/// time-averaged over their paths, [`ModelData::paths`]), so it needs no
 /// mapping stage. Returns the names added.
 pub fn add_opening_drivers(study: &Study, spec: &mut ModelSpec, data: &mut ModelData) -> Vec<String> {
     let mut added = Vec::new();
@@ -593,12 +679,14 @@ pub fn add_opening_drivers(study: &Study, spec: &mut ModelSpec, data: &mut Model
         if spec.drivers.contains(&name) || data.drivers.iter().any(|(d, _)| *d == name) {
             continue;
         }
-        let d: Vec<f64> = data
-            .x
-            .iter()
-            .zip(&data.y)
-            .map(|(&x, &y)| crate::spatial::geometry::distance_to_segment(x, y, o.from, o.to))
-            .collect();
+        let to = |x: f64, y: f64| crate::spatial::geometry::distance_to_segment(x, y, o.from, o.to);
+        let d: Vec<f64> = match &data.paths {
+            // pots that move: the time-averaged distance (as the mapping stage's)
+            Some(p) => {
+                p.shares.iter().map(|w| w.iter().map(|&(k, s)| s * to(p.px[k], p.py[k])).sum()).collect()
+            }
+            None => data.x.iter().zip(&data.y).map(|(&x, &y)| to(x, y)).collect(),
+        };
         spec.drivers.push(name.clone());
         data.drivers.push((name.clone(), d));
         added.push(name);

@@ -108,6 +108,7 @@ pub(crate) mod testdata {
             drivers: drivers.iter().map(|d| (d.to_string(), nums(d))).collect(),
             excluded: vec![],
             cells: None,
+            paths: None,
         }
     }
 }

@@ -139,20 +139,27 @@ pub fn kenward_roger(
         return Err(err("inconsistent sizes or a non-positive variance"));
     }
     let (family, a, eta) = (params.family, params.range, if nugget { params.eta } else { 0.0 });
-    // R and D = dR/d ln a (zero diagonal for D).
-    let mut r = Mat::<f64>::identity(n, n);
-    let mut d1 = Mat::<f64>::zeros(n, n);
-    for j in 0..n {
-        for i in 0..j {
-            let dij = dist.get(i, j);
-            let rho = family.correlation(dij, a);
-            let dr = dcorrelation_dlog_range(family, dij, a, rho);
-            r[(i, j)] = rho;
-            r[(j, i)] = rho;
-            d1[(i, j)] = dr;
-            d1[(j, i)] = dr;
+    // R and D = dR/d ln a (zero diagonal for D); for pots that move W R W'
+    // and W D W' (full, their diagonals not 1 and 0).
+    let (r, d1) = match dist {
+        Distances::Averaged(s) => (s.structured(family, a), s.structured_derivative(family, a)),
+        _ => {
+            let mut r = Mat::<f64>::identity(n, n);
+            let mut d1 = Mat::<f64>::zeros(n, n);
+            for j in 0..n {
+                for i in 0..j {
+                    let dij = dist.get(i, j);
+                    let rho = family.correlation(dij, a);
+                    let dr = dcorrelation_dlog_range(family, dij, a, rho);
+                    r[(i, j)] = rho;
+                    r[(j, i)] = rho;
+                    d1[(i, j)] = dr;
+                    d1[(j, i)] = dr;
+                }
+            }
+            (r, d1)
         }
-    }
+    };
     // Sigma and its inverse.
     let mut sig = Mat::<f64>::zeros(n, n);
     for j in 0..n {
@@ -276,6 +283,35 @@ mod tests {
     /// the reference's REML estimates, for exponential with and without
     /// nugget and Gaussian with nugget: estimate, plug-in and adjusted SE,
     /// df, scale, p-value, CI and the Satterthwaite df.
+    /// Pots that never move, given as paths (`W = I`): the same adjustment
+    /// as for fixed pots to 1e-10; with moves, the adjusted SE stays above
+    /// the plug-in one and the df positive.
+    #[test]
+    fn kenward_roger_of_paths() {
+        use crate::spatial::averaged::PathShares;
+        let data = model_data("small_sample.csv", "trait", &["line"], &["draught"], Some(("x", "y")), &[]);
+        let spec = DesignSpec {
+            factors: vec!["line".into()],
+            drivers: vec!["draught".into()],
+            ..Default::default()
+        };
+        let design = Design::build(&data, &spec).unwrap();
+        let coef = design.names.iter().position(|c| c == "draught").unwrap();
+        let n = data.x.len();
+        let fixed = Distances::from_coords(&data.x, &data.y).unwrap();
+        let still: Vec<Vec<(usize, f64)>> = (0..n).map(|i| vec![(i, 1.0)]).collect();
+        let paths = Distances::Averaged(PathShares::new(&data.x, &data.y, &still).unwrap());
+        let params = CovParams { family: Family::Exponential, range: 1.5, eta: 0.3 };
+        let kr =
+            |d: &Distances| kenward_roger(d, params, true, 2.0, &design.x, &data.response, coef).unwrap();
+        let (a, b) = (kr(&fixed), kr(&paths));
+        assert_relative_eq!(a.se, b.se, max_relative = 1e-10);
+        assert_relative_eq!(a.df, b.df, max_relative = 1e-10);
+        let moved: Vec<Vec<(usize, f64)>> = (0..n).map(|i| vec![(i, 0.6), ((i + n / 2) % n, 0.4)]).collect();
+        let m = kr(&Distances::Averaged(PathShares::new(&data.x, &data.y, &moved).unwrap()));
+        assert!(m.se >= m.se_plugin && m.df > 0.0 && m.df.is_finite(), "{m:?}");
+    }
+
     #[test]
     fn kenward_roger_matches_the_numpy_reference() {
         let data = model_data("small_sample.csv", "trait", &["line"], &["draught"], Some(("x", "y")), &[]);

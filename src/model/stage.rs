@@ -64,8 +64,10 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
         .map(|&k| anova(&design, y, k))
         .collect::<Result<Vec<_>>>()?;
     let counts = count_tables(&data);
-    let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| {
-        super::error::ModelError::Likelihood { model: "positions".into(), source: e, hint: None }
+    let dist = data.distances().map_err(|e| super::error::ModelError::Likelihood {
+        model: "positions".into(),
+        source: e,
+        hint: None,
     })?;
     let mut notes = Vec::new();
     if !data.excluded.is_empty() {

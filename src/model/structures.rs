@@ -24,6 +24,14 @@ pub fn add_to_grid(
     error_models: &mut Vec<Errors>,
     notes: &mut Vec<String>,
 ) {
+    if data.paths.is_some() && (spec.rows_columns || !spec.directional.is_empty()) {
+        // Their correlation is defined between fixed cells or directions of
+        // fixed pots; along paths it would need W R W' of these structures.
+        notes.push(
+            "rows x columns and direction-dependent errors: not fitted, the pots move ([pots] moves); the isotropic families are fitted along the paths".into(),
+        );
+        return;
+    }
     if spec.rows_columns {
         match data.lattice() {
             Err(e) => notes.push(format!(
@@ -368,6 +376,7 @@ mod tests {
             drivers: vec![("cold".into(), cold)],
             excluded: vec![],
             cells: declared.then_some((rows, cols)),
+            paths: None,
         }
     }
 

@@ -324,6 +324,9 @@ pub fn verdict_in_memory(
     let cov = PotCovariates::from_map(&study.output_dir().join(COVARIATES_FILE), map);
     let mut spec = plan.model.clone();
     let mut data = assemble(&plan.pots, &spec, Some(&cov), &cov.path)?;
+    if let Some(moved) = &map.moves {
+        data.paths = Some(crate::model::data::paths_in_memory(moved, &map.pots, &data.pots));
+    }
     let added = add_opening_drivers(study, &mut spec, &mut data);
     let sensor_values = sensor_values(plan, climate);
     let window_ses = crate::model::data::window_ses(&plan.pots, &data, &cov);

@@ -129,6 +129,20 @@ pub fn climate(ing: &Ingested, climate: &ClimateRun, map: &MapRun) -> ClimateSec
                     value: climate.study.get(k).and_then(|s| s.get(j)).and_then(|w| w.value),
                 })
                 .collect(),
+            checks: map
+                .checks
+                .iter()
+                .filter(|c| c.indicator == col.name)
+                .map(|c| LoggerCheck {
+                    sensor: c.sensor.clone(),
+                    observed: c.observed,
+                    predicted: c.predicted,
+                    se: c.se,
+                    z: c.z(),
+                    flagged: c.flagged(),
+                    nearest_to: c.nearest_to.clone(),
+                })
+                .collect(),
         });
     }
     let days: Vec<String> = climate.calendar.days.iter().map(|d| d.to_string()).collect();

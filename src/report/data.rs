@@ -276,6 +276,31 @@ pub struct IndicatorSurface {
     /// Each logger's own value of the indicator, drawn on the map.
     #[serde(default)]
     pub loggers: Vec<LoggerValue>,
+    /// The map checking itself: each logger left out in turn
+    /// (`mapping_check.csv`); empty when the mapping stage made no check.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub checks: Vec<LoggerCheck>,
+}
+
+/// One logger left out of the map: its own value against the map made
+/// without it ([`crate::spatial::selfcheck::SensorCheck`]).
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+pub struct LoggerCheck {
+    /// Sensor identifier.
+    pub sensor: String,
+    /// The logger's own value over the study period, indicator unit.
+    pub observed: f64,
+    /// The value mapped at its position from the other loggers.
+    pub predicted: f64,
+    /// The standard error the map gives there (`None` without one).
+    pub se: Option<f64>,
+    /// `(predicted - observed) / se`.
+    pub z: Option<f64>,
+    /// `|z| > 2`: the map disagrees with the logger by more than its SE allows.
+    pub flagged: bool,
+    /// The openings this logger is the nearest logger to.
+    #[serde(default)]
+    pub nearest_to: Vec<String>,
 }
 
 /// A mapped value at one position.

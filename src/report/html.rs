@@ -517,6 +517,7 @@ fn section_climate(d: &ReportData, out: &mut String) {
             Err(e) => out.push_str(&figure_html(Err(e), "")),
         }
         out.push_str("</div>\n");
+        super::map_check::render(out, s);
     }
     out.push_str("<h3>Daily series per logger</h3>\n");
     if c.series.is_empty() {

@@ -21,6 +21,7 @@ pub mod data;
 pub mod figures;
 pub mod from_verdict;
 pub mod html;
+pub mod map_check;
 pub mod moves;
 pub mod over_time;
 pub mod over_time_figures;

@@ -142,23 +142,35 @@ pub fn scored(
             "range {range} must be positive and nugget share {eta} in [0, 1)"
         )));
     }
-    // R (strict lower, diagonal 1 implied) and D (strict lower).
-    let mut rho = Mat::<f64>::zeros(n, n);
-    fill_lower_columns(&mut rho, |j, col| {
-        for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
-            *c = family.correlation(dist.get(i, j), range);
+    // R (strict lower, diagonal 1 implied) and D (strict lower); for pots
+    // that move, W R W' and W D W' with their diagonals kept apart
+    // (`diag`: the diagonals of R and D, not 1 and 0).
+    let (rho, dr, diag) = match dist {
+        Distances::Averaged(a) => {
+            let (s, d) = (a.structured(family, range), a.structured_derivative(family, range));
+            let diag: (Vec<f64>, Vec<f64>) = (0..n).map(|i| (s[(i, i)], d[(i, i)])).unzip();
+            (s, d, Some(diag))
         }
-    });
-    let mut dr = Mat::<f64>::zeros(n, n);
-    fill_lower_columns(&mut dr, |j, col| {
-        let rc = rho.col_as_slice(j);
-        for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
-            *c = dcorrelation_dlog_range(family, dist.get(i, j), range, rc[i]);
+        _ => {
+            let mut rho = Mat::<f64>::zeros(n, n);
+            fill_lower_columns(&mut rho, |j, col| {
+                for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
+                    *c = family.correlation(dist.get(i, j), range);
+                }
+            });
+            let mut dr = Mat::<f64>::zeros(n, n);
+            fill_lower_columns(&mut dr, |j, col| {
+                let rc = rho.col_as_slice(j);
+                for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
+                    *c = dcorrelation_dlog_range(family, dist.get(i, j), range, rc[i]);
+                }
+            });
+            (rho, dr, None)
         }
-    });
+    };
     let v = Mat::from_fn(n, n, |i, j| {
         if i == j {
-            1.0
+            diag.as_ref().map_or(1.0, |(s, _)| (1.0 - eta) * s[i] + eta)
         } else if i > j {
             (1.0 - eta) * rho[(i, j)]
         } else {
@@ -187,11 +199,35 @@ pub fn scored(
             tr_r += vc[i] * rc[i];
         }
     }
-    let traces = [2.0 * (1.0 - eta) * tr_d, -2.0 * tr_r];
+    let mut traces = [2.0 * (1.0 - eta) * tr_d, -2.0 * tr_r];
+    if let Some((s, d)) = &diag {
+        // the diagonals of V_l = (1 - eta) D and V_e = I - R
+        for i in 0..n {
+            traces[0] += (1.0 - eta) * vinv[(i, i)] * d[i];
+            traces[1] += vinv[(i, i)] * (1.0 - s[i]);
+        }
+    }
+    // V_l c and V_e c
+    let vl_mul = |c: &[f64]| -> Vec<f64> {
+        let mut out = sym_offdiag_mul(&dr, c);
+        if let Some((_, d)) = &diag {
+            for i in 0..n {
+                out[i] += d[i] * c[i];
+            }
+        }
+        out.into_iter().map(|v| (1.0 - eta) * v).collect()
+    };
+    let ve_mul = |c: &[f64]| -> Vec<f64> {
+        let mut out: Vec<f64> = sym_offdiag_mul(&rho, c).into_iter().map(|v| -v).collect();
+        if let Some((s, _)) = &diag {
+            for i in 0..n {
+                out[i] += (1.0 - s[i]) * c[i];
+            }
+        }
+        out
+    };
     // a_k = V_k u
-    let a_l: Vec<f64> = sym_offdiag_mul(&dr, &u).into_iter().map(|v| (1.0 - eta) * v).collect();
-    let a_e: Vec<f64> = sym_offdiag_mul(&rho, &u).into_iter().map(|v| -v).collect();
-    let a = [a_l, a_e];
+    let a = [vl_mul(&u), ve_mul(&u)];
     let q = prof.q;
     let c = match method {
         LikelihoodKind::Ml => n as f64,
@@ -208,12 +244,8 @@ pub fn scored(
         solve_upper_triangular_in_place(l.transpose(), wm.as_mut(), faer::Par::Seq);
         let cols: Vec<&[f64]> = (0..p).map(|j| wm.col_as_slice(j)).collect();
         // V_l W and V_e W column by column
-        let vl_w: Vec<Vec<f64>> = cols
-            .iter()
-            .map(|c| sym_offdiag_mul(&dr, c).into_iter().map(|v| (1.0 - eta) * v).collect())
-            .collect();
-        let ve_w: Vec<Vec<f64>> =
-            cols.iter().map(|c| sym_offdiag_mul(&rho, c).into_iter().map(|v| -v).collect()).collect();
+        let vl_w: Vec<Vec<f64>> = cols.iter().map(|c| vl_mul(c)).collect();
+        let ve_w: Vec<Vec<f64>> = cols.iter().map(|c| ve_mul(c)).collect();
         for (k, vk_w) in [vl_w, ve_w].iter().enumerate() {
             let mut t = 0.0;
             for (i, ci) in cols.iter().enumerate() {
@@ -876,6 +908,73 @@ mod tests {
                 );
                 assert!((s.prof.loglik - ll(lr, eta)).abs() < 1e-12 * s.prof.loglik.abs());
                 assert!(s.info[0][0] > 0.0 && s.info[1][1] > 0.0);
+            }
+        }
+    }
+
+    /// Pots that move: 48 pots, each half its window at its own place and
+    /// the rest at two others (so `W R W'` has a diagonal below 1).
+    fn moving(n: usize) -> (Distances, Vec<Vec<f64>>, Vec<f64>) {
+        let (dist, xs, z) = layout(n);
+        let (x, y) = dist.coords().unwrap();
+        let shares: Vec<Vec<(usize, f64)>> =
+            (0..n).map(|i| vec![(i, 0.5), ((i + 8) % n, 0.3), ((i + 17) % n, 0.2)]).collect();
+        let a = crate::spatial::averaged::PathShares::new(x, y, &shares).unwrap();
+        (Distances::Averaged(a), xs, z)
+    }
+
+    /// The scores of pots that move (`V_l` and `V_e` with their diagonals)
+    /// equal central differences of the profiled likelihood, ML and REML.
+    #[test]
+    fn scores_of_pots_that_move_match_differences() {
+        let (dist, xs, z) = moving(48);
+        for family in [Family::Exponential, Family::Gaussian, Family::Matern { nu: 1.5 }] {
+            for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
+                let (lr, eta) = (0.9f64.ln(), 0.2);
+                let s = scored(&dist, &CovParams { family, range: lr.exp(), eta }, &xs, &z, method).unwrap();
+                let ll = |lr: f64, eta: f64| {
+                    profiled(&dist, &CovParams { family, range: lr.exp(), eta }, &xs, &z, method)
+                        .unwrap()
+                        .loglik
+                };
+                let h = 1e-5;
+                let g = [
+                    (ll(lr + h, eta) - ll(lr - h, eta)) / (2.0 * h),
+                    (ll(lr, eta + h) - ll(lr, eta - h)) / (2.0 * h),
+                ];
+                for (k, (a, b)) in s.grad.iter().zip(g).enumerate() {
+                    assert!(
+                        (a - b).abs() < 1e-5 * (1.0 + b.abs()),
+                        "{family} {method:?} score {k}: {a} vs {b}"
+                    );
+                }
+                assert!((s.prof.loglik - ll(lr, eta)).abs() < 1e-12 * s.prof.loglik.abs());
+            }
+        }
+    }
+
+    /// The Newton search on pots that move reaches the maximum that the
+    /// derivative-free simplex of `likelihood::maximise_by` finds on the same
+    /// likelihood (within 1e-6), with and without a nugget.
+    #[test]
+    fn newton_on_pots_that_move_finds_the_simplex_maximum() {
+        use crate::spatial::likelihood::{maximise_by, profiled};
+        let (dist, xs, z) = moving(48);
+        for nugget in [false, true] {
+            let opts = SearchOptions { nugget, ..SearchOptions::default() };
+            for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
+                let (newton, _) =
+                    maximise_shared(&dist, Family::Exponential, &[xs.as_slice()], &z, method, &opts);
+                let newton = newton.into_iter().next().unwrap().unwrap();
+                let simplex =
+                    maximise_by(&dist, Family::Exponential, &opts, |p| profiled(&dist, p, &xs, &z, method))
+                        .unwrap();
+                assert!(
+                    newton.best.loglik > simplex.best.loglik - 1e-6,
+                    "nugget {nugget} {method:?}: Newton {} vs simplex {}",
+                    newton.best.loglik,
+                    simplex.best.loglik
+                );
             }
         }
     }

@@ -21,49 +21,177 @@
 //! Checked against a direct numpy computation of `W R W'`
 //! (`tests/reference/averaged.py`, fixture `tests/reference/fixtures/averaged.json`).
 
-use super::covariance::CovParams;
-use super::likelihood::{LikelihoodError, LikelihoodKind, Profiled, profiled_with_factor};
+use super::correlation::Family;
+use super::covariance::{CovParams, dcorrelation_dlog_range};
+use super::likelihood::{Distances, LikelihoodError, LikelihoodKind, Profiled};
 use faer::Mat;
 
 /// Per pot, its `(position, time share)` pairs; the shares of a pot sum to 1.
 pub type Shares = [Vec<(usize, f64)>];
 
+/// Pots that move as the residual model sees them: every position ever held
+/// (metres) and each pot's time shares of the positions (the rows of `W`).
+/// Carried by [`Distances::Averaged`], so every fit, search, bootstrap and
+/// small-sample correction of fixed pots runs on them unchanged.
+#[derive(Clone, Debug, PartialEq)]
+pub struct PathShares {
+    /// Easting of each position.
+    pub px: Vec<f64>,
+    /// Northing of each position.
+    pub py: Vec<f64>,
+    /// Per pot, its `(position, time share)` pairs.
+    pub shares: Vec<Vec<(usize, f64)>>,
+}
+
+impl PathShares {
+    /// Checked: finite positions, and each pot's shares non-negative, naming
+    /// known positions and summing to 1 (within 1e-9).
+    pub fn new(px: &[f64], py: &[f64], shares: &Shares) -> Result<PathShares, LikelihoodError> {
+        if px.len() != py.len() || px.iter().chain(py).any(|v| !v.is_finite()) {
+            return Err(LikelihoodError::Invalid(
+                "the positions of pots that move must be pairs of finite coordinates".into(),
+            ));
+        }
+        if let Some((i, w)) = shares.iter().enumerate().find(|(_, w)| {
+            let total: f64 = w.iter().map(|s| s.1).sum();
+            w.iter().any(|&(p, s)| p >= px.len() || !(s.is_finite() && s >= 0.0))
+                || (total - 1.0).abs() > 1e-9
+        }) {
+            return Err(LikelihoodError::Invalid(format!(
+                "the time shares of pot {i} ({w:?}) must be non-negative, name known positions and sum to 1"
+            )));
+        }
+        Ok(PathShares { px: px.to_vec(), py: py.to_vec(), shares: shares.to_vec() })
+    }
+
+    /// Number of pots.
+    pub fn len(&self) -> usize {
+        self.shares.len()
+    }
+
+    /// True without pots.
+    pub fn is_empty(&self) -> bool {
+        self.shares.is_empty()
+    }
+
+    /// The distances between the positions.
+    pub fn positions(&self) -> Distances {
+        Distances::Coords { x: self.px.clone(), y: self.py.clone() }
+    }
+
+    /// `W M W'` (full, both triangles) for an `m x m` symmetric matrix `M`
+    /// over the positions given by its entries `f(p, q)` (`f` is called for
+    /// `q <= p` only). Cost `m^2/2` calls, `O(n m k + n^2 k)` flops with `k`
+    /// positions per pot.
+    fn sandwich(&self, f: impl Fn(usize, usize) -> f64) -> Mat<f64> {
+        let m = self.px.len();
+        let n = self.shares.len();
+        let mut r = Mat::<f64>::zeros(m, m);
+        for q in 0..m {
+            for p in q..m {
+                let v = f(p, q);
+                r[(p, q)] = v;
+                r[(q, p)] = v;
+            }
+        }
+        // A = M W' (m x n): column i is sum_p w_ip M[:, p].
+        let mut a = Mat::<f64>::zeros(m, n);
+        for (i, w) in self.shares.iter().enumerate() {
+            for &(p, s) in w {
+                for q in 0..m {
+                    a[(q, i)] += s * r[(q, p)];
+                }
+            }
+        }
+        let mut out = Mat::<f64>::zeros(n, n);
+        for j in 0..n {
+            for i in j..n {
+                let v: f64 = self.shares[i].iter().map(|&(p, s)| s * a[(p, j)]).sum();
+                out[(i, j)] = v;
+                out[(j, i)] = v;
+            }
+        }
+        out
+    }
+
+    fn distance(&self, p: usize, q: usize) -> f64 {
+        super::geometry::distance(self.px[p], self.py[p], self.px[q], self.py[q])
+    }
+
+    /// `W R W'` of the family at `range` (full): the pots' structured
+    /// correlation, below 1 on the diagonal for a pot that moved.
+    pub fn structured(&self, family: Family, range: f64) -> Mat<f64> {
+        self.sandwich(|p, q| if p == q { 1.0 } else { family.correlation(self.distance(p, q), range) })
+    }
+
+    /// `W D W'` (full), `D = dR/d ln range` between the positions (zero on
+    /// the diagonal, [`dcorrelation_dlog_range`]).
+    pub fn structured_derivative(&self, family: Family, range: f64) -> Mat<f64> {
+        self.sandwich(|p, q| {
+            if p == q {
+                0.0
+            } else {
+                let d = self.distance(p, q);
+                dcorrelation_dlog_range(family, d, range, family.correlation(d, range))
+            }
+        })
+    }
+
+    /// `V = (1 - eta) W R W' + eta I` (full).
+    pub fn correlation(&self, params: &CovParams) -> Mat<f64> {
+        let mut v = self.structured(params.family, params.range);
+        let n = v.nrows();
+        for j in 0..n {
+            for i in 0..n {
+                v[(i, j)] *= 1.0 - params.eta;
+            }
+            v[(j, j)] += params.eta;
+        }
+        v
+    }
+
+    /// The time-share-weighted mean distance `sum_pq w_ip w_jq d_pq` between
+    /// pots `i` and `j` (for display; the correlation is [`Self::structured`]).
+    pub fn mean_distance(&self, i: usize, j: usize) -> f64 {
+        let mut s = 0.0;
+        for &(p, a) in &self.shares[i] {
+            for &(q, b) in &self.shares[j] {
+                s += a * b * self.distance(p, q);
+            }
+        }
+        s
+    }
+
+    /// Pairs `(i, j)`, `i < j`, of pots with the same shares of the same
+    /// positions: their rows of `W R W'` are equal, so `V` is singular
+    /// without a nugget.
+    pub fn identical(&self) -> Vec<(usize, usize)> {
+        let key: Vec<Vec<(usize, u64)>> = self
+            .shares
+            .iter()
+            .map(|w| {
+                let mut k: Vec<(usize, u64)> =
+                    w.iter().filter(|s| s.1 > 0.0).map(|&(p, s)| (p, s.to_bits())).collect();
+                k.sort_unstable();
+                k
+            })
+            .collect();
+        let mut out = Vec::new();
+        for j in 0..key.len() {
+            for i in 0..j {
+                if key[i] == key[j] {
+                    out.push((i, j));
+                }
+            }
+        }
+        out
+    }
+}
+
 /// The position-averaged correlation `V = (1 - eta) W R W' + eta I` of the
 /// pots, full (both triangles), for positions at `(px, py)` metres.
 pub fn averaged_correlation(params: &CovParams, px: &[f64], py: &[f64], shares: &Shares) -> Mat<f64> {
-    let m = px.len();
-    let n = shares.len();
-    // R, full.
-    let mut r = Mat::<f64>::zeros(m, m);
-    for q in 0..m {
-        r[(q, q)] = 1.0;
-        for p in q + 1..m {
-            let d = (px[p] - px[q]).hypot(py[p] - py[q]);
-            let v = params.family.correlation(d, params.range);
-            r[(p, q)] = v;
-            r[(q, p)] = v;
-        }
-    }
-    // A = R W' (m x n): column i is sum_p w_ip R[:, p].
-    let mut a = Mat::<f64>::zeros(m, n);
-    for (i, w) in shares.iter().enumerate() {
-        for &(p, s) in w {
-            for q in 0..m {
-                a[(q, i)] += s * r[(q, p)];
-            }
-        }
-    }
-    // V = (1 - eta) W A + eta I.
-    let mut v = Mat::<f64>::zeros(n, n);
-    for j in 0..n {
-        for i in j..n {
-            let wra: f64 = shares[i].iter().map(|&(p, s)| s * a[(p, j)]).sum();
-            let x = (1.0 - params.eta) * wra + if i == j { params.eta } else { 0.0 };
-            v[(i, j)] = x;
-            v[(j, i)] = x;
-        }
-    }
-    v
+    PathShares { px: px.to_vec(), py: py.to_vec(), shares: shares.to_vec() }.correlation(params)
 }
 
 /// The lower Cholesky factor of [`averaged_correlation`], with the errors of
@@ -74,16 +202,7 @@ pub fn averaged_cholesky(
     py: &[f64],
     shares: &Shares,
 ) -> Result<Mat<f64>, LikelihoodError> {
-    super::likelihood::check_params(params)?;
-    if let Some((i, w)) = shares.iter().enumerate().find(|(_, w)| {
-        let total: f64 = w.iter().map(|s| s.1).sum();
-        w.iter().any(|&(p, s)| p >= px.len() || !(s.is_finite() && s >= 0.0)) || (total - 1.0).abs() > 1e-9
-    }) {
-        return Err(LikelihoodError::Invalid(format!(
-            "the time shares of pot {i} ({w:?}) must be non-negative, name known positions and sum to 1"
-        )));
-    }
-    super::likelihood::factor_correlation(averaged_correlation(params, px, py, shares), params)
+    super::likelihood::cholesky(&Distances::Averaged(PathShares::new(px, py, shares)?), params)
 }
 
 /// The profiled ML or REML log-likelihood of pots that move at `params`
@@ -96,16 +215,8 @@ pub fn profiled_averaged(
     y: &[f64],
     method: LikelihoodKind,
 ) -> Result<Profiled, LikelihoodError> {
-    if shares.len() != y.len() || x.iter().any(|c| c.len() != y.len()) {
-        return Err(LikelihoodError::Invalid(format!(
-            "{} pots with time shares, {} responses, columns of {:?} values",
-            shares.len(),
-            y.len(),
-            x.iter().map(Vec::len).collect::<Vec<_>>()
-        )));
-    }
-    let l = averaged_cholesky(params, px, py, shares)?;
-    profiled_with_factor(l.as_ref(), params, x, y, method)
+    let dist = Distances::Averaged(PathShares::new(px, py, shares)?);
+    super::likelihood::profiled(&dist, params, x, y, method)
 }
 
 #[cfg(test)]
@@ -228,6 +339,39 @@ mod tests {
         .unwrap();
         assert!((a.best.loglik - b.best.loglik).abs() < 1e-9, "{} vs {}", a.best.loglik, b.best.loglik);
         assert!((a.best.params.range - b.best.params.range).abs() < 1e-6 * a.best.params.range);
+    }
+
+    /// `W D W'` is the derivative of `W R W'` in the log range (central
+    /// differences, step 1e-6) for each differentiable family.
+    #[test]
+    fn structured_derivative_is_the_derivative() {
+        let a = PathShares::new(
+            &[0.0, 1.0, 2.5, 0.4],
+            &[0.0, 0.5, 0.2, 2.0],
+            &[vec![(0, 0.5), (1, 0.5)], vec![(1, 0.2), (2, 0.3), (3, 0.5)], vec![(3, 1.0)]],
+        )
+        .unwrap();
+        for family in [Family::Exponential, Family::Gaussian, Family::Matern { nu: 2.5 }] {
+            let lr = 1.2f64.ln();
+            let h = 1e-6;
+            let (up, down) = (a.structured(family, (lr + h).exp()), a.structured(family, (lr - h).exp()));
+            let d = a.structured_derivative(family, lr.exp());
+            for i in 0..3 {
+                for j in 0..3 {
+                    let fd = (up[(i, j)] - down[(i, j)]) / (2.0 * h);
+                    assert!((d[(i, j)] - fd).abs() < 1e-7, "{family} [{i},{j}] {} vs {fd}", d[(i, j)]);
+                }
+            }
+        }
+        // the diagonal of a pot that moved is below 1; two pots with equal
+        // shares are the only identical pair
+        let s = a.structured(Family::Exponential, 1.0);
+        assert!(s[(0, 0)] < 1.0 && s[(2, 2)] == 1.0);
+        let twins =
+            PathShares::new(&[0.0, 1.0], &[0.0, 0.0], &[vec![(0, 0.5), (1, 0.5)], vec![(1, 0.5), (0, 0.5)]])
+                .unwrap();
+        assert_eq!(twins.identical(), vec![(0, 1)]);
+        assert!(a.identical().is_empty());
     }
 
     /// Two pots and two positions by hand: pot a spends 3/4 of its window at

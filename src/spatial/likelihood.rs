@@ -98,7 +98,9 @@ pub fn aic(loglik: f64, k: usize) -> f64 {
 }
 
 /// Distances between `n` observations: computed from planar coordinates on
-/// the fly, or given as a full symmetric matrix.
+/// the fly, or given as a full symmetric matrix; or, for pots that move, the
+/// positions they held and their time shares, whose correlation is
+/// `W R W'` ([`super::averaged`]) rather than a function of one distance.
 #[derive(Clone, Debug)]
 pub enum Distances {
     /// Planar coordinates in metres; distances are Euclidean.
@@ -115,6 +117,9 @@ pub enum Distances {
         /// `n * n` distances.
         d: Vec<f64>,
     },
+    /// Pots that move: their correlation is the time-share-weighted average
+    /// of the correlations between the positions they held.
+    Averaged(super::averaged::PathShares),
 }
 
 impl Distances {
@@ -156,7 +161,7 @@ impl Distances {
     pub fn coords(&self) -> Option<(&[f64], &[f64])> {
         match self {
             Distances::Coords { x, y } => Some((x, y)),
-            Distances::Matrix { .. } => None,
+            Distances::Matrix { .. } | Distances::Averaged(_) => None,
         }
     }
 
@@ -165,6 +170,7 @@ impl Distances {
         match self {
             Distances::Coords { x, .. } => x.len(),
             Distances::Matrix { n, .. } => *n,
+            Distances::Averaged(a) => a.len(),
         }
     }
 
@@ -173,17 +179,38 @@ impl Distances {
         self.len() == 0
     }
 
-    /// Distance between observations `i` and `j`.
+    /// Distance between observations `i` and `j` (for pots that move, the
+    /// time-share-weighted mean distance, [`super::averaged::PathShares::mean_distance`]:
+    /// their correlation is not a function of it, see [`Distances::correlation_lower`]).
     #[inline]
     pub fn get(&self, i: usize, j: usize) -> f64 {
         match self {
             Distances::Coords { x, y } => super::geometry::distance(x[i], y[i], x[j], y[j]),
             Distances::Matrix { n, d } => d[i * n + j],
+            Distances::Averaged(a) => a.mean_distance(i, j),
         }
     }
 
-    /// Pairs `(i, j)`, `i < j`, at distance zero (coincident positions).
+    /// The structured correlation `R` of the observations for `family` at
+    /// `range` (no nugget): `rho(d_ij)` with 1 on the diagonal, or `W R W'`
+    /// for pots that move (below 1 on the diagonal of a pot that moved).
+    /// The lower triangle with the diagonal is filled (the upper may be
+    /// zero): what [`crate::spatial::factor::Cholesky`] and faer's
+    /// eigendecompositions with `Side::Lower` read.
+    pub fn correlation_lower(&self, family: Family, range: f64) -> Mat<f64> {
+        match self {
+            Distances::Averaged(a) => a.structured(family, range),
+            _ => Kernel::correlation(&CovParams { family, range, eta: 0.0 })
+                .fill_lower(self.len(), |i, j| self.get(i, j)),
+        }
+    }
+
+    /// Pairs `(i, j)`, `i < j`, at distance zero (coincident positions; for
+    /// pots that move, the same time shares of the same positions).
     pub fn coincident(&self) -> Vec<(usize, usize)> {
+        if let Distances::Averaged(a) = self {
+            return a.identical();
+        }
         let n = self.len();
         let mut out = Vec::new();
         for j in 0..n {
@@ -197,8 +224,13 @@ impl Distances {
     }
 
     /// Sorted positive pairwise distances; for more than 200,000 pairs a
-    /// deterministic systematic subsample of about 200,000 pairs.
+    /// deterministic systematic subsample of about 200,000 pairs. For pots
+    /// that move, those between the positions they held (the range is a
+    /// property of the field over the positions).
     pub fn positive_sample(&self) -> Vec<f64> {
+        if let Distances::Averaged(a) = self {
+            return a.positions().positive_sample();
+        }
         let n = self.len();
         let pairs = n * n.saturating_sub(1) / 2;
         let stride = pairs.div_ceil(200_000).max(1);
@@ -225,7 +257,10 @@ impl Distances {
 /// Cost: `n^2/2` correlation evaluations and `n^3/3` flops.
 pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, LikelihoodError> {
     check_params(params)?;
-    let v = Kernel::correlation(params).fill_lower(dist.len(), |i, j| dist.get(i, j));
+    let v = match dist {
+        Distances::Averaged(a) => a.correlation(params),
+        _ => Kernel::correlation(params).fill_lower(dist.len(), |i, j| dist.get(i, j)),
+    };
     factor_correlation(v, params)
 }
 

@@ -24,7 +24,6 @@
 //! [`crate::spatial::ascent::maximise_profiled`], is measured beside it).
 
 use super::correlation::Family;
-use super::covariance::Kernel;
 use super::factor::{CORRELATION_MIN_DIAGONAL, FactorError};
 use super::likelihood::{CovParams, Distances, LikelihoodError, LikelihoodKind, Profiled, profile_whitened};
 use super::optimise::brent_min;
@@ -57,9 +56,7 @@ impl Spectral {
         if !(range.is_finite() && range > 0.0) {
             return Err(LikelihoodError::Invalid(format!("range {range} must be positive")));
         }
-        let n = y.len();
-        let r =
-            Mat::from_fn(n, n, |i, j| if i == j { 1.0 } else { family.correlation(dist.get(i, j), range) });
+        let r = dist.correlation_lower(family, range);
         let eig = r
             .self_adjoint_eigen(Side::Lower)
             .map_err(|e| LikelihoodError::Invalid(format!("eigendecomposition failed: {e:?}")))?;
@@ -151,8 +148,7 @@ impl Tridiagonal {
             return Ok(Tridiagonal { family, range, diag: Vec::new(), sub: Vec::new(), rotated });
         }
         let par = if super::factor::is_sequential() { Par::Seq } else { Par::rayon(0) };
-        let mut a =
-            Kernel::correlation(&CovParams { family, range, eta: 0.0 }).fill_lower(n, |i, j| dist.get(i, j));
+        let mut a = dist.correlation_lower(family, range);
         super::factor::count_factorisation();
         let bs = faer::linalg::qr::no_pivoting::factor::recommended_block_size::<f64>(n, n);
         let mut householder = Mat::<f64>::zeros(bs, n.saturating_sub(1));

@@ -305,7 +305,7 @@ pub fn analyse_with(
     let n = data.response.len();
     // Build the full design first: collinear drivers are refused here with their names.
     let full = design_for(data, spec, &spec.drivers)?;
-    let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| lerr("positions", e))?;
+    let dist = data.distances().map_err(|e| lerr("positions", e))?;
     let mut notes = Vec::new();
     let mut shared = Vec::new();
     let grid = fit_grid(data, spec, &full, &dist, &mut notes, &mut shared, progress)?;

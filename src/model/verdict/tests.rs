@@ -97,6 +97,7 @@ fn simulate(truth: Truth, seed: u64) -> ModelData {
         drivers: vec![("cold".into(), cold)],
         excluded: vec![],
         cells: None,
+        paths: None,
     }
 }
 
@@ -189,6 +190,7 @@ fn balanced(unbalanced: bool) -> ModelData {
         drivers: vec![],
         excluded: vec![],
         cells: None,
+        paths: None,
     }
 }
 

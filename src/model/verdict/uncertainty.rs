@@ -12,7 +12,7 @@ use crate::model::error::{ModelError, Result};
 use crate::model::gls::{Errors, fit_correlated_from};
 use crate::model::imputation::{BURN_IN, COLLAPSE_SHARE, Conditioning, Imputer, THIN, TraitParams, collapse};
 use crate::spatial::geometry::Points;
-use crate::spatial::likelihood::{Distances, LikelihoodKind};
+use crate::spatial::likelihood::LikelihoodKind;
 use crate::spatial::variogram::{Bins, Estimator, VariogramModel, experimental};
 
 /// The sensor-level indicator file written by the climate stage, inside the output folder.
@@ -295,7 +295,7 @@ pub fn impute_and_pool(
     let rms_se_kriging = ((0..n).map(|i| sk.error_cov[(i, i)].max(0.0)).sum::<f64>() / n as f64).sqrt();
 
     // The chosen model on the map: start of the chain and its correlation matrix.
-    let dist = Distances::from_coords(&data.x, &data.y).map_err(|e| lerr("positions", e))?;
+    let dist = data.distances().map_err(|e| lerr("positions", e))?;
     let design = design_for(data, spec, &shape.0)?;
     let plug = fit(&design, data, &dist, shape.1, LikelihoodKind::Reml)?;
     let c = plug
