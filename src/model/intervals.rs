@@ -183,6 +183,58 @@ fn pot_windows(pots: &Pots, climate: &ClimateRun) -> Vec<Range<usize>> {
         .collect()
 }
 
+/// Per pot (pot-table order) and interval, the days that count (the
+/// interval's days within the pot's own window); `None` when the pot was
+/// not scored over the interval.
+fn interval_spans(
+    climate: &ClimateRun,
+    pots: &Pots,
+    intervals: &[Interval],
+) -> Vec<Vec<Option<Range<usize>>>> {
+    let cal = &climate.calendar;
+    let own = pot_windows(pots, climate);
+    (0..pots.ids.len())
+        .map(|p| {
+            intervals
+                .iter()
+                .map(|iv| {
+                    let s = iv.spans.iter().find(|s| s.pot == p)?;
+                    Some(clip(&cal.window_days(s.start, s.end), &own[p]))
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// For pots that move, each interval's paths: `shares[k][p]`, pot `p`'s time
+/// shares of the positions over the days of interval `k` that count (the
+/// rows of `W` in `W R W'` for that interval's fits, docs/spatial.md);
+/// `None` when no pot moves.
+#[allow(clippy::type_complexity)]
+pub fn interval_shares(
+    climate: &ClimateRun,
+    map: &MapRun,
+    pots: &Pots,
+    intervals: &[Interval],
+) -> Option<Vec<Vec<Vec<(usize, f64)>>>> {
+    let moved = map.moves.as_ref()?;
+    let cal = &climate.calendar;
+    let spans = interval_spans(climate, pots, intervals);
+    Some(
+        (0..intervals.len())
+            .map(|k| {
+                (0..pots.ids.len())
+                    .map(|p| {
+                        let days = spans[p][k].clone().unwrap_or(0..0);
+                        let steps = crate::spatial::paths::window_steps(cal, days);
+                        moved.paths.shares(p, steps, cal.n_steps)
+                    })
+                    .collect()
+            })
+            .collect(),
+    )
+}
+
 /// Every indicator at every pot over every interval:
 /// `values[i][k][p]` for indicator `i`, interval `k`, pot `p` (pot-table order),
 /// with the days counted, `days[k][p]`. Pots not scored in an interval get `None`.
@@ -196,19 +248,7 @@ pub fn interval_indicators(
     let cal = &climate.calendar;
     let n_steps = cal.n_steps;
     let n_pots = map.pots.len();
-    let own = pot_windows(pots, climate);
-    // Per pot: the day ranges of its intervals (None when not scored).
-    let spans: Vec<Vec<Option<Range<usize>>>> = (0..n_pots)
-        .map(|p| {
-            intervals
-                .iter()
-                .map(|iv| {
-                    let s = iv.spans.iter().find(|s| s.pot == p)?;
-                    Some(clip(&cal.window_days(s.start, s.end), &own[p]))
-                })
-                .collect()
-        })
-        .collect();
+    let spans = interval_spans(climate, pots, intervals);
     let days = (0..intervals.len())
         .map(|k| (0..n_pots).map(|p| spans[p][k].as_ref().map_or(0, |r| r.len())).collect())
         .collect();
@@ -329,6 +369,7 @@ pub fn analyse_scores(
         ));
     }
     let (ind_values, days) = interval_indicators(climate, map, pots, &intervals);
+    let shares = interval_shares(climate, map, pots, &intervals);
     let ind_names: Vec<String> = climate.config.indicators.iter().map(|i| i.name.clone()).collect();
     // Each indicator's largest spread over the pots of one interval: the
     // scale against which an interval's spread counts as numerically nil.
@@ -363,7 +404,12 @@ pub fn analyse_scores(
             }
             let cols: Vec<(String, Vec<Option<f64>>)> =
                 (0..ind_names.len()).map(|i| (ind_names[i].clone(), ind_values[i][k].clone())).collect();
-            let (row, eff) = one_interval(study, pots, spec, opts, trait_name, iv, &growth, cols, &spreads);
+            let paths = shares.as_ref().zip(map.moves.as_ref()).map(|(w, m)| {
+                let pos = &m.paths.positions;
+                (pos.x.as_slice(), pos.y.as_slice(), w[k].as_slice())
+            });
+            let (row, eff) =
+                one_interval(study, pots, spec, opts, trait_name, iv, &growth, cols, &spreads, paths);
             rows.push(row);
             effects.extend(eff);
         }
@@ -399,6 +445,10 @@ pub fn analyse_scores(
     }
 }
 
+/// Pots that move over one interval: the positions' x and y, and each pot's
+/// time shares of them over the interval (pot-table order).
+type IntervalPaths<'a> = (&'a [f64], &'a [f64], &'a [Vec<(usize, f64)>]);
+
 /// The comparison grid on one interval's growth.
 #[allow(clippy::too_many_arguments)]
 fn one_interval(
@@ -411,6 +461,7 @@ fn one_interval(
     growth: &[Option<f64>],
     cols: Vec<(String, Vec<Option<f64>>)>,
     spreads: &[(String, f64)],
+    paths: Option<IntervalPaths>,
 ) -> (IntervalRow, Vec<EffectRow>) {
     let analysed: Vec<usize> = (0..growth.len()).filter(|&p| growth[p].is_some()).collect();
     let mut row = IntervalRow {
@@ -460,6 +511,16 @@ fn one_interval(
         columns: cols,
     };
     let result = assemble(&ipots, &ispec, Some(&cov), &cov.path).and_then(|mut data| {
+        if let Some((px, py, w)) = paths {
+            // Pots that move: the residual correlation over this interval's paths.
+            let index: std::collections::HashMap<&str, usize> =
+                pots.ids.iter().enumerate().map(|(k, id)| (id.as_str(), k)).collect();
+            data.paths = Some(crate::spatial::averaged::PathShares {
+                px: px.to_vec(),
+                py: py.to_vec(),
+                shares: data.pots.iter().map(|id| w[index[id.as_str()]].clone()).collect(),
+            });
+        }
         add_opening_drivers(study, &mut ispec, &mut data);
         data.drivers.retain(|(d, _)| !d.starts_with(DISTANCE_PREFIX) || ispec.drivers.contains(d));
         analyse(&data, &ispec, opts)

@@ -88,11 +88,10 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
         let nuggets: &[bool] = if spec.nugget { &[false, true] } else { &[false] };
         for &nugget in nuggets {
             let label = Errors::Correlated { family, nugget }.label();
-            if !nugget && !dist.coincident().is_empty() && spec.nugget {
-                // without a nugget the covariance is singular; the nugget fit below still runs
+            if let (false, Some(why), true) = (nugget, dist.singular_without_nugget(), spec.nugget) {
+                // without a nugget the covariance can be singular; the nugget fit below still runs
                 notes.push(format!(
-                    "{label}: not fitted, {} pair(s) of pots share a position and the correlation matrix is singular without a nugget; fitted with a nugget instead",
-                    dist.coincident().len()
+                    "{label}: not fitted, {why} without a nugget; fitted with a nugget instead"
                 ));
                 continue;
             }

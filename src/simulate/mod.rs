@@ -182,6 +182,30 @@ fn statistic(ind: &scenario::IndicatorSpec) -> Statistic {
 
 /// The true values of `ind`'s variable at the reference instants `idx` at
 /// a point with components `c`, and which of them its period keeps.
+/// The indicator's series at the instants `idx` along a pot's path:
+/// `at(i)` is the pot whose own position the pot held at instant `i`; runs
+/// of instants at one position are evaluated together, in time order.
+fn path_series(
+    sc: &Scenario,
+    reference: &climate::Reference,
+    pot_c: &[Components],
+    ind: &scenario::IndicatorSpec,
+    idx: &[usize],
+    at: impl Fn(usize) -> usize,
+) -> (Vec<f64>, Vec<bool>) {
+    let (mut values, mut keep) = (Vec::with_capacity(idx.len()), Vec::with_capacity(idx.len()));
+    let mut a = 0;
+    while a < idx.len() {
+        let h = at(idx[a]);
+        let b = (a..idx.len()).find(|&b| at(idx[b]) != h).unwrap_or(idx.len());
+        let (v, kp) = indicator_series(sc, reference, &pot_c[h], ind, &idx[a..b]);
+        values.extend(v);
+        keep.extend(kp);
+        a = b;
+    }
+    (values, keep)
+}
+
 fn indicator_series(
     sc: &Scenario,
     reference: &climate::Reference,
@@ -303,17 +327,7 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
             .collect();
         let n_days = (p.scored - p.sown).num_days() as f64;
         for (k, ind) in inds.iter().enumerate() {
-            // Runs of instants at one position, in time order.
-            let (mut values, mut keep) = (Vec::with_capacity(idx.len()), Vec::with_capacity(idx.len()));
-            let mut a = 0;
-            while a < idx.len() {
-                let h = holder(pi, idx[a]);
-                let b = (a..idx.len()).find(|&b| holder(pi, idx[b]) != h).unwrap_or(idx.len());
-                let (v, kp) = indicator_series(sc, &reference, &pot_c[h], ind, &idx[a..b]);
-                values.extend(v);
-                keep.extend(kp);
-                a = b;
-            }
+            let (values, keep) = path_series(sc, &reference, &pot_c, ind, &idx, |i| holder(pi, i));
             ind_vals[pi][k] = climate::evaluate(statistic(ind), &values, &keep, sc.step_minutes, n_days)
                 .ok_or_else(|| {
                     sc.bad(
@@ -466,7 +480,7 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
     let mut toml = study_toml(sc, seed);
     let mut scorings = Vec::new();
     if let Some(sg) = &sc.scorings {
-        let (f, section) = scorings::generate(sc, sg, &pots, &pot_c, &reference, seed)?;
+        let (f, section) = scorings::generate(sc, sg, &pots, &pot_c, &reference, &holder, seed)?;
         toml.push_str(&section);
         scorings = f;
     }

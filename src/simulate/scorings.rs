@@ -220,12 +220,15 @@ pub fn check_scorings(
 }
 
 /// The driver's value at every pot on every local day from the first scoring
-/// date to the day before the last: `daily[p][d]`. Cost O(pots · instants).
+/// date to the day before the last, along the pot's path (`holder(p, i)`: the
+/// pot whose own position pot `p` held at instant `i`; `p` itself for pots
+/// that stay): `daily[p][d]`. Cost O(pots · instants).
 fn daily_driver(
     sc: &Scenario,
     ind: &IndicatorSpec,
     reference: &Reference,
     pot_c: &[Components],
+    holder: &dyn Fn(usize, usize) -> usize,
     first: NaiveDate,
     n_days: usize,
 ) -> Vec<Vec<f64>> {
@@ -244,13 +247,12 @@ fn daily_driver(
         }
     }
     let stat = super::statistic(ind);
-    pot_c
-        .iter()
-        .map(|c| {
+    (0..pot_c.len())
+        .map(|p| {
             by_day
                 .iter()
                 .map(|idx| {
-                    let (values, keep) = super::indicator_series(sc, reference, c, ind, idx);
+                    let (values, keep) = super::path_series(sc, reference, pot_c, ind, idx, |i| holder(p, i));
                     climate::evaluate(stat, &values, &keep, sc.step_minutes, 1.0).unwrap_or(0.0)
                 })
                 .collect()
@@ -270,6 +272,7 @@ pub fn generate(
     pots: &[Pot],
     pot_c: &[Components],
     reference: &Reference,
+    holder: &dyn Fn(usize, usize) -> usize,
     seed: u64,
 ) -> Result<(Files, String)> {
     let spec = sc.spec.trait_.scorings.as_ref().expect("checked scorings come from the spec");
@@ -286,7 +289,7 @@ pub fn generate(
     let first = s.dates[0];
     let days: Vec<usize> = s.dates.iter().map(|d| (*d - first).num_days() as usize).collect();
     let n_days = *days.last().expect("two or more dates");
-    let daily = daily_driver(sc, ind, reference, pot_c, first, n_days);
+    let daily = daily_driver(sc, ind, reference, pot_c, holder, first, n_days);
     let model = GrowthModel {
         initial: spec.initial,
         base_rate: spec.base_rate,

@@ -205,6 +205,22 @@ impl Distances {
         }
     }
 
+    /// Why the correlation matrix can be singular without a nugget, when it
+    /// can: pots at one position, or pots that move (pots that take turns at
+    /// the same places have linearly dependent rows of `W`, so `W R W'` is
+    /// singular; a nugget, each pot's own part, keeps `V` positive definite).
+    pub fn singular_without_nugget(&self) -> Option<String> {
+        if matches!(self, Distances::Averaged(_)) {
+            return Some(
+                "the pots move, and the correlation along paths that share places can be singular".into(),
+            );
+        }
+        let k = self.coincident().len();
+        (k > 0).then(|| {
+            format!("{k} pair(s) of pots share a position and the correlation matrix would be singular")
+        })
+    }
+
     /// Pairs `(i, j)`, `i < j`, at distance zero (coincident positions; for
     /// pots that move, the same time shares of the same positions).
     pub fn coincident(&self) -> Vec<(usize, usize)> {

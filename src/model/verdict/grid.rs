@@ -130,13 +130,11 @@ pub(super) fn fit_grid(
         driver_sets.push(climate);
     }
     let mut error_models = vec![Errors::Independent];
-    let coincident = !dist.coincident().is_empty();
+    let singular = dist.singular_without_nugget();
+    let coincident = singular.is_some();
     for &family in &spec.correlations {
-        if coincident && spec.nugget {
-            notes.push(format!(
-                "{}: not fitted without a nugget, pots share positions (the correlation matrix would be singular)",
-                family.name()
-            ));
+        if let (Some(why), true) = (&singular, spec.nugget) {
+            notes.push(format!("{}: not fitted without a nugget, {why}", family.name()));
         } else {
             error_models.push(Errors::Correlated { family, nugget: false });
         }
