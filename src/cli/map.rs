@@ -20,8 +20,9 @@ mapped series over its own growth window ([pots].start/end).
 
 Reads <output>/readings.parquet (run `potclim ingest STUDY` first). Writes pot_covariates.csv, \
 variograms.csv, variogram_fits.csv, variogram_ml_fits.csv, mapping_cv.csv, mapping_check.csv and mapping_se.csv into the output folder; with a move table ([pots] moves) every position \
-ever held is mapped, each pot's indicators come from its series along its path, and pot_paths.csv gives each \
-pot's time share of each position.";
+ever held is mapped, each pot's indicators come from its series along its path, pot_paths.csv gives each \
+pot's time share of each position, pot_paths_exposure.csv each pot's drivers along its path and at its starting \
+position, and paths_spread.csv the spread of each driver across the pots with and without the moves.";
 
 /// Arguments of `potclim map`.
 #[derive(Debug, Args)]

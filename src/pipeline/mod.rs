@@ -403,6 +403,7 @@ fn report_data(
             &spec.factors,
         )),
         climate: Some(crate::report::assemble::climate(ing, climate, map)),
+        moves: map.moves.as_ref().map(|m| crate::report::moves::from_map(map, m)),
         variograms: crate::report::assemble::variograms(map),
         ..Default::default()
     };

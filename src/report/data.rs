@@ -33,6 +33,11 @@ pub struct ReportData {
     /// Section 3: mapped indicators, sensor series, quality control.
     #[serde(default)]
     pub climate: Option<ClimateSection>,
+    /// Pots that move: where the pots stood and whether the moves evened the
+    /// drivers out (only with a move table; absent from `report_data.json`
+    /// otherwise).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub moves: Option<super::moves::MovesSection>,
     /// Section 4: experimental variograms with fitted curves (indicators and
     /// model residuals); empty when no variogram was computed.
     #[serde(default)]

@@ -170,9 +170,25 @@ pub struct MapSpec<'a> {
     pub wide: bool,
 }
 
+/// The plotting area of a floor-plan map, x and y in metres.
+pub(super) type MapChart<'a, 'b> = ChartContext<
+    'a,
+    SVGBackend<'b>,
+    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+>;
+
 /// A floor-plan map: points coloured by value, sensors and openings marked,
 /// and a colour bar. Axes are x and y in metres.
 pub fn value_map(spec: &MapSpec<'_>) -> Result<Figure, FigureError> {
+    value_map_with(spec, |_| Ok(()))
+}
+
+/// [`value_map`] with `overlay` drawn over the points, under the openings
+/// and sensors.
+pub(super) fn value_map_with(
+    spec: &MapSpec<'_>,
+    overlay: impl FnOnce(&mut MapChart<'_, '_>) -> DrawResult,
+) -> Result<Figure, FigureError> {
     if spec.points.is_empty() {
         return Err(FigureError::Empty { id: spec.id.clone(), message: "no positions".into() });
     }
@@ -215,6 +231,7 @@ pub fn value_map(spec: &MapSpec<'_>) -> Result<Figure, FigureError> {
             Some(v) if v.is_finite() => Circle::new((x, y), radius, rgb(spec.scale.colour(v)).filled()),
             _ => Circle::new((x, y), radius, RGBColor(150, 150, 150).stroke_width(1)),
         }))?;
+        overlay(&mut chart)?;
         for o in spec.openings {
             chart.draw_series(LineSeries::new(
                 [(o.from[0], o.from[1]), (o.to[0], o.to[1])],

@@ -122,6 +122,11 @@ pub(super) fn figure_html(f: Result<Figure, FigureError>, caption: &str) -> Stri
     }
 }
 
+/// The floor plan's compartment, loggers and openings, for a section's maps.
+fn floor(d: &ReportData) -> super::moves::Floor<'_> {
+    super::moves::Floor { extent: extent(d), sensors: sensors(d), openings: openings(d) }
+}
+
 fn extent(d: &ReportData) -> Option<(f64, f64)> {
     d.compartment.map(|c| (c.length, c.width))
 }
@@ -937,17 +942,21 @@ pub fn render_html(d: &ReportData) -> String {
          <title>{} — potclim report</title>\n<style>\n{}</style>\n</head>\n<body>\n<header>\n<h1>{}</h1>\n\
          <p class=\"lead\">Is the spatial pattern of the trait explained by the measured microclimate, by an unmeasured spatial effect, by both, or by neither?</p>\n\
          <nav><ol><li><a href=\"#verdict\">1. Answer</a></li><li><a href=\"#layout\">2. Layout</a></li>\
-         <li><a href=\"#climate\">3. Climate</a></li><li><a href=\"#spatial\">4. Spatial structure</a></li>\
+         <li><a href=\"#climate\">3. Climate</a></li>{}<li><a href=\"#spatial\">4. Spatial structure</a></li>\
          <li><a href=\"#models\">5. Models</a></li><li><a href=\"#means\">6. Adjusted means</a></li>\
          {}<li><a href=\"#provenance\">7. Provenance</a></li></ol></nav>\n</header>\n<main>\n",
         escape(title),
         CSS,
         escape(title),
+        if d.moves.is_some() { "<li><a href=\"#moves\">Pots that moved</a></li>" } else { "" },
         if d.over_time.is_some() { "<li><a href=\"#over-time\">Over time</a></li>" } else { "" }
     );
     section_verdict(d, &mut out);
     section_layout(d, &mut out);
     section_climate(d, &mut out);
+    if let Some(m) = &d.moves {
+        super::moves::section(m, floor(d), &mut out);
+    }
     section_spatial(d, &mut out);
     section_models(d, &mut out);
     section_means(d, &mut out);
@@ -988,6 +997,9 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
         let order = logger_order(c);
         out.extend(c.series.iter().map(|s| figures::daily_series(s, &order)));
     }
+    if let Some(m) = &d.moves {
+        out.extend(super::moves::figures(m, floor(d)).into_iter().map(|(f, _)| f));
+    }
     out.extend(d.variograms.iter().map(figures::variogram));
     if let Some(m) = &d.models {
         let chosen = d.verdict.as_ref().map(|v| v.chosen_model.as_str());
@@ -1021,7 +1033,7 @@ pub fn all_figures(d: &ReportData) -> Vec<Figure> {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::super::sample::sample_report;
     use super::super::xml::check_well_formed;
     use super::*;
@@ -1247,7 +1259,7 @@ mod tests {
 
     /// Replace every inline SVG by a marker naming its size, so the snapshot
     /// pins the page's text and tables; the figures have their own tests.
-    fn strip_svgs(page: &str) -> String {
+    pub(crate) fn strip_svgs(page: &str) -> String {
         let mut out = String::new();
         let mut rest = page;
         while let Some(a) = rest.find("<svg") {
@@ -1273,12 +1285,17 @@ mod tests {
     /// with `UPDATE_SNAPSHOTS=1 cargo test --lib report::html` and review the diff.
     #[test]
     fn snapshot_of_a_small_report() {
-        let page = strip_svgs(&render_html(&small_report()));
-        let path =
-            std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("src/report/snapshots/small_report.html");
+        check_snapshot("small_report.html", &strip_svgs(&render_html(&small_report())));
+    }
+
+    /// Compare `page` with the snapshot `src/report/snapshots/<file>`
+    /// (rewritten first when `UPDATE_SNAPSHOTS` is set), showing the first
+    /// line that differs.
+    pub(crate) fn check_snapshot(file: &str, page: &str) {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("src/report/snapshots").join(file);
         if std::env::var_os("UPDATE_SNAPSHOTS").is_some() {
             std::fs::create_dir_all(path.parent().unwrap()).unwrap();
-            std::fs::write(&path, &page).unwrap();
+            std::fs::write(&path, page).unwrap();
         }
         let want = std::fs::read_to_string(&path).expect("snapshot missing: run with UPDATE_SNAPSHOTS=1");
         if want != page {

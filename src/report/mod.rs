@@ -22,6 +22,7 @@ pub mod figures;
 pub mod from_verdict;
 pub mod html;
 pub mod map_check;
+pub mod moves;
 pub mod over_time;
 pub mod over_time_figures;
 pub mod plan_page;

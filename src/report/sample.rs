@@ -206,6 +206,7 @@ pub fn sample_report() -> ReportData {
     ReportData {
         title: "Basil cultivars under a cooling pad, growth room 3, spring run".into(),
         compartment: Some(CompartmentSize { length: LENGTH, width: WIDTH }),
+        moves: None,
         verdict: Some(VerdictSection {
             word: "covariate".into(),
             reason: "The measured driver `night_cold_hours` explains the spatial pattern: with it in the model, independent errors fit as well as any correlated-error model.".into(),

@@ -19,6 +19,7 @@ pub mod correlation;
 pub mod covariance;
 pub mod drift;
 pub mod error;
+pub mod exposure;
 pub mod factor;
 pub mod geometry;
 pub mod kriging;

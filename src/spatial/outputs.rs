@@ -31,6 +31,10 @@ pub const MAPPING_CHECK_FILE: &str = "mapping_check.csv";
 pub const MAPPING_SE_FILE: &str = "mapping_se.csv";
 /// File name of the time shares of the positions each moving pot held.
 pub const POT_PATHS_FILE: &str = "pot_paths.csv";
+/// File name of each moving pot's drivers along its path and without moves.
+pub const POT_PATHS_EXPOSURE_FILE: &str = "pot_paths_exposure.csv";
+/// File name of each driver's spread across pots with and without moves.
+pub const PATHS_SPREAD_FILE: &str = "paths_spread.csv";
 
 /// One indicator and family with its maximum-likelihood variogram fit
 /// (`None` where the fit failed), as carried by the mapping run.

@@ -38,6 +38,7 @@
 
 use super::config::{MappingConfig, MethodChoice};
 use super::error::SpatialError;
+use super::exposure::PotSeries;
 use super::geometry::{Points, opening_distances, pot_points, sensor_points};
 use super::kriging::{Drift, Interpolator, Spec};
 use super::mapping::{CvScore, ModelChoice, choose, choose_model, loso, map_series, map_summary};
@@ -46,7 +47,7 @@ use super::outputs::{
     VARIOGRAM_FITS_FILE, VARIOGRAM_ML_FITS_FILE, VARIOGRAMS_FILE, mapping_cv_csv, mapping_se_csv,
     pot_covariates_csv, variogram_fits_csv, variogram_ml_fits_csv, variograms_csv,
 };
-use super::paths::Paths;
+use super::paths::{Evened, Paths};
 use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
 use crate::climate::{
@@ -432,6 +433,9 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         }
     }
     let mut variables = Vec::new();
+    // With a move table: each variable's series at the pots' starting
+    // positions (the first `pots` targets), for the drivers without moves.
+    let mut at_start: Vec<MatrixMap> = Vec::new();
     for name in ["temperature", "humidity", "light"] {
         if !needed.contains(&name) {
             continue;
@@ -443,6 +447,10 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         };
         let series = matrix_of(m);
         let mut v = map_variable(name, series, &sensors, targets, &cfg, &openings)?;
+        if moves.is_some() {
+            let first = |m: &DMatrix<f64>| m.columns(0, pots.len()).into_owned();
+            at_start.push((name, first(&v.mapped), v.mapped_se.as_ref().map(first)));
+        }
         if !fixed {
             v.mapped = paths.along(&v.mapped);
             v.mapped_se = v.mapped_se.map(|m| paths.along(&m));
@@ -451,38 +459,14 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
     }
     let get = |name: &str| variables.iter().find(|v| v.name == name);
     let n_steps = climate.calendar.n_steps;
-    let nan = vec![f64::NAN; n_steps];
     let min_cov = climate.config.spec.min_coverage;
+    let along = PotSeries::of(variables.iter().map(|v| (v.name, &v.mapped, v.mapped_se.as_ref())));
     let checked = self_check(climate, &sensors, &openings, &variables, min_cov);
     let nodes = super::window_se::normal_nodes(super::window_se::NODES);
     let mut columns = Vec::new();
     for (i, ind) in indicators.iter().enumerate() {
         let how = ind.statistic.combine();
-        let mut value = vec![f64::NAN; pots.len()];
-        let mut valid = vec![0usize; pots.len()];
-        for j in 0..pots.len() {
-            let col = |name: &str| -> &[f64] {
-                match get(name) {
-                    // DMatrix storage is column-major: column j is one contiguous slice.
-                    Some(v) => &v.mapped.as_slice()[j * n_steps..(j + 1) * n_steps],
-                    None => &nan,
-                }
-            };
-            let (t, h, l) = (col("temperature"), col("humidity"), col("light"));
-            let series = LocationSeries { temperature: t, humidity: h, light: l };
-            // Threshold statistics of temperature as expectations over each
-            // step's kriged distribution (`crate::climate::exceedance`).
-            let t_se = get("temperature")
-                .and_then(|v| v.mapped_se.as_ref())
-                .map(|m| &m.as_slice()[j * n_steps..(j + 1) * n_steps]);
-            let daily: Vec<Option<f64>> = daily_values_expected(ind, cal, &series, t_se, min_cov)
-                .into_iter()
-                .map(|d| d.value)
-                .collect();
-            let w = combine_window(&daily, windows[j].clone(), how);
-            value[j] = w.value.unwrap_or(f64::NAN);
-            valid[j] = w.valid_days;
-        }
+        let (value, valid) = along.window_values(ind, cal, &windows, min_cov);
         // Standard errors: from the per-step kriging errors with their
         // calibrated persistence (`super::window_se`), else from the
         // indicator's study-period sensor values kriged.
@@ -554,6 +538,34 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         };
         columns.push(MappedColumn { name: ind.name.clone(), value, se });
     }
+    // Did the moves even the drivers out? Each driver at the pots' starting
+    // positions over the same windows, by the same code, beside its value
+    // along the paths.
+    let moved = moves.map(|m| {
+        let mut moved = super::paths::MovedPots::new(
+            paths,
+            shares,
+            m.shared,
+            &windows.iter().map(|w| super::paths::window_steps(cal, w.clone())).collect::<Vec<_>>(),
+            cal.step_ms as f64 / 86_400_000.0,
+        );
+        let start = PotSeries::of(at_start.iter().map(|(n, m, se)| (*n, m, se.as_ref())));
+        let mut drivers: Vec<Evened> = indicators
+            .iter()
+            .zip(&columns)
+            .map(|(ind, c)| {
+                let unmoved = start.window_values(ind, cal, &windows, min_cov).0;
+                Evened::new(&ind.name, ind.unit(), c.value.clone(), unmoved)
+            })
+            .collect();
+        for ((name, path), (_, unmoved)) in
+            distances.iter().zip(opening_distances(&study.spec.openings, &pots))
+        {
+            drivers.push(Evened::new(&format!("distance_{name}"), "m", path.clone(), unmoved));
+        }
+        moved.drivers = drivers;
+        moved
+    });
     let checks = checked.checks;
     let window_se = checked.calibration;
     let mut ml_fits = Vec::new();
@@ -578,9 +590,13 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         distances,
         checks,
         window_se,
-        moves: moves.map(|m| super::paths::MovedPots { paths, shares, shared: m.shared }),
+        moves: moved,
     })
 }
+
+/// A variable mapped at many locations: its name, series and per-step SEs
+/// (steps x locations).
+type MatrixMap = (&'static str, DMatrix<f64>, Option<DMatrix<f64>>);
 
 /// A variable mapped at one location: its name, series and per-step SE.
 type LocationMap = (&'static str, Vec<f64>, Option<Vec<f64>>);
@@ -868,7 +884,8 @@ fn cal_end(cal: &crate::climate::Calendar) -> chrono::NaiveDateTime {
 
 /// Write `pot_covariates.csv`, `variograms.csv`, `variogram_fits.csv`,
 /// `mapping_cv.csv`, `variogram_ml_fits.csv` and `mapping_check.csv` (and,
-/// for pots that move, `pot_paths.csv`) into the study's output folder (atomically).
+/// for pots that move, `pot_paths.csv`, `pot_paths_exposure.csv` and
+/// `paths_spread.csv`) into the study's output folder (atomically).
 pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapError> {
     let mut w = StageWriter::new(&study.output_dir(), "map")?;
     w.write(POT_COVARIATES_FILE, &pot_covariates_csv(&run.pots, &run.indicators, &run.distances)?)?;
@@ -897,6 +914,8 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
     w.write(MAPPING_SE_FILE, &mapping_se_csv(&run.indicators, &run.window_se))?;
     if let Some(m) = &run.moves {
         w.write(super::outputs::POT_PATHS_FILE, &m.csv(&run.pots))?;
+        w.write(super::outputs::POT_PATHS_EXPOSURE_FILE, &m.exposure_csv(&run.pots))?;
+        w.write(super::outputs::PATHS_SPREAD_FILE, &m.spread_csv())?;
     }
     Ok(w.commit()?)
 }
