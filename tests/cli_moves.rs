@@ -184,10 +184,6 @@ fn a_rotation_through_every_lane_evens_the_spread() {
     std::fs::write(dir.path().join("lanes.toml"), &lanes).unwrap();
     potclim(&["simulate", "lanes.toml", "--out", "study", "--seed", "3"], dir.path());
     let study = dir.path().join("study");
-    // ingest and map only: this is the mapping stage's question (every pot's
-    // time shares here are a cyclic window of 13 of the 130 places, so the
-    // rows of W are linearly dependent and W R W' without a nugget is
-    // singular; the verdict stage is not this test's subject)
     potclim(&["ingest", "study.toml"], &study);
     let said = potclim(&["map", "study.toml"], &study);
     assert!(said.contains("night_cold_hours: SD across pots "), "{said}");
@@ -200,6 +196,19 @@ fn a_rotation_through_every_lane_evens_the_spread() {
     let ratio = |d: &str| numbers(&spread, "sd_ratio")[d];
     assert!(ratio("night_cold_hours") < 0.2, "{}", ratio("night_cold_hours"));
     assert!(ratio("distance_door") < 0.05, "{}", ratio("distance_door"));
+    // Every pot's time shares are a cyclic window of 13 of the 130 places, so
+    // the rows of W are linearly dependent and W R W' is singular without a
+    // nugget: the verdict fits correlated errors with a nugget only, and says so.
+    let said = potclim(&["verdict", "study.toml"], &study);
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(study.join("output/summary.json")).unwrap()).unwrap();
+    let notes = summary.to_string();
+    assert!(notes.contains("not fitted without a nugget, the pots move"), "{said}");
+    let comparison = std::fs::read_to_string(study.join("output/comparison.csv")).unwrap();
+    assert!(
+        comparison.contains("| exponential+nugget,") && !comparison.contains("| exponential,"),
+        "{comparison}"
+    );
 }
 
 /// The report's section "Where the pots stood": the time-share map, the
