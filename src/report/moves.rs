@@ -13,7 +13,7 @@
 
 use super::colour::Scale;
 use super::figures::{self, Figure, FigureError, MapSpec};
-use super::html::{escape, figure_html, opt, sig};
+use super::html::{decimals_for, escape, figure_html, fixed, opt, sig};
 use crate::spatial::paths::{MovedPots, Spread};
 use crate::spatial::stage::MapRun;
 use serde::{Deserialize, Serialize};
@@ -318,7 +318,12 @@ pub fn section(s: &MovesSection, floor: Floor<'_>, out: &mut String) {
         for r in &s.spread {
             let p = &r.spread;
             let range = |lo: Option<f64>, hi: Option<f64>| match (lo, hi) {
-                (Some(lo), Some(hi)) => format!("{} to {}", sig(lo, 3), sig(hi, 3)),
+                // both ends with three significant digits of the width (a
+                // numerically nil end reads 0, not 3e-12)
+                (Some(lo), Some(hi)) => {
+                    let d = decimals_for([hi - lo], 3);
+                    format!("{} to {}", fixed(lo, d), fixed(hi, d))
+                }
                 _ => "–".into(),
             };
             let _ = writeln!(
