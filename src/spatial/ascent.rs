@@ -873,8 +873,31 @@ mod tests {
         (Distances::from_coords(&x, &yy).unwrap(), vec![vec![1.0; n], g, x.clone()], z)
     }
 
-    /// The analytic scores equal central differences of the profiled
-    /// likelihood itself (step 1e-5), every family, ML and REML.
+    /// The analytic scores at `(ln range, eta) = t` equal central differences
+    /// of the profiled likelihood itself (step 1e-5); the evaluation is that
+    /// of `profiled` and the information diagonal positive.
+    fn scores_match_at(dist: &Distances, xs: &[Vec<f64>], z: &[f64], family: Family, t: (f64, f64)) {
+        let (lr, eta) = t;
+        for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
+            let s = scored(dist, &CovParams { family, range: lr.exp(), eta }, xs, z, method).unwrap();
+            let ll = |lr: f64, eta: f64| {
+                profiled(dist, &CovParams { family, range: lr.exp(), eta }, xs, z, method).unwrap().loglik
+            };
+            let h = 1e-5;
+            let g = [
+                (ll(lr + h, eta) - ll(lr - h, eta)) / (2.0 * h),
+                (ll(lr, eta + h) - ll(lr, eta - h)) / (2.0 * h),
+            ];
+            for (k, (a, b)) in s.grad.iter().zip(g).enumerate() {
+                assert!((a - b).abs() < 1e-5 * (1.0 + b.abs()), "{family} {method:?} score {k}: {a} vs {b}");
+            }
+            assert!((s.prof.loglik - ll(lr, eta)).abs() < 1e-12 * s.prof.loglik.abs());
+            assert!(s.info[0][0] > 0.0 && s.info[1][1] > 0.0);
+        }
+    }
+
+    /// The analytic scores equal central differences of the likelihood,
+    /// every family, ML and REML.
     #[test]
     fn scores_match_differences_of_the_likelihood() {
         let (dist, xs, z) = layout(48);
@@ -885,30 +908,7 @@ mod tests {
             Family::Matern { nu: 1.5 },
             Family::Matern { nu: 0.8 },
         ] {
-            for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
-                let (lr, eta) = (0.8f64.ln(), 0.25);
-                let s = scored(&dist, &CovParams { family, range: lr.exp(), eta }, &xs, &z, method).unwrap();
-                let ll = |lr: f64, eta: f64| {
-                    profiled(&dist, &CovParams { family, range: lr.exp(), eta }, &xs, &z, method)
-                        .unwrap()
-                        .loglik
-                };
-                let h = 1e-5;
-                let g0 = (ll(lr + h, eta) - ll(lr - h, eta)) / (2.0 * h);
-                let g1 = (ll(lr, eta + h) - ll(lr, eta - h)) / (2.0 * h);
-                assert!(
-                    (s.grad[0] - g0).abs() < 1e-5 * (1.0 + g0.abs()),
-                    "{family} {method:?}: {} vs {g0}",
-                    s.grad[0]
-                );
-                assert!(
-                    (s.grad[1] - g1).abs() < 1e-5 * (1.0 + g1.abs()),
-                    "{family} {method:?}: {} vs {g1}",
-                    s.grad[1]
-                );
-                assert!((s.prof.loglik - ll(lr, eta)).abs() < 1e-12 * s.prof.loglik.abs());
-                assert!(s.info[0][0] > 0.0 && s.info[1][1] > 0.0);
-            }
+            scores_match_at(&dist, &xs, &z, family, (0.8f64.ln(), 0.25));
         }
     }
 
@@ -929,27 +929,7 @@ mod tests {
     fn scores_of_pots_that_move_match_differences() {
         let (dist, xs, z) = moving(48);
         for family in [Family::Exponential, Family::Gaussian, Family::Matern { nu: 1.5 }] {
-            for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
-                let (lr, eta) = (0.9f64.ln(), 0.2);
-                let s = scored(&dist, &CovParams { family, range: lr.exp(), eta }, &xs, &z, method).unwrap();
-                let ll = |lr: f64, eta: f64| {
-                    profiled(&dist, &CovParams { family, range: lr.exp(), eta }, &xs, &z, method)
-                        .unwrap()
-                        .loglik
-                };
-                let h = 1e-5;
-                let g = [
-                    (ll(lr + h, eta) - ll(lr - h, eta)) / (2.0 * h),
-                    (ll(lr, eta + h) - ll(lr, eta - h)) / (2.0 * h),
-                ];
-                for (k, (a, b)) in s.grad.iter().zip(g).enumerate() {
-                    assert!(
-                        (a - b).abs() < 1e-5 * (1.0 + b.abs()),
-                        "{family} {method:?} score {k}: {a} vs {b}"
-                    );
-                }
-                assert!((s.prof.loglik - ll(lr, eta)).abs() < 1e-12 * s.prof.loglik.abs());
-            }
+            scores_match_at(&dist, &xs, &z, family, (0.9f64.ln(), 0.2));
         }
     }
 
