@@ -1,0 +1,182 @@
+//! What the residual correlation of the observations is computed over: their
+//! pairwise distances (from planar coordinates, or a given matrix), or for
+//! pots that move the positions they held and their time shares
+//! ([`super::averaged`]). Owns the structured correlation matrix `R` of a
+//! family over them, the pairs that make it singular without a nugget, and
+//! the distances that set the search's range bounds.
+
+use super::correlation::Family;
+use super::covariance::{CovParams, Kernel};
+use super::likelihood::LikelihoodError;
+use faer::Mat;
+
+/// Distances between `n` observations: computed from planar coordinates on
+/// the fly, or given as a full symmetric matrix; or, for pots that move, the
+/// positions they held and their time shares, whose correlation is
+/// `W R W'` ([`super::averaged`]) rather than a function of one distance.
+#[derive(Clone, Debug)]
+pub enum Distances {
+    /// Planar coordinates in metres; distances are Euclidean.
+    Coords {
+        /// Easting.
+        x: Vec<f64>,
+        /// Northing.
+        y: Vec<f64>,
+    },
+    /// A full `n x n` symmetric distance matrix, row-major.
+    Matrix {
+        /// Number of observations.
+        n: usize,
+        /// `n * n` distances.
+        d: Vec<f64>,
+    },
+    /// Pots that move: their correlation is the time-share-weighted average
+    /// of the correlations between the positions they held.
+    Averaged(super::averaged::PathShares),
+}
+
+impl Distances {
+    /// Distances from coordinates.
+    pub fn from_coords(x: &[f64], y: &[f64]) -> Result<Distances, LikelihoodError> {
+        if x.len() != y.len() {
+            return Err(LikelihoodError::Invalid("x and y differ in length".into()));
+        }
+        if x.iter().chain(y).any(|v| !v.is_finite()) {
+            return Err(LikelihoodError::Invalid("a coordinate is not finite".into()));
+        }
+        Ok(Distances::Coords { x: x.to_vec(), y: y.to_vec() })
+    }
+
+    /// Distances from a full row-major matrix (checked: square, symmetric,
+    /// zero diagonal, finite and non-negative).
+    pub fn from_matrix(n: usize, d: Vec<f64>) -> Result<Distances, LikelihoodError> {
+        if d.len() != n * n {
+            return Err(LikelihoodError::Invalid(format!(
+                "a {n} x {n} distance matrix needs {} values",
+                n * n
+            )));
+        }
+        for i in 0..n {
+            for j in 0..n {
+                let v = d[i * n + j];
+                if !(v.is_finite() && v >= 0.0)
+                    || (i == j && v != 0.0)
+                    || (v - d[j * n + i]).abs() > 1e-12 * v.max(1.0)
+                {
+                    return Err(LikelihoodError::Invalid(format!("distance [{i}, {j}] = {v} is not valid")));
+                }
+            }
+        }
+        Ok(Distances::Matrix { n, d })
+    }
+
+    /// The planar coordinates, when the distances were made from them.
+    pub fn coords(&self) -> Option<(&[f64], &[f64])> {
+        match self {
+            Distances::Coords { x, y } => Some((x, y)),
+            Distances::Matrix { .. } | Distances::Averaged(_) => None,
+        }
+    }
+
+    /// Number of observations.
+    pub fn len(&self) -> usize {
+        match self {
+            Distances::Coords { x, .. } => x.len(),
+            Distances::Matrix { n, .. } => *n,
+            Distances::Averaged(a) => a.len(),
+        }
+    }
+
+    /// True when there are no observations.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Distance between observations `i` and `j` (for pots that move, the
+    /// time-share-weighted mean distance, [`super::averaged::PathShares::mean_distance`]:
+    /// their correlation is not a function of it, see [`Distances::correlation_lower`]).
+    #[inline]
+    pub fn get(&self, i: usize, j: usize) -> f64 {
+        match self {
+            Distances::Coords { x, y } => super::geometry::distance(x[i], y[i], x[j], y[j]),
+            Distances::Matrix { n, d } => d[i * n + j],
+            Distances::Averaged(a) => a.mean_distance(i, j),
+        }
+    }
+
+    /// The structured correlation `R` of the observations for `family` at
+    /// `range` (no nugget): `rho(d_ij)` with 1 on the diagonal, or `W R W'`
+    /// for pots that move (below 1 on the diagonal of a pot that moved).
+    /// The lower triangle with the diagonal is filled (the upper may be
+    /// zero): what [`crate::spatial::factor::Cholesky`] and faer's
+    /// eigendecompositions with `Side::Lower` read.
+    pub fn correlation_lower(&self, family: Family, range: f64) -> Mat<f64> {
+        match self {
+            Distances::Averaged(a) => a.structured(family, range),
+            _ => Kernel::correlation(&CovParams { family, range, eta: 0.0 })
+                .fill_lower(self.len(), |i, j| self.get(i, j)),
+        }
+    }
+
+    /// Why the correlation matrix can be singular without a nugget, when it
+    /// can: pots at one position, or pots that move (pots that take turns at
+    /// the same places have linearly dependent rows of `W`, so `W R W'` is
+    /// singular; a nugget, each pot's own part, keeps `V` positive definite).
+    pub fn singular_without_nugget(&self) -> Option<String> {
+        if matches!(self, Distances::Averaged(_)) {
+            return Some(
+                "the pots move, and the correlation along paths that share places can be singular".into(),
+            );
+        }
+        let k = self.coincident().len();
+        (k > 0).then(|| {
+            format!("{k} pair(s) of pots share a position and the correlation matrix would be singular")
+        })
+    }
+
+    /// Pairs `(i, j)`, `i < j`, at distance zero (coincident positions; for
+    /// pots that move, the same time shares of the same positions).
+    pub fn coincident(&self) -> Vec<(usize, usize)> {
+        if let Distances::Averaged(a) = self {
+            return a.identical();
+        }
+        let n = self.len();
+        let mut out = Vec::new();
+        for j in 0..n {
+            for i in 0..j {
+                if self.get(i, j) == 0.0 {
+                    out.push((i, j));
+                }
+            }
+        }
+        out
+    }
+
+    /// Sorted positive pairwise distances; for more than 200,000 pairs a
+    /// deterministic systematic subsample of about 200,000 pairs. For pots
+    /// that move, those between the positions they held (the range is a
+    /// property of the field over the positions).
+    pub fn positive_sample(&self) -> Vec<f64> {
+        if let Distances::Averaged(a) = self {
+            return a.positions().positive_sample();
+        }
+        let n = self.len();
+        let pairs = n * n.saturating_sub(1) / 2;
+        let stride = pairs.div_ceil(200_000).max(1);
+        let mut out = Vec::with_capacity(pairs / stride + 1);
+        let mut k = 0usize;
+        for j in 0..n {
+            for i in 0..j {
+                if k.is_multiple_of(stride) {
+                    let d = self.get(i, j);
+                    if d > 0.0 {
+                        out.push(d);
+                    }
+                }
+                k += 1;
+            }
+        }
+        out.sort_by(f64::total_cmp);
+        out
+    }
+}
