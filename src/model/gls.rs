@@ -451,9 +451,15 @@ pub fn fit_correlated(
     nugget: bool,
     method: LikelihoodKind,
 ) -> Result<Fit> {
-    let (mut fits, _) =
+    let (mut fits, (grid_factorisations, grid_seconds)) =
         fit_correlated_shared(&[model.to_string()], &[design], y, dist, pots, family, nugget, method)?;
-    fits.pop().expect("one design, one fit")
+    // one design: the start grid is this fit's own work
+    let mut fit = fits.pop().expect("one design, one fit")?;
+    if let Some(s) = fit.search.as_mut() {
+        s.factorisations += grid_factorisations;
+        s.seconds += grid_seconds;
+    }
+    Ok(fit)
 }
 
 /// Fits of several fixed parts and their shared grid's `(factorisations, seconds)`.

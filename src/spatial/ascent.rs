@@ -52,8 +52,9 @@
 //! and Newton steps from the grid found lower maxima than the simplex on
 //! the demo study (by 0.8 to 1.9 log-likelihood units). Its fits keep the
 //! derivative-free search of [`crate::spatial::likelihood::maximise`]
-//! (starts from the grid, Nelder–Mead with a restart); every other family
-//! takes the Newton path.
+//! (starts from its grid, Nelder–Mead, the best end restarted), with the
+//! factorisations of that grid shared by the fixed parts as above; every
+//! other family takes the Newton path.
 //!
 //! # The profile route (measured, not used by the fits)
 //! [`maximise_profiled`] ([`super::profile_route`]) removes the nugget share from the search: at each
@@ -79,7 +80,7 @@ use super::covariance::{dcorrelation_dlog_range, fill_lower_columns};
 use super::factor::{CORRELATION_MIN_DIAGONAL, Cholesky, factorisations_on_this_thread};
 use super::likelihood::{
     CovParams, Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchBox, SearchOptions,
-    check_sizes, profile_whitened, stack_xy,
+    check_sizes, profile_whitened, simplex_search, simplex_starts, stack_xy,
 };
 use super::optimise::{Budget, Simplex, Stop, nelder_mead};
 use faer::Mat;
@@ -464,11 +465,31 @@ pub fn maximise_shared(
         Err(e) => return failed(designs.len(), e),
     };
     if family == Family::Spherical {
-        // derivative-free: see the module docs
-        return (
-            designs.iter().map(|x| super::likelihood::maximise(dist, family, x, y, method, opts)).collect(),
-            0,
-        );
+        // derivative-free (see the module docs), from starts whose
+        // factorisations every design shares
+        let f0 = factorisations_on_this_thread();
+        let mut pre: Vec<Vec<Result<Profiled, LikelihoodError>>> = vec![Vec::new(); designs.len()];
+        for t in simplex_starts(&sb, family) {
+            let params = CovParams { family, range: t[0].exp(), eta: t.get(1).copied().unwrap_or(0.0) };
+            let l = super::likelihood::cholesky(dist, &params);
+            for (d, x) in designs.iter().enumerate() {
+                pre[d].push(match &l {
+                    Ok(l) => super::likelihood::profiled_with_factor(l.as_ref(), &params, x, y, method),
+                    Err(e) => Err(e.clone()),
+                });
+            }
+        }
+        let shared = (factorisations_on_this_thread() - f0) as usize;
+        let results = designs
+            .iter()
+            .zip(pre)
+            .map(|(x, pre)| {
+                simplex_search(dist, family, opts, Some(pre), |p| {
+                    super::likelihood::profiled(dist, p, x, y, method)
+                })
+            })
+            .collect();
+        return (results, shared);
     }
     let dim = sb.dim;
     let eta_max = sb.hi[1];
