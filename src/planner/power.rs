@@ -9,7 +9,8 @@
 //!   for a non-zero effect, the **false-alarm rate** for a zero effect;
 //! - the share whose 95 % CI of the driver's effect covers the true effect
 //!   (the CI with the mapped driver's uncertainty where the verdict computed
-//!   it, else the plug-in CI);
+//!   it, else the small-sample (Kenward-Roger) CI of the driver's row where
+//!   its model has correlated errors, else the plug-in CI);
 //! - each with a 95 % Monte Carlo interval by Wilson's score method (Wilson
 //!   1927, *JASA* 22:209-212; recommended by Newcombe 1998, *Statistics in
 //!   Medicine* 17:857-872), since a share of a few dozen studies is itself
@@ -230,7 +231,10 @@ fn one_study(
             d.ci_high_with_mapping_uncertainty,
         ) {
             (Some(e), Some(lo), Some(hi)) => (e, lo, hi),
-            _ => (d.estimate, d.ci_low, d.ci_high),
+            _ => match (d.ci_low_small_sample, d.ci_high_small_sample) {
+                (Some(lo), Some(hi)) => (d.estimate, lo, hi),
+                _ => (d.estimate, d.ci_low, d.ci_high),
+            },
         }
     });
     Ok((v.verdict.clone(), v.best_model.clone(), found, est))

@@ -368,6 +368,7 @@ pub fn analyse_with(
             d.ci_high_small_sample = Some(t.ci.1);
         }
     }
+    ranking_small_sample(data, spec, &grid, &dist, &mut drivers)?;
     let smooth_shares = smooth_shares_of(data, spec, &grid, &chosen, &verdict.chosen, &dist)?;
     for sh in &smooth_shares {
         if let Some(d) = drivers.iter_mut().find(|d| d.name == sh.driver) {
@@ -481,6 +482,64 @@ fn fit_time(model: &str, f: &Fit) -> FitTime {
         factorisations,
         seconds,
     }
+}
+
+/// The small-sample interval of the ranking rows that come from a model with
+/// correlated errors and were not tested by the calibration (drivers outside
+/// the chosen model): their plug-in interval treats the estimated range and
+/// nugget as known, which is what Kenward & Roger (1997) correct. The row's
+/// model is refitted by REML from its ML parameters
+/// ([`super::gls::fit_correlated_from`]) and the driver's coefficient tested
+/// as in the calibration (first-order Kenward-Roger,
+/// [`crate::model::small_sample::kenward_roger`]). A row whose refit or
+/// correction fails keeps only the plug-in interval.
+fn ranking_small_sample(
+    data: &ModelData,
+    spec: &ModelSpec,
+    grid: &[GridFit],
+    dist: &Distances,
+    drivers: &mut [DriverSummary],
+) -> Result<()> {
+    for d in drivers.iter_mut().filter(|d| d.se_small_sample.is_none()) {
+        let Some(g) = grid.iter().find(|g| self::grid::model_name(&g.drivers, &g.errors) == d.source_model)
+        else {
+            continue;
+        };
+        let (super::gls::Errors::Correlated { nugget, .. }, Some(cov)) = (g.errors, g.fit.covariance) else {
+            continue;
+        };
+        let design = design_for(data, spec, &g.drivers)?;
+        let Ok(reml) = super::gls::fit_correlated_from(
+            &d.source_model,
+            &design,
+            &data.response,
+            dist,
+            cov.params,
+            nugget,
+            LikelihoodKind::Reml,
+        ) else {
+            continue;
+        };
+        let (Some(c), Some(rcov)) = (reml.names.iter().position(|x| *x == d.name), reml.covariance) else {
+            continue;
+        };
+        if let Ok(kr) = crate::model::small_sample::kenward_roger(
+            dist,
+            rcov.params,
+            nugget,
+            reml.sigma2,
+            &design.x,
+            &data.response,
+            c,
+        ) {
+            d.se_small_sample = Some(kr.se);
+            d.df_small_sample = Some(kr.df);
+            d.p_small_sample = Some(kr.p_value);
+            d.ci_low_small_sample = Some(kr.ci.0);
+            d.ci_high_small_sample = Some(kr.ci.1);
+        }
+    }
+    Ok(())
 }
 
 #[cfg(test)]
