@@ -40,7 +40,8 @@ fn plots(n: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<Vec<f64>>, Vec<f64>) {
     let x: Vec<f64> = (0..n).map(|i| (i % 50) as f64 * 1.0).collect();
     let y: Vec<f64> = (0..n).map(|i| (i / 50) as f64 * 1.6).collect();
     let d1: Vec<f64> = (0..n).map(|i| 0.05 * x[i] + (y[i] / 8.0).sin()).collect();
-    let d2: Vec<f64> = (0..n).map(|i| (x[i] / 10.0).cos() + 0.02 * y[i] + 0.3 * (i % 7) as f64 / 7.0).collect();
+    let d2: Vec<f64> =
+        (0..n).map(|i| (x[i] / 10.0).cos() + 0.02 * y[i] + 0.3 * (i % 7) as f64 / 7.0).collect();
     let dist = Distances::from_coords(&x, &y).unwrap();
     let truth = CovParams { family: Family::Matern { nu: 1.5 }, range: 4.0, eta: 0.25 };
     let l = cholesky(&dist, &truth).unwrap();
@@ -113,6 +114,7 @@ fn main() {
         let (x, y, cols, z) = plots(n, 20261204 + n as u64);
         let dist = Distances::from_coords(&x, &y).unwrap();
         let mut conds = Vec::new();
+        // speed first: the exact fits below take minutes at n = 4,000
         for &m in &MS {
             let t = Instant::now();
             let c = Conditioning::new(&x, &y, m).unwrap();
@@ -120,44 +122,6 @@ fn main() {
             conds.push(c);
         }
         let default = Conditioning::new(&x, &y, DEFAULT_NEIGHBOURS).unwrap();
-        println!();
-        println!("n = {n}, ML; at the exact optimum: |ll diff| and largest driver |beta diff| / exact SE per m");
-        print!("{:<24} {:>11} {:>8} {:>6}", "family", "exact ll", "range", "eta");
-        for m in MS {
-            print!(" {:>9} {:>7}", format!("ll m={m}"), "b/SE");
-        }
-        println!(" {:>12} {:>9}", "own max diff", "own b/SE");
-        for family in [Family::Exponential, Family::Spherical, Family::Gaussian, Family::Matern { nu: 1.5 }] {
-            for nugget in [false, true] {
-                let label = format!("{}{}", family.name(), if nugget { "+nugget" } else { "" });
-                let opts = SearchOptions { nugget, ..Default::default() };
-                let (mut r, _) = maximise_shared(&dist, family, &[cols.as_slice()], &z, method, &opts);
-                let exact = match r.pop().unwrap() {
-                    Ok(m) => m,
-                    Err(e) => {
-                        println!("{label:<24} exact fit failed: {e}");
-                        continue;
-                    }
-                };
-                let p = exact.best.params;
-                let ex = profiled(&dist, &p, &cols, &z, method).unwrap();
-                print!("{label:<24} {:>11.3} {:>8.3} {:>6.3}", ex.loglik, p.range, p.eta);
-                for c in &conds {
-                    match profiled_vecchia(c, &p, &cols, &z, method) {
-                        Ok(v) => print!(" {:>9.4} {:>7.4}", (v.loglik - ex.loglik).abs(), coef_gap(&v.beta, &ex)),
-                        Err(_) => print!(" {:>9} {:>7}", "fails", "-"),
-                    }
-                }
-                match maximise_vecchia(&dist, &default, family, &cols, &z, method, &opts) {
-                    Ok(v) => println!(
-                        " {:>12.4} {:>9.4}",
-                        (v.best.loglik - exact.best.loglik).abs(),
-                        coef_gap(&v.best.beta, &ex)
-                    ),
-                    Err(e) => println!(" own fit failed: {e}"),
-                }
-            }
-        }
         // speed at one parameter point
         let p = CovParams { family: Family::Exponential, range: 4.0, eta: 0.25 };
         let reps = 3;
@@ -190,6 +154,48 @@ fn main() {
                 v / dense,
                 numpy.map(|t| format!("{:.4}", v / t)).unwrap_or_else(|| "-".into())
             );
+        }
+        println!();
+        println!(
+            "n = {n}, ML; at the exact optimum: |ll diff| and largest driver |beta diff| / exact SE per m"
+        );
+        print!("{:<24} {:>11} {:>8} {:>6}", "family", "exact ll", "range", "eta");
+        for m in MS {
+            print!(" {:>9} {:>7}", format!("ll m={m}"), "b/SE");
+        }
+        println!(" {:>12} {:>9}", "own max diff", "own b/SE");
+        for family in [Family::Exponential, Family::Spherical, Family::Gaussian, Family::Matern { nu: 1.5 }] {
+            for nugget in [false, true] {
+                let label = format!("{}{}", family.name(), if nugget { "+nugget" } else { "" });
+                let opts = SearchOptions { nugget, ..Default::default() };
+                let (mut r, _) = maximise_shared(&dist, family, &[cols.as_slice()], &z, method, &opts);
+                let exact = match r.pop().unwrap() {
+                    Ok(m) => m,
+                    Err(e) => {
+                        println!("{label:<24} exact fit failed: {e}");
+                        continue;
+                    }
+                };
+                let p = exact.best.params;
+                let ex = profiled(&dist, &p, &cols, &z, method).unwrap();
+                print!("{label:<24} {:>11.3} {:>8.3} {:>6.3}", ex.loglik, p.range, p.eta);
+                for c in &conds {
+                    match profiled_vecchia(c, &p, &cols, &z, method) {
+                        Ok(v) => {
+                            print!(" {:>9.4} {:>7.4}", (v.loglik - ex.loglik).abs(), coef_gap(&v.beta, &ex))
+                        }
+                        Err(_) => print!(" {:>9} {:>7}", "fails", "-"),
+                    }
+                }
+                match maximise_vecchia(&dist, &default, family, &cols, &z, method, &opts) {
+                    Ok(v) => println!(
+                        " {:>12.4} {:>9.4}",
+                        (v.best.loglik - exact.best.loglik).abs(),
+                        coef_gap(&v.best.beta, &ex)
+                    ),
+                    Err(e) => println!(" own fit failed: {e}"),
+                }
+            }
         }
         println!();
     }

@@ -44,12 +44,12 @@ use super::covariance::{CovParams, Kernel};
 use super::factor::{CORRELATION_MIN_DIAGONAL, FactorError, is_sequential};
 use super::geometry::distance;
 use super::likelihood::{
-    Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchOptions, check_params, check_sizes_n,
-    maximise_by, profile_whitened,
+    Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchOptions, check_params,
+    check_sizes_n, maximise_by, profile_whitened,
 };
+pub use super::vecchia_order::{Conditioning, maxmin_order};
 use crate::spatial::correlation::Family;
 use faer::Mat;
-pub use super::vecchia_order::{Conditioning, maxmin_order};
 
 /// The default number of neighbours `m`: the smallest of 10, 20, 30, 40
 /// at which the accuracy targets held for every family with and without
@@ -158,14 +158,17 @@ fn whiten_ranks(
                 return Err(fail(cond.set(k)[j] as usize, d));
             }
             g[j * q + j] = l;
-            for i in j + 1..q {
-                let s: f64 = (0..j).map(|t| g[i * q + t] * g[j * q + t]).sum();
-                g[i * q + j] = (g[i * q + j] - s) / l;
+            let (head, tail) = g.split_at_mut((j + 1) * q);
+            let row_j = &head[j * q..j * q + j];
+            for row_i in tail.chunks_exact_mut(q) {
+                let s: f64 = row_i[..j].iter().zip(row_j).map(|(a, b)| a * b).sum();
+                row_i[j] = (row_i[j] - s) / l;
             }
         }
         // G u = V_Ni (forward), d = V_ii - u'u, G' b = u (backward)
         for i in 0..q {
-            let s: f64 = (0..i).map(|t| g[i * q + t] * v[t]).sum();
+            let row_i = &g[i * q..i * q + i];
+            let s: f64 = row_i.iter().zip(&v[..i]).map(|(a, b)| a * b).sum();
             v[i] = (v[i] - s) / g[i * q + i];
         }
         let d = kernel.total - v.iter().map(|t| t * t).sum::<f64>();

@@ -107,7 +107,8 @@ pub fn maxmin_order(x: &[f64], y: &[f64]) -> Result<Vec<usize>, LikelihoodError>
     let mut dmin: Vec<f64> = (0..n).map(|j| distance(x[j], y[j], x[first], y[first])).collect();
     taken[first] = true;
     order.push(first);
-    let mut heap: BinaryHeap<Entry> = (0..n).filter(|&j| j != first).map(|j| Entry { d: dmin[j], j }).collect();
+    let mut heap: BinaryHeap<Entry> =
+        (0..n).filter(|&j| j != first).map(|j| Entry { d: dmin[j], j }).collect();
     while let Some(Entry { d, j: p }) = heap.pop() {
         // stale entries: taken, or their distance has fallen since they were pushed
         if taken[p] || d.to_bits() != dmin[p].to_bits() {
@@ -203,15 +204,21 @@ impl Conditioning {
         check_positions(x, y)?;
         let n = x.len();
         let mut seen = vec![false; n];
-        if order.len() != n || sets.len() != n || order.iter().any(|&i| i >= n || std::mem::replace(&mut seen[i], true))
+        if order.len() != n
+            || sets.len() != n
+            || order.iter().any(|&i| i >= n || std::mem::replace(&mut seen[i], true))
         {
-            return Err(LikelihoodError::Invalid("the order must be a permutation of the observations".into()));
+            return Err(LikelihoodError::Invalid(
+                "the order must be a permutation of the observations".into(),
+            ));
         }
         let mut starts = vec![0];
         let mut flat = Vec::new();
         for (k, s) in sets.iter().enumerate() {
             if s.iter().any(|&r| r >= k) {
-                return Err(LikelihoodError::Invalid(format!("rank {k} may condition on earlier ranks only")));
+                return Err(LikelihoodError::Invalid(format!(
+                    "rank {k} may condition on earlier ranks only"
+                )));
             }
             flat.extend(s.iter().map(|&r| r as u32));
             starts.push(flat.len());
@@ -264,8 +271,9 @@ mod tests {
     fn brute(x: &[f64], y: &[f64], m: usize) -> (Vec<usize>, Vec<Vec<usize>>) {
         let n = x.len();
         let (cx, cy) = (x.iter().sum::<f64>() / n as f64, y.iter().sum::<f64>() / n as f64);
-        let first =
-            (0..n).min_by(|&a, &b| distance(x[a], y[a], cx, cy).total_cmp(&distance(x[b], y[b], cx, cy))).unwrap();
+        let first = (0..n)
+            .min_by(|&a, &b| distance(x[a], y[a], cx, cy).total_cmp(&distance(x[b], y[b], cx, cy)))
+            .unwrap();
         let mut order = vec![first];
         let mut dmin: Vec<f64> = (0..n).map(|j| distance(x[j], y[j], x[first], y[first])).collect();
         dmin[first] = f64::NEG_INFINITY;

@@ -19,7 +19,8 @@ fn field(n: usize, seed: u64, truth: &CovParams) -> (Vec<f64>, Vec<f64>, Vec<Vec
     let dist = Distances::from_coords(&x, &y).unwrap();
     let l = cholesky(&dist, truth).unwrap();
     let e: Vec<f64> = (0..n).map(|_| StandardNormal.sample(&mut rng)).collect();
-    let z: Vec<f64> = (0..n).map(|i| 1.0 + 0.5 * cov[i] + (0..=i).map(|j| l[(i, j)] * e[j]).sum::<f64>()).collect();
+    let z: Vec<f64> =
+        (0..n).map(|i| 1.0 + 0.5 * cov[i] + (0..=i).map(|j| l[(i, j)] * e[j]).sum::<f64>()).collect();
     (x, y, vec![vec![1.0; n], cov], z)
 }
 
@@ -51,7 +52,11 @@ fn full_sets_equal_the_exact_likelihood() {
                 let exact = profiled(&dist, &p, &xs, &z, method).unwrap();
                 let v = profiled_vecchia(&cond, &p, &xs, &z, method).unwrap();
                 assert_relative_eq!(v.loglik, exact.loglik, max_relative = 1e-8);
-                assert_relative_eq!(v.logdet_v, exact.logdet_v, epsilon = 1e-8 * exact.logdet_v.abs().max(1.0));
+                assert_relative_eq!(
+                    v.logdet_v,
+                    exact.logdet_v,
+                    epsilon = 1e-8 * exact.logdet_v.abs().max(1.0)
+                );
                 assert_relative_eq!(v.q, exact.q, max_relative = 1e-8);
                 for (a, b) in v.beta.iter().zip(&exact.beta) {
                     assert_relative_eq!(a, b, max_relative = 1e-8);
@@ -110,7 +115,8 @@ fn numpy_reference() {
     let xs = vec![vec![1.0; n], numbers(&fx["covariate"])];
     let z = numbers(&fx["response"]);
     let m = fx["m"].as_u64().unwrap() as usize;
-    let order: Vec<usize> = fx["order"].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect();
+    let order: Vec<usize> =
+        fx["order"].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect();
     let sets: Vec<Vec<usize>> = fx["sets"]
         .as_array()
         .unwrap()
@@ -160,8 +166,9 @@ fn threads_do_not_change_the_result() {
     let z: Vec<f64> = (0..n).map(|_| rng.random_range(0.0..1.0)).collect();
     let cond = Conditioning::new(&x, &y, 15).unwrap();
     let a = profiled_vecchia(&cond, &truth, &xs, &z, LikelihoodKind::Ml).unwrap();
-    let b = crate::spatial::factor::sequential(|| profiled_vecchia(&cond, &truth, &xs, &z, LikelihoodKind::Ml))
-        .unwrap();
+    let b =
+        crate::spatial::factor::sequential(|| profiled_vecchia(&cond, &truth, &xs, &z, LikelihoodKind::Ml))
+            .unwrap();
     assert_eq!(a.loglik.to_bits(), b.loglik.to_bits());
     assert_eq!(a.whitened, b.whitened);
 }
@@ -195,7 +202,8 @@ fn maximum_with_full_sets_is_the_exact_one() {
     for nugget in [false, true] {
         let opts = SearchOptions { nugget, ..SearchOptions::default() };
         let exact = maximise(&dist, Family::Exponential, &xs, &z, LikelihoodKind::Reml, &opts).unwrap();
-        let v = maximise_vecchia(&dist, &cond, Family::Exponential, &xs, &z, LikelihoodKind::Reml, &opts).unwrap();
+        let v = maximise_vecchia(&dist, &cond, Family::Exponential, &xs, &z, LikelihoodKind::Reml, &opts)
+            .unwrap();
         assert_relative_eq!(v.best.loglik, exact.best.loglik, max_relative = 1e-8);
         assert_relative_eq!(v.best.params.range, exact.best.params.range, max_relative = 1e-3);
         assert_eq!(v.factorisations, 0);
@@ -208,6 +216,9 @@ fn bad_input_is_refused() {
     let p = CovParams { family: Family::Exponential, range: 1.0, eta: 0.0 };
     let xs = vec![vec![1.0; 3]];
     assert!(profiled_vecchia(&cond, &p, &xs, &[1.0, 2.0], LikelihoodKind::Ml).is_err());
-    assert!(profiled_vecchia(&cond, &CovParams { range: -1.0, ..p }, &xs, &[1.0, 2.0, 0.5], LikelihoodKind::Ml).is_err());
+    assert!(
+        profiled_vecchia(&cond, &CovParams { range: -1.0, ..p }, &xs, &[1.0, 2.0, 0.5], LikelihoodKind::Ml)
+            .is_err()
+    );
     assert!(profiled_vecchia(&cond, &p, &xs, &[1.0, f64::NAN, 0.5], LikelihoodKind::Ml).is_err());
 }
