@@ -159,7 +159,8 @@ fn whiten_ranks(
         for j in 0..q {
             let d = g[j * q + j] - g[j * q..j * q + j].iter().map(|t| t * t).sum::<f64>();
             let l = d.sqrt();
-            if !(l > CORRELATION_MIN_DIAGONAL) {
+            // NaN (a negative or undefined pivot) fails too
+            if l.is_nan() || l <= CORRELATION_MIN_DIAGONAL {
                 return Err(fail(cond.set(k)[j] as usize, d));
             }
             g[j * q + j] = l;
@@ -177,7 +178,7 @@ fn whiten_ranks(
             v[i] = (v[i] - s) / g[i * q + i];
         }
         let d = kernel.total - v.iter().map(|t| t * t).sum::<f64>();
-        if !(d.sqrt() > CORRELATION_MIN_DIAGONAL) {
+        if d.sqrt().is_nan() || d.sqrt() <= CORRELATION_MIN_DIAGONAL {
             return Err(fail(k, d));
         }
         for i in (0..q).rev() {
