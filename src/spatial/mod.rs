@@ -36,4 +36,6 @@ pub mod selfcheck;
 pub mod spectral;
 pub mod stage;
 pub mod variogram;
+pub mod vecchia;
+pub mod vecchia_order;
 pub mod window_se;
