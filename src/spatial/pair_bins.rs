@@ -130,23 +130,42 @@ mod tests {
         assert_eq!(edges_of(&d, 6.0, 3), vec![0.0, 2.5, 4.5, 6.0]);
     }
 
-    /// On a 5 x 2 grid of loggers 2 m apart (45 pairs): every bin holds at
-    /// least the minimum, the bins cover all pairs within the largest lag,
-    /// and there are more than the three bins equal widths gave.
+    /// On ten loggers placed by hand in a 10 m x 6 m room (23 pairs within
+    /// half the largest distance): with at least 4 pairs per bin, five
+    /// bins, every one holding at least 4, all pairs counted; more than the
+    /// three non-empty bins that equal widths give here.
     #[test]
     fn ten_loggers_give_more_than_three_bins() {
-        let xy: Vec<[f64; 2]> = (0..10).map(|k| [(k % 5) as f64 * 2.0, (k / 5) as f64 * 2.5]).collect();
+        let xy = [
+            [0.6, 1.0],
+            [0.6, 3.0],
+            [2.3, 0.7],
+            [2.1, 4.6],
+            [4.2, 2.4],
+            [5.9, 0.9],
+            [6.3, 5.1],
+            [8.1, 2.8],
+            [9.4, 0.6],
+            [9.2, 4.9],
+        ];
         let pts = crate::spatial::kriging::testdata::pts(&xy);
         let max_lag = pts.max_distance() / 2.0;
-        let bins = equal_count(&pts, max_lag, 6).unwrap();
         let pairs = pairs_within(&pts, max_lag);
-        let mut counts = vec![0usize; bins.len()];
-        for p in &pairs {
-            counts[bins.bin_of(p.2).unwrap()] += 1;
-        }
-        assert!(bins.len() > 3, "{counts:?}");
-        assert!(counts.iter().all(|c| *c >= 6), "{counts:?}");
+        assert_eq!(pairs.len(), 23);
+        let count = |bins: &Bins| {
+            let mut counts = vec![0usize; bins.len()];
+            for p in &pairs {
+                counts[bins.bin_of(p.2).unwrap()] += 1;
+            }
+            counts
+        };
+        let bins = equal_count(&pts, max_lag, 4).unwrap();
+        let counts = count(&bins);
+        assert_eq!(bins.len(), 5, "{counts:?}");
+        assert!(counts.iter().all(|c| *c >= 4), "{counts:?}");
         assert_eq!(counts.iter().sum::<usize>(), pairs.len());
+        let equal = Bins::default_for(&pts).unwrap();
+        assert_eq!(count(&equal).iter().filter(|c| **c > 0).count(), 3, "{:?}", count(&equal));
         assert!(equal_count(&pts, 0.0, 6).is_err() && equal_count(&pts, 1.0, 0).is_err());
         let c = candidates(&pts, max_lag);
         assert!(!c.is_empty() && c.iter().all(|b| b.len() >= 3));
