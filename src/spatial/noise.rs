@@ -67,7 +67,8 @@ pub fn anomaly_semivariance(series: &DMatrix<f64>, lag: usize) -> Option<f64> {
     // Each step's mean and count over the sensors that report.
     let stats: Vec<(f64, usize)> = (0..steps)
         .map(|t| {
-            let (s, c) = series.row(t).iter().filter(|v| v.is_finite()).fold((0.0, 0), |(s, c), v| (s + v, c + 1));
+            let (s, c) =
+                series.row(t).iter().filter(|v| v.is_finite()).fold((0.0, 0), |(s, c), v| (s + v, c + 1));
             (if c > 0 { s / c as f64 } else { f64::NAN }, c)
         })
         .collect();

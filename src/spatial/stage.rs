@@ -252,8 +252,12 @@ fn map_variable(
                 let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, b) };
                 let mc = choose_model(&emp, &cfg.families, &opts, sensors, variance).ok()?;
                 mc.chosen?; // the fallback model is not a fit to these bins
-                let spec =
-                    Spec { method: Interpolator::Ordinary, model: mc.model, neighbours: cfg.neighbours, drift: None };
+                let spec = Spec {
+                    method: Interpolator::Ordinary,
+                    model: mc.model,
+                    neighbours: cfg.neighbours,
+                    drift: None,
+                };
                 loso(sensors, &series, &spec).ok().flatten().map(|s| s.rmse)
             })
             .collect()
