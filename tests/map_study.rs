@@ -13,7 +13,7 @@
 //! Scenarios: `tests/scenarios/truth_covariate.toml` (the truth study's
 //! climate and loggers; the mapped driver is the same under all four truths)
 //! and `tests/scenarios/sharp_draught.toml` (a narrow draught seen by one
-//! logger). One run takes about 1-2 s in the dev build. The results are in
+//! logger). One run takes about 1-3 s in the dev build. The results are in
 //! docs/spatial.md.
 
 use std::collections::HashMap;
@@ -94,8 +94,9 @@ fn run_one(scenario: &str, seed: u64) -> MapOutcome {
 /// Seeds 1..=N of both scenarios; prints one line per run and a summary per
 /// scenario. Asserts the levels recorded in docs/spatial.md as a guard
 /// against regressions (the target, MSSE within 0.5-2 in 36 of 40
-/// seeds, is not met yet): on `truth_covariate.toml` at least 70 % of the
-/// seeds within 0.5-2 and none above 3; every map finite.
+/// seeds, is met on `sharp_draught.toml` at 37/40 and not yet on
+/// `truth_covariate.toml` at 33/40): on both at least 75 % of the seeds
+/// within 0.5-2 and none above 3; every map finite.
 #[test]
 #[ignore]
 fn map_study() {
@@ -128,9 +129,7 @@ fn map_study() {
             100.0 * runs.iter().map(|o| o.door20).sum::<f64>() / n as f64
         );
         assert!(m.iter().all(|v| v.is_finite()), "{scenario}: {m:?}");
-        if scenario == "truth_covariate.toml" {
-            assert!(10 * within >= 7 * n as usize, "{scenario}: {within}/{n} within 0.5-2");
-            assert!(m[m.len() - 1] <= 3.0, "{scenario}: largest MSSE {}", m[m.len() - 1]);
-        }
+        assert!(4 * within >= 3 * n as usize, "{scenario}: {within}/{n} within 0.5-2");
+        assert!(m[m.len() - 1] <= 3.0, "{scenario}: largest MSSE {}", m[m.len() - 1]);
     }
 }

@@ -257,6 +257,26 @@ impl MappingConfig {
         Bins::equal(self.max_lag.unwrap_or(def.max_lag()), self.bins.unwrap_or(def.len()))
     }
 
+    /// The candidate bins of the mapping stage's pooled variogram: the
+    /// equal-width bins of [`MappingConfig::bins_for`], and unless the study
+    /// sets `bins` or `bin_edges`, also bins that follow the sensor-pair
+    /// distances ([`super::pair_bins::candidates`]); the stage keeps the one
+    /// with the smallest leave-one-sensor-out RMSE.
+    pub fn bin_candidates(&self, sensors: &super::geometry::Points) -> super::error::Result<Vec<Bins>> {
+        let first = self.bins_for(sensors)?;
+        if self.bin_edges.is_some() || self.bins.is_some() {
+            return Ok(vec![first]);
+        }
+        let max_lag = first.max_lag();
+        let mut out = vec![first];
+        for b in super::pair_bins::candidates(sensors, max_lag) {
+            if !out.contains(&b) {
+                out.push(b);
+            }
+        }
+        Ok(out)
+    }
+
     /// The candidate methods that `auto` compares (and the baselines shown
     /// beside them): ordinary, universal, external drift (if a drift is
     /// set), IDW and nearest sensor.

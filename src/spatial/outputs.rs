@@ -256,7 +256,9 @@ pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
 /// calibrated on the left-out loggers, [`super::window_se`];
 /// `kriged_window_values`: the loggers' study-period values kriged),
 /// `persistent_share`, `inflation`, `loggers` (left-out loggers used),
-/// `median_z2` (their median squared standardised error after calibration).
+/// `median_z2` (their median squared standardised error after calibration),
+/// `noise_variance` (the readings' measurement-error variance left out of the
+/// pots' SEs, [`super::noise`]).
 pub fn mapping_se_csv(indicators: &[MappedColumn], window_se: &[Option<Calibration>]) -> Vec<u8> {
     let mut t = CsvTable::new([
         "indicator",
@@ -266,6 +268,7 @@ pub fn mapping_se_csv(indicators: &[MappedColumn], window_se: &[Option<Calibrati
         "inflation",
         "loggers",
         "median_z2",
+        "noise_variance",
     ]);
     for (col, c) in indicators.iter().zip(window_se) {
         let mut r = vec![col.name.clone()];
@@ -277,9 +280,11 @@ pub fn mapping_se_csv(indicators: &[MappedColumn], window_se: &[Option<Calibrati
                 number(c.inflation),
                 c.loggers.to_string(),
                 number(c.median_z2),
+                number(c.noise),
             ]),
             None => r.extend([
                 "kriged_window_values".to_string(),
+                String::new(),
                 String::new(),
                 String::new(),
                 String::new(),

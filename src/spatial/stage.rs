@@ -7,6 +7,10 @@
 //! 1. the pooled variogram of the per-step anomalies at the sensors (the mean
 //!    removed at each step) is fitted for every configured family, and the
 //!    best fit by Cressie's criterion is kept ([`super::mapping::choose_model`]);
+//!    its lag bins are equal-width or follow the sensor-pair distances
+//!    ([`super::pair_bins`]), whichever gives ordinary kriging the smaller
+//!    leave-one-sensor-out RMSE (the external drift's decay length is searched
+//!    with both when they differ);
 //! 2. every candidate method is scored by leave-one-sensor-out
 //!    cross-validation over all time steps, and `auto` picks one
 //!    ([`super::mapping::choose`]);
@@ -30,7 +34,8 @@
 //! law of total variance over the two, with the per-step SEs scaled and the
 //! shared share estimated from the left-out loggers' per-step errors, and the
 //! window variances widened when the left-out loggers' window check rejects
-//! them. An indicator the per-step route cannot handle (not a function of
+//! them. At the pots the per-step SEs leave out the sensors' measurement
+//! error ([`super::noise`]): a pot's true climate carries no sensor noise. An indicator the per-step route cannot handle (not a function of
 //! one kriged variable) falls back to kriging its study-period values at the
 //! sensors with the variable's variogram shape and their own profiled sill
 //! ([`super::mapping::map_summary`]); for a summed indicator that SE is
@@ -122,9 +127,15 @@ pub struct VariableMap {
     /// Mapped series, steps x pots (NaN = no sensor reported); for pots
     /// that move, each pot's series along its path.
     pub mapped: DMatrix<f64>,
-    /// Kriging standard error of every mapped step, steps x pots (`None` for
-    /// IDW and nearest sensor); the nugget is included.
+    /// Standard error of every mapped step, steps x pots (`None` for IDW and
+    /// nearest sensor): of the pot's true, noise-free value, the kriging
+    /// variance (nugget included) less the sensors' measurement-error
+    /// variance `noise` ([`super::noise::noise_free_se`]).
     pub mapped_se: Option<DMatrix<f64>>,
+    /// The sensors' measurement-error variance, estimated from the temporal
+    /// structure of the readings ([`super::noise`]; `None` for IDW and
+    /// nearest sensor, or when it cannot be estimated: nothing is removed).
+    pub noise: Option<super::noise::MeasurementError>,
 }
 
 /// Everything `potclim map` computed.
@@ -216,12 +227,6 @@ fn map_variable(
     cfg: &MappingConfig,
     openings: &[OpeningDrift],
 ) -> Result<VariableMap, MapError> {
-    let bins = cfg.bins_for(sensors)?;
-    let empirical = pooled(sensors, &series, &bins, cfg.estimator, None, &Detrend::Mean)?;
-    let mut directional = Vec::new();
-    for d in &cfg.directions {
-        directional.push(pooled(sensors, &series, &bins, cfg.estimator, Some(*d), &Detrend::Mean)?);
-    }
     // Variance of the anomalies, for the fallback model.
     let (mut s2, mut cnt) = (0.0, 0usize);
     for t in 0..series.nrows() {
@@ -233,6 +238,36 @@ fn map_variable(
         }
     }
     let variance = if cnt > 0 { s2 / cnt as f64 } else { f64::NAN };
+    // The lag bins: equal widths, or bins that follow the sensor-pair
+    // distances, whichever gives ordinary kriging the smaller
+    // leave-one-sensor-out RMSE (`super::pair_bins`).
+    let candidates = cfg.bin_candidates(sensors)?;
+    let scores: Vec<Option<f64>> = if candidates.len() < 2 {
+        vec![Some(0.0)]
+    } else {
+        candidates
+            .iter()
+            .map(|b| {
+                let emp = pooled(sensors, &series, b, cfg.estimator, None, &Detrend::Mean).ok()?;
+                let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, b) };
+                let mc = choose_model(&emp, &cfg.families, &opts, sensors, variance).ok()?;
+                mc.chosen?; // the fallback model is not a fit to these bins
+                let spec = Spec {
+                    method: Interpolator::Ordinary,
+                    model: mc.model,
+                    neighbours: cfg.neighbours,
+                    drift: None,
+                };
+                loso(sensors, &series, &spec).ok().flatten().map(|s| s.rmse)
+            })
+            .collect()
+    };
+    let bins = candidates[super::pair_bins::pick(&scores).unwrap_or(0)].clone();
+    let empirical = pooled(sensors, &series, &bins, cfg.estimator, None, &Detrend::Mean)?;
+    let mut directional = Vec::new();
+    for d in &cfg.directions {
+        directional.push(pooled(sensors, &series, &bins, cfg.estimator, Some(*d), &Detrend::Mean)?);
+    }
     let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, &bins) };
     let choice_model = choose_model(&empirical, &cfg.families, &opts, sensors, variance)?;
     let mut warnings: Vec<String> = choice_model.warning.iter().cloned().collect();
@@ -272,9 +307,11 @@ fn map_variable(
     };
     for o in drift_openings {
         let grid = super::drift::length_grid(&o.at_sensors, sensors.max_distance(), 12);
-        let search = super::drift::search_length(&grid, 8, |l| {
+        // The method at decay length `l` with the variogram fitted on bins `b`.
+        let at = |l: f64, b: &super::variogram::Bins| {
             let v = super::drift::decay(&o.at_sensors, l);
-            let emp = pooled(sensors, &series, &bins, cfg.estimator, None, &Detrend::Drift(v.clone()))?;
+            let emp = pooled(sensors, &series, b, cfg.estimator, None, &Detrend::Drift(v.clone()))?;
+            let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, b) };
             let Ok(mc) = choose_model(&emp, &cfg.families, &opts, sensors, variance) else {
                 return Ok(None);
             };
@@ -295,7 +332,22 @@ fn map_variable(
                 }
                 _ => None,
             })
-        });
+        };
+        // The decay length is searched with the equal-width bins and, when
+        // cross-validation chose others above, with those too; the smaller
+        // leave-one-sensor-out RMSE is kept.
+        let mut search = super::drift::search_length(&grid, 8, |l| at(l, &candidates[0]));
+        if bins != candidates[0] {
+            let other = super::drift::search_length(&grid, 8, |l| at(l, &bins));
+            let better = match (&search, &other) {
+                (Ok(Some(a)), Ok(Some(b))) => b.best.0 < a.best.0,
+                (Ok(Some(_)), _) => false,
+                _ => true,
+            };
+            if better {
+                search = other;
+            }
+        }
         match search {
             Ok(Some(found)) => {
                 let (_, (score, spec, emp, mc)) = found.best;
@@ -345,6 +397,11 @@ fn map_variable(
             warnings.push(w);
         }
     }
+    // The sensors' noise is not the pots' climate (`super::noise`).
+    let noise = mapped_se.as_ref().and_then(|_| super::noise::measurement_error(&series, spec.model.nugget));
+    if let (Some(me), Some(m)) = (noise, mapped_se.as_mut()) {
+        m.iter_mut().for_each(|s| *s = super::noise::noise_free_se(*s, me.variance));
+    }
     let max_lag = empirical.bins.last().map(|b| b.to).unwrap_or(1.0);
     let fit_curves = choice_model
         .fits
@@ -364,6 +421,7 @@ fn map_variable(
         warnings,
         mapped,
         mapped_se,
+        noise,
     })
 }
 
@@ -838,6 +896,7 @@ fn self_check(
                 step_scale: scale,
                 loggers,
                 median_z2,
+                noise: single_kriged(ind, variables).and_then(|v| v.noise).map_or(0.0, |m| m.variance),
             }
         });
         for (k, observed, predicted, mapped) in &rows {

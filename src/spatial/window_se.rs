@@ -54,6 +54,18 @@
 //!   ([`intraclass`]): the share of a step's error that a location keeps
 //!   at every step.
 //!
+//! At a pot the per-step SEs `s_t` are those of the pot's true, noise-free
+//! climate: the kriging variance less the sensors' measurement-error
+//! variance ([`super::noise`]), estimated from the readings' temporal
+//! structure. The calibration above (`k`, `rho`) is applied to them
+//! unchanged, i.e. the standardised errors are taken to have the same
+//! structure at a pot as at a left-out logger. The alternative that keeps
+//! the persistent part's absolute size and takes the noise out of the own
+//! part only, `own_t^2 = (1 - rho) k^2 (s_t^2 + c_ME) - c_ME`, leaves no own
+//! error at pots near a logger when `k < 1` and gave SEs of zero (mapped
+//! driver's MSSE infinite in 3 of 40 seeds; with the standardised form
+//! 33-37 of 40 within 0.5-2, docs/spatial.md).
+//!
 //! The window indicator's own left-out errors at the loggers (one value per
 //! logger, 10-15 values) are kept as a check (`median_z2`), not used to
 //! tune both ways: tuning a scalar on the median of 15 values set the pots'
@@ -201,6 +213,9 @@ pub struct Calibration {
     pub step_scale: f64,
     /// Left-out loggers whose window indicator was checked.
     pub loggers: usize,
+    /// The measurement-error variance of the readings, left out of the
+    /// pots' SEs ([`super::noise`]; 0 when not estimated).
+    pub noise: f64,
     /// The check: the median over those loggers of the window indicator's
     /// `z^2` under the per-step calibration, before `inflation` (near [`CHI2_1_MEDIAN`] when the
     /// window SEs are honest; with 10-15 loggers a single median varies by
