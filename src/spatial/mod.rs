@@ -37,6 +37,7 @@ pub mod rowcol;
 pub mod selfcheck;
 pub mod spectral;
 pub mod stage;
+mod stage_check;
 pub mod variogram;
 pub mod vecchia;
 pub mod vecchia_order;
