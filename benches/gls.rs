@@ -21,9 +21,11 @@ use potclim::spatial::likelihood::{
 use potclim::spatial::spectral::{Spectral, Tridiagonal};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
-use std::io::Write;
-use std::process::Command;
 use std::time::Instant;
+
+#[path = "common/reference.rs"]
+mod reference;
+use reference::{median, numpy_cholesky};
 
 fn layout(n: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<Vec<f64>>) {
     // pots on a jittered bench grid, 0.3 m pitch, 40 pots per row
@@ -43,47 +45,6 @@ fn layout(n: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<f64>, Vec<Vec<f64>>) 
     let z: Vec<f64> =
         (0..n).map(|i| (x[i] / 2.0).sin() + 0.2 * y[i] + rng.random_range(-1.0..1.0) + cols[1][i]).collect();
     (x, y, z, cols)
-}
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
-}
-
-/// Time numpy.linalg.cholesky on the same matrix (written to a temp file),
-/// single-threaded; returns the median of `reps` runs in seconds.
-fn numpy_cholesky(python: &str, dist: &Distances, p: &CovParams, reps: usize) -> Option<f64> {
-    let n = dist.len();
-    let dir = tempfile::tempdir().ok()?;
-    let path = dir.path().join("v.f64");
-    let mut f = std::io::BufWriter::new(std::fs::File::create(&path).ok()?);
-    for i in 0..n {
-        for j in 0..n {
-            let v = if i == j { 1.0 } else { (1.0 - p.eta) * p.family.correlation(dist.get(i, j), p.range) };
-            f.write_all(&v.to_le_bytes()).ok()?;
-        }
-    }
-    f.flush().ok()?;
-    drop(f);
-    let script = format!(
-        "import numpy as np, time, sys\nV = np.fromfile(sys.argv[1], dtype='<f8').reshape({n}, {n})\nnp.linalg.cholesky(V)\nts = []\nfor _ in range({reps}):\n    t = time.perf_counter(); np.linalg.cholesky(V); ts.append(time.perf_counter() - t)\nprint(sorted(ts)[len(ts)//2])\n"
-    );
-    // One BLAS thread: on a loaded 2-core machine a threaded reference spins
-    // and its median swings by two orders of magnitude (measured: 0.36 s
-    // against 1.8 ms single-threaded at n = 480).
-    let out = Command::new(python)
-        .arg("-c")
-        .arg(script)
-        .arg(&path)
-        .env("OPENBLAS_NUM_THREADS", "1")
-        .env("OMP_NUM_THREADS", "1")
-        .env("MKL_NUM_THREADS", "1")
-        .output()
-        .ok()?;
-    if !out.status.success() {
-        return None;
-    }
-    String::from_utf8_lossy(&out.stdout).trim().parse().ok()
 }
 
 fn main() {

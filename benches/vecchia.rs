@@ -28,9 +28,11 @@ use potclim::spatial::vecchia::{Conditioning, DEFAULT_NEIGHBOURS, maximise_vecch
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
-use std::io::Write;
-use std::process::Command;
 use std::time::Instant;
+
+#[path = "common/reference.rs"]
+mod reference;
+use reference::{median, numpy_cholesky};
 
 const MS: [usize; 4] = [10, 20, 30, 40];
 
@@ -50,44 +52,6 @@ fn plots(n: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<Vec<f64>>, Vec<f64>) {
         .map(|i| 10.0 + 0.8 * d1[i] - 0.5 * d2[i] + (0..=i).map(|j| l[(i, j)] * e[j]).sum::<f64>())
         .collect();
     (x, y, vec![vec![1.0; n], d1, d2], z)
-}
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
-}
-
-/// numpy.linalg.cholesky of the same correlation matrix, one BLAS thread,
-/// median of `reps` runs in seconds.
-fn numpy_cholesky(python: &str, dist: &Distances, p: &CovParams, reps: usize) -> Option<f64> {
-    let n = dist.len();
-    let dir = tempfile::tempdir().ok()?;
-    let path = dir.path().join("v.f64");
-    let mut f = std::io::BufWriter::new(std::fs::File::create(&path).ok()?);
-    for i in 0..n {
-        for j in 0..n {
-            let v = if i == j { 1.0 } else { (1.0 - p.eta) * p.family.correlation(dist.get(i, j), p.range) };
-            f.write_all(&v.to_le_bytes()).ok()?;
-        }
-    }
-    f.flush().ok()?;
-    drop(f);
-    let script = format!(
-        "import numpy as np, time, sys\nV = np.fromfile(sys.argv[1], dtype='<f8').reshape({n}, {n})\nnp.linalg.cholesky(V)\nts = []\nfor _ in range({reps}):\n    t = time.perf_counter(); np.linalg.cholesky(V); ts.append(time.perf_counter() - t)\nprint(sorted(ts)[len(ts)//2])\n"
-    );
-    let out = Command::new(python)
-        .arg("-c")
-        .arg(script)
-        .arg(&path)
-        .env("OPENBLAS_NUM_THREADS", "1")
-        .env("OMP_NUM_THREADS", "1")
-        .env("MKL_NUM_THREADS", "1")
-        .output()
-        .ok()?;
-    if !out.status.success() {
-        return None;
-    }
-    String::from_utf8_lossy(&out.stdout).trim().parse().ok()
 }
 
 /// Exact standard errors of the coefficients: `sqrt(sigma2 (X'V^-1 X)^-1_jj)`.
