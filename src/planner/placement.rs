@@ -4,9 +4,13 @@
 //! The inputs come from one of three sources, chosen by `[placement]`:
 //! - `study` alone: the pots and loggers of the study, and the indicator's
 //!   kriging set-up exactly as the mapping stage chose it from the study's
-//!   logs (method, variogram shape, external drift and its decay length),
-//!   with the sill of the indicator's own study-period values at the loggers
-//!   ([`crate::spatial::kriging::rescale_to`], as the map's SEs use);
+//!   logs (method, variogram, external drift and its decay length). With
+//!   `basis = "map"` (the default) the SE lowered is the map's calibrated
+//!   window SE, read from the per-step kriging variance
+//!   ([`crate::spatial::placement::window`]); with `basis = "study_period"`
+//!   (or where the map has no window SE) the kriging SE of the indicator's
+//!   study-period values, with their sill
+//!   ([`crate::spatial::kriging::rescale_to`]);
 //! - `study` with `[placement.variogram]`: the study's pot and sensor tables
 //!   and the stated variogram (a compartment without logs yet);
 //! - `scenario` with `[placement.variogram]`: the pots and loggers of a
@@ -26,7 +30,10 @@ use crate::report::plan_page::{PlacementPage, PlacementStep};
 use crate::spatial::correlation::Family;
 use crate::spatial::geometry::{Origin, Points, distances_to_opening};
 use crate::spatial::kriging::Interpolator;
-use crate::spatial::placement::{DriftValues, Objective, Setting, candidate_grid, place};
+use crate::spatial::placement::window::{WindowSe, map_window_se};
+use crate::spatial::placement::{
+    DriftValues, KrigingSe, Objective, PotSe, Setting, candidate_grid, place, removal_variances,
+};
 use crate::spatial::variogram::VariogramModel;
 use serde::Deserialize;
 use std::path::PathBuf;
@@ -62,6 +69,10 @@ pub struct PlacementSection {
     pub candidates: Option<String>,
     /// A stated variogram instead of the one fitted from the logs.
     pub variogram: Option<StatedVariogram>,
+    /// The SE to lower: `map` (the map's calibrated window SE, the default
+    /// with a fitted study where the map has one) or `study_period` (the
+    /// kriging SE of the indicator's study-period values).
+    pub basis: Option<String>,
     /// Output folder (default `plan-output`).
     pub output: Option<String>,
 }
@@ -104,6 +115,46 @@ struct Inputs {
     source: String,
     /// Openings used as external drift: (name, from, to, decay length L).
     drift: Option<(String, [f64; 2], [f64; 2], f64)>,
+    /// What the SE is and how it was computed ([`SeBasis`]).
+    basis: SeBasis,
+}
+
+/// The standard error a placement lowers at the pots.
+enum SeBasis {
+    /// The kriging SE of the placement's variogram.
+    Kriging { how: String },
+    /// The map's calibrated window SE, tabulated against the per-step
+    /// kriging variance ([`WindowSe`]).
+    Window(Box<WindowSe>),
+}
+
+impl SeBasis {
+    fn stated() -> SeBasis {
+        SeBasis::Kriging {
+            how: "The SE is the kriging SE of the indicator at each pot under the stated variogram, with the kriging conventions of the map.".into(),
+        }
+    }
+
+    fn pot_se(&self) -> &dyn PotSe {
+        match self {
+            SeBasis::Kriging { .. } => &KrigingSe,
+            SeBasis::Window(w) => w.as_ref(),
+        }
+    }
+
+    fn kind(&self) -> &'static str {
+        match self {
+            SeBasis::Kriging { .. } => "kriging SE",
+            SeBasis::Window(_) => "window SE",
+        }
+    }
+
+    fn how(&self) -> String {
+        match self {
+            SeBasis::Kriging { how } => how.clone(),
+            SeBasis::Window(_) => "The SE is the map's window SE of the indicator at each pot (the SE in the map's tables): the pot's per-step kriging errors with the map's calibrated persistence over the pot's window. A new logger lowers every per-step kriging SE of a pot by the same ratio; the window SE is tabulated against that ratio and read by interpolation. The mapped climate is kept as it is: a new logger's readings cannot be known in advance.".into(),
+        }
+    }
 }
 
 /// The result of `potclim place`: the page's data and the files written.
@@ -198,6 +249,7 @@ fn from_study(plan: &PlanFile, sec: &PlacementSection, rel: &str) -> Result<Inpu
             openings,
             source: format!("stated in {}", plan.path.display()),
             drift: None,
+            basis: SeBasis::stated(),
         });
     }
     // The indicator's kriging set-up as the mapping stage fits it from the logs.
@@ -227,27 +279,94 @@ fn from_study(plan: &PlanFile, sec: &PlacementSection, rel: &str) -> Result<Inpu
             Some("set [mapping] method to a kriging method, or state [placement.variogram]"),
         ));
     }
-    let ok: Vec<usize> =
-        (0..map.sensor_points.len()).filter(|&k| climate.study[i][k].value.is_some()).collect();
-    let loggers = map.sensor_points.subset(&ok);
-    let vals: Vec<f64> = ok.iter().map(|&k| climate.study[i][k].value.unwrap_or(f64::NAN)).collect();
+    let basis = sec.basis.as_deref().unwrap_or("map");
+    if !matches!(basis, "map" | "study_period") {
+        return Err(plan.invalid("placement.basis", format!("`{basis}`"), Some("map or study_period")));
+    }
+    // The opening the map uses as external drift, with its decay length.
     let mut drift = None;
-    let mut drift_values = None;
     if let Some(d) = &vm.spec.drift {
         let length =
             vm.cv.iter().find_map(|c| c.drift.as_ref().filter(|(n, _)| *n == d.name).map(|(_, l)| *l));
         let opening = study.spec.openings.iter().find(|o| o.name == d.name);
         if let (Some(l), Some(o)) = (length, opening) {
             drift = Some((o.name.clone(), o.from, o.to, l));
-            drift_values = Some(DriftValues {
-                loggers: ok.iter().map(|&k| d.at_sensors[k]).collect(),
-                pots: d.at_targets.clone(),
-                candidates: Vec::new(),
-            });
         }
     }
+    let drift_at = |idx: &[usize]| {
+        vm.spec.drift.as_ref().filter(|_| drift.is_some()).map(|d| DriftValues {
+            loggers: idx.iter().map(|&k| d.at_sensors[k]).collect(),
+            pots: d.at_targets.clone(),
+            candidates: Vec::new(),
+        })
+    };
     let method =
         if vm.spec.drift.is_some() && drift.is_none() { Interpolator::Ordinary } else { vm.spec.method };
+    let unit = Some(inds[i].unit().to_string());
+    let how = match &drift {
+        Some((name, _, _, l)) => format!(
+            "{} kriging with the opening `{name}` as drift (decay length {} m)",
+            method.name(),
+            crate::report::html::sig(*l, 3)
+        ),
+        None => format!("{} kriging", method.name()),
+    };
+    // The map's window SE, where the map has one for this indicator (not
+    // for pots that move: their SE gathers several positions).
+    let nodes = crate::spatial::window_se::normal_nodes(crate::spatial::window_se::NODES);
+    let window =
+        (basis == "map" && map.moves.is_none()).then(|| map_window_se(&climate, &map, i, &nodes)).flatten();
+    if let Some(at) = window {
+        let all: Vec<usize> = (0..map.sensor_points.len()).collect();
+        let setting = Setting { method, model: vm.spec.model, drift: drift_at(&all) };
+        let noise = vm.noise.map_or(0.0, |m| m.variance);
+        // The largest ratio of per-step SEs any single removal gives a pot.
+        let (current, without) = removal_variances(&setting, &map.sensor_points, &map.pot_points)?;
+        let reach: Vec<f64> = (0..current.len())
+            .map(|j| {
+                let now = current[j] - noise;
+                without
+                    .iter()
+                    .flatten()
+                    .map(|w| if now > 0.0 { ((w[j] - noise).max(0.0) / now).sqrt() } else { 0.0 })
+                    .fold(1.0, f64::max)
+            })
+            .collect();
+        let table = WindowSe::tabulate(current, noise, &reach, at).map_err(|j| {
+            plan.invalid(
+                "placement.basis",
+                format!(
+                    "the map's window SE of `{}` could not be computed at pot `{}`",
+                    sec.indicator, map.pots[j]
+                ),
+                Some("use `basis = \"study_period\"`"),
+            )
+        })?;
+        let c = map.window_se[i].expect("map_window_se needs a calibration");
+        return Ok(Inputs {
+            title,
+            unit,
+            pots: map.pot_points.clone(),
+            loggers: map.sensor_points.clone(),
+            setting,
+            compartment,
+            openings,
+            source: format!(
+                "fitted by the mapping stage from the logs of {} ({how}; the per-step variogram of {var}; the window SEs' calibration: persistent share {}, step scale {}, measurement-error variance {})",
+                study.path.display(),
+                crate::report::html::sig(c.share, 3),
+                crate::report::html::sig(c.step_scale, 3),
+                crate::report::html::sig(noise, 3)
+            ),
+            drift,
+            basis: SeBasis::Window(Box::new(table)),
+        });
+    }
+    let ok: Vec<usize> =
+        (0..map.sensor_points.len()).filter(|&k| climate.study[i][k].value.is_some()).collect();
+    let loggers = map.sensor_points.subset(&ok);
+    let vals: Vec<f64> = ok.iter().map(|&k| climate.study[i][k].value.unwrap_or(f64::NAN)).collect();
+    let drift_values = drift_at(&ok);
     let model = match method {
         Interpolator::Simple { .. } => vm.spec.model,
         _ => crate::spatial::kriging::rescale_to(
@@ -258,14 +377,10 @@ fn from_study(plan: &PlanFile, sec: &PlacementSection, rel: &str) -> Result<Inpu
             drift_values.as_ref().map(|d| d.loggers.as_slice()),
         )?,
     };
-    let unit = Some(inds[i].unit().to_string());
-    let how = match &drift {
-        Some((name, _, _, l)) => format!(
-            "{} kriging with the opening `{name}` as drift (decay length {} m)",
-            method.name(),
-            crate::report::html::sig(*l, 3)
-        ),
-        None => format!("{} kriging", method.name()),
+    let why = if basis == "map" {
+        " The map has no window SE for this indicator (it combines two variables, the pots move, or its method has no SE), so the kriging SE of its study-period values is used."
+    } else {
+        ""
     };
     Ok(Inputs {
         title,
@@ -280,6 +395,11 @@ fn from_study(plan: &PlanFile, sec: &PlacementSection, rel: &str) -> Result<Inpu
             study.path.display()
         ),
         drift,
+        basis: SeBasis::Kriging {
+            how: format!(
+                "The SE is the kriging SE of the indicator's study-period values at each pot, with the kriging conventions of the map.{why}"
+            ),
+        },
     })
 }
 
@@ -317,6 +437,7 @@ fn from_scenario(plan: &PlanFile, sec: &PlacementSection, rel: &str) -> Result<I
             .collect(),
         source: format!("stated in {}", plan.path.display()),
         drift: None,
+        basis: SeBasis::stated(),
     })
 }
 
@@ -383,7 +504,8 @@ pub fn run(plan: &PlanFile, over: Overrides) -> Result<PlacementRun, PlanError> 
     if let (Some(d), Some((_, from, to, l))) = (inputs.setting.drift.as_mut(), &inputs.drift) {
         d.candidates = crate::spatial::drift::decay(&distances_to_opening(&cands, *from, *to), *l);
     }
-    let res = place(&inputs.setting, &inputs.loggers, &inputs.pots, &cands, add, objective)?;
+    let res =
+        place(&inputs.setting, &inputs.loggers, &inputs.pots, &cands, add, objective, inputs.basis.pot_se())?;
     let mean = |se: &[f64]| se.iter().sum::<f64>() / se.len().max(1) as f64;
     let max = |se: &[f64]| se.iter().copied().fold(0.0, f64::max);
     let score = |(m, x): (f64, f64)| if objective == Objective::MeanSe { m } else { x };
@@ -439,6 +561,8 @@ pub fn run(plan: &PlanFile, over: Overrides) -> Result<PlacementRun, PlanError> 
         loggers: (0..inputs.loggers.len())
             .map(|t| (inputs.loggers.ids[t].clone(), inputs.loggers.x[t], inputs.loggers.y[t]))
             .collect(),
+        se_kind: inputs.basis.kind().into(),
+        se_how: inputs.basis.how(),
         se_before: res.before.clone(),
         se_after: res.after.clone(),
         mean_se_before: mean(&res.before),

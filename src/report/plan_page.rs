@@ -55,7 +55,11 @@ pub struct PlacementPage {
     pub pots: Vec<(String, f64, f64)>,
     /// `(id, x, y)` of every current logger.
     pub loggers: Vec<(String, f64, f64)>,
-    /// Kriging SE per pot with the current loggers.
+    /// What the SE is, as a noun for sentences (`kriging SE`, `window SE`).
+    pub se_kind: String,
+    /// How the SE was computed, in one or two sentences for the page.
+    pub se_how: String,
+    /// SE per pot with the current loggers.
     pub se_before: Vec<f64>,
     /// Kriging SE per pot with the added loggers too.
     pub se_after: Vec<f64>,
@@ -98,6 +102,11 @@ fn opt_sig(v: Option<f64>) -> String {
     v.map_or_else(|| "–".into(), |v| sig(v, 4))
 }
 
+fn capitalise(s: &str) -> String {
+    let mut c = s.chars();
+    c.next().map(|f| f.to_uppercase().chain(c).collect()).unwrap_or_default()
+}
+
 fn signed(v: f64) -> String {
     let s = sig(v, 3);
     if v > 0.0 { format!("+{s}") } else { s }
@@ -125,9 +134,10 @@ pub fn render_placement(p: &PlacementPage) -> String {
                 .collect();
             let _ = writeln!(
                 out,
-                "<p>Add {} logger(s), in this order: {}.</p>\n<p>The mean kriging SE over the {} pots falls from {}{unit} to {}{unit}; the largest from {}{unit} to {}{unit} (chosen for the {obj} SE).</p>",
+                "<p>Add {} logger(s), in this order: {}.</p>\n<p>The mean {} over the {} pots falls from {}{unit} to {}{unit}; the largest from {}{unit} to {}{unit} (chosen for the {obj} SE).</p>",
                 p.added.len(),
                 list.join("; "),
+                escape(&p.se_kind),
                 p.pots.len(),
                 sig(p.mean_se_before, 3),
                 opt_sig(last.mean_se),
@@ -153,9 +163,13 @@ pub fn render_placement(p: &PlacementPage) -> String {
     out.push_str("<section id=\"maps\">\n<h2>2. Standard error at the pots, now and after</h2>\n<div class=\"figs\">\n");
     let scale = Scale::sequential(p.se_before.iter().chain(&p.se_after).copied());
     let legend = match &p.unit {
-        Some(u) => format!("kriging SE ({u})"),
-        None => "kriging SE".into(),
+        Some(u) => format!("{} ({u})", p.se_kind),
+        None => p.se_kind.clone(),
     };
+    let cap_now = format!(
+        "{} of the indicator at every pot with the current loggers (triangles).",
+        capitalise(&p.se_kind)
+    );
     let now: Vec<SensorPoint> = p
         .loggers
         .iter()
@@ -169,13 +183,7 @@ pub fn render_placement(p: &PlacementPage) -> String {
         silent: false,
     }));
     for (id, title, se, sensors, cap) in [
-        (
-            "se-now",
-            "SE with the current loggers",
-            &p.se_before,
-            &now,
-            "Kriging SE of the indicator at every pot with the current loggers (triangles).",
-        ),
+        ("se-now", "SE with the current loggers", &p.se_before, &now, cap_now.as_str()),
         (
             "se-after",
             "SE with the added loggers",
@@ -261,14 +269,15 @@ pub fn render_placement(p: &PlacementPage) -> String {
 
     let _ = writeln!(
         out,
-        "<section id=\"how\">\n<h2>4. How this was worked out</h2>\n<table>\n<tr><th>indicator</th><td>{}{}</td></tr>\n<tr><th>kriging</th><td>{}</td></tr>\n<tr><th>variogram</th><td>{}</td></tr>\n<tr><th>variogram from</th><td>{}</td></tr>\n<tr><th>candidates</th><td>{}</td></tr>\n<tr><th>chosen for</th><td>the {obj} SE over the pots</td></tr>\n<tr><th>time</th><td>{} s</td></tr>\n</table>\n<p>Each logger is chosen, given those before it, as the candidate that lowers the {obj} SE most; the kriging variances are updated after each choice without a new solve (the kriging update equations). A greedy choice need not be the best set overall; the tests compare it with an exhaustive search on small cases. The SE is that of the indicator over the study period at each pot, with the kriging conventions of the map.</p>\n</section>",
+        "<section id=\"how\">\n<h2>4. How this was worked out</h2>\n<table>\n<tr><th>indicator</th><td>{}{}</td></tr>\n<tr><th>kriging</th><td>{}</td></tr>\n<tr><th>variogram</th><td>{}</td></tr>\n<tr><th>variogram from</th><td>{}</td></tr>\n<tr><th>candidates</th><td>{}</td></tr>\n<tr><th>chosen for</th><td>the {obj} SE over the pots</td></tr>\n<tr><th>time</th><td>{} s</td></tr>\n</table>\n<p>Each logger is chosen, given those before it, as the candidate that lowers the {obj} SE most; the kriging variances are updated after each choice without a new solve (the kriging update equations). A greedy choice need not be the best set overall; the tests compare it with an exhaustive search on small cases. {}</p>\n</section>",
         escape(&p.indicator),
         p.unit.as_deref().map(|u| format!(" ({})", escape(u))).unwrap_or_default(),
         escape(&p.method),
         escape(&p.variogram),
         escape(&p.variogram_source),
         escape(&p.candidates),
-        sig(p.seconds, 3)
+        sig(p.seconds, 3),
+        escape(&p.se_how)
     );
     foot(&mut out, "<code>plan.csv</code> and <code>plan_pots.csv</code>");
     out

@@ -57,6 +57,8 @@ use super::kriging::Interpolator;
 use super::variogram::VariogramModel;
 use faer::Mat;
 
+pub mod window;
+
 /// What the greedy selection minimises over the pots.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "snake_case")]
@@ -85,13 +87,41 @@ impl Objective {
         }
     }
 
-    /// The objective of a set of kriging variances (square roots taken).
-    pub fn of_variances(self, var: &[f64]) -> f64 {
-        let se = var.iter().map(|v| v.max(0.0).sqrt());
-        match self {
-            Objective::MeanSe => se.sum::<f64>() / var.len().max(1) as f64,
-            Objective::MaxSe => se.fold(0.0, f64::max),
+    /// The objective of the pots' SEs.
+    pub fn of_se(self, se: impl Iterator<Item = f64>) -> f64 {
+        let (mut sum, mut max, mut n) = (0.0, 0.0_f64, 0usize);
+        for s in se {
+            sum += s;
+            max = max.max(s);
+            n += 1;
         }
+        match self {
+            Objective::MeanSe => sum / n.max(1) as f64,
+            Objective::MaxSe => max,
+        }
+    }
+
+    /// The objective of the pots' kriging variances read by `pot_se`.
+    pub fn of_variances(self, var: &[f64], pot_se: &dyn PotSe) -> f64 {
+        self.of_se(var.iter().enumerate().map(|(t, v)| pot_se.se(t, *v)))
+    }
+}
+
+/// The standard error a placement lowers at a pot, as a function of the
+/// pot's kriging variance under the placement's variogram.
+pub trait PotSe: Sync {
+    /// The SE at pot `pot` (index into the pots) whose kriging variance is
+    /// `variance`.
+    fn se(&self, pot: usize, variance: f64) -> f64;
+}
+
+/// The kriging SE itself, `sqrt(variance)`.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct KrigingSe;
+
+impl PotSe for KrigingSe {
+    fn se(&self, _pot: usize, variance: f64) -> f64 {
+        variance.max(0.0).sqrt()
     }
 }
 
@@ -341,25 +371,27 @@ impl Tracker {
         &self.var_t
     }
 
-    /// Kriging SE at each pot.
-    pub fn se(&self) -> Vec<f64> {
-        self.var_t.iter().map(|v| v.sqrt()).collect()
+    /// The SE at each pot, read by `pot_se` from its kriging variance.
+    pub fn se(&self, pot_se: &dyn PotSe) -> Vec<f64> {
+        self.var_t.iter().enumerate().map(|(t, v)| pot_se.se(t, *v)).collect()
     }
 
     /// The objective after adding candidate `c` (not yet added), or `None`
     /// when `c` was added already or stands where the field is known.
-    /// Cost O(m).
-    pub fn objective_with(&self, c: usize, objective: Objective) -> Option<f64> {
+    /// Cost O(m) calls of `pot_se`.
+    pub fn objective_with(&self, c: usize, objective: Objective, pot_se: &dyn PotSe) -> Option<f64> {
         if self.spent[c] {
             return None;
         }
         let v = self.e_cc[c * self.q + c];
         let col = &self.e_tc[c * self.m..(c + 1) * self.m];
-        let se = self.var_t.iter().zip(col).map(|(var, e)| (var - e * e / v).max(0.0).sqrt());
-        Some(match objective {
-            Objective::MeanSe => se.sum::<f64>() / self.m.max(1) as f64,
-            Objective::MaxSe => se.fold(0.0, f64::max),
-        })
+        let se = self
+            .var_t
+            .iter()
+            .zip(col)
+            .enumerate()
+            .map(|(t, (var, e))| pot_se.se(t, (var - e * e / v).max(0.0)));
+        Some(objective.of_se(se))
     }
 
     /// Add candidate `s` as a logger: the rank-one update of every error
@@ -400,7 +432,9 @@ impl Tracker {
 /// that most lowers `objective` given the loggers before it (greedy forward
 /// selection; ties go to the lower candidate index), and cost every current
 /// logger's removal. Stops early when no candidate lowers the variance any
-/// more. See the module docs for the algebra and its cost.
+/// more. `pot_se` reads a pot's SE from its kriging variance
+/// ([`KrigingSe`] for the kriging SE itself). See the module docs for the
+/// algebra and its cost.
 pub fn place(
     setting: &Setting,
     loggers: &Points,
@@ -408,14 +442,15 @@ pub fn place(
     candidates: &Points,
     k: usize,
     objective: Objective,
+    pot_se: &dyn PotSe,
 ) -> Result<PlacementResult> {
     let mut tr = Tracker::new(setting, loggers, pots, candidates)?;
-    let before = tr.se();
+    let before = tr.se(pot_se);
     let mut added = Vec::new();
     for _ in 0..k {
         let mut best: Option<(usize, f64)> = None;
         for c in 0..candidates.len() {
-            if let Some(o) = tr.objective_with(c, objective)
+            if let Some(o) = tr.objective_with(c, objective, pot_se)
                 && best.is_none_or(|(_, b)| o < b)
             {
                 best = Some((c, o));
@@ -423,20 +458,26 @@ pub fn place(
         }
         let Some((c, _)) = best else { break };
         tr.add(c);
-        let se = tr.se();
+        let se = tr.se(pot_se);
         added.push(Added {
             candidate: c,
-            mean_se: Objective::MeanSe.of_variances(tr.variances()),
-            max_se: se.iter().copied().fold(0.0, f64::max),
+            mean_se: Objective::MeanSe.of_se(se.iter().copied()),
+            max_se: Objective::MaxSe.of_se(se.iter().copied()),
         });
     }
-    let removals = removal_costs(setting, loggers, pots)?;
-    Ok(PlacementResult { before, after: tr.se(), added, removals })
+    let removals = removal_costs(setting, loggers, pots, pot_se)?;
+    Ok(PlacementResult { before, after: tr.se(pot_se), added, removals })
 }
 
-/// The kriging SE over the pots with each current logger taken away alone
-/// (the leave-one-out identity of the module docs). Cost: O(n^3 + n^2 m).
-pub fn removal_costs(setting: &Setting, loggers: &Points, pots: &Points) -> Result<Vec<Removal>> {
+/// The kriging variance at each pot with the current loggers, then with
+/// each current logger taken away alone (`None` where the trend cannot do
+/// without it), by the leave-one-out identity of the module docs. Cost:
+/// O(n^3 + n^2 m).
+pub fn removal_variances(
+    setting: &Setting,
+    loggers: &Points,
+    pots: &Points,
+) -> Result<(Vec<f64>, Vec<Option<Vec<f64>>>)> {
     let n = loggers.len();
     let empty = Points { ids: vec![], x: vec![], y: vec![] };
     let s = Setting {
@@ -444,29 +485,45 @@ pub fn removal_costs(setting: &Setting, loggers: &Points, pots: &Points) -> Resu
         ..setting.clone()
     };
     check_setting(&s, loggers, pots, &empty)?;
-    let Some(sys) = factor_loggers(&s, loggers)? else { return Ok(Vec::new()) };
+    let sill = s.model.sill();
+    let Some(sys) = factor_loggers(&s, loggers)? else { return Ok((vec![sill; pots.len()], Vec::new())) };
     let dv = s.drift.as_ref().filter(|_| s.method == Interpolator::ExternalDrift);
     let st = solve_points(&s, Some(&sys), loggers, pots, dv.map(|d| d.pots.as_slice()));
-    let sill = s.model.sill();
     let var: Vec<f64> = (0..pots.len()).map(|t| (sill - quad(&st, t, &st, t)).max(0.0)).collect();
     // Diagonal of the loggers' block of A^-1: solve for the unit vectors.
     let p = sys.p();
     let (inv, _) = sys.solve(&Mat::identity(n, n), &Mat::zeros(p, n));
-    let mut out = Vec::with_capacity(n);
-    for i in 0..n {
-        let b = inv[(i, i)];
-        if !(b.is_finite() && b > 1e-12 / sill) {
-            out.push(Removal { logger: i, se: None });
-            continue;
-        }
-        let without: Vec<f64> =
-            (0..pots.len()).map(|t| var[t] + st.lambda[(i, t)] * st.lambda[(i, t)] / b).collect();
-        out.push(Removal {
+    let without = (0..n)
+        .map(|i| {
+            let b = inv[(i, i)];
+            (b.is_finite() && b > 1e-12 / sill).then(|| {
+                (0..pots.len()).map(|t| var[t] + st.lambda[(i, t)] * st.lambda[(i, t)] / b).collect()
+            })
+        })
+        .collect();
+    Ok((var, without))
+}
+
+/// The SEs over the pots (read by `pot_se`) with each current logger taken
+/// away alone ([`removal_variances`]).
+pub fn removal_costs(
+    setting: &Setting,
+    loggers: &Points,
+    pots: &Points,
+    pot_se: &dyn PotSe,
+) -> Result<Vec<Removal>> {
+    let (_, without) = removal_variances(setting, loggers, pots)?;
+    Ok(without
+        .into_iter()
+        .enumerate()
+        .map(|(i, w)| Removal {
             logger: i,
-            se: Some((Objective::MeanSe.of_variances(&without), Objective::MaxSe.of_variances(&without))),
-        });
-    }
-    Ok(out)
+            se: w.map(|w| {
+                let se: Vec<f64> = w.iter().enumerate().map(|(t, v)| pot_se.se(t, *v)).collect();
+                (Objective::MeanSe.of_se(se.iter().copied()), Objective::MaxSe.of_se(se.iter().copied()))
+            }),
+        })
+        .collect())
 }
 
 /// A regular grid of candidate positions over `[0, length] x [0, width]`

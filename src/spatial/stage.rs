@@ -53,7 +53,7 @@ use super::outputs::{
     pot_covariates_csv, variogram_fits_csv, variogram_ml_fits_csv, variograms_csv,
 };
 use super::paths::{Evened, Paths};
-use super::stage_check::{KrigedAt, indicator_moments, self_check, single_kriged};
+use super::stage_check::{PotWindowSe, self_check, single_kriged};
 use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
 use crate::climate::{ClimateError, ClimateRun, Combine};
@@ -167,6 +167,8 @@ pub struct MapRun {
     /// without a move table. `variables[..].mapped` then holds each pot's
     /// series along its path.
     pub moves: Option<super::paths::MovedPots>,
+    /// Each pot's growth window, as a range of the calendar's days.
+    pub windows: Vec<std::ops::Range<usize>>,
 }
 
 pub(super) fn base_variables(v: Variable) -> &'static [&'static str] {
@@ -514,7 +516,6 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         variables.push(v);
     }
     let get = |name: &str| variables.iter().find(|v| v.name == name);
-    let n_steps = climate.calendar.n_steps;
     let min_cov = climate.config.spec.min_coverage;
     let along = PotSeries::of(variables.iter().map(|v| (v.name, &v.mapped, v.mapped_se.as_ref())));
     let checked = self_check(climate, &sensors, &openings, &variables, min_cov);
@@ -530,21 +531,9 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         let calibrated = checked.calibration[i].zip(single_kriged(ind, &variables));
         let se = match get(base) {
             _ if calibrated.is_some() => {
-                let (c, v) = calibrated.expect("checked");
-                let se_m = v.mapped_se.as_ref().expect("single_kriged has SEs");
-                let ses: Option<Vec<f64>> = (0..pots.len())
-                    .map(|j| {
-                        let at = KrigedAt {
-                            variable: v.name,
-                            mu: &v.mapped.as_slice()[j * n_steps..(j + 1) * n_steps],
-                            se: &se_m.as_slice()[j * n_steps..(j + 1) * n_steps],
-                            scale: c.step_scale,
-                        };
-                        indicator_moments(ind, cal, &at, c.share, &nodes, min_cov, windows[j].clone())
-                            .map(|m| (c.inflation * m.variance()).sqrt())
-                    })
-                    .collect();
-                ses
+                let (calibration, variable) = calibrated.expect("checked");
+                let at = PotWindowSe { ind, cal, variable, calibration, nodes: &nodes, min_cov };
+                (0..pots.len()).map(|j| at.at(j, windows[j].clone(), 1.0)).collect::<Option<Vec<f64>>>()
             }
             Some(v) if v.spec.method.is_kriging() => {
                 let sensor_vals: Vec<f64> =
@@ -636,6 +625,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         }
     }
     Ok(MapRun {
+        windows,
         ml_fits,
         ml_nugget: cfg.fit_nugget,
         pots: pots_table.ids.clone(),

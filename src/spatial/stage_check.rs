@@ -84,6 +84,39 @@ pub(super) fn indicator_moments(
     })
 }
 
+/// The window SE of one indicator at the pots of a map, from the pots'
+/// per-step kriging errors under the indicator's calibration
+/// ([`super::window_se`]): what the stage reports, and what a logger
+/// placement lowers ([`super::placement::window`]).
+pub(crate) struct PotWindowSe<'a> {
+    pub(crate) ind: &'a crate::climate::Indicator,
+    pub(crate) cal: &'a crate::climate::Calendar,
+    pub(crate) variable: &'a VariableMap,
+    pub(crate) calibration: super::window_se::Calibration,
+    pub(crate) nodes: &'a [(f64, f64)],
+    pub(crate) min_cov: f64,
+}
+
+impl PotWindowSe<'_> {
+    /// The SE at pot `j` over the days `window` with every per-step SE of
+    /// the pot multiplied by `ratio` (1: the map's own SE); `None` without
+    /// per-step SEs or a value.
+    pub(crate) fn at(&self, j: usize, window: std::ops::Range<usize>, ratio: f64) -> Option<f64> {
+        let v = self.variable;
+        let se_m = v.mapped_se.as_ref()?;
+        let n = v.mapped.nrows();
+        let c = &self.calibration;
+        let at = KrigedAt {
+            variable: v.name,
+            mu: &v.mapped.as_slice()[j * n..(j + 1) * n],
+            se: &se_m.as_slice()[j * n..(j + 1) * n],
+            scale: c.step_scale * ratio,
+        };
+        indicator_moments(self.ind, self.cal, &at, c.share, self.nodes, self.min_cov, window)
+            .map(|m| (c.inflation * m.variance()).sqrt())
+    }
+}
+
 /// The single kriged variable an indicator is computed from, when it has
 /// per-step SEs (temperature, humidity or light indicators mapped by a
 /// kriging method; not VPD or dew point, which combine two variables).
