@@ -110,13 +110,24 @@ fn same_seed_same_numbers_whatever_the_threads() {
     let b = rows(&d.join("out/power_studies.csv"));
     assert_eq!(a.len(), 4);
     let seconds = a[0].iter().position(|h| h == "seconds").unwrap();
-    for (x, y) in a.iter().zip(&b) {
-        for (k, (u, v)) in x.iter().zip(y).enumerate() {
-            if k != seconds {
-                assert_eq!(u, v, "{x:?} vs {y:?}");
+    let same = |a: &[Vec<String>], b: &[Vec<String>]| {
+        for (x, y) in a.iter().zip(b) {
+            for (k, (u, v)) in x.iter().zip(y).enumerate() {
+                if k != seconds {
+                    assert_eq!(u, v, "{x:?} vs {y:?}");
+                }
             }
         }
-    }
+    };
+    same(&a, &b);
+    // With a second effect before it, each seed's climate and map are made
+    // once and serve both effects: the studies at -0.1 are the same as when
+    // it is the only effect.
+    plan(d, "two.toml", "[0.0, -0.1]", 3, "two");
+    ok(potclim(&["power", "two.toml"], d));
+    let c = rows(&d.join("two/power_studies.csv"));
+    assert_eq!(c.len(), 7);
+    same(&a[1..], &c[4..]);
     // A bad driver name is refused with the plan file, the key and the choices.
     std::fs::write(
         d.join("bad.toml"),

@@ -192,14 +192,31 @@ fn stage_err(stage: Stage, e: impl Into<StageError>) -> String {
 /// holds the driver, and the driver's estimate with its 95 % CI.
 type Analysed = (String, String, bool, Option<(f64, f64, f64)>);
 
-/// Simulate one study into `work` (emptied first) and analyse it.
-fn one_study(
-    sc: &Scenario,
-    seed: u64,
-    work: &Path,
-    driver: &str,
-    draws: Option<usize>,
-) -> Result<Analysed, String> {
+/// Whether the study generated as `b` has the same climate, layout and
+/// windows as the one generated as `a`, so that `a`'s climate and map serve
+/// it: the files differ at most in the simulator's truth folder and in the
+/// trait (the last column of `pots.csv`). With common random numbers this
+/// holds for every effect size of one seed and logger count, since the
+/// simulator draws the climate from its own random stream.
+fn same_climate(a: &[(String, Vec<u8>)], b: &[(String, Vec<u8>)]) -> bool {
+    let strip = |bytes: &[u8]| -> Vec<Vec<u8>> {
+        bytes
+            .split(|&c| c == b'\n')
+            .map(|line| match line.iter().rposition(|&c| c == b',') {
+                Some(i) => line[..i].to_vec(),
+                None => line.to_vec(),
+            })
+            .collect()
+    };
+    a.len() == b.len()
+        && a.iter().zip(b).all(|((na, ba), (nb, bb))| {
+            na == nb && (na.starts_with("truth/") || ba == bb || (na == "pots.csv" && strip(ba) == strip(bb)))
+        })
+}
+
+/// Simulate one study of `sc` with `seed` into `work` (emptied first);
+/// returns the generated files.
+fn simulate_into(sc: &Scenario, seed: u64, work: &Path) -> Result<Vec<(String, Vec<u8>)>, String> {
     let files = crate::simulate::generate(sc, seed).map_err(|e| format!("{e:#}"))?;
     let _ = std::fs::remove_dir_all(work);
     for (name, bytes) in &files {
@@ -209,14 +226,37 @@ fn one_study(
         }
         std::fs::write(&p, bytes).map_err(|e| format!("{}: {e}", p.display()))?;
     }
+    Ok(files)
+}
+
+/// The climate and the map of a simulated study, kept for the next effect
+/// size of the same seed and logger count.
+type Mapped = (crate::climate::ClimateRun, crate::spatial::stage::MapRun);
+
+/// Analyse the study simulated into `work`: ingest, climate and map (or
+/// `reuse`, when the caller has checked with [`same_climate`] that they
+/// serve), then the verdict. Returns the analysis and the climate and map.
+fn analyse(
+    work: &Path,
+    driver: &str,
+    draws: Option<usize>,
+    reuse: Option<Mapped>,
+) -> Result<(Analysed, Mapped), String> {
     let study = Study::load(&work.join("study.toml")).map_err(|e| format!("{e:#}"))?;
-    let plan = Plan::from_study(&study).map_err(|e| format!("{:#}", anyhow::Error::from(e)))?;
-    let ing = crate::io::ingest::ingest(&study).map_err(|e| stage_err(Stage::Ingest, e))?;
-    let readings_path = study.output_dir().join(crate::io::ingest::READINGS_FILE);
-    let climate = crate::climate::stage::compute(&study, plan.climate.clone(), &ing.readings, &readings_path)
-        .map_err(|e| stage_err(Stage::Climate, e))?;
-    let map = crate::spatial::stage::compute(&study, &climate).map_err(|e| stage_err(Stage::Map, e))?;
-    let mut plan = plan;
+    let mut plan = Plan::from_study(&study).map_err(|e| format!("{:#}", anyhow::Error::from(e)))?;
+    let (climate, map) = match reuse {
+        Some(m) => m,
+        None => {
+            let ing = crate::io::ingest::ingest(&study).map_err(|e| stage_err(Stage::Ingest, e))?;
+            let readings_path = study.output_dir().join(crate::io::ingest::READINGS_FILE);
+            let climate =
+                crate::climate::stage::compute(&study, plan.climate.clone(), &ing.readings, &readings_path)
+                    .map_err(|e| stage_err(Stage::Climate, e))?;
+            let map =
+                crate::spatial::stage::compute(&study, &climate).map_err(|e| stage_err(Stage::Map, e))?;
+            (climate, map)
+        }
+    };
     if let Some(d) = draws {
         plan.verdict.draws = d;
     }
@@ -237,7 +277,7 @@ fn one_study(
             },
         }
     });
-    Ok((v.verdict.clone(), v.best_model.clone(), found, est))
+    Ok(((v.verdict.clone(), v.best_model.clone(), found, est), (climate, map)))
 }
 
 /// The outcome of `potclim power`.
@@ -328,19 +368,23 @@ pub fn run(
         .or(sec.threads)
         .filter(|&t| t > 0)
         .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |t| t.get()));
-    // Jobs: (logger count, effect, replicate), in output order.
+    // Jobs: (logger count, replicate), each over every effect size, so that
+    // one simulated climate and its map serve all effects of a seed (common
+    // random numbers, [`same_climate`]). Results are stored in output order:
+    // logger count, effect, replicate.
+    let n_eff = sec.effects.len();
     let mut jobs = Vec::new();
-    for &k in &counts {
-        for &e in &sec.effects {
-            let sc = variant(&base, sec, k, e);
-            for r in 0..n_studies {
-                jobs.push((k, e, seed0.wrapping_add(r as u64), sc.clone()));
-            }
+    for (ci, &k) in counts.iter().enumerate() {
+        let scs: Vec<Scenario> = sec.effects.iter().map(|&e| variant(&base, sec, k, e)).collect();
+        let scs = std::sync::Arc::new(scs);
+        for r in 0..n_studies {
+            jobs.push((ci, k, r, seed0.wrapping_add(r as u64), scs.clone()));
         }
     }
+    let total = jobs.len() * n_eff;
     let out = plan.resolve(sec.output.as_deref().unwrap_or("power-output"));
     let work_root = out.join(format!(".power-work-{}", std::process::id()));
-    let results: Mutex<Vec<Option<StudyOutcome>>> = Mutex::new(vec![None; jobs.len()]);
+    let results: Mutex<Vec<Option<StudyOutcome>>> = Mutex::new(vec![None; total]);
     let next = AtomicUsize::new(0);
     let done = AtomicUsize::new(0);
     std::thread::scope(|s| {
@@ -350,30 +394,46 @@ pub fn run(
                 let work = work_root.join(format!("w{w}"));
                 loop {
                     let i = next.fetch_add(1, Ordering::SeqCst);
-                    let Some((k, e, seed, sc)) = jobs.get(i) else { break };
-                    let t = Instant::now();
-                    let r = one_study(sc, *seed, &work, &sec.driver, sec.draws);
-                    let mut o = StudyOutcome {
-                        loggers: *k,
-                        effect: *e,
-                        seed: *seed,
-                        verdict: "error".into(),
-                        chosen: String::new(),
-                        found: false,
-                        estimate: None,
-                        seconds: t.elapsed().as_secs_f64(),
-                        error: None,
-                    };
-                    match r {
-                        Ok((verdict, chosen, found, est)) => {
-                            (o.verdict, o.chosen, o.found, o.estimate) = (verdict, chosen, found, est)
+                    let Some((ci, k, r, seed, scs)) = jobs.get(i) else { break };
+                    // The first effect's files and map, for the effects after it.
+                    let mut first: Option<(Vec<(String, Vec<u8>)>, Mapped)> = None;
+                    for (ei, (sc, &e)) in scs.iter().zip(&sec.effects).enumerate() {
+                        let t = Instant::now();
+                        let r_one = simulate_into(sc, *seed, &work).and_then(|files| {
+                            let reuse = match first.take() {
+                                Some((f0, m)) if same_climate(&f0, &files) => Some((f0, m)),
+                                _ => None,
+                            };
+                            let (f0, m) = match reuse {
+                                Some((f0, m)) => (f0, Some(m)),
+                                None => (files, None),
+                            };
+                            let (a, mapped) = analyse(&work, &sec.driver, sec.draws, m)?;
+                            first = Some((f0, mapped));
+                            Ok(a)
+                        });
+                        let mut o = StudyOutcome {
+                            loggers: *k,
+                            effect: e,
+                            seed: *seed,
+                            verdict: "error".into(),
+                            chosen: String::new(),
+                            found: false,
+                            estimate: None,
+                            seconds: t.elapsed().as_secs_f64(),
+                            error: None,
+                        };
+                        match r_one {
+                            Ok((verdict, chosen, found, est)) => {
+                                (o.verdict, o.chosen, o.found, o.estimate) = (verdict, chosen, found, est)
+                            }
+                            Err(msg) => o.error = Some(msg),
                         }
-                        Err(msg) => o.error = Some(msg),
+                        if let Ok(mut g) = results.lock() {
+                            g[(ci * n_eff + ei) * n_studies + r] = Some(o);
+                        }
+                        progress(done.fetch_add(1, Ordering::SeqCst) + 1, total);
                     }
-                    if let Ok(mut g) = results.lock() {
-                        g[i] = Some(o);
-                    }
-                    progress(done.fetch_add(1, Ordering::SeqCst) + 1, jobs.len());
                 }
                 let _ = std::fs::remove_dir_all(&work);
             });
@@ -517,6 +577,23 @@ mod tests {
     use super::{PowerSection, variant, wilson};
     use crate::simulate::Scenario;
     use approx::assert_abs_diff_eq;
+
+    /// One seed's studies at two effect sizes share their climate and map
+    /// (only the trait column and the truth differ); two seeds do not.
+    #[test]
+    fn effects_of_one_seed_share_the_climate() {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/golden/scenario.toml");
+        let base = Scenario::load(std::path::Path::new(path)).unwrap();
+        let sec: PowerSection =
+            toml::from_str("scenario = \"x\"\ndriver = \"night_cool_hours\"\neffects = [0.0]").unwrap();
+        let make = |e: f64, seed: u64| crate::simulate::generate(&variant(&base, &sec, 6, e), seed).unwrap();
+        let (a, b) = (make(0.0, 3), make(-0.2, 3));
+        assert_ne!(a, b, "the trait differs");
+        assert!(super::same_climate(&a, &b));
+        assert!(!super::same_climate(&a, &make(0.0, 4)));
+        let fewer = crate::simulate::generate(&variant(&base, &sec, 3, 0.0), 3).unwrap();
+        assert!(!super::same_climate(&a, &fewer));
+    }
 
     /// The demo scenario cut to its first 4 and 7 loggers: only their exports
     /// and faults remain, the driver's effect and the draught are set, and the
