@@ -18,7 +18,10 @@
 //!
 //! The same seeds are used at every effect and logger count (common random
 //! numbers: the curves differ only by what changed, not by the draw of the
-//! climate and the residual field). Studies run on all cores, one study per
+//! climate and the residual field). Since the simulator draws the climate
+//! from its own random stream, the studies of one seed and logger count
+//! differ only in the trait, and their climate and map are computed once
+//! for every effect size ([`same_climate`] checks it on the files). Studies run on all cores, one study per
 //! thread at a time, each in its own work folder; the numbers do not depend on
 //! the number of threads (each study's randomness is its own seed's, and the
 //! results are stored by study index).
