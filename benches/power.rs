@@ -10,8 +10,9 @@
 //! demo run, and the projected time of the target
 //! (5 effect sizes x 100 studies of 480 pots).
 //!
-//! Run: `cargo bench --bench power` (release profile). Studies per setting:
-//! `POTCLIM_BENCH_STUDIES` (default 2; every study is a whole analysis).
+//! Run: `cargo bench --bench power` (release profile). Seeds per setting:
+//! `POTCLIM_BENCH_STUDIES` (default 2), each analysed at the five effect
+//! sizes of [`EFFECTS`] (one climate and map per seed serve all five).
 
 use potclim::io::study::Study;
 use potclim::model::progress::Silent;
@@ -44,7 +45,7 @@ fn per_study(dir: &Path, scenario: &Path, extra: &str, studies: usize, threads: 
     std::fs::write(
         &plan,
         format!(
-            "[power]\nscenario = \"{}\"\ndriver = \"night_cold_hours\"\neffects = [-0.12]\nstudies = {studies}\nseed = 1\noutput = \"power-out\"\n{extra}\n",
+            "[power]\nscenario = \"{}\"\ndriver = \"night_cold_hours\"\neffects = {EFFECTS}\nstudies = {studies}\nseed = 1\noutput = \"power-out\"\n{extra}\n",
             scenario.display()
         ),
     )
@@ -54,9 +55,15 @@ fn per_study(dir: &Path, scenario: &Path, extra: &str, studies: usize, threads: 
     let r = run(&plan, Overrides { studies: None, threads: Some(threads) }, &|_, _| {}).unwrap();
     let failed: usize = r.page.points.iter().map(|q| q.failed).sum();
     assert_eq!(failed, 0, "a simulated study failed: {:?}", r.studies);
-    let on_thread = r.studies.iter().map(|o| o.seconds).sum::<f64>() / studies as f64;
-    (on_thread, t.elapsed().as_secs_f64() / studies as f64)
+    let n = r.studies.len() as f64;
+    let on_thread = r.studies.iter().map(|o| o.seconds).sum::<f64>() / n;
+    (on_thread, t.elapsed().as_secs_f64() / n)
 }
+
+/// The effect sizes of the target's curve: each seed's climate and map
+/// serve all five (`potclim::planner::power`), so the time per study is the
+/// mean over a whole curve's studies.
+const EFFECTS: &str = "[0.0, -0.03, -0.06, -0.09, -0.12]";
 
 fn main() {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
@@ -79,7 +86,7 @@ fn main() {
     for (label, extra) in [("4 families (demo grid)", ""), ("1 family", "correlations = [\"exponential\"]")] {
         let (one, all) = per_study(d, &full, extra, studies, cores);
         println!(
-            "{label}: {one:.2} s per study on its thread ({:.2} x demo run); {studies} studies on {cores} threads: {all:.2} s of wall clock per study ({:.2} x demo run); 5 x 100 studies: {:.1} min",
+            "{label}: {one:.2} s per study on its thread ({:.2} x demo run); 5 x {studies} studies on {cores} threads: {all:.2} s of wall clock per study ({:.2} x demo run); 5 x 100 studies: {:.1} min",
             one / demo,
             all / demo,
             500.0 * all / 60.0
