@@ -651,16 +651,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
                     drift,
                     checks: checks.iter().filter(|c| c.indicator == ind.name).collect(),
                 };
-                super::indicator_route::consider(
-                    &cand,
-                    climate,
-                    &sensors,
-                    &pots,
-                    &windows,
-                    &cfg.families,
-                    cfg.fit_nugget,
-                    cfg.neighbours,
-                )
+                super::indicator_route::consider(&cand, climate, &sensors, &pots, &windows, &cfg)
             }
             _ => None,
         };
