@@ -53,6 +53,35 @@ struct MapOutcome {
     door20: f64,
     msse: f64,
     true_sd: f64,
+    /// The indicator's route (`mapping_cv.csv`): whether the direct route
+    /// (its own variogram) was chosen, and the left-out RMSE of both routes
+    /// at the loggers `(per-step, direct)`.
+    direct_chosen: bool,
+    route_rmse: (f64, f64),
+}
+
+/// The two route rows of `night_cold_hours` in `mapping_cv.csv`.
+fn route(path: &Path) -> (bool, (f64, f64)) {
+    let mut r = csv::Reader::from_path(path).unwrap();
+    let h = r.headers().unwrap().clone();
+    let at = |c: &str| h.iter().position(|x| x == c).unwrap();
+    let (mut chosen, mut rm) = (false, (f64::NAN, f64::NAN));
+    for rec in r.records() {
+        let rec = rec.unwrap();
+        if &rec[at("variable")] != "night_cold_hours" {
+            continue;
+        }
+        let rmse: f64 = rec[at("rmse")].parse().unwrap();
+        match &rec[at("route")] {
+            "per_step_pooled" => rm.0 = rmse,
+            "indicator_variogram" => {
+                rm.1 = rmse;
+                chosen = &rec[at("chosen")] == "true";
+            }
+            _ => {}
+        }
+    }
+    (chosen, rm)
 }
 
 fn run_one(scenario: &str, seed: u64) -> MapOutcome {
@@ -88,7 +117,8 @@ fn run_one(scenario: &str, seed: u64) -> MapOutcome {
         / near.iter().map(|p| truth[*p][0]).sum::<f64>();
     let mean = truth.values().map(|t| t[0]).sum::<f64>() / n;
     let true_sd = (truth.values().map(|t| (t[0] - mean).powi(2)).sum::<f64>() / n).sqrt();
-    MapOutcome { seed, rmse: (sse / n).sqrt(), door20, msse: z2 / n, true_sd }
+    let (direct_chosen, route_rmse) = route(&study.join("output/mapping_cv.csv"));
+    MapOutcome { seed, rmse: (sse / n).sqrt(), door20, msse: z2 / n, true_sd, direct_chosen, route_rmse }
 }
 
 /// Seeds 1..=N of both scenarios; prints one line per run and a summary per
@@ -105,12 +135,15 @@ fn map_study() {
         let runs: Vec<MapOutcome> = (1..=n).map(|s| run_one(scenario, s)).collect();
         for o in &runs {
             println!(
-                "{scenario} seed {:>3}: RMSE {:.2} h (true SD {:.1} h), door-20 error {:.1} %, MSSE {:.3}",
+                "{scenario} seed {:>3}: RMSE {:.2} h (true SD {:.1} h), door-20 error {:.1} %, MSSE {:.3}; left-out RMSE per-step {:.2} h, own variogram {:.2} h{}",
                 o.seed,
                 o.rmse,
                 o.true_sd,
                 100.0 * o.door20,
-                o.msse
+                o.msse,
+                o.route_rmse.0,
+                o.route_rmse.1,
+                if o.direct_chosen { " (own variogram chosen)" } else { "" }
             );
         }
         let mut m: Vec<f64> = runs.iter().map(|o| o.msse).collect();
@@ -127,6 +160,18 @@ fn map_study() {
             m[m.len() - 1],
             runs.iter().map(|o| o.rmse).sum::<f64>() / n as f64,
             100.0 * runs.iter().map(|o| o.door20).sum::<f64>() / n as f64
+        );
+        let mut own: Vec<f64> = runs.iter().map(|o| o.route_rmse.1).collect();
+        own.sort_by(f64::total_cmp);
+        println!(
+            "{scenario}: the indicator's own variogram chosen in {}/{n}; its left-out RMSE median {:.2} h (per-step route {:.2} h)",
+            runs.iter().filter(|o| o.direct_chosen).count(),
+            own[own.len() / 2],
+            {
+                let mut p: Vec<f64> = runs.iter().map(|o| o.route_rmse.0).collect();
+                p.sort_by(f64::total_cmp);
+                p[p.len() / 2]
+            }
         );
         assert!(m.iter().all(|v| v.is_finite()), "{scenario}: {m:?}");
         assert!(4 * within >= 3 * n as usize, "{scenario}: {within}/{n} within 0.5-2");

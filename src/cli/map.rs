@@ -71,6 +71,9 @@ pub fn summary(run: &MapRun) -> String {
             s.push('\n');
         }
     }
+    for r in run.routes.iter().flatten() {
+        s.push_str(&format!("route        {}\n", r.reason()));
+    }
     for c in run.checks.iter().filter(|c| !c.nearest_to.is_empty()) {
         s.push_str(&format!(
             "check        {} at logger {} (nearest to {}): {:.4} without it, {:.4} measured{}\n",

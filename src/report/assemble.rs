@@ -114,7 +114,11 @@ pub fn climate(ing: &Ingested, climate: &ClimateRun, map: &MapRun) -> ClimateSec
             name: col.name.clone(),
             unit,
             description: Some(if col.se.is_some() {
-                "kriged from the loggers over each pot's own growth window".into()
+                let route = map.routes.get(k).and_then(|r| r.as_ref()).map(|r| format!("; {}", r.reason()));
+                format!(
+                    "kriged from the loggers over each pot's own growth window{}",
+                    route.unwrap_or_default()
+                )
             } else {
                 "mapped without a standard error (the SE map shows 0)".into()
             }),

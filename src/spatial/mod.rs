@@ -23,6 +23,7 @@ pub mod error;
 pub mod exposure;
 pub mod factor;
 pub mod geometry;
+pub mod indicator_route;
 pub mod kriging;
 pub mod likelihood;
 pub mod mapping;

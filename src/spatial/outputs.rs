@@ -10,6 +10,7 @@
 use super::correlation::Family;
 use super::error::{Result, SpatialError};
 use super::geometry::DISTANCE_PREFIX;
+use super::kriging::Interpolator;
 use super::mapping::CvScore;
 use super::variogram::{Empirical, MlFit, VariogramFit};
 use super::window_se::Calibration;
@@ -217,8 +218,15 @@ pub fn variogram_fits_csv(rows: &[FitsRow]) -> Result<Vec<u8>> {
 /// and nearest sensor), `chosen`, `reason` (why `auto` chose it, on the
 /// chosen row), `drift` (the opening whose decaying distance is the external
 /// drift, else empty) and `decay_length` (its decay length `L` in metres,
-/// estimated by cross-validation, else empty).
-pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
+/// estimated by cross-validation, else empty), `route` (`per_step`: the
+/// variable's per-step series scored step by step). Then, per indicator whose
+/// route was weighed ([`super::indicator_route`]), two rows with the
+/// indicator's name as `variable`, scored on its left-out window values at
+/// the loggers: `route` `per_step_pooled` (the map from the per-step
+/// kriging, `method` as chosen above) and `indicator_variogram` (the
+/// indicator kriged with its own REML variogram); `n` is the loggers
+/// compared, `chosen` marks the route that maps it and `reason` says why.
+pub fn mapping_cv_csv(rows: &[CvRow], routes: &[&super::indicator_route::RouteChoice]) -> Result<Vec<u8>> {
     let mut w = CsvTable::new([
         "variable",
         "method",
@@ -230,6 +238,7 @@ pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
         "reason",
         "drift",
         "decay_length",
+        "route",
     ]);
     for (var, scores, choice) in rows {
         for (i, s) in scores.iter().enumerate() {
@@ -245,6 +254,32 @@ pub fn mapping_cv_csv(rows: &[CvRow]) -> Result<Vec<u8>> {
                 if chosen { choice.as_ref().map(|c| c.1.clone()).unwrap_or_default() } else { String::new() },
                 s.drift.as_ref().map(|d| d.0.clone()).unwrap_or_default(),
                 opt_number(s.drift.as_ref().map(|d| d.1)),
+                "per_step".to_string(),
+            ]);
+        }
+    }
+    for r in routes {
+        let drift = |m: Interpolator| match (&r.drift, m) {
+            (Some((o, l)), Interpolator::ExternalDrift) => [o.clone(), number(*l)],
+            _ => [String::new(), String::new()],
+        };
+        for (route, m, s, chosen) in [
+            ("per_step_pooled", r.pooled_method, &r.pooled, !r.direct_chosen),
+            ("indicator_variogram", r.method, &r.direct, r.direct_chosen),
+        ] {
+            let [o, l] = drift(m);
+            w.row([
+                r.indicator.clone(),
+                m.name().to_string(),
+                s.n.to_string(),
+                number(s.rmse),
+                number(s.mean_error),
+                opt_number(s.msse),
+                chosen.to_string(),
+                if chosen { r.reason() } else { String::new() },
+                o,
+                l,
+                route.to_string(),
             ]);
         }
     }
@@ -423,9 +458,10 @@ mod tests {
                 drift: Some(("door".into(), 2.5)),
             },
         ];
-        let rows = parse(&mapping_cv_csv(&[("z", scores.as_slice(), Some((0, "because".into())))]).unwrap());
-        assert_eq!(rows[1], ["z", "ordinary", "5", "1", "0.1", "1.1", "true", "because", "", ""]);
+        let rows =
+            parse(&mapping_cv_csv(&[("z", scores.as_slice(), Some((0, "because".into())))], &[]).unwrap());
+        assert_eq!(rows[1], ["z", "ordinary", "5", "1", "0.1", "1.1", "true", "because", "", "", "per_step"]);
         assert_eq!(rows[2][5], "");
-        assert_eq!(rows[3][8..], ["door", "2.5"]);
+        assert_eq!(rows[3][8..10], ["door", "2.5"]);
     }
 }

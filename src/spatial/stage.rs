@@ -17,6 +17,12 @@
 //! 3. the whole series is mapped onto every pot with weights computed once per
 //!    set of reporting sensors ([`super::mapping::map_series`]).
 //!
+//! For an indicator of one kriged variable on pots that stay put, the
+//! indicator's own variogram is a second route: its values at the loggers
+//! kriged directly under a REML variogram with the variable's drift
+//! ([`super::indicator_route`]); the left-out loggers choose between the two
+//! routes, and the chosen one gives the pots' values, SEs and the check.
+//!
 //! Pots that move (`[pots] moves`, [`super::paths`]): the targets of step 3
 //! are every position ever held, and each pot's series is gathered from the
 //! position it held at each step before anything below; without moves the
@@ -163,6 +169,10 @@ pub struct MapRun {
     /// ([`super::window_se`]); `None` where the SEs come from the
     /// indicator's kriged study-period values.
     pub window_se: Vec<Option<super::window_se::Calibration>>,
+    /// Per indicator (parallel to `indicators`): the choice between the
+    /// pooled per-step route and the indicator's own variogram
+    /// ([`super::indicator_route`]); `None` where it was not weighed.
+    pub routes: Vec<Option<super::indicator_route::RouteChoice>>,
     /// Pots that move (`[pots] moves`): their paths and time shares; `None`
     /// without a move table. `variables[..].mapped` then holds each pot's
     /// series along its path.
@@ -611,8 +621,42 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         moved.drivers = drivers;
         moved
     });
-    let checks = checked.checks;
-    let window_se = checked.calibration;
+    let mut checks = checked.checks;
+    let mut window_se = checked.calibration;
+    // The indicator's own variogram as a route beside the per-step one
+    // (`super::indicator_route`), for indicators of one kriged variable on
+    // pots that stay put.
+    let mut routes = Vec::with_capacity(indicators.len());
+    for (i, ind) in indicators.iter().enumerate() {
+        let route = match single_kriged(ind, &variables) {
+            Some(v) if fixed && window_se[i].is_some() => {
+                let drift = v.spec.drift.as_ref().and_then(|d| {
+                    v.cv.iter().filter_map(|s| s.drift.clone()).find(|(name, _)| *name == d.name)
+                });
+                let cand = super::indicator_route::Candidate {
+                    indicator: ind,
+                    index: i,
+                    spec: &v.spec,
+                    drift,
+                    checks: checks.iter().filter(|c| c.indicator == ind.name).collect(),
+                };
+                super::indicator_route::consider(&cand, climate, &sensors, &pots, &windows, &cfg)
+            }
+            _ => None,
+        };
+        if let Some((_, Some(direct))) = &route {
+            columns[i].value = direct.value.clone();
+            columns[i].se = Some(direct.se.clone());
+            window_se[i] = None;
+            for c in checks.iter_mut().filter(|c| c.indicator == ind.name) {
+                if let Some(l) = direct.left_out.iter().find(|l| sensors.ids[l.sensor] == c.sensor) {
+                    c.predicted = l.predicted;
+                    c.se = l.se;
+                }
+            }
+        }
+        routes.push(route.map(|r| r.0));
+    }
     let mut ml_fits = Vec::new();
     for (i, ind) in indicators.iter().enumerate() {
         let vals: Vec<f64> = climate.study[i].iter().map(|w| w.value.unwrap_or(f64::NAN)).collect();
@@ -626,6 +670,7 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
     }
     Ok(MapRun {
         windows,
+        routes,
         ml_fits,
         ml_nugget: cfg.fit_nugget,
         pots: pots_table.ids.clone(),
@@ -678,7 +723,8 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
     w.write(VARIOGRAM_FITS_FILE, &variogram_fits_csv(&fits)?)?;
     let cv: Vec<super::outputs::CvRow> =
         run.variables.iter().map(|v| (v.name, v.cv.as_slice(), v.choice.clone())).collect();
-    w.write(MAPPING_CV_FILE, &mapping_cv_csv(&cv)?)?;
+    let routes: Vec<&super::indicator_route::RouteChoice> = run.routes.iter().flatten().collect();
+    w.write(MAPPING_CV_FILE, &mapping_cv_csv(&cv, &routes)?)?;
     w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(&run.ml_fits, run.ml_nugget))?;
     w.write(MAPPING_CHECK_FILE, &super::selfcheck::mapping_check_csv(&run.checks)?)?;
     w.write(MAPPING_SE_FILE, &mapping_se_csv(&run.indicators, &run.window_se))?;
