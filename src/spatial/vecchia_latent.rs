@@ -398,8 +398,9 @@ impl LatentVecchia {
     }
 
     /// The profiled likelihood at `params` (module docs); the normalised
-    /// residuals only when `residuals` (else `whitened` is empty).
-    fn evaluate(
+    /// residuals only when `residuals` (else `whitened` is empty: the search
+    /// of [`maximise_latent`] needs none). [`profiled_latent`] asks for them.
+    pub fn evaluate(
         &self,
         params: &CovParams,
         x: &[Vec<f64>],

@@ -230,3 +230,65 @@ fn bad_input_is_refused() {
     assert!(LatentVecchia::with_locations(pots.clone(), locs.clone(), &[0, 0]).is_err());
     assert!(LatentVecchia::with_locations(pots, locs, &[0, 5]).is_err());
 }
+
+fn numbers(v: &serde_json::Value) -> Vec<f64> {
+    v.as_array().unwrap().iter().map(|t| t.as_f64().unwrap()).collect()
+}
+
+fn indices(v: &serde_json::Value) -> Vec<usize> {
+    v.as_array().unwrap().iter().map(|t| t.as_u64().unwrap() as usize).collect()
+}
+
+/// The positions' max-min order and neighbour sets against numpy's brute
+/// force, and the likelihood on those sets against numpy's dense latent
+/// Vecchia precision and dense marginal covariance of the pots, nine pots
+/// sharing positions (tests/reference/vecchia_latent.py): seven cases, ML
+/// and REML.
+#[test]
+fn numpy_reference() {
+    let p = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/fixtures/vecchia_latent.json");
+    let fx: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(p).unwrap()).unwrap();
+    let (lx, ly) = (numbers(&fx["location_x"]), numbers(&fx["location_y"]));
+    let loc = indices(&fx["location_of"]);
+    let (px, py): (Vec<f64>, Vec<f64>) = loc.iter().map(|&l| (lx[l], ly[l])).unzip();
+    let n = px.len();
+    let xs = vec![vec![1.0; n], numbers(&fx["covariate"])];
+    let z = numbers(&fx["response"]);
+    let m = fx["m"].as_u64().unwrap() as usize;
+    let order = indices(&fx["order"]);
+    let sets: Vec<Vec<usize>> = fx["sets"].as_array().unwrap().iter().map(indices).collect();
+    let ours_locs = Conditioning::new(&lx, &ly, m).unwrap();
+    assert_eq!(ours_locs.order(), order.as_slice());
+    for (k, s) in sets.iter().enumerate() {
+        assert_eq!(ours_locs.set(k).iter().map(|&r| r as usize).collect::<Vec<_>>(), *s, "rank {k}");
+    }
+    let pots = Conditioning::new(&px, &py, m).unwrap();
+    let locs = Conditioning::from_parts(&lx, &ly, order, &sets).unwrap();
+    let given = LatentVecchia::with_locations(pots, locs, &loc).unwrap();
+    let ours = LatentVecchia::new(&px, &py, m).unwrap();
+    assert_eq!(ours.locations(), lx.len());
+    let dist = Distances::from_coords(&px, &py).unwrap();
+    for case in fx["cases"].as_array().unwrap() {
+        let p = CovParams {
+            family: Family::parse(case["family"].as_str().unwrap()).unwrap(),
+            range: case["range"].as_f64().unwrap(),
+            eta: case["eta"].as_f64().unwrap(),
+        };
+        let method = if case["method"] == "ML" { LikelihoodKind::Ml } else { LikelihoodKind::Reml };
+        let r = profiled_latent(&given, &p, &xs, &z, method).unwrap();
+        assert_relative_eq!(r.loglik, case["loglik"].as_f64().unwrap(), max_relative = 1e-9);
+        assert_relative_eq!(r.sigma2, case["sigma2"].as_f64().unwrap(), max_relative = 1e-9);
+        for (a, b) in r.beta.iter().zip(numbers(&case["beta"])) {
+            assert_relative_eq!(*a, b, max_relative = 1e-9);
+        }
+        for (a, b) in r.xtvx_inv.iter().zip(numbers(&case["xtvx_inv"])) {
+            assert_relative_eq!(*a, b, max_relative = 1e-9);
+        }
+        // our own conditioning of the pots' positions is the same approximation
+        let o = profiled_latent(&ours, &p, &xs, &z, method).unwrap();
+        assert_relative_eq!(o.loglik, r.loglik, max_relative = 1e-12);
+        // and the exact value of the fixture is the dense path's
+        let exact = profiled(&dist, &p, &xs, &z, method).unwrap().loglik;
+        assert_relative_eq!(exact, case["loglik_exact"].as_f64().unwrap(), max_relative = 1e-9);
+    }
+}
