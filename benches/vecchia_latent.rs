@@ -15,10 +15,15 @@
 //! and one single-threaded LAPACK Cholesky through numpy of the same n in
 //! the same run, and the stored entries of `W` and of its sparse factor.
 //!
+//! `POTCLIM_BENCH_SPEED_ONLY=1` skips the exact fits (speed table only).
 //! With `POTCLIM_BENCH_LARGE=20000` (no exact fit, no numpy) only the cost
 //! of building the conditioning and of one evaluation at m = 30 on a field
 //! of that many plots (response drawn without a dense factor: drivers plus
 //! independent noise; the cost does not depend on the values).
+//!
+//! With `POTCLIM_BENCH_GROWTH=600`: on a field of that many plots, at the
+//! n = 2,000 optima of each family, both forms' errors as `m` grows to
+//! `n - 1` (what is left at `n - 1` is rounding, not approximation).
 //!
 //! The reference interpreter is taken from `POTCLIM_BENCH_PYTHON` (default
 //! `python3`).
@@ -97,7 +102,12 @@ fn large(n: usize) {
     let (x, y, cols) = layout(n);
     let mut rng = ChaCha8Rng::seed_from_u64(7);
     let z: Vec<f64> = (0..n)
-        .map(|i| 10.0 + 0.8 * cols[1][i] - 0.5 * cols[2][i] + { let e: f64 = StandardNormal.sample(&mut rng); e })
+        .map(|i| {
+            10.0 + 0.8 * cols[1][i] - 0.5 * cols[2][i] + {
+                let e: f64 = StandardNormal.sample(&mut rng);
+                e
+            }
+        })
         .collect();
     let t = Instant::now();
     let lat = LatentVecchia::new(&x, &y, OWN_M).unwrap();
@@ -115,12 +125,51 @@ fn large(n: usize) {
     );
 }
 
+/// Where the latent form's error comes from: on a smaller field, its error
+/// and the response-level one's at the given parameters as `m` grows to
+/// `n - 1` (where the approximation leaves nothing out, so what remains is
+/// rounding).
+fn growth(n: usize) {
+    let (x, y, cols) = layout(n);
+    let dist = Distances::from_coords(&x, &y).unwrap();
+    let z = response(20261204 + n as u64, &dist, &cols);
+    let ms = [10, 30, 100, 300, n - 1];
+    println!("n = {n}: |ll - exact| (ML) as m grows, latent / response-level");
+    for p in [
+        CovParams { family: Family::Exponential, range: 6.759, eta: 0.132 },
+        CovParams { family: Family::Spherical, range: 10.523, eta: 0.165 },
+        CovParams { family: Family::Gaussian, range: 3.992, eta: 0.296 },
+        CovParams { family: Family::Matern { nu: 1.5 }, range: 4.252, eta: 0.228 },
+    ] {
+        let ex = profiled(&dist, &p, &cols, &z, LikelihoodKind::Ml).unwrap();
+        print!("{:<12} range {:>6.3} eta {:.3}:", p.family.name(), p.range, p.eta);
+        for &m in &ms {
+            let c = Conditioning::new(&x, &y, m).unwrap();
+            let lat = LatentVecchia::from_conditioning(&c).unwrap();
+            let d = |r: Result<Profiled, _>| {
+                r.map(|v: Profiled| format!("{:.2e}", (v.loglik - ex.loglik).abs()))
+                    .unwrap_or_else(|_: potclim::spatial::likelihood::LikelihoodError| "fails".into())
+            };
+            print!(
+                "  m={m}: {} / {}",
+                d(lat.evaluate(&p, &cols, &z, LikelihoodKind::Ml, false)),
+                d(profiled_vecchia(&c, &p, &cols, &z, LikelihoodKind::Ml))
+            );
+        }
+        println!();
+    }
+}
+
 fn main() {
     let python = std::env::var("POTCLIM_BENCH_PYTHON").unwrap_or_else(|_| "python3".into());
     let threads = std::thread::available_parallelism().map(|t| t.get()).unwrap_or(1);
     println!("latent vecchia benchmark: {threads} hardware threads");
     if let Some(n) = std::env::var("POTCLIM_BENCH_LARGE").ok().and_then(|v| v.trim().parse().ok()) {
         large(n);
+        return;
+    }
+    if let Some(n) = std::env::var("POTCLIM_BENCH_GROWTH").ok().and_then(|v| v.trim().parse().ok()) {
+        growth(n);
         return;
     }
     let sizes: Vec<usize> = match std::env::var("POTCLIM_BENCH_SIZES") {
@@ -133,7 +182,8 @@ fn main() {
         let dist = Distances::from_coords(&x, &y).unwrap();
         let z = response(20261204 + n as u64, &dist, &cols);
         let conds: Vec<Conditioning> = MS.iter().map(|&m| Conditioning::new(&x, &y, m).unwrap()).collect();
-        let lats: Vec<LatentVecchia> = conds.iter().map(|c| LatentVecchia::from_conditioning(c).unwrap()).collect();
+        let lats: Vec<LatentVecchia> =
+            conds.iter().map(|c| LatentVecchia::from_conditioning(c).unwrap()).collect();
         // speed at one parameter point
         let p = CovParams { family: Family::Exponential, range: 4.0, eta: 0.25 };
         let dense = time(3, || cholesky(&dist, &p).unwrap());
@@ -145,7 +195,15 @@ fn main() {
         );
         println!(
             "{:>4} {:>10} {:>10} {:>10} {:>12} {:>12} {:>10} {:>10} {:>10}",
-            "m", "latent (s)", "/ faer", "/ numpy", "nnz W", "nnz factor", "+resid (s)", "resp. (s)", "/ numpy"
+            "m",
+            "latent (s)",
+            "/ faer",
+            "/ numpy",
+            "nnz W",
+            "nnz factor",
+            "+resid (s)",
+            "resp. (s)",
+            "/ numpy"
         );
         for (c, lat) in conds.iter().zip(&lats) {
             let tl = time(5, || lat.evaluate(&p, &cols, &z, method, false).unwrap().loglik);
@@ -161,8 +219,13 @@ fn main() {
                 ratio(tr)
             );
         }
+        if std::env::var_os("POTCLIM_BENCH_SPEED_ONLY").is_some() {
+            continue;
+        }
         println!();
-        println!("n = {n}, ML with nugget; at the exact optimum: |ll diff| and largest driver |beta diff| / exact SE");
+        println!(
+            "n = {n}, ML with nugget; at the exact optimum: |ll diff| and largest driver |beta diff| / exact SE"
+        );
         print!("{:<22} {:>10} {:>7} {:>6} {:>5}", "family", "exact ll", "range", "eta", "form");
         for m in MS {
             print!(" {:>8} {:>6}", format!("ll m={m}"), "b/SE");

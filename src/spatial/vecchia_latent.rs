@@ -436,7 +436,8 @@ impl LatentVecchia {
             &vals,
         );
         let mut lval = vec![0.0; self.symbolic.len_val()];
-        let mut mem = MemBuffer::new(self.symbolic.factorize_numeric_llt_scratch::<f64>(par, Default::default()));
+        let mut mem =
+            MemBuffer::new(self.symbolic.factorize_numeric_llt_scratch::<f64>(par, Default::default()));
         self.symbolic
             .factorize_numeric_llt(
                 &mut lval,
@@ -464,7 +465,11 @@ impl LatentVecchia {
         let c = cols.len();
         let mut g = Mat::<f64>::zeros(nl, c);
         for (j, z) in cols.iter().enumerate() {
-            let gj = g.col_mut(j).try_as_col_major_mut().expect("a column of a matrix is contiguous").as_slice_mut();
+            let gj = g
+                .col_mut(j)
+                .try_as_col_major_mut()
+                .expect("a column of a matrix is contiguous")
+                .as_slice_mut();
             for (&k, &v) in self.loc_of.iter().zip(z.iter()) {
                 gj[k] += v;
             }
@@ -501,7 +506,9 @@ impl LatentVecchia {
                 let (cp, ri) = (s.col_ptr(), s.row_idx());
                 (0..s.ncols())
                     .map(|j| {
-                        let at = (cp[j]..cp[j + 1]).find(|&t| ri[t] == j).expect("a factor column holds its pivot");
+                        let at = (cp[j]..cp[j + 1])
+                            .find(|&t| ri[t] == j)
+                            .expect("a factor column holds its pivot");
                         2.0 * lval[at].ln()
                     })
                     .sum()

@@ -14,7 +14,12 @@ use rand_distr::{Distribution, StandardNormal};
 /// Jittered bench positions (every `twin`-th pot moved onto the pot before
 /// it when `twin > 0`), a covariate and a response drawn from the model
 /// with `truth` (a Gaussian field by the dense Cholesky factor).
-fn field(n: usize, seed: u64, truth: &CovParams, twin: usize) -> (Vec<f64>, Vec<f64>, Vec<Vec<f64>>, Vec<f64>) {
+fn field(
+    n: usize,
+    seed: u64,
+    truth: &CovParams,
+    twin: usize,
+) -> (Vec<f64>, Vec<f64>, Vec<Vec<f64>>, Vec<f64>) {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let mut x: Vec<f64> = (0..n).map(|i| (i % 12) as f64 * 0.4 + rng.random_range(-0.15..0.15)).collect();
     let mut y: Vec<f64> = (0..n).map(|i| (i / 12) as f64 * 0.4 + rng.random_range(-0.15..0.15)).collect();
@@ -125,8 +130,10 @@ fn error_falls_as_the_sets_grow() {
                 [0.8, 1.25].map(|s| CovParams { range: truth.range * r * s, eta: truth.eta * e, ..truth })
             })
             .collect();
-        let exact: Vec<f64> =
-            points.iter().map(|p| profiled(&dist, p, &xs, &z, LikelihoodKind::Reml).unwrap().loglik).collect();
+        let exact: Vec<f64> = points
+            .iter()
+            .map(|p| profiled(&dist, p, &xs, &z, LikelihoodKind::Reml).unwrap().loglik)
+            .collect();
         let errors: Vec<f64> = [1, 4, 16, 64]
             .iter()
             .map(|&m| {
@@ -134,7 +141,9 @@ fn error_falls_as_the_sets_grow() {
                 points
                     .iter()
                     .zip(&exact)
-                    .map(|(p, e)| (profiled_latent(&lat, p, &xs, &z, LikelihoodKind::Reml).unwrap().loglik - e).abs())
+                    .map(|(p, e)| {
+                        (profiled_latent(&lat, p, &xs, &z, LikelihoodKind::Reml).unwrap().loglik - e).abs()
+                    })
                     .sum::<f64>()
             })
             .collect();
@@ -220,8 +229,14 @@ fn bad_input_is_refused() {
     let p = CovParams { family: Family::Exponential, range: 1.0, eta: 0.3 };
     let xs = vec![vec![1.0; 3]];
     assert!(profiled_latent(&lat, &p, &xs, &[1.0, 2.0], LikelihoodKind::Ml).is_err());
-    assert!(profiled_latent(&lat, &CovParams { range: -1.0, ..p }, &xs, &[1.0, 2.0, 0.5], LikelihoodKind::Ml).is_err());
-    assert!(profiled_latent(&lat, &CovParams { eta: 1.0, ..p }, &xs, &[1.0, 2.0, 0.5], LikelihoodKind::Ml).is_err());
+    assert!(
+        profiled_latent(&lat, &CovParams { range: -1.0, ..p }, &xs, &[1.0, 2.0, 0.5], LikelihoodKind::Ml)
+            .is_err()
+    );
+    assert!(
+        profiled_latent(&lat, &CovParams { eta: 1.0, ..p }, &xs, &[1.0, 2.0, 0.5], LikelihoodKind::Ml)
+            .is_err()
+    );
     assert!(profiled_latent(&lat, &p, &xs, &[1.0, f64::NAN, 0.5], LikelihoodKind::Ml).is_err());
     assert!(LatentVecchia::new(&[0.0, 1.0], &[0.0, 0.0], 0).is_err());
     let pots = Conditioning::new(&[0.0, 1.0], &[0.0, 0.0], 1).unwrap();
@@ -246,7 +261,8 @@ fn indices(v: &serde_json::Value) -> Vec<usize> {
 /// and REML.
 #[test]
 fn numpy_reference() {
-    let p = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/fixtures/vecchia_latent.json");
+    let p =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/fixtures/vecchia_latent.json");
     let fx: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(p).unwrap()).unwrap();
     let (lx, ly) = (numbers(&fx["location_x"]), numbers(&fx["location_y"]));
     let loc = indices(&fx["location_of"]);
