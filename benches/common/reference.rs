@@ -1,6 +1,6 @@
 //! What the benchmarks share: the median of repeated timings, and the
 //! reference they are measured against, numpy's LAPACK Cholesky of the same
-//! covariance in the same run. Included by the benchmarks that compare with it (`gls`, `vecchia`) with
+//! covariance in the same run. Included by the benchmarks that compare with it (`gls`, `vecchia`, `vecchia_latent`) with
 //! `#[path = "common/reference.rs"] mod reference;`.
 
 use potclim::spatial::likelihood::{CovParams, Distances};

@@ -192,6 +192,35 @@ pub(super) fn profile_whitened(
     let whitened: Vec<f64> =
         (0..n).map(|r| cols[p][r] - (0..p).map(|j| cols[j][r] * beta[j]).sum::<f64>()).collect();
     let q: f64 = whitened.iter().map(|v| v * v).sum();
+    let (loglik, sigma2) = profile_loglik(n, p, q, logdet_v, logdet_xtvx, method)?;
+    Ok(Profiled {
+        method,
+        params,
+        loglik,
+        beta,
+        sigma2,
+        q,
+        logdet_v,
+        logdet_xtvx,
+        xtvx_inv: inv,
+        whitened,
+        n,
+        p,
+    })
+}
+
+/// The profiled log-likelihood and `sigma2` of the module docs from
+/// `Q = r'V^-1 r`, `ln|V|` and `ln|X'V^-1 X|` (`n` observations, `p` columns):
+/// the one formula of every path ([`profile_whitened`] and the cross-product
+/// form of [`super::vecchia_latent`]).
+pub(super) fn profile_loglik(
+    n: usize,
+    p: usize,
+    q: f64,
+    logdet_v: f64,
+    logdet_xtvx: f64,
+    method: LikelihoodKind,
+) -> Result<(f64, f64), LikelihoodError> {
     let ln2pi = (2.0 * std::f64::consts::PI).ln();
     let (loglik, sigma2) = match method {
         LikelihoodKind::Ml => {
@@ -215,20 +244,7 @@ pub(super) fn profile_whitened(
                 .into(),
         ));
     }
-    Ok(Profiled {
-        method,
-        params,
-        loglik,
-        beta,
-        sigma2,
-        q,
-        logdet_v,
-        logdet_xtvx,
-        xtvx_inv: inv,
-        whitened,
-        n,
-        p,
-    })
+    Ok((loglik, sigma2))
 }
 
 /// Copy `X` (`n x p`, given by columns) and `y` into one `n x (p+1)` matrix.

@@ -41,5 +41,6 @@ pub mod stage;
 mod stage_check;
 pub mod variogram;
 pub mod vecchia;
+pub mod vecchia_latent;
 pub mod vecchia_order;
 pub mod window_se;
