@@ -106,7 +106,7 @@ fn neighbours_with_every_earlier_pot_reproduce_the_exact_run() {
         ),
         ("neighbours = 0", "neighbours must be a whole number of at least 1, got 0"),
         ("likelihood = \"neighbours\"\nneighbours = 150", "below the number of analysed pots (150)"),
-        ("neighbours = \"many\"", "neighbours"),
+        ("neighbours = \"many\"", "invalid type: string \"many\""),
     ] {
         let bad = dir.path().join("bad");
         let _ = std::fs::remove_dir_all(&bad);

@@ -207,8 +207,14 @@ pub(super) fn fit_grid(
                 for _ in &fits {
                     counter.step();
                 }
-                let grid = SharedGrid { errors: errors.label(), fits: fits.len(), factorisations, seconds };
-                Ok((fits, Some(grid)))
+                // the nearest-neighbour path shares no start grid
+                let grid = path.is_exact().then(|| SharedGrid {
+                    errors: errors.label(),
+                    fits: fits.len(),
+                    factorisations,
+                    seconds,
+                });
+                Ok((fits, grid))
             }
         }
     };

@@ -478,7 +478,10 @@ fn forced_exact_too_large_is_refused_before_any_work() {
     };
     let forced = ModelSpec { likelihood: crate::model::likelihood_path::Setting::Exact, ..spec(&[]) };
     let e = analyse(&d, &forced, &VerdictOptions::default()).unwrap_err().to_string();
-    assert!(e.starts_with("[model] likelihood: the exact likelihood at 6000 pots needs about 8.6 GB"), "{e}");
+    assert!(
+        e.starts_with("[model] likelihood: the exact likelihood at 6000 pots needs about 10.4 GB"),
+        "{e}"
+    );
     assert!(e.contains("likelihood = \"neighbours\""), "{e}");
     // too many neighbours for the pots
     let many = ModelSpec {
