@@ -75,6 +75,8 @@ fn one_seed(seed: u64) -> Outcome {
         trait_unit: Some("cm".into()),
         rows_columns: false,
         directional: vec![],
+        likelihood: potclim::model::likelihood_path::Setting::Auto,
+        neighbours: potclim::spatial::vecchia::DEFAULT_NEIGHBOURS,
     };
     let opts = VerdictOptions { seed, ..VerdictOptions::default() };
     let mut out =

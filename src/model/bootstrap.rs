@@ -21,7 +21,7 @@
 //! searches warm-started (a few dozen factorisations each).
 
 use super::error::{ModelError, Result};
-use super::gls::{Errors, Fit, fit_correlated_from, fit_independent};
+use super::gls::{Errors, Fit, LikelihoodPath, fit_correlated_from, fit_independent};
 use crate::model::design::Design;
 use crate::spatial::likelihood::{Distances, LikelihoodKind, cholesky};
 use rand::SeedableRng;
@@ -92,9 +92,17 @@ pub fn bootstrap_lrt(
         let refit = |d: &Design, name: &str| -> Option<Fit> {
             match (null_fit.errors, null_fit.covariance) {
                 (Errors::Independent, _) => fit_independent(d, &y, LikelihoodKind::Ml).ok(),
-                (Errors::Correlated { nugget, .. }, Some(c)) => {
-                    fit_correlated_from(name, d, &y, dist, c.params, nugget, LikelihoodKind::Ml).ok()
-                }
+                (Errors::Correlated { nugget, .. }, Some(c)) => fit_correlated_from(
+                    name,
+                    d,
+                    &y,
+                    dist,
+                    c.params,
+                    nugget,
+                    LikelihoodKind::Ml,
+                    &LikelihoodPath::exact(),
+                )
+                .ok(),
                 _ => None,
             }
         };
@@ -211,6 +219,7 @@ mod tests {
                 Family::Exponential,
                 true,
                 LikelihoodKind::Ml,
+                &LikelihoodPath::exact(),
             )
             .unwrap()
         };

@@ -7,6 +7,7 @@ use crate::io::error::closest;
 use crate::io::layout::{Pots, load_pots};
 use crate::io::study::Study;
 use crate::io::table::{Table, is_missing};
+use crate::model::likelihood_path::Setting;
 use crate::spatial::averaged::PathShares;
 use crate::spatial::correlation::Family;
 use crate::spatial::geometry::DISTANCE_PREFIX;
@@ -47,6 +48,8 @@ struct ModelSection {
     trait_unit: Option<String>,
     rows_columns: Option<bool>,
     directional: Option<Vec<String>>,
+    likelihood: Option<String>,
+    neighbours: Option<i64>,
 }
 
 /// The validated `[model]` section.
@@ -72,6 +75,12 @@ pub struct ModelSpec {
     pub rows_columns: bool,
     /// Families also fitted with a direction-dependent range (default none).
     pub directional: Vec<Family>,
+    /// Which likelihood the correlated fits use (`likelihood`, default `auto`;
+    /// [`crate::model::likelihood_path`]).
+    pub likelihood: Setting,
+    /// Neighbours per pot of the nearest-neighbour likelihood (`neighbours`,
+    /// default [`crate::spatial::vecchia::DEFAULT_NEIGHBOURS`]).
+    pub neighbours: usize,
 }
 
 impl ModelSpec {
@@ -119,6 +128,34 @@ impl ModelSpec {
                 })
             })
             .collect::<Result<Vec<_>>>()?;
+        let likelihood = match &m.likelihood {
+            None => Setting::Auto,
+            Some(v) => Setting::parse(v).map_err(|e| {
+                ModelError::from(study.invalid_value(
+                    "model",
+                    "model.likelihood",
+                    v,
+                    e,
+                    Some(format!(
+                        "\"auto\" (the default) uses the exact likelihood up to {} pots and the nearest-neighbour one above",
+                        crate::model::likelihood_path::EXACT_UP_TO
+                    )),
+                ))
+            })?,
+        };
+        let neighbours = match m.neighbours {
+            None => crate::spatial::vecchia::DEFAULT_NEIGHBOURS,
+            Some(k) if k >= 1 => k as usize,
+            Some(k) => {
+                return Err(study
+                    .invalid(
+                        "model.neighbours",
+                        format!("neighbours must be a whole number of at least 1, got {k}"),
+                        Some(format!("the default is {}", crate::spatial::vecchia::DEFAULT_NEIGHBOURS)),
+                    )
+                    .into());
+            }
+        };
         let mut seen = std::collections::HashSet::new();
         for name in blocks.iter().chain(&m.factors).chain(&m.drivers).chain(std::iter::once(&m.trait_column))
         {
@@ -165,6 +202,8 @@ impl ModelSpec {
             trait_unit: m.trait_unit.map(|u| u.trim().to_string()).filter(|u| !u.is_empty()),
             rows_columns: m.rows_columns.unwrap_or(false),
             directional,
+            likelihood,
+            neighbours,
         })
     }
 }
@@ -261,7 +300,15 @@ impl ModelSpec {
             drivers: self.drivers.iter().filter(|d| table.headers.contains(d)).cloned().collect(),
             ..self.clone()
         };
-        assemble(pots, &own, None, Path::new(COVARIATES_FILE))
+        let data = assemble(pots, &own, None, Path::new(COVARIATES_FILE))?;
+        let n = data.response.len();
+        let limit = crate::model::likelihood_path::EXACT_MEMORY_LIMIT_BYTES;
+        if let Err((key, message, hint)) =
+            crate::model::likelihood_path::choose(self.likelihood, self.neighbours, n, limit)
+        {
+            return Err(study.invalid(&format!("model.{key}"), message, Some(hint)).into());
+        }
+        Ok(data)
     }
 }
 

@@ -55,6 +55,17 @@ pub enum ModelError {
         /// `|r_jj| / ||x_j||` of that column.
         remainder: f64,
     },
+    /// A `[model]` setting that the analysed pots do not allow (the forced
+    /// exact likelihood above its memory limit, too many neighbours).
+    #[error("[model] {key}: {message}{}", hint_suffix(hint))]
+    Setting {
+        /// The key of `[model]`.
+        key: String,
+        /// What is wrong.
+        message: String,
+        /// How to fix it.
+        hint: Option<String>,
+    },
     /// Fits that must not be compared were offered for comparison.
     #[error("cannot compare these fits: {0}")]
     Comparison(String),

@@ -28,6 +28,8 @@ use crate::spatial::factor::{LeastSquares, small_spd};
 use crate::spatial::likelihood::{self, CovParams, Distances, LikelihoodKind, Profiled, SearchOptions};
 use crate::spatial::rowcol::{self, Lattice, RowColParams};
 
+pub use super::likelihood_path::{Likelihood, LikelihoodPath};
+
 /// The residual covariance of a fit.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Errors {
@@ -252,6 +254,9 @@ pub struct Fit {
     pub whitened_x: Vec<Vec<f64>>,
     /// Number of pots.
     pub n: usize,
+    /// The likelihood maximised: exact, or the nearest-neighbour
+    /// approximation with its `m` ([`LikelihoodPath`]).
+    pub likelihood: Likelihood,
 }
 
 impl Fit {
@@ -381,6 +386,7 @@ fn assemble(
         normalised,
         whitened_x,
         n,
+        likelihood: Likelihood::Exact,
     }
 }
 
@@ -433,13 +439,16 @@ pub fn fit_independent(design: &Design, y: &[f64], method: LikelihoodKind) -> Re
 }
 
 /// Fit with spatially correlated errors: maximise the profiled likelihood of
-/// `method` over (range, nugget share) with
+/// `method` over (range, nugget share), then compute the GLS estimates, tests
+/// and residuals at the optimum. On the exact path (`path`) the search is
 /// [`crate::spatial::ascent::maximise_shared`] (a start grid, then Newton
-/// steps with the average information), then compute the GLS estimates,
-/// tests and residuals at the optimum.
+/// steps with the average information); on the nearest-neighbour path the
+/// simplex search of [`LikelihoodPath::maximise`] over the approximated
+/// likelihood, whose estimates, SEs, tests and residuals then come from the
+/// same approximation ([`LikelihoodPath::evaluate`]).
 ///
 /// `model` names the fit in error messages. Duplicate positions without a
-/// nugget are refused before the search with the pots named.
+/// nugget are refused before the search with the pots named (on both paths).
 #[allow(clippy::too_many_arguments)]
 pub fn fit_correlated(
     model: &str,
@@ -450,9 +459,10 @@ pub fn fit_correlated(
     family: Family,
     nugget: bool,
     method: LikelihoodKind,
+    path: &LikelihoodPath,
 ) -> Result<Fit> {
     let (mut fits, (grid_factorisations, grid_seconds)) =
-        fit_correlated_shared(&[model.to_string()], &[design], y, dist, pots, family, nugget, method)?;
+        fit_correlated_shared(&[model.to_string()], &[design], y, dist, pots, family, nugget, method, path)?;
     // one design: the start grid is this fit's own work
     let mut fit = fits.pop().expect("one design, one fit")?;
     if let Some(s) = fit.search.as_mut() {
@@ -466,10 +476,12 @@ pub fn fit_correlated(
 pub type SharedFits = (Vec<Result<Fit>>, (usize, f64));
 
 /// [`fit_correlated`] for several fixed parts with the same response,
-/// positions and error model: the start grid of the search is factorised
-/// once for all of them (see [`crate::spatial::ascent::maximise_shared`]);
-/// each is then refined and estimated on its own. Returns the fits in the
-/// order of `designs` and the grid's `(factorisations, seconds)`.
+/// positions and error model: on the exact path the start grid of the search
+/// is factorised once for all of them (see
+/// [`crate::spatial::ascent::maximise_shared`]); each is then refined and
+/// estimated on its own. On the nearest-neighbour path each is searched on
+/// its own (no dense factorisation to share). Returns the fits in the order
+/// of `designs` and the grid's `(factorisations, seconds)`.
 #[allow(clippy::too_many_arguments)]
 pub fn fit_correlated_shared(
     models: &[String],
@@ -480,6 +492,7 @@ pub fn fit_correlated_shared(
     family: Family,
     nugget: bool,
     method: LikelihoodKind,
+    path: &LikelihoodPath,
 ) -> Result<SharedFits> {
     let lerr = |model: &str, source, hint: Option<String>| ModelError::Likelihood {
         model: model.to_string(),
@@ -502,6 +515,24 @@ pub fn fit_correlated_shared(
         }
     }
     let opts = SearchOptions { nugget, ..SearchOptions::default() };
+    if !path.is_exact() {
+        let fits = designs
+            .iter()
+            .zip(models)
+            .map(|(design, model)| {
+                let t = std::time::Instant::now();
+                let max = path
+                    .maximise(dist, family, &design.x, y, method, &opts)
+                    .map_err(|e| lerr(model, e, None))?;
+                let mut fit = finish_correlated(model, design, y, dist, family, nugget, method, max, path)?;
+                if let Some(s) = fit.search.as_mut() {
+                    s.seconds = t.elapsed().as_secs_f64();
+                }
+                Ok(fit)
+            })
+            .collect();
+        return Ok((fits, (0, 0.0)));
+    }
     let xs: Vec<&[Vec<f64>]> = designs.iter().map(|d| d.x.as_slice()).collect();
     let t0 = std::time::Instant::now();
     let (maxima, shared) = crate::spatial::ascent::maximise_shared(dist, family, &xs, y, method, &opts);
@@ -515,7 +546,7 @@ pub fn fit_correlated_shared(
             let max = max.map_err(|e| lerr(model, e, None))?;
             let t = std::time::Instant::now();
             let f0 = crate::spatial::factor::factorisations_on_this_thread();
-            let mut fit = finish_correlated(model, design, y, dist, family, nugget, method, max)?;
+            let mut fit = finish_correlated(model, design, y, dist, family, nugget, method, max, path)?;
             if let Some(s) = fit.search.as_mut() {
                 s.factorisations += (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize;
                 s.seconds += t.elapsed().as_secs_f64();
@@ -528,7 +559,9 @@ pub fn fit_correlated_shared(
 
 /// [`fit_correlated`] started from known correlation parameters instead of
 /// the start grid ([`crate::spatial::ascent::maximise_from`]): for refits on
-/// slightly changed data, such as the imputations of a mapped driver.
+/// slightly changed data, such as the imputations of a mapped driver. On the
+/// nearest-neighbour path the whole search of [`LikelihoodPath::maximise`]
+/// is run (its simplex has no derivative-based start to reuse).
 #[allow(clippy::too_many_arguments)]
 pub fn fit_correlated_from(
     model: &str,
@@ -538,13 +571,18 @@ pub fn fit_correlated_from(
     start: CovParams,
     nugget: bool,
     method: LikelihoodKind,
+    path: &LikelihoodPath,
 ) -> Result<Fit> {
     let opts = SearchOptions { nugget, ..SearchOptions::default() };
     let t = std::time::Instant::now();
-    let max = crate::spatial::ascent::maximise_from(dist, start, &design.x, y, method, &opts)
-        .map_err(|source| ModelError::Likelihood { model: model.to_string(), source, hint: None })?;
+    let max = if path.is_exact() {
+        crate::spatial::ascent::maximise_from(dist, start, &design.x, y, method, &opts)
+    } else {
+        path.maximise(dist, start.family, &design.x, y, method, &opts)
+    }
+    .map_err(|source| ModelError::Likelihood { model: model.to_string(), source, hint: None })?;
     let f0 = crate::spatial::factor::factorisations_on_this_thread();
-    let mut fit = finish_correlated(model, design, y, dist, start.family, nugget, method, max)?;
+    let mut fit = finish_correlated(model, design, y, dist, start.family, nugget, method, max, path)?;
     if let Some(s) = fit.search.as_mut() {
         s.factorisations += (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize;
         s.seconds = t.elapsed().as_secs_f64();
@@ -553,7 +591,10 @@ pub fn fit_correlated_from(
 }
 
 /// The GLS estimates, tests and residuals of a correlated fit at the
-/// maximum `max` of its search.
+/// maximum `max` of its search, by the likelihood of `path`: one dense
+/// factorisation on the exact path, the nearest-neighbour whitening
+/// ([`LikelihoodPath::evaluate`], [`LikelihoodPath::whiten_columns`]) on the
+/// other, with no `n x n` object.
 #[allow(clippy::too_many_arguments)]
 pub fn finish_correlated(
     model: &str,
@@ -564,19 +605,28 @@ pub fn finish_correlated(
     nugget: bool,
     method: LikelihoodKind,
     max: likelihood::Maximum,
+    path: &LikelihoodPath,
 ) -> Result<Fit> {
     let lerr =
         |source, hint: Option<String>| ModelError::Likelihood { model: model.to_string(), source, hint };
     let params = max.best.params;
-    let l = likelihood::cholesky(dist, &params).map_err(|e| lerr(e, None))?;
-    let prof = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x, y, method)
-        .map_err(|e| lerr(e, None))?;
-    let prof_sum = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x_sum, y, method)
-        .map_err(|e| lerr(e, None))?;
-    let n = y.len();
-    let mut wx = faer::Mat::from_fn(n, design.p(), |i, j| design.x[j][i]);
-    likelihood::whiten(l.as_ref(), &mut wx);
-    let whitened_x = (0..design.p()).map(|j| wx.col_as_slice(j).to_vec()).collect();
+    let (prof, prof_sum, whitened_x) = if path.is_exact() {
+        let l = likelihood::cholesky(dist, &params).map_err(|e| lerr(e, None))?;
+        let prof = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x, y, method)
+            .map_err(|e| lerr(e, None))?;
+        let prof_sum = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x_sum, y, method)
+            .map_err(|e| lerr(e, None))?;
+        let n = y.len();
+        let mut wx = faer::Mat::from_fn(n, design.p(), |i, j| design.x[j][i]);
+        likelihood::whiten(l.as_ref(), &mut wx);
+        let whitened_x: Vec<Vec<f64>> = (0..design.p()).map(|j| wx.col_as_slice(j).to_vec()).collect();
+        (prof, prof_sum, whitened_x)
+    } else {
+        let prof = path.evaluate(dist, &params, &design.x, y, method).map_err(|e| lerr(e, None))?;
+        let prof_sum = path.evaluate(dist, &params, &design.x_sum, y, method).map_err(|e| lerr(e, None))?;
+        let whitened_x = path.whiten_columns(dist, &params, &design.x).map_err(|e| lerr(e, None))?;
+        (prof, prof_sum, whitened_x)
+    };
     let search = Search {
         converged: max.converged,
         evaluations: max.evaluations,
@@ -586,7 +636,7 @@ pub fn finish_correlated(
         range_bounds: max.range_bounds,
         other_optimum: max.other_optimum,
     };
-    Ok(assemble(
+    let mut fit = assemble(
         design,
         y,
         method,
@@ -595,7 +645,9 @@ pub fn finish_correlated(
         (prof_sum.beta.as_slice(), prof_sum.xtvx_inv.as_slice()),
         whitened_x,
         Some(search),
-    ))
+    );
+    fit.likelihood = path.likelihood();
+    Ok(fit)
 }
 
 /// The positions of `dist` or an error naming `model` (the new structures
@@ -751,184 +803,5 @@ pub fn residual_cholesky(
 }
 
 #[cfg(test)]
-mod tests {
-    use super::*;
-    use crate::model::design::DesignSpec;
-    use crate::model::testdata::{fixture, floats, model_data};
-    use approx::assert_relative_eq;
-
-    fn check_fit(f: &Fit, want: &serde_json::Value) {
-        let ll = want["loglik"].as_f64().unwrap();
-        assert!((f.loglik - ll).abs() < 1e-3, "loglik {} vs reference {ll}", f.loglik);
-        assert!(f.loglik > ll - 1e-3);
-        for (b, w) in f.beta.iter().zip(floats(&want["beta"])) {
-            assert_relative_eq!(*b, w, max_relative = 1e-4);
-        }
-        for (s, w) in f.se.iter().zip(floats(&want["se"])) {
-            assert_relative_eq!(*s, w, max_relative = 1e-3);
-        }
-    }
-
-    /// Maximised ML and REML fits against scipy's optimiser (L-BFGS-B + Nelder–Mead
-    /// from a 40x19 grid) on the seeded simulated study of tests/reference/model.py:
-    /// log-likelihood within 1e-3, beta within 1e-4 relative.
-    #[test]
-    fn maximised_fits_vs_scipy_on_simulated_study() {
-        let data = model_data(
-            "sim_gls.csv",
-            "height",
-            &["accession", "regime"],
-            &["moisture"],
-            Some(("x", "y")),
-            &[],
-        );
-        let spec = DesignSpec {
-            factors: vec!["accession".into(), "regime".into()],
-            drivers: vec!["moisture".into()],
-            ..Default::default()
-        };
-        let design = Design::build(&data, &spec).unwrap();
-        let dist = Distances::from_coords(&data.x, &data.y).unwrap();
-        for want in fixture("model_fits.json")["fits"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .filter(|f| f["dataset"] == "sim_gls")
-        {
-            let family = Family::parse(want["family"].as_str().unwrap()).unwrap();
-            let method = if want["method"] == "ML" { LikelihoodKind::Ml } else { LikelihoodKind::Reml };
-            let f = fit_correlated("t", &design, &data.response, &dist, &data.pots, family, true, method)
-                .unwrap();
-            check_fit(&f, want);
-            assert!(f.converged());
-            assert_eq!(f.n_params, 5 + 3);
-        }
-    }
-
-    /// The same on MASS topo, for the fits whose optimum is interior in the range.
-    #[test]
-    fn maximised_fits_vs_scipy_on_topo() {
-        let data = model_data("topo.csv", "z", &[], &["x", "y"], Some(("x", "y")), &[]);
-        for want in
-            fixture("model_fits.json")["fits"].as_array().unwrap().iter().filter(|f| f["dataset"] == "topo")
-        {
-            let b = floats(&want["bounds"]);
-            let range = want["range"].as_f64().unwrap();
-            if range > 0.99 * b[1] {
-                continue; // optimum on the upper range bound: not a comparable interior optimum
-            }
-            let drivers =
-                if want["formula"] == "z ~ 1" { vec![] } else { vec!["x".to_string(), "y".to_string()] };
-            let design = Design::build(&data, &DesignSpec { drivers, ..Default::default() }).unwrap();
-            let dist = Distances::from_coords(&data.x, &data.y).unwrap();
-            let family = Family::parse(want["family"].as_str().unwrap()).unwrap();
-            let method = if want["method"] == "ML" { LikelihoodKind::Ml } else { LikelihoodKind::Reml };
-            let nugget = want["nugget"].as_bool().unwrap();
-            let f = fit_correlated("t", &design, &data.response, &dist, &data.pots, family, nugget, method)
-                .unwrap();
-            check_fit(&f, want);
-        }
-    }
-
-    /// The derivative-based search finds a maximum at least as high as the
-    /// simplex search (`likelihood::maximise`, the previous fit) on every
-    /// fitted fixture of model_fits.json (sim_gls and topo, every family,
-    /// ML and REML, with and without nugget), within 1e-4; and at least as
-    /// high as scipy's (the committed reference) within 1e-4. The same for
-    /// the profile route of the nugget fits (`ascent::maximise_profiled`).
-    #[test]
-    fn fast_search_is_as_high_as_the_simplex_on_every_fixture() {
-        let sim = model_data(
-            "sim_gls.csv",
-            "height",
-            &["accession", "regime"],
-            &["moisture"],
-            Some(("x", "y")),
-            &[],
-        );
-        let topo = model_data("topo.csv", "z", &[], &["x", "y"], Some(("x", "y")), &[]);
-        for want in fixture("model_fits.json")["fits"].as_array().unwrap() {
-            let (data, spec) = if want["dataset"] == "sim_gls" {
-                (
-                    &sim,
-                    DesignSpec {
-                        factors: vec!["accession".into(), "regime".into()],
-                        drivers: vec!["moisture".into()],
-                        ..Default::default()
-                    },
-                )
-            } else {
-                let drivers =
-                    if want["formula"] == "z ~ 1" { vec![] } else { vec!["x".to_string(), "y".to_string()] };
-                (&topo, DesignSpec { drivers, ..Default::default() })
-            };
-            let design = Design::build(data, &spec).unwrap();
-            let dist = Distances::from_coords(&data.x, &data.y).unwrap();
-            let family = Family::parse(want["family"].as_str().unwrap()).unwrap();
-            let method = if want["method"] == "ML" { LikelihoodKind::Ml } else { LikelihoodKind::Reml };
-            let nugget = want["nugget"].as_bool().unwrap_or(true);
-            let opts = SearchOptions { nugget, ..SearchOptions::default() };
-            let old = likelihood::maximise(&dist, family, &design.x, &data.response, method, &opts).unwrap();
-            let (mut new, _) = crate::spatial::ascent::maximise_shared(
-                &dist,
-                family,
-                &[design.x.as_slice()],
-                &data.response,
-                method,
-                &opts,
-            );
-            let new = new.pop().unwrap().unwrap();
-            let (lo, ln) = (old.best.loglik, new.best.loglik);
-            assert!(
-                ln >= lo - 1e-4,
-                "{} {family} {method:?} nugget {nugget}: new {ln} < simplex {lo}",
-                want["dataset"]
-            );
-            let reference = want["loglik"].as_f64().unwrap();
-            assert!(ln >= reference - 1e-4, "{family} {method:?}: new {ln} < scipy {reference}");
-            if nugget {
-                // the profile route (nugget share profiled out by the tridiagonal reduction)
-                let (mut prof, _) = crate::spatial::ascent::maximise_profiled(
-                    &dist,
-                    family,
-                    &[design.x.as_slice()],
-                    &data.response,
-                    method,
-                    &opts,
-                );
-                let lp = prof.pop().unwrap().unwrap().best.loglik;
-                assert!(lp >= lo - 1e-4, "{family} {method:?}: profile route {lp} < simplex {lo}");
-                assert!(
-                    lp >= reference - 1e-4,
-                    "{family} {method:?}: profile route {lp} < scipy {reference}"
-                );
-            }
-            eprintln!(
-                "{} {} {family} {method:?} nugget {nugget}: simplex {lo:.6} ({} evals), newton {ln:.6} ({} evals, {} factorisations)",
-                want["dataset"], want["formula"], old.evaluations, new.evaluations, new.factorisations
-            );
-        }
-    }
-
-    /// Independent errors: ML equals the OLS log-likelihood of statsmodels
-    /// (llf in model_ols.json) and the count k = p + 1.
-    #[test]
-    fn independent_ml_is_the_ols_likelihood() {
-        let data = model_data("warpbreaks.csv", "breaks", &["wool", "tension"], &[], None, &[]);
-        let spec = DesignSpec {
-            factors: vec!["wool".into(), "tension".into()],
-            interactions: vec![vec!["wool".into(), "tension".into()]],
-            ..Default::default()
-        };
-        let design = Design::build(&data, &spec).unwrap();
-        let f = fit_independent(&design, &data.response, LikelihoodKind::Ml).unwrap();
-        assert_relative_eq!(
-            f.loglik,
-            fixture("model_ols.json")["warpbreaks"]["llf"].as_f64().unwrap(),
-            max_relative = 1e-12
-        );
-        assert_eq!(f.n_params, 7);
-        // statsmodels counts only the 6 mean parameters in its AIC; ours adds sigma2: +2
-        assert_relative_eq!(f.aic, -2.0 * f.loglik + 14.0, max_relative = 1e-14);
-    }
-}
+#[path = "gls_tests.rs"]
+mod tests;

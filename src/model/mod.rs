@@ -17,6 +17,7 @@ pub mod error;
 pub mod gls;
 pub mod imputation;
 pub mod intervals;
+pub mod likelihood_path;
 pub mod ols;
 pub mod progress;
 pub mod small_sample;

@@ -8,7 +8,8 @@ use super::design::{CountTable, Design, DesignSpec, count_tables};
 use super::diagnostics::{MORAN_NEIGHBOURS, MoranTest, knn, moran_residuals};
 use super::error::Result;
 use super::gls::{
-    Errors, Fit, Structure, fit_correlated, fit_directional, fit_independent, fit_rows_columns,
+    Errors, Fit, LikelihoodPath, Structure, fit_correlated, fit_directional, fit_independent,
+    fit_rows_columns,
 };
 use super::ols::{AnovaTable, OlsFit, SsType, anova, ols};
 use crate::io::output::StageWriter;
@@ -16,6 +17,8 @@ use crate::io::study::Study;
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
 use std::fmt::Write as _;
 use std::path::PathBuf;
+
+use super::verdict::RESIDUAL_VARIOGRAM_POTS;
 
 /// Reference distances (metres) at which the fitted correlation is reported.
 pub const REFERENCE_DISTANCES: [f64; 4] = [0.5, 1.0, 2.0, 5.0];
@@ -50,6 +53,8 @@ pub struct FitReport {
 pub fn fit_study(study: &Study) -> Result<FitReport> {
     let spec = ModelSpec::from_study(study)?;
     let data = load_model_data(study, &spec)?;
+    // before any n x n allocation: a forced exact path too large is refused here
+    let path = LikelihoodPath::for_data(&spec, &data)?;
     let dspec = DesignSpec {
         blocks: spec.blocks.clone(),
         factors: spec.factors.clone(),
@@ -80,6 +85,20 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
             list.join(", ")
         ));
     }
+    if let Some(m) = path.likelihood().neighbours() {
+        notes.push(format!(
+            "the correlated fits use {} ({} pots, `[model] likelihood = \"{}\"`): their log-likelihoods, estimates, SEs and tests come from that approximation; rows x columns and direction-dependent errors are not fitted (no nearest-neighbour form){}",
+            path.likelihood().describe(),
+            data.response.len(),
+            spec.likelihood.name(),
+            if data.response.len() > RESIDUAL_VARIOGRAM_POTS {
+                format!("; the residual variograms are taken over every {}th pot", data.response.len().div_ceil(RESIDUAL_VARIOGRAM_POTS))
+            } else {
+                String::new()
+            }
+        ));
+        let _ = m;
+    }
     let mut fits = Vec::new();
     for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
         fits.push(fit_independent(&design, y, method)?);
@@ -96,17 +115,22 @@ pub fn fit_study(study: &Study) -> Result<FitReport> {
                 continue;
             }
             for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
-                fits.push(fit_correlated(&label, &design, y, &dist, &data.pots, family, nugget, method)?);
+                fits.push(fit_correlated(
+                    &label, &design, y, &dist, &data.pots, family, nugget, method, &path,
+                )?);
             }
         }
     }
-    fit_structures(&spec, &data, &design, &dist, &mut fits, &mut notes)?;
+    if path.is_exact() {
+        fit_structures(&spec, &data, &design, &dist, &mut fits, &mut notes)?;
+    }
     let nb = knn(&data.x, &data.y, MORAN_NEIGHBOURS);
     let moran = fits
         .iter()
         .map(|f| nb.as_ref().and_then(|nb| moran_residuals(&f.normalised, &f.whitened_x, nb)))
         .collect();
-    let residual_variograms = residual_variograms(&data, &fits);
+    let stride = if path.is_exact() { 1 } else { data.response.len().div_ceil(RESIDUAL_VARIOGRAM_POTS) };
+    let residual_variograms = residual_variograms(&data, &fits, stride);
     Ok(FitReport {
         spec,
         data,
@@ -197,18 +221,22 @@ fn range_eta_practical(f: &Fit) -> (Option<f64>, Option<f64>, Option<f64>) {
 pub fn residual_variograms(
     data: &ModelData,
     fits: &[Fit],
+    stride: usize,
 ) -> Vec<Option<crate::spatial::variogram::Empirical>> {
     use crate::spatial::geometry::{Origin, Points};
     use crate::spatial::variogram::{Bins, Estimator, experimental};
-    let Ok(points) =
-        Points::new("pot", data.pots.clone(), data.x.clone(), data.y.clone(), None, &Origin::default())
-    else {
+    let k = stride.max(1);
+    let pick = |v: &[f64]| -> Vec<f64> { v.iter().step_by(k).copied().collect() };
+    let ids = data.pots.iter().step_by(k).cloned().collect();
+    let Ok(points) = Points::new("pot", ids, pick(&data.x), pick(&data.y), None, &Origin::default()) else {
         return vec![None; fits.len()];
     };
     let Ok(bins) = Bins::default_for(&points) else {
         return vec![None; fits.len()];
     };
-    fits.iter().map(|f| experimental(&points, &f.normalised, &bins, Estimator::Matheron, None).ok()).collect()
+    fits.iter()
+        .map(|f| experimental(&points, &pick(&f.normalised), &bins, Estimator::Matheron, None).ok())
+        .collect()
 }
 
 /// `residual_variograms.csv`: the variogram of each fit's normalised

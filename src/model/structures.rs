@@ -392,6 +392,8 @@ mod tests {
             trait_unit: None,
             rows_columns: true,
             directional: if directional { vec![Family::Exponential] } else { vec![] },
+            likelihood: crate::model::likelihood_path::Setting::Auto,
+            neighbours: crate::spatial::vecchia::DEFAULT_NEIGHBOURS,
         }
     }
 

@@ -233,6 +233,8 @@ mod tests {
                 column_correlation: None,
                 direction_degrees: None,
                 range_ratio: None,
+                likelihood: None,
+                neighbours: None,
             }],
             lrts: vec![],
             chosen_coefficients: vec![],
@@ -255,6 +257,7 @@ mod tests {
             chosen_residuals: vec![0.1, -0.1],
             plain_moran: None,
             chosen_shape: (vec![], crate::model::gls::Errors::Independent),
+            likelihood: None,
             plain_anova: Some(crate::model::ols::AnovaTable {
                 kind: crate::model::ols::SsType::Hierarchical,
                 rows: vec![crate::model::ols::AnovaRow {

@@ -2,8 +2,10 @@
 //! pairwise distances (from planar coordinates, or a given matrix), or for
 //! pots that move the positions they held and their time shares
 //! ([`super::averaged`]). Owns the structured correlation matrix `R` of a
-//! family over them, the pairs that make it singular without a nugget, and
-//! the distances that set the search's range bounds.
+//! family over them, the pairs that make it singular without a nugget
+//! (found by sorting the positions, not by a loop over every pair), and the
+//! sample of pair distances that sets the search's range bounds (its pairs
+//! visited directly: `O(sample)` time, not `O(n^2)`).
 
 use super::correlation::Family;
 use super::covariance::{CovParams, Kernel};
@@ -140,6 +142,9 @@ impl Distances {
         if let Distances::Averaged(a) = self {
             return a.identical();
         }
+        if let Distances::Coords { x, y } = self {
+            return coincident_positions(x, y);
+        }
         let n = self.len();
         let mut out = Vec::new();
         for j in 0..n {
@@ -164,19 +169,88 @@ impl Distances {
         let pairs = n * n.saturating_sub(1) / 2;
         let stride = pairs.div_ceil(200_000).max(1);
         let mut out = Vec::with_capacity(pairs / stride + 1);
-        let mut k = 0usize;
-        for j in 0..n {
-            for i in 0..j {
-                if k.is_multiple_of(stride) {
-                    let d = self.get(i, j);
-                    if d > 0.0 {
-                        out.push(d);
-                    }
-                }
-                k += 1;
+        // pair k = j (j - 1) / 2 + i (i < j, the order j then i): every
+        // stride-th k is visited directly, O(pairs / stride) time
+        let mut j = 1usize;
+        for k in (0..pairs).step_by(stride) {
+            while (j + 1) * j / 2 <= k {
+                j += 1;
+            }
+            let i = k - j * (j - 1) / 2;
+            let d = self.get(i, j);
+            if d > 0.0 {
+                out.push(d);
             }
         }
         out.sort_by(f64::total_cmp);
         out
+    }
+}
+
+/// Pairs `(i, j)`, `i < j`, of equal positions, in the order `j` then `i`:
+/// the points sorted by position and each run of equal ones paired, `O(n log n)`
+/// plus the pairs.
+fn coincident_positions(x: &[f64], y: &[f64]) -> Vec<(usize, usize)> {
+    let mut idx: Vec<usize> = (0..x.len()).collect();
+    idx.sort_by(|&a, &b| x[a].total_cmp(&x[b]).then(y[a].total_cmp(&y[b])).then(a.cmp(&b)));
+    let mut out = Vec::new();
+    let mut start = 0;
+    while start < idx.len() {
+        let (a, b) = (x[idx[start]], y[idx[start]]);
+        let mut end = start + 1;
+        // == rather than total_cmp: 0.0 and -0.0 are one position
+        while end < idx.len() && x[idx[end]] == a && y[idx[end]] == b {
+            end += 1;
+        }
+        // by index: -0.0 sorts before 0.0 inside one position
+        let mut run = idx[start..end].to_vec();
+        run.sort_unstable();
+        for (t, &j) in run.iter().enumerate() {
+            out.extend(run[..t].iter().map(|&i| (i, j)));
+        }
+        start = end;
+    }
+    out.sort_by_key(|&(i, j)| (j, i));
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The sorted pairing of equal positions and the strided pair sample
+    /// equal the loops over every pair (by the definition).
+    #[test]
+    fn coincident_pairs_and_pair_sample_equal_the_pair_loops() {
+        let n = 700; // 244,650 pairs: a stride of 2
+        let x: Vec<f64> = (0..n).map(|i| ((i * 7) % 23) as f64 * 0.5).collect();
+        let y: Vec<f64> =
+            (0..n).map(|i| if i % 5 == 0 { -0.0 } else { ((i * 3) % 31) as f64 * 0.25 }).collect();
+        let d = Distances::from_coords(&x, &y).unwrap();
+        let mut brute = Vec::new();
+        for j in 0..n {
+            for i in 0..j {
+                if d.get(i, j) == 0.0 {
+                    brute.push((i, j));
+                }
+            }
+        }
+        assert!(brute.len() > 100);
+        assert_eq!(d.coincident(), brute);
+        let pairs = n * (n - 1) / 2;
+        let stride = pairs.div_ceil(200_000);
+        assert_eq!(stride, 2);
+        let mut want = Vec::new();
+        let mut k = 0usize;
+        for j in 0..n {
+            for i in 0..j {
+                if k.is_multiple_of(stride) && d.get(i, j) > 0.0 {
+                    want.push(d.get(i, j));
+                }
+                k += 1;
+            }
+        }
+        want.sort_by(f64::total_cmp);
+        assert_eq!(d.positive_sample(), want);
     }
 }

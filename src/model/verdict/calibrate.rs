@@ -26,7 +26,7 @@ use crate::model::bootstrap::{BootstrapLrt, bootstrap_lrt};
 use crate::model::compare::{LrtNull, Verdict, lrt_p_value};
 use crate::model::data::{ModelData, ModelSpec};
 use crate::model::error::Result;
-use crate::model::gls::{Errors, Fit};
+use crate::model::gls::{Errors, Fit, LikelihoodPath};
 use crate::model::small_sample::kenward_roger;
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
 use serde::Serialize;
@@ -130,6 +130,7 @@ pub(super) fn calibrated_verdict(
     spec: &ModelSpec,
     grid: &[GridFit],
     dist: &Distances,
+    path: &LikelihoodPath,
     tie_delta: f64,
     replicates: usize,
     seed: u64,
@@ -152,17 +153,18 @@ pub(super) fn calibrated_verdict(
             return Ok((verdict, cal, None));
         }
         let design = design_for(data, spec, &chosen.drivers)?;
-        let reml = fit(&design, data, dist, chosen.errors, LikelihoodKind::Reml)?;
-        let tests = driver_tests(data, &design, &reml, chosen, dist, false)?;
+        let reml = fit(&design, data, dist, chosen.errors, LikelihoodKind::Reml, path)?;
+        let tests = driver_tests(data, &design, &reml, chosen, dist, path, false)?;
         let mut set_aside: Vec<String> =
             tests.iter().filter(|t| t.p_value >= ALPHA).map(|t| t.driver.clone()).collect();
         let (mut tests_under_correlation, mut correlation_check) = (Vec::new(), None);
         if set_aside.is_empty() && chosen.errors == Errors::Independent {
             match under_best_correlation(&pool, chosen) {
                 Ok(alt) => {
-                    let refit = fit(&design, data, dist, alt.errors, LikelihoodKind::Reml)?;
+                    let refit = fit(&design, data, dist, alt.errors, LikelihoodKind::Reml, path)?;
                     let shape = GridFit { drivers: chosen.drivers.clone(), errors: alt.errors, fit: refit };
-                    tests_under_correlation = driver_tests(data, &design, &shape.fit, &shape, dist, true)?;
+                    tests_under_correlation =
+                        driver_tests(data, &design, &shape.fit, &shape, dist, path, true)?;
                     set_aside = tests_under_correlation
                         .iter()
                         .filter(|t| t.p_value >= ALPHA)
@@ -189,6 +191,10 @@ pub(super) fn calibrated_verdict(
             let p_asym = lrt_p_value(stat, LrtNull::ChiSquare { df });
             if replicates == 0 {
                 skipped = Some("`[verdict] bootstrap = 0`".to_string());
+            } else if let Some(why) = path.dense_refused("the parametric bootstrap") {
+                skipped = Some(format!(
+                    "{why} to simulate from, and it would refit both models {replicates} times; the decision rests on the asymptotic likelihood-ratio test"
+                ));
             } else if p_asym < BOOTSTRAP_SKIP_P {
                 skipped = Some(format!(
                     "the asymptotic p-value {p_asym:.2e} is below {BOOTSTRAP_SKIP_P}: the bootstrap cannot change the decision"
@@ -247,6 +253,7 @@ fn driver_tests(
     reml: &Fit,
     shape: &GridFit,
     dist: &Distances,
+    path: &LikelihoodPath,
     second_test: bool,
 ) -> Result<Vec<DriverTest>> {
     let n = data.response.len();
@@ -254,7 +261,10 @@ fn driver_tests(
     for d in &shape.drivers {
         let c = reml.names.iter().position(|x| x == d).expect("driver column");
         let df_plain = (n - reml.beta.len()) as f64;
-        let method = small_sample_method(&shape.errors);
+        let method = match (path.dense_refused("the Kenward-Roger correction"), shape.errors) {
+            (Some(why), Errors::Correlated { .. }) => Err(format!("plug-in t ({why})")),
+            _ => small_sample_method(&shape.errors),
+        };
         let kr = match (shape.errors, reml.covariance, &method) {
             (Errors::Correlated { nugget, .. }, Some(cov), Ok(true)) => {
                 match kenward_roger(dist, cov.params, nugget, reml.sigma2, &design.x, &data.response, c) {

@@ -8,7 +8,8 @@ use crate::model::data::{ModelData, ModelSpec};
 use crate::model::design::{Design, DesignSpec};
 use crate::model::error::{ModelError, Result};
 use crate::model::gls::{
-    Errors, Fit, fit_correlated, fit_correlated_shared, fit_directional, fit_independent, fit_rows_columns,
+    Errors, Fit, LikelihoodPath, fit_correlated, fit_correlated_shared, fit_directional, fit_independent,
+    fit_rows_columns,
 };
 pub use crate::model::timings::SharedGrid;
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
@@ -49,6 +50,7 @@ pub(super) fn fit(
     dist: &Distances,
     errors: Errors,
     method: LikelihoodKind,
+    path: &LikelihoodPath,
 ) -> Result<Fit> {
     match errors {
         Errors::Independent => fit_independent(design, &data.response, method),
@@ -61,6 +63,7 @@ pub(super) fn fit(
             family,
             nugget,
             method,
+            path,
         ),
         Errors::RowsColumns { nugget } => {
             let name = model_name(&design.drivers, &errors);
@@ -105,12 +108,16 @@ pub(super) struct GridFit {
 /// so that collinear drivers are refused with their names). Error models left
 /// out are said in `notes`; the start grids shared by the fixed parts of one
 /// error model are listed in `shared`. Each finished fit is a step of
-/// `progress`.
+/// `progress`. On the nearest-neighbour likelihood (`path`) the rows x
+/// columns and direction-dependent models, which have only a dense form, are
+/// left out with a note.
+#[allow(clippy::too_many_arguments)]
 pub(super) fn fit_grid(
     data: &ModelData,
     spec: &ModelSpec,
     full: &Design,
     dist: &Distances,
+    path: &LikelihoodPath,
     notes: &mut Vec<String>,
     shared: &mut Vec<SharedGrid>,
     progress: &dyn crate::model::progress::FitProgress,
@@ -142,7 +149,14 @@ pub(super) fn fit_grid(
             error_models.push(Errors::Correlated { family, nugget: true });
         }
     }
-    crate::model::structures::add_to_grid(spec, data, coincident, &mut error_models, notes);
+    if path.is_exact() {
+        crate::model::structures::add_to_grid(spec, data, coincident, &mut error_models, notes);
+    } else if spec.rows_columns || !spec.directional.is_empty() {
+        notes.push(format!(
+            "rows x columns and direction-dependent errors: not fitted, they have no nearest-neighbour form and the correlated fits use {}",
+            path.likelihood().describe()
+        ));
+    }
     let total = driver_sets.len() * error_models.len();
     let counter = crate::model::progress::Counter::begin(progress, "comparison grid (ML fits)", total);
     let designs: Vec<Design> = driver_sets
@@ -169,7 +183,7 @@ pub(super) fn fit_grid(
                 designs
                     .iter()
                     .map(|d| {
-                        let f = fit(d, data, dist, errors, LikelihoodKind::Ml);
+                        let f = fit(d, data, dist, errors, LikelihoodKind::Ml, path);
                         counter.step();
                         f
                     })
@@ -188,12 +202,19 @@ pub(super) fn fit_grid(
                     family,
                     nugget,
                     LikelihoodKind::Ml,
+                    path,
                 )?;
                 for _ in &fits {
                     counter.step();
                 }
-                let grid = SharedGrid { errors: errors.label(), fits: fits.len(), factorisations, seconds };
-                Ok((fits, Some(grid)))
+                // the nearest-neighbour path shares no start grid
+                let grid = path.is_exact().then(|| SharedGrid {
+                    errors: errors.label(),
+                    fits: fits.len(),
+                    factorisations,
+                    seconds,
+                });
+                Ok((fits, grid))
             }
         }
     };

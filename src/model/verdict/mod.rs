@@ -41,9 +41,10 @@ pub use self::headline::{
     Certainty, Headline, NextLogger, TYPICAL_SPAN, TypicalEffect, WEAK_MAP_RATIO, headline, percentile,
 };
 pub use self::result::{
-    AdjustedMeanRow, CoefRow, DriverSummary, LeftOutPot, LrtRow, ModelRow, MoranSummary, OpeningsSummary,
-    ResidualBin, ResidualCheck, VerdictResult,
+    AdjustedMeanRow, CoefRow, DriverSummary, LeftOutPot, LikelihoodUsed, LrtRow, ModelRow, MoranSummary,
+    OpeningsSummary, ResidualBin, ResidualCheck, VerdictResult,
 };
+pub use self::summaries::RESIDUAL_VARIOGRAM_POTS;
 pub use self::uncertainty::{
     MIN_SENSORS_FOR_VARIOGRAM, MappingDraws, SENSOR_FILE, SensorValues, impute_and_pool, load_sensor_values,
     mapping_uncertainty, mapping_uncertainty_with, sensor_variogram, window_prior_cov,
@@ -58,7 +59,7 @@ use super::compare;
 use super::data::{ModelData, ModelSpec, load_model_data};
 use super::diagnostics::{MORAN_NEIGHBOURS, knn, moran_residuals};
 use super::error::Result;
-use super::gls::{Fit, fit_independent};
+use super::gls::{Fit, LikelihoodPath, fit_independent};
 use crate::io::study::Study;
 use crate::model::timings::{FitTime, ImputationTime, Timings};
 use crate::spatial::likelihood::{Distances, LikelihoodKind};
@@ -254,6 +255,17 @@ pub fn verdict_on(
     if climate.is_empty() {
         return Ok(r);
     }
+    if let Some(used) = r.likelihood.as_mut() {
+        // the imputations need the dense prior covariance of the driver at the pots
+        let why = format!(
+            "the uncertainty of the mapped driver(s) {} is not propagated by imputation under the nearest-neighbour likelihood ({} neighbours): the imputation needs the dense n x n covariance of the driver at the pots; their SEs treat the mapped values as known",
+            climate.iter().map(|d| format!("`{d}`")).collect::<Vec<_>>().join(", "),
+            used.neighbours
+        );
+        used.replaced.push(why.clone());
+        r.notes.push(why);
+        return Ok(r);
+    }
     let start = Instant::now();
     for d in &climate {
         let Some(sv) = sensor_values.iter().find(|s| &s.name == d) else {
@@ -303,12 +315,15 @@ pub fn analyse_with(
 ) -> Result<VerdictResult> {
     let start = Instant::now();
     let n = data.response.len();
+    // The likelihood first: a forced exact path too large for memory is
+    // refused from the pot count, before any n x n allocation.
+    let path = LikelihoodPath::for_data(spec, data)?;
     // Build the full design first: collinear drivers are refused here with their names.
     let full = design_for(data, spec, &spec.drivers)?;
     let dist = data.distances().map_err(|e| lerr("positions", e))?;
     let mut notes = Vec::new();
     let mut shared = Vec::new();
-    let grid = fit_grid(data, spec, &full, &dist, &mut notes, &mut shared, progress)?;
+    let grid = fit_grid(data, spec, &full, &dist, &path, &mut notes, &mut shared, progress)?;
     let all: Vec<&GridFit> = grid.iter().collect();
     let (ranked, _) = rank_and_decide(&all, n, opts.tie_delta)?;
     let (verdict, calibration, chosen_reml) = self::calibrate::calibrated_verdict(
@@ -316,6 +331,7 @@ pub fn analyse_with(
         spec,
         &grid,
         &dist,
+        &path,
         opts.tie_delta,
         opts.bootstrap,
         opts.seed,
@@ -333,7 +349,7 @@ pub fn analyse_with(
     let chosen_design = design_for(data, spec, &chosen_ml.drivers)?;
     let chosen = match chosen_reml {
         Some(f) => f,
-        None => fit(&chosen_design, data, &dist, chosen_ml.errors, LikelihoodKind::Reml)?,
+        None => fit(&chosen_design, data, &dist, chosen_ml.errors, LikelihoodKind::Reml, &path)?,
     };
     let base_design = design_for(data, spec, &[])?;
     let plain = fit_independent(&base_design, &data.response, LikelihoodKind::Reml)?;
@@ -356,7 +372,8 @@ pub fn analyse_with(
             p_value: m.p,
         })
     };
-    let residual_check = residual_check(data, &chosen, moran_of(&chosen), &verdict.chosen);
+    let mut replaced = Vec::new();
+    let residual_check = residual_check(data, &chosen, moran_of(&chosen), &verdict.chosen, &mut replaced);
 
     let mut drivers = driver_summaries(data, &grid, &chosen, chosen_ml.errors, &verdict.chosen);
     for d in drivers.iter_mut() {
@@ -368,8 +385,18 @@ pub fn analyse_with(
             d.ci_high_small_sample = Some(t.ci.1);
         }
     }
-    ranking_small_sample(data, spec, &grid, &dist, &mut drivers)?;
-    let smooth_shares = smooth_shares_of(data, spec, &grid, &chosen, &verdict.chosen, &dist)?;
+    let smooth_shares = match path.dense_refused("the smooth share of each driver") {
+        None => {
+            ranking_small_sample(data, spec, &grid, &dist, &path, &mut drivers)?;
+            smooth_shares_of(data, spec, &grid, &chosen, &verdict.chosen, &dist)?
+        }
+        Some(why) => {
+            replaced.push(format!(
+                "{why} (the leading eigenvectors of the residual correlation); the Kenward-Roger correction is not made either, for the same reason: the drivers' small-sample columns are the plug-in t"
+            ));
+            Vec::new()
+        }
+    };
     for sh in &smooth_shares {
         if let Some(d) = drivers.iter_mut().find(|d| d.name == sh.driver) {
             d.smooth_share = Some(sh.share);
@@ -400,6 +427,26 @@ pub fn analyse_with(
         shared_grids: shared,
         imputations: Vec::new(),
     };
+    let likelihood = path.likelihood().neighbours().map(|m| {
+        let used = LikelihoodUsed {
+            likelihood: path.likelihood().name().into(),
+            neighbours: m,
+            setting: spec.likelihood.name().into(),
+            exact_up_to: crate::model::likelihood_path::EXACT_UP_TO,
+            replaced: replaced.clone(),
+        };
+        notes.insert(
+            0,
+            format!(
+                "The correlated fits use {} ({n} pots; `[model] likelihood = \"{}\"`, exact up to {} pots): an approximation whose log-likelihoods, estimates, SEs and tests all come from it. {}",
+                path.likelihood().describe(),
+                spec.likelihood.name(),
+                crate::model::likelihood_path::EXACT_UP_TO,
+                replaced.join("; ")
+            ),
+        );
+        used
+    });
     let structure_fits: Vec<(String, &Fit, f64)> =
         models.iter().map(|m| (m.name.clone(), &by_name(&m.name).fit, m.delta_aic)).collect();
     let structures =
@@ -441,6 +488,7 @@ pub fn analyse_with(
         // factor's line does not depend on the order of the declaration.
         plain_anova: super::ols::anova(&base_design, &data.response, super::ols::SsType::Hierarchical).ok(),
         mapping_notes: Vec::new(),
+        likelihood,
     })
 }
 
@@ -498,6 +546,7 @@ fn ranking_small_sample(
     spec: &ModelSpec,
     grid: &[GridFit],
     dist: &Distances,
+    path: &LikelihoodPath,
     drivers: &mut [DriverSummary],
 ) -> Result<()> {
     for d in drivers.iter_mut().filter(|d| d.se_small_sample.is_none()) {
@@ -517,6 +566,7 @@ fn ranking_small_sample(
             cov.params,
             nugget,
             LikelihoodKind::Reml,
+            path,
         ) else {
             continue;
         };

@@ -51,6 +51,30 @@ pub struct ModelRow {
     /// Direction-dependent: range across that direction over range along it, `(0, 1]`.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub range_ratio: Option<f64>,
+    /// The likelihood maximised (`exact` or `neighbours`); given only when
+    /// the study used the nearest-neighbour likelihood (absent: exact).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub likelihood: Option<String>,
+    /// Neighbours per pot of a fit on the nearest-neighbour likelihood.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub neighbours: Option<usize>,
+}
+
+/// How the correlated fits of a study were evaluated, when not exactly: in
+/// `summary.json` only when the nearest-neighbour likelihood was used.
+#[derive(Clone, Debug, Serialize)]
+pub struct LikelihoodUsed {
+    /// `neighbours`.
+    pub likelihood: String,
+    /// Neighbours per pot.
+    pub neighbours: usize,
+    /// `[model] likelihood` as set (`auto` or `neighbours`).
+    pub setting: String,
+    /// Pots up to which `auto` uses the exact likelihood.
+    pub exact_up_to: usize,
+    /// What was left out or replaced because it needs the dense `n x n`
+    /// covariance, one sentence each.
+    pub replaced: Vec<String>,
 }
 
 /// A likelihood-ratio test of a nested pair.
@@ -309,4 +333,8 @@ pub struct VerdictResult {
     /// cautions.
     #[serde(skip)]
     pub mapping_notes: Vec<String>,
+    /// The nearest-neighbour likelihood, when the correlated fits used it
+    /// (absent from `summary.json` on the exact path).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub likelihood: Option<LikelihoodUsed>,
 }

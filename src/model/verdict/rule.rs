@@ -44,6 +44,8 @@ pub(super) fn rank_and_decide(grid: &[&GridFit], n: usize, tie_delta: f64) -> Re
 
 /// The rows of `comparison.csv`, in the order of `ranked`.
 pub(super) fn model_rows(ranked: &[Ranked], grid: &[GridFit]) -> Vec<ModelRow> {
+    // the likelihood columns only when some fit was approximated
+    let approximated = grid.iter().any(|g| g.fit.likelihood.neighbours().is_some());
     ranked
         .iter()
         .map(|r| {
@@ -87,6 +89,8 @@ pub(super) fn model_rows(ranked: &[Ranked], grid: &[GridFit]) -> Vec<ModelRow> {
                 column_correlation,
                 direction_degrees,
                 range_ratio,
+                likelihood: approximated.then(|| g.fit.likelihood.name().to_string()),
+                neighbours: g.fit.likelihood.neighbours(),
             }
         })
         .collect()

@@ -21,11 +21,30 @@ pub(super) fn residual_check(
     chosen: &Fit,
     moran: Option<MoranSummary>,
     name: &str,
+    replaced: &mut Vec<String>,
 ) -> ResidualCheck {
-    let points = Points { ids: data.pots.clone(), x: data.x.clone(), y: data.y.clone() };
+    // On the nearest-neighbour likelihood (a large study) the variogram is
+    // taken over every k-th pot, at most RESIDUAL_VARIOGRAM_POTS of them: the
+    // pairs within half the largest distance are a sizeable share of all
+    // n (n - 1) / 2 pairs, held at once.
+    let n = data.pots.len();
+    let k = match chosen.likelihood.neighbours() {
+        Some(_) if n > RESIDUAL_VARIOGRAM_POTS => n.div_ceil(RESIDUAL_VARIOGRAM_POTS),
+        _ => 1,
+    };
+    let pick = |v: &[f64]| -> Vec<f64> { v.iter().step_by(k).copied().collect() };
+    let points =
+        Points { ids: data.pots.iter().step_by(k).cloned().collect(), x: pick(&data.x), y: pick(&data.y) };
+    if k > 1 {
+        replaced.push(format!(
+            "the variogram of the normalised residuals is taken over every {k}th pot ({} of {n}): all pairs of {n} pots would not fit in memory",
+            points.len()
+        ));
+    }
+    let values = pick(&chosen.normalised);
     let variogram: Vec<ResidualBin> = Bins::default_for(&points)
         .ok()
-        .and_then(|bins| experimental(&points, &chosen.normalised, &bins, Estimator::Matheron, None).ok())
+        .and_then(|bins| experimental(&points, &values, &bins, Estimator::Matheron, None).ok())
         .map(|emp| {
             emp.bins
                 .iter()
@@ -56,6 +75,10 @@ pub(super) fn residual_check(
     };
     ResidualCheck { moran, variogram, structure_left, statement }
 }
+
+/// Most pots the residual variogram is taken over on the nearest-neighbour
+/// likelihood (our choice: about 2 million pairs, a few tens of MB).
+pub const RESIDUAL_VARIOGRAM_POTS: usize = 2_000;
 
 /// The driver ranking: one row per loaded driver, its estimate from the chosen
 /// model when it is in it (else from the single-driver fit with the chosen

@@ -36,6 +36,8 @@ fn spec(drivers: &[&str]) -> ModelSpec {
         trait_unit: None,
         rows_columns: false,
         directional: vec![],
+        likelihood: crate::model::likelihood_path::Setting::Auto,
+        neighbours: crate::spatial::vecchia::DEFAULT_NEIGHBOURS,
     }
 }
 
@@ -399,4 +401,118 @@ fn progress_counts_every_grid_fit_and_imputation() {
     mapping_uncertainty_with(&d, &spec(&["cold"]), &shape, &sv, None, &opts, &rec).unwrap();
     let tasks = rec.0.lock().unwrap().clone();
     assert_eq!(tasks, [("imputations of `cold` (REML refits)".to_string(), 5, 5)]);
+}
+
+/// The nearest-neighbour likelihood with every earlier pot as a neighbour
+/// (`m = n - 1`, where the Vecchia factorisation is exact) gives the exact
+/// grid: every maximised log-likelihood within 1e-6 relative (the
+/// neighbours path searches by the simplex, the exact one by Newton steps)
+/// and the same verdict. The outputs name the likelihood: every row carries
+/// it, the result says what was left out, and the small-sample tests are
+/// the plug-in t.
+#[test]
+fn all_earlier_neighbours_give_the_exact_grid_and_verdict() {
+    let d = simulate(Truth::Both, 5);
+    let opts = VerdictOptions { bootstrap: 0, ..VerdictOptions::default() };
+    let exact = analyse(&d, &spec(&["cold"]), &opts).unwrap();
+    let near_spec = ModelSpec {
+        likelihood: crate::model::likelihood_path::Setting::Neighbours,
+        neighbours: d.response.len() - 1,
+        ..spec(&["cold"])
+    };
+    let near = analyse(&d, &near_spec, &opts).unwrap();
+    assert_eq!(exact.verdict, near.verdict);
+    assert_eq!(exact.best_model, near.best_model);
+    assert_eq!(exact.models.len(), near.models.len());
+    for m in &exact.models {
+        let other = near.models.iter().find(|o| o.name == m.name).expect("same grid");
+        assert!(
+            (m.loglik - other.loglik).abs() <= 1e-6 * m.loglik.abs(),
+            "{}: exact {} neighbours {}",
+            m.name,
+            m.loglik,
+            other.loglik
+        );
+        assert!(m.likelihood.is_none());
+        let correlated = m.correlation != "none";
+        assert_eq!(other.likelihood.as_deref(), Some(if correlated { "neighbours" } else { "exact" }));
+        assert_eq!(other.neighbours, correlated.then_some(d.response.len() - 1));
+    }
+    assert!(exact.likelihood.is_none());
+    let used = near.likelihood.as_ref().expect("the neighbours path is reported");
+    assert_eq!((used.likelihood.as_str(), used.neighbours), ("neighbours", 79));
+    assert!(used.replaced.iter().any(|r| r.contains("Kenward-Roger")), "{:?}", used.replaced);
+    assert!(near.notes[0].contains("nearest-neighbour (Vecchia) likelihood with 79 neighbours"));
+    assert!(near.smooth_shares.is_empty());
+    if let Some(step) = near.calibration.steps.last()
+        && !near.chosen_shape.0.is_empty()
+        && matches!(near.chosen_shape.1, Errors::Correlated { .. })
+    {
+        assert!(step.tests.iter().all(|t| t.method.starts_with("plug-in t")), "{:?}", step.tests);
+    }
+    let csv = comparison_csv(&near);
+    assert!(csv.lines().next().unwrap().ends_with(",likelihood,neighbours"), "{csv}");
+    assert!(!comparison_csv(&exact).contains("likelihood"));
+}
+
+/// A forced exact likelihood too large for memory is refused from the pot
+/// count alone, before the design or any n x n object is built, with the
+/// memory it would need and the key that avoids it.
+#[test]
+fn forced_exact_too_large_is_refused_before_any_work() {
+    let n = 6_000;
+    let d = ModelData {
+        source: PathBuf::from("simulated"),
+        trait_name: "height".into(),
+        pots: (0..n).map(|i| format!("p{i}")).collect(),
+        lines: (0..n).map(|i| i + 2).collect(),
+        x: (0..n).map(|i| (i % 100) as f64 * 0.3).collect(),
+        y: (0..n).map(|i| (i / 100) as f64 * 0.3).collect(),
+        response: (0..n).map(|i| (i as f64 * 0.7).sin()).collect(),
+        blocks: vec![],
+        factors: vec![],
+        drivers: vec![],
+        excluded: vec![],
+        cells: None,
+        paths: None,
+    };
+    let forced = ModelSpec { likelihood: crate::model::likelihood_path::Setting::Exact, ..spec(&[]) };
+    let e = analyse(&d, &forced, &VerdictOptions::default()).unwrap_err().to_string();
+    assert!(
+        e.starts_with("[model] likelihood: the exact likelihood at 6000 pots needs about 10.4 GB"),
+        "{e}"
+    );
+    assert!(e.contains("likelihood = \"neighbours\""), "{e}");
+    // too many neighbours for the pots
+    let many = ModelSpec {
+        likelihood: crate::model::likelihood_path::Setting::Neighbours,
+        neighbours: n,
+        ..spec(&[])
+    };
+    let e = analyse(&d, &many, &VerdictOptions::default()).unwrap_err().to_string();
+    assert!(
+        e.contains("neighbours = 6000 must be at least 1 and below the number of analysed pots (6000)"),
+        "{e}"
+    );
+}
+
+/// Two pots at one position without a nugget: the same error on both
+/// likelihoods (the correlation matrix, exact or approximated, is singular).
+#[test]
+fn duplicate_positions_without_nugget_are_refused_on_both_paths() {
+    let mut d = simulate(Truth::Both, 6);
+    d.x[7] = d.x[3];
+    d.y[7] = d.y[3];
+    let no_nugget = ModelSpec { nugget: false, ..spec(&["cold"]) };
+    let opts = VerdictOptions { bootstrap: 0, ..VerdictOptions::default() };
+    let exact = analyse(&d, &no_nugget, &opts).unwrap_err().to_string();
+    let near = ModelSpec {
+        likelihood: crate::model::likelihood_path::Setting::Neighbours,
+        neighbours: 10,
+        ..no_nugget.clone()
+    };
+    let approx = analyse(&d, &near, &opts).unwrap_err().to_string();
+    assert_eq!(exact, approx);
+    assert!(exact.contains("1 pair(s) of pots share a position (first: `p3` and `p7`)"), "{exact}");
+    assert!(exact.contains("fit with a nugget"), "{exact}");
 }

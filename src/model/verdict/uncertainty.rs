@@ -258,6 +258,10 @@ pub fn impute_and_pool(
     let name = sv.name.as_str();
     let bad =
         |message: String, hint: Option<String>| ModelError::Imputation { driver: name.into(), message, hint };
+    let path = crate::model::gls::LikelihoodPath::for_data(spec, data)?;
+    if let Some(why) = path.dense_refused("the imputation") {
+        return Err(bad(why, Some("set `likelihood = \"exact\"` in [model] for a study this size".into())));
+    }
     let ns = sv.values.len();
     if ns < 3 {
         return Err(bad(
@@ -297,7 +301,7 @@ pub fn impute_and_pool(
     // The chosen model on the map: start of the chain and its correlation matrix.
     let dist = data.distances().map_err(|e| lerr("positions", e))?;
     let design = design_for(data, spec, &shape.0)?;
-    let plug = fit(&design, data, &dist, shape.1, LikelihoodKind::Reml)?;
+    let plug = fit(&design, data, &dist, shape.1, LikelihoodKind::Reml, &path)?;
     let c = plug
         .names
         .iter()
@@ -341,8 +345,9 @@ pub fn impute_and_pool(
                 p,
                 nugget,
                 LikelihoodKind::Reml,
+                &path,
             )?,
-            _ => fit(&design, &d, &dist, shape.1, LikelihoodKind::Reml)?,
+            _ => fit(&design, &d, &dist, shape.1, LikelihoodKind::Reml, &path)?,
         };
         counter.step();
         refit_factorisations.fetch_add(

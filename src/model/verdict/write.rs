@@ -25,13 +25,19 @@ pub const ROWS_COLUMNS_COLUMNS: [&str; 2] = ["row_correlation", "column_correlat
 /// any) when the grid holds a direction-dependent model.
 pub const DIRECTIONAL_COLUMNS: [&str; 2] = ["direction_degrees", "range_ratio"];
 
+/// The columns `comparison.csv` appends last when a fit used the
+/// nearest-neighbour likelihood.
+pub const LIKELIHOOD_COLUMNS: [&str; 2] = ["likelihood", "neighbours"];
+
 /// Render `comparison.csv` (the grid, sorted by AIC). The columns of the
 /// rows x columns and direction-dependent parameters are appended only when
-/// the grid holds such a model, so that a grid without them keeps its layout
-/// (docs/outputs.md).
+/// the grid holds such a model, and those of the likelihood only when a fit
+/// used the nearest-neighbour one, so that a grid without them keeps its
+/// layout (docs/outputs.md).
 pub fn comparison_csv(r: &VerdictResult) -> String {
     let rc = r.models.iter().any(|m| m.row_correlation.is_some());
     let dir = r.models.iter().any(|m| m.direction_degrees.is_some());
+    let lik = r.models.iter().any(|m| m.likelihood.is_some());
     let mut header = vec![
         "model",
         "drivers",
@@ -53,6 +59,9 @@ pub fn comparison_csv(r: &VerdictResult) -> String {
     }
     if dir {
         header.extend(DIRECTIONAL_COLUMNS);
+    }
+    if lik {
+        header.extend(LIKELIHOOD_COLUMNS);
     }
     let mut t = CsvTable::new(header);
     for m in &r.models {
@@ -77,6 +86,12 @@ pub fn comparison_csv(r: &VerdictResult) -> String {
         }
         if dir {
             row.extend([opt(m.direction_degrees), opt(m.range_ratio)]);
+        }
+        if lik {
+            row.extend([
+                m.likelihood.clone().unwrap_or_default(),
+                m.neighbours.map(|k| k.to_string()).unwrap_or_default(),
+            ]);
         }
         t.row(row);
     }
