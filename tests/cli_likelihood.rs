@@ -89,9 +89,25 @@ fn neighbours_with_every_earlier_pot_reproduce_the_exact_run() {
     assert_eq!(sn["likelihood"]["neighbours"], n - 1);
     assert_eq!(sn["likelihood"]["setting"], "neighbours");
     let correlated = sn["models"].as_array().unwrap().iter().filter(|m| m["correlation"] != "none");
+    let mut latent = 0;
     for m in correlated {
-        assert_eq!((m["likelihood"].as_str(), m["neighbours"].as_u64()), (Some("neighbours"), Some(149)));
+        // a positive nugget share in the exponential or Matérn family: the latent form
+        let family = potclim::spatial::correlation::Family::parse(m["correlation"].as_str().unwrap());
+        let eta = m["nugget_share"].as_f64().unwrap_or(0.0);
+        let expected = match family {
+            Ok(family)
+                if potclim::model::likelihood_path::latent_form(
+                    &potclim::spatial::likelihood::CovParams { family, range: 1.0, eta },
+                ) =>
+            {
+                "neighbours_latent"
+            }
+            _ => "neighbours",
+        };
+        latent += usize::from(expected == "neighbours_latent");
+        assert_eq!((m["likelihood"].as_str(), m["neighbours"].as_u64()), (Some(expected), Some(149)), "{m}");
     }
+    assert!(latent > 0, "no fit used the latent form");
     // the report says which likelihood was used
     let html = std::fs::read_to_string(near.join("output/report.html")).unwrap();
     assert!(html.contains("nearest-neighbour (Vecchia) likelihood with 149 neighbours"));

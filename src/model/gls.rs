@@ -646,7 +646,7 @@ pub fn finish_correlated(
         whitened_x,
         Some(search),
     );
-    fit.likelihood = path.likelihood();
+    fit.likelihood = path.likelihood_of(&params);
     Ok(fit)
 }
 

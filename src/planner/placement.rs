@@ -378,7 +378,7 @@ fn from_study(plan: &PlanFile, sec: &PlacementSection, rel: &str) -> Result<Inpu
         )?,
     };
     let why = if basis == "map" {
-        " The map has no window SE for this indicator (it combines two variables, the pots move, or its method has no SE), so the kriging SE of its study-period values is used."
+        " The map has no window SE for this indicator (it combines two variables, the pots move, it was kriged directly with its own variogram, or its method has no SE), so the kriging SE of its study-period values is used."
     } else {
         ""
     };

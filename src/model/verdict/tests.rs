@@ -403,6 +403,24 @@ fn progress_counts_every_grid_fit_and_imputation() {
     assert_eq!(tasks, [("imputations of `cold` (REML refits)".to_string(), 5, 5)]);
 }
 
+/// The likelihood a row of the neighbours path must name: `exact` for
+/// independent errors, `neighbours_latent` for a fit whose estimated nugget
+/// share is positive in a family of the latent form
+/// ([`crate::model::likelihood_path::latent_form`]), else `neighbours`.
+fn expected_likelihood(row: &super::ModelRow) -> &'static str {
+    if row.correlation == "none" {
+        return "exact";
+    }
+    let latent = crate::spatial::correlation::Family::parse(&row.correlation).is_ok_and(|family| {
+        crate::model::likelihood_path::latent_form(&crate::spatial::likelihood::CovParams {
+            family,
+            range: 1.0,
+            eta: row.nugget_share.unwrap_or(0.0),
+        })
+    });
+    if latent { "neighbours_latent" } else { "neighbours" }
+}
+
 /// The nearest-neighbour likelihood with every earlier pot as a neighbour
 /// (`m = n - 1`, where the Vecchia factorisation is exact) gives the exact
 /// grid: every maximised log-likelihood within 1e-6 relative (the
@@ -435,7 +453,7 @@ fn all_earlier_neighbours_give_the_exact_grid_and_verdict() {
         );
         assert!(m.likelihood.is_none());
         let correlated = m.correlation != "none";
-        assert_eq!(other.likelihood.as_deref(), Some(if correlated { "neighbours" } else { "exact" }));
+        assert_eq!(other.likelihood.as_deref(), Some(expected_likelihood(other)), "{}", other.name);
         assert_eq!(other.neighbours, correlated.then_some(d.response.len() - 1));
     }
     assert!(exact.likelihood.is_none());
