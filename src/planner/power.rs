@@ -195,13 +195,16 @@ fn stage_err(stage: Stage, e: impl Into<StageError>) -> String {
 /// holds the driver, and the driver's estimate with its 95 % CI.
 type Analysed = (String, String, bool, Option<(f64, f64, f64)>);
 
+/// A generated study's files: path inside the study folder and contents.
+type Files = Vec<(String, Vec<u8>)>;
+
 /// Whether the study generated as `b` has the same climate, layout and
 /// windows as the one generated as `a`, so that `a`'s climate and map serve
 /// it: the files differ at most in the simulator's truth folder and in the
 /// trait (the last column of `pots.csv`). With common random numbers this
 /// holds for every effect size of one seed and logger count, since the
 /// simulator draws the climate from its own random stream.
-fn same_climate(a: &[(String, Vec<u8>)], b: &[(String, Vec<u8>)]) -> bool {
+fn same_climate(a: &Files, b: &Files) -> bool {
     let strip = |bytes: &[u8]| -> Vec<Vec<u8>> {
         bytes
             .split(|&c| c == b'\n')
@@ -219,7 +222,7 @@ fn same_climate(a: &[(String, Vec<u8>)], b: &[(String, Vec<u8>)]) -> bool {
 
 /// Simulate one study of `sc` with `seed` into `work` (emptied first);
 /// returns the generated files.
-fn simulate_into(sc: &Scenario, seed: u64, work: &Path) -> Result<Vec<(String, Vec<u8>)>, String> {
+fn simulate_into(sc: &Scenario, seed: u64, work: &Path) -> Result<Files, String> {
     let files = crate::simulate::generate(sc, seed).map_err(|e| format!("{e:#}"))?;
     let _ = std::fs::remove_dir_all(work);
     for (name, bytes) in &files {
@@ -399,7 +402,7 @@ pub fn run(
                     let i = next.fetch_add(1, Ordering::SeqCst);
                     let Some((ci, k, r, seed, scs)) = jobs.get(i) else { break };
                     // The first effect's files and map, for the effects after it.
-                    let mut first: Option<(Vec<(String, Vec<u8>)>, Mapped)> = None;
+                    let mut first: Option<(Files, Mapped)> = None;
                     for (ei, (sc, &e)) in scs.iter().zip(&sec.effects).enumerate() {
                         let t = Instant::now();
                         let r_one = simulate_into(sc, *seed, &work).and_then(|files| {

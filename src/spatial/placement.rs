@@ -469,15 +469,15 @@ pub fn place(
     Ok(PlacementResult { before, after: tr.se(pot_se), added, removals })
 }
 
+/// Kriging variances at the pots: with every current logger, then with each
+/// logger taken away alone (`None` where the trend cannot do without it).
+pub type RemovalVariances = (Vec<f64>, Vec<Option<Vec<f64>>>);
+
 /// The kriging variance at each pot with the current loggers, then with
 /// each current logger taken away alone (`None` where the trend cannot do
 /// without it), by the leave-one-out identity of the module docs. Cost:
 /// O(n^3 + n^2 m).
-pub fn removal_variances(
-    setting: &Setting,
-    loggers: &Points,
-    pots: &Points,
-) -> Result<(Vec<f64>, Vec<Option<Vec<f64>>>)> {
+pub fn removal_variances(setting: &Setting, loggers: &Points, pots: &Points) -> Result<RemovalVariances> {
     let n = loggers.len();
     let empty = Points { ids: vec![], x: vec![], y: vec![] };
     let s = Setting {

@@ -289,9 +289,9 @@ fn window_table_reads_the_tabulated_curve() {
     let reach = [1.0, 2.3, 1.0, 1.0];
     let w = window::WindowSe::tabulate(current.clone(), noise, &reach, window_curve).unwrap();
     // At the map's own variance the ratio is 1: the curve's value exactly.
-    for j in 0..3 {
-        assert_relative_eq!(w.ratio(j, current[j]), 1.0, max_relative = 1e-12);
-        assert_relative_eq!(w.se(j, current[j]), window_curve(j, 1.0).unwrap(), max_relative = 1e-12);
+    for (j, &v) in current.iter().enumerate().take(3) {
+        assert_relative_eq!(w.ratio(j, v), 1.0, max_relative = 1e-12);
+        assert_relative_eq!(w.se(j, v), window_curve(j, 1.0).unwrap(), max_relative = 1e-12);
     }
     // No per-step error left now (variance = noise): ratio 0, the curve at 0.
     assert_eq!(w.ratio(3, 0.5), 0.0);
