@@ -3,7 +3,8 @@
 //! of the demo scenario (480 pots, 10 loggers, 34 days at 10 min), next to
 //! one `potclim run` of the shipped demo (the same size, plus its report),
 //! measured in the same run; and the same with a smaller grid of models per
-//! simulated study (one correlation family instead of the demo's four).
+//! simulated study (one correlation family instead of the demo's four, and one
+//! family with three imputation draws of the mapped driver instead of 20).
 //!
 //! Printed: seconds of one study on its worker thread and wall-clock seconds
 //! per study with every core busy (one study per core), their ratio to the
@@ -83,7 +84,11 @@ fn main() {
 
     // The demo scenario with its own grid (four families), and with one.
     let full = root.join("demo-data/scenario.toml");
-    for (label, extra) in [("4 families (demo grid)", ""), ("1 family", "correlations = [\"exponential\"]")] {
+    for (label, extra) in [
+        ("4 families (demo grid)", ""),
+        ("1 family", "correlations = [\"exponential\"]"),
+        ("1 family, 3 draws", "correlations = [\"exponential\"]\ndraws = 3"),
+    ] {
         let (one, all) = per_study(d, &full, extra, studies, cores);
         println!(
             "{label}: {one:.2} s per study on its thread ({:.2} x demo run); 5 x {studies} studies on {cores} threads: {all:.2} s of wall clock per study ({:.2} x demo run); 5 x 100 studies: {:.1} min",
