@@ -113,6 +113,97 @@ pub fn whiten_vecchia(
     Ok((Mat::from_fn(n, c, |i, j| rows[i * c + j]), logdet))
 }
 
+/// Workspace of [`conditional`], reused from one rank to the next.
+#[derive(Default)]
+pub(super) struct ConditionalWork {
+    /// `K_NN` and then its Cholesky factor (lower triangle, row-major).
+    g: Vec<f64>,
+    /// The coefficients `b_k`, in the order of `cond.set(k)`.
+    pub(super) b: Vec<f64>,
+}
+
+/// The conditional of rank `k` of `cond` given its neighbour set `N(k)`
+/// under `kernel`: the coefficients `b_k = K_NN^-1 K_Nk` into `work.b` and
+/// the conditional variance `d_k = K_kk - K_kN b_k` returned (module docs;
+/// the one computation of both Vecchia forms, this response-level one and
+/// [`super::vecchia_latent`]). `K_NN` is factorised in place by an unblocked
+/// Cholesky (`m` is small). A pivot, or `d_k`, whose square root is not above
+/// [`CORRELATION_MIN_DIAGONAL`] (or is NaN) fails with the rank it belongs
+/// to and its value.
+pub(super) fn conditional(
+    cond: &Conditioning,
+    kernel: &Kernel,
+    k: usize,
+    work: &mut ConditionalWork,
+) -> Result<f64, (usize, f64)> {
+    let set = cond.set(k);
+    let q = set.len();
+    let (xk, yk) = cond.position(k);
+    let (g, v) = (&mut work.g, &mut work.b);
+    g.clear();
+    g.resize(q * q, 0.0);
+    v.clear();
+    // K_NN (lower triangle, row-major) and K_Nk
+    for a in 0..q {
+        let (xa, ya) = cond.position(set[a] as usize);
+        v.push(kernel.between(distance(xk, yk, xa, ya)));
+        g[a * q + a] = kernel.total;
+        for b in 0..a {
+            let (xb, yb) = cond.position(set[b] as usize);
+            g[a * q + b] = kernel.between(distance(xa, ya, xb, yb));
+        }
+    }
+    // Cholesky K_NN = G G' in place (lower, row-major)
+    for j in 0..q {
+        let d = g[j * q + j] - g[j * q..j * q + j].iter().map(|t| t * t).sum::<f64>();
+        let l = d.sqrt();
+        // NaN (a negative or undefined pivot) fails too
+        if l.is_nan() || l <= CORRELATION_MIN_DIAGONAL {
+            return Err((set[j] as usize, d));
+        }
+        g[j * q + j] = l;
+        let (head, tail) = g.split_at_mut((j + 1) * q);
+        let row_j = &head[j * q..j * q + j];
+        for row_i in tail.chunks_exact_mut(q) {
+            let s: f64 = row_i[..j].iter().zip(row_j).map(|(a, b)| a * b).sum();
+            row_i[j] = (row_i[j] - s) / l;
+        }
+    }
+    // G u = K_Nk (forward), d = K_kk - u'u, G' b = u (backward)
+    for i in 0..q {
+        let s: f64 = g[i * q..i * q + i].iter().zip(&v[..i]).map(|(a, b)| a * b).sum();
+        v[i] = (v[i] - s) / g[i * q + i];
+    }
+    let d = kernel.total - v.iter().map(|t| t * t).sum::<f64>();
+    if d.sqrt().is_nan() || d.sqrt() <= CORRELATION_MIN_DIAGONAL {
+        return Err((k, d));
+    }
+    for i in (0..q).rev() {
+        let s: f64 = (i + 1..q).map(|t| g[t * q + i] * v[t]).sum();
+        v[i] = (v[i] - s) / g[i * q + i];
+    }
+    Ok(d)
+}
+
+/// The error of a failed [`conditional`] at `params`: the pot (original
+/// index) whose pivot failed, as the dense factorisation reports it.
+pub(super) fn conditional_error(
+    cond: &Conditioning,
+    params: &CovParams,
+    (rank, pivot): (usize, f64),
+) -> LikelihoodError {
+    LikelihoodError::NotPositiveDefinite {
+        family: params.family.name(),
+        range: params.range,
+        eta: params.eta,
+        location: FactorError::NotPositiveDefinite {
+            index: cond.order()[rank],
+            pivot,
+            min_diagonal: CORRELATION_MIN_DIAGONAL,
+        },
+    }
+}
+
 /// Whiten the ranks `k0 .. k0 + logd.len()`: row-major rows of `c` values
 /// into `rows`, `ln d_k` into `logd`.
 fn whiten_ranks(
@@ -125,69 +216,14 @@ fn whiten_ranks(
     logd: &mut [f64],
 ) -> Result<(), LikelihoodError> {
     let c = ranked.len();
-    let mut g: Vec<f64> = Vec::new();
-    let mut v: Vec<f64> = Vec::new();
-    let fail = |k: usize, pivot: f64| LikelihoodError::NotPositiveDefinite {
-        family: params.family.name(),
-        range: params.range,
-        eta: params.eta,
-        location: FactorError::NotPositiveDefinite {
-            index: cond.order()[k],
-            pivot,
-            min_diagonal: CORRELATION_MIN_DIAGONAL,
-        },
-    };
+    let mut work = ConditionalWork::default();
     for (off, ld) in logd.iter_mut().enumerate() {
         let k = k0 + off;
-        let set = cond.set(k);
-        let q = set.len();
-        let (xk, yk) = cond.position(k);
-        g.clear();
-        g.resize(q * q, 0.0);
-        v.clear();
-        // V_NN (lower triangle, row-major) and V_Ni
-        for a in 0..q {
-            let (xa, ya) = cond.position(set[a] as usize);
-            v.push(kernel.between(distance(xk, yk, xa, ya)));
-            g[a * q + a] = kernel.total;
-            for b in 0..a {
-                let (xb, yb) = cond.position(set[b] as usize);
-                g[a * q + b] = kernel.between(distance(xa, ya, xb, yb));
-            }
-        }
-        // Cholesky V_NN = G G' in place (lower, row-major)
-        for j in 0..q {
-            let d = g[j * q + j] - g[j * q..j * q + j].iter().map(|t| t * t).sum::<f64>();
-            let l = d.sqrt();
-            // NaN (a negative or undefined pivot) fails too
-            if l.is_nan() || l <= CORRELATION_MIN_DIAGONAL {
-                return Err(fail(cond.set(k)[j] as usize, d));
-            }
-            g[j * q + j] = l;
-            let (head, tail) = g.split_at_mut((j + 1) * q);
-            let row_j = &head[j * q..j * q + j];
-            for row_i in tail.chunks_exact_mut(q) {
-                let s: f64 = row_i[..j].iter().zip(row_j).map(|(a, b)| a * b).sum();
-                row_i[j] = (row_i[j] - s) / l;
-            }
-        }
-        // G u = V_Ni (forward), d = V_ii - u'u, G' b = u (backward)
-        for i in 0..q {
-            let row_i = &g[i * q..i * q + i];
-            let s: f64 = row_i.iter().zip(&v[..i]).map(|(a, b)| a * b).sum();
-            v[i] = (v[i] - s) / g[i * q + i];
-        }
-        let d = kernel.total - v.iter().map(|t| t * t).sum::<f64>();
-        if d.sqrt().is_nan() || d.sqrt() <= CORRELATION_MIN_DIAGONAL {
-            return Err(fail(k, d));
-        }
-        for i in (0..q).rev() {
-            let s: f64 = (i + 1..q).map(|t| g[t * q + i] * v[t]).sum();
-            v[i] = (v[i] - s) / g[i * q + i];
-        }
+        let d = conditional(cond, kernel, k, &mut work).map_err(|e| conditional_error(cond, params, e))?;
+        let (set, v) = (cond.set(k), &work.b);
         let sd = d.sqrt();
         for (j, z) in ranked.iter().enumerate() {
-            let pred: f64 = set.iter().zip(&v).map(|(&r, b)| b * z[r as usize]).sum();
+            let pred: f64 = set.iter().zip(v).map(|(&r, b)| b * z[r as usize]).sum();
             rows[off * c + j] = (z[k] - pred) / sd;
         }
         *ld = d.ln();

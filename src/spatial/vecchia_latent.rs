@@ -77,12 +77,13 @@
 
 use super::covariance::{CovParams, Kernel};
 use super::factor::{CORRELATION_MIN_DIAGONAL, FactorError, is_sequential, small_spd};
-use super::geometry::distance;
 use super::likelihood::{
     Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchOptions, check_params,
     check_sizes_n, maximise_by, profile_loglik,
 };
-use super::vecchia::{Conditioning, profiled_vecchia, whiten_vecchia};
+use super::vecchia::{
+    ConditionalWork, Conditioning, conditional, conditional_error, profiled_vecchia, whiten_vecchia,
+};
 use crate::spatial::correlation::Family;
 use faer::dyn_stack::{MemBuffer, MemStack};
 use faer::sparse::linalg::cholesky::supernodal::SupernodalLltRef;
@@ -335,69 +336,17 @@ impl LatentVecchia {
     ) -> Result<(), LikelihoodError> {
         let cond = &self.locs;
         let base = self.clique[k0];
-        let mut g: Vec<f64> = Vec::new();
-        let mut v: Vec<f64> = Vec::new();
-        let fail = |k: usize, pivot: f64| LikelihoodError::NotPositiveDefinite {
-            family: params.family.name(),
-            range: params.range,
-            eta: params.eta,
-            location: FactorError::NotPositiveDefinite {
-                index: cond.order()[k],
-                pivot,
-                min_diagonal: CORRELATION_MIN_DIAGONAL,
-            },
-        };
+        let mut work = ConditionalWork::default();
         for (off, ld) in logd.iter_mut().enumerate() {
             let k = k0 + off;
-            let set = cond.set(k);
-            let q = set.len();
-            let (xk, yk) = cond.position(k);
-            g.clear();
-            g.resize(q * q, 0.0);
-            v.clear();
-            // R_NN (lower triangle, row-major) and R_Nk
-            for a in 0..q {
-                let (xa, ya) = cond.position(set[a] as usize);
-                v.push(kernel.between(distance(xk, yk, xa, ya)));
-                g[a * q + a] = kernel.total;
-                for b in 0..a {
-                    let (xb, yb) = cond.position(set[b] as usize);
-                    g[a * q + b] = kernel.between(distance(xa, ya, xb, yb));
-                }
-            }
-            // Cholesky R_NN = G G' in place (lower, row-major)
-            for j in 0..q {
-                let d = g[j * q + j] - g[j * q..j * q + j].iter().map(|t| t * t).sum::<f64>();
-                let l = d.sqrt();
-                if l.is_nan() || l <= CORRELATION_MIN_DIAGONAL {
-                    return Err(fail(set[j] as usize, d));
-                }
-                g[j * q + j] = l;
-                let (head, tail) = g.split_at_mut((j + 1) * q);
-                let row_j = &head[j * q..j * q + j];
-                for row_i in tail.chunks_exact_mut(q) {
-                    let s: f64 = row_i[..j].iter().zip(row_j).map(|(a, b)| a * b).sum();
-                    row_i[j] = (row_i[j] - s) / l;
-                }
-            }
-            // G u = R_Nk, d = 1 - u'u, G' b = u
-            for i in 0..q {
-                let s: f64 = g[i * q..i * q + i].iter().zip(&v[..i]).map(|(a, b)| a * b).sum();
-                v[i] = (v[i] - s) / g[i * q + i];
-            }
-            let d = kernel.total - v.iter().map(|t| t * t).sum::<f64>();
-            if d.sqrt().is_nan() || d.sqrt() <= CORRELATION_MIN_DIAGONAL {
-                return Err(fail(k, d));
-            }
-            for i in (0..q).rev() {
-                let s: f64 = (i + 1..q).map(|t| g[t * q + i] * v[t]).sum();
-                v[i] = (v[i] - s) / g[i * q + i];
-            }
+            let d =
+                conditional(cond, kernel, k, &mut work).map_err(|e| conditional_error(cond, params, e))?;
+            let v = &work.b;
             let dl = (1.0 - params.eta) * d;
             let inv_sd = 1.0 / dl.sqrt();
             let c = &mut coef[self.clique[k] - base..self.clique[k + 1] - base];
             c[0] = inv_sd;
-            for (ci, b) in c[1..].iter_mut().zip(&v) {
+            for (ci, b) in c[1..].iter_mut().zip(v) {
                 *ci = -b * inv_sd;
             }
             *ld = dl.ln();
