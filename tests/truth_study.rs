@@ -398,6 +398,49 @@ fn an_independent_choice_is_tested_again_under_correlation() {
     );
 }
 
+/// The test under the base model's correlation (docs/verdict.md, step 8),
+/// on the study where the power study of the golden scenario found it
+/// missing: its night cool hours with no effect (60 pots, 6 loggers, an
+/// exponential residual field), seed 5. `base+night_cool_hours` with
+/// independent errors wins the AIC rule by the tie margin and its exact t
+/// passes (p = 0.006); step 7 is not needed (the driver's correlated fits
+/// do not lower the AIC), but the model without drivers is best with
+/// correlated errors, and under them the likelihood ratio of the driver,
+/// bootstrapped, is far from significant: the driver is set aside and the
+/// verdict is the right `correlation`. Measured before the rule: `covariate`.
+#[test]
+fn an_independent_choice_is_tested_under_the_base_correlation() {
+    let dir = tempfile::tempdir().unwrap();
+    let golden = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/golden/scenario.toml");
+    let text = std::fs::read_to_string(&golden).unwrap();
+    assert_eq!(text.matches("effect = -0.04").count(), 1, "the golden driver's effect line changed");
+    let scenario = dir.path().join("no_effect.toml");
+    std::fs::write(&scenario, text.replace("effect = -0.04", "effect = 0.0")).unwrap();
+    let study = dir.path().join("study");
+    potclim(&["simulate", scenario.to_str().unwrap(), "--out", study.to_str().unwrap(), "--seed", "5"]);
+    potclim(&["run", study.join("study.toml").to_str().unwrap(), "--quiet"]);
+    let summary = read_json(&study.join("output/summary.json"));
+    assert_eq!(summary["verdict"], "correlation", "{}", summary["best_model"]);
+    let first = &summary["calibration"]["steps"][0];
+    assert_eq!(first["model"], "base+night_cool_hours", "{first}");
+    let exact = first["tests"][0]["p_value"].as_f64().unwrap();
+    assert!(exact < 0.05, "exact t p {exact}");
+    assert!(first["tests_under_correlation"].as_array().unwrap().is_empty(), "{first}");
+    let lrt = &first["lrt_under_correlation"];
+    assert!(lrt["null"].as_str().unwrap().starts_with("base | "), "{lrt}");
+    assert!(lrt["alternative"].as_str().unwrap().starts_with("base+night_cool_hours | "), "{lrt}");
+    assert_eq!(
+        lrt["bootstrap"]["replicates"].as_u64().unwrap() + lrt["bootstrap"]["failed"].as_u64().unwrap(),
+        99
+    );
+    let p = lrt["p_value"].as_f64().unwrap();
+    assert_eq!(p, lrt["bootstrap"]["p_value"].as_f64().unwrap());
+    assert!(p >= 0.05, "under the base's correlation p {p}");
+    assert_eq!(first["set_aside"][0], "night_cool_hours");
+    let statement = summary["calibration"]["statement"].as_str().unwrap();
+    assert!(statement.contains("the model without drivers has correlated errors"), "{statement}");
+}
+
 /// The four scenario files differ only in `[scenario].title` and `[trait]`,
 /// so that the truths share their climate, loggers and design: the same seed
 /// gives the same climate and the same mapped driver under every truth.
