@@ -21,7 +21,7 @@
 //!    drivers under that error model, bootstrapped as in 2
 //!    ([`under_base_correlation`]).
 //!
-//! A driver that fails either is set aside (every grid model holding it
+//! A driver that fails any of them is set aside (every grid model holding it
 //! leaves the choice) and the rule is applied again to the rest, until the
 //! chosen model has no drivers or all of them survive.
 
@@ -233,11 +233,12 @@ pub(super) fn calibrated_verdict(
                 if p >= ALPHA {
                     set_aside = chosen.drivers.clone();
                 }
+                let (statistic, df) = lrt_statistic(null, alt);
                 lrt_under_correlation = Some(CorrelatedLrt {
                     null: model_name(&null.drivers, &null.errors),
                     alternative: model_name(&alt.drivers, &alt.errors),
-                    statistic: lrt_statistic(null, alt).0,
-                    df: lrt_statistic(null, alt).1,
+                    statistic,
+                    df,
                     p_asymptotic: p_asym,
                     bootstrap: b,
                     bootstrap_skipped: why,
