@@ -226,25 +226,26 @@ pub(super) fn calibrated_verdict(
             (bootstrap, skipped) = (b, why);
         }
         let mut lrt_under_correlation = None;
-        if set_aside.is_empty() && chosen.errors == Errors::Independent {
-            if let Some((null, alt)) = under_base_correlation(&pool, chosen) {
-                let (p_asym, b, why) = lrt(&ctx, null, alt, &design)?;
-                let p = b.as_ref().map_or(p_asym, |b| b.p_value);
-                if p >= ALPHA {
-                    set_aside = chosen.drivers.clone();
-                }
-                let (statistic, df) = lrt_statistic(null, alt);
-                lrt_under_correlation = Some(CorrelatedLrt {
-                    null: model_name(&null.drivers, &null.errors),
-                    alternative: model_name(&alt.drivers, &alt.errors),
-                    statistic,
-                    df,
-                    p_asymptotic: p_asym,
-                    bootstrap: b,
-                    bootstrap_skipped: why,
-                    p_value: p,
-                });
+        if set_aside.is_empty()
+            && chosen.errors == Errors::Independent
+            && let Some((null, alt)) = under_base_correlation(&pool, chosen)
+        {
+            let (p_asym, b, why) = lrt(&ctx, null, alt, &design)?;
+            let p = b.as_ref().map_or(p_asym, |b| b.p_value);
+            if p >= ALPHA {
+                set_aside = chosen.drivers.clone();
             }
+            let (statistic, df) = lrt_statistic(null, alt);
+            lrt_under_correlation = Some(CorrelatedLrt {
+                null: model_name(&null.drivers, &null.errors),
+                alternative: model_name(&alt.drivers, &alt.errors),
+                statistic,
+                df,
+                p_asymptotic: p_asym,
+                bootstrap: b,
+                bootstrap_skipped: why,
+                p_value: p,
+            });
         }
         let done = set_aside.is_empty();
         cal.set_aside.extend(set_aside.iter().cloned());
