@@ -253,12 +253,12 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
     // Climate field on pots then sensors.
     let mut all_xy = pot_xy.clone();
     all_xy.extend(&sensor_xy);
-    let (field_vals, field_jitter) = match sc.climate_field {
+    let (field_vals, field_jitter, field_neighbours) = match sc.climate_field {
         Some((fam, range, sill)) => {
             let s = FieldSampler::new(&all_xy, fam, range, sill, "climate.field")?;
-            (s.draw(&mut rng(seed, stream::CLIMATE_FIELD)), s.jitter())
+            (s.draw(&mut rng(seed, stream::CLIMATE_FIELD)), s.jitter(), s.neighbours())
         }
-        None => (vec![0.0; all_xy.len()], 0.0),
+        None => (vec![0.0; all_xy.len()], 0.0, None),
     };
     let pot_c: Vec<Components> =
         (0..n_p).map(|i| climate::components(sc, pot_xy[i], field_vals[i])).collect();
@@ -342,7 +342,7 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
 
     // Trait.
     let t = &spec.trait_;
-    let (mut resid, resid_jitter) = match sc.residual_field {
+    let (mut resid, resid_jitter, resid_neighbours) = match sc.residual_field {
         Some((fam, range, sill)) => {
             // a direction-dependent range: the field of the stretched
             // distance is the isotropic field at the transformed positions
@@ -355,9 +355,9 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
                 }
             };
             let f = FieldSampler::new(&xy, fam, range, sill, "trait.residual_field")?;
-            (f.draw(&mut rng(seed, stream::RESIDUAL_FIELD)), f.jitter())
+            (f.draw(&mut rng(seed, stream::RESIDUAL_FIELD)), f.jitter(), f.neighbours())
         }
-        None => (vec![0.0; n_p], 0.0),
+        None => (vec![0.0; n_p], 0.0, None),
     };
     if let Some(params) = &sc.residual_lattice {
         let lattice_field = lattice_field(&sc.path, &pot_xy, params, sc.residual_lattice_sill, seed)?;
@@ -611,9 +611,9 @@ pub fn generate(sc: &Scenario, seed: u64) -> Result<Vec<(String, Vec<u8>)>> {
         "effects": t.effect.iter().map(|e| serde_json::json!({"factor": e.factor, "level": e.level, "value": e.value})).collect::<Vec<_>>(),
         "interactions": t.interaction.iter().map(|e| serde_json::json!({"factors": e.factors, "levels": e.levels, "value": e.value})).collect::<Vec<_>>(),
         "drivers": inds.iter().map(|i| serde_json::json!({"name": i.name, "variable": i.variable, "statistic": i.statistic, "threshold": i.threshold, "period": i.period.as_deref().unwrap_or("all"), "effect_per_unit": i.effect})).collect::<Vec<_>>(),
-        "residual_field": sc.residual_field.map(|(f, r, s)| serde_json::json!({"family": f.name(), "range_m": r, "practical_range_m": f.practical_range(r), "sill": s, "jitter": resid_jitter})),
+        "residual_field": sc.residual_field.map(|(f, r, s)| serde_json::json!({"family": f.name(), "range_m": r, "practical_range_m": f.practical_range(r), "sill": s, "jitter": resid_jitter, "drawn_with_neighbours": resid_neighbours})),
         "noise_sd": t.noise_sd,
-        "climate_field": sc.climate_field.map(|(f, r, s)| serde_json::json!({"family": f.name(), "range_m": r, "practical_range_m": f.practical_range(r), "sill_c2": s, "jitter": field_jitter})),
+        "climate_field": sc.climate_field.map(|(f, r, s)| serde_json::json!({"family": f.name(), "range_m": r, "practical_range_m": f.practical_range(r), "sill_c2": s, "jitter": field_jitter, "drawn_with_neighbours": field_neighbours})),
         "night": "local clock time before climate.sunrise or from climate.sunset on",
         "vapour_pressure_kpa": ea,
         "pots": n_p,

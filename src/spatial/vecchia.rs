@@ -115,11 +115,11 @@ pub fn whiten_vecchia(
 
 /// Workspace of [`conditional`], reused from one rank to the next.
 #[derive(Default)]
-pub(super) struct ConditionalWork {
+pub(crate) struct ConditionalWork {
     /// `K_NN` and then its Cholesky factor (lower triangle, row-major).
     g: Vec<f64>,
     /// The coefficients `b_k`, in the order of `cond.set(k)`.
-    pub(super) b: Vec<f64>,
+    pub(crate) b: Vec<f64>,
 }
 
 /// The conditional of rank `k` of `cond` given its neighbour set `N(k)`
@@ -130,7 +130,7 @@ pub(super) struct ConditionalWork {
 /// Cholesky (`m` is small). A pivot, or `d_k`, whose square root is not above
 /// [`CORRELATION_MIN_DIAGONAL`] (or is NaN) fails with the rank it belongs
 /// to and its value.
-pub(super) fn conditional(
+pub(crate) fn conditional(
     cond: &Conditioning,
     kernel: &Kernel,
     k: usize,
