@@ -29,7 +29,7 @@ use crate::spatial::likelihood::{
     self, CovParams, Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchOptions,
 };
 use crate::spatial::vecchia::{self, Conditioning};
-use crate::spatial::vecchia_latent::LatentVecchia;
+use crate::spatial::vecchia_latent::{self, LatentVecchia};
 use faer::Mat;
 use std::sync::{Arc, OnceLock};
 
@@ -212,12 +212,16 @@ pub struct LikelihoodPath {
 /// smoothness up to 1.5 (the families where it was measured the better
 /// form).
 pub fn latent_form(params: &CovParams) -> bool {
-    params.eta > 0.0
-        && match params.family {
-            Family::Exponential => true,
-            Family::Matern { nu } => nu <= 1.5,
-            Family::Gaussian | Family::Spherical => false,
-        }
+    params.eta > 0.0 && latent_family(params.family)
+}
+
+/// The families whose nugget fits take the latent form ([`latent_form`]).
+fn latent_family(family: Family) -> bool {
+    match family {
+        Family::Exponential => true,
+        Family::Matern { nu } => nu <= 1.5,
+        Family::Gaussian | Family::Spherical => false,
+    }
 }
 
 impl LikelihoodPath {
@@ -295,28 +299,6 @@ impl LikelihoodPath {
             .map_err(Clone::clone)
     }
 
-    /// [`Self::evaluate`], with the latent form's normalised residuals only
-    /// when `residuals` (the search needs none).
-    fn evaluate_with(
-        &self,
-        dist: &Distances,
-        params: &CovParams,
-        x: &[Vec<f64>],
-        y: &[f64],
-        method: LikelihoodKind,
-        residuals: bool,
-    ) -> std::result::Result<Profiled, LikelihoodError> {
-        match (&self.likelihood, &self.cond) {
-            (Likelihood::Neighbours { .. }, Some(cond)) if latent_form(params) => {
-                self.latent(cond)?.evaluate(params, x, y, method, residuals)
-            }
-            (Likelihood::Neighbours { .. }, Some(cond)) => {
-                vecchia::profiled_vecchia(cond, params, x, y, method)
-            }
-            _ => likelihood::profiled(dist, params, x, y, method),
-        }
-    }
-
     /// True on the exact path.
     pub fn is_exact(&self) -> bool {
         self.likelihood == Likelihood::Exact
@@ -334,12 +316,23 @@ impl LikelihoodPath {
         y: &[f64],
         method: LikelihoodKind,
     ) -> std::result::Result<Profiled, LikelihoodError> {
-        self.evaluate_with(dist, params, x, y, method, true)
+        match (&self.likelihood, &self.cond) {
+            (Likelihood::Neighbours { .. }, Some(cond)) if latent_form(params) => {
+                vecchia_latent::profiled_latent(self.latent(cond)?, params, x, y, method)
+            }
+            (Likelihood::Neighbours { .. }, Some(cond)) => {
+                vecchia::profiled_vecchia(cond, params, x, y, method)
+            }
+            _ => likelihood::profiled(dist, params, x, y, method),
+        }
     }
 
     /// Maximise this path's likelihood over the correlation parameters by the
     /// simplex search of [`likelihood::maximise_by`] (its starts and bounds
-    /// from the pots' pair distances, `O(n)` memory) of [`Self::evaluate`].
+    /// from the pots' pair distances, `O(n)` memory): on the neighbours path
+    /// [`vecchia_latent::maximise_latent`] for a nugget search of a latent
+    /// family (its evaluations at `eta = 0` are the response-level ones),
+    /// else [`vecchia::maximise_vecchia`].
     pub fn maximise(
         &self,
         dist: &Distances,
@@ -349,13 +342,15 @@ impl LikelihoodPath {
         method: LikelihoodKind,
         opts: &SearchOptions,
     ) -> std::result::Result<Maximum, LikelihoodError> {
-        let mut best = likelihood::maximise_by(dist, family, opts, |p| {
-            self.evaluate_with(dist, p, x, y, method, false)
-        })?;
-        if latent_form(&best.best.params) {
-            best.best = self.evaluate(dist, &best.best.params, x, y, method)?;
+        match (&self.likelihood, &self.cond) {
+            (Likelihood::Neighbours { .. }, Some(cond)) if opts.nugget && latent_family(family) => {
+                vecchia_latent::maximise_latent(dist, self.latent(cond)?, family, x, y, method, opts)
+            }
+            (Likelihood::Neighbours { .. }, Some(cond)) => {
+                vecchia::maximise_vecchia(dist, cond, family, x, y, method, opts)
+            }
+            _ => likelihood::maximise_by(dist, family, opts, |p| likelihood::profiled(dist, p, x, y, method)),
         }
-        Ok(best)
     }
 
     /// The columns `x` whitened at `params` (`L^-1 X` on the exact path,

@@ -186,9 +186,7 @@ pub(super) fn profile_whitened(
         }
         b[i] = cols[i].iter().zip(cols[p]).map(|(u, v)| u * v).sum();
     }
-    let (inv, logdet_xtvx) =
-        if p == 0 { (Vec::new(), 0.0) } else { small_spd(&a, p).ok_or(LikelihoodError::SingularDesign)? };
-    let beta: Vec<f64> = (0..p).map(|i| (0..p).map(|j| inv[i * p + j] * b[j]).sum()).collect();
+    let (inv, logdet_xtvx, beta) = gls_solve(&a, &b, p)?;
     let whitened: Vec<f64> =
         (0..n).map(|r| cols[p][r] - (0..p).map(|j| cols[j][r] * beta[j]).sum::<f64>()).collect();
     let q: f64 = whitened.iter().map(|v| v * v).sum();
@@ -207,6 +205,20 @@ pub(super) fn profile_whitened(
         n,
         p,
     })
+}
+
+/// The GLS normal equations `(X'V^-1 X) beta = X'V^-1 y` from their
+/// `p x p` matrix `a` (row-major) and right-hand side `b`: the inverse
+/// `(X'V^-1 X)^-1`, `ln|X'V^-1 X|` and `beta` (every path's one solve).
+pub(super) fn gls_solve(
+    a: &[f64],
+    b: &[f64],
+    p: usize,
+) -> Result<(Vec<f64>, f64, Vec<f64>), LikelihoodError> {
+    let (inv, logdet_xtvx) =
+        if p == 0 { (Vec::new(), 0.0) } else { small_spd(a, p).ok_or(LikelihoodError::SingularDesign)? };
+    let beta: Vec<f64> = (0..p).map(|i| (0..p).map(|j| inv[i * p + j] * b[j]).sum()).collect();
+    Ok((inv, logdet_xtvx, beta))
 }
 
 /// The profiled log-likelihood and `sigma2` of the module docs from

@@ -76,10 +76,10 @@
 //! dense path's error type.
 
 use super::covariance::{CovParams, Kernel};
-use super::factor::{CORRELATION_MIN_DIAGONAL, FactorError, is_sequential, small_spd};
+use super::factor::{CORRELATION_MIN_DIAGONAL, FactorError, is_sequential};
 use super::likelihood::{
     Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchOptions, check_params,
-    check_sizes_n, maximise_by, profile_loglik,
+    check_sizes_n, gls_solve, maximise_by, profile_loglik,
 };
 use super::vecchia::{
     ConditionalWork, Conditioning, conditional, conditional_error, profiled_vecchia, whiten_vecchia,
@@ -521,9 +521,7 @@ pub fn profile_crossproducts(
     let p = c - 1;
     let a: Vec<f64> = (0..p * p).map(|t| cross[(t / p) * c + t % p]).collect();
     let b: Vec<f64> = (0..p).map(|i| cross[i * c + p]).collect();
-    let (inv, logdet_xtvx) =
-        if p == 0 { (Vec::new(), 0.0) } else { small_spd(&a, p).ok_or(LikelihoodError::SingularDesign)? };
-    let beta: Vec<f64> = (0..p).map(|i| (0..p).map(|j| inv[i * p + j] * b[j]).sum()).collect();
+    let (inv, logdet_xtvx, beta) = gls_solve(&a, &b, p)?;
     let q = cross[p * c + p] - b.iter().zip(&beta).map(|(u, v)| u * v).sum::<f64>();
     let (loglik, sigma2) = profile_loglik(n, p, q, logdet_v, logdet_xtvx, method)?;
     Ok(Profiled {
