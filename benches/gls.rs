@@ -124,7 +124,7 @@ fn main() {
         "{:>6} {:<22} {:>5} {:>10} {:>11} {:>14} {:>9} {:>8}",
         "n", "errors", "lik", "loglik", "evaluations", "factorisations", "fit (s)", "ratio"
     );
-    for n in [480usize, 1680] {
+    for n in [480usize, 1680].into_iter().filter(|n| sizes.contains(n)) {
         let (x, y, z, cols) = layout(n, 11);
         let dist = Distances::from_coords(&x, &y).unwrap();
         let p = CovParams { family: Family::Exponential, range: 1.2, eta: 0.2 };

@@ -76,7 +76,7 @@ impl PathShares {
 
     /// The distances between the positions.
     pub fn positions(&self) -> Distances {
-        Distances::Coords { x: self.px.clone(), y: self.py.clone() }
+        Distances::Coords { x: self.px.clone(), y: self.py.clone(), pairs: Default::default() }
     }
 
     /// `W M W'` (full, both triangles) for an `m x m` symmetric matrix `M`

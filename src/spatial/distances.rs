@@ -12,6 +12,31 @@ use super::covariance::{CovParams, Kernel};
 use super::likelihood::LikelihoodError;
 use faer::Mat;
 
+/// Up to this many observations [`Distances::keep_pairs`] keeps the pairwise
+/// distances (at 5,000 about 100 MB, half the dense covariance itself).
+pub const PAIRS_KEPT_UP_TO: usize = 5_000;
+
+/// The kept pairwise distances of [`Distances::Coords`] (strict lower
+/// triangle, column by column), empty until [`Distances::keep_pairs`].
+#[derive(Clone, Default)]
+pub struct PairCache(std::sync::OnceLock<Vec<f64>>);
+
+impl std::fmt::Debug for PairCache {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.0.get() {
+            Some(p) => write!(f, "{} pair distances kept", p.len()),
+            None => write!(f, "pair distances not kept"),
+        }
+    }
+}
+
+/// Position of the pair `(i, j)`, `i > j`, of `n` points in the strict lower
+/// triangle stored column by column.
+#[inline]
+fn packed_index(n: usize, i: usize, j: usize) -> usize {
+    j * (2 * n - j - 1) / 2 + (i - j - 1)
+}
+
 /// Distances between `n` observations: computed from planar coordinates on
 /// the fly, or given as a full symmetric matrix; or, for pots that move, the
 /// positions they held and their time shares, whose correlation is
@@ -24,6 +49,9 @@ pub enum Distances {
         x: Vec<f64>,
         /// Northing.
         y: Vec<f64>,
+        /// The pairwise distances, once [`Distances::keep_pairs`] has
+        /// computed them.
+        pairs: PairCache,
     },
     /// A full `n x n` symmetric distance matrix, row-major.
     Matrix {
@@ -46,7 +74,7 @@ impl Distances {
         if x.iter().chain(y).any(|v| !v.is_finite()) {
             return Err(LikelihoodError::Invalid("a coordinate is not finite".into()));
         }
-        Ok(Distances::Coords { x: x.to_vec(), y: y.to_vec() })
+        Ok(Distances::Coords { x: x.to_vec(), y: y.to_vec(), pairs: PairCache::default() })
     }
 
     /// Distances from a full row-major matrix (checked: square, symmetric,
@@ -75,7 +103,7 @@ impl Distances {
     /// The planar coordinates, when the distances were made from them.
     pub fn coords(&self) -> Option<(&[f64], &[f64])> {
         match self {
-            Distances::Coords { x, y } => Some((x, y)),
+            Distances::Coords { x, y, .. } => Some((x, y)),
             Distances::Matrix { .. } | Distances::Averaged(_) => None,
         }
     }
@@ -100,9 +128,35 @@ impl Distances {
     #[inline]
     pub fn get(&self, i: usize, j: usize) -> f64 {
         match self {
-            Distances::Coords { x, y } => super::geometry::distance(x[i], y[i], x[j], y[j]),
+            Distances::Coords { x, y, pairs } => match pairs.0.get() {
+                Some(p) if i != j => p[packed_index(x.len(), i.max(j), i.min(j))],
+                _ => super::geometry::distance(x[i], y[i], x[j], y[j]),
+            },
             Distances::Matrix { n, d } => d[i * n + j],
             Distances::Averaged(a) => a.mean_distance(i, j),
+        }
+    }
+
+    /// Keep the pairwise distances of coordinates in memory (`n (n - 1) / 2`
+    /// values, up to [`PAIRS_KEPT_UP_TO`] observations) so that every later
+    /// fill of a correlation matrix reads them instead of computing them:
+    /// the same values ([`super::geometry::distance`]), computed once. The
+    /// exact likelihood's searches call it; a no-op for other kinds and
+    /// above the limit (the nearest-neighbour path never fills `n x n`).
+    pub fn keep_pairs(&self) {
+        if let Distances::Coords { x, y, pairs } = self
+            && x.len() <= PAIRS_KEPT_UP_TO
+        {
+            pairs.0.get_or_init(|| {
+                let n = x.len();
+                let mut p = Vec::with_capacity(n * n.saturating_sub(1) / 2);
+                for j in 0..n {
+                    for i in j + 1..n {
+                        p.push(super::geometry::distance(x[i], y[i], x[j], y[j]));
+                    }
+                }
+                p
+            });
         }
     }
 
@@ -142,7 +196,7 @@ impl Distances {
         if let Distances::Averaged(a) = self {
             return a.identical();
         }
-        if let Distances::Coords { x, y } = self {
+        if let Distances::Coords { x, y, .. } = self {
             return coincident_positions(x, y);
         }
         let n = self.len();

@@ -104,6 +104,7 @@ pub use super::distances::Distances;
 /// Cost: `n^2/2` correlation evaluations and `n^3/3` flops.
 pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, LikelihoodError> {
     check_params(params)?;
+    dist.keep_pairs();
     let v = match dist {
         Distances::Averaged(a) => a.correlation(params),
         _ => Kernel::correlation(params).fill_lower(dist.len(), |i, j| dist.get(i, j)),
