@@ -272,6 +272,24 @@ fn coincident_positions(x: &[f64], y: &[f64]) -> Vec<(usize, usize)> {
 mod tests {
     use super::*;
 
+    /// Kept pair distances are the computed ones, bit for bit, in both
+    /// orders of a pair, and every pair is at its packed position.
+    #[test]
+    fn kept_pairs_equal_the_computed_distances() {
+        let n = 37;
+        let x: Vec<f64> = (0..n).map(|i| ((i * 7) % 11) as f64 * 0.3 + 0.01 * i as f64).collect();
+        let y: Vec<f64> = (0..n).map(|i| ((i * 5) % 13) as f64 * 0.2).collect();
+        let fresh = Distances::from_coords(&x, &y).unwrap();
+        let kept = Distances::from_coords(&x, &y).unwrap();
+        kept.keep_pairs();
+        assert!(format!("{kept:?}").contains("666 pair distances kept"));
+        for i in 0..n {
+            for j in 0..n {
+                assert_eq!(kept.get(i, j).to_bits(), fresh.get(i, j).to_bits(), "pair ({i}, {j})");
+            }
+        }
+    }
+
     /// The sorted pairing of equal positions and the strided pair sample
     /// equal the loops over every pair (by the definition).
     #[test]
