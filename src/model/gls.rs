@@ -515,25 +515,25 @@ pub fn fit_correlated_shared(
         }
     }
     let opts = SearchOptions { nugget, ..SearchOptions::default() };
+    let xs: Vec<&[Vec<f64>]> = designs.iter().map(|d| d.x.as_slice()).collect();
     if !path.is_exact() {
-        let fits = designs
-            .iter()
+        let (maxima, grid_seconds) = path.maximise_shared(dist, family, &xs, y, method, &opts);
+        let fits = maxima
+            .into_iter()
+            .zip(designs)
             .zip(models)
-            .map(|(design, model)| {
+            .map(|((max, design), model)| {
+                let max = max.map_err(|e| lerr(model, e, None))?;
                 let t = std::time::Instant::now();
-                let max = path
-                    .maximise(dist, family, &design.x, y, method, &opts)
-                    .map_err(|e| lerr(model, e, None))?;
                 let mut fit = finish_correlated(model, design, y, dist, family, nugget, method, max, path)?;
                 if let Some(s) = fit.search.as_mut() {
-                    s.seconds = t.elapsed().as_secs_f64();
+                    s.seconds += t.elapsed().as_secs_f64();
                 }
                 Ok(fit)
             })
             .collect();
-        return Ok((fits, (0, 0.0)));
+        return Ok((fits, (0, grid_seconds)));
     }
-    let xs: Vec<&[Vec<f64>]> = designs.iter().map(|d| d.x.as_slice()).collect();
     let t0 = std::time::Instant::now();
     let (maxima, shared) = crate::spatial::ascent::maximise_shared(dist, family, &xs, y, method, &opts);
     let own: f64 = maxima.iter().flatten().map(|m| m.seconds).sum();

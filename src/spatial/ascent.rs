@@ -297,14 +297,14 @@ pub fn scored(
 
 /// Box of the search: `ln range` and `eta` bounds.
 #[derive(Clone, Copy, Debug)]
-struct Bounds {
-    lo: [f64; 2],
-    hi: [f64; 2],
-    dim: usize,
+pub(super) struct Bounds {
+    pub(super) lo: [f64; 2],
+    pub(super) hi: [f64; 2],
+    pub(super) dim: usize,
 }
 
 impl Bounds {
-    fn project(&self, t: &mut [f64; 2]) {
+    pub(super) fn project(&self, t: &mut [f64; 2]) {
         for (k, v) in t.iter_mut().enumerate().take(self.dim) {
             *v = v.clamp(self.lo[k], self.hi[k]);
         }
@@ -312,19 +312,19 @@ impl Bounds {
 }
 
 /// Outcome of one Newton run.
-struct Run {
-    best: Scored,
-    t: [f64; 2],
-    converged: bool,
-    evaluations: usize,
+pub(super) struct Run {
+    pub(super) best: Scored,
+    pub(super) t: [f64; 2],
+    pub(super) converged: bool,
+    pub(super) evaluations: usize,
 }
 
-fn params_of(family: Family, t: &[f64; 2], dim: usize) -> CovParams {
+pub(super) fn params_of(family: Family, t: &[f64; 2], dim: usize) -> CovParams {
     CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } }
 }
 
 /// Newton ascent with the average information from `t0` (see the module docs).
-fn newton(
+pub(super) fn newton(
     eval: &mut dyn FnMut(&[f64; 2]) -> Result<Scored, LikelihoodError>,
     t0: [f64; 2],
     bounds: &Bounds,

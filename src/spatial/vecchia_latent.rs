@@ -274,6 +274,11 @@ impl LatentVecchia {
         self.pots.is_empty()
     }
 
+    /// The pots' own (response-level) conditioning.
+    pub fn pots(&self) -> &Conditioning {
+        &self.pots
+    }
+
     /// Number of distinct positions (the size of `W`).
     pub fn locations(&self) -> usize {
         self.locs.len()
