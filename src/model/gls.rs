@@ -625,7 +625,9 @@ pub fn finish_correlated(
         let whitened_x: Vec<Vec<f64>> = (0..design.p()).map(|j| wx.col_as_slice(j).to_vec()).collect();
         (prof, prof_sum, whitened_x)
     } else {
-        let prof = path.evaluate(dist, &params, &design.x, y, method).map_err(|e| lerr(e, None))?;
+        // the search's best is this path's evaluation at `params` already
+        // (the same function, residuals included)
+        let prof = max.best.clone();
         let prof_sum = path.evaluate(dist, &params, &design.x_sum, y, method).map_err(|e| lerr(e, None))?;
         let whitened_x = path.whiten_columns(dist, &params, &design.x).map_err(|e| lerr(e, None))?;
         (prof, prof_sum, whitened_x)

@@ -325,16 +325,16 @@ fn report(
 const LATENT_STEPS: usize = 15;
 
 /// The central-difference step of the latent scores, in `ln range` and in
-/// `eta`: the latent values' rounding (up to about 1e-6 log-likelihood
-/// units at 5,000 pots, where the simplex could not bring the spread of its
-/// values below 1e-8 in 400 evaluations) then moves a score by about 1e-3,
-/// and the difference's own error (`h^2` times the third derivative) is of
-/// the same order.
+/// `eta`. The latent values are smooth to about 1e-10 once centred
+/// ([`super::vecchia_latent`], "Rounding"), so rounding moves a score by
+/// about 1e-7; the difference's own error (`h^2 / 6` times the third
+/// derivative, a few thousand on 20,000 pots) is about 1e-3, well inside
+/// what the Newton metric needs.
 const LATENT_FD_STEP: f64 = 1e-3;
 
 /// Stop the latent Newton steps when the decrement `g' H^-1 g` (about twice
 /// the likelihood still to gain) falls below this.
-const LATENT_DECREMENT_TOL: f64 = 1e-6;
+const LATENT_DECREMENT_TOL: f64 = 1e-8;
 
 /// When no step along the Newton direction (halved 8 times) raises the
 /// latent likelihood and the decrement is below this (at most 1e-4 still to
