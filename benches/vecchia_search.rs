@@ -85,7 +85,7 @@ fn main() {
         );
         let lat = LatentVecchia::from_conditioning(&cond).unwrap();
         println!(
-            "{:>6} {:<22} {:>10} {:>9} {:>10} {:>9} {:>8} {:>12}",
+            "{:>6} {:<30} {:>10} {:>9} {:>10} {:>9} {:>8} {:>12}",
             "n", "errors", "new evals", "new (s)", "old evals", "old (s)", "ratio", "ll new-old"
         );
         for family in [Family::Exponential, Family::Matern { nu: 1.5 }] {
@@ -119,7 +119,7 @@ fn main() {
                 let ((a, ta), (b, tb)) = (new, old);
                 let (a, b) = (a.unwrap(), b.unwrap());
                 println!(
-                    "{n:>6} {label:<22} {:>10} {ta:>9.2} {:>10} {tb:>9.2} {:>8.1} {:>12.2e}",
+                    "{n:>6} {label:<30} {:>10} {ta:>9.2} {:>10} {tb:>9.2} {:>8.1} {:>12.2e}",
                     a.evaluations,
                     b.evaluations,
                     tb / ta,

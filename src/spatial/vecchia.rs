@@ -273,6 +273,9 @@ pub fn profiled_vecchia(
 /// [`super::likelihood::maximise_by`] (the same starts, bounds and simplex as
 /// the exact path; `dist` sets the range bounds and start ranges). The
 /// `factorisations` of the result count dense factorisations only: zero here.
+/// The model stage uses the derivative-based search of
+/// [`super::vecchia_search`]; this simplex is its reference in tests and
+/// `benches/vecchia_search.rs`.
 pub fn maximise_vecchia(
     dist: &Distances,
     cond: &Conditioning,

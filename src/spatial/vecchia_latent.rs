@@ -623,6 +623,8 @@ pub fn profiled_latent(
 /// simplex of the exact path; `dist` sets the range bounds and start
 /// ranges). Residuals are computed once, at the maximum. The
 /// `factorisations` of the result count dense factorisations only: zero here.
+/// The model stage uses [`super::vecchia_search::maximise_latent_shared`];
+/// this simplex is its reference in tests and `benches/vecchia_search.rs`.
 pub fn maximise_latent(
     dist: &Distances,
     lat: &LatentVecchia,
