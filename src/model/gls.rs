@@ -442,10 +442,12 @@ pub fn fit_independent(design: &Design, y: &[f64], method: LikelihoodKind) -> Re
 /// `method` over (range, nugget share), then compute the GLS estimates, tests
 /// and residuals at the optimum. On the exact path (`path`) the search is
 /// [`crate::spatial::ascent::maximise_shared`] (a start grid, then Newton
-/// steps with the average information); on the nearest-neighbour path the
-/// simplex search of [`LikelihoodPath::maximise`] over the approximated
-/// likelihood, whose estimates, SEs, tests and residuals then come from the
-/// same approximation ([`LikelihoodPath::evaluate`]).
+/// steps with the average information); on the nearest-neighbour path
+/// [`LikelihoodPath::maximise_shared`] over the approximated likelihood (a
+/// start grid, then Newton steps with the Vecchia scores; the latent form by a
+/// simplex from the response-level maximum), whose estimates, SEs, tests and
+/// residuals then come from the same approximation
+/// ([`LikelihoodPath::evaluate`]).
 ///
 /// `model` names the fit in error messages. Duplicate positions without a
 /// nugget are refused before the search with the pots named (on both paths).
@@ -479,9 +481,10 @@ pub type SharedFits = (Vec<Result<Fit>>, (usize, f64));
 /// positions and error model: on the exact path the start grid of the search
 /// is factorised once for all of them (see
 /// [`crate::spatial::ascent::maximise_shared`]); each is then refined and
-/// estimated on its own. On the nearest-neighbour path each is searched on
-/// its own (no dense factorisation to share). Returns the fits in the order
-/// of `designs` and the grid's `(factorisations, seconds)`.
+/// estimated on its own. On the nearest-neighbour path the grid's
+/// conditionals are computed once for all of them
+/// ([`LikelihoodPath::maximise_shared`], no dense factorisation). Returns
+/// the fits in the order of `designs` and the grid's `(factorisations, seconds)`.
 #[allow(clippy::too_many_arguments)]
 pub fn fit_correlated_shared(
     models: &[String],
@@ -515,25 +518,25 @@ pub fn fit_correlated_shared(
         }
     }
     let opts = SearchOptions { nugget, ..SearchOptions::default() };
+    let xs: Vec<&[Vec<f64>]> = designs.iter().map(|d| d.x.as_slice()).collect();
     if !path.is_exact() {
-        let fits = designs
-            .iter()
+        let (maxima, grid_seconds) = path.maximise_shared(dist, family, &xs, y, method, &opts);
+        let fits = maxima
+            .into_iter()
+            .zip(designs)
             .zip(models)
-            .map(|(design, model)| {
+            .map(|((max, design), model)| {
+                let max = max.map_err(|e| lerr(model, e, None))?;
                 let t = std::time::Instant::now();
-                let max = path
-                    .maximise(dist, family, &design.x, y, method, &opts)
-                    .map_err(|e| lerr(model, e, None))?;
                 let mut fit = finish_correlated(model, design, y, dist, family, nugget, method, max, path)?;
                 if let Some(s) = fit.search.as_mut() {
-                    s.seconds = t.elapsed().as_secs_f64();
+                    s.seconds += t.elapsed().as_secs_f64();
                 }
                 Ok(fit)
             })
             .collect();
-        return Ok((fits, (0, 0.0)));
+        return Ok((fits, (0, grid_seconds)));
     }
-    let xs: Vec<&[Vec<f64>]> = designs.iter().map(|d| d.x.as_slice()).collect();
     let t0 = std::time::Instant::now();
     let (maxima, shared) = crate::spatial::ascent::maximise_shared(dist, family, &xs, y, method, &opts);
     let own: f64 = maxima.iter().flatten().map(|m| m.seconds).sum();
@@ -561,7 +564,7 @@ pub fn fit_correlated_shared(
 /// the start grid ([`crate::spatial::ascent::maximise_from`]): for refits on
 /// slightly changed data, such as the imputations of a mapped driver. On the
 /// nearest-neighbour path the whole search of [`LikelihoodPath::maximise`]
-/// is run (its simplex has no derivative-based start to reuse).
+/// is run (not reached today: the imputations need the dense covariance).
 #[allow(clippy::too_many_arguments)]
 pub fn fit_correlated_from(
     model: &str,
@@ -622,7 +625,9 @@ pub fn finish_correlated(
         let whitened_x: Vec<Vec<f64>> = (0..design.p()).map(|j| wx.col_as_slice(j).to_vec()).collect();
         (prof, prof_sum, whitened_x)
     } else {
-        let prof = path.evaluate(dist, &params, &design.x, y, method).map_err(|e| lerr(e, None))?;
+        // the search's best is this path's evaluation at `params` already
+        // (the same function, residuals included)
+        let prof = max.best.clone();
         let prof_sum = path.evaluate(dist, &params, &design.x_sum, y, method).map_err(|e| lerr(e, None))?;
         let whitened_x = path.whiten_columns(dist, &params, &design.x).map_err(|e| lerr(e, None))?;
         (prof, prof_sum, whitened_x)
@@ -650,139 +655,6 @@ pub fn finish_correlated(
     Ok(fit)
 }
 
-/// The positions of `dist` or an error naming `model` (the new structures
-/// need planar coordinates, not only distances).
-fn positions<'a>(model: &str, dist: &'a Distances) -> Result<(&'a [f64], &'a [f64])> {
-    dist.coords().ok_or_else(|| ModelError::Likelihood {
-        model: model.to_string(),
-        source: likelihood::LikelihoodError::Invalid(
-            "this residual structure needs the pots' x and y positions".into(),
-        ),
-        hint: None,
-    })
-}
-
-/// The whitened solves of a fit at a given lower Cholesky factor `l`.
-#[allow(clippy::too_many_arguments)]
-fn finish_with_factor(
-    model: &str,
-    design: &Design,
-    y: &[f64],
-    l: &faer::Mat<f64>,
-    params: CovParams,
-    errors: Errors,
-    method: LikelihoodKind,
-    search: Search,
-    structure: Structure,
-) -> Result<Fit> {
-    let lerr = |source| ModelError::Likelihood { model: model.to_string(), source, hint: None };
-    let prof = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x, y, method).map_err(lerr)?;
-    let prof_sum =
-        likelihood::profiled_with_factor(l.as_ref(), &params, &design.x_sum, y, method).map_err(lerr)?;
-    let n = y.len();
-    let mut wx = faer::Mat::from_fn(n, design.p(), |i, j| design.x[j][i]);
-    likelihood::whiten(l.as_ref(), &mut wx);
-    let whitened_x = (0..design.p()).map(|j| wx.col_as_slice(j).to_vec()).collect();
-    let mut fit = assemble(
-        design,
-        y,
-        method,
-        errors,
-        &prof,
-        (prof_sum.beta.as_slice(), prof_sum.xtvx_inv.as_slice()),
-        whitened_x,
-        Some(search),
-    );
-    fit.structure = Some(structure);
-    Ok(fit)
-}
-
-/// Fit with rows x columns errors ([`crate::spatial::rowcol`]) on the
-/// pots' `lattice` ([`crate::model::data::ModelData::lattice`]): the search
-/// uses the Kronecker path on a complete lattice without nugget, the final
-/// estimates one dense factorisation.
-pub fn fit_rows_columns(
-    model: &str,
-    design: &Design,
-    y: &[f64],
-    lattice: &Lattice,
-    nugget: bool,
-    method: LikelihoodKind,
-) -> Result<Fit> {
-    let lerr =
-        |source, hint: Option<String>| ModelError::Likelihood { model: model.to_string(), source, hint };
-    let lattice = lattice.clone();
-    let t = std::time::Instant::now();
-    let f0 = crate::spatial::factor::factorisations_on_this_thread();
-    let max = rowcol::maximise(&lattice, &design.x, y, method, nugget, SearchOptions::default().eta_max)
-        .map_err(|e| lerr(e, None))?;
-    let l = rowcol::cholesky(&lattice, &max.params).map_err(|e| lerr(e, None))?;
-    let search = Search {
-        converged: max.converged,
-        evaluations: max.evaluations,
-        factorisations: (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize,
-        seconds: t.elapsed().as_secs_f64(),
-        at_bounds: max.at_bounds.clone(),
-        range_bounds: (f64::NAN, f64::NAN),
-        other_optimum: None,
-    };
-    let params = CovParams { family: Family::Exponential, range: 1.0, eta: max.params.eta };
-    finish_with_factor(
-        model,
-        design,
-        y,
-        &l,
-        params,
-        Errors::RowsColumns { nugget },
-        method,
-        search,
-        Structure::RowsColumns { params: max.params, lattice },
-    )
-}
-
-/// Fit with direction-dependent errors ([`crate::spatial::anisotropy`]):
-/// the isotropic search, then the simplex over range, nugget share, angle
-/// and ratio of ranges.
-#[allow(clippy::too_many_arguments)]
-pub fn fit_directional(
-    model: &str,
-    design: &Design,
-    y: &[f64],
-    dist: &Distances,
-    family: Family,
-    nugget: bool,
-    method: LikelihoodKind,
-) -> Result<Fit> {
-    let lerr = |source| ModelError::Likelihood { model: model.to_string(), source, hint: None };
-    let (px, py) = positions(model, dist)?;
-    let t = std::time::Instant::now();
-    let f0 = crate::spatial::factor::factorisations_on_this_thread();
-    let opts = SearchOptions { nugget, ..SearchOptions::default() };
-    let max = anisotropy::maximise((px, py), family, &design.x, y, method, &opts).map_err(lerr)?;
-    let d = anisotropy::distances(px, py, &max.direction).map_err(lerr)?;
-    let l = likelihood::cholesky(&d, &max.params).map_err(lerr)?;
-    let search = Search {
-        converged: max.converged,
-        evaluations: max.evaluations,
-        factorisations: (crate::spatial::factor::factorisations_on_this_thread() - f0) as usize,
-        seconds: t.elapsed().as_secs_f64(),
-        at_bounds: max.at_bounds.clone(),
-        range_bounds: max.range_bounds,
-        other_optimum: None,
-    };
-    finish_with_factor(
-        model,
-        design,
-        y,
-        &l,
-        max.params,
-        Errors::Directional { family, nugget },
-        method,
-        search,
-        Structure::Directional { params: max.params, direction: max.direction },
-    )
-}
-
 /// The lower Cholesky factor of the fitted residual correlation matrix `V`
 /// of `fit` over the pots of `dist` (`None` for independent errors).
 pub fn residual_cholesky(
@@ -801,6 +673,10 @@ pub fn residual_cholesky(
         (None, None) => Ok(None),
     }
 }
+
+#[path = "gls_structured.rs"]
+mod structured;
+pub use structured::{fit_directional, fit_rows_columns};
 
 #[cfg(test)]
 #[path = "gls_tests.rs"]

@@ -30,6 +30,7 @@ use crate::spatial::likelihood::{
 };
 use crate::spatial::vecchia::{self, Conditioning};
 use crate::spatial::vecchia_latent::{self, LatentVecchia};
+use crate::spatial::vecchia_search;
 use faer::Mat;
 use std::sync::{Arc, OnceLock};
 
@@ -327,12 +328,15 @@ impl LikelihoodPath {
         }
     }
 
-    /// Maximise this path's likelihood over the correlation parameters by the
-    /// simplex search of [`likelihood::maximise_by`] (its starts and bounds
-    /// from the pots' pair distances, `O(n)` memory): on the neighbours path
-    /// [`vecchia_latent::maximise_latent`] for a nugget search of a latent
-    /// family (its evaluations at `eta = 0` are the response-level ones),
-    /// else [`vecchia::maximise_vecchia`].
+    /// Maximise this path's likelihood over the correlation parameters: on
+    /// the neighbours path the derivative-based search of
+    /// [`vecchia_search::maximise_vecchia_shared`] (the simplex for the
+    /// spherical family), or for a nugget search of a latent family
+    /// [`vecchia_search::maximise_latent_shared`] (its evaluations at
+    /// `eta = 0` are the response-level ones); on the exact path the simplex
+    /// search of [`likelihood::maximise_by`] (the model stage uses
+    /// [`crate::spatial::ascent`] there). Starts and bounds come from the
+    /// pots' pair distances (`O(n)` memory).
     pub fn maximise(
         &self,
         dist: &Distances,
@@ -342,14 +346,46 @@ impl LikelihoodPath {
         method: LikelihoodKind,
         opts: &SearchOptions,
     ) -> std::result::Result<Maximum, LikelihoodError> {
+        let (mut all, _) = self.maximise_shared(dist, family, &[x], y, method, opts);
+        all.pop().expect("one design, one maximum")
+    }
+
+    /// [`Self::maximise`] for several fixed parts with the same response and
+    /// error model: on the neighbours path the start grid's conditionals are
+    /// computed once for all of them. Returns each part's maximum and the
+    /// seconds of the shared work.
+    pub fn maximise_shared(
+        &self,
+        dist: &Distances,
+        family: crate::spatial::correlation::Family,
+        designs: &[&[Vec<f64>]],
+        y: &[f64],
+        method: LikelihoodKind,
+        opts: &SearchOptions,
+    ) -> vecchia_search::SharedSearch {
         match (&self.likelihood, &self.cond) {
             (Likelihood::Neighbours { .. }, Some(cond)) if opts.nugget && latent_family(family) => {
-                vecchia_latent::maximise_latent(dist, self.latent(cond)?, family, x, y, method, opts)
+                match self.latent(cond) {
+                    Ok(lat) => {
+                        vecchia_search::maximise_latent_shared(dist, lat, family, designs, y, method, opts)
+                    }
+                    Err(e) => ((0..designs.len()).map(|_| Err(e.clone())).collect(), 0.0),
+                }
             }
             (Likelihood::Neighbours { .. }, Some(cond)) => {
-                vecchia::maximise_vecchia(dist, cond, family, x, y, method, opts)
+                vecchia_search::maximise_vecchia_shared(dist, cond, family, designs, y, method, opts)
             }
-            _ => likelihood::maximise_by(dist, family, opts, |p| likelihood::profiled(dist, p, x, y, method)),
+            _ => (
+                designs
+                    .iter()
+                    .map(|x| {
+                        likelihood::maximise_by(dist, family, opts, |p| {
+                            likelihood::profiled(dist, p, x, y, method)
+                        })
+                    })
+                    .collect(),
+                0.0,
+            ),
         }
     }
 

@@ -390,14 +390,14 @@ pub fn scores(
 
 /// Box of the search: `ln range` and `eta` bounds.
 #[derive(Clone, Copy, Debug)]
-struct Bounds {
-    lo: [f64; 2],
-    hi: [f64; 2],
-    dim: usize,
+pub(super) struct Bounds {
+    pub(super) lo: [f64; 2],
+    pub(super) hi: [f64; 2],
+    pub(super) dim: usize,
 }
 
 impl Bounds {
-    fn project(&self, t: &mut [f64; 2]) {
+    pub(super) fn project(&self, t: &mut [f64; 2]) {
         for (k, v) in t.iter_mut().enumerate().take(self.dim) {
             *v = v.clamp(self.lo[k], self.hi[k]);
         }
@@ -405,14 +405,14 @@ impl Bounds {
 }
 
 /// Outcome of one Newton run.
-struct Run {
-    best: Scored,
-    t: [f64; 2],
-    converged: bool,
-    evaluations: usize,
+pub(super) struct Run {
+    pub(super) best: Scored,
+    pub(super) t: [f64; 2],
+    pub(super) converged: bool,
+    pub(super) evaluations: usize,
 }
 
-fn params_of(family: Family, t: &[f64; 2], dim: usize) -> CovParams {
+pub(super) fn params_of(family: Family, t: &[f64; 2], dim: usize) -> CovParams {
     CovParams { family, range: t[0].exp(), eta: if dim == 2 { t[1] } else { 0.0 } }
 }
 
@@ -428,7 +428,7 @@ const NUGGET_SHIFT: f64 = 0.01;
 /// Newton ascent from `t0` (see the module docs), searching the nugget
 /// share in `u = ln(eta + NUGGET_SHIFT)`; `eval` takes and the result
 /// reports `(ln range, eta)`.
-fn newton<P: Valued>(
+pub(super) fn newton<P: Valued>(
     value: &mut dyn FnMut(&[f64; 2]) -> Result<P, LikelihoodError>,
     score: &mut dyn FnMut(P) -> Result<Scored, LikelihoodError>,
     t0: [f64; 2],

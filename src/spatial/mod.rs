@@ -43,4 +43,6 @@ pub mod variogram;
 pub mod vecchia;
 pub mod vecchia_latent;
 pub mod vecchia_order;
+pub mod vecchia_scores;
+pub mod vecchia_search;
 pub mod window_se;

@@ -143,14 +143,27 @@ pub(crate) fn conditional(
     g.clear();
     g.resize(q * q, 0.0);
     v.clear();
-    // K_NN (lower triangle, row-major) and K_Nk
-    for a in 0..q {
-        let (xa, ya) = cond.position(set[a] as usize);
-        v.push(kernel.between(distance(xk, yk, xa, ya)));
-        g[a * q + a] = kernel.total;
-        for b in 0..a {
-            let (xb, yb) = cond.position(set[b] as usize);
-            g[a * q + b] = kernel.between(distance(xa, ya, xb, yb));
+    // K_NN (lower triangle, row-major) and K_Nk, from the kept distances
+    // when the conditioning has them (the same values)
+    if let Some(dk) = cond.distances(k) {
+        let (to_k, among) = dk.split_at(q);
+        v.extend(to_k.iter().map(|&d| kernel.between(d)));
+        for a in 0..q {
+            g[a * q + a] = kernel.total;
+            let row = &among[a * a.saturating_sub(1) / 2..][..a];
+            for (gab, &d) in g[a * q..a * q + a].iter_mut().zip(row) {
+                *gab = kernel.between(d);
+            }
+        }
+    } else {
+        for a in 0..q {
+            let (xa, ya) = cond.position(set[a] as usize);
+            v.push(kernel.between(distance(xk, yk, xa, ya)));
+            g[a * q + a] = kernel.total;
+            for b in 0..a {
+                let (xb, yb) = cond.position(set[b] as usize);
+                g[a * q + b] = kernel.between(distance(xa, ya, xb, yb));
+            }
         }
     }
     // Cholesky K_NN = G G' in place (lower, row-major)
@@ -260,6 +273,9 @@ pub fn profiled_vecchia(
 /// [`super::likelihood::maximise_by`] (the same starts, bounds and simplex as
 /// the exact path; `dist` sets the range bounds and start ranges). The
 /// `factorisations` of the result count dense factorisations only: zero here.
+/// The model stage uses the derivative-based search of
+/// [`super::vecchia_search`]; this simplex is its reference in tests and
+/// `benches/vecchia_search.rs`.
 pub fn maximise_vecchia(
     dist: &Distances,
     cond: &Conditioning,

@@ -45,7 +45,14 @@
 //!
 //! **Rounding.** The Woodbury form subtracts from `z'z / eta`: at most
 //! `log10(1 + (1 - eta) lambda_max(R~) / eta)` digits are lost (with
-//! `lambda_max <= L`), so about 5 of 16 at `n = 2,000`, `eta = 0.01`. At
+//! `lambda_max <= L`), so about 5 of 16 at `n = 2,000`, `eta = 0.01`; and
+//! `z'z` itself is large against the residual sum of squares when a column
+//! has a large mean (a trait of 60 g varying by 2 g, a driver of 50 units
+//! varying by 0.05): on a 3,000-pot field the value then moved by up to
+//! 6e-6 between parameters 1e-7 apart. So the columns of `X` and `y` are
+//! first centred on the intercept column (`Centring`: the same GLS, `Q` and
+//! `ln|X'V^-1 X|`, with beta and its covariance mapped back), which brought
+//! that roughness to below 1e-8 (`vecchia_latent_tests.rs`). At
 //! `eta = 0` there is no noise to integrate out and the latent form *is* the
 //! response-level one: the evaluation is delegated to
 //! [`super::vecchia::profiled_vecchia`] on the pots' own conditioning (which,
@@ -274,6 +281,11 @@ impl LatentVecchia {
         self.pots.is_empty()
     }
 
+    /// The pots' own (response-level) conditioning.
+    pub fn pots(&self) -> &Conditioning {
+        &self.pots
+    }
+
     /// Number of distinct positions (the size of `W`).
     pub fn locations(&self) -> usize {
         self.locs.len()
@@ -417,8 +429,11 @@ impl LatentVecchia {
             })?;
         let logdet_w = self.logdet_factor(&lval);
         let llt = LltRef::new(&self.symbolic, &lval);
-        // A'z for the columns of X and y, then W^-1 A'z
-        let cols: Vec<&[f64]> = x.iter().map(Vec::as_slice).chain(std::iter::once(y)).collect();
+        // the columns centred on the intercept (module docs, "Rounding"),
+        // A'z for them and y, then W^-1 A'z
+        let centring = Centring::of(x, y);
+        let (xc, yc) = centring.apply(x, y);
+        let cols: Vec<&[f64]> = xc.iter().map(Vec::as_slice).chain(std::iter::once(yc.as_slice())).collect();
         let c = cols.len();
         let mut g = Mat::<f64>::zeros(nl, c);
         for (j, z) in cols.iter().enumerate() {
@@ -448,6 +463,7 @@ impl LatentVecchia {
         }
         let logdet_s = n as f64 * eta.ln() - logdet_q + logdet_w;
         let mut prof = profile_crossproducts(&cross, n, logdet_s, method, *params)?;
+        centring.restore(&mut prof);
         if residuals {
             prof.whitened = self.residuals(params, x, y, &prof.beta)?;
         }
@@ -499,6 +515,54 @@ impl LatentVecchia {
             own[i] = w[(k, 0)];
         }
         Ok(own)
+    }
+}
+
+/// The centring of the columns on the intercept (module docs, "Rounding"):
+/// `X~ = X T`, `T = I - e_c m'` (`m_j` the mean of column `j`, `m_c = 0` for
+/// the intercept column `c`), and `y~ = y - ybar 1`. The GLS of `(X~, y~)`
+/// has the same `Q`, the same `ln|X'V^-1 X|` (`det T = 1`) and
+/// `beta = ybar e_c + T beta~`, `(X'V^-1 X)^-1 = T (X~'V^-1 X~)^-1 T'`.
+/// Without an intercept column (all ones) nothing is changed.
+struct Centring {
+    /// The intercept column, the column means and the mean of `y`.
+    shift: Option<(usize, Vec<f64>, f64)>,
+}
+
+impl Centring {
+    fn of(x: &[Vec<f64>], y: &[f64]) -> Centring {
+        let Some(c) = x.iter().position(|col| col.iter().all(|&v| v == 1.0)) else {
+            return Centring { shift: None };
+        };
+        let n = y.len() as f64;
+        let m = x.iter().enumerate().map(|(j, col)| if j == c { 0.0 } else { col.iter().sum::<f64>() / n });
+        Centring { shift: Some((c, m.collect(), y.iter().sum::<f64>() / n)) }
+    }
+
+    fn apply(&self, x: &[Vec<f64>], y: &[f64]) -> (Vec<Vec<f64>>, Vec<f64>) {
+        match &self.shift {
+            None => (x.to_vec(), y.to_vec()),
+            Some((_, m, ybar)) => (
+                x.iter().zip(m).map(|(col, mj)| col.iter().map(|v| v - mj).collect()).collect(),
+                y.iter().map(|v| v - ybar).collect(),
+            ),
+        }
+    }
+
+    /// `beta` and `(X'V^-1 X)^-1` of `prof` back on the columns as given.
+    fn restore(&self, prof: &mut Profiled) {
+        let Some((c, m, ybar)) = &self.shift else { return };
+        let p = m.len();
+        let shift: f64 = m.iter().zip(&prof.beta).map(|(mj, b)| mj * b).sum();
+        prof.beta[*c] += ybar - shift;
+        // T C T': row c of T is e_c - m', every other row e_j
+        let t = |a: usize, i: usize| -> f64 {
+            if a == *c { f64::from(u8::from(i == *c)) - m[i] } else { f64::from(u8::from(i == a)) }
+        };
+        let old = prof.xtvx_inv.clone();
+        let tc: Vec<f64> =
+            (0..p * p).map(|k| (0..p).map(|i| t(k / p, i) * old[i * p + k % p]).sum()).collect();
+        prof.xtvx_inv = (0..p * p).map(|k| (0..p).map(|j| tc[(k / p) * p + j] * t(k % p, j)).sum()).collect();
     }
 }
 
@@ -559,6 +623,8 @@ pub fn profiled_latent(
 /// simplex of the exact path; `dist` sets the range bounds and start
 /// ranges). Residuals are computed once, at the maximum. The
 /// `factorisations` of the result count dense factorisations only: zero here.
+/// The model stage uses [`super::vecchia_search::maximise_latent_shared`];
+/// this simplex is its reference in tests and `benches/vecchia_search.rs`.
 pub fn maximise_latent(
     dist: &Distances,
     lat: &LatentVecchia,

@@ -28,11 +28,36 @@
 //! against hypot distances). Where that `K` would exceed `k`, the `k` earlier points
 //! are searched directly. Cost about `O(m n log n)` queries in all;
 //! memory `n m` indices.
+//!
+//! # Distances kept
+//! Every evaluation of the likelihood needs, for each rank, the distances to
+//! its neighbours and among them; they do not change between evaluations.
+//! When their number, `sum_k q_k (q_k + 1) / 2` for sets of size `q_k`, is at
+//! most [`DISTANCE_CACHE_MAX_ENTRIES`] they are computed once here (by the
+//! same [`distance`] the evaluation would call, so the values are the same
+//! bits) and shared by clones; above it (full sets at a few hundred points,
+//! as in the tests) each evaluation computes them again.
 
 use super::geometry::{PointTree, distance};
 use super::likelihood::LikelihoodError;
 use std::cmp::Ordering;
 use std::collections::BinaryHeap;
+use std::sync::Arc;
+
+/// The most distances a [`Conditioning`] keeps (8 bytes each: 128 MiB);
+/// 20,000 points at `m = 30` need 9.3 million.
+pub const DISTANCE_CACHE_MAX_ENTRIES: usize = 1 << 24;
+
+/// The distances of every rank to its neighbours and among them (see the
+/// module docs): rank `k` with set size `q` owns `q (q + 1) / 2` values from
+/// `offsets[k]`: the `q` distances to its neighbours (in set order), then
+/// the strict lower triangle among them row by row (`(a, b)`, `b < a`, at
+/// `q + a (a - 1) / 2 + b`).
+#[derive(Debug)]
+struct DistanceCache {
+    offsets: Vec<usize>,
+    values: Vec<f64>,
+}
 
 /// The max-min ordering and the conditioning sets of `n` observations.
 #[derive(Clone, Debug)]
@@ -48,6 +73,8 @@ pub struct Conditioning {
     y: Vec<f64>,
     /// The largest set size asked for.
     m: usize,
+    /// The neighbour distances, when kept (module docs).
+    cache: Option<Arc<DistanceCache>>,
 }
 
 /// An entry of the ordering heap: an observation and its current distance
@@ -189,7 +216,53 @@ impl Conditioning {
             sets.extend(cand.iter().map(|&(_, r)| r as u32));
             starts.push(sets.len());
         }
-        Ok(Conditioning { order, starts, sets, x: xs, y: ys, m })
+        Ok(Conditioning { order, starts, sets, x: xs, y: ys, m, cache: None }.with_distance_cache())
+    }
+
+    /// Keep the neighbour distances when there are at most
+    /// [`DISTANCE_CACHE_MAX_ENTRIES`] of them (module docs).
+    fn with_distance_cache(mut self) -> Conditioning {
+        let n = self.len();
+        let total: usize = (0..n).map(|k| self.set(k).len()).map(|q| q * (q + 1) / 2).sum();
+        if total > DISTANCE_CACHE_MAX_ENTRIES {
+            return self;
+        }
+        let mut offsets = Vec::with_capacity(n + 1);
+        let mut values = Vec::with_capacity(total);
+        for k in 0..n {
+            offsets.push(values.len());
+            let set = self.set(k);
+            let (xk, yk) = self.position(k);
+            values.extend(set.iter().map(|&r| distance(xk, yk, self.x[r as usize], self.y[r as usize])));
+            for a in 0..set.len() {
+                let (xa, ya) = self.position(set[a] as usize);
+                for &r in &set[..a] {
+                    values.push(distance(xa, ya, self.x[r as usize], self.y[r as usize]));
+                }
+            }
+        }
+        offsets.push(values.len());
+        self.cache = Some(Arc::new(DistanceCache { offsets, values }));
+        self
+    }
+
+    /// The same conditioning without its kept distances: every evaluation
+    /// computes them again (for tests and benchmarks of the cache).
+    pub fn without_distance_cache(mut self) -> Conditioning {
+        self.cache = None;
+        self
+    }
+
+    /// True when the neighbour distances are kept.
+    pub fn keeps_distances(&self) -> bool {
+        self.cache.is_some()
+    }
+
+    /// The kept distances of rank `k` (module docs: `q` to its neighbours,
+    /// then the strict lower triangle among them), if kept.
+    #[inline]
+    pub(super) fn distances(&self, k: usize) -> Option<&[f64]> {
+        self.cache.as_ref().map(|c| &c.values[c.offsets[k]..c.offsets[k + 1]])
     }
 
     /// A conditioning given explicitly (`order[k]` the original index of rank
@@ -226,7 +299,7 @@ impl Conditioning {
         let m = sets.iter().map(Vec::len).max().unwrap_or(0);
         let xs = order.iter().map(|&i| x[i]).collect();
         let ys = order.iter().map(|&i| y[i]).collect();
-        Ok(Conditioning { order, starts, sets: flat, x: xs, y: ys, m })
+        Ok(Conditioning { order, starts, sets: flat, x: xs, y: ys, m, cache: None }.with_distance_cache())
     }
 
     /// Number of observations.

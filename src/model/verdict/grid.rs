@@ -207,13 +207,10 @@ pub(super) fn fit_grid(
                 for _ in &fits {
                     counter.step();
                 }
-                // the nearest-neighbour path shares no start grid
-                let grid = path.is_exact().then(|| SharedGrid {
-                    errors: errors.label(),
-                    fits: fits.len(),
-                    factorisations,
-                    seconds,
-                });
+                // both paths share the start grid (no dense factorisation on
+                // the nearest-neighbour path)
+                let grid =
+                    Some(SharedGrid { errors: errors.label(), fits: fits.len(), factorisations, seconds });
                 Ok((fits, grid))
             }
         }
