@@ -66,10 +66,20 @@ pub fn is_sequential() -> bool {
     SEQUENTIAL.with(Cell::get)
 }
 
-/// The parallelism of a dense kernel on the calling thread: faer's thread
-/// pool unless [`sequential`] asked for one thread.
-fn par() -> Par {
-    if SEQUENTIAL.with(Cell::get) { Par::Seq } else { Par::rayon(0) }
+/// Below this order a factorisation, an inverse or a whitening runs on the
+/// calling thread: measured with `cargo bench --bench gls` on the 2-core
+/// machine (2026-12-05), a whole exponential fit with a nugget (ML) at
+/// n = 480 took 0.138 s with its factorisations and inverses on faer's
+/// thread pool and 0.080 to 0.087 s on one thread (the pool's wake-ups cost
+/// more than the parallel work saved), while at n = 1,680 the pool paid
+/// (1.63 against 2.05 s).
+pub const PARALLEL_FROM: usize = 1_000;
+
+/// The parallelism of a dense kernel of order `n` on the calling thread:
+/// faer's thread pool from [`PARALLEL_FROM`] on unless [`sequential`] asked
+/// for one thread.
+fn par_for(n: usize) -> Par {
+    if n < PARALLEL_FROM || SEQUENTIAL.with(Cell::get) { Par::Seq } else { Par::rayon(0) }
 }
 
 /// Smallest accepted diagonal entry `l_jj` of the factor of a correlation
@@ -129,14 +139,14 @@ impl Cholesky {
     /// whose square root `l_jj` is not above `min_diagonal`, is an error naming
     /// its index and value.
     ///
-    /// Cost: `n^3/3` flops, blocked and multi-threaded by faer.
+    /// Cost: `n^3/3` flops, blocked, on faer's threads from [`PARALLEL_FROM`] on.
     pub fn new(mut a: Mat<f64>, min_diagonal: f64) -> Result<Cholesky, FactorError> {
         let n = a.nrows();
         debug_assert_eq!(n, a.ncols());
         if n == 0 {
             return Ok(Cholesky { l: a });
         }
-        let par = par();
+        let par = par_for(n);
         let mut mem =
             faer::dyn_stack::MemBuffer::new(cholesky_in_place_scratch::<f64>(n, par, Default::default()));
         let stack = faer::dyn_stack::MemStack::new(&mut mem);
@@ -187,7 +197,7 @@ impl Cholesky {
 
     /// Solve `A X = B` in place (`L^-1` then `L^-T`). Cost `2 n^2 k` flops.
     pub fn solve(&self, b: &mut Mat<f64>) {
-        let par = if self.dim() >= 64 { par() } else { Par::Seq };
+        let par = par_for(self.dim());
         solve_lower_triangular_in_place(self.l.as_ref(), b.as_mut(), par);
         solve_upper_triangular_in_place(self.l.transpose(), b.as_mut(), par);
     }
@@ -200,12 +210,12 @@ impl Cholesky {
 
     /// The lower triangle of `A^-1 = L^-T L^-1` (the strict upper triangle
     /// is left zero): the triangular inverse then a triangular product,
-    /// about `2 n^3 / 3` flops (twice a factorisation), multi-threaded
-    /// unless [`sequential`].
+    /// about `2 n^3 / 3` flops (twice a factorisation), on faer's threads from
+    /// [`PARALLEL_FROM`] on unless [`sequential`].
     pub fn inverse_lower(&self) -> Mat<f64> {
         let n = self.dim();
         let mut out = Mat::<f64>::zeros(n, n);
-        let par = par();
+        let par = par_for(n);
         let mut mem = faer::dyn_stack::MemBuffer::new(
             faer::linalg::cholesky::llt::inverse::inverse_scratch::<f64>(n, par),
         );
@@ -229,7 +239,7 @@ impl Cholesky {
 
 /// Solve `L Z = B` in place (`B` is `n x k`), `L` lower triangular.
 pub fn whiten(l: MatRef<'_, f64>, b: &mut Mat<f64>) {
-    solve_lower_triangular_in_place(l, b.as_mut(), par());
+    solve_lower_triangular_in_place(l, b.as_mut(), par_for(l.nrows()));
 }
 
 /// Inverse and log-determinant of a small dense symmetric positive definite
