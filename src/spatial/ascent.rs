@@ -606,7 +606,7 @@ fn newton_in<P: Valued>(
             // judged by the likelihood alone; the scores only where accepted
             let tried = match value(&trial) {
                 Ok(pt) if pt.loglik() >= cur.prof.loglik - 1e-12 => match score(pt) {
-                    Ok(s) => Tried::Accepted(s),
+                    Ok(s) => Tried::Accepted(Box::new(s)),
                     Err(_) => Tried::Failed,
                 },
                 Ok(pt) => Tried::Lower(pt.loglik()),
@@ -617,7 +617,7 @@ fn newton_in<P: Valued>(
             match tried {
                 Tried::Accepted(s) => {
                     pair = Some(([trial[0] - t[0], trial[1] - t[1]], [g[0] - s.grad[0], g[1] - s.grad[1]]));
-                    cur = s;
+                    cur = *s;
                     t = trial;
                     accepted = true;
                     break;
@@ -674,7 +674,7 @@ fn newton_in<P: Valued>(
 /// A trial step of [`newton_in`], judged.
 enum Tried {
     /// At least as high: scored.
-    Accepted(Scored),
+    Accepted(Box<Scored>),
     /// Lower, with its log-likelihood.
     Lower(f64),
     /// Not evaluable.
@@ -762,26 +762,13 @@ pub fn maximise_shared(
     let mut first_error: Option<LikelihoodError> = None;
     let mut evaluate = |ri: usize, ei: usize, grid: &mut Vec<Vec<Option<f64>>>| {
         let params = CovParams { family, range: ranges[ri].exp(), eta: etas[ei] };
-        match super::likelihood::cholesky(dist, &params) {
-            Ok(l) => {
-                for (d, x) in designs.iter().enumerate() {
-                    match super::likelihood::profiled_with_factor(l.as_ref(), &params, x, y, method) {
-                        Ok(p) => {
-                            grid[d][ri * etas.len() + ei] = Some(p.loglik);
-                            if best_grid[d].as_ref().is_none_or(|b| p.loglik > b.loglik) {
-                                best_grid[d] = Some(p);
-                            }
-                        }
-                        Err(err) => {
-                            first_error.get_or_insert(err);
-                        }
-                    }
-                }
-            }
-            Err(err) => {
-                first_error.get_or_insert(err);
-            }
-        }
+        let all = super::likelihood::cholesky(dist, &params).map(|l| {
+            designs
+                .iter()
+                .map(|x| super::likelihood::profiled_with_factor(l.as_ref(), &params, x, y, method))
+                .collect()
+        });
+        record_grid_point(ri * etas.len() + ei, all, grid, &mut best_grid, &mut first_error);
     };
     // the ranges at the middle share, then the other shares at the ranges
     // that are local maxima of that pass for some design (within
@@ -829,6 +816,38 @@ pub fn maximise_shared(
         })
         .collect();
     (results, shared)
+}
+
+/// Record one grid point's evaluation for every fixed part (`all`, or the
+/// error that stopped them all) at `index` of each part's grid, keeping
+/// each part's best evaluation and the first error.
+pub(super) fn record_grid_point(
+    index: usize,
+    all: Result<Vec<Result<Profiled, LikelihoodError>>, LikelihoodError>,
+    grid: &mut [Vec<Option<f64>>],
+    best: &mut [Option<Profiled>],
+    first_error: &mut Option<LikelihoodError>,
+) {
+    match all {
+        Ok(all) => {
+            for (d, r) in all.into_iter().enumerate() {
+                match r {
+                    Ok(p) => {
+                        grid[d][index] = Some(p.loglik);
+                        if best[d].as_ref().is_none_or(|b| p.loglik > b.loglik) {
+                            best[d] = Some(p);
+                        }
+                    }
+                    Err(err) => {
+                        first_error.get_or_insert(err);
+                    }
+                }
+            }
+        }
+        Err(err) => {
+            first_error.get_or_insert(err);
+        }
+    }
 }
 
 /// The start ranges of a search (in `ln range`): practical ranges at the 2,
@@ -904,28 +923,17 @@ pub fn maximise_from(
     refine(dist, start.family, x, y, method, opts, &bounds, (&[t[0]], &[t[1]]), &grid, best0)
 }
 
-/// Newton runs from the local maxima of one design's grid; the simplex polish
-/// where a run stops short; the report of [`Maximum`].
-#[allow(clippy::too_many_arguments)]
-fn refine(
-    dist: &Distances,
-    family: Family,
-    x: &[Vec<f64>],
-    y: &[f64],
-    method: LikelihoodKind,
-    opts: &SearchOptions,
-    bounds: &Bounds,
-    (ranges, etas): (&[f64], &[f64]),
+/// The local maxima of one fixed part's grid (8-neighbourhood), within
+/// `start_gap` of its best `top`, best first, at most `starts`.
+pub(super) fn grid_starts(
+    ranges: &[f64],
+    etas: &[f64],
     grid: &[Option<f64>],
-    best0: Profiled,
-) -> Result<Maximum, LikelihoodError> {
-    let f0 = factorisations_on_this_thread();
-    let started = std::time::Instant::now();
-    let dim = bounds.dim;
+    top: f64,
+    opts: &SearchOptions,
+) -> Vec<[f64; 2]> {
     let (nr, ne) = (ranges.len(), etas.len());
     let val = |ri: usize, ei: usize| grid[ri * ne + ei].unwrap_or(f64::NEG_INFINITY);
-    let top = best0.loglik;
-    // local maxima of the grid (8-neighbourhood), best first
     let mut starts: Vec<([f64; 2], f64)> = Vec::new();
     for (ri, &lr) in ranges.iter().enumerate() {
         for (ei, &e) in etas.iter().enumerate() {
@@ -949,13 +957,35 @@ fn refine(
     }
     starts.sort_by(|a, b| b.1.total_cmp(&a.1));
     starts.truncate(opts.starts.max(1));
+    starts.into_iter().map(|(t, _)| t).collect()
+}
+
+/// Newton runs from the local maxima of one design's grid; the simplex polish
+/// where a run stops short; the report of [`Maximum`].
+#[allow(clippy::too_many_arguments)]
+fn refine(
+    dist: &Distances,
+    family: Family,
+    x: &[Vec<f64>],
+    y: &[f64],
+    method: LikelihoodKind,
+    opts: &SearchOptions,
+    bounds: &Bounds,
+    (ranges, etas): (&[f64], &[f64]),
+    grid: &[Option<f64>],
+    best0: Profiled,
+) -> Result<Maximum, LikelihoodError> {
+    let f0 = factorisations_on_this_thread();
+    let started = std::time::Instant::now();
+    let dim = bounds.dim;
+    let starts = grid_starts(ranges, etas, grid, best0.loglik, opts);
     let mut evaluations = grid.iter().filter(|v| v.is_some()).count();
     let mut best = best0;
     let mut converged = true;
     let mut ends: Vec<([f64; 2], f64)> = Vec::new();
     let mut value = |t: &[f64; 2]| point(dist, &params_of(family, t, dim), x, y, method);
     let mut score = |pt: Point| scores(dist, pt, x, method);
-    for (t0, _) in &starts {
+    for t0 in &starts {
         let run = match newton(&mut value, &mut score, *t0, bounds) {
             Ok(r) => r,
             Err(_) => continue,

@@ -33,7 +33,7 @@
 //! [`super::vecchia_latent`]), hence the difference step
 //! [`LATENT_FD_STEP`] and the simplex's value tolerance [`LATENT_F_TOL`].
 
-use super::ascent::{Bounds, Scored, grid_ranges, newton, params_of};
+use super::ascent::{Bounds, Scored, grid_ranges, grid_starts, newton, params_of, record_grid_point};
 use super::correlation::Family;
 use super::covariance::CovParams;
 use super::likelihood::{
@@ -113,26 +113,8 @@ pub fn maximise_vecchia_shared(
     for (ri, &lr) in ranges.iter().enumerate() {
         for (ei, &e) in etas.iter().enumerate() {
             let params = CovParams { family, range: lr.exp(), eta: e };
-            match profiled_vecchia_many(cond, &params, designs, y, method) {
-                Ok(all) => {
-                    for (d, r) in all.into_iter().enumerate() {
-                        match r {
-                            Ok(p) => {
-                                grid[d][ri * etas.len() + ei] = Some(p.loglik);
-                                if best_grid[d].as_ref().is_none_or(|b| p.loglik > b.loglik) {
-                                    best_grid[d] = Some(p);
-                                }
-                            }
-                            Err(err) => {
-                                first_error.get_or_insert(err);
-                            }
-                        }
-                    }
-                }
-                Err(err) => {
-                    first_error.get_or_insert(err);
-                }
-            }
+            let all = profiled_vecchia_many(cond, &params, designs, y, method);
+            record_grid_point(ri * etas.len() + ei, all, &mut grid, &mut best_grid, &mut first_error);
         }
     }
     let shared = t0.elapsed().as_secs_f64();
@@ -162,43 +144,6 @@ fn check_all(dist: &Distances, n: usize, designs: &[&[Vec<f64>]], y: &[f64]) -> 
         return Err(LikelihoodError::Invalid("the distances and the conditioning disagree on n".into()));
     }
     Ok(())
-}
-
-/// The local maxima of one fixed part's grid (8-neighbourhood), within
-/// `start_gap` of its best `top`, best first, at most `starts`.
-fn grid_starts(
-    ranges: &[f64],
-    etas: &[f64],
-    grid: &[Option<f64>],
-    top: f64,
-    opts: &SearchOptions,
-) -> Vec<[f64; 2]> {
-    let (nr, ne) = (ranges.len(), etas.len());
-    let val = |ri: usize, ei: usize| grid[ri * ne + ei].unwrap_or(f64::NEG_INFINITY);
-    let mut starts: Vec<([f64; 2], f64)> = Vec::new();
-    for (ri, &lr) in ranges.iter().enumerate() {
-        for (ei, &e) in etas.iter().enumerate() {
-            let v = val(ri, ei);
-            if !v.is_finite() || v < top - opts.start_gap {
-                continue;
-            }
-            let mut local = true;
-            for dr in -1i64..=1 {
-                for de in -1i64..=1 {
-                    let (a, b) = (ri as i64 + dr, ei as i64 + de);
-                    if (dr, de) != (0, 0) && a >= 0 && b >= 0 && (a as usize) < nr && (b as usize) < ne {
-                        local &= val(a as usize, b as usize) <= v;
-                    }
-                }
-            }
-            if local {
-                starts.push(([lr, e], v));
-            }
-        }
-    }
-    starts.sort_by(|a, b| b.1.total_cmp(&a.1));
-    starts.truncate(opts.starts.max(1));
-    starts.into_iter().map(|(t, _)| t).collect()
 }
 
 /// Newton runs from `starts` on one fixed part, the simplex polish where a
