@@ -13,6 +13,7 @@
 
 pub mod anisotropy;
 pub mod ascent;
+pub mod ascent_scores;
 pub mod averaged;
 pub mod config;
 pub mod correlation;

@@ -122,6 +122,29 @@ pub(crate) struct ConditionalWork {
     pub(crate) b: Vec<f64>,
 }
 
+/// The Cholesky factor `G G' = K_NN` of a neighbour set's `q x q` covariance,
+/// in place in the lower triangle of row-major `g`; a pivot whose square
+/// root is NaN (negative or undefined) or not above
+/// [`CORRELATION_MIN_DIAGONAL`] fails with the pot of `set` at that row and
+/// the pivot.
+pub(crate) fn small_cholesky(g: &mut [f64], q: usize, set: &[u32]) -> Result<(), (usize, f64)> {
+    for j in 0..q {
+        let d = g[j * q + j] - g[j * q..j * q + j].iter().map(|t| t * t).sum::<f64>();
+        let l = d.sqrt();
+        if l.is_nan() || l <= CORRELATION_MIN_DIAGONAL {
+            return Err((set[j] as usize, d));
+        }
+        g[j * q + j] = l;
+        let (head, tail) = g.split_at_mut((j + 1) * q);
+        let row_j = &head[j * q..j * q + j];
+        for row_i in tail.chunks_exact_mut(q) {
+            let s: f64 = row_i[..j].iter().zip(row_j).map(|(a, b)| a * b).sum();
+            row_i[j] = (row_i[j] - s) / l;
+        }
+    }
+    Ok(())
+}
+
 /// The conditional of rank `k` of `cond` given its neighbour set `N(k)`
 /// under `kernel`: the coefficients `b_k = K_NN^-1 K_Nk` into `work.b` and
 /// the conditional variance `d_k = K_kk - K_kN b_k` returned (module docs;
@@ -167,21 +190,7 @@ pub(crate) fn conditional(
         }
     }
     // Cholesky K_NN = G G' in place (lower, row-major)
-    for j in 0..q {
-        let d = g[j * q + j] - g[j * q..j * q + j].iter().map(|t| t * t).sum::<f64>();
-        let l = d.sqrt();
-        // NaN (a negative or undefined pivot) fails too
-        if l.is_nan() || l <= CORRELATION_MIN_DIAGONAL {
-            return Err((set[j] as usize, d));
-        }
-        g[j * q + j] = l;
-        let (head, tail) = g.split_at_mut((j + 1) * q);
-        let row_j = &head[j * q..j * q + j];
-        for row_i in tail.chunks_exact_mut(q) {
-            let s: f64 = row_i[..j].iter().zip(row_j).map(|(a, b)| a * b).sum();
-            row_i[j] = (row_i[j] - s) / l;
-        }
-    }
+    small_cholesky(g, q, set)?;
     // G u = K_Nk (forward), d = K_kk - u'u, G' b = u (backward)
     for i in 0..q {
         let s: f64 = g[i * q..i * q + i].iter().zip(&v[..i]).map(|(a, b)| a * b).sum();

@@ -159,21 +159,8 @@ fn conditional_scored(
             dk[1][a * q + c] = -rho;
         }
     }
-    // Cholesky K_NN = G G' in place (the steps of vecchia::conditional)
-    for j in 0..q {
-        let d = g[j * q + j] - g[j * q..j * q + j].iter().map(|t| t * t).sum::<f64>();
-        let l = d.sqrt();
-        if l.is_nan() || l <= CORRELATION_MIN_DIAGONAL {
-            return Err((set[j] as usize, d));
-        }
-        g[j * q + j] = l;
-        let (head, tail) = g.split_at_mut((j + 1) * q);
-        let row_j = &head[j * q..j * q + j];
-        for row_i in tail.chunks_exact_mut(q) {
-            let s: f64 = row_i[..j].iter().zip(row_j).map(|(a, b)| a * b).sum();
-            row_i[j] = (row_i[j] - s) / l;
-        }
-    }
+    // Cholesky K_NN = G G' in place
+    super::vecchia::small_cholesky(g, q, set)?;
     // b = K_NN^-1 K_Nk by the forward then backward solve; d from the forward half
     for i in 0..q {
         let s: f64 = g[i * q..i * q + i].iter().zip(&b[..i]).map(|(a, c)| a * c).sum();
