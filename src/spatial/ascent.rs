@@ -684,6 +684,7 @@ fn refine(
     let mut ends: Vec<([f64; 2], f64)> = Vec::new();
     let mut value = |t: &[f64; 2]| point(dist, &params_of(family, t, dim), x, y, method);
     let mut score = |pt: Point| scores(dist, pt, x, method);
+    let evaluate = |p: &CovParams| super::likelihood::profiled(dist, p, x, y, method);
     for t0 in &starts {
         let run = match newton(&mut value, &mut score, *t0, bounds) {
             Ok(r) => r,
@@ -696,31 +697,9 @@ fn refine(
         }
         if !run.converged {
             // the derivative-free polish from where Newton stopped
-            let mut polished: Option<Profiled> = None;
-            let mut neg = |v: &[f64]| -> f64 {
-                let t = [v[0], if dim == 2 { v[1] } else { 0.0 }];
-                evaluations += 1;
-                match super::likelihood::profiled(dist, &params_of(family, &t, dim), x, y, method) {
-                    Ok(p) => {
-                        let l = p.loglik;
-                        if polished.as_ref().is_none_or(|b| l > b.loglik) {
-                            polished = Some(p);
-                        }
-                        -l
-                    }
-                    Err(_) => f64::INFINITY,
-                }
-            };
-            let m = nelder_mead(
-                &mut neg,
-                &run.t[..dim],
-                &Simplex {
-                    step: &[0.05, 0.015][..dim],
-                    bounds: Some((&bounds.lo[..dim], &bounds.hi[..dim])),
-                    stop: Stop::Absolute { f_tol: opts.f_tol, x_tol: opts.x_tol },
-                    budget: Budget::Evaluations(opts.max_evals),
-                },
-            );
+            let (m, polished, used) =
+                polish(&evaluate, family, &run.t, bounds, (0.05, 0.015), opts.f_tol, opts);
+            evaluations += used;
             converged &= m.converged;
             if let Some(p) = polished
                 && p.loglik > best.loglik
@@ -731,20 +710,79 @@ fn refine(
         }
         ends.push(end);
     }
+    let mut max = report(best, ends, bounds, family, converged, evaluations, started);
+    max.factorisations = (factorisations_on_this_thread() - f0) as usize;
+    Ok(max)
+}
+
+/// A bounded simplex on `evaluate` from `t` with first steps `steps`: the
+/// simplex's end, the best evaluation met and the evaluations used.
+pub(super) fn polish(
+    evaluate: &dyn Fn(&CovParams) -> Result<Profiled, LikelihoodError>,
+    family: Family,
+    t: &[f64; 2],
+    bounds: &Bounds,
+    steps: (f64, f64),
+    f_tol: f64,
+    opts: &SearchOptions,
+) -> (super::optimise::Minimum, Option<Profiled>, usize) {
+    let dim = bounds.dim;
+    let mut polished: Option<Profiled> = None;
+    let mut used = 0;
+    let mut neg = |v: &[f64]| -> f64 {
+        let t = [v[0], if dim == 2 { v[1] } else { 0.0 }];
+        used += 1;
+        match evaluate(&params_of(family, &t, dim)) {
+            Ok(p) => {
+                let l = p.loglik;
+                if polished.as_ref().is_none_or(|b| l > b.loglik) {
+                    polished = Some(p);
+                }
+                -l
+            }
+            Err(_) => f64::INFINITY,
+        }
+    };
+    let m = nelder_mead(
+        &mut neg,
+        &t[..dim],
+        &Simplex {
+            step: &[steps.0, steps.1][..dim],
+            bounds: Some((&bounds.lo[..dim], &bounds.hi[..dim])),
+            stop: Stop::Absolute { f_tol, x_tol: opts.x_tol },
+            budget: Budget::Evaluations(opts.max_evals),
+        },
+    );
+    (m, polished, used)
+}
+
+/// The [`Maximum`] of a search: its best evaluation, the ends of its runs
+/// (another optimum, the bounds it lies on), and its counts (no
+/// factorisations: the caller sets them where it counts them).
+pub(super) fn report(
+    best: Profiled,
+    ends: Vec<([f64; 2], f64)>,
+    bounds: &Bounds,
+    family: Family,
+    converged: bool,
+    evaluations: usize,
+    started: std::time::Instant,
+) -> Maximum {
+    let dim = bounds.dim;
     let ends: Vec<(&[f64], f64)> = ends.iter().map(|(t, v)| (&t[..dim], *v)).collect();
     let (other_optimum, at_bounds) =
         SearchBox { sample: Vec::new(), lo: bounds.lo, hi: bounds.hi, dim, range: (0.0, 0.0) }
             .outcome(&best, ends, family);
-    Ok(Maximum {
+    Maximum {
         best,
         converged,
         at_bounds,
         evaluations,
-        factorisations: (factorisations_on_this_thread() - f0) as usize,
+        factorisations: 0,
         seconds: started.elapsed().as_secs_f64(),
         range_bounds: (bounds.lo[0].exp(), bounds.hi[0].exp()),
         other_optimum,
-    })
+    }
 }
 
 #[cfg(test)]

@@ -33,14 +33,15 @@
 //! [`super::vecchia_latent`]), hence the difference step
 //! [`LATENT_FD_STEP`] and the simplex's value tolerance [`LATENT_F_TOL`].
 
-use super::ascent::{Bounds, Scored, grid_ranges, grid_starts, newton, params_of, record_grid_point};
+use super::ascent::{
+    Bounds, Scored, grid_ranges, grid_starts, newton, params_of, polish, record_grid_point, report,
+};
 use super::correlation::Family;
 use super::covariance::CovParams;
 use super::likelihood::{
     Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchBox, SearchOptions, check_sizes_n,
     simplex_search, simplex_starts,
 };
-use super::optimise::{Budget, Simplex, Stop, nelder_mead};
 use super::vecchia::{Conditioning, profiled_vecchia};
 use super::vecchia_latent::LatentVecchia;
 pub use super::vecchia_scores::{profiled_vecchia_many, scored_vecchia};
@@ -197,73 +198,6 @@ fn refine(
         ends.push(end);
     }
     Ok(report(best, ends, bounds, family, converged, evaluations, started))
-}
-
-/// A bounded simplex on `evaluate` from `t` with first steps `steps`: the
-/// simplex's end, the best evaluation met and the evaluations used.
-fn polish(
-    evaluate: &dyn Fn(&CovParams) -> Result<Profiled, LikelihoodError>,
-    family: Family,
-    t: &[f64; 2],
-    bounds: &Bounds,
-    steps: (f64, f64),
-    f_tol: f64,
-    opts: &SearchOptions,
-) -> (super::optimise::Minimum, Option<Profiled>, usize) {
-    let dim = bounds.dim;
-    let mut polished: Option<Profiled> = None;
-    let mut used = 0;
-    let mut neg = |v: &[f64]| -> f64 {
-        let t = [v[0], if dim == 2 { v[1] } else { 0.0 }];
-        used += 1;
-        match evaluate(&params_of(family, &t, dim)) {
-            Ok(p) => {
-                let l = p.loglik;
-                if polished.as_ref().is_none_or(|b| l > b.loglik) {
-                    polished = Some(p);
-                }
-                -l
-            }
-            Err(_) => f64::INFINITY,
-        }
-    };
-    let m = nelder_mead(
-        &mut neg,
-        &t[..dim],
-        &Simplex {
-            step: &[steps.0, steps.1][..dim],
-            bounds: Some((&bounds.lo[..dim], &bounds.hi[..dim])),
-            stop: Stop::Absolute { f_tol, x_tol: opts.x_tol },
-            budget: Budget::Evaluations(opts.max_evals),
-        },
-    );
-    (m, polished, used)
-}
-
-fn report(
-    best: Profiled,
-    ends: Vec<([f64; 2], f64)>,
-    bounds: &Bounds,
-    family: Family,
-    converged: bool,
-    evaluations: usize,
-    started: std::time::Instant,
-) -> Maximum {
-    let dim = bounds.dim;
-    let ends: Vec<(&[f64], f64)> = ends.iter().map(|(t, v)| (&t[..dim], *v)).collect();
-    let (other_optimum, at_bounds) =
-        SearchBox { sample: Vec::new(), lo: bounds.lo, hi: bounds.hi, dim, range: (0.0, 0.0) }
-            .outcome(&best, ends, family);
-    Maximum {
-        best,
-        converged,
-        at_bounds,
-        evaluations,
-        factorisations: 0,
-        seconds: started.elapsed().as_secs_f64(),
-        range_bounds: (bounds.lo[0].exp(), bounds.hi[0].exp()),
-        other_optimum,
-    }
 }
 
 /// Newton steps per latent run before the simplex polish.
