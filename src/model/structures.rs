@@ -474,9 +474,19 @@ mod tests {
         assert_eq!(fa.loglik, fb.loglik);
         // the bootstrap refuses to simulate from it rather than treat it as independent
         let dist = Distances::from_coords(&a.x, &a.y).unwrap();
-        let e =
-            crate::model::bootstrap::bootstrap_lrt(("a", "b"), &design, &design, &fa, &dist, 1.0, 0.3, 9, 1)
-                .unwrap_err();
+        let e = crate::model::bootstrap::bootstrap_lrt(
+            ("a", "b"),
+            &design,
+            &design,
+            &fa,
+            &dist,
+            1.0,
+            0.3,
+            9,
+            1,
+            None,
+        )
+        .unwrap_err();
         assert!(format!("{e}").contains("not available for rows x columns"), "{e}");
     }
 

@@ -60,6 +60,19 @@ pub struct ImputationTime {
     pub seconds: f64,
 }
 
+/// The parametric bootstrap of one likelihood-ratio test.
+#[derive(Clone, Debug, Serialize, PartialEq)]
+pub struct BootstrapTime {
+    /// `alternative against null`.
+    pub test: String,
+    /// Replicates run (each two ML refits).
+    pub replicates: usize,
+    /// Dense factorisations of the refits, all workers.
+    pub factorisations: usize,
+    /// Wall-clock seconds.
+    pub seconds: f64,
+}
+
 /// One row of the printed table: label, fits, evaluations (blank where not
 /// counted), factorisations, seconds (blank for the total).
 type TableRow = (String, usize, Option<usize>, usize, Option<f64>);
@@ -81,14 +94,18 @@ pub struct Timings {
     pub shared_grids: Vec<SharedGrid>,
     /// The imputations per mapped driver.
     pub imputations: Vec<ImputationTime>,
+    /// The parametric bootstraps of the calibration.
+    pub bootstraps: Vec<BootstrapTime>,
 }
 
 impl Timings {
-    /// Dense factorisations in all: fits, shared grids and imputations.
+    /// Dense factorisations in all: fits, shared grids, imputations and
+    /// bootstraps.
     pub fn factorisations(&self) -> usize {
         self.fits.iter().map(|f| f.factorisations).sum::<usize>()
             + self.shared_grids.iter().map(|g| g.factorisations).sum::<usize>()
             + self.imputations.iter().map(|i| i.factorisations).sum::<usize>()
+            + self.bootstraps.iter().map(|b| b.factorisations).sum::<usize>()
     }
 
     /// Likelihood evaluations of all fits.
@@ -97,7 +114,8 @@ impl Timings {
     }
 
     /// The table printed by `potclim run --timings`: stages, then the fits
-    /// summed by error model, the shared grids and the imputations.
+    /// summed by error model, the shared grids, the imputations and the
+    /// bootstraps (the fits column counts their replicates).
     pub fn table(&self) -> String {
         let mut out =
             format!("timings ({} hardware threads, fits spread over {})\n", self.threads, self.fit_threads);
@@ -136,6 +154,15 @@ impl Timings {
                 None,
                 i.factorisations,
                 Some(i.seconds),
+            ));
+        }
+        for b in &self.bootstraps {
+            rows.push((
+                format!("bootstrap: {}", b.test),
+                b.replicates,
+                None,
+                b.factorisations,
+                Some(b.seconds),
             ));
         }
         rows.push(("total".into(), self.fits.len(), Some(self.evaluations()), self.factorisations(), None));
@@ -181,10 +208,16 @@ mod tests {
                 seconds: 0.25,
             }],
             imputations: vec![],
+            bootstraps: vec![BootstrapTime {
+                test: "base+d | exponential+nugget against base | exponential+nugget".into(),
+                replicates: 99,
+                factorisations: 1500,
+                seconds: 2.0,
+            }],
         };
         let table = t.table();
         let rows: Vec<&str> = table.lines().skip_while(|l| !l.starts_with("fits by error model")).collect();
-        assert_eq!(rows.len(), 4, "{table}");
+        assert_eq!(rows.len(), 5, "{table}");
         let sums: Vec<&str> = rows[1].split_whitespace().collect();
         assert_eq!(sums, ["ML", "exponential+nugget", "2", "15", "7", "1.000"]);
         // every number column ends where the header's does
@@ -192,6 +225,11 @@ mod tests {
         for r in &rows[1..] {
             assert!(r[..end].ends_with(|c: char| c.is_ascii_digit()), "{table}");
         }
-        assert!(rows[3].starts_with("total") && rows[3].split_whitespace().eq(["total", "2", "15", "46"]));
+        let boot: Vec<&str> = rows[3].split_whitespace().collect();
+        assert!(
+            rows[3].starts_with("bootstrap: base+d") && boot.ends_with(&["99", "1500", "2.000"]),
+            "{table}"
+        );
+        assert!(rows[4].starts_with("total") && rows[4].split_whitespace().eq(["total", "2", "15", "1546"]));
     }
 }

@@ -150,6 +150,22 @@ impl Calibration {
         }
         last.tests.iter().find(|t| t.driver == driver)
     }
+
+    /// The cost of every bootstrap run, for the run's timings.
+    pub fn bootstrap_times(&self) -> Vec<crate::model::timings::BootstrapTime> {
+        let steps = self.steps.iter();
+        let boots = steps.flat_map(|s| {
+            s.bootstrap.iter().chain(s.lrt_under_correlation.iter().flat_map(|l| l.bootstrap.iter()))
+        });
+        boots
+            .map(|b| crate::model::timings::BootstrapTime {
+                test: format!("{} against {}", b.alternative, b.null),
+                replicates: b.replicates + b.failed,
+                factorisations: b.factorisations,
+                seconds: b.seconds,
+            })
+            .collect()
+    }
 }
 
 /// The calibrated verdict: the rule applied, the chosen model's drivers
@@ -335,6 +351,7 @@ fn lrt(
         p_asym,
         replicates,
         ctx.seed,
+        Some(ALPHA),
     )?;
     Ok((p_asym, Some(b), None))
 }
@@ -481,7 +498,7 @@ fn under_base_correlation<'a>(pool: &[&'a GridFit], chosen: &GridFit) -> Option<
 /// The test under the base model's correlated errors in words.
 fn lrt_words(l: &CorrelatedLrt) -> String {
     let p = match &l.bootstrap {
-        Some(b) => format!("bootstrap p = {:.3} ± {:.3}, {} replicates", b.p_value, b.p_mc_se, b.replicates),
+        Some(b) => format!("bootstrap p = {:.3} ± {:.3}, {}", b.p_value, b.p_mc_se, b.replicates_said()),
         None => format!("asymptotic p = {:.3}", l.p_asymptotic),
     };
     format!(
@@ -505,8 +522,10 @@ fn statement(cal: &Calibration) -> String {
                 .as_ref()
                 .map(|b| {
                     format!(
-                        "; bootstrap of the likelihood-ratio test p = {:.3} ± {:.3} ({} replicates)",
-                        b.p_value, b.p_mc_se, b.replicates
+                        "; bootstrap of the likelihood-ratio test p = {:.3} ± {:.3} ({})",
+                        b.p_value,
+                        b.p_mc_se,
+                        b.replicates_said()
                     )
                 })
                 .unwrap_or_default();
@@ -560,8 +579,11 @@ fn statement(cal: &Calibration) -> String {
                         t.p_value, t.p_plugin, t.method
                     ),
                     (_, Some(b)) => format!(
-                        "`{d}` (bootstrap p = {:.3} ± {:.3} against the asymptotic {:.3}, {} replicates)",
-                        b.p_value, b.p_mc_se, b.p_asymptotic, b.replicates
+                        "`{d}` (bootstrap p = {:.3} ± {:.3} against the asymptotic {:.3}, {})",
+                        b.p_value,
+                        b.p_mc_se,
+                        b.p_asymptotic,
+                        b.replicates_said()
                     ),
                     _ => format!("`{d}`"),
                 }

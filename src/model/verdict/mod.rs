@@ -426,6 +426,7 @@ pub fn analyse_with(
         fits: fit_times,
         shared_grids: shared,
         imputations: Vec::new(),
+        bootstraps: calibration.bootstrap_times(),
     };
     let likelihood = path.likelihood().neighbours().map(|m| {
         let used = LikelihoodUsed {
