@@ -616,10 +616,19 @@ pub fn maximise_from(
     let bounds = Bounds { lo: sb.lo, hi: sb.hi, dim };
     let mut t = [start.range.ln(), if dim == 2 { start.eta } else { 0.0 }];
     bounds.project(&mut t);
-    let p0 = params_of(start.family, &t, dim);
-    let best0 = super::likelihood::profiled(dist, &p0, x, y, method)?;
-    let grid = [Some(best0.loglik)];
-    refine(dist, start.family, x, y, method, opts, &bounds, (&[t[0]], &[t[1]]), &grid, best0)
+    let (f0, started) = (factorisations_on_this_thread(), std::time::Instant::now());
+    // the first Newton evaluation is the start's (no separate one)
+    let a = match ascend(dist, start.family, x, y, method, opts, &bounds, t) {
+        Ok(a) => a,
+        Err(e) => {
+            // a start where V cannot be factorised: say so as the search would
+            super::likelihood::profiled(dist, &params_of(start.family, &t, dim), x, y, method)?;
+            return Err(e);
+        }
+    };
+    let mut max = report(a.best, vec![a.end], &bounds, start.family, a.converged, a.evaluations, started);
+    max.factorisations = (factorisations_on_this_thread() - f0) as usize;
+    Ok(max)
 }
 
 /// The local maxima of one fixed part's grid (8-neighbourhood), within
@@ -676,43 +685,71 @@ fn refine(
 ) -> Result<Maximum, LikelihoodError> {
     let f0 = factorisations_on_this_thread();
     let started = std::time::Instant::now();
-    let dim = bounds.dim;
     let starts = grid_starts(ranges, etas, grid, best0.loglik, opts);
     let mut evaluations = grid.iter().filter(|v| v.is_some()).count();
     let mut best = best0;
     let mut converged = true;
     let mut ends: Vec<([f64; 2], f64)> = Vec::new();
-    let mut value = |t: &[f64; 2]| point(dist, &params_of(family, t, dim), x, y, method);
-    let mut score = |pt: Point| scores(dist, pt, x, method);
-    let evaluate = |p: &CovParams| super::likelihood::profiled(dist, p, x, y, method);
     for t0 in &starts {
-        let run = match newton(&mut value, &mut score, *t0, bounds) {
-            Ok(r) => r,
-            Err(_) => continue,
-        };
-        evaluations += run.evaluations;
-        let mut end = (run.t, run.best.prof.loglik);
-        if run.best.prof.loglik > best.loglik {
-            best = run.best.prof.clone();
+        let Ok(a) = ascend(dist, family, x, y, method, opts, bounds, *t0) else { continue };
+        evaluations += a.evaluations;
+        converged &= a.converged;
+        if a.best.loglik > best.loglik {
+            best = a.best;
         }
-        if !run.converged {
-            // the derivative-free polish from where Newton stopped
-            let (m, polished, used) =
-                polish(&evaluate, family, &run.t, bounds, (0.05, 0.015), opts.f_tol, opts);
-            evaluations += used;
-            converged &= m.converged;
-            if let Some(p) = polished
-                && p.loglik > best.loglik
-            {
-                end = ([m.x[0], if dim == 2 { m.x[1] } else { 0.0 }], p.loglik);
-                best = p;
-            }
-        }
-        ends.push(end);
+        ends.push(a.end);
     }
     let mut max = report(best, ends, bounds, family, converged, evaluations, started);
     max.factorisations = (factorisations_on_this_thread() - f0) as usize;
     Ok(max)
+}
+
+/// What one ascent from a start reached.
+struct Ascent {
+    /// Where it ended (search coordinates) and the log-likelihood there.
+    end: ([f64; 2], f64),
+    /// The best evaluation met.
+    best: Profiled,
+    evaluations: usize,
+    converged: bool,
+}
+
+/// Newton steps from `t0`, then the simplex polish from where they stopped
+/// if they stopped short.
+#[allow(clippy::too_many_arguments)]
+fn ascend(
+    dist: &Distances,
+    family: Family,
+    x: &[Vec<f64>],
+    y: &[f64],
+    method: LikelihoodKind,
+    opts: &SearchOptions,
+    bounds: &Bounds,
+    t0: [f64; 2],
+) -> Result<Ascent, LikelihoodError> {
+    let dim = bounds.dim;
+    let mut value = |t: &[f64; 2]| point(dist, &params_of(family, t, dim), x, y, method);
+    let mut score = |pt: Point| scores(dist, pt, x, method);
+    let run = newton(&mut value, &mut score, t0, bounds)?;
+    let mut a = Ascent {
+        end: (run.t, run.best.prof.loglik),
+        best: run.best.prof,
+        evaluations: run.evaluations,
+        converged: true,
+    };
+    if !run.converged {
+        let evaluate = |p: &CovParams| super::likelihood::profiled(dist, p, x, y, method);
+        let (m, polished, used) = polish(&evaluate, family, &run.t, bounds, (0.05, 0.015), opts.f_tol, opts);
+        a.evaluations += used;
+        a.converged = m.converged;
+        if let Some(p) = polished
+            && p.loglik > a.best.loglik
+        {
+            a.end = ([m.x[0], if dim == 2 { m.x[1] } else { 0.0 }], p.loglik);
+            a.best = p;
+        }
+    }
+    Ok(a)
 }
 
 /// A bounded simplex on `evaluate` from `t` with first steps `steps`: the
