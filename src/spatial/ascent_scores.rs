@@ -145,11 +145,7 @@ pub fn point(
         }
         _ => {
             let mut rho = Mat::<f64>::zeros(n, n);
-            fill_lower_columns(&mut rho, |j, col| {
-                for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
-                    *c = family.correlation(dist.get(i, j), range);
-                }
-            });
+            dist.fill_pairs(&mut rho, |d| family.correlation(d, range));
             (rho, None)
         }
     };
@@ -193,12 +189,18 @@ pub fn scores(
         }
         _ => {
             let mut dr = Mat::<f64>::zeros(n, n);
-            fill_lower_columns(&mut dr, |j, col| {
-                let rc = rho.col_as_slice(j);
-                for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
-                    *c = dcorrelation_dlog_range(family, dist.get(i, j), range, rc[i]);
-                }
-            });
+            // rho of the same distance computed once more per distinct
+            // distance (the same value as R's) or read from R pair by pair
+            let by_distinct =
+                |d: f64| dcorrelation_dlog_range(family, d, range, family.correlation(d, range));
+            if !dist.fill_pairs_distinct(&mut dr, by_distinct) {
+                fill_lower_columns(&mut dr, |j, col| {
+                    let rc = rho.col_as_slice(j);
+                    for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
+                        *c = dcorrelation_dlog_range(family, dist.get(i, j), range, rc[i]);
+                    }
+                });
+            }
             (dr, None)
         }
     };

@@ -19,12 +19,60 @@ pub const PAIRS_KEPT_UP_TO: usize = 5_000;
 /// The kept pairwise distances of [`Distances::Coords`] (strict lower
 /// triangle, column by column), empty until [`Distances::keep_pairs`].
 #[derive(Clone, Default)]
-pub struct PairCache(std::sync::OnceLock<Vec<f64>>);
+pub struct PairCache(std::sync::OnceLock<KeptPairs>);
+
+/// How the pairwise distances are kept: every value, or, when few distinct
+/// distances repeat (pots on a regular grid), the distinct values and each
+/// pair's index into them, so that a function of the distance is computed
+/// once per distinct value ([`Distances::fill_pairs`]).
+#[derive(Clone)]
+enum KeptPairs {
+    Each(Vec<f64>),
+    Distinct { values: Vec<f64>, index: Vec<u32> },
+}
+
+/// The distinct-value form is kept when every distinct distance is shared by
+/// this many pairs on average or more (a regular layout of 480 pots has
+/// 114,960 pairs at a few thousand distances).
+const PAIRS_PER_DISTINCT: usize = 8;
+
+impl KeptPairs {
+    /// Every pair's distance, then the distinct form if it pays. Distinct
+    /// means bit-identical (`to_bits`), so every value read back is the
+    /// computed one.
+    fn new(d: Vec<f64>) -> KeptPairs {
+        let limit = d.len() / PAIRS_PER_DISTINCT;
+        let mut seen: std::collections::HashMap<u64, u32> = std::collections::HashMap::new();
+        let mut values = Vec::new();
+        let mut index = Vec::with_capacity(d.len());
+        for &v in &d {
+            let k = *seen.entry(v.to_bits()).or_insert_with(|| {
+                values.push(v);
+                (values.len() - 1) as u32
+            });
+            if values.len() > limit {
+                return KeptPairs::Each(d);
+            }
+            index.push(k);
+        }
+        KeptPairs::Distinct { values, index }
+    }
+
+    fn get(&self, k: usize) -> f64 {
+        match self {
+            KeptPairs::Each(d) => d[k],
+            KeptPairs::Distinct { values, index } => values[index[k] as usize],
+        }
+    }
+}
 
 impl std::fmt::Debug for PairCache {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self.0.get() {
-            Some(p) => write!(f, "{} pair distances kept", p.len()),
+            Some(KeptPairs::Each(p)) => write!(f, "{} pair distances kept", p.len()),
+            Some(KeptPairs::Distinct { values, index }) => {
+                write!(f, "{} pair distances kept, {} distinct", index.len(), values.len())
+            }
             None => write!(f, "pair distances not kept"),
         }
     }
@@ -129,7 +177,7 @@ impl Distances {
     pub fn get(&self, i: usize, j: usize) -> f64 {
         match self {
             Distances::Coords { x, y, pairs } => match pairs.0.get() {
-                Some(p) if i != j => p[packed_index(x.len(), i.max(j), i.min(j))],
+                Some(p) if i != j => p.get(packed_index(x.len(), i.max(j), i.min(j))),
                 _ => super::geometry::distance(x[i], y[i], x[j], y[j]),
             },
             Distances::Matrix { n, d } => d[i * n + j],
@@ -155,9 +203,58 @@ impl Distances {
                         p.push(super::geometry::distance(x[i], y[i], x[j], y[j]));
                     }
                 }
-                p
+                KeptPairs::new(p)
             });
         }
+    }
+
+    /// Fill the strict lower triangle of the `n x n` matrix `m` with
+    /// `f(d_ij)`, in parallel over column blocks. With the kept distances
+    /// in their distinct form `f` is computed once per distinct distance
+    /// and the values gathered (the same numbers: the same `f` of the same
+    /// distances); `false` (nothing filled) otherwise.
+    pub fn fill_pairs_distinct(&self, m: &mut Mat<f64>, f: impl Fn(f64) -> f64) -> bool {
+        let Distances::Coords { pairs, .. } = self else { return false };
+        let Some(KeptPairs::Distinct { values, index }) = pairs.0.get() else { return false };
+        let n = m.nrows();
+        debug_assert_eq!(n, self.len(), "a fill of {n} rows over {} observations", self.len());
+        let table: Vec<f64> = values.iter().map(|&d| f(d)).collect();
+        super::covariance::fill_lower_columns(m, |j, col| {
+            if j + 1 >= n {
+                return;
+            }
+            let at = &index[packed_index(n, j + 1, j)..][..n - j - 1];
+            for (c, &k) in col[j + 1..].iter_mut().zip(at) {
+                *c = table[k as usize];
+            }
+        });
+        true
+    }
+
+    /// Fill the strict lower triangle of `m` with `f(d_ij)`: from the
+    /// distinct kept distances when there are ([`Distances::fill_pairs_distinct`]),
+    /// else pair by pair. For distances, not pots that move.
+    pub fn fill_pairs(&self, m: &mut Mat<f64>, f: impl Fn(f64) -> f64 + Sync) {
+        if !self.fill_pairs_distinct(m, &f) {
+            super::covariance::fill_lower_columns(m, |j, col| {
+                for (i, c) in col.iter_mut().enumerate().skip(j + 1) {
+                    *c = f(self.get(i, j));
+                }
+            });
+        }
+    }
+
+    /// The lower triangle with the diagonal of the matrix of `kernel` over
+    /// the observations (`total` on the diagonal, `between(d_ij)` below),
+    /// by [`Distances::fill_pairs`]. For distances, not pots that move.
+    pub fn kernel_lower(&self, kernel: &Kernel) -> Mat<f64> {
+        let n = self.len();
+        let mut m = Mat::<f64>::zeros(n, n);
+        for i in 0..n {
+            m[(i, i)] = kernel.total;
+        }
+        self.fill_pairs(&mut m, |d| kernel.between(d));
+        m
     }
 
     /// The structured correlation `R` of the observations for `family` at
@@ -169,8 +266,7 @@ impl Distances {
     pub fn correlation_lower(&self, family: Family, range: f64) -> Mat<f64> {
         match self {
             Distances::Averaged(a) => a.structured(family, range),
-            _ => Kernel::correlation(&CovParams { family, range, eta: 0.0 })
-                .fill_lower(self.len(), |i, j| self.get(i, j)),
+            _ => self.kernel_lower(&Kernel::correlation(&CovParams { family, range, eta: 0.0 })),
         }
     }
 
@@ -288,6 +384,57 @@ mod tests {
                 assert_eq!(kept.get(i, j).to_bits(), fresh.get(i, j).to_bits(), "pair ({i}, {j})");
             }
         }
+    }
+
+    /// Pots on a grid (and a few pots sharing a position): the pairs are
+    /// kept as distinct distances with an index, every distance read back
+    /// bit for bit as computed, and a function filled through the distinct
+    /// values equals the same function pair by pair; an irregular layout
+    /// keeps every value and fills pair by pair.
+    #[test]
+    fn distinct_pair_distances_fill_as_the_pairs_do() {
+        let (nx, ny) = (24, 20);
+        let mut x: Vec<f64> = (0..nx * ny).map(|i| (i % nx) as f64 * 0.35).collect();
+        let mut y: Vec<f64> = (0..nx * ny).map(|i| (i / nx) as f64 * 0.6).collect();
+        x.extend([0.35, 1.05]);
+        y.extend([0.0, 1.2]);
+        let n = x.len();
+        let fresh = Distances::from_coords(&x, &y).unwrap();
+        let kept = Distances::from_coords(&x, &y).unwrap();
+        kept.keep_pairs();
+        let said = format!(
+            "{:?}",
+            PairCache(match &kept {
+                Distances::Coords { pairs, .. } => pairs.0.clone(),
+                _ => unreachable!("made from coordinates"),
+            })
+        );
+        let distinct: usize =
+            said.split(", ").nth(1).and_then(|t| t.split(' ').next()?.parse().ok()).unwrap();
+        assert!(
+            said.starts_with(&format!("{} pair distances kept", n * (n - 1) / 2)) && distinct < 2000,
+            "{said}"
+        );
+        let f = |d: f64| (-d / 1.7).exp() * (1.0 + d);
+        let mut by_table = Mat::<f64>::zeros(n, n);
+        assert!(kept.fill_pairs_distinct(&mut by_table, f));
+        for i in 0..n {
+            for j in 0..n {
+                assert_eq!(kept.get(i, j).to_bits(), fresh.get(i, j).to_bits(), "pair ({i}, {j})");
+                let want = if i > j { f(fresh.get(i, j)) } else { 0.0 };
+                assert_eq!(by_table[(i, j)].to_bits(), want.to_bits(), "pair ({i}, {j})");
+            }
+        }
+        let mut plain = Mat::<f64>::zeros(n, n);
+        fresh.fill_pairs(&mut plain, f);
+        assert_eq!(plain, by_table);
+        // irregular: every distance its own, no distinct form
+        let xr: Vec<f64> = (0..200).map(|i| (i as f64 * 0.618_034).fract() * 11.3).collect();
+        let yr: Vec<f64> = (0..200).map(|i| (i as f64 * i as f64 * 0.414_214).fract() * 7.9).collect();
+        let irregular = Distances::from_coords(&xr, &yr).unwrap();
+        irregular.keep_pairs();
+        assert!(!format!("{irregular:?}").contains("distinct"), "{irregular:?}");
+        assert!(!irregular.fill_pairs_distinct(&mut Mat::<f64>::zeros(200, 200), f));
     }
 
     /// The sorted pairing of equal positions and the strided pair sample

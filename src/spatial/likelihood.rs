@@ -107,7 +107,7 @@ pub fn cholesky(dist: &Distances, params: &CovParams) -> Result<Mat<f64>, Likeli
     dist.keep_pairs();
     let v = match dist {
         Distances::Averaged(a) => a.correlation(params),
-        _ => Kernel::correlation(params).fill_lower(dist.len(), |i, j| dist.get(i, j)),
+        _ => dist.kernel_lower(&Kernel::correlation(params)),
     };
     factor_correlation(v, params)
 }
