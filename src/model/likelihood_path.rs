@@ -221,7 +221,8 @@ pub fn choose(
 /// 6.1 response-level; the latent form's noise-free Gaussian field is
 /// nearly singular, 18 to 306; a share of the nugget moved into the field
 /// did not hold under 0.5 at every `m` either). docs/model.md, "Measured
-/// 2026-12-05: the accuracy target".
+/// 2026-12-05: the accuracy target". Of the Matérn family only smoothness
+/// 1.5 was measured; the others are treated as it is.
 pub fn outside_target(family: Family, nugget: bool) -> bool {
     match family {
         Family::Spherical => true,
