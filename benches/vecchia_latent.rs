@@ -9,7 +9,9 @@
 //! (exponential, spherical, Gaussian, Matérn 1.5) with a nugget: the exact
 //! ML fit, then at its optimum each form's log-likelihood difference from the
 //! exact one and the largest driver-coefficient difference in exact SEs for
-//! m = 10, 20, 30, 40, and the latent form's own fit at m = 30. Then the time
+//! m = 10, 20, 30, 40, and the latent form's own fit at m = 30 by the search
+//! the model path uses (`potclim::spatial::vecchia_search::maximise_latent_shared`:
+//! Newton steps from the response-level maximum). Then the time
 //! of one evaluation of each form (the latent one without and with its
 //! normalised residuals) against one dense fill and Cholesky (faer)
 //! and one single-threaded LAPACK Cholesky through numpy of the same n in
@@ -28,8 +30,8 @@
 //! The reference interpreter is taken from `POTCLIM_BENCH_PYTHON` (default
 //! `python3`).
 //!
-//! Run: `cargo bench --bench vecchia_latent` (the numbers in docs/model.md
-//! were measured with `--profile dev`, see there).
+//! Run: `cargo bench --bench vecchia_latent` (release profile; the path's
+//! default choices are measured by `benches/vecchia.rs`).
 
 use potclim::spatial::ascent::maximise_shared;
 use potclim::spatial::correlation::Family;
@@ -37,7 +39,8 @@ use potclim::spatial::likelihood::{
     CovParams, Distances, LikelihoodKind, Profiled, SearchOptions, cholesky, profiled,
 };
 use potclim::spatial::vecchia::{Conditioning, profiled_vecchia};
-use potclim::spatial::vecchia_latent::{LatentVecchia, maximise_latent, profiled_latent};
+use potclim::spatial::vecchia_latent::{LatentVecchia, profiled_latent};
+use potclim::spatial::vecchia_search::maximise_latent_shared;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
@@ -255,7 +258,9 @@ fn main() {
             }
             let own = &lats[MS.iter().position(|&m| m == OWN_M).unwrap()];
             let t = Instant::now();
-            match maximise_latent(&dist, own, family, &cols, &z, method, &opts) {
+            let (mut own_fit, _) =
+                maximise_latent_shared(&dist, own, family, &[cols.as_slice()], &z, method, &opts);
+            match own_fit.pop().expect("one design, one maximum") {
                 Ok(v) => println!(
                     "{line} {:>12.4} {:>8.3}   ({} evaluations, {:.1} s)",
                     (v.best.loglik - ex.loglik).abs(),

@@ -22,6 +22,10 @@
 //! `POTCLIM_TRUTH_ONLY=covariate,both` runs only the named truths.
 //! With `POTCLIM_TRUTH_KEEP=DIR` every run is kept in `DIR/<truth>_<seed>`,
 //! for the checks of `tests/scenarios/findings.py`.
+//! `POTCLIM_TRUTH_LIKELIHOOD=neighbours` (or `exact`, `auto`) writes
+//! `likelihood = "..."` into the simulated study's `[model]` before the run:
+//! the same studies analysed with the nearest-neighbour likelihood, to
+//! compare their verdicts with the exact path's.
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
@@ -190,6 +194,13 @@ fn run_one_at(truth: &'static str, seed: u64, pots: usize) -> Outcome {
         "--seed",
         &seed.to_string(),
     ]);
+    if let Ok(likelihood) = std::env::var("POTCLIM_TRUTH_LIKELIHOOD") {
+        let path = study_dir.join("study.toml");
+        let text = std::fs::read_to_string(&path).unwrap();
+        assert_eq!(text.matches("\n[model]\n").count(), 1, "one [model] table in {}", path.display());
+        let text = text.replace("\n[model]\n", &format!("\n[model]\nlikelihood = \"{likelihood}\"\n"));
+        std::fs::write(&path, text).unwrap();
+    }
     potclim(&["run", study_dir.join("study.toml").to_str().unwrap(), "--quiet"]);
     let seconds = started.elapsed().as_secs_f64();
 

@@ -519,7 +519,7 @@ pub fn fit_correlated_shared(
     }
     let opts = SearchOptions { nugget, ..SearchOptions::default() };
     let xs: Vec<&[Vec<f64>]> = designs.iter().map(|d| d.x.as_slice()).collect();
-    if !path.is_exact() {
+    if !path.exact_for(family, nugget) {
         let (maxima, grid_seconds) = path.maximise_shared(dist, family, &xs, y, method, &opts);
         let fits = maxima
             .into_iter()
@@ -578,7 +578,7 @@ pub fn fit_correlated_from(
 ) -> Result<Fit> {
     let opts = SearchOptions { nugget, ..SearchOptions::default() };
     let t = std::time::Instant::now();
-    let max = if path.is_exact() {
+    let max = if path.exact_for(start.family, nugget) {
         crate::spatial::ascent::maximise_from(dist, start, &design.x, y, method, &opts)
     } else {
         path.maximise(dist, start.family, &design.x, y, method, &opts)
@@ -613,7 +613,7 @@ pub fn finish_correlated(
     let lerr =
         |source, hint: Option<String>| ModelError::Likelihood { model: model.to_string(), source, hint };
     let params = max.best.params;
-    let (prof, prof_sum, whitened_x) = if path.is_exact() {
+    let (prof, prof_sum, whitened_x) = if path.exact_for(family, nugget) {
         let l = likelihood::cholesky(dist, &params).map_err(|e| lerr(e, None))?;
         let prof = likelihood::profiled_with_factor(l.as_ref(), &params, &design.x, y, method)
             .map_err(|e| lerr(e, None))?;
@@ -651,7 +651,7 @@ pub fn finish_correlated(
         whitened_x,
         Some(search),
     );
-    fit.likelihood = path.likelihood_of(&params);
+    fit.likelihood = path.likelihood_for(&params, nugget);
     Ok(fit)
 }
 

@@ -180,3 +180,55 @@ fn independent_ml_is_the_ols_likelihood() {
     // statsmodels counts only the 6 mean parameters in its AIC; ours adds sigma2: +2
     assert_relative_eq!(f.aic, -2.0 * f.loglik + 14.0, max_relative = 1e-14);
 }
+
+/// On a neighbours path that keeps the error models outside the
+/// approximation's target exact (`LikelihoodPath::keeping_exact`), the
+/// Gaussian fits with a nugget are the exact fits: against scipy's
+/// optimiser on MASS topo (as [`maximised_fits_vs_scipy_on_topo`]) and
+/// recorded as exact; an exponential fit with a nugget on the same path
+/// stays approximated. (The spherical family, not in the fixtures, is
+/// checked against the exact search in `likelihood_path`'s tests.)
+#[test]
+fn kept_error_models_are_exact_fits_on_the_neighbours_path() {
+    let data = model_data("topo.csv", "z", &[], &["x", "y"], Some(("x", "y")), &[]);
+    let dist = Distances::from_coords(&data.x, &data.y).unwrap();
+    let path = LikelihoodPath::neighbours(&data.x, &data.y, 5).unwrap().keeping_exact(true);
+    let mut checked = 0;
+    for want in
+        fixture("model_fits.json")["fits"].as_array().unwrap().iter().filter(|f| f["dataset"] == "topo")
+    {
+        let family = Family::parse(want["family"].as_str().unwrap()).unwrap();
+        let nugget = want["nugget"].as_bool().unwrap();
+        let b = floats(&want["bounds"]);
+        if !crate::model::likelihood_path::outside_target(family, nugget)
+            || want["range"].as_f64().unwrap() > 0.99 * b[1]
+        {
+            continue;
+        }
+        let drivers =
+            if want["formula"] == "z ~ 1" { vec![] } else { vec!["x".to_string(), "y".to_string()] };
+        let design = Design::build(&data, &DesignSpec { drivers, ..Default::default() }).unwrap();
+        let method = if want["method"] == "ML" { LikelihoodKind::Ml } else { LikelihoodKind::Reml };
+        let f =
+            fit_correlated("t", &design, &data.response, &dist, &data.pots, family, nugget, method, &path)
+                .unwrap();
+        check_fit(&f, want);
+        assert_eq!(f.likelihood, crate::model::likelihood_path::Likelihood::Exact);
+        checked += 1;
+    }
+    assert_eq!(checked, 2, "the Gaussian ML and REML fits with a nugget");
+    let design = Design::build(&data, &DesignSpec::default()).unwrap();
+    let f = fit_correlated(
+        "t",
+        &design,
+        &data.response,
+        &dist,
+        &data.pots,
+        Family::Exponential,
+        true,
+        LikelihoodKind::Ml,
+        &path,
+    )
+    .unwrap();
+    assert_ne!(f.likelihood, crate::model::likelihood_path::Likelihood::Exact);
+}

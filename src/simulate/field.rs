@@ -26,7 +26,7 @@
 //! of 20,000 plots, whose dense covariance alone would take 3.2 GB): the
 //! field is drawn by sequential conditional simulation in the max-min order
 //! ([`crate::spatial::vecchia_order`]), each point given its `m` =
-//! [`crate::spatial::vecchia::DEFAULT_NEIGHBOURS`] nearest earlier points:
+//! [`SIMULATION_NEIGHBOURS`] nearest earlier points:
 //! `z_k = b_k' z_N(k) + sqrt(d_k) u_k` with `b_k = C_NN^-1 C_Nk` and
 //! `d_k = C_kk - C_kN b_k` (the one conditional of
 //! [`crate::spatial::vecchia::conditional`]). That draws exactly from the
@@ -41,7 +41,13 @@ use super::error::{Result, SimError};
 use crate::spatial::correlation::Family;
 use crate::spatial::covariance::{CovParams, Kernel};
 use crate::spatial::factor::Cholesky;
-use crate::spatial::vecchia::{ConditionalWork, Conditioning, DEFAULT_NEIGHBOURS, conditional};
+use crate::spatial::vecchia::{ConditionalWork, Conditioning, conditional};
+
+/// Neighbours of each point in the sequential draw of a large field (module
+/// docs): 30, the value the simulated studies were drawn with (the model
+/// stage's own default, [`crate::spatial::vecchia::DEFAULT_NEIGHBOURS`], is
+/// set apart so that a change there leaves simulated studies unchanged).
+pub const SIMULATION_NEIGHBOURS: usize = 30;
 use faer::Mat;
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
@@ -88,7 +94,7 @@ impl FieldSampler {
             return Ok(FieldSampler { how: How::Zero, n, jitter: 0.0 });
         }
         if n > DENSE_UP_TO {
-            return Self::with_neighbours(points, family, range, sill, DEFAULT_NEIGHBOURS, what);
+            return Self::with_neighbours(points, family, range, sill, SIMULATION_NEIGHBOURS, what);
         }
         let kernel = Kernel::scaled(&CovParams { family, range, eta: 0.0 }, sill);
         let cov = kernel.fill_lower(n, |i, j| {
@@ -348,7 +354,7 @@ mod tests {
         let big: Vec<[f64; 2]> =
             (0..DENSE_UP_TO + 1).map(|k| [(k % 100) as f64 * 0.3, (k / 100) as f64 * 0.3]).collect();
         let s = FieldSampler::new(&big, Family::Exponential, 1.0, 1.0, "t").unwrap();
-        assert_eq!(s.neighbours(), Some(DENSE_UP_TO.min(DEFAULT_NEIGHBOURS)));
+        assert_eq!(s.neighbours(), Some(DENSE_UP_TO.min(SIMULATION_NEIGHBOURS)));
         assert_eq!(s.draw(&mut rng).len(), DENSE_UP_TO + 1);
         assert!(
             FieldSampler::new(&big, Family::Exponential, 1.0, 0.0, "t")

@@ -47,20 +47,23 @@ use super::likelihood::{
     Distances, LikelihoodError, LikelihoodKind, Maximum, Profiled, SearchOptions, check_params,
     check_sizes_n, maximise_by, profile_whitened,
 };
-pub use super::vecchia_order::{Conditioning, maxmin_order};
+pub use super::vecchia_order::{Conditioning, SetRule, maxmin_order};
 use crate::spatial::correlation::Family;
 use faer::Mat;
 
-/// The default number of neighbours `m`. Measured (`cargo bench --bench
-/// vecchia`, table in docs/model.md) on a regular field of 2,000 plots:
-/// without a nugget `m = 30` keeps the log-likelihood at the exact optimum
-/// within 0.6 of the exact one for the exponential, Gaussian, spherical and
-/// Matérn 1.5 families, and the driver coefficients within 0.22 exact SEs;
-/// with a nugget the response-level approximation is 0.76 to 1.90 away at
-/// `m = 30` for every family (and not monotone in `m` up to 40), so the
-/// large path's likelihood target (0.5) is not met with a nugget by this
-/// form (see docs/model.md).
-pub const DEFAULT_NEIGHBOURS: usize = 30;
+/// The default number of neighbours `m` of the model stage's fits.
+/// Measured (`cargo bench --bench vecchia`, release build, docs/model.md
+/// "Measured 2026-12-05: the accuracy target") on a regular field of 2,000
+/// and 4,000 plots, at the exact ML optimum, in the form the model path
+/// takes: at `m = 30` the Gaussian family without nugget (0.58 at 2,000) and
+/// the Matérn 1.5 family with a nugget (0.79 at 4,000) missed the 0.5
+/// log-likelihood target; at `m = 40` the exponential and Matérn 1.5
+/// families with and without nugget are within 0.15 and the Gaussian
+/// without nugget within 0.32, coefficients within 0.04 exact SEs, at about
+/// 1.1 to 2 times the cost per evaluation of `m = 30`. The spherical family
+/// and the Gaussian family with a nugget miss at every `m` measured (up to
+/// 60): `crate::model::likelihood_path` keeps them exact where memory allows.
+pub const DEFAULT_NEIGHBOURS: usize = 40;
 
 /// Observations from which the evaluation is spread over threads.
 const PARALLEL_FROM: usize = 512;

@@ -77,6 +77,19 @@
 //! is nearly determined by its neighbours so that its conditionals are lost
 //! to rounding (the response-level form is better there).
 //!
+//! **A share of the nugget in the field.** [`LatentVecchia::with_field_share`]
+//! moves a share `f` of the nugget from the pots into the latent field:
+//! the field's covariance is `(1 - eta) R + f eta I` at the positions and
+//! the pots keep `(1 - f) eta` of independent noise. When every pot stands
+//! at its own position `A = I` and `S` is unchanged, so this is the same
+//! model (with pots sharing a position it would not be: refused). The
+//! Vecchia approximation then applies to a field that is no longer nearly
+//! determined by its neighbours (the Gaussian family's trouble above);
+//! `f -> 1` approaches the response-level form, `f = 0` is the latent form.
+//! The conditionals use the kernel of that covariance directly; `W = Q +
+//! A'A / ((1 - f) eta)` and the Woodbury and determinant formulas above
+//! with `(1 - f) eta` for `eta`.
+//!
 //! A latent conditional variance whose square root is not above
 //! [`CORRELATION_MIN_DIAGONAL`] (a noise-free field nearly determined by its
 //! neighbours, e.g. the Gaussian family at long ranges) is refused with the
@@ -126,6 +139,9 @@ pub struct LatentVecchia {
     /// For each clique pair `(i, j <= i)` in rank order, its slot in `row_idx`.
     scatter: Vec<u32>,
     symbolic: SymbolicCholesky<usize>,
+    /// The share `f` of the nugget carried by the latent field
+    /// ([`LatentVecchia::with_field_share`]); 0 by default.
+    field_share: f64,
 }
 
 /// The distinct positions of `(x, y)` in order of first appearance and each
@@ -171,7 +187,11 @@ impl LatentVecchia {
 
     fn from_pots(pots: Conditioning, x: &[f64], y: &[f64], m: usize) -> Result<Self, LikelihoodError> {
         let (ux, uy, loc) = distinct(x, y);
-        let locs = if ux.len() == x.len() { pots.clone() } else { Conditioning::new(&ux, &uy, m)? };
+        let locs = if ux.len() == x.len() {
+            pots.clone()
+        } else {
+            Conditioning::with_rule(&ux, &uy, m, pots.rule())?
+        };
         Self::assemble(pots, locs, &loc)
     }
 
@@ -268,7 +288,42 @@ impl LatentVecchia {
             CholeskySymbolicParams::default(),
         )
         .map_err(|e| LikelihoodError::Invalid(format!("the sparse factorisation cannot be set up: {e:?}")))?;
-        Ok(LatentVecchia { pots, locs, loc_of, counts, clique, col_ptr, row_idx, scatter, symbolic })
+        Ok(LatentVecchia {
+            pots,
+            locs,
+            loc_of,
+            counts,
+            clique,
+            col_ptr,
+            row_idx,
+            scatter,
+            symbolic,
+            field_share: 0.0,
+        })
+    }
+
+    /// The same structure with a share `f` (`0 <= f < 1`) of the nugget
+    /// carried by the latent field (module docs, "A share of the nugget in
+    /// the field"). Refused when two pots share a position: there the
+    /// share would change the model (their errors would correlate).
+    pub fn with_field_share(mut self, f: f64) -> Result<LatentVecchia, LikelihoodError> {
+        if !(0.0..1.0).contains(&f) {
+            return Err(LikelihoodError::Invalid(format!(
+                "the field's share of the nugget must lie in [0, 1), got {f}"
+            )));
+        }
+        if f > 0.0 && self.locs.len() != self.pots.len() {
+            return Err(LikelihoodError::Invalid(
+                "a share of the nugget in the latent field needs every pot at its own position".into(),
+            ));
+        }
+        self.field_share = f;
+        Ok(self)
+    }
+
+    /// The share of the nugget carried by the latent field.
+    pub fn field_share(&self) -> f64 {
+        self.field_share
     }
 
     /// Number of pots.
@@ -302,6 +357,18 @@ impl LatentVecchia {
         (self.row_idx.len(), self.symbolic.len_val())
     }
 
+    /// The kernel of the latent field at `params`: the correlation without
+    /// nugget (scaled by `1 - eta` afterwards), or with a field share `f`
+    /// the covariance `(1 - eta) R + f eta I` itself.
+    fn field_kernel(&self, params: &CovParams) -> Kernel {
+        if self.field_share > 0.0 {
+            let s = 1.0 - params.eta + self.field_share * params.eta;
+            Kernel::scaled(&CovParams { eta: self.field_share * params.eta / s, ..*params }, s)
+        } else {
+            Kernel::correlation(&CovParams { eta: 0.0, ..*params })
+        }
+    }
+
     /// `U`'s columns (the clique coefficients `[1, -b_k] / sqrt(d_k)`, rank
     /// order) and `ln|Q| = -sum ln d_k` of the latent field at `params`.
     fn latent_factor(&self, params: &CovParams) -> Result<(Vec<f64>, f64), LikelihoodError> {
@@ -314,7 +381,7 @@ impl LatentVecchia {
         let chunk = nl.div_ceil(threads);
         let mut coef = vec![0.0; self.clique[nl]];
         let mut logd = vec![0.0; nl];
-        let kernel = Kernel::correlation(&CovParams { eta: 0.0, ..*params });
+        let kernel = self.field_kernel(params);
         let results: Vec<Result<(), LikelihoodError>> = std::thread::scope(|s| {
             let mut handles = Vec::new();
             let (mut rest_c, mut rest_l) = (coef.as_mut_slice(), logd.as_mut_slice());
@@ -354,7 +421,8 @@ impl LatentVecchia {
             let d =
                 conditional(cond, kernel, k, &mut work).map_err(|e| conditional_error(cond, params, e))?;
             let v = &work.b;
-            let dl = (1.0 - params.eta) * d;
+            // the kernel is the field's own covariance when it carries a share of the nugget
+            let dl = if self.field_share > 0.0 { d } else { (1.0 - params.eta) * d };
             let inv_sd = 1.0 / dl.sqrt();
             let c = &mut coef[self.clique[k] - base..self.clique[k + 1] - base];
             c[0] = inv_sd;
@@ -385,6 +453,8 @@ impl LatentVecchia {
         }
         let (n, nl) = (self.pots.len(), self.locs.len());
         let (coef, logdet_q) = self.latent_factor(params)?;
+        // the noise left to the pots when the field carries a share of the nugget
+        let eta = eta * (1.0 - self.field_share);
         // W = U U' + diag(counts) / eta, lower triangle
         let mut vals = vec![0.0; self.row_idx.len()];
         let mut t = 0;
@@ -420,7 +490,7 @@ impl LatentVecchia {
             .map_err(|_| LikelihoodError::NotPositiveDefinite {
                 family: params.family.name(),
                 range: params.range,
-                eta,
+                eta: params.eta,
                 location: FactorError::NotPositiveDefinite {
                     index: 0,
                     pivot: f64::NAN,

@@ -112,6 +112,43 @@ fn full_sets_equal_the_exact_likelihood() {
     }
 }
 
+/// A share of the nugget in the field leaves the model unchanged when every
+/// pot has its own position: with full sets the value is the exact dense
+/// likelihood for every share (and with `m = 10` it differs from the share
+/// 0 value, so the share is applied); refused for pots sharing a position
+/// and for a share outside `[0, 1)`.
+#[test]
+fn a_field_share_of_the_nugget_keeps_the_model() {
+    let truth = CovParams { family: Family::Gaussian, range: 0.4, eta: 0.3 };
+    let (x, y, xs, z) = field(90, 5, &truth, 0);
+    let dist = Distances::from_coords(&x, &y).unwrap();
+    for f in [0.0, 0.1, 0.5, 0.9] {
+        let lat = LatentVecchia::new(&x, &y, 89).unwrap().with_field_share(f).unwrap();
+        assert_eq!(lat.field_share(), f);
+        for family in families() {
+            let range = if family == Family::Gaussian { 0.3 } else { 0.7 };
+            for eta in [0.05, 0.4] {
+                let p = CovParams { family, range, eta };
+                for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
+                    let exact = profiled(&dist, &p, &xs, &z, method).unwrap();
+                    close(&profiled_latent(&lat, &p, &xs, &z, method).unwrap(), &exact, 1e-8);
+                }
+            }
+        }
+    }
+    let p = CovParams { family: Family::Exponential, range: 0.7, eta: 0.3 };
+    let none = LatentVecchia::new(&x, &y, 10).unwrap();
+    let half = LatentVecchia::new(&x, &y, 10).unwrap().with_field_share(0.5).unwrap();
+    let a = none.evaluate(&p, &xs, &z, LikelihoodKind::Ml, false).unwrap().loglik;
+    let b = half.evaluate(&p, &xs, &z, LikelihoodKind::Ml, false).unwrap().loglik;
+    assert!((a - b).abs() > 1e-6, "{a} {b}");
+    assert!(LatentVecchia::new(&x, &y, 10).unwrap().with_field_share(1.0).is_err());
+    assert!(LatentVecchia::new(&x, &y, 10).unwrap().with_field_share(-0.1).is_err());
+    let (x2, y2, _, _) = field(90, 5, &truth, 7);
+    assert!(LatentVecchia::new(&x2, &y2, 10).unwrap().with_field_share(0.2).is_err());
+    assert!(LatentVecchia::new(&x2, &y2, 10).unwrap().with_field_share(0.0).is_ok());
+}
+
 /// The error against the exact likelihood falls as the sets grow fourfold,
 /// with a nugget, for two families: summed over six parameter points around
 /// the truth (at a single point the signed error can cross zero between

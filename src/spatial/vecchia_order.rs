@@ -59,6 +59,26 @@ struct DistanceCache {
     values: Vec<f64>,
 }
 
+/// How the conditioning set of each observation is cut from its earlier
+/// neighbours ranked by distance.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SetRule {
+    /// The `m` nearest (ties at the `m`-th distance broken by rank).
+    Nearest,
+    /// The `m` nearest and every further earlier neighbour at the same
+    /// distance as the `m`-th (relative tolerance [`RING_TOLERANCE`]), up to
+    /// `cap` in all: on a regular layout the set then ends at the end of a
+    /// ring of equidistant neighbours instead of cutting through it.
+    WholeRings {
+        /// The largest set size.
+        cap: usize,
+    },
+}
+
+/// Distances within this relative tolerance of the `m`-th count as the
+/// same ring ([`SetRule::WholeRings`]).
+pub const RING_TOLERANCE: f64 = 1e-9;
+
 /// The max-min ordering and the conditioning sets of `n` observations.
 #[derive(Clone, Debug)]
 pub struct Conditioning {
@@ -71,8 +91,10 @@ pub struct Conditioning {
     /// Positions in rank order.
     x: Vec<f64>,
     y: Vec<f64>,
-    /// The largest set size asked for.
+    /// The set size asked for.
     m: usize,
+    /// How the sets were cut.
+    rule: SetRule,
     /// The neighbour distances, when kept (module docs).
     cache: Option<Arc<DistanceCache>>,
 }
@@ -166,9 +188,26 @@ impl Conditioning {
     /// The max-min ordering of `(x, y)` and the `m` nearest previously
     /// ordered observations of each (see the module docs). `m >= 1`.
     pub fn new(x: &[f64], y: &[f64], m: usize) -> Result<Conditioning, LikelihoodError> {
+        Self::with_rule(x, y, m, SetRule::Nearest)
+    }
+
+    /// [`Conditioning::new`] with the sets cut by `rule`. `m >= 1`, and a
+    /// ring cap at least `m`.
+    pub fn with_rule(x: &[f64], y: &[f64], m: usize, rule: SetRule) -> Result<Conditioning, LikelihoodError> {
         if m == 0 {
             return Err(LikelihoodError::Invalid("the number of neighbours must be at least 1".into()));
         }
+        let cap = match rule {
+            SetRule::Nearest => m,
+            SetRule::WholeRings { cap } if cap >= m => cap,
+            SetRule::WholeRings { cap } => {
+                return Err(LikelihoodError::Invalid(format!(
+                    "the ring cap ({cap}) must be at least the number of neighbours ({m})"
+                )));
+            }
+        };
+        // the search below must see every point within this factor of the m-th distance
+        let reach = if cap > m { 1.0 + RING_TOLERANCE } else { 1.0 };
         let order = maxmin_order(x, y)?;
         let n = x.len();
         let xs: Vec<f64> = order.iter().map(|&i| x[i]).collect();
@@ -202,21 +241,33 @@ impl Conditioning {
                         }
                     }
                     cand.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
-                    if kq >= n || (cand.len() >= want && cand[want - 1].0 < farthest * (1.0 - 1e-12)) {
+                    if kq >= n || (cand.len() >= want && cand[want - 1].0 * reach < farthest * (1.0 - 1e-12))
+                    {
                         break;
                     }
                     kq = (2 * kq).min(n);
                 }
             }
-            if cand.len() > want {
-                cand.select_nth_unstable_by(want, |a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
-                cand.truncate(want);
-            }
             cand.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+            if cand.len() > want {
+                let mut keep = want;
+                if want > 0 {
+                    let ring = cand[want - 1].0 * reach;
+                    while keep < cand.len().min(cap) && cand[keep].0 <= ring {
+                        keep += 1;
+                    }
+                }
+                cand.truncate(keep);
+            }
             sets.extend(cand.iter().map(|&(_, r)| r as u32));
             starts.push(sets.len());
         }
-        Ok(Conditioning { order, starts, sets, x: xs, y: ys, m, cache: None }.with_distance_cache())
+        Ok(Conditioning { order, starts, sets, x: xs, y: ys, m, rule, cache: None }.with_distance_cache())
+    }
+
+    /// How the sets were cut.
+    pub fn rule(&self) -> SetRule {
+        self.rule
     }
 
     /// Keep the neighbour distances when there are at most
@@ -299,7 +350,8 @@ impl Conditioning {
         let m = sets.iter().map(Vec::len).max().unwrap_or(0);
         let xs = order.iter().map(|&i| x[i]).collect();
         let ys = order.iter().map(|&i| y[i]).collect();
-        Ok(Conditioning { order, starts, sets: flat, x: xs, y: ys, m, cache: None }.with_distance_cache())
+        Ok(Conditioning { order, starts, sets: flat, x: xs, y: ys, m, rule: SetRule::Nearest, cache: None }
+            .with_distance_cache())
     }
 
     /// Number of observations.
@@ -312,7 +364,8 @@ impl Conditioning {
         self.order.is_empty()
     }
 
-    /// The largest number of neighbours of any observation.
+    /// The number of neighbours asked for (the largest set size, except
+    /// under [`SetRule::WholeRings`], whose sets may reach its cap).
     pub fn m(&self) -> usize {
         self.m
     }
@@ -413,6 +466,48 @@ mod tests {
         assert!(c.order()[last] == 300 || c.order()[last] == 17);
         let twin = c.order()[c.set(last)[0] as usize];
         assert!(twin == 17 || twin == 300);
+    }
+
+    /// Whole rings: on a regular grid every set is the `m` nearest of the
+    /// definition, extended by the earlier points at the `m`-th distance up
+    /// to the cap (brute force over all earlier ranks), and never cut
+    /// through a ring unless the cap does.
+    #[test]
+    fn whole_rings_complete_the_tie_ring_up_to_the_cap() {
+        let x: Vec<f64> = (0..600).map(|i| (i % 30) as f64 * 1.0).collect();
+        let y: Vec<f64> = (0..600).map(|i| (i / 30) as f64 * 1.6).collect();
+        let (m, cap) = (10, 14);
+        let c = Conditioning::with_rule(&x, &y, m, SetRule::WholeRings { cap }).unwrap();
+        let plain = Conditioning::new(&x, &y, m).unwrap();
+        assert_eq!(c.order(), plain.order());
+        assert_eq!(c.rule(), SetRule::WholeRings { cap });
+        let mut longer = 0;
+        for k in 0..c.len() {
+            let (xk, yk) = c.position(k);
+            let mut all: Vec<(f64, usize)> = (0..k)
+                .map(|r| {
+                    let (xr, yr) = c.position(r);
+                    (distance(xk, yk, xr, yr), r)
+                })
+                .collect();
+            all.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+            let mut keep = m.min(k);
+            if keep > 0 {
+                let ring = all[keep - 1].0 * (1.0 + RING_TOLERANCE);
+                while keep < all.len().min(cap) && all[keep].0 <= ring {
+                    keep += 1;
+                }
+            }
+            let want: Vec<u32> = all[..keep].iter().map(|&(_, r)| r as u32).collect();
+            assert_eq!(c.set(k), want.as_slice(), "rank {k}");
+            assert_eq!(&c.set(k)[..m.min(k)], plain.set(k), "rank {k}: the nearest come first");
+            longer += usize::from(keep > m.min(k));
+            if keep < cap && keep < all.len() && keep > 0 {
+                assert!(all[keep].0 > all[keep - 1].0 * (1.0 + RING_TOLERANCE), "rank {k} cuts a ring");
+            }
+        }
+        assert!(longer > 100, "only {longer} sets were extended: the test does not see rings");
+        assert!(Conditioning::with_rule(&x, &y, m, SetRule::WholeRings { cap: m - 1 }).is_err());
     }
 
     #[test]
