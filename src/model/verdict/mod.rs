@@ -439,7 +439,7 @@ pub fn analyse_with(
         notes.insert(
             0,
             format!(
-                "The correlated fits use {} ({n} pots; `[model] likelihood = \"{}\"`, exact up to {} pots): an approximation whose log-likelihoods, estimates, SEs and tests all come from it. {}",
+                "The correlated fits use {} ({n} pots; `[model] likelihood = \"{}\"`, exact up to {} pots): each approximated fit's log-likelihood, estimates, SEs and tests come from the approximation (`comparison.csv` names the likelihood of every fit). {}",
                 path.likelihood().describe(),
                 spec.likelihood.name(),
                 crate::model::likelihood_path::EXACT_UP_TO,
