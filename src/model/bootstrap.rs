@@ -290,6 +290,17 @@ mod tests {
     use crate::spatial::correlation::Family;
     use statrs::distribution::{ChiSquared, ContinuousCDF};
 
+    /// The committed small_sample data and its designs without and with the
+    /// driver `draught` (line as factor).
+    fn small_sample_pair() -> (crate::model::data::ModelData, Design, Design) {
+        let data = model_data("small_sample.csv", "trait", &["line"], &["draught"], Some(("x", "y")), &[]);
+        let spec =
+            |d: Vec<String>| DesignSpec { factors: vec!["line".into()], drivers: d, ..Default::default() };
+        let d0 = Design::build(&data, &spec(vec![])).unwrap();
+        let d1 = Design::build(&data, &spec(vec!["draught".into()])).unwrap();
+        (data, d0, d1)
+    }
+
     /// Under independent errors the LRT of one added column has an exact
     /// distribution: `n ln(1 + F/(n - p1))` with `F ~ F(1, n - p1)`. The
     /// bootstrap p-value of the observed statistic on the committed
@@ -297,11 +308,7 @@ mod tests {
     /// 3 Monte Carlo SEs, and the same seed gives the same answer.
     #[test]
     fn bootstrap_p_agrees_with_the_exact_independent_lrt() {
-        let data = model_data("small_sample.csv", "trait", &["line"], &["draught"], Some(("x", "y")), &[]);
-        let spec =
-            |d: Vec<String>| DesignSpec { factors: vec!["line".into()], drivers: d, ..Default::default() };
-        let d0 = Design::build(&data, &spec(vec![])).unwrap();
-        let d1 = Design::build(&data, &spec(vec!["draught".into()])).unwrap();
+        let (data, d0, d1) = small_sample_pair();
         let f0 = fit_independent(&d0, &data.response, LikelihoodKind::Ml).unwrap();
         let f1 = fit_independent(&d1, &data.response, LikelihoodKind::Ml).unwrap();
         let stat = 2.0 * (f1.loglik - f0.loglik);
@@ -321,11 +328,7 @@ mod tests {
     /// reports a p-value in (0, 1] with its Monte Carlo SE.
     #[test]
     fn bootstrap_runs_under_a_correlated_null() {
-        let data = model_data("small_sample.csv", "trait", &["line"], &["draught"], Some(("x", "y")), &[]);
-        let spec =
-            |d: Vec<String>| DesignSpec { factors: vec!["line".into()], drivers: d, ..Default::default() };
-        let d0 = Design::build(&data, &spec(vec![])).unwrap();
-        let d1 = Design::build(&data, &spec(vec!["draught".into()])).unwrap();
+        let (data, d0, d1) = small_sample_pair();
         let dist = Distances::from_coords(&data.x, &data.y).unwrap();
         let fit = |d: &Design| {
             fit_correlated(
@@ -385,11 +388,7 @@ mod tests {
     /// equals the fixed-B test.
     #[test]
     fn early_stopping_keeps_the_decision() {
-        let data = model_data("small_sample.csv", "trait", &["line"], &["draught"], Some(("x", "y")), &[]);
-        let spec =
-            |d: Vec<String>| DesignSpec { factors: vec!["line".into()], drivers: d, ..Default::default() };
-        let d0 = Design::build(&data, &spec(vec![])).unwrap();
-        let d1 = Design::build(&data, &spec(vec!["draught".into()])).unwrap();
+        let (data, d0, d1) = small_sample_pair();
         let f0 = fit_independent(&d0, &data.response, LikelihoodKind::Ml).unwrap();
         let dist = Distances::from_coords(&data.x, &data.y).unwrap();
         let n = data.response.len() as f64;
