@@ -581,17 +581,26 @@ mod tests {
         assert_eq!(Setting::parse("auto"), Ok(Setting::Auto));
     }
 
-    /// With `m = n - 1` the neighbours path's evaluation and whitened columns
-    /// equal the exact path's (the Vecchia factorisation is then exact), and
-    /// the whitened columns are returned in the pots' own order.
-    #[test]
-    fn full_neighbours_equal_the_exact_path() {
+    /// 40 pots on a slightly perturbed 8 x 5 grid: positions, columns
+    /// `[1, a smooth covariate]`, a response and their distances.
+    #[allow(clippy::type_complexity)]
+    fn forty_pots() -> (Vec<f64>, Vec<f64>, Vec<Vec<f64>>, Vec<f64>, Distances) {
         let n = 40;
         let x: Vec<f64> = (0..n).map(|i| (i % 8) as f64 * 0.5 + 0.01 * (i as f64).sin()).collect();
         let y: Vec<f64> = (0..n).map(|i| (i / 8) as f64 * 0.4).collect();
         let cols = vec![vec![1.0; n], (0..n).map(|i| (i as f64 * 0.37).cos()).collect::<Vec<_>>()];
         let z: Vec<f64> = (0..n).map(|i| (i as f64 * 0.91).sin() + 0.1 * i as f64).collect();
         let dist = Distances::from_coords(&x, &y).unwrap();
+        (x, y, cols, z, dist)
+    }
+
+    /// With `m = n - 1` the neighbours path's evaluation and whitened columns
+    /// equal the exact path's (the Vecchia factorisation is then exact), and
+    /// the whitened columns are returned in the pots' own order.
+    #[test]
+    fn full_neighbours_equal_the_exact_path() {
+        let (x, y, cols, z, dist) = forty_pots();
+        let n = x.len();
         let params =
             CovParams { family: crate::spatial::correlation::Family::Exponential, range: 0.8, eta: 0.2 };
         let near = LikelihoodPath::neighbours(&x, &y, n - 1).unwrap();
@@ -706,12 +715,7 @@ mod tests {
     #[test]
     fn kept_families_are_fitted_exactly() {
         use crate::spatial::correlation::Family;
-        let n = 40;
-        let x: Vec<f64> = (0..n).map(|i| (i % 8) as f64 * 0.5 + 0.01 * (i as f64).sin()).collect();
-        let y: Vec<f64> = (0..n).map(|i| (i / 8) as f64 * 0.4).collect();
-        let cols = vec![vec![1.0; n], (0..n).map(|i| (i as f64 * 0.37).cos()).collect::<Vec<_>>()];
-        let z: Vec<f64> = (0..n).map(|i| (i as f64 * 0.91).sin() + 0.1 * i as f64).collect();
-        let dist = Distances::from_coords(&x, &y).unwrap();
+        let (x, y, cols, z, dist) = forty_pots();
         let kept = LikelihoodPath::neighbours(&x, &y, 6).unwrap().keeping_exact(true);
         let plain = LikelihoodPath::neighbours(&x, &y, 6).unwrap();
         let exact = LikelihoodPath::exact();
