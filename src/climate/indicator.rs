@@ -174,13 +174,26 @@ pub fn daily_values_expected(
     se: Option<&[f64]>,
     min_coverage: f64,
 ) -> Vec<DayValue> {
+    daily_values_expected_over(indicator, calendar, series, se, min_coverage, 0..calendar.day_steps.len())
+}
+
+/// [`daily_values_expected`] for the local days `days` only (element `k` is
+/// day `days.start + k`): a window's indicator needs no other day.
+pub fn daily_values_expected_over(
+    indicator: &Indicator,
+    calendar: &Calendar,
+    series: &LocationSeries,
+    se: Option<&[f64]>,
+    min_coverage: f64,
+    days: Range<usize>,
+) -> Vec<DayValue> {
     let values = series.variable(indicator.variable);
     let se = se.filter(|_| indicator.variable == Variable::Temperature);
     let step_h = calendar.step_hours();
-    calendar
-        .day_steps
+    let days = days.start.min(calendar.day_steps.len())..days.end.min(calendar.day_steps.len());
+    calendar.day_steps[days.clone()]
         .iter()
-        .zip(&calendar.expected_steps)
+        .zip(&calendar.expected_steps[days])
         .map(|(range, &expected)| {
             day_value(indicator, calendar, &values, se, range.clone(), expected, step_h, min_coverage)
         })

@@ -38,7 +38,7 @@ pub use config::{ClimateConfig, Indicator};
 pub use error::{ClimateError, Result};
 pub use indicator::{
     Combine, DayValue, LocationSeries, WindowValue, combine_own_variance, combine_window, daily_values,
-    daily_values_expected,
+    daily_values_expected, daily_values_expected_over,
 };
 pub use regular::{SensorGrid, StepMatrix};
 pub use stage::{ClimateRun, compute, run};

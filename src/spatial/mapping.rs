@@ -34,18 +34,29 @@ pub struct MapSummary {
 pub fn sensor_sets(series: &DMatrix<f64>) -> Vec<(Vec<usize>, Vec<usize>)> {
     let mut map: BTreeMap<Vec<usize>, usize> = BTreeMap::new();
     let mut out: Vec<(Vec<usize>, Vec<usize>)> = Vec::new();
+    // The step's set is built in one buffer and looked up by reference; a
+    // run of steps with the same set (the usual case) skips the lookup.
+    let mut set: Vec<usize> = Vec::with_capacity(series.ncols());
+    let mut last: Option<usize> = None;
     for t in 0..series.nrows() {
-        let set: Vec<usize> = (0..series.ncols()).filter(|&j| series[(t, j)].is_finite()).collect();
+        set.clear();
+        set.extend((0..series.ncols()).filter(|&j| series[(t, j)].is_finite()));
         if set.is_empty() {
             continue;
         }
-        match map.get(&set) {
-            Some(&k) => out[k].1.push(t),
-            None => {
-                map.insert(set.clone(), out.len());
-                out.push((set, vec![t]));
-            }
-        }
+        let k = match last.filter(|&k| out[k].0 == set) {
+            Some(k) => k,
+            None => match map.get(set.as_slice()) {
+                Some(&k) => k,
+                None => {
+                    map.insert(set.clone(), out.len());
+                    out.push((set.clone(), Vec::new()));
+                    out.len() - 1
+                }
+            },
+        };
+        out[k].1.push(t);
+        last = Some(k);
     }
     out
 }
@@ -93,21 +104,40 @@ where
         systems.push(sys);
         data.push(Mat::from_fn(ts.len(), set.len(), |r, c| series[(ts[r], set[c])]));
     }
-    let block = block.max(1);
+    let block = block.max(1).min(targets.len().max(1));
     let kriging = spec.method.is_kriging();
+    // One set of buffers for every block: a fresh `steps x block` matrix per
+    // block and per sensor set costs more in the kernel's page zeroing than
+    // the products themselves (measured 2026-12-05: a quarter of the demo's
+    // mapping time).
+    let mut pred = Mat::<f64>::zeros(steps, block);
+    let mut se = kriging.then(|| Mat::<f64>::zeros(steps, block));
+    let longest = sets.iter().map(|s| s.1.len()).max().unwrap_or(0);
+    let mut prod = Mat::<f64>::zeros(longest, block);
     let mut start = 0;
     while start < targets.len() {
         let end = (start + block).min(targets.len());
         let m = end - start;
-        let mut pred = Mat::<f64>::full(steps, m, f64::NAN);
-        let mut se = kriging.then(|| Mat::<f64>::full(steps, m, f64::NAN));
+        pred.as_mut().fill(f64::NAN);
+        if let Some(se) = se.as_mut() {
+            se.as_mut().fill(f64::NAN);
+        }
         for (k, sys) in systems.iter().enumerate() {
             let w = sys.weights(targets, start..end, spec)?;
-            let prod = &data[k] * &w.lambda;
             let ts = &sets[k].1;
+            let prod_block = prod.as_mut().submatrix_mut(0, 0, ts.len(), m);
+            faer::linalg::matmul::matmul(
+                prod_block,
+                faer::Accum::Replace,
+                data[k].as_ref(),
+                w.lambda.as_ref(),
+                1.0,
+                faer::Par::Seq,
+            );
             for c in 0..m {
+                let column = pred.col_as_slice_mut(c);
                 for (r, &t) in ts.iter().enumerate() {
-                    pred[(t, c)] = prod[(r, c)] + w.offset[c];
+                    column[t] = prod[(r, c)] + w.offset[c];
                 }
                 if let (Some(se), Some(var)) = (se.as_mut(), w.variance.as_ref()) {
                     let s = var[c].sqrt();

@@ -10,7 +10,7 @@ use super::kriging::{Drift, Spec};
 use super::mapping::{map_series, map_summary};
 use super::stage::{OpeningDrift, VariableMap, base_variables, matrix_of};
 use crate::climate::{
-    ClimateRun, LocationSeries, combine_own_variance, combine_window, daily_values_expected,
+    ClimateRun, LocationSeries, combine_own_variance, combine_window, daily_values_expected_over,
 };
 use nalgebra::DMatrix;
 
@@ -42,11 +42,12 @@ pub(super) fn location_value(
     min_cov: f64,
     window: std::ops::Range<usize>,
 ) -> Option<(f64, f64)> {
-    let days = daily_values_expected(ind, cal, series, t_se, min_cov);
+    // Only the window's days are computed; their indices are the window's.
+    let days = daily_values_expected_over(ind, cal, series, t_se, min_cov, window.clone());
     let daily: Vec<Option<f64>> = days.iter().map(|d| d.value).collect();
     let how = ind.statistic.combine();
-    let value = combine_window(&daily, window.clone(), how).value?;
-    Some((value, combine_own_variance(&days, window, how)))
+    let value = combine_window(&daily, 0..window.len(), how).value?;
+    Some((value, combine_own_variance(&days, 0..window.len(), how)))
 }
 
 /// One kriged variable at one location: its name, mapped series and per-step SEs.

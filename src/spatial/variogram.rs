@@ -9,7 +9,7 @@
 
 use super::correlation::Family;
 use super::error::{Result, SpatialError};
-use super::factor::{aliased_columns, least_squares};
+use super::factor::RANK_TOLERANCE;
 use super::geometry::{PointTree, Points};
 use super::optimise::{Budget, Simplex, Stop, nelder_mead_restarted};
 use nalgebra::DMatrix;
@@ -338,9 +338,11 @@ pub fn pooled(
     let mut nsteps = vec![0usize; nb];
     let mut resid = vec![f64::NAN; n];
     let mut acc = vec![BinAcc::default(); nb];
+    let mut trend = None;
+    let mut z = vec![f64::NAN; n];
     for t in 0..series.nrows() {
-        let z: Vec<f64> = (0..n).map(|j| series[(t, j)]).collect();
-        if !anomalies(points, &z, detrend, &mut resid) {
+        z.iter_mut().enumerate().for_each(|(j, v)| *v = series[(t, j)]);
+        if !anomalies(points, &z, detrend, &mut trend, &mut resid) {
             continue;
         }
         acc.iter_mut().for_each(|a| *a = BinAcc::default());
@@ -381,48 +383,89 @@ pub fn pooled(
     Ok(Empirical { bins: out, estimator, direction })
 }
 
+/// The trend's columns over one set of reporting sensors as an orthonormal
+/// basis (modified Gram-Schmidt, twice: Björck 1996, *Numerical Methods for
+/// Least Squares Problems*, §2.4.5), each vector one value per sensor of the
+/// set. A column aliased with the ones before it (a drift constant over the
+/// reporting sensors; [`RANK_TOLERANCE`]) adds nothing to the span and is
+/// left out, so the residuals do not change.
+struct TrendBasis {
+    set: Vec<usize>,
+    basis: Vec<Vec<f64>>,
+}
+
+impl TrendBasis {
+    fn new(points: &Points, detrend: &Detrend, set: Vec<usize>) -> Self {
+        let column = |c: usize, j: usize| match (detrend, c) {
+            (_, 0) => 1.0,
+            (Detrend::Plane, 1) => points.x[j],
+            (Detrend::Plane, _) => points.y[j],
+            (Detrend::Drift(v), _) => v[j],
+            (Detrend::Mean, _) => unreachable!("the mean has one column"),
+        };
+        let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(a, b)| a * b).sum::<f64>();
+        let mut basis: Vec<Vec<f64>> = Vec::with_capacity(detrend.columns());
+        for c in 0..detrend.columns() {
+            let mut v: Vec<f64> = set.iter().map(|&j| column(c, j)).collect();
+            let norm0 = dot(&v, &v).sqrt();
+            for _ in 0..2 {
+                for q in &basis {
+                    let d = dot(q, &v);
+                    v.iter_mut().zip(q).for_each(|(v, q)| *v -= d * q);
+                }
+            }
+            let rem = dot(&v, &v).sqrt();
+            if norm0 == 0.0 || rem <= RANK_TOLERANCE * norm0 {
+                continue;
+            }
+            v.iter_mut().for_each(|v| *v /= rem);
+            basis.push(v);
+        }
+        TrendBasis { set, basis }
+    }
+}
+
+impl Detrend {
+    /// The trend's columns (coefficients) before any is found aliased.
+    fn columns(&self) -> usize {
+        match self {
+            Detrend::Mean => 1,
+            Detrend::Plane => 3,
+            Detrend::Drift(_) => 2,
+        }
+    }
+}
+
 /// Residuals of one step from the trend (least squares on the reporting
-/// sensors); returns false when too few sensors report.
-fn anomalies(points: &Points, z: &[f64], detrend: &Detrend, out: &mut [f64]) -> bool {
-    let idx: Vec<usize> = (0..z.len()).filter(|&j| z[j].is_finite()).collect();
-    let p = match detrend {
-        Detrend::Mean => 1,
-        Detrend::Plane => 3,
-        Detrend::Drift(_) => 2,
-    };
-    if idx.len() < p + 2 {
+/// sensors: `z` minus its projection on the trend's span); false when too
+/// few sensors report. The basis of the last set of reporting sensors is
+/// kept in `cache`, so a run of steps with the same sensors projects without
+/// a factorisation (cost O(n p) per step).
+fn anomalies(
+    points: &Points,
+    z: &[f64],
+    detrend: &Detrend,
+    cache: &mut Option<TrendBasis>,
+    out: &mut [f64],
+) -> bool {
+    let reporting = |j: &usize| z[*j].is_finite();
+    let count = (0..z.len()).filter(reporting).count();
+    if count < detrend.columns() + 2 {
         return false;
     }
+    let same = cache.as_ref().is_some_and(|c| c.set.len() == count && c.set.iter().all(reporting));
+    if !same {
+        *cache = Some(TrendBasis::new(points, detrend, (0..z.len()).filter(reporting).collect()));
+    }
+    let trend = cache.as_ref().expect("set above");
     out.iter_mut().for_each(|r| *r = f64::NAN);
-    let f = |j: usize| -> Vec<f64> {
-        match detrend {
-            Detrend::Mean => vec![1.0],
-            Detrend::Plane => vec![1.0, points.x[j], points.y[j]],
-            Detrend::Drift(v) => vec![1.0, v[j]],
-        }
-    };
-    let mut cols: Vec<Vec<f64>> = (0..p).map(|c| idx.iter().map(|&j| f(j)[c]).collect()).collect();
-    let zv: Vec<f64> = idx.iter().map(|&j| z[j]).collect();
-    // The residuals are `z` minus its projection on the span of the columns,
-    // so a column aliased with the ones before it (a drift constant over the
-    // reporting sensors) is dropped without changing them.
-    let fit = match least_squares(&cols, &zv) {
-        Ok(fit) => fit,
-        Err(_) => {
-            let aliased = aliased_columns(&cols);
-            let mut k = 0;
-            cols.retain(|_| {
-                k += 1;
-                !aliased.contains(&(k - 1))
-            });
-            match least_squares(&cols, &zv) {
-                Ok(fit) => fit,
-                Err(_) => return false,
-            }
-        }
-    };
-    for (r, &j) in idx.iter().enumerate() {
-        out[j] = z[j] - cols.iter().zip(&fit.beta).map(|(c, b)| c[r] * b).sum::<f64>();
+    let mut resid: Vec<f64> = trend.set.iter().map(|&j| z[j]).collect();
+    for q in &trend.basis {
+        let d = q.iter().zip(&resid).map(|(q, r)| q * r).sum::<f64>();
+        resid.iter_mut().zip(q).for_each(|(r, q)| *r -= d * q);
+    }
+    for (r, &j) in resid.iter().zip(&trend.set) {
+        out[j] = *r;
     }
     true
 }
