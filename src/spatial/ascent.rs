@@ -420,7 +420,7 @@ fn ascend(
     let dim = bounds.dim;
     let mut value = |t: &[f64; 2]| point(dist, &params_of(family, t, dim), x, y, method);
     let mut score = |pt: Point| scores(dist, pt, x, method);
-    let run = newton(&mut value, &mut score, t0, bounds)?;
+    let run = newton(&mut value, &mut score, t0, bounds, opts.decrement_tol)?;
     let mut a = Ascent {
         end: (run.t, run.best.prof.loglik),
         best: run.best.prof,

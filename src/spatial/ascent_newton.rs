@@ -9,8 +9,6 @@ use crate::spatial::likelihood::{CovParams, LikelihoodError};
 
 /// Newton steps per run before the simplex polish.
 const MAX_STEPS: usize = 40;
-/// Stop when the Newton decrement `g' H^-1 g` falls below this.
-const DECREMENT_TOL: f64 = 1e-10;
 
 /// Box of the search: `ln range` and `eta` bounds.
 #[derive(Clone, Copy, Debug)]
@@ -51,15 +49,17 @@ const NUGGET_SHIFT: f64 = 0.01;
 
 /// Newton ascent from `t0` (see the module docs), searching the nugget
 /// share in `u = ln(eta + NUGGET_SHIFT)`; `eval` takes and the result
-/// reports `(ln range, eta)`.
+/// reports `(ln range, eta)`. The ascent stops when the Newton decrement
+/// `g' H^-1 g` falls below `tol` ([`crate::spatial::likelihood::SearchOptions::decrement_tol`]).
 pub(in crate::spatial) fn newton<P: Valued>(
     value: &mut dyn FnMut(&[f64; 2]) -> Result<P, LikelihoodError>,
     score: &mut dyn FnMut(P) -> Result<Scored, LikelihoodError>,
     t0: [f64; 2],
     bounds: &Bounds,
+    tol: f64,
 ) -> Result<Run, LikelihoodError> {
     if bounds.dim == 1 {
-        return newton_in(value, score, t0, bounds);
+        return newton_in(value, score, t0, bounds, tol);
     }
     let to_u = |e: f64| (e + NUGGET_SHIFT).ln();
     let inner =
@@ -85,7 +85,7 @@ pub(in crate::spatial) fn newton<P: Valued>(
         rescale(&mut sc, j);
         Ok(sc)
     };
-    let mut run = newton_in(&mut value_u, &mut score_u, [t0[0], to_u(t0[1])], &inner)?;
+    let mut run = newton_in(&mut value_u, &mut score_u, [t0[0], to_u(t0[1])], &inner, tol)?;
     run.t[1] = to_eta(run.t[1]);
     rescale(&mut run.best, 1.0 / (run.t[1] + NUGGET_SHIFT));
     Ok(run)
@@ -104,6 +104,7 @@ fn newton_in<P: Valued>(
     score: &mut dyn FnMut(P) -> Result<Scored, LikelihoodError>,
     t0: [f64; 2],
     bounds: &Bounds,
+    tol: f64,
 ) -> Result<Run, LikelihoodError> {
     let dim = bounds.dim;
     let mut t = t0;
@@ -170,7 +171,7 @@ fn newton_in<P: Valued>(
             }
         }
         let decrement: f64 = free.iter().map(|&k| step[k] * g[k]).sum();
-        if solved && decrement.abs() < DECREMENT_TOL {
+        if solved && decrement.abs() < tol {
             converged = true;
             break;
         }

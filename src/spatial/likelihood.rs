@@ -356,6 +356,11 @@ pub struct SearchOptions {
     pub f_tol: f64,
     /// Convergence: spread of the simplex vertices in (ln range, eta) (default 1e-5).
     pub x_tol: f64,
+    /// Convergence of the Newton steps: the Newton decrement `g' H^-1 g`,
+    /// twice the gain in log-likelihood the quadratic model still predicts
+    /// (default 1e-10; Boyd & Vandenberghe 2004, *Convex Optimization*,
+    /// §9.5.1).
+    pub decrement_tol: f64,
 }
 
 impl Default for SearchOptions {
@@ -369,6 +374,7 @@ impl Default for SearchOptions {
             max_evals: 400,
             f_tol: 1e-8,
             x_tol: 1e-5,
+            decrement_tol: 1e-10,
         }
     }
 }

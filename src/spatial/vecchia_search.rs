@@ -170,7 +170,9 @@ fn refine(
     let mut ends: Vec<([f64; 2], f64)> = Vec::new();
     let mut eval = |t: &[f64; 2]| scored_vecchia(cond, &params_of(family, t, dim), x, y, method, dim);
     for t0 in starts {
-        let Ok(run) = newton(&mut eval, &mut |s: Scored| Ok(s), *t0, bounds) else { continue };
+        let Ok(run) = newton(&mut eval, &mut |s: Scored| Ok(s), *t0, bounds, opts.decrement_tol) else {
+            continue;
+        };
         evaluations += run.evaluations;
         let mut end = (run.t, run.best.prof.loglik);
         if run.best.prof.loglik > best.loglik {
