@@ -43,13 +43,6 @@
 //! correlated ML searches warm-started (a few dozen factorisations each).
 
 use super::error::{ModelError, Result};
-
-/// The Newton decrement at which a bootstrap refit stops (module doc).
-pub const REFIT_DECREMENT: f64 = 1e-5;
-
-/// A replicate's statistic this close below the observed one counts as
-/// reaching it: twice the refits' tolerance ([`REFIT_DECREMENT`]).
-pub const TIE: f64 = 2.0 * REFIT_DECREMENT;
 use super::gls::{Errors, Fit, fit_independent};
 use crate::model::design::Design;
 use crate::spatial::ascent::maximise_from;
@@ -57,6 +50,13 @@ use crate::spatial::likelihood::{CovParams, Distances, LikelihoodKind, SearchOpt
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
 use serde::Serialize;
+
+/// The Newton decrement at which a bootstrap refit stops (module doc).
+pub const REFIT_DECREMENT: f64 = 1e-5;
+
+/// A replicate's statistic this close below the observed one counts as
+/// reaching it: twice the refits' tolerance ([`REFIT_DECREMENT`]).
+pub const TIE: f64 = 2.0 * REFIT_DECREMENT;
 
 /// The bootstrap of one likelihood-ratio test.
 #[derive(Clone, Debug, PartialEq, Serialize)]
