@@ -50,45 +50,27 @@ use potclim::model::likelihood_path::{LikelihoodPath, latent_form};
 use potclim::spatial::ascent::maximise_shared;
 use potclim::spatial::correlation::Family;
 use potclim::spatial::likelihood::{
-    CovParams, Distances, LikelihoodKind, Maximum, Profiled, SearchOptions, cholesky, profiled,
+    CovParams, Distances, LikelihoodKind, Maximum, SearchOptions, cholesky, profiled,
 };
 use potclim::spatial::vecchia::{Conditioning, DEFAULT_NEIGHBOURS, SetRule, profiled_vecchia};
 use potclim::spatial::vecchia_latent::{LatentVecchia, profiled_latent};
 use potclim::spatial::vecchia_search::{maximise_latent_shared, maximise_vecchia_shared};
-use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
-use rand_distr::{Distribution, StandardNormal};
 use std::io::Write;
 use std::time::Instant;
 
 #[path = "common/reference.rs"]
 mod reference;
-use reference::{median, numpy_cholesky};
+use reference::numpy_cholesky;
+#[path = "common/plots.rs"]
+mod plots;
+use plots::{coef_gap, layout, response, time};
 
 /// Plots, columns `[1, driver 1, driver 2]` and the response.
 fn plots(n: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<Vec<f64>>, Vec<f64>) {
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let x: Vec<f64> = (0..n).map(|i| (i % 50) as f64 * 1.0).collect();
-    let y: Vec<f64> = (0..n).map(|i| (i / 50) as f64 * 1.6).collect();
-    let d1: Vec<f64> = (0..n).map(|i| 0.05 * x[i] + (y[i] / 8.0).sin()).collect();
-    let d2: Vec<f64> =
-        (0..n).map(|i| (x[i] / 10.0).cos() + 0.02 * y[i] + 0.3 * (i % 7) as f64 / 7.0).collect();
+    let (x, y, cols) = layout(n);
     let dist = Distances::from_coords(&x, &y).unwrap();
-    let truth = CovParams { family: Family::Matern { nu: 1.5 }, range: 4.0, eta: 0.25 };
-    let l = cholesky(&dist, &truth).unwrap();
-    let e: Vec<f64> = (0..n).map(|_| StandardNormal.sample(&mut rng)).collect();
-    let z: Vec<f64> = (0..n)
-        .map(|i| 10.0 + 0.8 * d1[i] - 0.5 * d2[i] + (0..=i).map(|j| l[(i, j)] * e[j]).sum::<f64>())
-        .collect();
-    (x, y, vec![vec![1.0; n], d1, d2], z)
-}
-
-/// The largest driver-coefficient difference in units of the exact SE
-/// `sqrt(sigma2 (X'V^-1 X)^-1_jj)`.
-fn coef_gap(a: &[f64], exact: &Profiled) -> f64 {
-    (1..exact.p)
-        .map(|j| (a[j] - exact.beta[j]).abs() / (exact.sigma2 * exact.xtvx_inv[j * exact.p + j]).sqrt())
-        .fold(0.0, f64::max)
+    let z = response(seed, &dist, &cols);
+    (x, y, cols, z)
 }
 
 fn list(var: &str, default: &[usize]) -> Vec<usize> {
@@ -96,18 +78,6 @@ fn list(var: &str, default: &[usize]) -> Vec<usize> {
         Ok(v) => v.split(',').filter_map(|t| t.trim().parse().ok()).collect(),
         Err(_) => default.to_vec(),
     }
-}
-
-fn time<T>(reps: usize, mut f: impl FnMut() -> T) -> f64 {
-    median(
-        (0..reps)
-            .map(|_| {
-                let t = Instant::now();
-                std::hint::black_box(f());
-                t.elapsed().as_secs_f64()
-            })
-            .collect(),
-    )
 }
 
 /// A set rule's label and rule at `m`.

@@ -48,57 +48,19 @@ use std::time::Instant;
 
 #[path = "common/reference.rs"]
 mod reference;
-use reference::{median, numpy_cholesky};
+use reference::numpy_cholesky;
+#[path = "common/plots.rs"]
+mod plots;
+use plots::{coef_gap, layout, response, time};
 
 const MS: [usize; 4] = [10, 20, 30, 40];
 const OWN_M: usize = 30;
-
-/// Plot positions and columns `[1, driver 1, driver 2]` (as benches/vecchia.rs).
-fn layout(n: usize) -> (Vec<f64>, Vec<f64>, Vec<Vec<f64>>) {
-    let x: Vec<f64> = (0..n).map(|i| (i % 50) as f64 * 1.0).collect();
-    let y: Vec<f64> = (0..n).map(|i| (i / 50) as f64 * 1.6).collect();
-    let d1: Vec<f64> = (0..n).map(|i| 0.05 * x[i] + (y[i] / 8.0).sin()).collect();
-    let d2: Vec<f64> =
-        (0..n).map(|i| (x[i] / 10.0).cos() + 0.02 * y[i] + 0.3 * (i % 7) as f64 / 7.0).collect();
-    (x, y, vec![vec![1.0; n], d1, d2])
-}
-
-/// The response of benches/vecchia.rs: drivers plus a Matérn 1.5 field with nugget.
-fn response(seed: u64, dist: &Distances, cols: &[Vec<f64>]) -> Vec<f64> {
-    let n = dist.len();
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let truth = CovParams { family: Family::Matern { nu: 1.5 }, range: 4.0, eta: 0.25 };
-    let l = cholesky(dist, &truth).unwrap();
-    let e: Vec<f64> = (0..n).map(|_| StandardNormal.sample(&mut rng)).collect();
-    (0..n)
-        .map(|i| 10.0 + 0.8 * cols[1][i] - 0.5 * cols[2][i] + (0..=i).map(|j| l[(i, j)] * e[j]).sum::<f64>())
-        .collect()
-}
-
-/// The largest driver-coefficient difference in units of the exact SE.
-fn coef_gap(a: &[f64], exact: &Profiled) -> f64 {
-    (1..exact.p)
-        .map(|j| (a[j] - exact.beta[j]).abs() / (exact.sigma2 * exact.xtvx_inv[j * exact.p + j]).sqrt())
-        .fold(0.0, f64::max)
-}
 
 fn cell(r: Result<Profiled, impl std::fmt::Display>, ex: &Profiled) -> String {
     match r {
         Ok(v) => format!(" {:>8.4} {:>6.3}", (v.loglik - ex.loglik).abs(), coef_gap(&v.beta, ex)),
         Err(_) => format!(" {:>8} {:>6}", "fails", "-"),
     }
-}
-
-fn time<T>(reps: usize, mut f: impl FnMut() -> T) -> f64 {
-    median(
-        (0..reps)
-            .map(|_| {
-                let t = Instant::now();
-                std::hint::black_box(f());
-                t.elapsed().as_secs_f64()
-            })
-            .collect(),
-    )
 }
 
 fn large(n: usize) {
