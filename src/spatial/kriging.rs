@@ -707,6 +707,20 @@ mod tests {
         VariogramModel { family, nugget, partial_sill: psill, range }
     }
 
+    /// The fixture's exponential kriging model.
+    fn fixture_model(f: &serde_json::Value) -> VariogramModel {
+        let mo = &f["kriging_model"];
+        let num = |k: &str| mo[k].as_f64().unwrap();
+        model(Family::Exponential, num("nugget"), num("partial_sill"), num("range"))
+    }
+
+    /// A fixture's JSON array of `[x, y]` pairs as targets.
+    fn targets_of(v: &serde_json::Value) -> Points {
+        let xy: Vec<[f64; 2]> =
+            v.as_array().unwrap().iter().map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()]).collect();
+        pts(&xy)
+    }
+
     fn spec(method: Interpolator, m: VariogramModel) -> Spec {
         Spec { method, model: m, neighbours: None, drift: None }
     }
@@ -829,23 +843,11 @@ mod tests {
         // Our own fixture: the same library, another model and mean.
         let f = fixture();
         let sk = &f["simple_sklearn"];
-        let mo = &f["kriging_model"];
-        let m = model(
-            Family::Exponential,
-            mo["nugget"].as_f64().unwrap(),
-            mo["partial_sill"].as_f64().unwrap(),
-            mo["range"].as_f64().unwrap(),
-        );
-        let tt: Vec<[f64; 2]> = sk["targets"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()])
-            .collect();
+        let m = fixture_model(&f);
         let p = krige(
             &s,
             &z,
-            &pts(&tt),
+            &targets_of(&sk["targets"]),
             &spec(Interpolator::Simple { mean: sk["mean_offset"].as_f64().unwrap() }, m),
         )
         .unwrap();
@@ -861,20 +863,8 @@ mod tests {
     fn kriging_matches_numpy_fixture() {
         let (s, z) = topo();
         let f = fixture();
-        let mo = &f["kriging_model"];
-        let m = model(
-            Family::Exponential,
-            mo["nugget"].as_f64().unwrap(),
-            mo["partial_sill"].as_f64().unwrap(),
-            mo["range"].as_f64().unwrap(),
-        );
-        let tt: Vec<[f64; 2]> = f["targets"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|p| [p[0].as_f64().unwrap(), p[1].as_f64().unwrap()])
-            .collect();
-        let t = pts(&tt);
+        let m = fixture_model(&f);
+        let t = targets_of(&f["targets"]);
         let seg = &f["drift_segment"];
         let (a, b) = (nums(&seg["from"]), nums(&seg["to"]));
         let ds = crate::spatial::geometry::distances_to_opening(&s, [a[0], a[1]], [b[0], b[1]]);
