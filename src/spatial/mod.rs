@@ -41,6 +41,7 @@ pub mod spectral;
 pub mod stage;
 mod stage_check;
 pub mod variogram;
+pub mod variogram_pooled;
 pub mod vecchia;
 pub mod vecchia_latent;
 pub mod vecchia_order;
