@@ -50,7 +50,7 @@ use potclim::model::likelihood_path::{LikelihoodPath, latent_form};
 use potclim::spatial::ascent::maximise_shared;
 use potclim::spatial::correlation::Family;
 use potclim::spatial::likelihood::{
-    CovParams, Distances, LikelihoodKind, Maximum, SearchOptions, cholesky, profiled,
+    CovParams, Distances, LikelihoodKind, Maximum, Profiled, SearchOptions, cholesky, profiled,
 };
 use potclim::spatial::vecchia::{Conditioning, DEFAULT_NEIGHBOURS, SetRule, profiled_vecchia};
 use potclim::spatial::vecchia_latent::{LatentVecchia, profiled_latent};
@@ -71,6 +71,23 @@ fn plots(n: usize, seed: u64) -> (Vec<f64>, Vec<f64>, Vec<Vec<f64>>, Vec<f64>) {
     let dist = Distances::from_coords(&x, &y).unwrap();
     let z = response(seed, &dist, &cols);
     (x, y, cols, z)
+}
+
+/// One line of a fit of its own: its maximum against the exact one, its
+/// coefficients in exact SEs, its parameters, evaluations and time.
+fn own_fit_line(label: &str, fit: Result<Maximum, impl std::fmt::Display>, ex: &Profiled, t: Instant) {
+    match fit {
+        Ok(v) => println!(
+            "  own fit, {label}: max - exact max {:+.4}, b/SE {:.3}, range {:.3}, eta {:.3}; {} evaluations, {:.1} s",
+            v.best.loglik - ex.loglik,
+            coef_gap(&v.best.beta, ex),
+            v.best.params.range,
+            v.best.params.eta,
+            v.evaluations,
+            t.elapsed().as_secs_f64()
+        ),
+        Err(e) => println!("  own fit, {label}: failed: {e}"),
+    }
 }
 
 fn list(var: &str, default: &[usize]) -> Vec<usize> {
@@ -292,19 +309,15 @@ fn main() {
                 // the model path's fit of its own at its default
                 let t = Instant::now();
                 let path = LikelihoodPath::neighbours(&x, &y, DEFAULT_NEIGHBOURS).unwrap();
-                match path.maximise(&dist, family, &cols, &z, method, &opts) {
-                    Ok(v) => println!(
-                        "  own fit, model path (m = {DEFAULT_NEIGHBOURS}, {}): max - exact max {:+.4}, b/SE {:.3}, range {:.3}, eta {:.3}; {} evaluations, {:.1} s",
-                        path.likelihood_of(&v.best.params).name(),
-                        v.best.loglik - ex.loglik,
-                        coef_gap(&v.best.beta, &ex),
-                        v.best.params.range,
-                        v.best.params.eta,
-                        v.evaluations,
-                        t.elapsed().as_secs_f64()
+                let fit = path.maximise(&dist, family, &cols, &z, method, &opts);
+                let label = match &fit {
+                    Ok(v) => format!(
+                        "model path (m = {DEFAULT_NEIGHBOURS}, {})",
+                        path.likelihood_of(&v.best.params).name()
                     ),
-                    Err(e) => println!("  own fit, model path: failed: {e}"),
-                }
+                    Err(_) => "model path".to_string(),
+                };
+                own_fit_line(&label, fit, &ex, t);
                 let own_shares: Vec<Option<f64>> = if nugget {
                     std::iter::once(None).chain(shares.iter().map(|&f| Some(f))).collect()
                 } else {
@@ -321,18 +334,8 @@ fn main() {
                             Some(f) => format!("{rule_label}, latent share {f}"),
                             None => rule_label,
                         };
-                        match own_fit(&dist, &c, family, &cols, &z, &opts, share) {
-                            Ok(v) => println!(
-                                "  own fit, m = {m}, {rule_label}: max - exact max {:+.4}, b/SE {:.3}, range {:.3}, eta {:.3}; {} evaluations, {:.1} s",
-                                v.best.loglik - ex.loglik,
-                                coef_gap(&v.best.beta, &ex),
-                                v.best.params.range,
-                                v.best.params.eta,
-                                v.evaluations,
-                                t.elapsed().as_secs_f64()
-                            ),
-                            Err(e) => println!("  own fit, m = {m}, {rule_label}: failed: {e}"),
-                        }
+                        let fit = own_fit(&dist, &c, family, &cols, &z, &opts, share);
+                        own_fit_line(&format!("m = {m}, {rule_label}"), fit, &ex, t);
                     }
                 }
             }
