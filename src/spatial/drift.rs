@@ -18,28 +18,6 @@
 //! golden-section search between its neighbours (Kiefer 1953, *Proc. AMS*
 //! 4: 502–506). Cost: one pooled variogram fit and one cross-validation per
 //! evaluated length (about 30).
-//!
-//! # The decay lengths the cross-validation cannot tell apart
-//! The chosen `L` is one of many lengths that score almost alike, and the
-//! map's shape on an opening's flank (where no logger stands) changes with
-//! `L`. The pots' SEs carry that uncertainty as a model-selection variance
-//! (Draper 1995, *JRSS B* 57: 45–97; Burnham & Anderson 2002, *Model
-//! Selection and Multimodel Inference*, 2nd ed., §4.3.2, "unconditional
-//! variance"; both from memory):
-//! * how often each evaluated length would have been chosen had other
-//!   loggers been left out is estimated by the bootstrap over the folds
-//!   (the left-out loggers): the loggers are resampled with replacement,
-//!   each length's score is the mean of its resampled fold MSEs, and the
-//!   length with the smallest wins ([`selection_weights`]; bootstrap
-//!   selection frequencies as model weights, Buckland, Burnham & Augustin
-//!   1997, *Biometrics* 53: 603–618, from memory); the variogram of each
-//!   length is the one fitted on all loggers, not refitted per resample;
-//! * with the map kept at the chosen length `L*`, a pot's expected squared
-//!   error under those weights is
-//!   `E_L[(H - H(L*))^2] = E_L[Var(H | L)] + E_L[(H(L) - H(L*))^2]`
-//!   (law of total variance about the reported value); the first term is
-//!   taken as the chosen length's own window variance, the second is
-//!   [`spread_variance`] of the indicator mapped at the lengths with weight.
 
 use super::error::Result;
 
@@ -144,67 +122,6 @@ where
     scan.sort_by(|x, y| x.0.total_cmp(&y.0));
     let (length, v, p) = best.expect("checked above");
     Ok(Some(LengthSearch { length, best: (v, p), scan }))
-}
-
-/// Bootstrap resamples of the folds behind [`selection_weights`].
-pub const RESAMPLES: usize = 2000;
-
-/// How often each evaluated decay length wins the cross-validation when
-/// the folds (left-out loggers) are resampled with replacement (module doc):
-/// `folds` holds every evaluated length with the mean squared error of each
-/// fold at it, in the same fold order; `resamples` draws of `K` folds from
-/// a ChaCha generator seeded with `seed`; ties go to the shorter length.
-/// Returns `(length, share of the resamples it won)` for every length that
-/// won at least once, in order of length. Lengths whose fold count differs
-/// from the most common one are left out. Empty with fewer than two folds.
-/// Cost O(resamples x lengths x folds).
-pub fn selection_weights(folds: &[(f64, Vec<f64>)], resamples: usize, seed: u64) -> Vec<(f64, f64)> {
-    use rand::{RngExt, SeedableRng};
-    let mut counts: Vec<(usize, usize)> = folds.iter().map(|(_, f)| (f.len(), 0)).collect();
-    counts.sort();
-    let k = counts.chunk_by(|a, b| a.0 == b.0).max_by_key(|c| (c.len(), c[0].0)).map_or(0, |c| c[0].0);
-    let mut scan: Vec<&(f64, Vec<f64>)> = folds
-        .iter()
-        .filter(|(l, f)| f.len() == k && l.is_finite() && f.iter().all(|m| m.is_finite()))
-        .collect();
-    scan.sort_by(|a, b| a.0.total_cmp(&b.0));
-    if k < 2 || scan.is_empty() || resamples == 0 {
-        return Vec::new();
-    }
-    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
-    let mut wins = vec![0usize; scan.len()];
-    let mut pick = vec![0usize; k];
-    for _ in 0..resamples {
-        pick.iter_mut().for_each(|p| *p = rng.random_range(0..k as u64) as usize);
-        let score = |f: &Vec<f64>| pick.iter().map(|&i| f[i]).sum::<f64>();
-        let best = (0..scan.len())
-            .min_by(|&a, &b| score(&scan[a].1).total_cmp(&score(&scan[b].1)).then(a.cmp(&b)))
-            .expect("not empty");
-        wins[best] += 1;
-    }
-    scan.iter()
-        .zip(&wins)
-        .filter(|(_, w)| **w > 0)
-        .map(|(f, w)| (f.0, *w as f64 / resamples as f64))
-        .collect()
-}
-
-/// The model-selection term of a pot's variance (module doc): the
-/// weighted mean of the squared difference between the indicator mapped at
-/// each length and the reported one, `sum_k w_k (h_k - h*)^2 / sum_k w_k`,
-/// over `(weight, value)` pairs. `None` when the weights do not sum to a
-/// positive number or a value is not finite.
-///
-/// ```
-/// let v = potclim::spatial::drift::spread_variance(&[(0.5, 1.0), (0.25, 4.0), (0.25, 2.0)], 2.0).unwrap();
-/// assert_eq!(v, 1.5);
-/// ```
-pub fn spread_variance(at: &[(f64, f64)], reported: f64) -> Option<f64> {
-    let total: f64 = at.iter().map(|(w, _)| w).sum();
-    if !(total > 0.0) || !reported.is_finite() || at.iter().any(|(w, v)| !v.is_finite() || !w.is_finite()) {
-        return None;
-    }
-    Some(at.iter().map(|(w, v)| w * (v - reported).powi(2)).sum::<f64>() / total)
 }
 
 #[cfg(test)]

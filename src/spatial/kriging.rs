@@ -76,13 +76,7 @@ impl Interpolator {
         match self {
             Interpolator::Ordinary => 1,
             Interpolator::Universal => 3,
-            Interpolator::ExternalDrift => {
-                if xy_hack() {
-                    4
-                } else {
-                    2
-                }
-            }
+            Interpolator::ExternalDrift => 2,
             _ => 0,
         }
     }
@@ -161,11 +155,6 @@ pub struct System {
     warnings: Vec<String>,
 }
 
-pub(crate) fn xy_hack() -> bool {
-    static H: std::sync::OnceLock<bool> = std::sync::OnceLock::new();
-    *H.get_or_init(|| std::env::var("TMPVAR").is_ok_and(|v| v.contains("xy")))
-}
-
 /// The drift basis `f(s)` of a method at one location.
 fn basis(method: Interpolator, x: f64, y: f64, v: f64, out: &mut [f64]) {
     match method {
@@ -178,10 +167,6 @@ fn basis(method: Interpolator, x: f64, y: f64, v: f64, out: &mut [f64]) {
         Interpolator::ExternalDrift => {
             out[0] = 1.0;
             out[1] = v;
-            if xy_hack() {
-                out[2] = x;
-                out[3] = y;
-            }
         }
         _ => {}
     }

@@ -209,10 +209,6 @@ pub struct CvScore {
     /// For kriging with an opening as external drift: the opening and the
     /// decay length `L` (metres) of the drift `exp(-d / L)`.
     pub drift: Option<(String, f64)>,
-    /// The mean squared error of each left-out sensor that was predicted
-    /// (the folds of the cross-validation, in sensor order), for the
-    /// bootstrap over the folds ([`super::drift::selection_weights`]).
-    pub fold_mse: Vec<f64>,
 }
 
 impl CvScore {
@@ -237,9 +233,7 @@ pub fn loso(sensors: &Points, series: &DMatrix<f64>, spec: &Spec) -> Result<Opti
     let (mut sum, mut sum2, mut cnt) = (0.0, 0.0, 0usize);
     let (mut z2, mut zc) = (0.0, 0usize);
     let mut warnings: Vec<String> = Vec::new();
-    let mut fold_mse = Vec::with_capacity(n);
     for i in 0..n {
-        let (sum2_before, cnt_before) = (sum2, cnt);
         let others: Vec<usize> = (0..n).filter(|&j| j != i).collect();
         let sub = sensors.subset(&others);
         let target = sensors.subset(&[i]);
@@ -264,7 +258,6 @@ pub fn loso(sensors: &Points, series: &DMatrix<f64>, spec: &Spec) -> Result<Opti
             sum += e;
             sum2 += e * e;
             cnt += 1;
-            fold_mse.push(e * e);
             if let Some(se) = p.se
                 && se[0] > 0.0
             {
@@ -300,9 +293,6 @@ pub fn loso(sensors: &Points, series: &DMatrix<f64>, spec: &Spec) -> Result<Opti
                 warnings.push(w);
             }
         }
-        if cnt > cnt_before {
-            fold_mse.push((sum2 - sum2_before) / (cnt - cnt_before) as f64);
-        }
     }
     if cnt == 0 {
         return Ok(None);
@@ -315,7 +305,6 @@ pub fn loso(sensors: &Points, series: &DMatrix<f64>, spec: &Spec) -> Result<Opti
         msse: (spec.method.is_kriging() && zc > 0).then(|| z2 / zc as f64),
         warnings,
         drift: None,
-        fold_mse,
     }))
 }
 

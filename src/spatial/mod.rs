@@ -20,7 +20,6 @@ pub mod correlation;
 pub mod covariance;
 pub mod distances;
 pub mod drift;
-pub mod drift_spread;
 pub mod error;
 pub mod exposure;
 pub mod factor;

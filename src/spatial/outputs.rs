@@ -293,15 +293,8 @@ pub fn mapping_cv_csv(rows: &[CvRow], routes: &[&super::indicator_route::RouteCh
 /// `persistent_share`, `inflation`, `loggers` (left-out loggers used),
 /// `median_z2` (their median squared standardised error after calibration),
 /// `noise_variance` (the readings' measurement-error variance left out of the
-/// pots' SEs, [`super::noise`]), `decay_length_low`, `decay_length_high` and
-/// `drift_spread_variance` (the decay lengths of the drift that the
-/// cross-validation cannot tell apart, and the variance their spread added
-/// to the pots' SEs on average, [`super::drift_spread`]; empty without).
-pub fn mapping_se_csv(
-    indicators: &[MappedColumn],
-    window_se: &[Option<Calibration>],
-    spread: &[Option<super::drift_spread::SpreadAdded>],
-) -> Vec<u8> {
+/// pots' SEs, [`super::noise`]).
+pub fn mapping_se_csv(indicators: &[MappedColumn], window_se: &[Option<Calibration>]) -> Vec<u8> {
     let mut t = CsvTable::new([
         "indicator",
         "se_from",
@@ -311,11 +304,8 @@ pub fn mapping_se_csv(
         "loggers",
         "median_z2",
         "noise_variance",
-        "decay_length_low",
-        "decay_length_high",
-        "drift_spread_variance",
     ]);
-    for (k, (col, c)) in indicators.iter().zip(window_se).enumerate() {
+    for (col, c) in indicators.iter().zip(window_se) {
         let mut r = vec![col.name.clone()];
         match c {
             Some(c) => r.extend([
@@ -336,10 +326,6 @@ pub fn mapping_se_csv(
                 String::new(),
                 String::new(),
             ]),
-        }
-        match spread.get(k).copied().flatten() {
-            Some(a) => r.extend([number(a.lo), number(a.hi), number(a.mean_variance)]),
-            None => r.extend([String::new(), String::new(), String::new()]),
         }
         t.row(r);
     }
@@ -452,7 +438,6 @@ mod tests {
                 msse: Some(1.1),
                 warnings: vec![],
                 drift: None,
-                fold_mse: vec![],
             },
             CvScore {
                 method: Interpolator::Nearest,
@@ -462,7 +447,6 @@ mod tests {
                 msse: None,
                 warnings: vec![],
                 drift: None,
-                fold_mse: vec![],
             },
             CvScore {
                 method: Interpolator::ExternalDrift,
@@ -472,7 +456,6 @@ mod tests {
                 msse: Some(0.9),
                 warnings: vec![],
                 drift: Some(("door".into(), 2.5)),
-                fold_mse: vec![],
             },
         ];
         let rows =

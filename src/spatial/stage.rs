@@ -60,7 +60,7 @@ use super::outputs::{
 };
 use super::paths::{Evened, Paths};
 use super::stage_check::{PotWindowSe, self_check, single_kriged};
-use super::variogram::{Detrend, Empirical, VariogramFit, pooled};
+use super::variogram::{Detrend, Empirical, FitOptions, VariogramFit, pooled};
 use crate::climate::config::Variable;
 use crate::climate::{ClimateError, ClimateRun, Combine};
 use crate::io::layout::{Pots, Sensors, load_pots, load_sensors};
@@ -140,10 +140,6 @@ pub struct VariableMap {
     /// structure of the readings ([`super::noise`]; `None` for IDW and
     /// nearest sensor, or when it cannot be estimated: nothing is removed).
     pub noise: Option<super::noise::MeasurementError>,
-    /// When the map uses an opening's drift: the decay lengths the
-    /// cross-validation cannot tell from the chosen one, whose spread the
-    /// pots' SEs carry ([`super::drift_spread`]).
-    pub drift_lengths: Option<super::drift_spread::DriftLengths>,
 }
 
 /// Everything `potclim map` computed.
@@ -183,10 +179,6 @@ pub struct MapRun {
     pub moves: Option<super::paths::MovedPots>,
     /// Each pot's growth window, as a range of the calendar's days.
     pub windows: Vec<std::ops::Range<usize>>,
-    /// Per indicator (parallel to `indicators`): what the spread over the
-    /// drift's plausible decay lengths added to the SEs
-    /// ([`super::drift_spread`]); `None` where nothing was added.
-    pub drift_spread: Vec<Option<super::drift_spread::SpreadAdded>>,
 }
 
 pub(super) fn base_variables(v: Variable) -> &'static [&'static str] {
@@ -231,7 +223,7 @@ pub(super) struct OpeningDrift {
 /// The range bounds of the variogram fits: from 2 % of the largest lag to
 /// the largest sensor-pair distance (a longer range than the layout's extent
 /// cannot be told apart from a trend, so it is not identifiable).
-pub(super) fn range_bounds(sensors: &Points, bins: &super::variogram::Bins) -> Option<(f64, f64)> {
+fn range_bounds(sensors: &Points, bins: &super::variogram::Bins) -> Option<(f64, f64)> {
     let hi = sensors.max_distance();
     let lo = 0.02 * bins.max_lag();
     (hi.is_finite() && hi > lo && lo > 0.0).then_some((lo, hi))
@@ -256,12 +248,6 @@ fn map_variable(
         }
     }
     let variance = if cnt > 0 { s2 / cnt as f64 } else { f64::NAN };
-    // Every fitted nugget is at least the sensors' measurement error
-    // (`super::noise`, estimated from the readings alone).
-    let nugget_floor = super::noise::measurement_error(&series, f64::INFINITY).map_or(0.0, |m| m.variance);
-    let nugget_floor =
-        if std::env::var("TMPVAR").is_ok_and(|v| v.contains("nofloor")) { 0.0 } else { nugget_floor };
-    let fits = super::drift_spread::DriftFits { sensors, series: &series, cfg, variance, nugget_floor };
     // The lag bins: equal widths, or bins that follow the sensor-pair
     // distances, whichever gives ordinary kriging the smaller
     // leave-one-sensor-out RMSE (`super::pair_bins`).
@@ -273,7 +259,8 @@ fn map_variable(
             .iter()
             .map(|b| {
                 let emp = pooled(sensors, &series, b, cfg.estimator, None, &Detrend::Mean).ok()?;
-                let mc = choose_model(&emp, &cfg.families, &fits.options(b), sensors, variance).ok()?;
+                let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, b) };
+                let mc = choose_model(&emp, &cfg.families, &opts, sensors, variance).ok()?;
                 mc.chosen?; // the fallback model is not a fit to these bins
                 let spec = Spec {
                     method: Interpolator::Ordinary,
@@ -291,7 +278,8 @@ fn map_variable(
     for d in &cfg.directions {
         directional.push(pooled(sensors, &series, &bins, cfg.estimator, Some(*d), &Detrend::Mean)?);
     }
-    let choice_model = choose_model(&empirical, &cfg.families, &fits.options(&bins), sensors, variance)?;
+    let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, &bins) };
+    let choice_model = choose_model(&empirical, &cfg.families, &opts, sensors, variance)?;
     let mut warnings: Vec<String> = choice_model.warning.iter().cloned().collect();
     let spec_for = |m: Interpolator| Spec {
         method: m,
@@ -303,10 +291,6 @@ fn map_variable(
     let mut cv: Vec<CvScore> = Vec::new();
     let mut specs: Vec<Spec> = Vec::new();
     let mut variograms: Vec<(Empirical, ModelChoice)> = Vec::new();
-    // Parallel to `cv`: for an opening's drift, what the spread over its
-    // plausible decay lengths needs (opening, bins, per-fold errors, length).
-    type Spread<'o> = Option<(&'o OpeningDrift, super::variogram::Bins, Vec<(f64, Vec<f64>)>, f64)>;
-    let mut spreads: Vec<Spread> = Vec::new();
     for m in cfg.candidates() {
         if m == Interpolator::ExternalDrift {
             continue;
@@ -316,7 +300,6 @@ fn map_variable(
                 cv.push(score);
                 specs.push(spec_for(m));
                 variograms.push((empirical.clone(), choice_model.clone()));
-                spreads.push(None);
             }
             Ok(None) => {}
             Err(e) => warnings.push(format!("{name}: {} skipped in cross-validation: {e}", m.name())),
@@ -334,14 +317,27 @@ fn map_variable(
     };
     for o in drift_openings {
         let grid = super::drift::length_grid(&o.at_sensors, sensors.max_distance(), 12);
-        // The method at decay length `l` with the variogram fitted on bins
-        // `b`, scored; every scored length's fold errors are kept.
-        let at = |l: f64, b: &super::variogram::Bins, folds: &mut Vec<(f64, Vec<f64>)>| {
-            let Some((spec, emp, mc)) = fits.method_at(o, l, b)? else { return Ok(None) };
+        // The method at decay length `l` with the variogram fitted on bins `b`.
+        let at = |l: f64, b: &super::variogram::Bins| {
+            let v = super::drift::decay(&o.at_sensors, l);
+            let emp = pooled(sensors, &series, b, cfg.estimator, None, &Detrend::Drift(v.clone()))?;
+            let opts = FitOptions { fit_nugget: cfg.fit_nugget, range_bounds: range_bounds(sensors, b) };
+            let Ok(mc) = choose_model(&emp, &cfg.families, &opts, sensors, variance) else {
+                return Ok(None);
+            };
+            let spec = Spec {
+                method: Interpolator::ExternalDrift,
+                model: mc.model,
+                neighbours: cfg.neighbours,
+                drift: Some(Drift {
+                    name: o.name.clone(),
+                    at_sensors: v,
+                    at_targets: super::drift::decay(&o.at_pots, l),
+                }),
+            };
             Ok(match loso(sensors, &series, &spec) {
                 Ok(Some(mut score)) => {
                     score.drift = Some((o.name.clone(), l));
-                    folds.push((l, score.fold_mse.clone()));
                     Some((score.rmse, (score, spec, emp, mc)))
                 }
                 _ => None,
@@ -350,12 +346,9 @@ fn map_variable(
         // The decay length is searched with the equal-width bins and, when
         // cross-validation chose others above, with those too; the smaller
         // leave-one-sensor-out RMSE is kept.
-        let mut folds = Vec::new();
-        let mut search = super::drift::search_length(&grid, 8, |l| at(l, &candidates[0], &mut folds));
-        let mut search_bins = &candidates[0];
+        let mut search = super::drift::search_length(&grid, 8, |l| at(l, &candidates[0]));
         if bins != candidates[0] {
-            let mut other_folds = Vec::new();
-            let other = super::drift::search_length(&grid, 8, |l| at(l, &bins, &mut other_folds));
+            let other = super::drift::search_length(&grid, 8, |l| at(l, &bins));
             let better = match (&search, &other) {
                 (Ok(Some(a)), Ok(Some(b))) => b.best.0 < a.best.0,
                 (Ok(Some(_)), _) => false,
@@ -363,8 +356,6 @@ fn map_variable(
             };
             if better {
                 search = other;
-                search_bins = &bins;
-                folds = other_folds;
             }
         }
         match search {
@@ -373,7 +364,6 @@ fn map_variable(
                 cv.push(score);
                 specs.push(spec);
                 variograms.push((emp, mc));
-                spreads.push(Some((o, search_bins.clone(), folds, found.length)));
             }
             Ok(None) => warnings.push(format!(
                 "{name}: the opening `{}` as external drift could not be cross-validated at any decay length",
@@ -389,9 +379,6 @@ fn map_variable(
         MethodChoice::Fixed(m) => (0..cv.len()).find(|&i| cv[i].method == m),
         MethodChoice::Auto => choice.as_ref().map(|c| c.0),
     };
-    let drift_lengths = pick
-        .and_then(|i| spreads[i].as_ref())
-        .and_then(|(o, b, folds, chosen)| fits.spread(o, b, folds, *chosen));
     let (spec, (empirical, choice_model)) = match pick {
         Some(i) => (specs[i].clone(), variograms[i].clone()),
         None => match cfg.method {
@@ -445,7 +432,6 @@ fn map_variable(
         mapped,
         mapped_se,
         noise,
-        drift_lengths,
     })
 }
 
@@ -607,26 +593,6 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         };
         columns.push(MappedColumn { name: ind.name.clone(), value, se });
     }
-    // The spread over the drift's plausible decay lengths
-    // (`super::drift_spread`), for the SEs of the per-step route.
-    let per_step: Vec<bool> = (0..indicators.len())
-        .map(|i| {
-            !std::env::var("TMPVAR").is_ok_and(|v| v.contains("nospread"))
-                && checked.calibration[i].is_some()
-                && single_kriged(&indicators[i], &variables).is_some()
-        })
-        .collect();
-    let series_of = |name: &str| {
-        matrix_of(match name {
-            "temperature" => &climate.grid.temperature,
-            "humidity" => &climate.grid.humidity,
-            _ => &climate.grid.light,
-        })
-    };
-    let gather = |m: DMatrix<f64>| if fixed { m } else { paths.along(&m) };
-    let ctx = super::drift_spread::Context { sensors: &sensors, targets, cal, windows: &windows, min_cov };
-    let drift_spread =
-        super::drift_spread::widen(&mut columns, &per_step, indicators, &variables, series_of, gather, &ctx);
     // Did the moves even the drivers out? Each driver at the pots' starting
     // positions over the same windows, by the same code, beside its value
     // along the paths.
@@ -703,7 +669,6 @@ pub fn compute(study: &Study, climate: &ClimateRun) -> Result<MapRun, MapError> 
         }
     }
     Ok(MapRun {
-        drift_spread,
         windows,
         routes,
         ml_fits,
@@ -762,7 +727,7 @@ pub fn write_outputs(study: &Study, run: &MapRun) -> Result<Vec<PathBuf>, MapErr
     w.write(MAPPING_CV_FILE, &mapping_cv_csv(&cv, &routes)?)?;
     w.write(VARIOGRAM_ML_FITS_FILE, &variogram_ml_fits_csv(&run.ml_fits, run.ml_nugget))?;
     w.write(MAPPING_CHECK_FILE, &super::selfcheck::mapping_check_csv(&run.checks)?)?;
-    w.write(MAPPING_SE_FILE, &mapping_se_csv(&run.indicators, &run.window_se, &run.drift_spread))?;
+    w.write(MAPPING_SE_FILE, &mapping_se_csv(&run.indicators, &run.window_se))?;
     if let Some(m) = &run.moves {
         w.write(super::outputs::POT_PATHS_FILE, &m.csv(&run.pots))?;
         w.write(super::outputs::POT_PATHS_EXPOSURE_FILE, &m.exposure_csv(&run.pots))?;

@@ -356,18 +356,11 @@ pub struct FitOptions {
     /// `[0.02 h_max, 5 h_max]` with `h_max` the largest bin lag (common
     /// practice).
     pub range_bounds: Option<(f64, f64)>,
-    /// The smallest nugget the fit may take (units of the semivariance;
-    /// 0: none). A nugget is micro-scale variation plus measurement error
-    /// (Cressie 1993, *Statistics for Spatial Data*, rev. ed., §2.3.1, from
-    /// memory), so it is at least the sensors' measurement-error variance
-    /// when that is known ([`super::noise`]). Ignored when `fit_nugget` is
-    /// false.
-    pub nugget_floor: f64,
 }
 
 impl Default for FitOptions {
     fn default() -> Self {
-        FitOptions { fit_nugget: true, range_bounds: None, nugget_floor: 0.0 }
+        FitOptions { fit_nugget: true, range_bounds: None }
     }
 }
 
@@ -402,7 +395,7 @@ pub fn cressie_criterion(emp: &Empirical, model: &VariogramModel) -> f64 {
 }
 
 /// Fit `family` to `emp` by minimising [`cressie_criterion`] under bounds
-/// (nugget in `[floor, 2 g_max]` with the floor of [`FitOptions`], partial sill in `[1e-9 g_max, 10 g_max]`,
+/// (nugget in `[0, 2 g_max]`, partial sill in `[1e-9 g_max, 10 g_max]`,
 /// range as in [`FitOptions`]), by Nelder–Mead (Nelder & Mead 1965,
 /// *Computer J.* 7: 308–313) from 21 starts (range 0.05, 0.1, 0.25, 0.5, 1, 2
 /// and 4 times `h_max`; nugget 0, 10 % or 30 % of the plateau). Returns `None` when fewer than
@@ -419,10 +412,8 @@ pub fn fit_wls(emp: &Empirical, family: Family, opts: &FitOptions) -> Option<Var
     }
     let hmax = used.iter().map(|b| b.lag).fold(0.0, f64::max);
     let (amin, amax) = opts.range_bounds.unwrap_or((0.02 * hmax, 5.0 * hmax));
+    let lo = [amin.ln(), 0.0, 1e-9];
     let hi = [amax.ln(), if opts.fit_nugget { 2.0 } else { 0.0 }, 10.0];
-    let floor =
-        if opts.nugget_floor.is_finite() { (opts.nugget_floor / gmax).clamp(0.0, hi[1]) } else { 0.0 };
-    let lo = [amin.ln(), floor, 1e-9];
     let clamp = |p: &[f64]| -> [f64; 3] {
         [p[0].clamp(lo[0], hi[0]), p[1].clamp(lo[1], hi[1]), p[2].clamp(lo[2], hi[2])]
     };

@@ -135,9 +135,7 @@ impl TrendBasis {
             (_, 0) => 1.0,
             (Detrend::Plane, 1) => points.x[j],
             (Detrend::Plane, _) => points.y[j],
-            (Detrend::Drift(v), 1) => v[j],
-            (Detrend::Drift(_), 2) => points.x[j],
-            (Detrend::Drift(_), _) => points.y[j],
+            (Detrend::Drift(v), _) => v[j],
             (Detrend::Mean, _) => unreachable!("the mean has one column"),
         };
         let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(a, b)| a * b).sum::<f64>();
@@ -168,13 +166,7 @@ impl Detrend {
         match self {
             Detrend::Mean => 1,
             Detrend::Plane => 3,
-            Detrend::Drift(_) => {
-                if super::kriging::xy_hack() {
-                    4
-                } else {
-                    2
-                }
-            }
+            Detrend::Drift(_) => 2,
         }
     }
 }
