@@ -142,13 +142,26 @@ pub struct Calibration {
 }
 
 impl Calibration {
-    /// The small-sample test of `driver` in the final chosen model, if any.
-    pub fn final_test(&self, driver: &str) -> Option<&DriverTest> {
+    /// The small-sample test of `driver` in the final chosen model, if any,
+    /// with the model whose REML refit made it: the chosen model's own, or,
+    /// when the driver of an independent-error choice was tested again under
+    /// correlated errors (docs/verdict.md, step 7), that test. Step 7 runs
+    /// only when those errors have the lower AIC with these drivers: the
+    /// independent model was chosen by the tie margin's preference for fewer
+    /// parameters, not because the data reject the correlation, so the
+    /// interval to quote is the one that allows for it (the exact t's
+    /// interval assumes independent pots).
+    pub fn final_test(&self, driver: &str) -> Option<(&DriverTest, &str)> {
         let last = self.steps.last()?;
         if !last.set_aside.is_empty() {
             return None;
         }
-        last.tests.iter().find(|t| t.driver == driver)
+        if let (Some(t), Some(model)) =
+            (last.tests_under_correlation.iter().find(|t| t.driver == driver), &last.correlation_check)
+        {
+            return Some((t, model));
+        }
+        last.tests.iter().find(|t| t.driver == driver).map(|t| (t, last.model.as_str()))
     }
 
     /// The cost of every bootstrap run, for the run's timings.

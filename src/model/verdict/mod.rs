@@ -377,7 +377,8 @@ pub fn analyse_with(
 
     let mut drivers = driver_summaries(data, &grid, &chosen, chosen_ml.errors, &verdict.chosen);
     for d in drivers.iter_mut() {
-        if let Some(t) = calibration.final_test(&d.name) {
+        if let Some((t, model)) = calibration.final_test(&d.name) {
+            d.small_sample_model = Some(model.to_string());
             d.se_small_sample = Some(t.se);
             d.df_small_sample = Some(t.df);
             d.p_small_sample = Some(t.p_value);
@@ -586,6 +587,7 @@ fn ranking_small_sample(
             d.se_small_sample = Some(kr.se);
             d.df_small_sample = Some(kr.df);
             d.p_small_sample = Some(kr.p_value);
+            d.small_sample_model = Some(d.source_model.clone());
             d.ci_low_small_sample = Some(kr.ci.0);
             d.ci_high_small_sample = Some(kr.ci.1);
         }

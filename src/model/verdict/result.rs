@@ -206,6 +206,10 @@ pub struct DriverSummary {
     pub ci_low_small_sample: Option<f64>,
     /// 95 % CI upper end.
     pub ci_high_small_sample: Option<f64>,
+    /// The model whose REML refit gives the small-sample columns: the
+    /// chosen model, `source_model`, or with independent errors chosen the
+    /// correlated refit the driver was tested again in (docs/verdict.md).
+    pub small_sample_model: Option<String>,
 }
 
 /// Measured climate against plain distance to the openings.

@@ -153,6 +153,7 @@ pub(super) fn driver_summaries(
             p_small_sample: None,
             smooth_share: None,
             ci_low_small_sample: None,
+            small_sample_model: None,
             ci_high_small_sample: None,
         });
     }

@@ -534,3 +534,50 @@ fn duplicate_positions_without_nugget_are_refused_on_both_paths() {
     assert!(exact.contains("1 pair(s) of pots share a position (first: `p3` and `p7`)"), "{exact}");
     assert!(exact.contains("fit with a nugget"), "{exact}");
 }
+
+/// When the driver of an independent-error choice was tested again under
+/// correlated errors (step 7), the small-sample interval quoted for it is
+/// that test's, named by its model; otherwise the chosen model's own.
+#[test]
+fn the_interval_quoted_allows_for_the_correlation_step_seven_found() {
+    let test = |p: f64, ci: (f64, f64), method: &str| DriverTest {
+        driver: "cold".into(),
+        estimate: -1.0,
+        se_plugin: 0.1,
+        p_plugin: 1e-6,
+        se: 0.2,
+        df: 20.0,
+        p_value: p,
+        ci,
+        method: method.into(),
+    };
+    let step = |again: Vec<DriverTest>, check: Option<&str>| CalibrationStep {
+        model: "base+cold".into(),
+        tests: vec![test(1e-6, (-1.2, -0.8), "exact t (independent errors)")],
+        bootstrap: None,
+        bootstrap_skipped: None,
+        tests_under_correlation: again,
+        correlation_check: check.map(String::from),
+        lrt_under_correlation: None,
+        set_aside: vec![],
+    };
+    let with_again = Calibration {
+        steps: vec![step(
+            vec![test(0.004, (-1.6, -0.4), "kenward-roger (first order)")],
+            Some("base+cold | exponential"),
+        )],
+        ..Calibration::default()
+    };
+    let (t, model) = with_again.final_test("cold").unwrap();
+    assert_eq!((t.ci, model), ((-1.6, -0.4), "base+cold | exponential"));
+    let plain = Calibration {
+        steps: vec![step(
+            vec![],
+            Some("not needed: with these drivers correlated errors do not lower the AIC"),
+        )],
+        ..Calibration::default()
+    };
+    let (t, model) = plain.final_test("cold").unwrap();
+    assert_eq!((t.ci, model), ((-1.2, -0.8), "base+cold"));
+    assert!(plain.final_test("wave").is_none());
+}

@@ -126,6 +126,7 @@ pub fn drivers_csv(r: &VerdictResult) -> String {
         "p_small_sample",
         "ci_low_small_sample",
         "ci_high_small_sample",
+        "small_sample_model",
         "smooth_share",
     ]);
     for d in &r.drivers {
@@ -155,6 +156,7 @@ pub fn drivers_csv(r: &VerdictResult) -> String {
             opt(d.p_small_sample),
             opt(d.ci_low_small_sample),
             opt(d.ci_high_small_sample),
+            d.small_sample_model.clone().unwrap_or_default(),
             opt(d.smooth_share),
         ]);
     }
