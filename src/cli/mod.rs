@@ -81,7 +81,7 @@ pub enum Command {
     Verdict(verdict::VerdictArgs),
     /// Redraw report.html from the report_data.json of an earlier run.
     Report(report::ReportArgs),
-    /// Climate indicators per sensor and local day (reads <output>/readings.parquet).
+    /// Climate indicators per sensor and local day (reads readings.parquet in the output folder).
     Climate(climate::ClimateArgs),
     /// Propose where new loggers should stand, and which logger could be moved at least cost.
     #[command(long_about = place::HELP)]

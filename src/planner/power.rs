@@ -21,7 +21,7 @@
 //! climate and the residual field). Since the simulator draws the climate
 //! from its own random stream, the studies of one seed and logger count
 //! differ only in the trait, and their climate and map are computed once
-//! for every effect size ([`same_climate`] checks it on the files). Studies run on all cores, one study per
+//! for every effect size (`same_climate` checks it on the files). Studies run on all cores, one study per
 //! thread at a time, each in its own work folder; the numbers do not depend on
 //! the number of threads (each study's randomness is its own seed's, and the
 //! results are stored by study index).

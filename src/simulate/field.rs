@@ -29,7 +29,7 @@
 //! [`SIMULATION_NEIGHBOURS`] nearest earlier points:
 //! `z_k = b_k' z_N(k) + sqrt(d_k) u_k` with `b_k = C_NN^-1 C_Nk` and
 //! `d_k = C_kk - C_kN b_k` (the one conditional of
-//! [`crate::spatial::vecchia::conditional`]). That draws exactly from the
+//! `crate::spatial::vecchia::conditional`). That draws exactly from the
 //! Vecchia approximation of `C` (Vecchia 1988, *JRSS B* 50: 297-312; its
 //! use for simulation: Guinness 2018, *Technometrics* 60: 415-424, §2), not
 //! from `C` itself; with `m = n - 1` it is the Cholesky draw of `C` in the

@@ -100,7 +100,7 @@ pub struct Point {
     w: Mat<f64>,
 }
 
-/// An evaluation that [`newton`] can judge by its log-likelihood before
+/// An evaluation that `newton` can judge by its log-likelihood before
 /// asking for its scores.
 pub trait Valued {
     /// The profiled log-likelihood.

@@ -21,7 +21,7 @@
 //! From `[Xw | yw]` and `ln|V~|` the profiled ML and REML log-likelihoods,
 //! the GLS estimate, `(X'V~^-1 X)^-1` (hence SEs and Wald tests) and the
 //! whitened residuals are computed by exactly the code of the dense path
-//! ([`super::likelihood::profile_whitened`], constants in its module docs),
+//! (`likelihood::profile_whitened`, constants in its module docs),
 //! so they all come from the same approximation. With `m = n - 1` nothing is
 //! left out and the value equals the exact likelihood.
 //!

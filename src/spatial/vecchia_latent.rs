@@ -638,8 +638,8 @@ impl Centring {
 
 /// GLS quantities from the cross products `C = [X | y]' V^-1 [X | y]`
 /// (`(p+1) x (p+1)`, row-major) and `ln|V|` for `n` observations: the same
-/// beta, `(X'V^-1 X)^-1` (by [`small_spd`]) and log-likelihood formula as
-/// [`super::likelihood::profile_whitened`], with
+/// beta, `(X'V^-1 X)^-1` (by `small_spd`) and log-likelihood formula as
+/// `likelihood::profile_whitened`, with
 /// `Q = y'V^-1 y - (X'V^-1 y)' beta`. `whitened` is left empty.
 pub fn profile_crossproducts(
     cross: &[f64],

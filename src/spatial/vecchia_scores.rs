@@ -369,7 +369,7 @@ pub fn scored_vecchia(
 /// The profiled likelihood of every fixed part of `designs` (columns of `X`
 /// each, all with the response `y`) at `params` by the response-level form:
 /// the conditionals computed once, every column whitened by them. Each
-/// result equals [`profiled_vecchia`] of that design (to the bit). A failed
+/// result equals `profiled_vecchia` of that design (to the bit). A failed
 /// conditional fails all.
 pub fn profiled_vecchia_many(
     cond: &Conditioning,

@@ -31,7 +31,7 @@
 //! simplex. The latent log-likelihood of `n` pots is a sum with
 //! cancellation (the Woodbury form, module docs of
 //! [`super::vecchia_latent`]), hence the difference step
-//! [`LATENT_FD_STEP`] and the simplex's value tolerance [`LATENT_F_TOL`].
+//! `LATENT_FD_STEP` and the simplex's value tolerance [`LATENT_F_TOL`].
 
 use super::ascent::{
     Bounds, Scored, grid_ranges, grid_starts, newton, params_of, polish, record_grid_point, report,
@@ -334,7 +334,7 @@ fn latent_newton(
 /// `designs` (module docs): [`maximise_vecchia_shared`] on the pots'
 /// response-level form, then Newton steps on the latent form from its
 /// maximum (and its other optimum, if any) with scores by differences and
-/// the response-level information as metric ([`latent_newton`]); a run that
+/// the response-level information as metric (`latent_newton`); a run that
 /// stops short is polished by the simplex (first steps 0.05 in `ln range`,
 /// 0.015 in `eta`, value tolerance [`LATENT_F_TOL`]). Residuals once, at the
 /// maximum. `evaluations` counts both forms' evaluations.

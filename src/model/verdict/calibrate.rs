@@ -95,14 +95,14 @@ pub struct CalibrationStep {
     /// Why the bootstrap was not run, when it was not.
     pub bootstrap_skipped: Option<String>,
     /// With independent errors chosen: the same drivers tested again under
-    /// correlated errors (see [`under_best_correlation`]) when those have the
+    /// correlated errors (see `under_best_correlation`) when those have the
     /// lower AIC with the same drivers; empty otherwise.
     pub tests_under_correlation: Vec<DriverTest>,
     /// That correlated error model's name, or why the second test was not made.
     pub correlation_check: Option<String>,
     /// With independent errors chosen, when the base model's lowest AIC has
     /// correlated errors: the drivers' likelihood-ratio test under those
-    /// errors ([`under_base_correlation`]); `None` otherwise.
+    /// errors (`under_base_correlation`); `None` otherwise.
     pub lrt_under_correlation: Option<CorrelatedLrt>,
     /// Drivers set aside at this step.
     pub set_aside: Vec<String>,

@@ -95,7 +95,7 @@ pub struct MappingDraws {
     pub window_se_used: bool,
     /// Why the pooled values are not to be trusted, when the chain collapsed
     /// ([`crate::model::imputation::collapse`]) or the refits' pooled SE fell
-    /// below [`COLLAPSED_SE_SHARE`] of the plug-in SE; `None` for a healthy
+    /// below `COLLAPSED_SE_SHARE` of the plug-in SE; `None` for a healthy
     /// chain. The verdict stage then reports no pooled values.
     pub collapsed: Option<String>,
     /// What the notes say, in one sentence.
