@@ -2,10 +2,16 @@
 //! their validated types: every value with its line and column in the study file,
 //! choices with a suggestion for a near miss, and clock times.
 
-use super::*;
+use super::{
+    ClimateSection, ClimateSpec, DayRule, DegreeDayMethod, Indicator, IndicatorSection, Period, Statistic,
+    Variable, defaults, parse_duration_ms,
+};
+use crate::climate::error::{ClimateError, Declaration, Result};
 use crate::io::error::closest;
 use crate::io::layout::parse_local_datetime;
-use crate::io::study::line_col;
+use crate::io::study::{Study, line_col};
+use chrono::{NaiveDateTime, NaiveTime};
+use toml::Spanned;
 
 fn parse_clock(s: &str) -> Option<NaiveTime> {
     NaiveTime::parse_from_str(s.trim(), "%H:%M")

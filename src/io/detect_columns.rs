@@ -2,7 +2,8 @@
 //! header names by a word, quantities that are not channels, row counters, and a
 //! unit decided by the range of the values.
 
-use super::*;
+use super::number;
+use crate::io::units::Channel;
 
 /// Words of a header cell, lower case.
 pub(super) fn words(s: &str) -> Vec<String> {

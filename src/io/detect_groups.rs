@@ -1,7 +1,10 @@
 //! From guesses to the study file: files whose guesses agree grouped into one
 //! block, and each group written as a `[[logs]]` block with its comments.
 
-use super::*;
+use super::{Entry, FileGuess, detect_file, q};
+use crate::io::error::IoError;
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
 
 /// A group of files with one guessed block.
 #[derive(Debug, Clone)]

@@ -2,8 +2,8 @@
 //! parts, the column(s) and pattern that read the sample to plausible instants,
 //! day-first or month-first, and a time zone named in the preamble.
 
-use super::*;
-use crate::io::clock::Stamp;
+use super::{TIME_SHARE, number};
+use crate::io::clock::{Stamp, TimeFormat};
 
 /// Candidate date parts: (pattern, order) where order is `ymd`, `dmy`, `mdy`.
 const DATES: [(&str, &str); 12] = [

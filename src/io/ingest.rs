@@ -17,7 +17,7 @@ use super::clock::Resolution;
 use super::error::{IoError, Result};
 use super::layout::{load_sensors, parse_local_datetime};
 use super::logs::{FileRead, Flag, LogFormat, Row, compile_logs, read_file_with};
-use super::qc::{self, QcSettings, Reason};
+use super::qc::Reason;
 use super::study::Study;
 use super::units::Channel;
 use polars::prelude::*;
@@ -463,6 +463,7 @@ pub use outputs::{GAPS_FILE, QC_FLAGS_FILE, QC_SUMMARY_FILE, READINGS_FILE, read
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::io::qc::QcSettings;
 
     fn row(t: i64, v: [f64; 3], line: u32) -> Row {
         Row { time: t, values: v, line, sensor: 0, file: 0, flagged: false }

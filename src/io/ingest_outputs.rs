@@ -2,9 +2,15 @@
 //! built from its columns without copying, the quality-control flags, summary
 //! and gaps files, and the reading of the readings table back.
 
-use super::*;
+use super::Ingested;
 use crate::io::clock::format_utc;
+use crate::io::error::{IoError, Result};
 use crate::io::output::{CsvTable, StageWriter, number};
+use crate::io::qc::Reason;
+use crate::io::study::Study;
+use crate::io::units::Channel;
+use polars::prelude::*;
+use std::path::{Path, PathBuf};
 
 /// The readings table from its columns; `runs` gives the sensor of each
 /// stretch of rows, in order. `NaN` values become nulls. Each column has one

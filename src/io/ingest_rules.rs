@@ -2,10 +2,12 @@
 //! second rows for one instant and rows outside the study period; the range, spike
 //! and stuck rules per channel; and the gaps in what is kept.
 
-use super::*;
+use super::{FileSummary, Gap, Period};
 use crate::io::clock::format_utc;
-use crate::io::logs::Variable;
+use crate::io::logs::{Flag, Row, Variable};
 use crate::io::output::number;
+use crate::io::qc::{self, QcSettings, Reason};
+use crate::io::units::Channel;
 
 /// Row rules on one sensor's rows (sorted by time): every row of a sensor
 /// absent from the sensor table, a second row for the same instant (the

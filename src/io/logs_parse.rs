@@ -2,8 +2,16 @@
 //! header, sensor ids, time stamps and the fall-back hour, channel values with their
 //! units converted, quality flags, and the failure counts that stop a misconfigured run.
 
-use super::*;
+use super::{
+    Cells, Failures, FileRead, Flag, LogFormat, Row, SensorSource, Variable, decode, header_offset,
+    is_missing, parse_number, trim,
+};
 use crate::io::clock::{LocalClock, Resolution, Stamp, StampMemo};
+use crate::io::error::{IoError, Result, closest};
+use crate::io::qc::Reason;
+use crate::io::study::LogZone;
+use crate::io::units::{Channel, Conversion};
+use std::path::Path;
 
 /// Row processing shared by both splitters: columns, sensor ids, time stamps,
 /// the fall-back hour, values, flags and the failure counts.

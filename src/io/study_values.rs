@@ -2,7 +2,8 @@
 //! [`super`]): delimiters, log time zones and fixed offsets, IANA zones, and the
 //! line and column of a TOML error.
 
-use super::*;
+use crate::io::error::{IoError, Result};
+use std::path::Path;
 
 /// Parse a one-character delimiter (`"\t"` and `"tab"` mean tab).
 pub fn delimiter_byte(d: &str) -> std::result::Result<u8, String> {

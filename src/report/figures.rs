@@ -12,9 +12,7 @@
 //! along y) within a height clamp, so a long, narrow house is not stretched.
 
 use super::colour::{CATEGORICAL, Rgb, Scale, finite_extent, logger_line};
-use super::data::{
-    ComparisonRow, DailySeries, LoggerValue, MappedValue, OpeningSegment, SensorPoint, VariogramPanel,
-};
+use super::data::{DailySeries, LoggerValue, MappedValue, OpeningSegment, SensorPoint, VariogramPanel};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -552,7 +550,7 @@ pub(super) fn short_number(v: f64) -> String {
 
 #[cfg(test)]
 pub(crate) mod tests {
-    use super::super::data::{VariogramBin, VariogramFit};
+    use super::super::data::{ComparisonRow, VariogramBin, VariogramFit};
     use super::super::xml::check_well_formed;
     use super::*;
 

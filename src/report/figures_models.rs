@@ -1,8 +1,10 @@
 //! The model figures of [`super`]: which models matter, the bars of their AIC
 //! differences with the tie cut, and the maps of their residuals.
 
-use super::*;
-use crate::report::data::ResidualMap;
+use super::{FONT, Figure, FigureError, MapSpec, render, rgb, shorten, value_map};
+use crate::report::colour::{CATEGORICAL, Scale};
+use crate::report::data::{ComparisonRow, OpeningSegment, ResidualMap, SensorPoint};
+use plotters::prelude::*;
 
 /// The kind of explanation a model stands for: with or without drivers, with
 /// independent or spatially correlated errors (the four verdict words).

@@ -2,7 +2,13 @@
 //! comparison and ANOVA tables and residual maps, and the adjusted means once
 //! position is accounted for.
 
-use super::*;
+use super::{
+    RUN, decimals_for, df, escape, extent, figure_html, fixed, missing, openings, opt, p_value, rich,
+    sensors, signed,
+};
+use crate::report::data::{AdjustedMean, ComparisonRow, ReportData, ResidualMap};
+use crate::report::figures;
+use std::fmt::Write as _;
 
 pub(super) fn section_models(d: &ReportData, out: &mut String) {
     out.push_str("<section id=\"models\">\n<h2>5. The competing models</h2>\n");

@@ -2,8 +2,10 @@
 //! means, the plain-language lines of the headline, the cautions, the residual
 //! structures, and what to do next.
 
-use super::*;
+use super::{RUN, decimals_for, escape, fixed, missing, opt, p_value, rich, sig, with_unit};
 use crate::model::verdict::Headline;
+use crate::report::data::{ReportData, VerdictSection};
+use std::fmt::Write as _;
 
 /// What each verdict word means, in the page's words.
 fn word_meaning(w: &str) -> &'static str {

@@ -2,10 +2,16 @@
 //! function, and the names later sections refer to resolved (the export,
 //! logger and fault sections in [`exports`]).
 
-use super::*;
+use super::{
+    AnalysisSpec, ClimateSpec, CompartmentSpec, DesignSpec, FieldSpec, Header, LayoutSpec, OpeningSpec,
+    Position, Scenario, ScenarioSpec, TraitSpec, bad, date,
+};
 use crate::io::error::closest;
 use crate::io::study::parse_timezone;
-use chrono::NaiveTime;
+use crate::simulate::error::{Result, SimError};
+use crate::spatial::correlation::Family;
+use chrono::{NaiveDate, NaiveDateTime, NaiveTime, TimeZone};
+use std::path::Path;
 
 #[path = "scenario_check_exports.rs"]
 mod exports;

@@ -2,10 +2,14 @@
 //! the export forms and their columns and units, which logger writes which export,
 //! and the keys each fault kind needs.
 
-use super::*;
+use super::{did_you_mean, inside, one_of};
 use crate::io::layouts::Layout;
 use crate::io::study::{TimeColumns, delimiter_byte};
 use crate::io::units::Channel;
+use crate::simulate::error::Result;
+use crate::simulate::scenario::{CompartmentSpec, ExportSpec, FAULT_KINDS, ScenarioSpec, bad};
+use chrono::{NaiveDate, NaiveDateTime};
+use std::path::Path;
 
 /// `[[export]]`: names, layout, delimiter and decimal mark, clock and time
 /// format, lead time, columns and units (the units ingestion converts).

@@ -2,7 +2,8 @@
 //! tables, a `[[logs]]` block for every export written under `logs/`, and the
 //! `[climate]`, `[[indicator]]` and `[model]` sections of the scenario.
 
-use super::*;
+use super::{Scenario, exports, q};
+use std::fmt::Write as _;
 
 /// The study file of the generated study.
 pub(super) fn study_toml(sc: &Scenario, seed: u64) -> String {

@@ -2,8 +2,13 @@
 //! set of sensors with its drift basis and documented fallbacks, solved once and
 //! reused for every block of targets, and the kriging variances.
 
-use super::*;
+use super::{Interpolator, Neighbours, Spec, Weights};
+use crate::spatial::covariance::Kernel;
+use crate::spatial::error::{Result, SpatialError};
 use crate::spatial::factor::Bordered;
+use crate::spatial::geometry::Points;
+use crate::spatial::variogram::VariogramModel;
+use faer::Mat;
 
 /// A prepared kriging system for one set of sensors: the factorised
 /// `[K F; F' 0]` with full neighbourhood ([`Bordered`]: Cholesky of `K` and

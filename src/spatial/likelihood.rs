@@ -39,7 +39,6 @@ pub use super::covariance::CovParams;
 use super::covariance::Kernel;
 pub use super::factor::whiten;
 use super::factor::{CORRELATION_MIN_DIAGONAL, Cholesky, FactorError, small_spd};
-use crate::spatial::correlation::Family;
 use faer::{Mat, MatRef};
 
 /// Errors of the likelihood engine.
@@ -343,6 +342,7 @@ pub(super) use search::{SearchBox, simplex_search, simplex_starts};
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::spatial::correlation::Family;
     use approx::assert_relative_eq;
 
     /// REFERENCE.md §5.1 six-point example (values computed with numpy; the

@@ -2,7 +2,10 @@
 //! the search box and options, the start grid over the distances present, and the
 //! bounded simplex from the best starts with its restart.
 
-use super::*;
+use super::{LikelihoodError, LikelihoodKind, Profiled, check_sizes, profiled};
+use crate::spatial::correlation::Family;
+use crate::spatial::covariance::CovParams;
+use crate::spatial::distances::Distances;
 use crate::spatial::optimise::{Budget, Simplex, Stop, nelder_mead, ranked_starts};
 
 /// Bounds and options of [`maximise`].
