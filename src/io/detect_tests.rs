@@ -1,4 +1,6 @@
-//! Tests of [`super`].
+//! Tests of [`super`]: delimiters, decimal marks and preambles, the day order left
+//! undecided until a day exceeds 12, units offered as choices, unrecognised and
+//! damaged exports, and the paths written into the blocks.
 
 use super::time::twin;
 use super::*;

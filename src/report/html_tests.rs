@@ -1,4 +1,7 @@
-//! Tests of [`super`].
+//! Tests of [`super`]: escaping and number formats, a well-formed page with every
+//! section and figure, notes for missing stages, the report data round-tripped
+//! through JSON, the snapshot of a small report, and the snapshot helpers that the
+//! other pages' tests use.
 
 use super::super::sample::sample_report;
 use super::super::xml::check_well_formed;

@@ -1,4 +1,6 @@
-//! Tests of [`super`].
+//! Tests of [`super`]: complete replicates in blocks, the residual structures' keys,
+//! a written study that loads, every unit of every channel read back, faults at the
+//! lines they changed, and the climate field's humidity and draught.
 
 use super::*;
 use crate::io::study::Study;
