@@ -208,6 +208,22 @@ fn run_writes_every_stage_and_the_report() {
     assert_eq!(unit_of("night_cold_hours"), "h");
     assert_eq!(unit_of("mean_dli"), "mol m-2 d-1");
     assert!(html.contains("night_cold_hours (h)"), "driver label with its unit");
+    // The chosen driver's small-sample interval reaches the report as
+    // summary.json has it, named by the refit it comes from.
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    let in_summary =
+        summary["drivers"].as_array().unwrap().iter().find(|d| d["name"] == "night_cold_hours").unwrap();
+    let in_report = data["verdict"]["drivers"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|d| d["name"] == "night_cold_hours")
+        .unwrap();
+    assert_eq!(in_report["small_sample"]["ci_low"], in_summary["ci_low_small_sample"]);
+    assert_eq!(in_report["small_sample"]["ci_high"], in_summary["ci_high_small_sample"]);
+    assert_eq!(in_report["small_sample"]["model"], summary["best_model"]);
+    assert!(html.contains("<th class=\"n\">95 % CI, small sample</th>"));
     // The design's count table: levels sorted (as `potclim check` prints
     // them), each cell the number of pots counted straight from pots.csv.
     let c = &data["layout"]["counts"];

@@ -67,6 +67,10 @@ fn verdict_writes_summary_and_tables() {
     for key in ["name", "estimate", "se", "se_with_mapping_uncertainty", "p_value", "delta_aic"] {
         assert!(d.get(key).is_some(), "drivers[] lacks {key}");
     }
+    // The small-sample columns name the REML refit they come from: the
+    // chosen model, or a correlated refit of its drivers (docs/verdict.md, step 7).
+    let from = d["small_sample_model"].as_str().unwrap();
+    assert!(from == "base+cold" || from.starts_with("base+cold | "), "{from}");
     // The true slope is -1.1 per unit.
     let est = d["estimate"].as_f64().unwrap();
     assert!((est + 1.1).abs() < 0.2, "{est}");

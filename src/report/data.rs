@@ -157,6 +157,26 @@ pub struct DriverRow {
     /// True when the effect vanishes once spatial correlation is modelled.
     #[serde(default)]
     pub confounded: bool,
+    /// The small-sample test of the driver (docs/verdict.md, "A driver must
+    /// survive calibration"); `None` when not computed.
+    #[serde(default)]
+    pub small_sample: Option<SmallSampleRow>,
+}
+
+/// A driver's small-sample interval: Kenward–Roger with correlated errors,
+/// the exact t with independent errors, in the REML refit of `model`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SmallSampleRow {
+    /// Lower end of the 95 % interval (trait units per driver unit).
+    pub ci_low: f64,
+    /// Upper end.
+    pub ci_high: f64,
+    /// Two-sided p-value.
+    pub p_value: f64,
+    /// Denominator degrees of freedom.
+    pub df: f64,
+    /// The model whose REML refit made the test.
+    pub model: String,
 }
 
 /// Section 2: where things stand.

@@ -13,7 +13,7 @@ fn kind(r: &ComparisonRow) -> (bool, bool) {
 }
 
 /// The models a reader needs on the ΔAIC chart, sorted by ΔAIC: the best
-/// model of each kind ([`kind`]), every model within the tie margin of the
+/// model of each kind (`kind`), every model within the tie margin of the
 /// best, and the chosen model. The table beside it lists every model.
 pub fn models_that_matter<'a>(
     rows: &'a [ComparisonRow],

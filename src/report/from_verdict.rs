@@ -4,7 +4,7 @@
 
 use super::data::{
     AdjustedMean, AnovaRow, AnovaTable, ComparisonRow, DriverRow, ModelsSection, MoranI, ResidualMap,
-    ResidualPoint, VariogramBin, VariogramPanel, VerdictSection,
+    ResidualPoint, SmallSampleRow, VariogramBin, VariogramPanel, VerdictSection,
 };
 use crate::model::verdict::{MoranSummary, VerdictResult};
 
@@ -134,6 +134,18 @@ pub fn to_report(
                 delta_aic_with_correlation: d.delta_aic_with_correlation,
                 vif: d.vif,
                 confounded: d.confounded,
+                small_sample: match (
+                    d.ci_low_small_sample,
+                    d.ci_high_small_sample,
+                    d.p_small_sample,
+                    d.df_small_sample,
+                    &d.small_sample_model,
+                ) {
+                    (Some(ci_low), Some(ci_high), Some(p_value), Some(df), Some(model)) => {
+                        Some(SmallSampleRow { ci_low, ci_high, p_value, df, model: model.clone() })
+                    }
+                    _ => None,
+                },
             })
             .collect(),
         cautions,

@@ -160,6 +160,13 @@ fn small_report() -> ReportData {
                 delta_aic_with_correlation: Some(-1.2345),
                 vif: Some(1.0),
                 confounded: true,
+                small_sample: Some(SmallSampleRow {
+                    ci_low: -0.2414,
+                    ci_high: -0.0055,
+                    p_value: 0.0421,
+                    df: 9.3,
+                    model: "base+cold | exponential".into(),
+                }),
             }],
             cautions: vec!["Two loggers only.".into()],
             ..Default::default()

@@ -75,7 +75,8 @@ pub(super) fn section_verdict(d: &ReportData, out: &mut String) {
         let _ = write!(
             out,
             "<div class=\"scroll\"><table>\n<tr><th>driver (unit)</th><th class=\"n\">effect per driver unit ({})</th>\
-             <th class=\"n\">SE</th><th class=\"n\">95 % CI</th><th class=\"n\">effect incl. mapping</th>\
+             <th class=\"n\">SE</th><th class=\"n\">95 % CI</th><th class=\"n\">95 % CI, small sample</th>\
+             <th class=\"n\">effect incl. mapping</th>\
              <th class=\"n\">SE incl. mapping</th><th class=\"n\">95 % CI incl. mapping</th>\
              <th class=\"n\">p</th><th class=\"n\">ΔAIC alone</th>\
              <th class=\"n\">ΔAIC with correlation</th><th class=\"n\">VIF</th><th>note</th></tr>\n",
@@ -92,7 +93,7 @@ pub(super) fn section_verdict(d: &ReportData, out: &mut String) {
             let _ = writeln!(
                 out,
                 "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{} to {}</td>\
-                 <td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>\
+                 <td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>\
                  <td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>\
                  <td class=\"n\">{}</td><td>{}</td></tr>",
                 with_unit(&r.name, r.unit.as_deref()),
@@ -100,6 +101,11 @@ pub(super) fn section_verdict(d: &ReportData, out: &mut String) {
                 e(r.se),
                 e(r.ci_low),
                 e(r.ci_high),
+                r.small_sample.as_ref().map_or("–".into(), |t| format!(
+                    "{} to {}",
+                    e(t.ci_low),
+                    e(t.ci_high)
+                )),
                 opt(r.estimate_with_mapping_uncertainty, e),
                 opt(r.se_with_mapping_uncertainty, e),
                 match (r.ci_low_with_mapping_uncertainty, r.ci_high_with_mapping_uncertainty) {
@@ -113,7 +119,7 @@ pub(super) fn section_verdict(d: &ReportData, out: &mut String) {
                 if r.confounded { "<span class=\"flag\">spatially confounded</span>" } else { "" }
             );
         }
-        out.push_str("</table></div>\n<p class=\"lead\">Effect: change of the trait per unit of the driver. Incl. mapping: the effect, its standard error and interval once the uncertainty of the kriged driver map is included: the model is refitted on imputations of the driver drawn given the loggers and the trait, and the fits are combined by Rubin's rules; the plug-in columns treat the map as exact. ΔAIC: AIC of the model without the driver minus AIC with it, alone with independent errors and with the best correlation model; positive values mean the driver improves the model. VIF: variance inflation against the other drivers; above about 5 the drivers are hard to tell apart (common practice). Spatially confounded: the effect vanishes once spatial correlation is modelled.</p>\n");
+        out.push_str("</table></div>\n<p class=\"lead\">Effect: change of the trait per unit of the driver. Small sample: the interval that also allows for the estimated range and nugget of a correlated residual (Kenward and Roger's correction; the exact t with independent errors), the one to quote when the residual is correlated; drivers.csv names the model it comes from. Incl. mapping: the effect, its standard error and interval once the uncertainty of the kriged driver map is included: the model is refitted on imputations of the driver drawn given the loggers and the trait, and the fits are combined by Rubin's rules; the plug-in columns treat the map as exact. ΔAIC: AIC of the model without the driver minus AIC with it, alone with independent errors and with the best correlation model; positive values mean the driver improves the model. VIF: variance inflation against the other drivers; above about 5 the drivers are hard to tell apart (common practice). Spatially confounded: the effect vanishes once spatial correlation is modelled.</p>\n");
     }
     out.push_str("<h3>What the data can and cannot show</h3>\n<ul class=\"cautions\">\n");
     let mut shown: Vec<&str> = Vec::new();

@@ -230,6 +230,13 @@ pub fn sample_report() -> ReportData {
                     delta_aic_with_correlation: Some(9.2),
                     vif: Some(3.1),
                     confounded: false,
+                    small_sample: Some(SmallSampleRow {
+                        ci_low: -0.5751,
+                        ci_high: -0.3273,
+                        p_value: 4.0e-10,
+                        df: 138.0,
+                        model: "base + night_cold_hours".into(),
+                    }),
                 },
                 DriverRow {
                     name: "distance_cooling_pad".into(),
@@ -247,6 +254,7 @@ pub fn sample_report() -> ReportData {
                     delta_aic_with_correlation: Some(0.4),
                     vif: Some(3.1),
                     confounded: true,
+                    small_sample: None,
                 },
             ],
             cautions: vec![
