@@ -20,7 +20,7 @@
 //! It prints one line per run and the tables of docs/verdict.md (for seeds
 //! 1..=10, the criterion, and for all seeds when there are more).
 //! `POTCLIM_TRUTH_ONLY=covariate,both` runs only the named truths.
-//! With `POTCLIM_TRUTH_KEEP=DIR` every run is kept in `DIR/<truth>_<seed>`,
+//! With `POTCLIM_TRUTH_KEEP=DIR` every run is kept in `DIR/<truth>_<pots>_<seed>`,
 //! for the checks of `tests/scenarios/findings.py`.
 //! `POTCLIM_TRUTH_LIKELIHOOD=neighbours` (or `exact`, `auto`) writes
 //! `likelihood = "..."` into the simulated study's `[model]` before the run:
@@ -172,8 +172,8 @@ fn run_one(truth: &'static str, seed: u64) -> Outcome {
 /// [`run_one`] at `pots` pots.
 fn run_one_at(truth: &'static str, seed: u64, pots: usize) -> Outcome {
     let dir = tempfile::tempdir().unwrap();
-    // POTCLIM_TRUTH_KEEP=DIR keeps every run in DIR/<truth>_<seed> (for
-    // tests/scenarios/findings.py); otherwise the run lives in a temporary folder.
+    // POTCLIM_TRUTH_KEEP=DIR keeps every run in DIR/<truth>_<pots>_<seed> (for
+    // tests/scenarios/findings.py and calibration_runs.py); otherwise the run lives in a temporary folder.
     let study_dir = match std::env::var_os("POTCLIM_TRUTH_KEEP") {
         Some(keep) => {
             let d = PathBuf::from(keep).join(format!("{truth}_{pots}_{seed}"));
