@@ -176,11 +176,7 @@ pub fn maximise_shared(
     let far = (3.0 * sb.sample[sb.sample.len() - 1] / family.practical_range(1.0))
         .clamp(sb.range.0, sb.range.1)
         .ln();
-    let at_edge = grid.iter().any(|g| {
-        let val = |ri: usize| g[ri * etas.len() + first_pass].unwrap_or(f64::NEG_INFINITY);
-        let top = (0..ranges.len()).map(val).fold(f64::NEG_INFINITY, f64::max);
-        top.is_finite() && val(ranges.len() - 1) >= top
-    });
+    let at_edge = grid.iter().any(|g| best_at_edge(&pass_values(g, ranges.len(), etas.len(), first_pass)));
     if at_edge && far > ranges[ranges.len() - 1] + 1e-9 {
         let last = ranges[ranges.len() - 1];
         for r in [0.5 * (last + far), far] {
@@ -194,8 +190,9 @@ pub fn maximise_shared(
     if dim == 2 {
         let mut second: Vec<usize> = Vec::new();
         for g in &grid {
-            let val = |ri: usize| g[ri * etas.len() + first_pass].unwrap_or(f64::NEG_INFINITY);
-            let top = (0..ranges.len()).map(val).fold(f64::NEG_INFINITY, f64::max);
+            let values = pass_values(g, ranges.len(), etas.len(), first_pass);
+            let val = |ri: usize| values[ri];
+            let top = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
             let mut local: Vec<usize> = (0..ranges.len())
                 .filter(|&ri| {
                     let v = val(ri);
@@ -231,6 +228,20 @@ pub fn maximise_shared(
         })
         .collect();
     (results, shared)
+}
+
+/// One fixed part's log-likelihoods at nugget share index `pass` of a grid
+/// laid out range-major (`ranges x etas`), by range; `-inf` where a point
+/// was not evaluated or failed.
+fn pass_values(grid: &[Option<f64>], ranges: usize, etas: usize, pass: usize) -> Vec<f64> {
+    (0..ranges).map(|ri| grid[ri * etas + pass].unwrap_or(f64::NEG_INFINITY)).collect()
+}
+
+/// Whether the best of `values` (a pass over the ranges in increasing order)
+/// is the last one: the maximum may then lie beyond the grid's largest range.
+fn best_at_edge(values: &[f64]) -> bool {
+    let top = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    top.is_finite() && values.last().is_some_and(|&v| v >= top)
 }
 
 /// Record one grid point's evaluation for every fixed part (`all`, or the

@@ -176,3 +176,45 @@ fn a_looser_decrement_stops_near_the_maximum() {
     }
     assert!(loose_evals < tight_evals, "loose {loose_evals} against tight {tight_evals} evaluations");
 }
+
+/// The grid reaches past its edge only when a pass's best value is at its
+/// largest range; and on data whose maximum lies beyond the grid (a smooth
+/// surface across the whole layout that the design leaves out, with a
+/// nugget) the search that extends the grid ends at the simplex's maximum.
+#[test]
+fn a_maximum_beyond_the_grid_is_reached() {
+    use crate::spatial::likelihood::maximise_by;
+    assert!(best_at_edge(&[1.0, 2.0, 3.0]));
+    assert!(!best_at_edge(&[1.0, 3.0, 2.0]));
+    assert!(!best_at_edge(&[f64::NEG_INFINITY; 3]));
+    assert!(best_at_edge(&[1.0, f64::NEG_INFINITY, 1.0]));
+    let (dist, xs, z) = layout(96);
+    let (x, y) = dist.coords().unwrap();
+    let surface: Vec<f64> = z.iter().zip(x.iter().zip(y)).map(|(v, (a, b))| v + 1.5 * a - 1.2 * b).collect();
+    let intercept = &xs[..1];
+    let opts = SearchOptions { nugget: true, ..SearchOptions::default() };
+    let sb = SearchBox::new(&dist, &opts).unwrap();
+    let pass: Vec<f64> = grid_ranges(&sb, Family::Exponential)
+        .iter()
+        .map(|r| {
+            let p = CovParams { family: Family::Exponential, range: r.exp(), eta: 0.3 };
+            profiled(&dist, &p, intercept, &surface, LikelihoodKind::Reml)
+                .map_or(f64::NEG_INFINITY, |e| e.loglik)
+        })
+        .collect();
+    assert!(best_at_edge(&pass), "the case must reach past the grid: {pass:?}");
+    for method in [LikelihoodKind::Ml, LikelihoodKind::Reml] {
+        let (newton, _) = maximise_shared(&dist, Family::Exponential, &[intercept], &surface, method, &opts);
+        let newton = newton.into_iter().next().unwrap().unwrap();
+        let simplex = maximise_by(&dist, Family::Exponential, &opts, |p| {
+            profiled(&dist, p, intercept, &surface, method)
+        })
+        .unwrap();
+        assert!(
+            newton.best.loglik > simplex.best.loglik - 1e-6,
+            "{method:?}: Newton {} vs simplex {}",
+            newton.best.loglik,
+            simplex.best.loglik
+        );
+    }
+}
