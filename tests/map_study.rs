@@ -10,6 +10,12 @@
 //! POTCLIM_MAP_SEEDS=40 cargo test --test map_study -- --ignored --nocapture       # seeds 1..=40
 //! ```
 //!
+//! `POTCLIM_MAP_FIRST_SEED=41` starts at seed 41 (fresh seeds for a rule
+//! chosen on the first forty), `POTCLIM_MAP_SCENARIOS=truth` or `sharp`
+//! runs one scenario, and `POTCLIM_MAP_DUMP=DIR` writes each run's pots
+//! (true and mapped value, SE, distance to the door) to
+//! `DIR/<scenario>_<seed>.csv` for `tests/scenarios/map_msse_spread.py`.
+//!
 //! Scenarios: `tests/scenarios/truth_covariate.toml` (the truth study's
 //! climate and loggers; the mapped driver is the same under all four truths)
 //! and `tests/scenarios/sharp_draught.toml` (a narrow draught seen by one
@@ -58,6 +64,8 @@ struct MapOutcome {
     /// at the loggers `(per-step, direct)`.
     direct_chosen: bool,
     route_rmse: (f64, f64),
+    /// Each pot's standardised error and distance to the door.
+    z_by_distance: Vec<(f64, f64)>,
 }
 
 /// The two route rows of `night_cold_hours` in `mapping_cv.csv`.
@@ -104,11 +112,14 @@ fn run_one(scenario: &str, seed: u64) -> MapOutcome {
     assert_eq!(truth.len(), map.len(), "every pot is mapped");
     let n = truth.len() as f64;
     let (mut sse, mut z2) = (0.0, 0.0);
+    let mut z_by_distance = Vec::new();
     for (p, t) in &truth {
         let e = map[p][0] - t[0];
         sse += e * e;
         let se = map[p][1];
-        z2 += if e == 0.0 { 0.0 } else { (e / se).powi(2) };
+        let z = if e == 0.0 { 0.0 } else { e / se };
+        z2 += z * z;
+        z_by_distance.push((z, t[1]));
     }
     let mut pots: Vec<&String> = truth.keys().collect();
     pots.sort_by(|a, b| truth[*a][1].total_cmp(&truth[*b][1]).then(a.cmp(b)));
@@ -118,21 +129,49 @@ fn run_one(scenario: &str, seed: u64) -> MapOutcome {
     let mean = truth.values().map(|t| t[0]).sum::<f64>() / n;
     let true_sd = (truth.values().map(|t| (t[0] - mean).powi(2)).sum::<f64>() / n).sqrt();
     let (direct_chosen, route_rmse) = route(&study.join("output/mapping_cv.csv"));
-    MapOutcome { seed, rmse: (sse / n).sqrt(), door20, msse: z2 / n, true_sd, direct_chosen, route_rmse }
+    if let Ok(dump) = std::env::var("POTCLIM_MAP_DUMP") {
+        // one file per run: each pot's true and mapped value, SE and distance to the door
+        std::fs::create_dir_all(&dump).unwrap();
+        let name = format!("{}_{seed}.csv", scenario.trim_end_matches(".toml"));
+        let mut w = csv::Writer::from_path(Path::new(&dump).join(name)).unwrap();
+        w.write_record(["pot", "truth", "mapped", "se", "distance_door"]).unwrap();
+        for p in &pots {
+            let (t, m) = (&truth[*p], &map[*p]);
+            w.write_record([p.to_string(), t[0].to_string(), m[0].to_string(), m[1].to_string(), t[1].to_string()])
+                .unwrap();
+        }
+        w.flush().unwrap();
+    }
+    MapOutcome {
+        seed,
+        rmse: (sse / n).sqrt(),
+        door20,
+        msse: z2 / n,
+        true_sd,
+        direct_chosen,
+        route_rmse,
+        z_by_distance,
+    }
 }
 
 /// Seeds 1..=N of both scenarios; prints one line per run and a summary per
 /// scenario. Asserts the levels recorded in docs/spatial.md as a guard
-/// against regressions (the issue's target, MSSE within 0.5-2 in 36 of 40
-/// seeds, is met on `sharp_draught.toml` at 37/40 and not yet on
-/// `truth_covariate.toml` at 33/40): on both at least 75 % of the seeds
-/// within 0.5-2 and none above 3; every map finite.
+/// against regressions, loose enough for a fresh set of 40 seeds: at least
+/// 65 % of the seeds with MSSE within 0.5-2 (over seeds 1-240 the rates are
+/// 78 % on `truth_covariate.toml` and 90 % on `sharp_draught.toml`; the
+/// issue's target is 90 % on both), at most 2.5 % above 3 (1 of 40), every
+/// map finite.
 #[test]
 #[ignore]
 fn map_study() {
     let n: u64 = std::env::var("POTCLIM_MAP_SEEDS").ok().and_then(|s| s.parse().ok()).unwrap_or(10);
+    let first: u64 = std::env::var("POTCLIM_MAP_FIRST_SEED").ok().and_then(|s| s.parse().ok()).unwrap_or(1);
+    let only = std::env::var("POTCLIM_MAP_SCENARIOS").ok();
     for scenario in ["truth_covariate.toml", "sharp_draught.toml"] {
-        let runs: Vec<MapOutcome> = (1..=n).map(|s| run_one(scenario, s)).collect();
+        if only.as_deref().is_some_and(|o| !o.split(',').any(|x| scenario.starts_with(x.trim()))) {
+            continue;
+        }
+        let runs: Vec<MapOutcome> = (first..first + n).map(|s| run_one(scenario, s)).collect();
         for o in &runs {
             println!(
                 "{scenario} seed {:>3}: RMSE {:.2} h (true SD {:.1} h), door-20 error {:.1} %, MSSE {:.3}; left-out RMSE per-step {:.2} h, own variogram {:.2} h{}",
@@ -161,6 +200,28 @@ fn map_study() {
             runs.iter().map(|o| o.rmse).sum::<f64>() / n as f64,
             100.0 * runs.iter().map(|o| o.door20).sum::<f64>() / n as f64
         );
+        // Calibration pooled over pot-seeds, by distance to the door: the
+        // mean z² (1 when the SEs are right) and the share of |z| <= 1.96.
+        let mut classes = String::new();
+        for (lo, hi) in [(0.0, 1.0), (1.0, 2.0), (2.0, 4.0), (4.0, f64::INFINITY), (0.0, f64::INFINITY)] {
+            let z: Vec<f64> = runs
+                .iter()
+                .flat_map(|o| o.z_by_distance.iter())
+                .filter(|(_, d)| (lo..hi).contains(d))
+                .map(|(z, _)| *z)
+                .collect();
+            if z.is_empty() {
+                continue;
+            }
+            let k = z.len() as f64;
+            classes += &format!(
+                "; {lo}-{hi} m: {} pot-seeds, mean z² {:.3}, |z| <= 1.96 in {:.1} %",
+                z.len(),
+                z.iter().map(|v| v * v).sum::<f64>() / k,
+                100.0 * z.iter().filter(|v| v.abs() <= 1.96).count() as f64 / k
+            );
+        }
+        println!("{scenario}: pooled over pot-seeds by distance to the door{classes}");
         let mut own: Vec<f64> = runs.iter().map(|o| o.route_rmse.1).collect();
         own.sort_by(f64::total_cmp);
         println!(
@@ -174,7 +235,8 @@ fn map_study() {
             }
         );
         assert!(m.iter().all(|v| v.is_finite()), "{scenario}: {m:?}");
-        assert!(4 * within >= 3 * n as usize, "{scenario}: {within}/{n} within 0.5-2");
-        assert!(m[m.len() - 1] <= 3.0, "{scenario}: largest MSSE {}", m[m.len() - 1]);
+        assert!(20 * within >= 13 * n as usize, "{scenario}: {within}/{n} within 0.5-2");
+        let above3 = m.iter().filter(|v| **v > 3.0).count();
+        assert!(40 * above3 <= (n as usize).max(40), "{scenario}: {above3} of {n} MSSEs above 3: {m:?}");
     }
 }

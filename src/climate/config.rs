@@ -194,6 +194,19 @@ pub enum Statistic {
 }
 
 impl Statistic {
+    /// True when no value can be negative, whatever the variable: a count
+    /// of hours, a degree-day sum, a light integral, a daily range.
+    pub fn never_negative(self) -> bool {
+        matches!(
+            self,
+            Statistic::HoursBelow { .. }
+                | Statistic::HoursAbove { .. }
+                | Statistic::DegreeDays { .. }
+                | Statistic::DailyIntegral
+                | Statistic::MeanDailyRange
+        )
+    }
+
     const NAMES: [&'static str; 10] = [
         "mean",
         "min",

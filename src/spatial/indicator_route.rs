@@ -247,6 +247,10 @@ pub struct RouteChoice {
     pub fit: IndicatorFit,
     /// True when the direct route maps the indicator.
     pub direct_chosen: bool,
+    /// When the direct route won the left-out check but its map gave pots
+    /// a value the indicator cannot take (a negative count of hours): how
+    /// many of how many pots. The per-step route maps it then.
+    pub impossible: Option<(usize, usize)>,
 }
 
 impl RouteChoice {
@@ -280,6 +284,16 @@ impl RouteChoice {
             )
         };
         let other = if l.n == w.n { String::new() } else { format!(" (over {} loggers)", l.n) };
+        if let Some((bad, of)) = self.impossible {
+            return format!(
+                "{how}: kriging it directly with {variogram}{trend} had the smaller leave-one-sensor-out RMSE ({} over {} loggers against {} over {}) but gave {bad} of {of} pots a negative value, which {} cannot take",
+                sig(l.rmse),
+                l.n,
+                sig(w.rmse),
+                w.n,
+                self.indicator
+            );
+        }
         format!(
             "{how}: leave-one-sensor-out RMSE {} over {} loggers against {}{other} for {lose}",
             sig(w.rmse),
@@ -376,6 +390,7 @@ pub(super) fn consider(
         drift: c.drift.clone(),
         fit: fit.clone(),
         direct_chosen: complete && direct.rmse < pooled.rmse,
+        impossible: None,
     };
     if !choice.direct_chosen {
         return Some((choice, None));
@@ -410,6 +425,19 @@ pub(super) fn consider(
         for (g, &j) in group.iter().enumerate() {
             value[j] = p.value[g];
             se[j] = p.se.as_ref().map_or(f64::NAN, |s| s[g]);
+        }
+    }
+    // A linear kriging of a bounded indicator can leave its range (on the
+    // mapping study a Gaussian fit without nugget mapped night cold hours
+    // down to -15.7 h, RMSE 14.6 h at the pots against 1.4 h for the
+    // per-step route, docs/spatial.md): such a map is not used.
+    let scale = values.iter().filter(|v| v.is_finite()).fold(0.0f64, |m, v| m.max(v.abs()));
+    if c.indicator.statistic.never_negative() {
+        let bad = value.iter().filter(|v| **v < -1e-9 * (1.0 + scale)).count();
+        if bad > 0 {
+            let refused =
+                RouteChoice { direct_chosen: false, impossible: Some((bad, pots.len())), ..choice };
+            return Some((refused, None));
         }
     }
     Some((choice, Some(DirectMap { value, se, left_out })))
