@@ -137,8 +137,14 @@ fn run_one(scenario: &str, seed: u64) -> MapOutcome {
         w.write_record(["pot", "truth", "mapped", "se", "distance_door"]).unwrap();
         for p in &pots {
             let (t, m) = (&truth[*p], &map[*p]);
-            w.write_record([p.to_string(), t[0].to_string(), m[0].to_string(), m[1].to_string(), t[1].to_string()])
-                .unwrap();
+            w.write_record([
+                p.to_string(),
+                t[0].to_string(),
+                m[0].to_string(),
+                m[1].to_string(),
+                t[1].to_string(),
+            ])
+            .unwrap();
         }
         w.flush().unwrap();
     }

@@ -435,8 +435,7 @@ pub(super) fn consider(
     if c.indicator.statistic.never_negative() {
         let bad = value.iter().filter(|v| **v < -1e-9 * (1.0 + scale)).count();
         if bad > 0 {
-            let refused =
-                RouteChoice { direct_chosen: false, impossible: Some((bad, pots.len())), ..choice };
+            let refused = RouteChoice { direct_chosen: false, impossible: Some((bad, pots.len())), ..choice };
             return Some((refused, None));
         }
     }
