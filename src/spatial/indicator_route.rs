@@ -431,8 +431,8 @@ pub(super) fn consider(
     // mapping study a Gaussian fit without nugget mapped night cold hours
     // down to -15.7 h, RMSE 14.6 h at the pots against 1.4 h for the
     // per-step route, docs/spatial.md): such a map is not used.
-    let scale = values.iter().filter(|v| v.is_finite()).fold(0.0f64, |m, v| m.max(v.abs()));
     if c.indicator.statistic.never_negative() {
+        let scale = values.iter().filter(|v| v.is_finite()).fold(0.0f64, |m, v| m.max(v.abs()));
         let bad = value.iter().filter(|v| **v < -1e-9 * (1.0 + scale)).count();
         if bad > 0 {
             let refused = RouteChoice { direct_chosen: false, impossible: Some((bad, pots.len())), ..choice };
